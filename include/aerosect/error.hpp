@@ -1,0 +1,79 @@
+#pragma once
+// Error types of the engine. Three tiers (see DEVELOPERS.md):
+//  - internal invariants: assert() in debug builds;
+//  - conditions that must always hold: AEROSECT_CHECK, which throws
+//    InternalError with the source file and line (never silently continues);
+//  - bad user input: InputError, carrying where the value came from (file,
+//    line, column or the command line), the key, the value given and what is
+//    allowed.
+// The engine never prints or exits; the command-line driver turns these into
+// messages and exit codes.
+
+#include <stdexcept>
+#include <string>
+
+namespace aerosect {
+
+// Base of every error the engine throws on purpose.
+class Error : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+// Where a value came from: a line of a case file or a --set override.
+struct SourceLocation {
+  std::string file;  // case-file path, or "--set" for a command-line override
+  int line = 0;      // 1-based; 0 when unknown
+  int column = 0;    // 1-based; 0 when unknown
+};
+
+// Bad user input. what() is the complete one-screen message:
+//   FILE:LINE:COL: KEY = VALUE: PROBLEM; allowed: ALLOWED
+class InputError : public Error {
+ public:
+  InputError(SourceLocation where, std::string key, std::string value,
+             std::string problem, std::string allowed);
+
+  const SourceLocation& where() const noexcept { return where_; }
+  const std::string& key() const noexcept { return key_; }
+  const std::string& value() const noexcept { return value_; }
+  const std::string& problem() const noexcept { return problem_; }
+  const std::string& allowed() const noexcept { return allowed_; }
+
+ private:
+  SourceLocation where_;
+  std::string key_, value_, problem_, allowed_;
+};
+
+// The integration could not continue (NaN/Inf state, step-size collapse).
+class NumericalError : public Error {
+ public:
+  NumericalError(double time, std::string message);
+  double time() const noexcept { return time_; }
+
+ private:
+  double time_;
+};
+
+// A result file could not be written.
+class OutputError : public Error {
+ public:
+  OutputError(std::string path, std::string message);
+  const std::string& path() const noexcept { return path_; }
+
+ private:
+  std::string path_;
+};
+
+// A condition that must always hold did not (a bug in aerosect).
+class InternalError : public Error {
+ public:
+  InternalError(const char* file, int line, const std::string& condition);
+};
+
+#define AEROSECT_CHECK(cond)                                         \
+  do {                                                               \
+    if (!(cond)) throw ::aerosect::InternalError(__FILE__, __LINE__, #cond); \
+  } while (false)
+
+}  // namespace aerosect

@@ -1,0 +1,71 @@
+#pragma once
+// Time integration of an AeroelasticModel with Boost.Odeint's adaptive
+// dense-output steppers (Dormand-Prince 5(4) by default, Bulirsch-Stoer as
+// an option). Output is taken from the dense output at fixed sample times
+// (t0 + k dt, computed from k, never accumulated) or at every accepted step.
+//
+// The model is shared and const; everything that changes during a run is in
+// RunState, so independent runs can proceed on separate threads.
+
+#include <atomic>
+#include <cstdint>
+#include <functional>
+#include <string>
+#include <vector>
+
+#include "aerosect/model/system.hpp"
+
+namespace aerosect {
+
+enum class StepperKind { kDopri5, kBulirschStoer };
+const char* to_string(StepperKind k);
+
+struct IntegratorSettings {
+  StepperKind stepper = StepperKind::kDopri5;
+  double relative_tolerance = 1e-8;
+  double absolute_tolerance = 1e-10;
+  double max_step = 0.0;      // s; 0 = no limit
+  double initial_step = 0.0;  // s; 0 = chosen from the model's time scales
+};
+
+struct OutputSchedule {
+  bool every_step = false;   // true: one sample per accepted step
+  double interval = 0.0;     // s, when !every_step
+};
+
+// Mutable per-run data.
+struct RunState {
+  double time = 0.0;               // s
+  std::vector<double> x;           // state vector (layout of the model)
+  std::vector<int> regions;        // active region of each spring
+  std::int64_t steps = 0;          // accepted steps
+  std::int64_t rhs_evaluations = 0;
+  std::int64_t samples = 0;        // samples handed to the observer
+};
+
+enum class ObserverAction { kContinue, kStop };
+// Called with each output sample: time (s) and state.
+using SampleObserver = std::function<ObserverAction(double t, const std::vector<double>& x)>;
+
+enum class StopReason { kEndTime, kObserver, kCancelled };
+const char* to_string(StopReason r);
+
+struct IntegrationResult {
+  StopReason reason = StopReason::kEndTime;
+  double end_time = 0.0;  // s, time of the last state in RunState
+};
+
+// Integrates from run.time to t_end. The first sample (at run.time) is
+// emitted only when `emit_initial` is true. On return run.time/run.x hold
+// the last state reached (t_end, or where it stopped). Throws
+// NumericalError on a non-finite state or step-size collapse.
+IntegrationResult integrate(const AeroelasticModel& model, RunState& run, double t_end,
+                            const IntegratorSettings& settings, const OutputSchedule& schedule,
+                            const SampleObserver& observer, bool emit_initial = true,
+                            const std::atomic<bool>* cancel = nullptr);
+
+// A default first step: 1/200 of the shortest uncoupled period (or of the
+// shortest aerodynamic lag time), s.
+double default_initial_step(const AeroelasticModel& model);
+
+}  // namespace aerosect

@@ -1,0 +1,108 @@
+#pragma once
+// The assembled aeroelastic system: structure + Theodorsen aerodynamics +
+// spring laws, as a first-order ODE  x' = A x + G s(q)  over the state
+//
+//   x = [ q (n_dof) | q' (n_dof) | y (n_wagner) ]
+//
+//   q   displacements (h m, alpha rad[, beta rad]); slice `displacement`
+//   q'  velocities (m/s, rad/s); slice `velocity`
+//   y   Wagner lag states, m/s (see aerodynamics.hpp); slice `wagner`
+//
+// Equations: (M_s + M_a) q'' = -(C_s + C_a) q' - K_a q - f_spring(q) + f_c w_c,
+//   w_c = phi(0) Q + psi . y,  y_i' = (U/b) eps_i (Q - y_i),  Q = d_q.q + d_v.q'.
+// The total mass matrix M_s + M_a is constant and is inverted once here.
+// A contains every linear spring; each nonlinear spring j (a law with
+// breakpoints or polynomial terms) adds -G_j f_j(q_j, region_j), where G_j
+// is column j of [0; (M_s+M_a)^-1; 0]. A held DOF keeps its initial
+// displacement: its velocity and acceleration are zero, and its generalised
+// aerodynamic force is the reaction (used to test a rigidly held section).
+//
+// This object is immutable after construction and shared by every run;
+// per-run data (state vector, spring regions, counters) live elsewhere.
+
+#include <array>
+#include <span>
+#include <vector>
+
+#include <Eigen/Core>
+
+#include "aerosect/model/aerodynamics.hpp"
+#include "aerosect/model/section.hpp"
+#include "aerosect/model/spring.hpp"
+
+namespace aerosect {
+
+struct StateLayout {
+  int n_dof = 2;
+  int displacement = 0;  // offset of q
+  int velocity = 2;      // offset of q'
+  int wagner = 4;        // offset of y
+  int n_wagner = 0;
+  int size = 4;
+};
+
+// Everything the model is built from (the resolved case, SI units).
+struct ModelDescription {
+  SectionProperties section;
+  FlowConditions flow;
+  AeroSettings aero;
+  std::array<SpringLaw, 3> springs;        // plunge, pitch, flap restoring laws
+  std::array<bool, 3> held{false, false, false};  // DOFs held at their initial value
+};
+
+// Sectional loads at one instant (per unit span; signs of aerodynamics.hpp).
+struct Loads {
+  double lift = 0;             // N/m, positive up
+  double pitching_moment = 0;  // N m/m about the elastic axis, nose up
+  double hinge_moment = 0;     // N m/m about the hinge, trailing edge down
+  double effective_downwash = 0;  // w_c, m/s
+};
+
+class AeroelasticModel {
+ public:
+  explicit AeroelasticModel(ModelDescription description);
+
+  const ModelDescription& description() const { return d_; }
+  const StateLayout& layout() const { return layout_; }
+  int n_dof() const { return layout_.n_dof; }
+  int state_size() const { return layout_.size; }
+  const AeroMatrices& aero() const { return aero_; }
+  const DofMatrix& total_mass() const { return total_mass_; }
+
+  // x' = f(x; regions). regions[j] is the active region of spring j.
+  void rhs(const double* x, double* dxdt, std::span<const int> regions) const;
+
+  // Loads from a state and its derivative (accelerations are dxdt[velocity..]).
+  Loads loads(const double* x, const double* dxdt) const;
+
+  // Linear state matrix with spring j replaced by a linear spring of
+  // stiffness k[j] (N/m or N m/rad); nonlinear springs use k[j] as given.
+  Eigen::MatrixXd state_matrix(const DofVector& spring_stiffness) const;
+  // Linear state matrix with every spring at its nominal stiffness.
+  Eigen::MatrixXd nominal_state_matrix() const;
+
+  // Indices of springs that are not linear (handled outside A).
+  std::span<const int> nonlinear_springs() const { return nonlinear_; }
+
+  // Initial state: displacements q0, velocities v0 (held DOFs get v = 0);
+  // lag states at rest (y = 0, a section released into the flow at t = 0)
+  // or steady (y = Q(0), a section held in steady flow before release).
+  std::vector<double> initial_state(const DofVector& q0, const DofVector& v0,
+                                    bool steady_lag_states) const;
+
+  // Initial spring regions for a state.
+  std::vector<int> regions_of(const double* x) const;
+
+ private:
+  ModelDescription d_;
+  StateLayout layout_;
+  AeroMatrices aero_;
+  DofMatrix total_mass_;
+  DofMatrix mass_inverse_;  // of the active block, zero rows/cols for held DOFs
+  double phi0_ = 1.0;
+  Eigen::MatrixXd A_;       // linear part, nonlinear springs excluded
+  Eigen::MatrixXd G_;       // state_size x n_dof: maps generalised force to x'
+  std::vector<int> nonlinear_;
+};
+
+}  // namespace aerosect

@@ -1,0 +1,185 @@
+#include "aerosect/analysis/report.hpp"
+
+#include <cmath>
+#include <numbers>
+
+#include <fmt/format.h>
+
+#include "aerosect/version.hpp"
+
+namespace aerosect {
+
+using std::numbers::pi;
+
+const char* const kSafetyCaution =
+    "CAUTION: flutter and LCO clearance is safety-critical. Results of a typical-section model "
+    "are for preliminary design and trade studies; airworthiness requires the applicable "
+    "regulations, ground vibration tests, flight flutter testing and the judgement of "
+    "qualified, licensed engineers under the local authority's rules. Freeplay limits for real "
+    "hardware come from the applicable specification, not from this tool.";
+
+namespace {
+const char* kDofNames[3] = {"plunge", "pitch", "flap"};
+
+nlohmann::json parameters_json(const RunMetadata& m) {
+  nlohmann::json j = nlohmann::json::object();
+  for (const auto& p : m.parameters) j[p.group][p.name] = p.value;
+  return j;
+}
+
+nlohmann::json common_json(const Case& c, const char* command) {
+  nlohmann::json j;
+  j["command"] = command;
+  j["aerosect_version"] = kVersion;
+  j["case"] = c.path;
+  j["title"] = c.title;
+  j["input_form"] = c.input_form;
+  j["dof"] = c.model.section.dof;
+  j["aerodynamic_model"] = to_string(c.model.aero.model);
+  j["overrides"] = c.overrides;
+  j["caution"] = kSafetyCaution;
+  return j;
+}
+
+std::string fmt_num(double v) { return std::isfinite(v) ? fmt::format("{:.6g}", v) : "inf"; }
+}  // namespace
+
+CheckReport check_case(const Case& c) {
+  CheckReport r;
+  r.modes = in_vacuo_modes(c.model.section);
+  r.divergence = divergence(c.model.section, c.model.flow.density);
+  return r;
+}
+
+nlohmann::json check_json(const Case& c, const CheckReport& r) {
+  nlohmann::json j = common_json(c, "check");
+  j["parameters"] = parameters_json(case_metadata(c, "check"));
+  const auto w = uncoupled_frequencies(c.model.section);
+  j["uncoupled_frequencies_hz"]["plunge"] = w.plunge / (2 * pi);
+  j["uncoupled_frequencies_hz"]["pitch"] = w.pitch / (2 * pi);
+  if (c.model.section.dof == 3) j["uncoupled_frequencies_hz"]["flap"] = w.flap / (2 * pi);
+  j["in_vacuo_modes"] = nlohmann::json::array();
+  for (const auto& m : r.modes) {
+    nlohmann::json mj;
+    mj["frequency_hz"] = m.frequency / (2 * pi);
+    mj["frequency_ratio"] = m.frequency / w.pitch;
+    mj["dominant"] = kDofNames[m.dominant_dof];
+    mj["shape"]["plunge_per_semichord"] = m.shape(kPlunge);
+    mj["shape"]["pitch"] = m.shape(kPitch);
+    if (c.model.section.dof == 3) mj["shape"]["flap"] = m.shape(kFlap);
+    j["in_vacuo_modes"].push_back(mj);
+  }
+  const Divergence& d = r.divergence;
+  j["divergence"]["exists"] = d.exists;
+  if (d.exists) {
+    j["divergence"]["speed_m_s"] = d.speed;
+    j["divergence"]["reduced_speed"] = d.speed / (c.model.section.semichord * w.pitch);
+    j["divergence"]["speed_ratio"] = c.model.flow.airspeed / d.speed;
+  } else {
+    j["divergence"]["speed_m_s"] = nullptr;
+  }
+  j["divergence"]["density_kg_m3"] = c.model.flow.density;
+  return j;
+}
+
+std::string check_text(const Case& c, const CheckReport& r) {
+  const SectionProperties& s = c.model.section;
+  const NondimensionalParameters& n = c.nondimensional;
+  const auto w = uncoupled_frequencies(s);
+  std::string t;
+  t += fmt::format("aerosect {} check: {}\n", kVersion, c.path);
+  if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
+  t += fmt::format("  {}-DOF section, input in {} form, aerodynamics: {}\n\n", s.dof,
+                   c.input_form == "si" ? "SI" : "nondimensional", to_string(c.model.aero.model));
+  t += "SI parameters (per unit span)\n";
+  t += fmt::format("  semichord b            {:>12} m\n", fmt_num(s.semichord));
+  t += fmt::format("  mass m                 {:>12} kg/m\n", fmt_num(s.mass));
+  t += fmt::format("  elastic axis a_h       {:>12} semichords from midchord\n", fmt_num(s.elastic_axis));
+  t += fmt::format("  static unbalance S_a   {:>12} kg m/m\n", fmt_num(s.static_unbalance));
+  t += fmt::format("  pitch inertia I_a      {:>12} kg m^2/m (about the elastic axis)\n", fmt_num(s.pitch_inertia));
+  t += fmt::format("  plunge stiffness K_h   {:>12} N/m/m\n", fmt_num(s.plunge_stiffness));
+  t += fmt::format("  pitch stiffness K_a    {:>12} N m/rad/m\n", fmt_num(s.pitch_stiffness));
+  if (s.dof == 3) {
+    t += fmt::format("  hinge c                {:>12} semichords from midchord\n", fmt_num(s.hinge));
+    t += fmt::format("  flap unbalance S_b     {:>12} kg m/m (about the hinge)\n", fmt_num(s.flap_static_unbalance));
+    t += fmt::format("  flap inertia I_b       {:>12} kg m^2/m (about the hinge)\n", fmt_num(s.flap_inertia));
+    t += fmt::format("  hinge stiffness K_b    {:>12} N m/rad/m\n", fmt_num(s.flap_stiffness));
+  }
+  t += fmt::format("  density rho            {:>12} kg/m^3{}\n", fmt_num(c.model.flow.density),
+                   c.altitude ? fmt::format(" (ISA, {} m)", *c.altitude) : std::string());
+  t += fmt::format("  airspeed U             {:>12} m/s\n\n", fmt_num(c.model.flow.airspeed));
+  t += "Nondimensional parameters\n";
+  t += fmt::format("  mu {}  a_h {}  x_alpha {}  r_alpha {}  omega_bar {}  U* {}\n",
+                   fmt_num(n.mass_ratio), fmt_num(n.elastic_axis), fmt_num(n.cg_offset),
+                   fmt_num(n.radius_of_gyration), fmt_num(n.frequency_ratio), fmt_num(n.reduced_speed));
+  t += fmt::format("  zeta_h {}  zeta_alpha {}", fmt_num(n.plunge_damping_ratio),
+                   fmt_num(n.pitch_damping_ratio));
+  if (s.dof == 3)
+    t += fmt::format("  c {}  x_beta {}  r_beta {}  omega_beta/omega_alpha {}  zeta_beta {}",
+                     fmt_num(n.hinge), fmt_num(n.flap_cg_offset), fmt_num(n.flap_radius_of_gyration),
+                     fmt_num(n.flap_frequency_ratio), fmt_num(n.flap_damping_ratio));
+  t += "\n\nUncoupled in-vacuo frequencies\n";
+  t += fmt::format("  plunge {:.6g} Hz   pitch {:.6g} Hz", w.plunge / (2 * pi), w.pitch / (2 * pi));
+  if (s.dof == 3) t += fmt::format("   flap {:.6g} Hz", w.flap / (2 * pi));
+  t += "\n\nCoupled in-vacuo modes (shape: h/b, alpha rad" + std::string(s.dof == 3 ? ", beta rad" : "") + ")\n";
+  for (std::size_t i = 0; i < r.modes.size(); ++i) {
+    const auto& m = r.modes[i];
+    t += fmt::format("  mode {}  {:10.6g} Hz  ({:.4f} omega_alpha)  {:<6}  shape [", i + 1,
+                     m.frequency / (2 * pi), m.frequency / w.pitch, kDofNames[m.dominant_dof]);
+    for (int k = 0; k < s.dof; ++k) t += fmt::format("{}{:+.4f}", k ? ", " : "", m.shape(k));
+    t += "]\n";
+  }
+  t += "\nStatic divergence (quasi-steady circulatory lift)\n";
+  if (r.divergence.exists) {
+    t += fmt::format("  U_D = {:.6g} m/s  (U_D / (b omega_alpha) = {:.6g}); case airspeed is {:.3g} of U_D\n",
+                     r.divergence.speed, r.divergence.speed / (s.semichord * w.pitch),
+                     c.model.flow.airspeed / r.divergence.speed);
+  } else {
+    t += c.model.flow.density > 0 ? "  none: the aerodynamic stiffness never cancels the springs\n"
+                                  : "  none: vacuum (density 0)\n";
+  }
+  t += "\n";
+  t += kSafetyCaution;
+  t += "\n";
+  return t;
+}
+
+nlohmann::json simulation_json(const Case& c, const SimulationSummary& s,
+                               const std::string& output_path) {
+  nlohmann::json j = common_json(c, "simulate");
+  j["output"] = output_path;
+  j["completed"] = s.completed;
+  j["status"] = s.status;
+  j["end_time_s"] = s.end_time;
+  j["end_tau"] = s.end_tau;
+  j["samples"] = s.samples;
+  j["steps"] = s.steps;
+  j["rhs_evaluations"] = s.rhs_evaluations;
+  j["extremes"] = nlohmann::json::object();
+  for (const auto& e : s.extremes) {
+    j["extremes"][e.channel] = {{"units", e.units},       {"max", e.max},
+                                {"time_of_max_s", e.time_of_max}, {"min", e.min},
+                                {"time_of_min_s", e.time_of_min}};
+  }
+  return j;
+}
+
+std::string simulation_text(const Case& c, const SimulationSummary& s,
+                            const std::string& output_path) {
+  std::string t;
+  t += fmt::format("aerosect {} simulate: {}\n", kVersion, c.path);
+  t += fmt::format("  {} to t = {:.6g} s (tau = {:.6g}); {} samples, {} steps, {} rhs evaluations\n",
+                   s.status, s.end_time, s.end_tau, s.samples, s.steps, s.rhs_evaluations);
+  t += fmt::format("  written to {}\n\n", output_path);
+  t += fmt::format("  {:<20} {:>14} {:>10} {:>14} {:>10}  units\n", "channel", "max", "at s", "min", "at s");
+  for (const auto& e : s.extremes) {
+    t += fmt::format("  {:<20} {:>14.6g} {:>10.4g} {:>14.6g} {:>10.4g}  {}\n", e.channel, e.max,
+                     e.time_of_max, e.min, e.time_of_min, e.units);
+  }
+  t += "\n";
+  t += kSafetyCaution;
+  t += "\n";
+  return t;
+}
+
+}  // namespace aerosect

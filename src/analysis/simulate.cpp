@@ -1,0 +1,236 @@
+#include "aerosect/analysis/simulate.hpp"
+
+#include <cmath>
+#include <limits>
+
+#include <fmt/format.h>
+
+#include "aerosect/error.hpp"
+#include "aerosect/model/atmosphere.hpp"
+#include "aerosect/version.hpp"
+
+namespace aerosect {
+
+namespace {
+const char* kDofNames[3] = {"plunge", "pitch", "flap"};
+const char* kDofLong[3] = {"plunge displacement, positive down", "pitch angle, positive nose up",
+                           "flap angle, positive trailing edge down"};
+const char* kDofUnits[3] = {"m", "rad", "rad"};
+const char* kRateUnits[3] = {"m s-1", "rad s-1", "rad s-1"};
+}  // namespace
+
+std::vector<Channel> simulation_channels(const AeroelasticModel& model) {
+  const StateLayout& L = model.layout();
+  std::vector<Channel> ch;
+  auto scalar = [&ch](std::string name, std::string units, std::string long_name) {
+    Channel c;
+    c.name = std::move(name);
+    c.units = std::move(units);
+    c.long_name = std::move(long_name);
+    ch.push_back(std::move(c));
+  };
+  scalar("tau", "1", "nondimensional time U t / b (semichords travelled)");
+  for (int j = 0; j < L.n_dof; ++j) scalar(kDofNames[j], kDofUnits[j], kDofLong[j]);
+  for (int j = 0; j < L.n_dof; ++j)
+    scalar(std::string(kDofNames[j]) + "_velocity", kRateUnits[j],
+           std::string("rate of ") + kDofLong[j]);
+  if (L.n_wagner > 0) {
+    Channel c;
+    c.name = "wagner_lag_states";
+    c.units = "m s-1";
+    c.long_name = "Wagner lag states y_i (lagged 3/4-chord downwash), y_i' = (U/b) eps_i (Q - y_i)";
+    c.width = L.n_wagner;
+    for (int i = 0; i < L.n_wagner; ++i) c.component_names.push_back(fmt::format("pole_{}", i + 1));
+    c.component_axis = "wagner_pole";
+    ch.push_back(c);
+  }
+  scalar("lift", "N m-1", "aerodynamic lift per unit span, positive up");
+  scalar("pitching_moment", "N m m-1",
+         "aerodynamic pitching moment about the elastic axis per unit span, positive nose up");
+  if (L.n_dof == 3)
+    scalar("hinge_moment", "N m m-1",
+           "aerodynamic hinge moment per unit span, positive trailing edge down");
+  scalar("effective_downwash", "m s-1",
+         "circulatory (lagged) 3/4-chord downwash w_c, C(k) Q in the frequency domain");
+  return ch;
+}
+
+RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
+  RunMetadata m;
+  m.file_kind = file_kind;
+  m.title = c.title;
+  m.text_attributes = {
+      {"aerosect_version", kVersion},
+      {"case_path", c.path},
+      {"case_text", c.text_as_run()},
+      {"input_form", c.input_form},
+      {"aerodynamic_model", to_string(c.model.aero.model)},
+      {"wagner_approximation", c.model.aero.model == AeroModel::kWagner ? c.model.aero.wagner_name
+                                                                         : std::string("none")},
+      {"sign_conventions",
+       "plunge h positive down; pitch alpha positive nose up; flap beta positive trailing edge "
+       "down; lift positive up; pitching moment about the elastic axis positive nose up; hinge "
+       "moment positive trailing edge down; chordwise positions in semichords from midchord, "
+       "positive aft; per unit span"},
+      {"caution",
+       "Typical-section results are for preliminary design and trade studies only. Flutter and "
+       "LCO clearance is safety-critical: airworthiness requires the applicable regulations, "
+       "ground vibration tests, flight flutter testing and the judgement of qualified, licensed "
+       "engineers."},
+  };
+  const SectionProperties& s = c.model.section;
+  const FlowConditions& f = c.model.flow;
+  const auto w = uncoupled_frequencies(s);
+  auto si = [&](const char* name, double v, const char* units, const char* ln) {
+    m.parameters.push_back({"si", name, v, units, ln});
+  };
+  si("semichord", s.semichord, "m", "semichord b");
+  si("mass", s.mass, "kg m-1", "section mass per unit span m");
+  si("elastic_axis", s.elastic_axis, "1", "elastic axis a_h, semichords from midchord, aft +");
+  si("static_unbalance", s.static_unbalance, "kg m m-1", "static unbalance S_alpha = m x_alpha b");
+  si("pitch_inertia", s.pitch_inertia, "kg m2 m-1", "pitch inertia about the elastic axis I_alpha");
+  si("plunge_stiffness", s.plunge_stiffness, "N m-1 m-1", "plunge spring stiffness K_h");
+  si("pitch_stiffness", s.pitch_stiffness, "N m rad-1 m-1", "pitch spring stiffness K_alpha");
+  si("plunge_damping_ratio", s.plunge_damping_ratio, "1", "plunge viscous damping ratio");
+  si("pitch_damping_ratio", s.pitch_damping_ratio, "1", "pitch viscous damping ratio");
+  si("plunge_frequency", w.plunge, "rad s-1", "uncoupled plunge frequency omega_h");
+  si("pitch_frequency", w.pitch, "rad s-1", "uncoupled pitch frequency omega_alpha");
+  if (s.dof == 3) {
+    si("hinge", s.hinge, "1", "flap hinge c, semichords from midchord, aft +");
+    si("flap_static_unbalance", s.flap_static_unbalance, "kg m m-1",
+       "flap static unbalance about the hinge S_beta");
+    si("flap_inertia", s.flap_inertia, "kg m2 m-1", "flap inertia about the hinge I_beta");
+    si("flap_stiffness", s.flap_stiffness, "N m rad-1 m-1", "hinge spring stiffness K_beta");
+    si("flap_damping_ratio", s.flap_damping_ratio, "1", "flap viscous damping ratio");
+    si("flap_frequency", w.flap, "rad s-1", "uncoupled flap frequency omega_beta");
+  }
+  si("density", f.density, "kg m-3", "air density rho");
+  si("airspeed", f.airspeed, "m s-1", "true airspeed U");
+  if (c.altitude) si("altitude", *c.altitude, "m", "ISA geopotential altitude");
+
+  const NondimensionalParameters& n = c.nondimensional;
+  auto nd = [&](const char* name, double v, const char* units, const char* ln) {
+    m.parameters.push_back({"nondimensional", name, v, units, ln});
+  };
+  nd("mass_ratio", n.mass_ratio, "1", "mass ratio mu = m / (pi rho b^2)");
+  nd("elastic_axis", n.elastic_axis, "1", "elastic axis a_h");
+  nd("cg_offset", n.cg_offset, "1", "CG offset from the elastic axis x_alpha, semichords");
+  nd("radius_of_gyration", n.radius_of_gyration, "1", "radius of gyration r_alpha, semichords");
+  nd("frequency_ratio", n.frequency_ratio, "1", "frequency ratio omega_h / omega_alpha");
+  nd("plunge_damping_ratio", n.plunge_damping_ratio, "1", "zeta_h");
+  nd("pitch_damping_ratio", n.pitch_damping_ratio, "1", "zeta_alpha");
+  nd("reduced_speed", n.reduced_speed, "1", "reduced speed U* = U / (b omega_alpha)");
+  if (n.dof == 3) {
+    nd("hinge", n.hinge, "1", "hinge c");
+    nd("flap_cg_offset", n.flap_cg_offset, "1", "x_beta = S_beta / (m b)");
+    nd("flap_radius_of_gyration", n.flap_radius_of_gyration, "1", "r_beta = sqrt(I_beta / (m b^2))");
+    nd("flap_frequency_ratio", n.flap_frequency_ratio, "1", "omega_beta / omega_alpha");
+    nd("flap_damping_ratio", n.flap_damping_ratio, "1", "zeta_beta");
+  }
+  nd("reference_semichord", n.reference.semichord, "m", "reference semichord b");
+  nd("reference_pitch_frequency", n.reference.pitch_frequency, "rad s-1",
+     "reference frequency omega_alpha");
+  nd("reference_density", n.reference.density, "kg m-3", "reference density rho");
+  return m;
+}
+
+SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHistorySink& sink,
+                           const std::atomic<bool>* cancel) {
+  const StateLayout& L = model.layout();
+  const SimulationSettings& set = c.simulation;
+  const std::vector<Channel> channels = simulation_channels(model);
+  int width = 0;
+  for (const auto& ch : channels) width += ch.width;
+
+  Channel time_channel;
+  time_channel.name = "time";
+  time_channel.units = "s";
+  time_channel.long_name = "time since release";
+  sink.begin(time_channel, channels, case_metadata(c, "simulation"));
+
+  // Extremes are tracked for displacements, velocities and loads (not tau,
+  // lag states or downwash).
+  SimulationSummary summary;
+  struct Tracked {
+    int column;
+    std::size_t extreme;
+  };
+  std::vector<Tracked> tracked;
+  {
+    int col = 0;
+    for (const auto& ch : channels) {
+      if (ch.width == 1 && ch.name != "tau" && ch.name != "effective_downwash") {
+        tracked.push_back({col, summary.extremes.size()});
+        Extreme e;
+        e.channel = ch.name;
+        e.units = ch.units;
+        e.max = -std::numeric_limits<double>::infinity();
+        e.min = std::numeric_limits<double>::infinity();
+        summary.extremes.push_back(e);
+      }
+      col += ch.width;
+    }
+  }
+
+  const double U_over_b = c.model.flow.airspeed / c.model.section.semichord;
+  std::vector<double> row(width), dxdt(L.size);
+  RunState run;
+  run.x = model.initial_state(set.initial_displacement, set.initial_velocity, set.steady_lag_states);
+  run.regions = model.regions_of(run.x.data());
+
+  auto observer = [&](double t, const std::vector<double>& x) {
+    model.rhs(x.data(), dxdt.data(), run.regions);
+    const Loads l = model.loads(x.data(), dxdt.data());
+    int k = 0;
+    row[k++] = U_over_b * t;
+    for (int j = 0; j < L.n_dof; ++j) row[k++] = x[L.displacement + j];
+    for (int j = 0; j < L.n_dof; ++j) row[k++] = x[L.velocity + j];
+    for (int i = 0; i < L.n_wagner; ++i) row[k++] = x[L.wagner + i];
+    row[k++] = l.lift;
+    row[k++] = l.pitching_moment;
+    if (L.n_dof == 3) row[k++] = l.hinge_moment;
+    row[k++] = l.effective_downwash;
+    for (const auto& tr : tracked) {
+      Extreme& e = summary.extremes[tr.extreme];
+      const double v = row[tr.column];
+      if (v > e.max) { e.max = v; e.time_of_max = t; }
+      if (v < e.min) { e.min = v; e.time_of_min = t; }
+    }
+    sink.append(t, row);
+    return ObserverAction::kContinue;
+  };
+
+  RunOutcome outcome;
+  auto fill_outcome = [&]() {
+    summary.end_time = run.time;
+    summary.end_tau = U_over_b * run.time;
+    summary.steps = run.steps;
+    summary.rhs_evaluations = run.rhs_evaluations;
+    summary.samples = run.samples;
+    outcome.completed = summary.completed;
+    outcome.status = summary.status;
+    outcome.samples = run.samples;
+    outcome.numbers = {{"end_time", summary.end_time},
+                       {"steps", static_cast<double>(run.steps)},
+                       {"rhs_evaluations", static_cast<double>(run.rhs_evaluations)}};
+  };
+  try {
+    const IntegrationResult r = integrate(model, run, set.duration, set.integrator, set.output,
+                                          observer, true, cancel);
+    summary.completed = r.reason == StopReason::kEndTime;
+    summary.status = r.reason == StopReason::kEndTime    ? "completed"
+                     : r.reason == StopReason::kCancelled ? "cancelled"
+                                                          : "stopped";
+  } catch (const NumericalError& e) {
+    summary.completed = false;
+    summary.status = std::string("numerical-error: ") + e.what();
+    fill_outcome();
+    sink.finish(outcome);
+    throw;
+  }
+  fill_outcome();
+  sink.finish(outcome);
+  return summary;
+}
+
+}  // namespace aerosect

@@ -1,0 +1,894 @@
+#include "aerosect/io/case.hpp"
+
+#include <algorithm>
+#include <cerrno>
+#include <cstring>
+#include <cmath>
+#include <fstream>
+#include <limits>
+#include <map>
+#include <numbers>
+#include <set>
+#include <sstream>
+
+#include <Eigen/Cholesky>
+#include <fmt/format.h>
+#include <toml++/toml.h>
+
+#include "aerosect/error.hpp"
+#include "aerosect/model/atmosphere.hpp"
+
+namespace aerosect {
+
+namespace {
+
+using std::numbers::pi;
+constexpr double kDeg = pi / 180.0;
+
+// ---------------------------------------------------------------------------
+// The schema: every key a case file may hold.
+const std::vector<std::string> kKnownKeys = {
+    "title",
+    "description",
+    "section.semichord",
+    "section.mass",
+    "section.elastic_axis",
+    "section.cg",
+    "section.cg_offset",
+    "section.static_unbalance",
+    "section.pitch_inertia",
+    "section.pitch_inertia_cg",
+    "section.radius_of_gyration",
+    "section.plunge_stiffness",
+    "section.plunge_frequency_hz",
+    "section.pitch_stiffness",
+    "section.pitch_frequency_hz",
+    "section.plunge_damping_ratio",
+    "section.pitch_damping_ratio",
+    "flap.hinge",
+    "flap.static_unbalance",
+    "flap.mass",
+    "flap.cg_offset",
+    "flap.inertia",
+    "flap.inertia_cg",
+    "flap.stiffness",
+    "flap.frequency_hz",
+    "flap.damping_ratio",
+    "flow.airspeed",
+    "flow.density",
+    "flow.altitude",
+    "nondimensional.mass_ratio",
+    "nondimensional.elastic_axis",
+    "nondimensional.cg_offset",
+    "nondimensional.radius_of_gyration",
+    "nondimensional.frequency_ratio",
+    "nondimensional.plunge_damping_ratio",
+    "nondimensional.pitch_damping_ratio",
+    "nondimensional.reduced_speed",
+    "nondimensional.hinge",
+    "nondimensional.flap_cg_offset",
+    "nondimensional.flap_radius_of_gyration",
+    "nondimensional.flap_frequency_ratio",
+    "nondimensional.flap_damping_ratio",
+    "nondimensional.reference.semichord",
+    "nondimensional.reference.pitch_frequency_hz",
+    "nondimensional.reference.density",
+    "aerodynamics.model",
+    "aerodynamics.wagner",
+    "aerodynamics.wagner_coefficients",
+    "aerodynamics.wagner_exponents",
+    "initial.plunge",
+    "initial.plunge_semichords",
+    "initial.pitch_deg",
+    "initial.flap_deg",
+    "initial.plunge_rate",
+    "initial.pitch_rate_deg_s",
+    "initial.flap_rate_deg_s",
+    "initial.lag_states",
+    "simulation.duration",
+    "simulation.duration_semichords",
+    "simulation.sample_rate",
+    "simulation.sample_interval",
+    "simulation.sample_interval_semichords",
+    "simulation.every_step",
+    "simulation.stepper",
+    "simulation.relative_tolerance",
+    "simulation.absolute_tolerance",
+    "simulation.max_step",
+    "simulation.initial_step",
+    "simulation.hold",
+};
+
+// Tables that may appear (prefixes of known keys).
+bool is_known_table(const std::string& path) {
+  return std::any_of(kKnownKeys.begin(), kKnownKeys.end(),
+                     [&](const std::string& k) { return k.rfind(path + ".", 0) == 0; });
+}
+bool is_known_key(const std::string& path) {
+  return std::find(kKnownKeys.begin(), kKnownKeys.end(), path) != kKnownKeys.end();
+}
+
+std::size_t edit_distance(std::string_view a, std::string_view b) {
+  std::vector<std::size_t> prev(b.size() + 1), cur(b.size() + 1);
+  for (std::size_t j = 0; j <= b.size(); ++j) prev[j] = j;
+  for (std::size_t i = 1; i <= a.size(); ++i) {
+    cur[0] = i;
+    for (std::size_t j = 1; j <= b.size(); ++j) {
+      const std::size_t sub = prev[j - 1] + (a[i - 1] == b[j - 1] ? 0 : 1);
+      cur[j] = std::min({prev[j] + 1, cur[j - 1] + 1, sub});
+    }
+    std::swap(prev, cur);
+  }
+  return prev[b.size()];
+}
+
+std::string leaf_of(const std::string& path) {
+  const auto p = path.rfind('.');
+  return p == std::string::npos ? path : path.substr(p + 1);
+}
+
+// Closest known key (or table) to an unknown dotted path, or "".
+std::string suggestion_for(const std::string& path) {
+  std::vector<std::string> candidates = kKnownKeys;
+  for (const auto& k : kKnownKeys) {
+    for (auto p = k.find('.'); p != std::string::npos; p = k.find('.', p + 1))
+      candidates.push_back(k.substr(0, p));
+  }
+  const std::string leaf = leaf_of(path);
+  std::string best;
+  std::size_t best_d = std::numeric_limits<std::size_t>::max();
+  for (const auto& c : candidates) {
+    const std::size_t d = std::min(edit_distance(path, c), edit_distance(leaf, leaf_of(c)) + 1);
+    if (d < best_d) {
+      best_d = d;
+      best = c;
+    }
+  }
+  const std::size_t limit = std::max<std::size_t>(2, leaf.size() / 3);
+  return best_d <= limit ? best : std::string();
+}
+
+std::string join(const std::vector<std::string>& v, const char* sep = ", ") {
+  std::string s;
+  for (std::size_t i = 0; i < v.size(); ++i) s += (i ? sep : "") + v[i];
+  return s;
+}
+
+std::string quoted_list(const std::vector<std::string>& v) {
+  std::vector<std::string> q;
+  for (const auto& s : v) q.push_back("\"" + s + "\"");
+  return join(q);
+}
+
+std::string node_text(const toml::node& n) {
+  std::ostringstream os;
+  if (n.is_table()) {
+    os << "(table)";
+  } else if (auto* a = n.as_array()) {
+    os << *a;
+  } else {
+    n.visit([&](auto&& v) { os << v; });
+  }
+  std::string s = os.str();
+  if (s.size() > 60) s = s.substr(0, 57) + "...";
+  return s;
+}
+
+// ---------------------------------------------------------------------------
+// Reading context: where values came from.
+struct Context {
+  std::string file;
+  std::map<std::string, std::string> overrides;  // key -> "key=value"
+};
+
+class Table {
+ public:
+  Table(const Context& ctx, const toml::table* t, std::string path)
+      : ctx_(ctx), t_(t), path_(std::move(path)) {}
+
+  bool present() const { return t_ != nullptr; }
+  const std::string& path() const { return path_; }
+  std::string key_path(std::string_view key) const {
+    return path_.empty() ? std::string(key) : path_ + "." + std::string(key);
+  }
+
+  const toml::node* node(std::string_view key) const {
+    return t_ ? t_->get(key) : nullptr;
+  }
+  bool has(std::string_view key) const { return node(key) != nullptr; }
+
+  SourceLocation where(std::string_view key) const {
+    const std::string kp = key_path(key);
+    if (auto it = ctx_.overrides.find(kp); it != ctx_.overrides.end())
+      return {"--set " + it->second, 0, 0};
+    if (const toml::node* n = node(key)) {
+      const auto& src = n->source();
+      return {ctx_.file, static_cast<int>(src.begin.line), static_cast<int>(src.begin.column)};
+    }
+    return where_table();
+  }
+  SourceLocation where_table() const {
+    if (t_) {
+      const auto& src = t_->source();
+      return {ctx_.file, static_cast<int>(src.begin.line), 0};
+    }
+    return {ctx_.file, 0, 0};
+  }
+
+  [[noreturn]] void fail(std::string_view key, const std::string& problem,
+                         const std::string& allowed) const {
+    const toml::node* n = node(key);
+    throw InputError(where(key), key_path(key), n ? node_text(*n) : std::string(), problem,
+                     allowed);
+  }
+
+  // A number (integers accepted), or nullopt when absent.
+  std::optional<double> number(std::string_view key) const {
+    const toml::node* n = node(key);
+    if (!n) return std::nullopt;
+    std::optional<double> v = n->value<double>();
+    if (!v || n->is_boolean()) fail(key, "must be a number", "a finite number");
+    if (!std::isfinite(*v)) fail(key, "must be finite", "a finite number (not nan or inf)");
+    return v;
+  }
+
+  double required_number(std::string_view key, const std::string& what) const {
+    auto v = number(key);
+    if (!v) missing(key, what);
+    return *v;
+  }
+
+  [[noreturn]] void missing(std::string_view key, const std::string& what) const {
+    throw InputError(where_table(), key_path(key), "",
+                     fmt::format("missing{}", present() ? "" : fmt::format(" (no [{}] table)", path_)),
+                     what);
+  }
+
+  std::optional<std::string> string(std::string_view key) const {
+    const toml::node* n = node(key);
+    if (!n) return std::nullopt;
+    auto v = n->value<std::string>();
+    if (!v) fail(key, "must be a string", "a quoted string");
+    return v;
+  }
+
+  std::string choice(std::string_view key, const std::vector<std::string>& allowed,
+                     const std::string& def) const {
+    auto v = string(key);
+    if (!v) return def;
+    if (std::find(allowed.begin(), allowed.end(), *v) == allowed.end()) {
+      std::string hint;
+      std::size_t best = 3;
+      for (const auto& a : allowed) {
+        const std::size_t d = edit_distance(*v, a);
+        if (d < best) {
+          best = d;
+          hint = a;
+        }
+      }
+      fail(key, hint.empty() ? "is not one of the choices"
+                             : fmt::format("is not one of the choices (did you mean \"{}\"?)", hint),
+           quoted_list(allowed));
+    }
+    return *v;
+  }
+
+  std::optional<bool> boolean(std::string_view key) const {
+    const toml::node* n = node(key);
+    if (!n) return std::nullopt;
+    if (!n->is_boolean()) fail(key, "must be true or false", "true or false");
+    return n->value<bool>();
+  }
+
+  std::optional<std::vector<double>> numbers(std::string_view key) const {
+    const toml::node* n = node(key);
+    if (!n) return std::nullopt;
+    const toml::array* a = n->as_array();
+    if (!a) fail(key, "must be an array of numbers", "an array such as [0.165, 0.335]");
+    std::vector<double> out;
+    for (const auto& e : *a) {
+      auto v = e.value<double>();
+      if (!v || e.is_boolean()) fail(key, "must be an array of numbers", "finite numbers");
+      if (!std::isfinite(*v)) fail(key, "must hold finite numbers", "finite numbers");
+      out.push_back(*v);
+    }
+    return out;
+  }
+
+  std::optional<std::vector<std::string>> strings(std::string_view key) const {
+    const toml::node* n = node(key);
+    if (!n) return std::nullopt;
+    const toml::array* a = n->as_array();
+    if (!a) fail(key, "must be an array of strings", "an array such as [\"plunge\"]");
+    std::vector<std::string> out;
+    for (const auto& e : *a) {
+      auto v = e.value<std::string>();
+      if (!v) fail(key, "must be an array of strings", "strings");
+      out.push_back(*v);
+    }
+    return out;
+  }
+
+  // Which one of alternative keys is given; "" when none. Two given: error.
+  std::string one_of(const std::vector<std::string>& keys) const {
+    std::string found;
+    for (const auto& k : keys) {
+      if (!has(k)) continue;
+      if (!found.empty())
+        fail(k, fmt::format("conflicts with '{}': give only one of them", key_path(found)),
+             "one of " + join(keys));
+      found = k;
+    }
+    return found;
+  }
+  std::string required_one_of(const std::vector<std::string>& keys,
+                              const std::string& what) const {
+    std::string k = one_of(keys);
+    if (k.empty()) {
+      std::vector<std::string> full;
+      for (const auto& x : keys) full.push_back(key_path(x));
+      throw InputError(where_table(), join(full, " | "), "",
+                       fmt::format("missing: give one of {}", join(full)), what);
+    }
+    return k;
+  }
+
+  // Value checks.
+  void require(bool ok, std::string_view key, const std::string& problem,
+               const std::string& allowed) const {
+    if (!ok) fail(key, problem, allowed);
+  }
+  Table sub(std::string_view key) const {
+    const toml::node* n = node(key);
+    if (n && !n->is_table())
+      fail(key, "must be a table", fmt::format("a [{}] table", key_path(key)));
+    return Table(ctx_, n ? n->as_table() : nullptr, key_path(key));
+  }
+
+ private:
+  const Context& ctx_;
+  const toml::table* t_;
+  std::string path_;
+};
+
+// Unknown keys anywhere in the document.
+void check_unknown_keys(const Context& ctx, const toml::table& t, const std::string& prefix) {
+  for (const auto& [k, v] : t) {
+    const std::string path = prefix.empty() ? std::string(k.str()) : prefix + "." + std::string(k.str());
+    if (v.is_table() && is_known_table(path)) {
+      check_unknown_keys(ctx, *v.as_table(), path);
+      continue;
+    }
+    if (!v.is_table() && is_known_key(path)) continue;
+    SourceLocation where{ctx.file, static_cast<int>(k.source().begin.line),
+                         static_cast<int>(k.source().begin.column)};
+    if (where.line == 0) {
+      where.line = static_cast<int>(v.source().begin.line);
+      where.column = static_cast<int>(v.source().begin.column);
+    }
+    if (auto it = ctx.overrides.find(path); it != ctx.overrides.end())
+      where = {"--set " + it->second, 0, 0};
+    const std::string hint = suggestion_for(path);
+    std::string problem = v.is_table() && !is_known_table(path) && is_known_key(path)
+                              ? "must be a value, not a table"
+                              : "unknown key";
+    if (!hint.empty()) problem += fmt::format(" (did you mean '{}'?)", hint);
+    throw InputError(where, path, v.is_table() ? "" : node_text(v), problem,
+                     "the keys listed in README.md, \"Case file reference\"");
+  }
+}
+
+// ---------------------------------------------------------------------------
+// Overrides.
+void apply_override(toml::table& root, const std::string& text, Context& ctx) {
+  const auto eq = text.find('=');
+  if (eq == std::string::npos || eq == 0)
+    throw InputError({"--set " + text, 0, 0}, "", text, "is not of the form key=value",
+                     "--set section.mass=12.5 (a dotted key from the case-file reference)");
+  auto trim = [](std::string s) {
+    const auto b = s.find_first_not_of(" \t"), e = s.find_last_not_of(" \t");
+    return b == std::string::npos ? std::string() : s.substr(b, e - b + 1);
+  };
+  const std::string key = trim(text.substr(0, eq));
+  const std::string value = trim(text.substr(eq + 1));
+  if (!is_known_key(key)) {
+    const std::string hint = suggestion_for(key);
+    throw InputError({"--set " + text, 0, 0}, key, value,
+                     hint.empty() ? "unknown key" : fmt::format("unknown key (did you mean '{}'?)", hint),
+                     "the keys listed in README.md, \"Case file reference\"");
+  }
+  // Parse the value as TOML; a bare word is a string.
+  toml::table parsed;
+  try {
+    parsed = toml::parse(std::string_view("v = " + value));
+  } catch (const toml::parse_error&) {
+    parsed = toml::table{};
+    parsed.insert("v", value);
+  }
+  // Walk/create the tables on the path.
+  toml::table* t = &root;
+  std::size_t start = 0;
+  while (true) {
+    const auto dot = key.find('.', start);
+    if (dot == std::string::npos) break;
+    const std::string part = key.substr(start, dot - start);
+    toml::node* n = t->get(part);
+    if (!n) {
+      t->insert(part, toml::table{});
+      n = t->get(part);
+    }
+    if (!n->is_table())
+      throw InputError({"--set " + text, 0, 0}, key, value,
+                       fmt::format("'{}' is not a table in the case file", key.substr(0, dot)), "");
+    t = n->as_table();
+    start = dot + 1;
+  }
+  const std::string leaf = key.substr(start);
+  t->insert_or_assign(leaf, *parsed.get("v"));
+  ctx.overrides[key] = text;
+}
+
+// ---------------------------------------------------------------------------
+// Reading the section forms.
+constexpr const char* kChordPos = "a position in semichords from midchord, -1 < x < 1";
+
+double positive(const Table& t, std::string_view key, const std::string& units) {
+  const double v = t.required_number(key, "a positive number, " + units);
+  t.require(v > 0, key, "must be positive", "a positive number, " + units);
+  return v;
+}
+
+double nonnegative_or(const Table& t, std::string_view key, double def, const std::string& what) {
+  auto v = t.number(key);
+  if (!v) return def;
+  t.require(*v >= 0, key, "must not be negative", what);
+  return *v;
+}
+
+double damping_ratio(const Table& t, std::string_view key) {
+  auto v = t.number(key);
+  if (!v) return 0.0;
+  t.require(*v >= 0 && *v < 1, key, "is outside the allowed range",
+            "a viscous damping ratio 0 <= zeta < 1 (fraction of critical, not percent)");
+  return *v;
+}
+
+double chord_position(const Table& t, std::string_view key) {
+  const double v = t.required_number(key, kChordPos);
+  t.require(v > -1 && v < 1, key, "is outside the chord", kChordPos);
+  return v;
+}
+
+void read_si(const Table& sec, const Table& flap, const Table& flow, Case& c) {
+  SectionProperties& s = c.model.section;
+  FlowConditions& f = c.model.flow;
+  s.semichord = positive(sec, "semichord", "m");
+  s.mass = positive(sec, "mass", "kg per m span");
+  s.elastic_axis = chord_position(sec, "elastic_axis");
+  const double b = s.semichord, m = s.mass, a = s.elastic_axis;
+
+  const std::string cg_key = sec.required_one_of(
+      {"cg", "cg_offset", "static_unbalance"},
+      "the CG position: cg (semichords from midchord), cg_offset (x_alpha, semichords aft of "
+      "the elastic axis) or static_unbalance (S_alpha, kg m/m)");
+  const double cg_value = *sec.number(cg_key);
+  if (cg_key == "cg") {
+    sec.require(cg_value > -1 && cg_value < 1, "cg", "is outside the chord", kChordPos);
+    s.static_unbalance = m * (cg_value - a) * b;
+  } else if (cg_key == "cg_offset") {
+    s.static_unbalance = m * cg_value * b;
+  } else {
+    s.static_unbalance = cg_value;
+  }
+  const double x_alpha_b = s.static_unbalance / m;  // CG offset, m
+
+  const std::string inertia_key = sec.required_one_of(
+      {"pitch_inertia", "pitch_inertia_cg", "radius_of_gyration"},
+      "the pitch inertia: pitch_inertia (about the elastic axis, kg m^2/m), pitch_inertia_cg "
+      "(about the CG, kg m^2/m) or radius_of_gyration (r_alpha, semichords, about the elastic "
+      "axis)");
+  const double iv = *sec.number(inertia_key);
+  sec.require(iv > 0, inertia_key, "must be positive", "a positive number");
+  if (inertia_key == "pitch_inertia") {
+    s.pitch_inertia = iv;
+  } else if (inertia_key == "pitch_inertia_cg") {
+    s.pitch_inertia = iv + m * x_alpha_b * x_alpha_b;  // parallel-axis theorem
+  } else {
+    s.pitch_inertia = m * iv * iv * b * b;
+  }
+  // A physical section has I_cg = I_alpha - m (x_alpha b)^2 > 0, i.e. r_alpha^2 > x_alpha^2.
+  const double I_cg = s.pitch_inertia - m * x_alpha_b * x_alpha_b;
+  if (!(I_cg > 1e-12 * s.pitch_inertia)) {
+    const double r2 = s.pitch_inertia / (m * b * b), x2 = x_alpha_b * x_alpha_b / (b * b);
+    sec.fail(inertia_key,
+             fmt::format("is physically impossible with the given CG: r_alpha^2 = {:.6g} <= "
+                         "x_alpha^2 = {:.6g} (the inertia about the CG would be {:.6g} kg m^2/m)",
+                         r2, x2, I_cg),
+             "an inertia about the elastic axis larger than m (x_alpha b)^2 (r_alpha^2 > x_alpha^2)");
+  }
+
+  const std::string kh = sec.required_one_of(
+      {"plunge_stiffness", "plunge_frequency_hz"},
+      "plunge_stiffness (N/m per m span) or plunge_frequency_hz (uncoupled, Hz)");
+  const double khv = *sec.number(kh);
+  sec.require(khv >= 0, kh, "must not be negative", "a number >= 0");
+  s.plunge_stiffness = kh == "plunge_stiffness" ? khv : m * std::pow(2 * pi * khv, 2);
+  const std::string ka = sec.required_one_of(
+      {"pitch_stiffness", "pitch_frequency_hz"},
+      "pitch_stiffness (N m/rad per m span) or pitch_frequency_hz (uncoupled, Hz)");
+  const double kav = *sec.number(ka);
+  sec.require(kav > 0, ka, "must be positive", "a positive number");
+  s.pitch_stiffness = ka == "pitch_stiffness" ? kav : s.pitch_inertia * std::pow(2 * pi * kav, 2);
+  s.plunge_damping_ratio = damping_ratio(sec, "plunge_damping_ratio");
+  s.pitch_damping_ratio = damping_ratio(sec, "pitch_damping_ratio");
+
+  if (flap.present()) {
+    s.dof = 3;
+    s.hinge = chord_position(flap, "hinge");
+    flap.require(s.hinge > a, "hinge", "must lie aft of the elastic axis",
+                 fmt::format("elastic_axis = {} < hinge < 1", a));
+    const std::string su = flap.one_of({"static_unbalance", "cg_offset"});
+    const std::optional<double> flap_mass = flap.number("mass");
+    if (flap_mass) {
+      flap.require(*flap_mass > 0 && *flap_mass < m, "mass", "is impossible",
+                   fmt::format("0 < flap mass < section mass = {} kg/m", m));
+    }
+    if (su.empty()) {
+      flap.missing("static_unbalance",
+                   "static_unbalance (S_beta about the hinge, kg m/m, CG aft positive), or mass "
+                   "with cg_offset (semichords aft of the hinge)");
+    } else if (su == "cg_offset") {
+      if (!flap_mass)
+        flap.missing("mass", "the flap mass (kg/m), needed with flap.cg_offset");
+      s.flap_static_unbalance = *flap_mass * *flap.number("cg_offset") * b;
+    } else {
+      s.flap_static_unbalance = *flap.number("static_unbalance");
+    }
+    const std::string ik = flap.required_one_of(
+        {"inertia", "inertia_cg"},
+        "inertia (I_beta about the hinge, kg m^2/m) or inertia_cg (about the flap CG, with mass)");
+    const double fi = *flap.number(ik);
+    flap.require(fi > 0, ik, "must be positive", "a positive number, kg m^2/m");
+    if (ik == "inertia_cg") {
+      if (!flap_mass) flap.missing("mass", "the flap mass (kg/m), needed with flap.inertia_cg");
+      const double d = s.flap_static_unbalance / *flap_mass;
+      s.flap_inertia = fi + *flap_mass * d * d;
+    } else {
+      s.flap_inertia = fi;
+      if (flap_mass) {
+        const double d = s.flap_static_unbalance / *flap_mass;
+        flap.require(fi > *flap_mass * d * d, "inertia",
+                     fmt::format("is physically impossible: below the flap's own parallel-axis "
+                                 "term m_beta d^2 = {:.6g} kg m^2/m",
+                                 *flap_mass * d * d),
+                     "an inertia about the hinge larger than S_beta^2 / m_beta");
+      }
+    }
+    const std::string kb = flap.required_one_of(
+        {"stiffness", "frequency_hz"},
+        "stiffness (hinge spring, N m/rad per m span) or frequency_hz (uncoupled, Hz)");
+    const double kbv = *flap.number(kb);
+    flap.require(kbv >= 0, kb, "must not be negative", "a number >= 0");
+    s.flap_stiffness = kb == "stiffness" ? kbv : s.flap_inertia * std::pow(2 * pi * kbv, 2);
+    s.flap_damping_ratio = damping_ratio(flap, "damping_ratio");
+  }
+
+  // Flow.
+  f.airspeed = flow.required_number("airspeed", "true airspeed, m/s, >= 0");
+  flow.require(f.airspeed >= 0, "airspeed", "must not be negative", "true airspeed, m/s, >= 0");
+  flow.require(f.airspeed < 1000, "airspeed", "is beyond any subsonic flight",
+               "true airspeed below 1000 m/s (the theory is incompressible)");
+  const std::string dk = flow.required_one_of(
+      {"density", "altitude"}, "density (kg/m^3, 0 for vacuum) or altitude (m, ISA)");
+  const double dv = *flow.number(dk);
+  if (dk == "density") {
+    flow.require(dv >= 0 && dv < 100, "density", "is impossible", "0 <= density < 100 kg/m^3");
+    f.density = dv;
+  } else {
+    flow.require(dv >= kIsaMinAltitude && dv <= kIsaMaxAltitude, "altitude",
+                 "is outside the standard atmosphere", "-2000 m <= altitude <= 20000 m (ISA)");
+    c.altitude = dv;
+    f.density = isa(dv).density;
+  }
+}
+
+void read_nondimensional(const Table& nd, Case& c) {
+  NondimensionalParameters& n = c.nondimensional;
+  n.mass_ratio = positive(nd, "mass_ratio", "mu = m / (pi rho b^2)");
+  n.elastic_axis = chord_position(nd, "elastic_axis");
+  n.cg_offset = nd.required_number("cg_offset", "x_alpha, semichords aft of the elastic axis");
+  n.radius_of_gyration = positive(nd, "radius_of_gyration", "r_alpha, semichords");
+  nd.require(n.radius_of_gyration * n.radius_of_gyration > n.cg_offset * n.cg_offset,
+             "radius_of_gyration",
+             fmt::format("is physically impossible: r_alpha^2 = {:.6g} <= x_alpha^2 = {:.6g}",
+                         n.radius_of_gyration * n.radius_of_gyration, n.cg_offset * n.cg_offset),
+             "r_alpha > |x_alpha| (positive inertia about the CG)");
+  n.frequency_ratio = nd.required_number("frequency_ratio", "omega_h / omega_alpha >= 0");
+  nd.require(n.frequency_ratio >= 0, "frequency_ratio", "must not be negative",
+             "omega_h / omega_alpha >= 0");
+  n.plunge_damping_ratio = damping_ratio(nd, "plunge_damping_ratio");
+  n.pitch_damping_ratio = damping_ratio(nd, "pitch_damping_ratio");
+  n.reduced_speed = nd.required_number("reduced_speed", "U* = U / (b omega_alpha) >= 0");
+  nd.require(n.reduced_speed >= 0, "reduced_speed", "must not be negative",
+             "U* = U / (b omega_alpha) >= 0");
+  const bool flap = nd.has("hinge");
+  for (const char* k : {"flap_cg_offset", "flap_radius_of_gyration", "flap_frequency_ratio",
+                        "flap_damping_ratio"}) {
+    if (!flap && nd.has(k))
+      nd.fail(k, "needs nondimensional.hinge (a flap)", "flap keys only with a hinge position");
+  }
+  if (flap) {
+    n.dof = 3;
+    n.hinge = chord_position(nd, "hinge");
+    nd.require(n.hinge > n.elastic_axis, "hinge", "must lie aft of the elastic axis",
+               fmt::format("elastic_axis = {} < hinge < 1", n.elastic_axis));
+    n.flap_cg_offset = nd.number("flap_cg_offset").value_or(0.0);
+    n.flap_radius_of_gyration = positive(nd, "flap_radius_of_gyration",
+                                         "r_beta = sqrt(I_beta / (m b^2)), about the hinge");
+    n.flap_frequency_ratio = nd.required_number("flap_frequency_ratio", "omega_beta / omega_alpha >= 0");
+    nd.require(n.flap_frequency_ratio >= 0, "flap_frequency_ratio", "must not be negative",
+               "omega_beta / omega_alpha >= 0");
+    n.flap_damping_ratio = damping_ratio(nd, "flap_damping_ratio");
+  }
+  const Table ref = nd.sub("reference");
+  if (auto v = ref.number("semichord")) {
+    ref.require(*v > 0, "semichord", "must be positive", "m");
+    n.reference.semichord = *v;
+  }
+  if (auto v = ref.number("pitch_frequency_hz")) {
+    ref.require(*v > 0, "pitch_frequency_hz", "must be positive", "Hz");
+    n.reference.pitch_frequency = 2 * pi * *v;
+  }
+  if (auto v = ref.number("density")) {
+    ref.require(*v > 0 && *v < 100, "density", "is impossible", "0 < density < 100 kg/m^3");
+    n.reference.density = *v;
+  }
+  from_nondimensional(n, c.model.section, c.model.flow);
+}
+
+void read_aerodynamics(const Table& t, Case& c) {
+  AeroSettings& a = c.model.aero;
+  const std::string model = t.choice("model", {"wagner", "quasi-steady", "steady"}, "wagner");
+  a.model = model == "wagner" ? AeroModel::kWagner
+            : model == "quasi-steady" ? AeroModel::kQuasiSteady
+                                      : AeroModel::kSteady;
+  a.wagner_name = t.choice("wagner", {"jones", "custom"}, "jones");
+  const auto coef = t.numbers("wagner_coefficients");
+  const auto expo = t.numbers("wagner_exponents");
+  if (a.wagner_name == "jones") {
+    if (coef) t.fail("wagner_coefficients", "is only used with wagner = \"custom\"",
+                     "wagner = \"custom\" with wagner_coefficients and wagner_exponents");
+    if (expo) t.fail("wagner_exponents", "is only used with wagner = \"custom\"",
+                     "wagner = \"custom\" with wagner_coefficients and wagner_exponents");
+    a.wagner = WagnerApproximation::jones();
+  } else {
+    const std::string what =
+        "phi(s) = 1 - sum psi_i exp(-eps_i s): wagner_coefficients = [psi_1, ...] and "
+        "wagner_exponents = [eps_1, ...] (per semichord), 1 to 8 poles";
+    if (!coef) t.missing("wagner_coefficients", what);
+    if (!expo) t.missing("wagner_exponents", what);
+    t.require(!coef->empty() && coef->size() <= 8, "wagner_coefficients",
+              "must have 1 to 8 entries", what);
+    t.require(expo->size() == coef->size(), "wagner_exponents",
+              fmt::format("has {} entries but wagner_coefficients has {}", expo->size(), coef->size()),
+              what);
+    double sum = 0;
+    for (double v : *coef) sum += v;
+    t.require(sum > 0 && sum < 1, "wagner_coefficients",
+              fmt::format("sum to {:.6g}, which makes phi(0) = {:.6g} impossible", sum, 1 - sum),
+              "coefficients whose sum lies in (0, 1), so that 0 < phi(0) < 1 = phi(inf)");
+    for (double e : *expo)
+      t.require(e > 0, "wagner_exponents", "must all be positive", "eps_i > 0 per semichord");
+    a.wagner = {*coef, *expo};
+  }
+}
+
+void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
+  const int n = c.model.section.dof;
+  const double b = c.model.section.semichord, U = c.model.flow.airspeed;
+  SimulationSettings& s = c.simulation;
+  s.initial_displacement = DofVector::Zero(n);
+  s.initial_velocity = DofVector::Zero(n);
+  const std::string hk = ini.one_of({"plunge", "plunge_semichords"});
+  if (hk == "plunge") s.initial_displacement(kPlunge) = *ini.number("plunge");
+  if (hk == "plunge_semichords") s.initial_displacement(kPlunge) = *ini.number("plunge_semichords") * b;
+  if (auto v = ini.number("pitch_deg")) {
+    ini.require(std::abs(*v) <= 90, "pitch_deg", "is beyond the theory's small angles",
+                "|pitch| <= 90 degrees (the aerodynamics is linear: keep it small)");
+    s.initial_displacement(kPitch) = *v * kDeg;
+  }
+  if (auto v = ini.number("plunge_rate")) s.initial_velocity(kPlunge) = *v;
+  if (auto v = ini.number("pitch_rate_deg_s")) s.initial_velocity(kPitch) = *v * kDeg;
+  for (const char* k : {"flap_deg", "flap_rate_deg_s"})
+    if (n == 2 && ini.has(k)) ini.fail(k, "needs a flap", "flap keys only for a 3-DOF case");
+  if (n == 3) {
+    if (auto v = ini.number("flap_deg")) {
+      ini.require(std::abs(*v) <= 90, "flap_deg", "is beyond the theory's small angles",
+                  "|flap| <= 90 degrees");
+      s.initial_displacement(kFlap) = *v * kDeg;
+    }
+    if (auto v = ini.number("flap_rate_deg_s")) s.initial_velocity(kFlap) = *v * kDeg;
+  }
+  s.steady_lag_states = ini.choice("lag_states", {"rest", "steady"}, "rest") == "steady";
+
+  // Time span.
+  const std::string dk = sim.required_one_of(
+      {"duration", "duration_semichords"},
+      "duration (s) or duration_semichords (tau = U t / b, semichords travelled)");
+  double duration = *sim.number(dk);
+  if (dk == "duration_semichords") {
+    sim.require(U > 0, dk, "needs a positive airspeed", "duration (s) when the airspeed is zero");
+    duration *= b / U;
+  }
+  sim.require(duration > 0, dk, "must be positive", "a positive duration");
+  s.duration = duration;
+
+  // Output schedule.
+  const std::string ok = sim.one_of(
+      {"sample_rate", "sample_interval", "sample_interval_semichords", "every_step"});
+  if (ok.empty()) {
+    const auto w = uncoupled_frequencies(c.model.section);
+    const double wmax = std::max({w.plunge, w.pitch, w.flap});
+    s.output.interval = 2 * pi / wmax / 50.0;  // 50 samples per shortest period
+  } else if (ok == "every_step") {
+    s.output.every_step = *sim.boolean("every_step");
+    if (!s.output.every_step)
+      sim.fail("every_step", "false is the default: remove it or give a sample interval",
+               "every_step = true, or one of sample_rate / sample_interval");
+  } else {
+    double v = *sim.number(ok);
+    sim.require(v > 0, ok, "must be positive", "a positive number");
+    if (ok == "sample_rate") v = 1.0 / v;
+    if (ok == "sample_interval_semichords") {
+      sim.require(U > 0, ok, "needs a positive airspeed", "sample_interval (s)");
+      v *= b / U;
+    }
+    s.output.interval = v;
+  }
+  if (!s.output.every_step) {
+    const double count = s.duration / s.output.interval;
+    if (count > 2e9)
+      sim.fail(ok.empty() ? dk : ok,
+               fmt::format("asks for {:.3g} samples", count),
+               "at most 2e9 samples in one run (lengthen the interval or shorten the duration)");
+  }
+
+  IntegratorSettings& in = s.integrator;
+  const std::string st = sim.choice("stepper", {"dopri5", "bulirsch-stoer"}, "dopri5");
+  in.stepper = st == "dopri5" ? StepperKind::kDopri5 : StepperKind::kBulirschStoer;
+  if (auto v = sim.number("relative_tolerance")) {
+    sim.require(*v >= 1e-15 && *v <= 0.1, "relative_tolerance", "is outside the useful range",
+                "1e-15 <= relative_tolerance <= 0.1");
+    in.relative_tolerance = *v;
+  }
+  if (auto v = sim.number("absolute_tolerance")) {
+    sim.require(*v > 0 && *v <= 1, "absolute_tolerance", "is outside the useful range",
+                "0 < absolute_tolerance <= 1 (in the state's SI units)");
+    in.absolute_tolerance = *v;
+  }
+  in.max_step = nonnegative_or(sim, "max_step", 0.0, "seconds, 0 for no limit");
+  in.initial_step = nonnegative_or(sim, "initial_step", 0.0, "seconds, 0 for automatic");
+
+  if (auto held = sim.strings("hold")) {
+    for (const auto& h : *held) {
+      const std::vector<std::string> names =
+          n == 3 ? std::vector<std::string>{"plunge", "pitch", "flap"}
+                 : std::vector<std::string>{"plunge", "pitch"};
+      auto it = std::find(names.begin(), names.end(), h);
+      if (it == names.end())
+        sim.fail("hold", fmt::format("names an unknown degree of freedom \"{}\"", h),
+                 quoted_list(names));
+      c.model.held[static_cast<std::size_t>(it - names.begin())] = true;
+    }
+  }
+}
+
+// The 3-DOF structural mass matrix must be positive definite.
+void check_mass_matrix(const Case& c, const Table& flap, const Table& nd) {
+  if (c.model.section.dof != 3) return;
+  const DofMatrix M = structural_mass(c.model.section);
+  const Eigen::MatrixXd Mx = M;
+  Eigen::LLT<Eigen::MatrixXd> llt(Mx);
+  if (llt.info() == Eigen::Success) return;
+  const std::string msg =
+      "makes the structural mass matrix indefinite (the flap's unbalance or inertia is not "
+      "possible for this section)";
+  const std::string allowed =
+      "a flap inertia and unbalance that keep the 3x3 mass matrix positive definite (smaller "
+      "unbalance or larger inertia)";
+  if (flap.present()) flap.fail(flap.has("inertia") ? "inertia" : "inertia_cg", msg, allowed);
+  nd.fail("flap_radius_of_gyration", msg, allowed);
+}
+
+std::string read_file(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in)
+    throw InputError({path, 0, 0}, "", "",
+                     fmt::format("cannot open the case file ({})", std::strerror(errno)),
+                     "a readable TOML file");
+  std::ostringstream ss;
+  ss << in.rdbuf();
+  if (in.bad())
+    throw InputError({path, 0, 0}, "", "", "cannot read the case file", "a readable TOML file");
+  return ss.str();
+}
+
+}  // namespace
+
+const std::vector<std::string>& known_case_keys() { return kKnownKeys; }
+
+std::string Case::text_as_run() const {
+  std::string s = text;
+  if (!overrides.empty()) {
+    s += "\n# command-line overrides (--set), applied on top of the file:\n";
+    for (const auto& o : overrides) s += "# " + o + "\n";
+  }
+  return s;
+}
+
+Case load_case(const std::string& path, const std::vector<std::string>& overrides) {
+  return parse_case(read_file(path), path, overrides);
+}
+
+Case parse_case(const std::string& text, const std::string& path,
+                const std::vector<std::string>& overrides) {
+  Context ctx{path, {}};
+  Case c;
+  c.path = path;
+  c.text = text;
+  c.overrides = overrides;
+
+  toml::table root;
+  try {
+    root = toml::parse(std::string_view(text), std::string_view(path));
+  } catch (const toml::parse_error& e) {
+    const auto& src = e.source();
+    throw InputError({path, static_cast<int>(src.begin.line), static_cast<int>(src.begin.column)},
+                     "", "", fmt::format("not valid TOML: {}", e.description()),
+                     "TOML syntax (https://toml.io): key = value lines under [table] headers");
+  }
+  for (const auto& o : overrides) apply_override(root, o, ctx);
+  check_unknown_keys(ctx, root, "");
+
+  const Table top(ctx, &root, "");
+  c.title = top.string("title").value_or("");
+  (void)top.string("description");
+  const Table sec = top.sub("section"), flap = top.sub("flap"), flow = top.sub("flow");
+  const Table nd = top.sub("nondimensional");
+  const bool si = sec.present() || flap.present() || flow.present();
+  if (si && nd.present()) {
+    const Table& first = sec.present() ? sec : (flap.present() ? flap : flow);
+    throw InputError(nd.where_table(), "nondimensional", "",
+                     fmt::format("conflicts with [{}] at line {}: a case gives the section in one "
+                                 "form only",
+                                 first.path(), first.where_table().line),
+                     "either [section] + [flow] (+ [flap]) in SI units, or [nondimensional]");
+  }
+  if (!si && !nd.present()) {
+    throw InputError({path, 0, 0}, "section", "", "no section is defined",
+                     "a [section] table with [flow] (SI units) or a [nondimensional] table");
+  }
+  if (si) {
+    if (!sec.present()) sec.missing("semichord", "a [section] table (SI form)");
+    if (!flow.present()) flow.missing("airspeed", "a [flow] table with airspeed and density or altitude");
+    c.input_form = "si";
+    read_si(sec, flap, flow, c);
+    c.nondimensional = to_nondimensional(c.model.section, c.model.flow);
+  } else {
+    c.input_form = "nondimensional";
+    read_nondimensional(nd, c);
+  }
+  check_mass_matrix(c, flap, nd);
+
+  // Linear springs from the nominal stiffnesses (nonlinear laws: a later table).
+  const SectionProperties& s = c.model.section;
+  c.model.springs[kPlunge] = SpringLaw::linear(s.plunge_stiffness);
+  c.model.springs[kPitch] = SpringLaw::linear(s.pitch_stiffness);
+  c.model.springs[kFlap] = SpringLaw::linear(s.dof == 3 ? s.flap_stiffness : 0.0);
+
+  read_aerodynamics(top.sub("aerodynamics"), c);
+  read_initial_and_simulation(top.sub("initial"), top.sub("simulation"), c);
+  return c;
+}
+
+}  // namespace aerosect

@@ -1,0 +1,147 @@
+#include "aerosect/model/system.hpp"
+
+#include <Eigen/LU>
+
+#include "aerosect/error.hpp"
+
+namespace aerosect {
+
+AeroelasticModel::AeroelasticModel(ModelDescription description) : d_(std::move(description)) {
+  const SectionProperties& s = d_.section;
+  const int n = s.dof;
+  AEROSECT_CHECK(n == 2 || n == 3);
+  const bool wagner = d_.aero.model == AeroModel::kWagner && d_.flow.density > 0.0;
+  layout_.n_dof = n;
+  layout_.displacement = 0;
+  layout_.velocity = n;
+  layout_.wagner = 2 * n;
+  layout_.n_wagner = wagner ? static_cast<int>(d_.aero.wagner.size()) : 0;
+  layout_.size = layout_.wagner + layout_.n_wagner;
+  phi0_ = wagner ? d_.aero.wagner.initial_value() : 1.0;
+
+  aero_ = theodorsen_matrices(s, d_.flow, d_.aero.model);
+  total_mass_ = structural_mass(s) + aero_.apparent_mass;
+
+  // Invert the mass matrix of the active (not held) DOFs once.
+  std::vector<int> active;
+  for (int j = 0; j < n; ++j)
+    if (!d_.held[j]) active.push_back(j);
+  mass_inverse_ = DofMatrix::Zero(n, n);
+  if (!active.empty()) {
+    const int na = static_cast<int>(active.size());
+    Eigen::MatrixXd Ma(na, na);
+    for (int i = 0; i < na; ++i)
+      for (int j = 0; j < na; ++j) Ma(i, j) = total_mass_(active[i], active[j]);
+    const Eigen::MatrixXd Mi = Ma.fullPivLu().inverse();
+    for (int i = 0; i < na; ++i)
+      for (int j = 0; j < na; ++j) mass_inverse_(active[i], active[j]) = Mi(i, j);
+  }
+
+  G_ = Eigen::MatrixXd::Zero(layout_.size, n);
+  G_.block(layout_.velocity, 0, n, n) = mass_inverse_;
+
+  DofVector k(n);
+  for (int j = 0; j < n; ++j) {
+    if (d_.springs[j].is_linear()) {
+      k(j) = d_.springs[j].nominal_stiffness();
+    } else {
+      k(j) = 0.0;
+      nonlinear_.push_back(j);
+    }
+  }
+  A_ = state_matrix(k);
+}
+
+Eigen::MatrixXd AeroelasticModel::state_matrix(const DofVector& spring_stiffness) const {
+  const SectionProperties& s = d_.section;
+  const int n = layout_.n_dof, nw = layout_.n_wagner, w0 = layout_.wagner;
+  const auto& am = aero_;
+
+  // Effective stiffness and damping including the instantaneous part of the
+  // circulatory force (phi(0) Q).
+  DofMatrix K = spring_stiffness.asDiagonal();
+  K += am.stiffness - phi0_ * am.circulation_force * am.downwash_displacement.transpose();
+  DofMatrix C = structural_damping(s) + am.damping -
+                phi0_ * am.circulation_force * am.downwash_rate.transpose();
+
+  Eigen::MatrixXd A = Eigen::MatrixXd::Zero(layout_.size, layout_.size);
+  for (int j = 0; j < n; ++j)
+    if (!d_.held[j]) A(layout_.displacement + j, layout_.velocity + j) = 1.0;
+  A.block(layout_.velocity, layout_.displacement, n, n) = -mass_inverse_ * K;
+  A.block(layout_.velocity, layout_.velocity, n, n) = -mass_inverse_ * C;
+  if (nw > 0) {
+    const double U_over_b = d_.flow.airspeed / s.semichord;
+    const auto& wg = d_.aero.wagner;
+    for (int i = 0; i < nw; ++i) {
+      const DofVector col = mass_inverse_ * am.circulation_force * wg.coefficients[i];
+      A.block(layout_.velocity, w0 + i, n, 1) = col;
+      const double rate = U_over_b * wg.exponents[i];
+      A.block(w0 + i, layout_.displacement, 1, n) = rate * am.downwash_displacement.transpose();
+      A.block(w0 + i, layout_.velocity, 1, n) = rate * am.downwash_rate.transpose();
+      A(w0 + i, w0 + i) = -rate;
+    }
+  }
+  return A;
+}
+
+Eigen::MatrixXd AeroelasticModel::nominal_state_matrix() const {
+  DofVector k(layout_.n_dof);
+  for (int j = 0; j < layout_.n_dof; ++j) k(j) = d_.springs[j].nominal_stiffness();
+  return state_matrix(k);
+}
+
+void AeroelasticModel::rhs(const double* x, double* dxdt, std::span<const int> regions) const {
+  const int N = layout_.size;
+  Eigen::Map<const Eigen::VectorXd> xv(x, N);
+  Eigen::Map<Eigen::VectorXd> dv(dxdt, N);
+  dv.noalias() = A_ * xv;
+  for (int j : nonlinear_) {
+    const double f = d_.springs[j].force(x[layout_.displacement + j], regions[j]);
+    dv.noalias() -= G_.col(j) * f;
+  }
+}
+
+Loads AeroelasticModel::loads(const double* x, const double* dxdt) const {
+  const int n = layout_.n_dof;
+  Eigen::Map<const Eigen::VectorXd> q(x + layout_.displacement, n);
+  Eigen::Map<const Eigen::VectorXd> qd(x + layout_.velocity, n);
+  Eigen::Map<const Eigen::VectorXd> qdd(dxdt + layout_.velocity, n);
+  const auto& am = aero_;
+  double wc = phi0_ * (am.downwash_displacement.dot(q) + am.downwash_rate.dot(qd));
+  for (int i = 0; i < layout_.n_wagner; ++i)
+    wc += d_.aero.wagner.coefficients[i] * x[layout_.wagner + i];
+  const DofVector F = -am.apparent_mass * qdd - am.damping * qd - am.stiffness * q +
+                      am.circulation_force * wc;
+  Loads l;
+  l.lift = -F(0);
+  l.pitching_moment = F(1);
+  l.hinge_moment = n == 3 ? F(2) : 0.0;
+  l.effective_downwash = wc;
+  return l;
+}
+
+std::vector<double> AeroelasticModel::initial_state(const DofVector& q0, const DofVector& v0,
+                                                    bool steady_lag_states) const {
+  const int n = layout_.n_dof;
+  std::vector<double> x(layout_.size, 0.0);
+  for (int j = 0; j < n; ++j) {
+    x[layout_.displacement + j] = q0(j);
+    x[layout_.velocity + j] = d_.held[j] ? 0.0 : v0(j);
+  }
+  if (steady_lag_states) {
+    Eigen::Map<const Eigen::VectorXd> q(x.data() + layout_.displacement, n);
+    Eigen::Map<const Eigen::VectorXd> qd(x.data() + layout_.velocity, n);
+    const double Q = aero_.downwash_displacement.dot(q) + aero_.downwash_rate.dot(qd);
+    for (int i = 0; i < layout_.n_wagner; ++i) x[layout_.wagner + i] = Q;
+  }
+  return x;
+}
+
+std::vector<int> AeroelasticModel::regions_of(const double* x) const {
+  std::vector<int> r(layout_.n_dof, 0);
+  for (int j = 0; j < layout_.n_dof; ++j)
+    r[j] = d_.springs[j].region_of(x[layout_.displacement + j]);
+  return r;
+}
+
+}  // namespace aerosect

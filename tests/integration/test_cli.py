@@ -1,0 +1,68 @@
+#!/usr/bin/python3
+"""End-to-end checks of the aerosect program: exit codes, messages, --json."""
+import json
+import os
+import subprocess
+import sys
+import tempfile
+
+BIN, SRC = sys.argv[1], sys.argv[2]
+DEMO = os.path.join(SRC, "cases", "demo_aileron.toml")
+passed = failed = 0
+
+
+def check(name, cond, detail=""):
+    global passed, failed
+    if cond:
+        passed += 1
+    else:
+        failed += 1
+        print(f"FAIL {name}: {detail}")
+
+
+def run(*args):
+    return subprocess.run([BIN, *args], capture_output=True, text=True, timeout=300)
+
+
+with tempfile.TemporaryDirectory() as tmp:
+    # check, human and JSON
+    r = run("check", DEMO)
+    check("check exit", r.returncode == 0, r.stderr)
+    check("check shows modes", "Coupled in-vacuo modes" in r.stdout, r.stdout)
+    check("check shows caution", "safety-critical" in r.stdout)
+    r = run("check", DEMO, "--json")
+    j = json.loads(r.stdout)
+    check("check json modes", len(j["in_vacuo_modes"]) == 3, j)
+    check("check json both forms", "si" in j["parameters"] and "nondimensional" in j["parameters"])
+    check("check json divergence", "divergence" in j and "exists" in j["divergence"])
+
+    # simulate with an override
+    out = os.path.join(tmp, "run.h5")
+    r = run("simulate", DEMO, "-o", out, "--json", "--set", "simulation.duration=0.5")
+    check("simulate exit", r.returncode == 0, r.stderr)
+    j = json.loads(r.stdout)
+    check("simulate json", j["completed"] and j["samples"] == 501, j)
+    check("simulate output exists", os.path.exists(out))
+    check("simulate extremes", "pitch" in j["extremes"] and "hinge_moment" in j["extremes"])
+
+    # bad input: exit code 2, message on stderr naming file, line and key
+    bad = os.path.join(tmp, "bad.toml")
+    with open(bad, "w") as f:
+        f.write(open(DEMO).read().replace("mass = 18.0", "mass = -18.0"))
+    r = run("check", bad)
+    check("bad exit 2", r.returncode == 2, r.returncode)
+    check("bad names file line key", "bad.toml:9" in r.stderr and "section.mass" in r.stderr, r.stderr)
+    check("bad stdout empty", r.stdout == "", r.stdout)
+    r = run("simulate", bad, "-o", os.path.join(tmp, "x.h5"))
+    check("bad simulate writes nothing", r.returncode == 2 and not os.path.exists(os.path.join(tmp, "x.h5")))
+    r = run("check", DEMO, "--set", "flow.airsped=3")
+    check("set unknown key", r.returncode == 2 and "did you mean 'flow.airspeed'" in r.stderr, r.stderr)
+    r = run("check", os.path.join(tmp, "missing.toml"))
+    check("missing file", r.returncode == 2 and "cannot open" in r.stderr, r.stderr)
+    r = run("simulate", DEMO, "-o", "/proc/forbidden/run.h5")
+    check("unwritable output exit 4", r.returncode == 4, (r.returncode, r.stderr))
+    r = run("frobnicate")
+    check("unknown command", r.returncode == 2, r.returncode)
+
+print(f"{passed} passed, {failed} failed")
+sys.exit(1 if failed else 0)

@@ -1,0 +1,158 @@
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <numbers>
+
+#include "aerosect/integrate/integrator.hpp"
+#include "aerosect/model/system.hpp"
+#include "helpers.hpp"
+
+using namespace aerosect;
+using std::numbers::pi;
+
+namespace {
+// Two uncoupled undamped oscillators in vacuum: h = h0 cos(omega_h t),
+// alpha = alpha0 cos(omega_alpha t) (x_alpha = 0, rho = 0).
+ModelDescription uncoupled_vacuum() {
+  ModelDescription d;
+  d.section.semichord = 0.5;
+  d.section.mass = 2.0;
+  d.section.static_unbalance = 0.0;
+  d.section.pitch_inertia = 0.5;
+  d.section.plunge_stiffness = 2.0 * std::pow(2 * pi * 1.0, 2);  // 1 Hz
+  d.section.pitch_stiffness = 0.5 * std::pow(2 * pi * 2.5, 2);   // 2.5 Hz
+  d.springs[0] = SpringLaw::linear(d.section.plunge_stiffness);
+  d.springs[1] = SpringLaw::linear(d.section.pitch_stiffness);
+  d.flow = {0.0, 0.0};
+  return d;
+}
+
+double final_error(const AeroelasticModel& model, double h, StepperKind kind) {
+  RunState run;
+  run.x = {0.01, 0.02, 0.0, 0.0};
+  IntegratorSettings s;
+  s.stepper = kind;
+  s.relative_tolerance = 1e-2;  // loose: the step is set by max_step alone
+  s.absolute_tolerance = 1e-2;
+  s.max_step = h;
+  s.initial_step = h;
+  const double T = 2.0;
+  integrate(model, run, T, s, {false, T}, {}, false);
+  const auto& sec = model.description().section;
+  const double wh = std::sqrt(sec.plunge_stiffness / sec.mass);
+  const double wa = std::sqrt(sec.pitch_stiffness / sec.pitch_inertia);
+  return std::max(std::abs(run.x[0] - 0.01 * std::cos(wh * T)),
+                  std::abs(run.x[1] - 0.02 * std::cos(wa * T)));
+}
+}  // namespace
+
+TEST_CASE("Dormand-Prince shows fifth-order convergence on an analytic solution", "[integrator]") {
+  // Dormand & Prince 1980: the propagated solution of RK5(4) is fifth
+  // order, so halving a fixed step divides the global error by 2^5 = 32.
+  const AeroelasticModel model(uncoupled_vacuum());
+  const double e1 = final_error(model, 0.02, StepperKind::kDopri5);
+  const double e2 = final_error(model, 0.01, StepperKind::kDopri5);
+  const double e3 = final_error(model, 0.005, StepperKind::kDopri5);
+  const double p1 = std::log2(e1 / e2), p2 = std::log2(e2 / e3);
+  INFO("errors " << e1 << " " << e2 << " " << e3 << " orders " << p1 << " " << p2);
+  CHECK(p1 > 4.6);
+  CHECK(p1 < 5.4);
+  CHECK(p2 > 4.6);
+  CHECK(p2 < 5.4);
+}
+
+TEST_CASE("Adaptive steppers meet their tolerance on the analytic solution", "[integrator]") {
+  // Common practice: global error of the order of the tolerance over a few periods.
+  const AeroelasticModel model(uncoupled_vacuum());
+  for (StepperKind kind : {StepperKind::kDopri5, StepperKind::kBulirschStoer}) {
+    RunState run;
+    run.x = {0.01, 0.02, 0.0, 0.0};
+    IntegratorSettings s;
+    s.stepper = kind;
+    s.relative_tolerance = 1e-10;
+    s.absolute_tolerance = 1e-13;
+    double max_err = 0;
+    const auto& sec = model.description().section;
+    const double wh = std::sqrt(sec.plunge_stiffness / sec.mass);
+    const double wa = std::sqrt(sec.pitch_stiffness / sec.pitch_inertia);
+    integrate(model, run, 3.0, s, {false, 0.01},
+              [&](double t, const std::vector<double>& x) {
+                max_err = std::max({max_err, std::abs(x[0] - 0.01 * std::cos(wh * t)) / 0.01,
+                                    std::abs(x[1] - 0.02 * std::cos(wa * t)) / 0.02});
+                return ObserverAction::kContinue;
+              });
+    INFO(to_string(kind) << " max relative error " << max_err);
+    CHECK(max_err < 1e-7);
+  }
+}
+
+TEST_CASE("Undamped structure in vacuum conserves energy", "[integrator]") {
+  // Common practice, no source: with rho = 0 and zero damping the energy
+  // T + V = 1/2 q'^T M q' + 1/2 q^T K q of the coupled 2-DOF section is constant.
+  ModelDescription d = uncoupled_vacuum();
+  d.section.static_unbalance = 0.2;  // couple the DOFs: x_alpha = 0.2
+  const AeroelasticModel model(d);
+  const DofMatrix M = structural_mass(d.section), K = structural_stiffness(d.section);
+  auto energy = [&](const std::vector<double>& x) {
+    Eigen::Vector2d q(x[0], x[1]), v(x[2], x[3]);
+    return 0.5 * v.dot(M * v) + 0.5 * q.dot(K * q);
+  };
+  RunState run;
+  run.x = {0.02, 0.05, 0.1, -0.3};
+  const double E0 = energy(run.x);
+  IntegratorSettings s;
+  s.relative_tolerance = 1e-11;
+  s.absolute_tolerance = 1e-14;
+  double worst = 0;
+  integrate(model, run, 20.0, s, {false, 0.005}, [&](double, const std::vector<double>& x) {
+    worst = std::max(worst, std::abs(energy(x) - E0) / E0);
+    return ObserverAction::kContinue;
+  });
+  INFO("worst relative energy drift " << worst);
+  CHECK(worst < 1e-8);
+}
+
+TEST_CASE("Fixed-rate output lands exactly on k dt; every-step output on each step",
+          "[integrator]") {
+  // Common practice, no source.
+  const AeroelasticModel model(uncoupled_vacuum());
+  RunState run;
+  run.x = {0.01, 0.0, 0.0, 0.0};
+  std::vector<double> times;
+  integrate(model, run, 1.0, {}, {false, 0.1}, [&](double t, const std::vector<double>&) {
+    times.push_back(t);
+    return ObserverAction::kContinue;
+  });
+  REQUIRE(times.size() == 11);
+  for (std::size_t k = 0; k < times.size(); ++k) CHECK(times[k] == Approx(0.1 * k).margin(1e-15));
+  CHECK(run.time == 1.0);
+
+  RunState run2;
+  run2.x = {0.01, 0.0, 0.0, 0.0};
+  std::int64_t samples = 0;
+  integrate(model, run2, 1.0, {}, {true, 0.0}, [&](double, const std::vector<double>&) {
+    ++samples;
+    return ObserverAction::kContinue;
+  });
+  CHECK(samples == run2.steps + 1);
+}
+
+TEST_CASE("Observer stop and cancellation end the run where they happen", "[integrator]") {
+  // Common practice, no source.
+  const AeroelasticModel model(uncoupled_vacuum());
+  RunState run;
+  run.x = {0.01, 0.0, 0.0, 0.0};
+  const IntegrationResult r = integrate(model, run, 10.0, {}, {false, 0.1},
+                                        [&](double t, const std::vector<double>&) {
+                                          return t >= 0.5 ? ObserverAction::kStop
+                                                          : ObserverAction::kContinue;
+                                        });
+  CHECK(r.reason == StopReason::kObserver);
+  CHECK(r.end_time < 1.0);
+  std::atomic<bool> cancel{true};
+  RunState run2;
+  run2.x = {0.01, 0.0, 0.0, 0.0};
+  const IntegrationResult r2 = integrate(model, run2, 10.0, {}, {false, 0.1}, {}, true, &cancel);
+  CHECK(r2.reason == StopReason::kCancelled);
+  CHECK(run2.time < 10.0);
+}

@@ -1,0 +1,176 @@
+#include <catch2/catch.hpp>
+
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+
+#include <fmt/format.h>
+
+#include "aerosect/analysis/simulate.hpp"
+#include "helpers.hpp"
+
+using namespace aerosect;
+using std::numbers::pi;
+
+namespace {
+MemorySink run_case(const Case& c) {
+  const AeroelasticModel model(c.model);
+  MemorySink sink;
+  const SimulationSummary s = simulate(c, model, sink);
+  REQUIRE(s.completed);
+  return sink;
+}
+
+double max_abs(const std::vector<double>& v) {
+  double m = 0;
+  for (double x : v) m = std::max(m, std::abs(x));
+  return m;
+}
+
+double max_abs_diff(const std::vector<double>& a, const std::vector<double>& b) {
+  REQUIRE(a.size() == b.size());
+  double m = 0;
+  for (std::size_t i = 0; i < a.size(); ++i) m = std::max(m, std::abs(a[i] - b[i]));
+  return m;
+}
+}  // namespace
+
+TEST_CASE("Lift after a step in pitch follows Wagner's function", "[simulate]") {
+  // A section held at alpha0 from t = 0 in a flow of U = b = 1: the
+  // circulatory lift is 2 pi rho U^2 b alpha0 phi(s), s = U t / b.
+  // Against R. T. Jones' phi(s) (the model's own approximation) to 1e-7, and
+  // against the exact Wagner values of the theory sheet (phi(1) = 0.6006,
+  // phi(4) = 0.7580, phi(10) = 0.8750, phi(20) = 0.9366) within the
+  // approximation's error (1.2 %).
+  const Case c = test::case_from(R"(
+[section]
+semichord = 1.0
+mass = 10.0
+elastic_axis = -0.3
+cg_offset = 0.1
+radius_of_gyration = 0.5
+plunge_frequency_hz = 1.0
+pitch_frequency_hz = 2.0
+[flow]
+density = 1.2
+airspeed = 1.0
+[initial]
+pitch_deg = 1.0
+[simulation]
+duration = 20.0
+sample_interval = 0.5
+hold = ["plunge", "pitch"]
+relative_tolerance = 1e-11
+absolute_tolerance = 1e-14
+)");
+  const MemorySink sink = run_case(c);
+  const std::vector<double> t = sink.time(), lift = sink.column("lift");
+  const double L_steady = 2 * pi * 1.2 * 1.0 * 1.0 * (pi / 180.0);
+  const WagnerApproximation jones = WagnerApproximation::jones();
+  for (std::size_t i = 1; i < t.size(); ++i)
+    CHECK(lift[i] / L_steady == Approx(jones(t[i])).epsilon(1e-7));
+  const std::pair<double, double> exact[] = {{1, 0.6006}, {4, 0.7580}, {10, 0.8750}, {20, 0.9366}};
+  for (auto [s, phi] : exact) {
+    const auto k = static_cast<std::size_t>(std::lround(s / 0.5));
+    REQUIRE(t[k] == Approx(s));
+    CHECK(lift[k] / L_steady == Approx(phi).epsilon(0.012));
+  }
+}
+
+TEST_CASE("SI and nondimensional forms give the same response", "[simulate]") {
+  // Common practice, no source: the two input forms describe one system.
+  const std::string si_text = R"(
+[section]
+semichord = 0.4
+mass = 12.0
+elastic_axis = -0.3
+cg = -0.1
+pitch_inertia_cg = 0.05
+plunge_frequency_hz = 3.0
+pitch_frequency_hz = 7.0
+pitch_damping_ratio = 0.01
+[flap]
+hinge = 0.5
+mass = 1.0
+cg_offset = 0.1
+inertia_cg = 0.004
+frequency_hz = 12.0
+[flow]
+density = 1.1
+airspeed = 35.0
+[initial]
+pitch_deg = 1.0
+plunge_rate = 0.1
+[simulation]
+duration = 1.0
+sample_rate = 500.0
+relative_tolerance = 1e-10
+absolute_tolerance = 1e-13
+)";
+  const Case si = test::case_from(si_text);
+  const NondimensionalParameters& n = si.nondimensional;
+  const std::string nd_text = fmt::format(
+      "[nondimensional]\nmass_ratio = {:.17g}\nelastic_axis = {:.17g}\ncg_offset = {:.17g}\n"
+      "radius_of_gyration = {:.17g}\nfrequency_ratio = {:.17g}\nreduced_speed = {:.17g}\n"
+      "pitch_damping_ratio = 0.01\n"
+      "hinge = {:.17g}\nflap_cg_offset = {:.17g}\nflap_radius_of_gyration = {:.17g}\n"
+      "flap_frequency_ratio = {:.17g}\n"
+      "[nondimensional.reference]\nsemichord = {:.17g}\npitch_frequency_hz = {:.17g}\n"
+      "density = {:.17g}\n"
+      "[initial]\npitch_deg = 1.0\nplunge_semichords = 0.0\nplunge_rate = 0.1\n"
+      "[simulation]\nduration = 1.0\nsample_rate = 500.0\nrelative_tolerance = 1e-10\n"
+      "absolute_tolerance = 1e-13\n",
+      n.mass_ratio, n.elastic_axis, n.cg_offset, n.radius_of_gyration, n.frequency_ratio,
+      n.reduced_speed, n.hinge, n.flap_cg_offset, n.flap_radius_of_gyration,
+      n.flap_frequency_ratio, n.reference.semichord, n.reference.pitch_frequency / (2 * pi),
+      n.reference.density);
+  const Case nd = test::case_from(nd_text);
+  const MemorySink a = run_case(si), b = run_case(nd);
+  REQUIRE(a.rows() == b.rows());
+  for (const char* ch : {"plunge", "pitch", "flap", "lift", "hinge_moment"}) {
+    const auto x = a.column(ch), y = b.column(ch);
+    INFO(ch);
+    CHECK(max_abs_diff(x, y) <= 1e-7 * max_abs(x));
+  }
+}
+
+TEST_CASE("A very stiff flap reproduces the 2-DOF response", "[simulate]") {
+  // Theory sheet self-check: as K_beta grows the flap stops moving and the
+  // 3-DOF section becomes the 2-DOF one (same total m, S_alpha, I_alpha).
+  // Benchmark section of Lee, Price & Wong 1999 at U* = 4 (below flutter).
+  const std::string sim =
+      "[initial]\npitch_deg = 2.0\n[simulation]\nduration_semichords = 200.0\n"
+      "sample_interval_semichords = 1.0\nrelative_tolerance = 1e-10\nabsolute_tolerance = 1e-13\n";
+  const MemorySink two = run_case(test::case_from(test::benchmark_2dof(sim)));
+  double previous = 1e300;
+  for (double ratio : {20.0, 60.0, 180.0}) {
+    const std::string flap = fmt::format(
+        "hinge = 0.5\nflap_cg_offset = 0.0\nflap_radius_of_gyration = 0.05\n"
+        "flap_frequency_ratio = {}\n",
+        ratio);
+    const MemorySink three = run_case(test::case_from(test::benchmark_2dof(flap + sim)));
+    const double d = max_abs_diff(two.column("pitch"), three.column("pitch")) /
+                     max_abs(two.column("pitch"));
+    const double dh = max_abs_diff(two.column("plunge"), three.column("plunge")) /
+                      max_abs(two.column("plunge"));
+    INFO("flap frequency ratio " << ratio << ": pitch difference " << d << ", plunge " << dh);
+    CHECK(d < previous);
+    previous = d;
+    if (ratio == 180.0) {
+      CHECK(d < 2e-3);
+      CHECK(dh < 2e-3);
+    }
+  }
+}
+
+TEST_CASE("The demo case runs to completion", "[simulate]") {
+  const Case c = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml");
+  const AeroelasticModel model(c.model);
+  MemorySink sink;
+  const SimulationSummary s = simulate(c, model, sink);
+  CHECK(s.completed);
+  CHECK(s.samples == 3001);
+  CHECK(sink.rows() == 3001);
+  CHECK(sink.outcome().completed);
+  for (double v : sink.column("hinge_moment")) CHECK(std::isfinite(v));
+}

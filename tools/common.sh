@@ -1,0 +1,39 @@
+# Shared set-up for tools/demo, tools/test and tools/bench (sourced, not run).
+# Installs missing Debian packages (skips apt when all are present), then
+# configures and builds aerosect (Release) in $BUILD_DIR (default: build/).
+set -euo pipefail
+
+ROOT="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
+BUILD_DIR="${BUILD_DIR:-$ROOT/build}"
+JOBS="${JOBS:-$(nproc)}"
+
+AEROSECT_PACKAGES=(
+  g++ cmake ninja-build pkg-config
+  libboost-dev libeigen3-dev libhdf5-dev libfmt-dev catch2 libtomlplusplus-dev
+  libcli11-dev nlohmann-json3-dev
+  hdf5-tools netcdf-bin
+  python3-h5py python3-numpy python3-scipy python3-matplotlib python3-netcdf4 python3-xarray
+)
+
+ensure_packages() {
+  local missing=()
+  for p in "$@"; do
+    if ! dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed"; then
+      missing+=("$p")
+    fi
+  done
+  if [ ${#missing[@]} -eq 0 ]; then
+    return 0
+  fi
+  echo "aerosect: installing missing Debian packages: ${missing[*]}" >&2
+  local sudo=""
+  if [ "$(id -u)" -ne 0 ]; then sudo="sudo"; fi
+  $sudo apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y --no-install-recommends "${missing[@]}"
+}
+
+build_aerosect() {
+  ensure_packages "${AEROSECT_PACKAGES[@]}"
+  cmake -S "$ROOT" -B "$BUILD_DIR" -G Ninja -DCMAKE_BUILD_TYPE=Release "$@" >/dev/null
+  cmake --build "$BUILD_DIR" -j "$JOBS"
+}

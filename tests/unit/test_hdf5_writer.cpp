@@ -74,7 +74,9 @@ RunMetadata test_metadata() {
 
 // Row i: time 0.01 i; every value is a function of (i, column) so that any
 // misplaced row or column shows.
-double value_at(std::size_t i, int column) { return 1000.0 * column + 0.5 * static_cast<double>(i); }
+double value_at(std::size_t i, int column) {
+  return 1000.0 * column + 0.5 * static_cast<double>(i);
+}
 double time_at(std::size_t i) { return 0.01 * static_cast<double>(i); }
 
 void write_rows(Hdf5TimeHistoryWriter& w, std::size_t rows) {

@@ -138,14 +138,19 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
                            const std::atomic<bool>* cancel) {
   const StateLayout& L = model.layout();
   const SimulationSettings& set = c.simulation;
+  for (int j : model.nonlinear_springs()) {
+    if (!model.description().springs[j].breakpoints().empty())
+      throw Error(fmt::format(
+          "the {} spring is a '{}' law with breakpoints: time integration across its switching "
+          "points is not available in this version (linearised flutter analysis is)",
+          j == kPlunge ? "plunge" : j == kPitch ? "pitch" : "flap",
+          model.description().springs[j].kind()));
+  }
   const std::vector<Channel> channels = simulation_channels(model);
   int width = 0;
   for (const auto& ch : channels) width += ch.width;
 
-  Channel time_channel;
-  time_channel.name = "time";
-  time_channel.units = "s";
-  time_channel.long_name = "time since release";
+  const Channel time_channel{"time", "s", "time since release", 1, {}, ""};
   sink.begin(time_channel, channels, case_metadata(c, "simulation"));
 
   // Extremes are tracked for displacements, velocities and loads (not tau,

@@ -17,6 +17,7 @@
 
 #include "aerosect/error.hpp"
 #include "aerosect/model/atmosphere.hpp"
+#include "aerosect/model/spring.hpp"
 
 namespace aerosect {
 
@@ -97,6 +98,42 @@ const std::vector<std::string> kKnownKeys = {
     "simulation.max_step",
     "simulation.initial_step",
     "simulation.hold",
+    "springs.plunge.law",
+    "springs.plunge.half_gap",
+    "springs.plunge.total_gap",
+    "springs.plunge.gap_below",
+    "springs.plunge.gap_above",
+    "springs.plunge.offset",
+    "springs.plunge.inner_stiffness",
+    "springs.plunge.half_width",
+    "springs.plunge.cubic_coefficient",
+    "springs.plunge.coefficients",
+    "springs.plunge.displacements",
+    "springs.plunge.forces",
+    "springs.pitch.law",
+    "springs.pitch.half_gap_deg",
+    "springs.pitch.total_gap_deg",
+    "springs.pitch.gap_below_deg",
+    "springs.pitch.gap_above_deg",
+    "springs.pitch.offset_deg",
+    "springs.pitch.inner_stiffness",
+    "springs.pitch.half_width_deg",
+    "springs.pitch.cubic_coefficient",
+    "springs.pitch.coefficients",
+    "springs.pitch.displacements_deg",
+    "springs.pitch.forces",
+    "springs.flap.law",
+    "springs.flap.half_gap_deg",
+    "springs.flap.total_gap_deg",
+    "springs.flap.gap_below_deg",
+    "springs.flap.gap_above_deg",
+    "springs.flap.offset_deg",
+    "springs.flap.inner_stiffness",
+    "springs.flap.half_width_deg",
+    "springs.flap.cubic_coefficient",
+    "springs.flap.coefficients",
+    "springs.flap.displacements_deg",
+    "springs.flap.forces",
 };
 
 // Tables that may appear (prefixes of known keys).
@@ -127,25 +164,36 @@ std::string leaf_of(const std::string& path) {
   return p == std::string::npos ? path : path.substr(p + 1);
 }
 
-// Closest known key (or table) to an unknown dotted path, or "".
+std::string parent_of(const std::string& path) {
+  const auto p = path.rfind('.');
+  return p == std::string::npos ? std::string() : path.substr(0, p);
+}
+
+// Closest known key (or table) to an unknown dotted path, or "": first
+// among the keys of the same table, then anywhere (a key put in the wrong
+// table).
 std::string suggestion_for(const std::string& path) {
   std::vector<std::string> candidates = kKnownKeys;
   for (const auto& k : kKnownKeys) {
     for (auto p = k.find('.'); p != std::string::npos; p = k.find('.', p + 1))
       candidates.push_back(k.substr(0, p));
   }
-  const std::string leaf = leaf_of(path);
-  std::string best;
-  std::size_t best_d = std::numeric_limits<std::size_t>::max();
-  for (const auto& c : candidates) {
-    const std::size_t d = std::min(edit_distance(path, c), edit_distance(leaf, leaf_of(c)) + 1);
-    if (d < best_d) {
-      best_d = d;
-      best = c;
-    }
-  }
+  const std::string leaf = leaf_of(path), parent = parent_of(path);
   const std::size_t limit = std::max<std::size_t>(2, leaf.size() / 3);
-  return best_d <= limit ? best : std::string();
+  for (bool same_table : {true, false}) {
+    std::string best;
+    std::size_t best_d = limit + 1;
+    for (const auto& c : candidates) {
+      if (same_table != (parent_of(c) == parent)) continue;
+      const std::size_t d = edit_distance(leaf, leaf_of(c));
+      if (d < best_d) {
+        best_d = d;
+        best = c;
+      }
+    }
+    if (!best.empty()) return best;
+  }
+  return std::string();
 }
 
 std::string join(const std::vector<std::string>& v, const char* sep = ", ") {
@@ -783,6 +831,108 @@ void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
   }
 }
 
+
+// [springs.<dof>]: restoring laws. The linear (nominal) stiffness always
+// comes from the section; a law adds the nonlinearity around it.
+SpringLaw read_spring(const Table& t, int dof, double k) {
+  const bool angle = dof != kPlunge;
+  const std::string suf = angle ? "_deg" : "";
+  const double unit = angle ? kDeg : 1.0;
+  const std::string du = angle ? "degrees" : "m";
+  const std::string law =
+      t.choice("law", {"linear", "freeplay", "bilinear", "cubic", "polynomial", "table"}, "linear");
+  // Keys that belong to each law; any other law's key is an error.
+  const std::map<std::string, std::vector<std::string>> keys_of = {
+      {"linear", {}},
+      {"freeplay", {"half_gap" + suf, "total_gap" + suf, "gap_below" + suf, "gap_above" + suf,
+                    "offset" + suf}},
+      {"bilinear", {"inner_stiffness", "half_width" + suf, "offset" + suf}},
+      {"cubic", {"cubic_coefficient"}},
+      {"polynomial", {"coefficients"}},
+      {"table", {"displacements" + suf, "forces"}}};
+  const auto& mine = keys_of.at(law);
+  for (const auto& [other, ks] : keys_of) {
+    for (const auto& key : ks) {
+      if (t.has(key) && std::find(mine.begin(), mine.end(), key) == mine.end())
+        t.fail(key, fmt::format("does not belong to law = \"{}\"", law),
+               mine.empty() ? std::string("no other keys for a linear spring")
+                            : "keys of this law: " + join(mine));
+    }
+  }
+  auto length = [&](const std::string& key, double def) {
+    auto v = t.number(key);
+    if (!v) return def;
+    t.require(*v >= 0, key, "must not be negative", du + ", >= 0");
+    return *v * unit;
+  };
+  if (law == "linear") return SpringLaw::linear(k);
+  if (law == "freeplay") {
+    const double offset = t.number("offset" + suf).value_or(0.0) * unit;
+    const std::string g = t.required_one_of(
+        {"half_gap" + suf, "total_gap" + suf, "gap_below" + suf},
+        fmt::format("the free play: half_gap{0} (half of the total free play, {1}), total_gap{0} "
+                    "(the whole free play), or gap_below{0} with gap_above{0} (asymmetric, "
+                    "measured from offset{0})",
+                    suf, du));
+    double below, above;
+    if (g == "gap_below" + suf) {
+      if (!t.has("gap_above" + suf))
+        t.missing("gap_above" + suf, "gap_above" + suf + " with gap_below" + suf);
+      below = length(g, 0.0);
+      above = length("gap_above" + suf, 0.0);
+    } else {
+      if (t.has("gap_above" + suf))
+        t.fail("gap_above" + suf, "conflicts with '" + t.key_path(g) + "'",
+               "gap_below" + suf + " with gap_above" + suf + ", or one symmetric gap");
+      const double v = length(g, 0.0);
+      below = above = g == "total_gap" + suf ? 0.5 * v : v;
+    }
+    return SpringLaw::freeplay(k, below, above, offset);
+  }
+  if (law == "bilinear") {
+    const double offset = t.number("offset" + suf).value_or(0.0) * unit;
+    const double kin = t.required_number("inner_stiffness", "the stiffness inside the breakpoints");
+    t.require(kin >= 0, "inner_stiffness", "must not be negative",
+              angle ? "N m/rad per m span, >= 0" : "N/m per m span, >= 0");
+    const double d = t.required_number("half_width" + suf, "distance from offset to each breakpoint");
+    t.require(d > 0, "half_width" + suf, "must be positive", du + ", > 0");
+    return SpringLaw::bilinear(kin, k, d * unit, offset);
+  }
+  if (law == "cubic") {
+    const double beta = t.required_number(
+        "cubic_coefficient", angle ? "beta in f = k (x + beta x^3), 1/rad^2" : "beta, 1/m^2");
+    return SpringLaw::cubic(k, beta);
+  }
+  if (law == "polynomial") {
+    const auto c = t.numbers("coefficients");
+    const std::string what = angle ? "[c2, c3, ...] of f = k (x + c2 x^2 + c3 x^3 + ...), x in rad"
+                                   : "[c2, c3, ...] of f = k (x + c2 x^2 + ...), x in m";
+    if (!c) t.missing("coefficients", what);
+    t.require(!c->empty() && c->size() <= 8, "coefficients", "must have 1 to 8 entries", what);
+    std::vector<double> full = {k};
+    for (double v : *c) full.push_back(k * v);
+    return SpringLaw::polynomial(full);
+  }
+  // table
+  const auto x = t.numbers("displacements" + suf);
+  const auto f = t.numbers("forces");
+  const std::string what = fmt::format(
+      "displacements{} ({}, strictly increasing) and forces ({}) of the same length, 2 to 256 points",
+      suf, du, angle ? "N m per m span" : "N per m span");
+  if (!x) t.missing("displacements" + suf, what);
+  if (!f) t.missing("forces", what);
+  t.require(x->size() >= 2 && x->size() <= 256, "displacements" + suf, "must have 2 to 256 points", what);
+  t.require(f->size() == x->size(), "forces",
+            fmt::format("has {} entries but displacements{} has {}", f->size(), suf, x->size()), what);
+  std::vector<double> xs;
+  for (std::size_t i = 0; i < x->size(); ++i) {
+    if (i > 0 && !((*x)[i] > (*x)[i - 1]))
+      t.fail("displacements" + suf, fmt::format("is not strictly increasing at entry {}", i + 1), what);
+    xs.push_back((*x)[i] * unit);
+  }
+  return SpringLaw::table(xs, *f);
+}
+
 // The 3-DOF structural mass matrix must be positive definite.
 void check_mass_matrix(const Case& c, const Table& flap, const Table& nd) {
   if (c.model.section.dof != 3) return;
@@ -880,11 +1030,18 @@ Case parse_case(const std::string& text, const std::string& path,
   }
   check_mass_matrix(c, flap, nd);
 
-  // Linear springs from the nominal stiffnesses (nonlinear laws: a later table).
+  // Spring laws around the section's nominal stiffnesses.
   const SectionProperties& s = c.model.section;
-  c.model.springs[kPlunge] = SpringLaw::linear(s.plunge_stiffness);
-  c.model.springs[kPitch] = SpringLaw::linear(s.pitch_stiffness);
-  c.model.springs[kFlap] = SpringLaw::linear(s.dof == 3 ? s.flap_stiffness : 0.0);
+  const Table springs = top.sub("springs");
+  const double k_nominal[3] = {s.plunge_stiffness, s.pitch_stiffness,
+                               s.dof == 3 ? s.flap_stiffness : 0.0};
+  const char* dof_names[3] = {"plunge", "pitch", "flap"};
+  for (int j = 0; j < 3; ++j) {
+    const Table t = springs.sub(dof_names[j]);
+    if (j == kFlap && s.dof == 2 && t.present())
+      t.fail("law", "needs a flap", "[springs.flap] only for a 3-DOF case");
+    c.model.springs[j] = read_spring(t, j, k_nominal[j]);
+  }
 
   read_aerodynamics(top.sub("aerodynamics"), c);
   read_initial_and_simulation(top.sub("initial"), top.sub("simulation"), c);

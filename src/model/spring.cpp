@@ -2,6 +2,9 @@
 
 #include <algorithm>
 #include <cmath>
+#include <numbers>
+
+#include <boost/math/quadrature/gauss_kronrod.hpp>
 
 #include "aerosect/error.hpp"
 
@@ -14,22 +17,82 @@ SpringLaw SpringLaw::linear(double stiffness) {
   return s;
 }
 
-SpringLaw SpringLaw::piecewise(std::vector<double> breakpoints, std::vector<double> slopes,
-                               std::vector<double> intercepts, std::string kind) {
-  AEROSECT_CHECK(slopes.size() == breakpoints.size() + 1);
-  AEROSECT_CHECK(intercepts.size() == slopes.size());
-  AEROSECT_CHECK(std::is_sorted(breakpoints.begin(), breakpoints.end()));
+SpringLaw SpringLaw::freeplay(double k, double gap_below, double gap_above, double offset) {
+  AEROSECT_CHECK(gap_below >= 0 && gap_above >= 0);
   SpringLaw s;
-  s.breakpoints_ = std::move(breakpoints);
-  s.slopes_ = std::move(slopes);
-  s.intercepts_ = std::move(intercepts);
-  s.nominal_stiffness_ = *std::max_element(s.slopes_.begin(), s.slopes_.end());
-  s.kind_ = std::move(kind);
+  const double lo = offset - gap_below, hi = offset + gap_above;
+  if (lo == hi) {
+    // A zero gap is a linear spring about the offset.
+    s.slopes_ = {k};
+    s.intercepts_ = {-k * offset};
+  } else {
+    s.breakpoints_ = {lo, hi};
+    s.slopes_ = {k, 0.0, k};
+    s.intercepts_ = {-k * lo, 0.0, -k * hi};
+  }
+  s.nominal_stiffness_ = k;
+  s.offset_ = offset;
+  s.kind_ = "freeplay";
   return s;
 }
 
+SpringLaw SpringLaw::bilinear(double k_in, double k_out, double d, double x0) {
+  AEROSECT_CHECK(d > 0);
+  SpringLaw s;
+  s.breakpoints_ = {x0 - d, x0 + d};
+  s.slopes_ = {k_out, k_in, k_out};
+  s.intercepts_ = {-k_in * d - k_out * (x0 - d), -k_in * x0, k_in * d - k_out * (x0 + d)};
+  s.nominal_stiffness_ = k_out;
+  s.offset_ = x0;
+  s.kind_ = "bilinear";
+  return s;
+}
+
+SpringLaw SpringLaw::cubic(double k, double beta) {
+  SpringLaw s;
+  s.slopes_ = {k};
+  s.poly_ = {0.0, k * beta};
+  s.nominal_stiffness_ = k;
+  s.kind_ = "cubic";
+  return s;
+}
+
+SpringLaw SpringLaw::polynomial(std::vector<double> c) {
+  AEROSECT_CHECK(!c.empty());
+  SpringLaw s;
+  s.slopes_ = {c[0]};
+  s.poly_.assign(c.begin() + 1, c.end());
+  while (!s.poly_.empty() && s.poly_.back() == 0.0) s.poly_.pop_back();
+  s.nominal_stiffness_ = c[0];
+  s.kind_ = "polynomial";
+  return s;
+}
+
+SpringLaw SpringLaw::table(std::vector<double> x, std::vector<double> f) {
+  AEROSECT_CHECK(x.size() >= 2 && x.size() == f.size());
+  AEROSECT_CHECK(std::is_sorted(x.begin(), x.end()));
+  SpringLaw s;
+  s.breakpoints_.assign(x.begin() + 1, x.end() - 1);
+  s.slopes_.clear();
+  s.intercepts_.clear();
+  for (std::size_t i = 0; i + 1 < x.size(); ++i) {
+    const double k = (f[i + 1] - f[i]) / (x[i + 1] - x[i]);
+    s.slopes_.push_back(k);
+    s.intercepts_.push_back(f[i] - k * x[i]);
+  }
+  // Nominal: the slope of the segment holding x = 0 (or the nearest end).
+  s.nominal_stiffness_ = s.slopes_[static_cast<std::size_t>(s.region_of(0.0))];
+  s.kind_ = "table";
+  return s;
+}
+
+bool SpringLaw::is_linear() const {
+  return breakpoints_.empty() && poly_.empty() && intercepts_[0] == 0.0;
+}
+
 double SpringLaw::force(double x, int region) const {
-  double f = slopes_[region] * x + intercepts_[region];
+  double f = slopes_[static_cast<std::size_t>(region)] * x +
+             intercepts_[static_cast<std::size_t>(region)];
   if (!poly_.empty()) {
     double xk = x * x;
     for (double c : poly_) {
@@ -41,7 +104,7 @@ double SpringLaw::force(double x, int region) const {
 }
 
 double SpringLaw::tangent_stiffness(double x, int region) const {
-  double k = slopes_[region];
+  double k = slopes_[static_cast<std::size_t>(region)];
   double xk = x;
   double p = 2.0;
   for (double c : poly_) {
@@ -55,6 +118,40 @@ double SpringLaw::tangent_stiffness(double x, int region) const {
 int SpringLaw::region_of(double x) const {
   return static_cast<int>(std::upper_bound(breakpoints_.begin(), breakpoints_.end(), x) -
                           breakpoints_.begin());
+}
+
+double SpringLaw::gap_closed_stiffness() const {
+  return std::max(slopes_.front(), slopes_.back());
+}
+
+double SpringLaw::gap_open_stiffness() const {
+  return slopes_[static_cast<std::size_t>(region_of(offset_))];
+}
+
+double SpringLaw::describing_function(double A) const {
+  AEROSECT_CHECK(A > 0);
+  // Split [0, 2 pi] where A sin(theta) crosses a breakpoint, so every piece
+  // is smooth, and integrate each with Gauss-Kronrod.
+  using std::numbers::pi;
+  std::vector<double> cuts = {0.0, 0.5 * pi, pi, 1.5 * pi, 2.0 * pi};
+  for (double xb : breakpoints_) {
+    if (std::abs(xb) >= A) continue;
+    const double t = std::asin(xb / A);
+    for (double c : {t, pi - t, t + 2 * pi}) {
+      if (c > 0 && c < 2 * pi) cuts.push_back(c);
+    }
+  }
+  std::sort(cuts.begin(), cuts.end());
+  double sum = 0;
+  for (std::size_t i = 0; i + 1 < cuts.size(); ++i) {
+    const double a = cuts[i], b = cuts[i + 1];
+    if (b - a < 1e-15) continue;
+    const double mid = A * std::sin(0.5 * (a + b));
+    const int region = region_of(mid);
+    auto integrand = [&](double th) { return force(A * std::sin(th), region) * std::sin(th); };
+    sum += boost::math::quadrature::gauss_kronrod<double, 31>::integrate(integrand, a, b, 8, 1e-14);
+  }
+  return sum / (pi * A);
 }
 
 }  // namespace aerosect

@@ -271,3 +271,43 @@ TEST_CASE("SI and nondimensional forms of one section resolve to the same model"
   CHECK(nc.model.flow.airspeed == Approx(si.model.flow.airspeed).epsilon(1e-13));
   CHECK(nc.model.flow.density == Approx(si.model.flow.density).epsilon(1e-13));
 }
+
+TEST_CASE("Spring laws in the case file", "[case]") {
+  const std::string base = kSection + kFlow + kSim;  // lines 1..13
+  const Case fp = test::case_from(base + "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n");
+  const SpringLaw& s = fp.model.springs[kPitch];
+  CHECK(s.kind() == "freeplay");
+  REQUIRE(s.breakpoints().size() == 2);
+  CHECK(s.breakpoints()[1] == Approx(0.5 * std::numbers::pi / 180));
+  CHECK(s.gap_closed_stiffness() == Approx(fp.model.section.pitch_stiffness));
+  const Case tot = test::case_from(base + "[springs.pitch]\nlaw = \"freeplay\"\ntotal_gap_deg = 1.0\n");
+  CHECK(tot.model.springs[kPitch].breakpoints()[1] == Approx(s.breakpoints()[1]));
+  const Case cu = test::case_from(base + "[springs.pitch]\nlaw = \"cubic\"\ncubic_coefficient = 3.0\n");
+  CHECK(cu.model.springs[kPitch].describing_function(0.1) ==
+        Approx(cu.model.section.pitch_stiffness * (1 + 0.75 * 3 * 0.01)));
+  expect_error(base + "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\ntotal_gap_deg = 1.0\n",
+               17, "springs.pitch.total_gap_deg", {"conflicts with 'springs.pitch.half_gap_deg'"});
+  expect_error(base + "[springs.pitch]\nlaw = \"freeplay\"\n", 14,
+               "springs.pitch.half_gap_deg | springs.pitch.total_gap_deg | springs.pitch.gap_below_deg",
+               {"missing: give one of", "half of the total free play"});
+  expect_error(base + "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = -0.5\n", 16,
+               "springs.pitch.half_gap_deg", {"must not be negative"});
+  expect_error(base + "[springs.pitch]\nlaw = \"cubic\"\nhalf_gap_deg = 0.5\n", 16,
+               "springs.pitch.half_gap_deg", {"does not belong to law = \"cubic\""});
+  expect_error(base + "[springs.plunge]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n", 16,
+               "springs.plunge.half_gap_deg", {"unknown key", "did you mean 'springs.plunge.half_gap'"});
+  expect_error(base + "[springs.flap]\nlaw = \"cubic\"\ncubic_coefficient = 1.0\n", 15,
+               "springs.flap.law", {"needs a flap"});
+  expect_error(base + "[springs.pitch]\nlaw = \"table\"\ndisplacements_deg = [0.0, 1.0, 1.0]\n"
+                      "forces = [0.0, 1.0, 2.0]\n",
+               16, "springs.pitch.displacements_deg", {"not strictly increasing at entry 3"});
+  expect_error(base + "[springs.pitch]\nlaw = \"table\"\ndisplacements_deg = [0.0, 1.0]\n"
+                      "forces = [0.0, 1.0, 2.0]\n",
+               17, "springs.pitch.forces", {"has 3 entries but displacements_deg has 2"});
+  expect_error(base + "[springs.pitch]\nlaw = \"bilinear\"\nhalf_width_deg = 1.0\n", 14,
+               "springs.pitch.inner_stiffness", {"missing"});
+  expect_error(base + "[springs.pitch]\nlaw = \"polynomial\"\ncoefficients = []\n", 16,
+               "springs.pitch.coefficients", {"must have 1 to 8 entries"});
+  expect_error(base + "[springs.pitch]\nlaw = \"spline\"\n", 15, "springs.pitch.law",
+               {"is not one of the choices", "\"freeplay\""});
+}

@@ -407,6 +407,14 @@ TEST_CASE("HDF5 writer: temporary file and final renames", "[hdf5_writer]") {
     REQUIRE(fs::exists(path + ".part"));
     REQUIRE_FALSE(fs::exists(path));
     REQUIRE(w.final_path().empty());
+    {
+      // Rows go to the file one whole block at a time (9 rows, blocks of 4:
+      // 8 in the file, 1 buffered). HDF5 H5F docs (H5Fopen): a file already
+      // open in the process may be opened again read-only.
+      H5::H5File part(path + ".part", H5F_ACC_RDONLY);
+      REQUIRE(dims_of(part.openDataSet("time")) == std::vector<hsize_t>{8});
+      REQUIRE(dims_of(part.openDataSet("wagner_lag_states")) == std::vector<hsize_t>{8, 2});
+    }
     w.finish(completed(9));
     REQUIRE(fs::exists(path));
     REQUIRE_FALSE(fs::exists(path + ".part"));

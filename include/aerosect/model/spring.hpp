@@ -7,11 +7,21 @@
 // Every law is represented as a piecewise polynomial with sorted breakpoints
 // x_1 < ... < x_n dividing the axis into regions 0..n (region r spans
 // [x_r, x_{r+1}], x_0 = -inf, x_{n+1} = +inf):
-//   f(x) = slope[r] x + intercept[r] + sum_k poly[k] x^k   (k >= 2)
-// A linear spring has no breakpoints and one region. The run state stores
-// the active region of each spring; the right-hand side evaluates the stored
-// region, never the sign of x, so each integration segment is smooth
-// (switching between regions is the integrator's job).
+//   f(x) = slope[r] x + intercept[r] + sum_k poly[k] x^(k+2)
+// A linear spring has no breakpoints, one region and no intercept. The run
+// state stores the active region of each spring; the right-hand side
+// evaluates the stored region, never the sign of x, so each integration
+// segment is smooth (switching between regions is the integrator's job).
+//
+// Laws (x0 = offset, the centre of the gap or of the inner segment):
+//   linear      f = k x
+//   freeplay    f = 0 for x0 - d_below <= x <= x0 + d_above,
+//               f = k (x - (x0 +- d)) outside (d = half-gap when symmetric)
+//   bilinear    f = k_in (x - x0) for |x - x0| <= d, slope k_out beyond
+//               (continuous at the breakpoints)
+//   cubic       f = k (x + beta x^3)   (beta > 0 hardening, < 0 softening)
+//   polynomial  f = sum_i c_i x^i, i = 1..n
+//   table       piecewise linear through (x_i, f_i), end segments extended
 
 #include <span>
 #include <string>
@@ -23,10 +33,14 @@ class SpringLaw {
  public:
   SpringLaw() = default;  // linear, zero stiffness
   static SpringLaw linear(double stiffness);
-  // General piecewise-linear law: slopes.size() == breakpoints.size() + 1,
-  // intercepts likewise; continuity is the caller's business.
-  static SpringLaw piecewise(std::vector<double> breakpoints, std::vector<double> slopes,
-                             std::vector<double> intercepts, std::string kind);
+  static SpringLaw freeplay(double stiffness, double gap_below, double gap_above, double offset);
+  static SpringLaw bilinear(double inner_stiffness, double outer_stiffness, double half_width,
+                            double offset);
+  static SpringLaw cubic(double stiffness, double beta);
+  // coefficients[i] multiplies x^(i+1).
+  static SpringLaw polynomial(std::vector<double> coefficients);
+  // Points sorted by x, at least two.
+  static SpringLaw table(std::vector<double> x, std::vector<double> f);
 
   // f(x) in the given region, and df/dx there.
   double force(double x, int region) const;
@@ -36,16 +50,28 @@ class SpringLaw {
 
   std::span<const double> breakpoints() const { return breakpoints_; }
   int region_count() const { return static_cast<int>(slopes_.size()); }
-  bool is_linear() const { return breakpoints_.empty() && poly_.empty(); }
-  // Stiffness used for damping and for the nominal linear model, N/m or N m/rad.
+  // True when f = k x exactly (goes into the linear state matrix).
+  bool is_linear() const;
+  bool is_piecewise_linear() const { return poly_.empty(); }
+  // Stiffness of the nominal linear model: the outer (engaged) slope for
+  // gap laws, the linear coefficient for polynomial laws.
   double nominal_stiffness() const { return nominal_stiffness_; }
+  // Linearisations for flutter bounds: slope with the gap closed (the
+  // outer regions) and with it open (the region holding the offset).
+  double gap_closed_stiffness() const;
+  double gap_open_stiffness() const;
+  // Describing function (equivalent linear stiffness) for x = A sin(theta):
+  // N(A) = 1/(pi A) * integral_0^2pi f(A sin theta) sin theta dtheta.
+  double describing_function(double amplitude) const;
   const std::string& kind() const { return kind_; }
+  double offset() const { return offset_; }
 
  private:
   std::vector<double> breakpoints_;
   std::vector<double> slopes_{0.0}, intercepts_{0.0};
   std::vector<double> poly_;  // poly_[k] multiplies x^(k+2)
   double nominal_stiffness_ = 0;
+  double offset_ = 0;
   std::string kind_ = "linear";
 };
 

@@ -1,0 +1,71 @@
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <numbers>
+
+#include "aerosect/model/spring.hpp"
+
+using namespace aerosect;
+using std::numbers::pi;
+
+TEST_CASE("Freeplay law by regions", "[spring]") {
+  // Theory sheet section 3: zero inside |x - x0| <= delta, k (x - x0 -+ delta) outside.
+  const SpringLaw s = SpringLaw::freeplay(100.0, 0.01, 0.02, 0.005);
+  REQUIRE(s.breakpoints().size() == 2);
+  CHECK(s.breakpoints()[0] == Approx(-0.005));
+  CHECK(s.breakpoints()[1] == Approx(0.025));
+  CHECK(s.region_of(-0.1) == 0);
+  CHECK(s.region_of(0.0) == 1);
+  CHECK(s.region_of(0.1) == 2);
+  CHECK(s.force(0.0, 1) == 0.0);
+  CHECK(s.force(0.035, 2) == Approx(100.0 * 0.01));
+  CHECK(s.force(-0.015, 0) == Approx(-100.0 * 0.01));
+  // The region a state is evaluated in is the stored one, not where x lies:
+  // the law extends each region's polynomial beyond its breakpoints.
+  CHECK(s.force(0.0, 2) == Approx(-100.0 * 0.025));
+  CHECK(s.gap_open_stiffness() == 0.0);
+  CHECK(s.gap_closed_stiffness() == 100.0);
+  CHECK_FALSE(s.is_linear());
+}
+
+TEST_CASE("A zero gap and a one-segment table are linear springs", "[spring]") {
+  // Common practice, no source: both laws degenerate to f = k x.
+  const SpringLaw z = SpringLaw::freeplay(50.0, 0.0, 0.0, 0.0);
+  CHECK(z.is_linear());
+  CHECK(z.force(0.3, z.region_of(0.3)) == Approx(15.0));
+  const SpringLaw t = SpringLaw::table({-1.0, 1.0}, {-50.0, 50.0});
+  CHECK(t.is_linear());
+  CHECK(t.nominal_stiffness() == Approx(50.0));
+}
+
+TEST_CASE("Bilinear law is continuous", "[spring]") {
+  // Common practice, no source.
+  const SpringLaw s = SpringLaw::bilinear(20.0, 100.0, 0.1, 0.02);
+  for (double xb : s.breakpoints()) {
+    const int above = s.region_of(xb), below = above - 1;
+    CHECK(s.force(xb, below) == Approx(s.force(xb, above)).margin(1e-12));
+  }
+  CHECK(s.force(0.02, 1) == Approx(0.0).margin(1e-15));
+  CHECK(s.gap_open_stiffness() == 20.0);
+  CHECK(s.gap_closed_stiffness() == 100.0);
+}
+
+TEST_CASE("Describing functions against Gelb and Vander Velde", "[spring]") {
+  // Gelb & Vander Velde 1968 (theory sheet section 3): freeplay
+  // N(A)/k = 1 - (2/pi)[asin(d/A) + (d/A) sqrt(1 - (d/A)^2)], 0.3910 at A/d = 2;
+  // cubic N(A) = k (1 + 3/4 beta A^2).
+  const double k = 80.0, d = 0.01;
+  const SpringLaw fp = SpringLaw::freeplay(k, d, d, 0.0);
+  CHECK(fp.describing_function(2 * d) / k == Approx(0.3910).epsilon(1e-4));
+  for (double r : {1.1, 1.5, 3.0, 10.0}) {
+    const double u = 1.0 / r;
+    const double exact = 1 - (2 / pi) * (std::asin(u) + u * std::sqrt(1 - u * u));
+    CHECK(fp.describing_function(r * d) / k == Approx(exact).epsilon(1e-12));
+  }
+  CHECK(fp.describing_function(0.5 * d) == Approx(0.0).margin(1e-14));
+  const SpringLaw cu = SpringLaw::cubic(k, 3.0);
+  for (double A : {0.05, 0.2, 1.0})
+    CHECK(cu.describing_function(A) == Approx(k * (1 + 0.75 * 3.0 * A * A)).epsilon(1e-12));
+  // A linear law's describing function is its stiffness.
+  CHECK(SpringLaw::linear(k).describing_function(0.3) == Approx(k).epsilon(1e-13));
+}

@@ -155,6 +155,7 @@ nlohmann::json simulation_json(const Case& c, const SimulationSummary& s,
   j["samples"] = s.samples;
   j["steps"] = s.steps;
   j["rhs_evaluations"] = s.rhs_evaluations;
+  j["switches"] = s.switches;
   j["extremes"] = nlohmann::json::object();
   for (const auto& e : s.extremes) {
     j["extremes"][e.channel] = {{"units", e.units},       {"max", e.max},
@@ -168,8 +169,10 @@ std::string simulation_text(const Case& c, const SimulationSummary& s,
                             const std::string& output_path) {
   std::string t;
   t += fmt::format("aerosect {} simulate: {}\n", kVersion, c.path);
-  t += fmt::format("  {} to t = {:.6g} s (tau = {:.6g}); {} samples, {} steps, {} rhs evaluations\n",
-                   s.status, s.end_time, s.end_tau, s.samples, s.steps, s.rhs_evaluations);
+  t += fmt::format("  {} to t = {:.6g} s (tau = {:.6g}); {} samples, {} steps, {} rhs evaluations, "
+                   "{} switches\n",
+                   s.status, s.end_time, s.end_tau, s.samples, s.steps, s.rhs_evaluations,
+                   s.switches);
   t += fmt::format("  written to {}\n\n", output_path);
   t += fmt::format("  {:<20} {:>14} {:>10} {:>14} {:>10}  units\n", "channel", "max", "at s", "min", "at s");
   for (const auto& e : s.extremes) {

@@ -138,14 +138,6 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
                            const std::atomic<bool>* cancel) {
   const StateLayout& L = model.layout();
   const SimulationSettings& set = c.simulation;
-  for (int j : model.nonlinear_springs()) {
-    if (!model.description().springs[j].breakpoints().empty())
-      throw Error(fmt::format(
-          "the {} spring is a '{}' law with breakpoints: time integration across its switching "
-          "points is not available in this version (linearised flutter analysis is)",
-          j == kPlunge ? "plunge" : j == kPitch ? "pitch" : "flap",
-          model.description().springs[j].kind()));
-  }
   const std::vector<Channel> channels = simulation_channels(model);
   int width = 0;
   for (const auto& ch : channels) width += ch.width;
@@ -212,12 +204,14 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     summary.steps = run.steps;
     summary.rhs_evaluations = run.rhs_evaluations;
     summary.samples = run.samples;
+    summary.switches = run.switches;
     outcome.completed = summary.completed;
     outcome.status = summary.status;
     outcome.samples = run.samples;
     outcome.numbers = {{"end_time", summary.end_time},
                        {"steps", static_cast<double>(run.steps)},
-                       {"rhs_evaluations", static_cast<double>(run.rhs_evaluations)}};
+                       {"rhs_evaluations", static_cast<double>(run.rhs_evaluations)},
+                       {"switches", static_cast<double>(run.switches)}};
   };
   try {
     const IntegrationResult r = integrate(model, run, set.duration, set.integrator, set.output,

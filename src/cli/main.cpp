@@ -6,12 +6,17 @@
 #include <atomic>
 #include <csignal>
 #include <cstdio>
+#include <cmath>
 #include <iostream>
+#include <optional>
+#include <sstream>
 #include <string>
 #include <vector>
 
 #include <CLI/CLI.hpp>
 
+#include "aerosect/analysis/flutter.hpp"
+#include "aerosect/analysis/flutter_report.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/error.hpp"
@@ -62,6 +67,44 @@ int run_simulate(const Common& o, const std::string& output) {
   return 0;
 }
 
+// "FROM:TO:N" -> N speeds from FROM to TO (m/s), ascending.
+std::vector<double> parse_speeds(const std::string& text) {
+  double from = 0, to = 0;
+  long n = 0;
+  char c1 = 0, c2 = 0;
+  std::istringstream in(text);
+  in >> from >> c1 >> to >> c2 >> n;
+  if (!in || c1 != ':' || c2 != ':' || !(in >> std::ws).eof() || !(from >= 0) || !(to > from) ||
+      n < 2 || n > 100000 || !std::isfinite(to))
+    throw aerosect::InputError({"--speeds " + text, 0, 0}, "--speeds", text,
+                               "is not a valid speed range",
+                               "FROM:TO:N with 0 <= FROM < TO (m/s, true airspeed) and 2 <= N "
+                               "<= 100000, e.g. --speeds 10:120:221");
+  std::vector<double> s(static_cast<std::size_t>(n));
+  for (long i = 0; i < n; ++i) s[static_cast<std::size_t>(i)] = from + (to - from) * i / (n - 1);
+  if (s.front() == 0.0) s.front() = 1e-6 * to;  // U = 0 has no reduced frequency
+  return s;
+}
+
+int run_flutter(const Common& o, const std::string& output, const std::string& speeds,
+                const std::string& method, std::optional<double> amplitude) {
+  const aerosect::Case c = aerosect::load_case(o.case_path, o.overrides);
+  aerosect::FlutterOptions fo;
+  if (!speeds.empty()) fo.speeds = parse_speeds(speeds);
+  fo.state_space = method != "pk";
+  fo.pk = method != "state-space";
+  fo.amplitude = amplitude;
+  const aerosect::FlutterReport r = aerosect::flutter_analysis(c, fo);
+  std::string written;
+  if (!output.empty()) {
+    aerosect::write_flutter_file(output, c, r);
+    written = output;
+  }
+  print(o.json ? aerosect::flutter_json(c, r, written).dump(2) + "\n"
+               : aerosect::flutter_text(c, r, written));
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -81,6 +124,21 @@ int main(int argc, char** argv) {
   add_common(sim, sim_opts);
   sim->add_option("-o,--output", output, "HDF5 file to write")->capture_default_str();
 
+  Common flutter_opts;
+  std::string flutter_out, flutter_speeds, flutter_method = "both";
+  std::optional<double> flutter_amplitude;
+  CLI::App* flutter = app.add_subcommand(
+      "flutter", "linear flutter and divergence: state-space eigenvalues and p-k (exact Theodorsen)");
+  add_common(flutter, flutter_opts);
+  flutter->add_option("-o,--output", flutter_out, "HDF5 file for the V-g / V-f tables");
+  flutter->add_option("--speeds", flutter_speeds, "airspeeds FROM:TO:N in m/s (true airspeed)");
+  flutter->add_option("--method", flutter_method, "state-space, pk or both")
+      ->check(CLI::IsMember({"state-space", "pk", "both"}))
+      ->capture_default_str();
+  flutter->add_option("--amplitude", flutter_amplitude,
+                      "also linearise nonlinear springs by their describing function at this "
+                      "amplitude (degrees for pitch/flap springs, m for plunge)");
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -90,6 +148,8 @@ int main(int argc, char** argv) {
   try {
     if (*check) return run_check(check_opts);
     if (*sim) return run_simulate(sim_opts, output);
+    if (*flutter)
+      return run_flutter(flutter_opts, flutter_out, flutter_speeds, flutter_method, flutter_amplitude);
   } catch (const aerosect::InputError& e) {
     std::cerr << "aerosect: error in the case:\n" << e.what() << "\n";
     return 2;

@@ -4,7 +4,9 @@
 #include <cmath>
 #include <limits>
 #include <numbers>
+#include <optional>
 
+#include <boost/math/tools/toms748_solve.hpp>
 #include <boost/numeric/odeint.hpp>
 #include <fmt/format.h>
 
@@ -59,6 +61,88 @@ bool all_finite(const State& x) {
   return std::all_of(x.begin(), x.end(), [](double v) { return std::isfinite(v); });
 }
 
+// A boundary of the active region of one spring: the switching function
+// h(t) = side * (x_j(t) - position) is <= 0 inside the region and the
+// trajectory leaves it where h turns positive.
+struct Boundary {
+  int spring = 0;       // DOF index
+  double position = 0;  // breakpoint, m or rad
+  int side = 1;         // +1: upper boundary, -1: lower boundary
+  int next_region = 0;  // region entered on crossing
+};
+
+std::vector<Boundary> watched_boundaries(const AeroelasticModel& model,
+                                         const std::vector<int>& regions) {
+  std::vector<Boundary> out;
+  for (int j : model.nonlinear_springs()) {
+    const auto bp = model.description().springs[j].breakpoints();
+    const int r = regions[j];
+    if (r > 0) out.push_back({j, bp[r - 1], -1, r - 1});
+    if (r < static_cast<int>(bp.size())) out.push_back({j, bp[r], +1, r + 1});
+  }
+  return out;
+}
+
+// Earliest crossing time of any watched boundary inside (ta, tb] on the
+// stepper's dense output, or nullopt. Grazing (the trajectory dips out of
+// the region and back within the step) is caught by checking h at the
+// extrema of x_j inside the step (zeros of its velocity), not only at the
+// step ends.
+template <class Stepper>
+std::optional<std::pair<double, const Boundary*>> first_crossing(
+    const Stepper& stepper, const StateLayout& L, const std::vector<Boundary>& boundaries,
+    double ta, double tb, State& work) {
+  if (boundaries.empty()) return std::nullopt;
+  constexpr int kProbes = 8;  // interior points used to bracket velocity zeros and crossings
+  const double time_tol = 1e-12 * std::max(1.0, std::abs(tb));
+  auto h_at = [&](const Boundary& b, double t) {
+    stepper.calc_state(t, work);
+    return b.side * (work[L.displacement + b.spring] - b.position);
+  };
+  auto v_at = [&](const Boundary& b, double t) {
+    stepper.calc_state(t, work);
+    return work[L.velocity + b.spring];
+  };
+  auto refine = [&](auto&& f, double a, double b, double fa, double fb) {
+    std::uintmax_t iters = 100;
+    auto tol = [time_tol](double x, double y) { return std::abs(y - x) <= time_tol; };
+    const auto br = boost::math::tools::toms748_solve(f, a, b, fa, fb, tol, iters);
+    return br.second;  // the side where h >= 0: the state has left the region
+  };
+  std::optional<std::pair<double, const Boundary*>> best;
+  for (const Boundary& b : boundaries) {
+    double t_prev = ta, h_prev = h_at(b, ta), v_prev = v_at(b, ta);
+    const double limit = best ? best->first : tb;
+    for (int i = 1; i <= kProbes; ++i) {
+      const double t = ta + (tb - ta) * i / kProbes;
+      if (t > limit) break;
+      const double h = h_at(b, t), v = v_at(b, t);
+      double crossing = -1;
+      if (h_prev <= 0 && h > 0) {
+        auto f = [&](double s) { return h_at(b, s); };
+        crossing = refine(f, t_prev, t, h_prev, h);
+      } else if (h <= 0 && v_prev * v < 0) {
+        // An extremum of x_j inside (t_prev, t): does it poke out of the region?
+        auto fv = [&](double s) { return v_at(b, s); };
+        const double te = refine(fv, t_prev, t, v_prev, v);
+        const double he = h_at(b, te);
+        if (he > 0) {
+          auto f = [&](double s) { return h_at(b, s); };
+          crossing = refine(f, t_prev, te, h_prev, he);
+        }
+      }
+      if (crossing >= 0) {
+        if (!best || crossing < best->first) best = std::make_pair(crossing, &b);
+        break;
+      }
+      t_prev = t;
+      h_prev = h;
+      v_prev = v;
+    }
+  }
+  return best;
+}
+
 template <class Stepper>
 IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunState& run,
                            double t_end, const IntegratorSettings& settings,
@@ -68,6 +152,7 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     ++run.rhs_evaluations;
     model.rhs(x.data(), dxdt.data(), run.regions);
   };
+  const StateLayout& L = model.layout();
   IntegrationResult result;
   const double t0 = run.time;
   const double dt0 = settings.initial_step > 0 ? settings.initial_step
@@ -88,38 +173,58 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
   }
 
   stepper.initialize(run.x, t0, std::min(dt0, t_end - t0));
-  State sample(run.x.size());
+  State sample(run.x.size()), work(run.x.size());
   std::int64_t k = 1;  // next fixed sample index
   const double dt_out = schedule.interval;
   // Tolerance for a sample time to count as reached (round-off in t0 + k dt).
   const double t_eps = 1e-12 * std::max(std::abs(t_end), std::abs(t0) + 1.0);
+  std::vector<Boundary> boundaries = watched_boundaries(model, run.regions);
+  // Chattering: switches piling up at one boundary with vanishing spacing.
+  const double chatter_dt = 1e-9 * default_initial_step(model) * 200.0;
+  int close_switches = 0;
+  double last_switch = -std::numeric_limits<double>::infinity();
 
   while (true) {
     std::pair<double, double> step;
     try {
       step = stepper.do_step(system);
     } catch (const odeint::step_adjustment_error& e) {
+      std::string where;
+      for (const Boundary& b : boundaries)
+        where += fmt::format("; near the {} spring's breakpoint at {:.6g}",
+                             b.spring == kPlunge ? "plunge" : b.spring == kPitch ? "pitch" : "flap",
+                             b.position);
       throw NumericalError(stepper.current_time(),
-                           fmt::format("step-size control failed ({}); state: {}", e.what(),
-                                       describe_state(model, stepper.current_state())));
+                           fmt::format("step-size control failed ({}){}; state: {}", e.what(),
+                                       where, describe_state(model, stepper.current_state())));
     }
     ++run.steps;
-    const double t_new = step.second;
+    const double t_old = step.first, t_new = step.second;
     const State& xn = stepper.current_state();
     if (!all_finite(xn)) {
-      throw NumericalError(step.first, fmt::format("non-finite state after the step to t = "
-                                                   "{:.9g} s; state at the step start: {}",
-                                                   t_new, describe_state(model, run.x)));
+      throw NumericalError(t_old, fmt::format("non-finite state after the step to t = "
+                                              "{:.9g} s; state at the step start: {}",
+                                              t_new, describe_state(model, run.x)));
     }
-    const double dt = t_new - step.first;
+    const double dt = t_new - t_old;
     if (!(dt > 16.0 * std::numeric_limits<double>::epsilon() * std::abs(t_new))) {
       throw NumericalError(t_new, fmt::format("step size collapsed to {:.3g} s", dt));
     }
-    const double t_stop = std::min(t_new, t_end);
+
+    // A switching point inside the step ends the step there.
+    const auto event = first_crossing(stepper, L, boundaries, t_old, std::min(t_new, t_end), work);
+    const double t_seg = event ? event->first : t_new;
+    const double t_stop = std::min(t_seg, t_end);
+
     ObserverAction action = ObserverAction::kContinue;
     if (schedule.every_step) {
-      if (t_new <= t_end + t_eps) {
-        action = emit(t_new, xn);
+      if (t_seg <= t_end + t_eps) {
+        if (t_seg == t_new) {
+          action = emit(t_new, xn);
+        } else {
+          stepper.calc_state(t_seg, sample);
+          action = emit(t_seg, sample);
+        }
       } else {
         stepper.calc_state(t_end, sample);
         action = emit(t_end, sample);
@@ -128,13 +233,13 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
       while (action == ObserverAction::kContinue) {
         const double tk = t0 + static_cast<double>(k) * dt_out;
         if (tk > t_stop + t_eps) break;
-        stepper.calc_state(std::min(tk, t_new), sample);
+        stepper.calc_state(std::min(tk, t_seg), sample);
         action = emit(tk, sample);
         ++k;
       }
     }
-    // Keep the run state at the last time reached.
-    if (t_new >= t_end - t_eps) {
+    // Reached the end time before any switch.
+    if (t_seg >= t_end - t_eps) {
       if (t_new == t_end) {
         run.x = xn;
       } else {
@@ -142,20 +247,42 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
       }
       run.time = t_end;
       result.end_time = t_end;
-      result.reason = StopReason::kEndTime;
-      if (action == ObserverAction::kStop) result.reason = StopReason::kObserver;
+      result.reason = action == ObserverAction::kStop ? StopReason::kObserver : StopReason::kEndTime;
       return result;
     }
-    run.x = xn;
-    run.time = t_new;
+    if (event) {
+      // Switch: the state at the crossing starts a new smooth segment in
+      // the next region; the stepper restarts there with the last step size.
+      const Boundary& b = *event->second;
+      stepper.calc_state(event->first, run.x);
+      run.time = event->first;
+      run.regions[b.spring] = b.next_region;
+      ++run.switches;
+      if (run.time - last_switch < chatter_dt) {
+        if (++close_switches > 50)
+          throw NumericalError(run.time, fmt::format(
+              "chattering: {} switches within {:.3g} s at the {} spring's breakpoint {:.6g} (the "
+              "state is trapped on a switching surface)",
+              close_switches, run.time - last_switch,
+              b.spring == kPlunge ? "plunge" : b.spring == kPitch ? "pitch" : "flap", b.position));
+      } else {
+        close_switches = 0;
+      }
+      last_switch = run.time;
+      boundaries = watched_boundaries(model, run.regions);
+      stepper.initialize(run.x, run.time, std::max(dt, 1e-6 * dt0));
+    } else {
+      run.x = xn;
+      run.time = t_new;
+    }
     if (action == ObserverAction::kStop) {
       result.reason = StopReason::kObserver;
-      result.end_time = t_new;
+      result.end_time = run.time;
       return result;
     }
     if (cancel && cancel->load(std::memory_order_relaxed)) {
       result.reason = StopReason::kCancelled;
-      result.end_time = t_new;
+      result.end_time = run.time;
       return result;
     }
   }

@@ -98,6 +98,7 @@ const std::vector<std::string> kKnownKeys = {
     "simulation.max_step",
     "simulation.initial_step",
     "simulation.hold",
+    "envelope.dive_speed_eas",
     "springs.plunge.law",
     "springs.plunge.half_gap",
     "springs.plunge.total_gap",
@@ -1044,6 +1045,12 @@ Case parse_case(const std::string& text, const std::string& path,
   }
 
   read_aerodynamics(top.sub("aerodynamics"), c);
+  const Table env = top.sub("envelope");
+  if (auto v = env.number("dive_speed_eas")) {
+    env.require(*v > 0 && *v < 1000, "dive_speed_eas", "is impossible",
+                "design dive speed V_D, m/s equivalent airspeed, 0 < V_D < 1000");
+    c.dive_speed_eas = *v;
+  }
   read_initial_and_simulation(top.sub("initial"), top.sub("simulation"), c);
   return c;
 }

@@ -1,10 +1,9 @@
 // Hdf5TimeHistoryWriter: the file layout and its conventions are described
-// in include/aerosect/io/hdf5_writer.hpp. This file holds the HDF5 calls and
-// the translation of every HDF5 failure into OutputError.
-//
-// Links and attributes are created with creation order tracked and indexed
-// (as netCDF-4 itself does), so ncdump and xarray list variables and
-// attributes in the order they were written.
+// in include/aerosect/io/hdf5_writer.hpp. This file holds the streaming
+// (blocks of rows, growing chunked datasets) and the translation of every
+// HDF5 failure into OutputError; the HDF5 details it shares with
+// Hdf5Document (error recording, creation order, text attributes, metadata,
+// the temporary file) are in hdf5_support.hpp.
 
 #include "aerosect/io/hdf5_writer.hpp"
 
@@ -12,10 +11,7 @@
 #include <hdf5_hl.h>
 
 #include <algorithm>
-#include <cerrno>
 #include <cstdint>
-#include <cstdio>
-#include <cstring>
 #include <filesystem>
 #include <map>
 #include <set>
@@ -26,118 +22,16 @@
 #include <fmt/ranges.h>
 
 #include "aerosect/error.hpp"
+#include "hdf5_support.hpp"
 
 namespace aerosect {
 
 namespace fs = std::filesystem;
+using namespace hdf5_detail;
 
 namespace {
 
-constexpr unsigned kCreationOrder = H5P_CRT_ORDER_TRACKED | H5P_CRT_ORDER_INDEXED;
 constexpr const char* kTimeName = "time";
-constexpr const char* kParametersGroup = "parameters";
-
-// ---------------------------------------------------------------------------
-// HDF5 error reporting. HDF5's automatic handler prints the error stack; it
-// is replaced (per thread, as the library is thread-safe) by one that keeps
-// the innermost message so it can go into the OutputError instead.
-
-thread_local std::string recorded_hdf5_error;
-
-herr_t keep_innermost(unsigned n, const H5E_error2_t* entry, void* data) {
-  if (n == 0 && entry->desc != nullptr) *static_cast<std::string*>(data) = entry->desc;
-  return 0;
-}
-
-herr_t record_error_stack(hid_t stack, void* /*client_data*/) {
-  std::string innermost;
-  H5Ewalk2(stack, H5E_WALK_UPWARD, keep_innermost, &innermost);
-  recorded_hdf5_error = std::move(innermost);
-  return 0;
-}
-
-void quiet_hdf5() {
-  H5::Exception::dontPrint();
-  H5Eset_auto2(H5E_DEFAULT, record_error_stack, nullptr);  // records, never prints
-  recorded_hdf5_error.clear();
-}
-
-// Low-level file errors carry "..., error message = 'REASON', ..." among many
-// numbers; only the operation and REASON are worth showing.
-std::string shorten(const std::string& desc) {
-  const std::string marker = "error message = '";
-  const auto at = desc.find(marker);
-  if (at == std::string::npos) return desc;
-  const auto begin = at + marker.size();
-  const auto end = desc.find('\'', begin);
-  const auto colon = desc.find(':');
-  std::string operation = colon == std::string::npos ? std::string() : desc.substr(0, colon);
-  std::string reason = desc.substr(begin, end == std::string::npos ? end : end - begin);
-  return operation.empty() ? reason : operation + ": " + reason;
-}
-
-std::string describe(const H5::Exception& e) {
-  std::string msg = fmt::format("HDF5 {}: {}", e.getFuncName(), e.getDetailMsg());
-  if (!recorded_hdf5_error.empty()) msg += " (" + shorten(recorded_hdf5_error) + ")";
-  recorded_hdf5_error.clear();
-  return msg;
-}
-
-// C API calls report failure by a negative return; turned into the same
-// exception type the C++ API throws, so one handler translates both.
-void check(herr_t status, const char* function) {
-  if (status < 0) throw H5::Exception(function, "failed");
-}
-
-hid_t check_id(hid_t id, const char* function) {
-  if (id < 0) throw H5::Exception(function, "failed");
-  return id;
-}
-
-// ---------------------------------------------------------------------------
-// Attributes.
-
-void write_text(const H5::H5Object& object, const std::string& name, const std::string& value) {
-  // The form netCDF-4 itself gives text (NC_CHAR) attributes: fixed length
-  // equal to the string's (1 and a NUL when empty), null-terminated padding.
-  H5::StrType type(H5::PredType::C_S1, std::max<std::size_t>(value.size(), 1));
-  type.setStrpad(H5T_STR_NULLTERM);
-  type.setCset(H5T_CSET_UTF8);
-  H5::Attribute attribute = object.createAttribute(name, type, H5::DataSpace(H5S_SCALAR));
-  attribute.write(type, value.c_str());
-}
-
-void write_double(const H5::H5Object& object, const std::string& name, double value) {
-  H5::Attribute attribute =
-      object.createAttribute(name, H5::PredType::IEEE_F64LE, H5::DataSpace(H5S_SCALAR));
-  attribute.write(H5::PredType::NATIVE_DOUBLE, &value);
-}
-
-void write_int32(const H5::H5Object& object, const std::string& name, std::int32_t value) {
-  H5::Attribute attribute =
-      object.createAttribute(name, H5::PredType::STD_I32LE, H5::DataSpace(H5S_SCALAR));
-  attribute.write(H5::PredType::NATIVE_INT32, &value);
-}
-
-void write_int64(const H5::H5Object& object, const std::string& name, std::int64_t value) {
-  H5::Attribute attribute =
-      object.createAttribute(name, H5::PredType::STD_I64LE, H5::DataSpace(H5S_SCALAR));
-  attribute.write(H5::PredType::NATIVE_INT64, &value);
-}
-
-// ---------------------------------------------------------------------------
-// Creation helpers.
-
-H5::DSetCreatPropList series_properties(const std::vector<hsize_t>& chunk, int deflate_level) {
-  H5::DSetCreatPropList dcpl;
-  dcpl.setChunk(static_cast<int>(chunk.size()), chunk.data());
-  if (deflate_level > 0) {
-    dcpl.setShuffle();
-    dcpl.setDeflate(deflate_level);
-  }
-  dcpl.setAttrCrtOrder(kCreationOrder);
-  return dcpl;
-}
 
 // An empty series dataset: [0] or [0 x width], growing along time only.
 H5::DataSet create_series(const H5::H5File& file, const std::string& name, int width,
@@ -156,50 +50,7 @@ H5::DataSet create_series(const H5::H5File& file, const std::string& name, int w
   H5::DSetAccPropList dapl;
   dapl.setChunkCache(H5D_CHUNK_CACHE_NSLOTS_DEFAULT, 0, H5D_CHUNK_CACHE_W0_DEFAULT);
   return file.createDataSet(name, H5::PredType::IEEE_F64LE, space,
-                            series_properties(chunk, deflate_level), dapl);
-}
-
-// Free space needed before writing a block: the block uncompressed plus
-// room for the metadata that close() flushes. HDF5 1.10 cannot always close
-// a file after a write failed for lack of space (a later close crashes), so
-// a full disk is detected here instead, while the file can still be closed.
-constexpr std::uintmax_t kMetadataReserve = 1u << 20;
-
-// Empty when there is room (or nothing is known), else the reason.
-std::string lack_of_space(const std::string& file, std::uintmax_t block_bytes) {
-  fs::path directory = fs::path(file).parent_path();
-  if (directory.empty()) directory = ".";
-  std::error_code ec;
-  const fs::space_info space = fs::space(directory, ec);
-  if (ec || space.capacity == 0) return {};
-  const std::uintmax_t needed = block_bytes + kMetadataReserve;
-  if (space.available >= needed) return {};
-  return fmt::format("no space left on the device: {} bytes free in '{}', the next block needs "
-                     "up to {}",
-                     space.available, directory.string(), needed);
-}
-
-// The C++ API cannot pass a group creation property list, which creation
-// order tracking needs: the group is made through the C API and reopened.
-H5::Group create_group(const H5::Group& parent, const std::string& name) {
-  H5::PropList gcpl(H5P_GROUP_CREATE);
-  check(H5Pset_link_creation_order(gcpl.getId(), kCreationOrder), "H5Pset_link_creation_order");
-  check(H5Pset_attr_creation_order(gcpl.getId(), kCreationOrder), "H5Pset_attr_creation_order");
-  const hid_t id = check_id(
-      H5Gcreate2(parent.getId(), name.c_str(), H5P_DEFAULT, gcpl.getId(), H5P_DEFAULT),
-      "H5Gcreate2");
-  check(H5Gclose(id), "H5Gclose");
-  return parent.openGroup(name);
-}
-
-void write_parameter(const H5::Group& group, const ParameterRecord& p) {
-  H5::DSetCreatPropList dcpl;
-  dcpl.setAttrCrtOrder(kCreationOrder);
-  H5::DataSet dataset = group.createDataSet(p.name, H5::PredType::IEEE_F64LE,
-                                            H5::DataSpace(H5S_SCALAR), dcpl);
-  dataset.write(&p.value, H5::PredType::NATIVE_DOUBLE);
-  write_text(dataset, "units", p.units);
-  write_text(dataset, "long_name", p.long_name);
+                            chunked_properties(chunk, deflate_level), dapl);
 }
 
 // ---------------------------------------------------------------------------
@@ -207,10 +58,6 @@ void write_parameter(const H5::Group& group, const ParameterRecord& p) {
 
 [[noreturn]] void bug(const std::string& what) {
   throw InternalError(__FILE__, __LINE__, "HDF5 writer: " + what);
-}
-
-bool valid_link_name(const std::string& name) {
-  return !name.empty() && name != "." && name.find('/') == std::string::npos;
 }
 
 const std::set<std::string>& reserved_root_attributes() {
@@ -250,18 +97,8 @@ void validate(const std::vector<Channel>& channels, const RunMetadata& meta) {
       bug(fmt::format("component axis '{}' of channel '{}' clashes with another dataset", axis,
                       c->name));
 
-  std::set<std::string> attributes = reserved_root_attributes();
-  for (const auto& [key, value] : meta.text_attributes)
-    if (key.empty() || !attributes.insert(key).second)
-      bug(fmt::format("root attribute '{}' is empty, reserved or given twice", key));
-
-  std::set<std::pair<std::string, std::string>> parameters;
-  for (const auto& p : meta.parameters) {
-    if (!valid_link_name(p.group) || !valid_link_name(p.name))
-      bug(fmt::format("invalid parameter name '{}/{}'", p.group, p.name));
-    if (!parameters.emplace(p.group, p.name).second)
-      bug(fmt::format("parameter '{}/{}' given twice", p.group, p.name));
-  }
+  const std::string problem = metadata_problem(meta, reserved_root_attributes());
+  if (!problem.empty()) bug(problem);
 }
 
 }  // namespace
@@ -296,24 +133,9 @@ struct Hdf5TimeHistoryWriter::File {
   // HDF5 id is released even when its close fails; closing it again, e.g.
   // from a C++ destructor, is what must not happen).
   void close_quietly() noexcept {
-    auto quietly = [](auto& object) {
-      try {
-        object.close();
-      } catch (...) {
-        // Already failing; the file is about to be removed.
-      }
-    };
-    for (auto& s : series) quietly(s.dataset);
-    quietly(time);
-    if (file) {
-      try {
-        file->close();
-      } catch (...) {
-        // The file id stays valid and a second H5Fclose on it crashes
-        // HDF5 1.10: the wrapper is let go without its destructor.
-        static_cast<void>(file.release());
-      }
-    }
+    for (auto& s : series) hdf5_detail::close_quietly(s.dataset);
+    hdf5_detail::close_quietly(time);
+    hdf5_detail::close_quietly(file);
   }
 };
 
@@ -348,19 +170,12 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
   validate(channels, meta);
   quiet_hdf5();
 
-  std::error_code ec;
-  if (fs::is_directory(path_, ec))
-    throw OutputError(path_, "a directory of that name exists");
+  require_not_directory(path_);
   // A plain open first: its errno says why a file cannot be created here
   // ("No such file or directory", "Not a directory", "Permission denied").
-  errno = 0;
-  if (std::FILE* probe = std::fopen(temporary_path_.c_str(), "wb")) {
-    std::fclose(probe);
-  } else {
-    const int error = errno;
+  if (std::string reason = cannot_create(temporary_path_); !reason.empty()) {
     state_ = State::kFailed;
-    failure_ = fmt::format("cannot create the temporary file '{}': {}", temporary_path_,
-                           error != 0 ? std::strerror(error) : "unknown reason");
+    failure_ = std::move(reason);
     throw OutputError(path_, failure_);
   }
 
@@ -368,23 +183,17 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
     file_ = std::make_unique<File>();
     File& f = *file_;
 
-    H5::FileCreatPropList fcpl;
-    check(H5Pset_link_creation_order(fcpl.getId(), kCreationOrder), "H5Pset_link_creation_order");
-    check(H5Pset_attr_creation_order(fcpl.getId(), kCreationOrder), "H5Pset_attr_creation_order");
-    f.file = std::make_unique<H5::H5File>(temporary_path_, H5F_ACC_TRUNC, fcpl);
+    f.file = create_file(temporary_path_);
 
     H5::Group root = f.file->openGroup("/");
-    write_text(root, "Conventions", "CF-1.8");
-    write_text(root, "title", meta.title);
-    write_text(root, "aerosect_file_kind", meta.file_kind);
-    for (const auto& [key, value] : meta.text_attributes) write_text(root, key, value);
+    write_root_attributes(root, meta);
 
     f.time = create_series(*f.file, kTimeName, 1, options_.block_rows, options_.deflate_level);
     write_text(f.time, "units", time_channel.units);
     write_text(f.time, "long_name", time_channel.long_name);
     write_text(f.time, "standard_name", "time");
     write_text(f.time, "axis", "T");
-    check(H5DSset_scale(f.time.getId(), kTimeName), "H5DSset_scale");
+    set_scale(f.time, kTimeName);
 
     std::map<std::string, H5::DataSet> axes;
     for (const auto& c : channels) {
@@ -396,42 +205,31 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
                                 options_.deflate_level);
       write_text(s.dataset, "units", c.units);
       write_text(s.dataset, "long_name", c.long_name);
-      check(H5DSattach_scale(s.dataset.getId(), f.time.getId(), 0), "H5DSattach_scale");
+      attach_scale(s.dataset, f.time, 0);
 
       if (c.width > 1) {
         const std::string axis_name = component_axis_name(c);
         auto axis = axes.find(axis_name);
         if (axis == axes.end()) {
           const hsize_t n = static_cast<hsize_t>(c.width);
-          H5::DSetCreatPropList dcpl;
-          dcpl.setAttrCrtOrder(kCreationOrder);
           H5::DataSet d = f.file->createDataSet(axis_name, H5::PredType::STD_I32LE,
-                                               H5::DataSpace(1, &n), dcpl);
+                                               H5::DataSpace(1, &n), plain_properties());
           std::vector<std::int32_t> index(c.width);
           for (int k = 0; k < c.width; ++k) index[k] = k + 1;
           d.write(index.data(), H5::PredType::NATIVE_INT32);
           write_text(d, "units", "1");
           write_text(d, "long_name", fmt::format("index along {} (1-based)", axis_name));
           write_text(d, "component_names", fmt::format("{}", fmt::join(c.component_names, ",")));
-          check(H5DSset_scale(d.getId(), axis_name.c_str()), "H5DSset_scale");
+          set_scale(d, axis_name);
           axis = axes.emplace(axis_name, d).first;
         }
-        check(H5DSattach_scale(s.dataset.getId(), axis->second.getId(), 1), "H5DSattach_scale");
+        attach_scale(s.dataset, axis->second, 1);
       }
       f.series.push_back(std::move(s));
     }
     for (auto& [name, d] : axes) d.close();
 
-    if (!meta.parameters.empty()) {
-      H5::Group parameters = create_group(root, kParametersGroup);
-      std::map<std::string, H5::Group> groups;
-      for (const auto& p : meta.parameters) {
-        auto group = groups.find(p.group);
-        if (group == groups.end())
-          group = groups.emplace(p.group, create_group(parameters, p.group)).first;
-        write_parameter(group->second, p);
-      }
-    }
+    write_parameters(root, meta);
     root.close();
 
     f.time_buffer.resize(options_.block_rows);
@@ -474,7 +272,8 @@ void Hdf5TimeHistoryWriter::write_block() {
   const hsize_t first = f.written;
   const hsize_t rows = f.buffered;
   std::string full = lack_of_space(
-      temporary_path_, static_cast<std::uintmax_t>(rows) * (1 + f.row_width) * sizeof(double));
+      temporary_path_, static_cast<std::uintmax_t>(rows) * (1 + f.row_width) * sizeof(double),
+      "the next block");
   if (!full.empty()) {
     discard();
     state_ = State::kFailed;
@@ -550,12 +349,9 @@ void Hdf5TimeHistoryWriter::finish(const RunOutcome& outcome) {
 
   state_ = State::kFinished;
   const std::string target = outcome.completed ? path_ : incomplete_path(path_);
-  std::error_code ec;
-  fs::rename(temporary_path_, target, ec);
-  if (ec) {
+  if (std::string problem = rename_into_place(temporary_path_, target); !problem.empty()) {
     final_path_ = temporary_path_;
-    throw OutputError(path_, fmt::format("cannot rename '{}' to '{}': {}; the data is kept in '{}'",
-                                         temporary_path_, target, ec.message(), temporary_path_));
+    throw OutputError(path_, problem);
   }
   final_path_ = target;
 }

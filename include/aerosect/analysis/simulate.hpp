@@ -29,6 +29,7 @@ struct SimulationSummary {
   double end_time = 0;      // s
   double end_tau = 0;       // semichords travelled
   std::int64_t steps = 0, rhs_evaluations = 0, samples = 0;
+  std::int64_t switches = 0;  // spring region changes
   std::vector<Extreme> extremes;  // displacements, velocities and loads
 };
 

@@ -4,6 +4,18 @@
 // an option). Output is taken from the dense output at fixed sample times
 // (t0 + k dt, computed from k, never accumulated) or at every accepted step.
 //
+// Piecewise springs (breakpoints) switch exactly: after each accepted step
+// the switching functions h = +-(x_j - breakpoint) of the boundaries of the
+// active regions are checked on the dense output — at interior probe points
+// and at the extrema of x_j inside the step (velocity zeros), so a
+// trajectory that dips out of a region and back within one step (grazing)
+// is caught — and the earliest crossing is solved to 1e-12 s (relative to
+// max(1, t)) with TOMS 748 on the interpolant, without re-integrating. The
+// step ends there, the spring's stored region changes and the stepper
+// restarts from the interpolated state; the right-hand side never looks at
+// the sign of x. More than 50 switches closer than ~1e-9 of the shortest
+// period apart is chattering and stops the run with a NumericalError.
+//
 // The model is shared and const; everything that changes during a run is in
 // RunState, so independent runs can proceed on separate threads.
 
@@ -41,6 +53,7 @@ struct RunState {
   std::int64_t steps = 0;          // accepted steps
   std::int64_t rhs_evaluations = 0;
   std::int64_t samples = 0;        // samples handed to the observer
+  std::int64_t switches = 0;       // spring region changes (switching points crossed)
 };
 
 enum class ObserverAction { kContinue, kStop };

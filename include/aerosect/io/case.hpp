@@ -45,6 +45,7 @@ struct Case {
   ModelDescription model;            // resolved SI section, flow, aero, springs, held DOFs
   NondimensionalParameters nondimensional;  // the same section, nondimensional form
   SimulationSettings simulation;
+  std::optional<double> dive_speed_eas;  // V_D, m/s equivalent airspeed ([envelope])
 
   // The case text with the overrides appended as comments (what was run).
   std::string text_as_run() const;

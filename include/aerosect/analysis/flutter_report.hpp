@@ -1,0 +1,37 @@
+#pragma once
+// Reports of a flutter analysis: the human summary, the JSON summary (keys
+// in README.md, "JSON output") and the HDF5 file (layout in README.md,
+// "Output files"), all from one FlutterReport.
+
+#include <optional>
+#include <string>
+
+#include <nlohmann/json.hpp>
+
+#include "aerosect/analysis/flutter.hpp"
+#include "aerosect/io/case.hpp"
+
+namespace aerosect {
+
+// Lowest instability of the nominal linearisation and the margin against
+// 1.15 V_D (CS-25.629(b) / 14 CFR 25.629(b): no flutter within the V_D/M_D
+// envelope enlarged by 15 % in equivalent airspeed).
+struct FlutterMargin {
+  bool available = false;        // V_D given and an instability found
+  double dive_speed_eas = 0;     // V_D, m/s EAS
+  double required_eas = 0;       // 1.15 V_D
+  double critical_eas = 0;       // lowest flutter/divergence speed, EAS
+  double critical_tas = 0;
+  std::string critical_kind;     // "flutter" or "divergence"
+  double margin = 0;             // critical_eas / required_eas - 1
+  bool cleared = false;          // margin >= 0
+  std::optional<double> lco_onset_eas;  // gap-open flutter speed (freeplay), EAS
+};
+FlutterMargin flutter_margin(const FlutterReport& r);
+
+nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::string& output);
+std::string flutter_text(const Case& c, const FlutterReport& r, const std::string& output);
+// Writes the sweep tables and crossings; throws OutputError.
+void write_flutter_file(const std::string& path, const Case& c, const FlutterReport& r);
+
+}  // namespace aerosect

@@ -1,0 +1,76 @@
+#pragma once
+// A whole-array HDF5 file laid out as netCDF-4 with CF-1.8 metadata, for
+// results that are not streamed (flutter sweeps, LCO maps, gust summaries).
+//
+//   Hdf5Document doc("flutter.h5");
+//   doc.metadata(meta);                       // root attributes + /parameters
+//   doc.axis("speed", speeds, "m s-1", "true airspeed");   // dimension scale
+//   doc.integer_axis("mode", {1, 2, 3}, "mode number");
+//   doc.dataset("nominal/state_space/damping_ratio", {"speed", "mode"}, data,
+//               "1", "damping ratio");        // groups created as needed
+//   doc.number_attribute("nominal/state_space", "flutter_speed", 71.2);
+//   doc.commit();                             // written: rename into place
+//
+// Conventions shared with Hdf5TimeHistoryWriter (one implementation of the
+// HDF5 details): fixed-length null-terminated UTF-8 text attributes (netCDF
+// NC_CHAR), creation order tracked, every dataset with `units` and
+// `long_name`, axes as HDF5 dimension scales attached to every dimension of
+// every dataset that names them. Data are row-major (the last dimension
+// varies fastest); datasets larger than 64 KiB are chunked and compressed.
+// The file is written to `path + ".part"` and renamed onto `path` by
+// commit(); destroying an uncommitted document removes the temporary file.
+// Every failure is an OutputError naming the path and the reason.
+
+#include <cstdint>
+#include <memory>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "aerosect/integrate/sink.hpp"
+
+namespace aerosect {
+
+class Hdf5Document {
+ public:
+  explicit Hdf5Document(std::string path);
+  ~Hdf5Document();
+  Hdf5Document(const Hdf5Document&) = delete;
+  Hdf5Document& operator=(const Hdf5Document&) = delete;
+
+  // Root attributes (Conventions, title, aerosect_file_kind and the text
+  // attributes) and the /parameters/<group>/<name> scalars.
+  void metadata(const RunMetadata& meta);
+
+  // A 1-D coordinate variable at the root that is a dimension scale.
+  void axis(const std::string& name, std::span<const double> values, const std::string& units,
+            const std::string& long_name);
+  void integer_axis(const std::string& name, std::span<const std::int32_t> values,
+                    const std::string& long_name);
+
+  // A double dataset at `path` ("group/sub/name"; groups created as needed)
+  // over the named axes; data.size() must equal the product of their lengths.
+  void dataset(const std::string& path, const std::vector<std::string>& dims,
+               std::span<const double> data, const std::string& units,
+               const std::string& long_name);
+
+  // Attributes on the root ("" or "/"), a group or a dataset (created as a
+  // group when nothing is at that path yet).
+  void text_attribute(const std::string& object, const std::string& name,
+                      const std::string& value);
+  void number_attribute(const std::string& object, const std::string& name, double value);
+  void integer_attribute(const std::string& object, const std::string& name, std::int64_t value);
+
+  // Close and rename onto the target path. Throws OutputError.
+  void commit();
+
+  const std::string& path() const { return path_; }
+
+ private:
+  struct File;
+  std::string path_, temporary_path_;
+  std::unique_ptr<File> file_;
+  bool committed_ = false;
+};
+
+}  // namespace aerosect

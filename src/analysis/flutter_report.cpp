@@ -1,0 +1,339 @@
+#include "aerosect/analysis/flutter_report.hpp"
+
+#include <cmath>
+#include <limits>
+#include <numbers>
+
+#include <fmt/format.h>
+
+#include "aerosect/analysis/report.hpp"
+#include "aerosect/analysis/simulate.hpp"
+#include "aerosect/io/hdf5_document.hpp"
+#include "aerosect/model/atmosphere.hpp"
+#include "aerosect/version.hpp"
+
+namespace aerosect {
+
+using std::numbers::pi;
+
+namespace {
+
+const char* kMarginCaution =
+    "The margin is a typical-section estimate: it does not replace the analyses, ground "
+    "vibration tests and flight flutter tests that CS-25.629 / 14 CFR 25.629 require.";
+
+std::string group_name(Linearisation l) {
+  std::string s = to_string(l);
+  for (char& ch : s)
+    if (ch == '-') ch = '_';
+  return s;
+}
+std::string method_group(const std::string& m) { return m == "p-k" ? "pk" : "state_space"; }
+
+const MethodResult* find_method(const LinearisationResult& lr, const std::string& name) {
+  for (const auto& m : lr.methods)
+    if (m.method == name) return &m;
+  return nullptr;
+}
+const LinearisationResult* find_lin(const FlutterReport& r, Linearisation l) {
+  for (const auto& x : r.results)
+    if (x.linearisation == l) return &x;
+  return nullptr;
+}
+// The preferred method of a linearisation: state-space when present.
+const MethodResult* primary(const LinearisationResult& lr) {
+  return lr.methods.empty() ? nullptr : &lr.methods.front();
+}
+
+std::string aero_label(const Case& c, const std::string& method) {
+  if (method == "p-k") return "exact Theodorsen";
+  if (c.model.aero.model != AeroModel::kWagner) return to_string(c.model.aero.model);
+  return c.model.aero.wagner_name == "jones" ? "R. T. Jones Wagner" : "custom Wagner";
+}
+
+nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r, bool flutter) {
+  nlohmann::json j;
+  j["found"] = x.found;
+  if (!x.found) return j;
+  j["speed_m_s"] = x.speed;
+  j["speed_eas_m_s"] = equivalent_airspeed(x.speed, r.density);
+  j["reduced_speed"] = x.speed / r.reference_speed;
+  if (flutter) {
+    j["frequency_hz"] = x.frequency / (2 * pi);
+    j["frequency_ratio"] = x.frequency / r.reference_frequency;
+    j["reduced_frequency"] = x.reduced_frequency;
+    j["mode"] = x.mode + 1;
+    j["mode_name"] = r.mode_names[static_cast<std::size_t>(x.mode)];
+  }
+  return j;
+}
+
+std::string speed_text(const Crossing& x, const FlutterReport& r) {
+  if (!x.found) return "none in range";
+  return fmt::format("{:.6g} m/s (U/b w_a {:.5g})", x.speed, x.speed / r.reference_speed);
+}
+
+}  // namespace
+
+FlutterMargin flutter_margin(const FlutterReport& r) {
+  FlutterMargin m;
+  if (!r.dive_speed_eas || r.results.empty()) return m;
+  const MethodResult* p = primary(r.results.front());
+  if (!p) return m;
+  double crit = std::numeric_limits<double>::infinity();
+  if (p->flutter.found) {
+    crit = p->flutter.speed;
+    m.critical_kind = "flutter";
+  }
+  if (p->divergence.found && p->divergence.speed < crit) {
+    crit = p->divergence.speed;
+    m.critical_kind = "divergence";
+  }
+  m.dive_speed_eas = *r.dive_speed_eas;
+  m.required_eas = 1.15 * *r.dive_speed_eas;
+  if (const LinearisationResult* open = find_lin(r, Linearisation::kGapOpen)) {
+    if (const MethodResult* q = primary(*open); q && q->flutter.found)
+      m.lco_onset_eas = equivalent_airspeed(q->flutter.speed, r.density);
+  }
+  if (!std::isfinite(crit)) {
+    m.available = true;  // nothing found in the swept range
+    m.critical_kind = "none";
+    m.critical_eas = std::numeric_limits<double>::infinity();
+    m.critical_tas = m.critical_eas;
+    m.margin = std::numeric_limits<double>::infinity();
+    m.cleared = true;
+    return m;
+  }
+  m.available = true;
+  m.critical_tas = crit;
+  m.critical_eas = equivalent_airspeed(crit, r.density);
+  m.margin = m.critical_eas / m.required_eas - 1.0;
+  m.cleared = m.margin >= 0;
+  return m;
+}
+
+nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::string& output) {
+  nlohmann::json j;
+  j["command"] = "flutter";
+  j["aerosect_version"] = kVersion;
+  j["case"] = c.path;
+  j["title"] = c.title;
+  j["input_form"] = c.input_form;
+  j["dof"] = c.model.section.dof;
+  j["aerodynamic_model"] = to_string(c.model.aero.model);
+  j["overrides"] = c.overrides;
+  j["caution"] = kSafetyCaution;
+  j["output"] = output;
+  j["density_kg_m3"] = r.density;
+  j["reference_speed_m_s"] = r.reference_speed;
+  j["reference_frequency_hz"] = r.reference_frequency / (2 * pi);
+  j["mode_names"] = r.mode_names;
+  if (!r.results.empty() && !r.results.front().methods.empty()) {
+    const auto& sp = r.results.front().methods.front().sweep.speeds;
+    j["speeds"] = {{"from_m_s", sp.front()}, {"to_m_s", sp.back()}, {"count", sp.size()}};
+  }
+  j["linearisations"] = nlohmann::json::array();
+  for (const auto& lr : r.results) {
+    nlohmann::json l;
+    l["name"] = to_string(lr.linearisation);
+    const char* dofs[3] = {"plunge", "pitch", "flap"};
+    for (int k = 0; k < lr.stiffness.size(); ++k) l["stiffness"][dofs[k]] = lr.stiffness(k);
+    l["methods"] = nlohmann::json::array();
+    for (const auto& m : lr.methods) {
+      nlohmann::json mj;
+      mj["method"] = m.method;
+      mj["aerodynamics"] = aero_label(c, m.method);
+      mj["flutter"] = crossing_json(m.flutter, r, true);
+      mj["divergence"] = crossing_json(m.divergence, r, false);
+      l["methods"].push_back(mj);
+    }
+    const MethodResult* ss = find_method(lr, "state-space");
+    const MethodResult* pk = find_method(lr, "p-k");
+    if (ss && pk && ss->flutter.found && pk->flutter.found)
+      l["wagner_approximation_error_percent"] =
+          100.0 * (ss->flutter.speed - pk->flutter.speed) / pk->flutter.speed;
+    j["linearisations"].push_back(l);
+  }
+  const LinearisationResult* open = find_lin(r, Linearisation::kGapOpen);
+  const LinearisationResult* closed = find_lin(r, Linearisation::kGapClosed);
+  if (open && closed) {
+    const MethodResult* a = primary(*open);
+    const MethodResult* b = primary(*closed);
+    nlohmann::json band;
+    band["gap_open_flutter_m_s"] = a && a->flutter.found ? nlohmann::json(a->flutter.speed) : nullptr;
+    band["gap_closed_flutter_m_s"] = b && b->flutter.found ? nlohmann::json(b->flutter.speed) : nullptr;
+    j["freeplay_band"] = band;
+  } else {
+    j["freeplay_band"] = nullptr;
+  }
+  const FlutterMargin fm = flutter_margin(r);
+  if (fm.available) {
+    nlohmann::json mj;
+    mj["dive_speed_eas_m_s"] = fm.dive_speed_eas;
+    mj["required_eas_m_s"] = fm.required_eas;
+    mj["critical"] = fm.critical_kind;
+    mj["critical_eas_m_s"] = std::isfinite(fm.critical_eas) ? nlohmann::json(fm.critical_eas) : nullptr;
+    mj["margin_percent"] = std::isfinite(fm.margin) ? nlohmann::json(100 * fm.margin) : nullptr;
+    mj["cleared"] = fm.cleared;
+    mj["lco_onset_eas_m_s"] = fm.lco_onset_eas ? nlohmann::json(*fm.lco_onset_eas) : nullptr;
+    mj["caution"] = kMarginCaution;
+    j["margin"] = mj;
+  } else {
+    j["margin"] = nullptr;
+  }
+  return j;
+}
+
+std::string flutter_text(const Case& c, const FlutterReport& r, const std::string& output) {
+  std::string t;
+  t += fmt::format("aerosect {} flutter: {}\n", kVersion, c.path);
+  if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
+  t += fmt::format("  {}-DOF; density {:.5g} kg/m^3; reference speed b w_a = {:.5g} m/s, "
+                   "w_a = {:.5g} Hz\n",
+                   c.model.section.dof, r.density, r.reference_speed,
+                   r.reference_frequency / (2 * pi));
+  if (!r.results.empty() && !r.results.front().methods.empty()) {
+    const auto& sp = r.results.front().methods.front().sweep.speeds;
+    t += fmt::format("  {} speeds from {:.4g} to {:.4g} m/s (true airspeed)\n", sp.size(),
+                     sp.front(), sp.back());
+  }
+  t += "  modes:";
+  for (std::size_t i = 0; i < r.mode_names.size(); ++i)
+    t += fmt::format(" {} ({})", i + 1, r.mode_names[i]);
+  t += "\n";
+  for (const auto& lr : r.results) {
+    t += fmt::format("\n{} springs", to_string(lr.linearisation));
+    const char* dofs[3] = {"K_h", "K_a", "K_b"};
+    t += " (";
+    for (int k = 0; k < lr.stiffness.size(); ++k)
+      t += fmt::format("{}{} = {:.5g}", k ? ", " : "", dofs[k], lr.stiffness(k));
+    t += ")\n";
+    for (const auto& m : lr.methods) {
+      t += fmt::format("  {:<12} ({})\n", m.method, aero_label(c, m.method));
+      t += fmt::format("    flutter     {}", speed_text(m.flutter, r));
+      if (m.flutter.found)
+        t += fmt::format(", EAS {:.5g} m/s, {:.5g} Hz (w/w_a {:.4f}), k = {:.4f}, mode {} ({})",
+                         equivalent_airspeed(m.flutter.speed, r.density),
+                         m.flutter.frequency / (2 * pi),
+                         m.flutter.frequency / r.reference_frequency, m.flutter.reduced_frequency,
+                         m.flutter.mode + 1, r.mode_names[static_cast<std::size_t>(m.flutter.mode)]);
+      t += "\n";
+      t += fmt::format("    divergence  {}\n", speed_text(m.divergence, r));
+    }
+    const MethodResult* ss = find_method(lr, "state-space");
+    const MethodResult* pk = find_method(lr, "p-k");
+    if (ss && pk && ss->flutter.found && pk->flutter.found)
+      t += fmt::format("    state-space minus p-k flutter speed: {:+.3f} % (the Wagner "
+                       "approximation's error)\n",
+                       100.0 * (ss->flutter.speed - pk->flutter.speed) / pk->flutter.speed);
+  }
+  const LinearisationResult* open = find_lin(r, Linearisation::kGapOpen);
+  const LinearisationResult* closed = find_lin(r, Linearisation::kGapClosed);
+  if (open && closed) {
+    const MethodResult* a = primary(*open);
+    const MethodResult* b = primary(*closed);
+    t += "\nFreeplay: limit-cycle oscillation can exist between the gap-open and gap-closed "
+         "flutter speeds:\n";
+    t += fmt::format("  gap open {}  ..  gap closed {}\n", a ? speed_text(a->flutter, r) : "-",
+                     b ? speed_text(b->flutter, r) : "-");
+  }
+  const FlutterMargin fm = flutter_margin(r);
+  if (fm.available) {
+    t += fmt::format("\nMargin (CS-25.629(b) / 14 CFR 25.629(b)): V_D = {:.5g} m/s EAS, 1.15 V_D = "
+                     "{:.5g} m/s EAS\n",
+                     fm.dive_speed_eas, fm.required_eas);
+    if (fm.critical_kind == "none") {
+      t += "  no flutter or divergence in the swept range\n";
+    } else {
+      t += fmt::format("  lowest instability: {} at {:.5g} m/s EAS: margin {:+.1f} % -> {}\n",
+                       fm.critical_kind, fm.critical_eas, 100 * fm.margin,
+                       fm.cleared ? "beyond 1.15 V_D" : "INSIDE 1.15 V_D");
+    }
+    if (fm.lco_onset_eas)
+      t += fmt::format("  freeplay LCO can start at the gap-open flutter speed, {:.5g} m/s EAS ({})\n",
+                       *fm.lco_onset_eas,
+                       *fm.lco_onset_eas >= fm.required_eas ? "beyond 1.15 V_D" : "INSIDE 1.15 V_D");
+    t += fmt::format("  {}\n", kMarginCaution);
+  }
+  if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
+  t += "\n";
+  t += kSafetyCaution;
+  t += "\n";
+  return t;
+}
+
+void write_flutter_file(const std::string& path, const Case& c, const FlutterReport& r) {
+  Hdf5Document doc(path);
+  RunMetadata meta = case_metadata(c, "flutter");
+  doc.metadata(meta);
+  doc.number_attribute("", "reference_speed", r.reference_speed);
+  doc.number_attribute("", "reference_frequency", r.reference_frequency);
+  doc.number_attribute("", "density", r.density);
+  if (r.dive_speed_eas) {
+    doc.number_attribute("", "dive_speed_eas", *r.dive_speed_eas);
+    doc.number_attribute("", "clearance_speed_tas",
+                         1.15 * *r.dive_speed_eas * std::sqrt(kSeaLevelDensity / r.density));
+  }
+  if (r.results.empty() || r.results.front().methods.empty()) {
+    doc.commit();
+    return;
+  }
+  const std::vector<double>& speeds = r.results.front().methods.front().sweep.speeds;
+  doc.axis("speed", speeds, "m s-1", "true airspeed");
+  std::vector<double> reduced(speeds.size());
+  for (std::size_t i = 0; i < speeds.size(); ++i) reduced[i] = speeds[i] / r.reference_speed;
+  doc.dataset("reduced_speed", {"speed"}, reduced, "1", "reduced speed U / (b omega_alpha)");
+  const int n = static_cast<int>(r.mode_names.size());
+  std::vector<std::int32_t> modes(static_cast<std::size_t>(n));
+  std::string names;
+  for (int i = 0; i < n; ++i) {
+    modes[static_cast<std::size_t>(i)] = i + 1;
+    names += (i ? "," : "") + r.mode_names[static_cast<std::size_t>(i)];
+  }
+  doc.integer_axis("mode", modes, "structural mode, numbered as the in-vacuo modes");
+  doc.text_attribute("mode", "mode_names", names);
+
+  for (const auto& lr : r.results) {
+    const std::string lg = group_name(lr.linearisation);
+    const char* dofs[3] = {"plunge", "pitch", "flap"};
+    for (int k = 0; k < lr.stiffness.size(); ++k)
+      doc.number_attribute(lg, std::string("stiffness_") + dofs[k], lr.stiffness(k));
+    for (const auto& m : lr.methods) {
+      const std::string g = lg + "/" + method_group(m.method);
+      const std::size_t ns = m.sweep.speeds.size();
+      std::vector<double> f(ns * n), z(ns * n), re(ns * n), im(ns * n), kr(ns * n);
+      for (std::size_t i = 0; i < ns; ++i) {
+        for (int j = 0; j < n; ++j) {
+          const StabilityRoot& root = m.sweep.roots[i][static_cast<std::size_t>(j)];
+          const std::size_t at = i * n + j;
+          f[at] = root.frequency / (2 * pi);
+          z[at] = root.damping_ratio;
+          re[at] = root.eigenvalue.real();
+          im[at] = root.eigenvalue.imag();
+          kr[at] = root.reduced_frequency;
+        }
+      }
+      const std::vector<std::string> dims = {"speed", "mode"};
+      doc.dataset(g + "/frequency", dims, f, "Hz", "modal frequency |Im lambda| / 2 pi");
+      doc.dataset(g + "/damping_ratio", dims, z, "1",
+                  "modal damping ratio -Re lambda / |lambda| (negative: unstable)");
+      doc.dataset(g + "/eigenvalue_real", dims, re, "s-1", "real part of the eigenvalue");
+      doc.dataset(g + "/eigenvalue_imag", dims, im, "s-1", "imaginary part of the eigenvalue");
+      doc.dataset(g + "/reduced_frequency", dims, kr, "1", "reduced frequency omega b / U");
+      doc.text_attribute(g, "aerodynamics", aero_label(c, m.method));
+      const double nan = std::numeric_limits<double>::quiet_NaN();
+      doc.integer_attribute(g, "flutter_found", m.flutter.found ? 1 : 0);
+      doc.number_attribute(g, "flutter_speed", m.flutter.found ? m.flutter.speed : nan);
+      doc.number_attribute(g, "flutter_frequency",
+                           m.flutter.found ? m.flutter.frequency / (2 * pi) : nan);
+      doc.number_attribute(g, "flutter_reduced_frequency",
+                           m.flutter.found ? m.flutter.reduced_frequency : nan);
+      doc.integer_attribute(g, "flutter_mode", m.flutter.found ? m.flutter.mode + 1 : 0);
+      doc.integer_attribute(g, "divergence_found", m.divergence.found ? 1 : 0);
+      doc.number_attribute(g, "divergence_speed", m.divergence.found ? m.divergence.speed : nan);
+    }
+  }
+  doc.commit();
+}
+
+}  // namespace aerosect

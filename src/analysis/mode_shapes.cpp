@@ -1,0 +1,23 @@
+#include "aerosect/analysis/mode_shapes.hpp"
+
+#include <complex>
+
+#include "aerosect/model/section.hpp"
+
+namespace aerosect {
+
+Eigen::VectorXcd normalised_shape(Eigen::VectorXcd v, double semichord) {
+  v(kPlunge) /= semichord;
+  Eigen::Index i = 0;
+  v.cwiseAbs().maxCoeff(&i);
+  if (std::abs(v(i)) > 0) v /= v(i);
+  return v;
+}
+
+double mac(const Eigen::VectorXcd& a, const Eigen::VectorXcd& b) {
+  const double na = a.squaredNorm(), nb = b.squaredNorm();
+  if (na <= 0 || nb <= 0) return 0;
+  return std::norm(a.dot(b)) / (na * nb);
+}
+
+}  // namespace aerosect

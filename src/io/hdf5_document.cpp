@@ -1,0 +1,398 @@
+// Hdf5Document: the layout and its conventions are described in
+// include/aerosect/io/hdf5_document.hpp; the HDF5 details it shares with
+// Hdf5TimeHistoryWriter (error recording, creation order, text attributes,
+// metadata, the temporary file) are in hdf5_support.hpp.
+//
+// Failures come in two kinds, both thrown as OutputError:
+//  - a request that cannot be honoured (unknown axis, wrong number of
+//    values, a name already taken, a path through a dataset) is refused
+//    before anything is written: the document stays usable;
+//  - a failure of HDF5 or of the disk abandons the document: the temporary
+//    file is closed and removed, and every later call throws, naming the
+//    first failure.
+
+#include "aerosect/io/hdf5_document.hpp"
+
+#include <H5Cpp.h>
+
+#include <cstddef>
+#include <filesystem>
+#include <map>
+#include <numeric>
+#include <set>
+#include <system_error>
+#include <utility>
+
+#include <fmt/format.h>
+#include <fmt/ranges.h>
+
+#include "aerosect/error.hpp"
+#include "hdf5_support.hpp"
+
+namespace aerosect {
+
+namespace fs = std::filesystem;
+
+namespace hdf5_detail {
+namespace {
+
+// Datasets above this size are chunked (chunks of at most this size) and
+// compressed; smaller ones are contiguous.
+constexpr std::uintmax_t kChunkBytes = 64 * 1024;
+constexpr int kDeflateLevel = 4;
+
+// Halves the leading dimensions (the slowest varying first) until a chunk
+// holds at most kChunkBytes, so a chunk is a slab of whole trailing rows
+// whenever a row fits.
+std::vector<hsize_t> chunk_shape(std::vector<hsize_t> dims) {
+  auto bytes = [&] {
+    return std::accumulate(dims.begin(), dims.end(), std::uintmax_t{sizeof(double)},
+                           [](std::uintmax_t a, hsize_t b) { return a * b; });
+  };
+  for (std::size_t k = 0; k < dims.size() && bytes() > kChunkBytes; ++k)
+    while (dims[k] > 1 && bytes() > kChunkBytes) dims[k] = (dims[k] + 1) / 2;
+  return dims;
+}
+
+H5::DSetCreatPropList array_properties(const std::vector<hsize_t>& dims) {
+  std::uintmax_t bytes = sizeof(double);
+  for (auto n : dims) bytes *= n;
+  if (dims.empty() || bytes <= kChunkBytes) return plain_properties();
+  return chunked_properties(chunk_shape(dims), kDeflateLevel);
+}
+
+// "a/b/c" or "/a/b/c" -> {"a", "b", "c"}; "" and "/" -> {}. Empty when a
+// component is not a link name (reported by the caller as invalid).
+std::vector<std::string> split_path(const std::string& path, bool& valid) {
+  std::vector<std::string> parts;
+  valid = true;
+  std::size_t begin = path.empty() || path[0] != '/' ? 0 : 1;
+  if (begin >= path.size()) return parts;
+  while (true) {
+    const std::size_t end = path.find('/', begin);
+    std::string part = path.substr(begin, end == std::string::npos ? end : end - begin);
+    if (!valid_link_name(part)) {
+      valid = false;
+      return {};
+    }
+    parts.push_back(std::move(part));
+    if (end == std::string::npos) break;
+    begin = end + 1;
+  }
+  return parts;
+}
+
+std::string join(const std::vector<std::string>& parts, std::size_t count) {
+  std::string path;
+  for (std::size_t k = 0; k < count; ++k) path += (k == 0 ? "" : "/") + parts[k];
+  return path;
+}
+
+// The open document. Hdf5Document is its handle; this class holds the
+// state and does the work.
+class Document {
+ public:
+  Document(std::string path, std::string temporary_path)
+      : path_(std::move(path)), temporary_path_(std::move(temporary_path)) {}
+
+  void create() {
+    if (path_.empty()) throw OutputError(path_, "no file name given");
+    require_not_directory(path_);
+    if (std::string reason = cannot_create(temporary_path_); !reason.empty())
+      throw OutputError(path_, reason);
+    run(fmt::format("creating '{}'", temporary_path_),
+        [&] { file_ = create_file(temporary_path_); });
+  }
+
+  void metadata(const RunMetadata& meta) {
+    usable();
+    if (metadata_written_) refuse("the metadata was already written");
+    const std::string problem =
+        metadata_problem(meta, {"Conventions", "title", "aerosect_file_kind"});
+    if (!problem.empty()) refuse(problem);
+    run("writing the metadata", [&] {
+      H5::Group root = file_->openGroup("/");
+      for (const char* name : {"Conventions", "title", "aerosect_file_kind"})
+        if (root.attrExists(name)) refuse(fmt::format("root attribute '{}' already written", name));
+      for (const auto& [key, value] : meta.text_attributes)
+        if (root.attrExists(key)) refuse(fmt::format("root attribute '{}' already written", key));
+      if (!meta.parameters.empty() && root.nameExists(kParametersGroup))
+        refuse(fmt::format("'{}' already exists", kParametersGroup));
+      write_root_attributes(root, meta);
+      write_parameters(root, meta);
+      metadata_written_ = true;
+    });
+  }
+
+  void axis(const std::string& name, std::span<const double> values, const std::string& units,
+            const std::string& long_name) {
+    new_axis(name, values.size(), H5::PredType::IEEE_F64LE, H5::PredType::NATIVE_DOUBLE,
+             values.data(), units, long_name);
+  }
+
+  void integer_axis(const std::string& name, std::span<const std::int32_t> values,
+                    const std::string& long_name) {
+    new_axis(name, values.size(), H5::PredType::STD_I32LE, H5::PredType::NATIVE_INT32,
+             values.data(), "1", long_name);
+  }
+
+  void dataset(const std::string& path, const std::vector<std::string>& dims,
+               std::span<const double> data, const std::string& units,
+               const std::string& long_name) {
+    usable();
+    bool valid = false;
+    const auto parts = split_path(path, valid);
+    if (!valid || parts.empty()) refuse(fmt::format("invalid dataset path '{}'", path));
+    std::vector<hsize_t> shape;
+    std::vector<const H5::DataSet*> scales;
+    std::size_t count = 1;
+    for (const auto& d : dims) {
+      const auto a = axes_.find(d);
+      if (a == axes_.end())
+        refuse(fmt::format("dataset '{}' names the unknown axis '{}'", path, d));
+      shape.push_back(a->second.length);
+      scales.push_back(&a->second.dataset);
+      count *= static_cast<std::size_t>(a->second.length);
+    }
+    if (data.size() != count)
+      refuse(fmt::format("dataset '{}' has {} values but its axes ({}) hold {}", path,
+                         data.size(), fmt::join(dims, ", "), count));
+    const std::string name = join(parts, parts.size());
+
+    run(fmt::format("writing dataset '{}'", name), [&] {
+      const std::size_t existing = existing_prefix(parts, name);
+      if (existing == parts.size()) refuse(fmt::format("'{}' already exists", name));
+      room_for(data.size() * sizeof(double), fmt::format("dataset '{}'", name));
+      H5::Group parent = make_groups(parts, existing, parts.size() - 1);
+      H5::DataSpace space = shape.empty()
+                                ? H5::DataSpace(H5S_SCALAR)
+                                : H5::DataSpace(static_cast<int>(shape.size()), shape.data());
+      H5::DataSet d = parent.createDataSet(parts.back(), H5::PredType::IEEE_F64LE, space,
+                                           array_properties(shape));
+      if (!data.empty()) d.write(data.data(), H5::PredType::NATIVE_DOUBLE);
+      write_text(d, "units", units);
+      write_text(d, "long_name", long_name);
+      for (std::size_t k = 0; k < scales.size(); ++k)
+        attach_scale(d, *scales[k], static_cast<unsigned>(k));
+    });
+  }
+
+  // Writes one attribute with `write(object)` on the root, a group or a
+  // dataset; a missing object is created as a group.
+  template <typename Write>
+  void attribute(const std::string& object, const std::string& name, Write write) {
+    usable();
+    bool valid = false;
+    const auto parts = split_path(object, valid);
+    if (!valid) refuse(fmt::format("invalid object path '{}'", object));
+    if (name.empty()) refuse(fmt::format("empty attribute name on '{}'", object));
+    const std::string where = parts.empty() ? "/" : join(parts, parts.size());
+
+    run(fmt::format("writing attribute '{}' of '{}'", name, where), [&] {
+      H5::Group root = file_->openGroup("/");
+      const std::size_t existing = existing_prefix(parts, where);
+      if (existing == parts.size() && !parts.empty() &&
+          file_->childObjType(where) == H5O_TYPE_DATASET) {
+        H5::DataSet d = file_->openDataSet(where);
+        if (d.attrExists(name))
+          refuse(fmt::format("attribute '{}' of '{}' already written", name, where));
+        write(d);
+        return;
+      }
+      if (existing == parts.size()) {
+        H5::Group g = parts.empty() ? root : file_->openGroup(where);
+        if (g.attrExists(name))
+          refuse(fmt::format("attribute '{}' of '{}' already written", name, where));
+        write(g);
+        return;
+      }
+      write(make_groups(parts, existing, parts.size()));
+    });
+  }
+
+  void commit() {
+    usable();
+    run(fmt::format("closing '{}'", temporary_path_), [&] {
+      file_->flush(H5F_SCOPE_GLOBAL);
+      // Objects first: a file whose objects are open stays open after close().
+      for (auto& [name, a] : axes_) a.dataset.close();
+      axes_.clear();
+      file_->close();
+      file_.reset();
+    });
+    committed_ = true;
+    if (std::string problem = rename_into_place(temporary_path_, path_); !problem.empty())
+      throw OutputError(path_, problem);
+  }
+
+  // What the handle's destructor does: an uncommitted document is
+  // discarded; after commit() the file is left where it is (on the target
+  // path, or kept in the temporary file when the rename failed).
+  void release() noexcept {
+    if (!committed_) discard();
+  }
+
+  // Closes whatever is open and removes the temporary file (never throws).
+  void discard() noexcept {
+    for (auto& [name, a] : axes_) close_quietly(a.dataset);
+    axes_.clear();
+    close_quietly(file_);
+    file_.reset();
+    std::error_code ignored;
+    fs::remove(temporary_path_, ignored);
+  }
+
+ private:
+  struct Axis {
+    H5::DataSet dataset;
+    hsize_t length = 0;
+  };
+
+  [[noreturn]] void refuse(const std::string& why) const { throw OutputError(path_, why); }
+
+  void usable() const {
+    if (committed_) refuse("the document was already committed");
+    if (!failure_.empty())
+      refuse("the document was abandoned after an earlier failure: " + failure_);
+    if (!file_) refuse("the document is not open");
+  }
+
+  // Runs HDF5 calls. A refusal (OutputError thrown before anything was
+  // written) passes through; any other failure abandons the document.
+  template <typename Body>
+  void run(const std::string& what, Body body) {
+    quiet_hdf5();
+    try {
+      body();
+    } catch (const OutputError&) {
+      throw;
+    } catch (const H5::Exception& e) {
+      abandon(fmt::format("{}: {}", what, describe(e)));
+    } catch (...) {
+      discard();
+      failure_ = what + " failed";
+      throw;
+    }
+  }
+
+  [[noreturn]] void abandon(std::string why) {
+    discard();
+    failure_ = std::move(why);
+    throw OutputError(path_, failure_);
+  }
+
+  void room_for(std::uintmax_t bytes, const std::string& what) {
+    if (std::string full = lack_of_space(temporary_path_, bytes, what); !full.empty())
+      abandon(std::move(full));
+  }
+
+  // How many leading components of `parts` exist; every existing component
+  // but the last must be a group.
+  std::size_t existing_prefix(const std::vector<std::string>& parts, const std::string& path) {
+    for (std::size_t k = 0; k < parts.size(); ++k) {
+      const std::string prefix = join(parts, k + 1);
+      if (!file_->nameExists(prefix)) return k;
+      if (k + 1 < parts.size() && file_->childObjType(prefix) != H5O_TYPE_GROUP)
+        refuse(fmt::format("'{}' in '{}' is not a group", prefix, path));
+    }
+    return parts.size();
+  }
+
+  // Opens parts[0..existing) and creates parts[existing..end) as groups;
+  // returns the group parts[0..end) (the root when end is 0).
+  H5::Group make_groups(const std::vector<std::string>& parts, std::size_t existing,
+                        std::size_t end) {
+    H5::Group group = file_->openGroup("/");
+    for (std::size_t k = 0; k < end; ++k)
+      group = k < existing ? group.openGroup(parts[k]) : create_group(group, parts[k]);
+    return group;
+  }
+
+  void new_axis(const std::string& name, std::size_t length, const H5::PredType& file_type,
+                const H5::PredType& memory_type, const void* values, const std::string& units,
+                const std::string& long_name) {
+    usable();
+    if (!valid_link_name(name) || name == kParametersGroup)
+      refuse(fmt::format("invalid axis name '{}'", name));
+    run(fmt::format("writing axis '{}'", name), [&] {
+      if (file_->nameExists(name)) refuse(fmt::format("'{}' already exists", name));
+      room_for(length * file_type.getSize(), fmt::format("axis '{}'", name));
+      const std::vector<hsize_t> dims{static_cast<hsize_t>(length)};
+      H5::DataSet d = file_->createDataSet(name, file_type, H5::DataSpace(1, dims.data()),
+                                           array_properties(dims));
+      if (length > 0) d.write(values, memory_type);
+      write_text(d, "units", units);
+      write_text(d, "long_name", long_name);
+      set_scale(d, name);
+      axes_.emplace(name, Axis{d, dims[0]});
+    });
+  }
+
+  std::string path_, temporary_path_;
+  std::unique_ptr<H5::H5File> file_;
+  std::map<std::string, Axis> axes_;
+  bool metadata_written_ = false;
+  bool committed_ = false;
+  std::string failure_;  // why the document was abandoned; empty while usable
+};
+
+}  // namespace
+}  // namespace hdf5_detail
+
+// ---------------------------------------------------------------------------
+
+struct Hdf5Document::File : hdf5_detail::Document {
+  using Document::Document;
+};
+
+Hdf5Document::Hdf5Document(std::string path)
+    : path_(std::move(path)),
+      temporary_path_(path_ + ".part"),
+      file_(std::make_unique<File>(path_, temporary_path_)) {
+  file_->create();  // on failure nothing is left behind: create() discards
+}
+
+Hdf5Document::~Hdf5Document() { file_->release(); }
+
+void Hdf5Document::metadata(const RunMetadata& meta) { file_->metadata(meta); }
+
+void Hdf5Document::axis(const std::string& name, std::span<const double> values,
+                        const std::string& units, const std::string& long_name) {
+  file_->axis(name, values, units, long_name);
+}
+
+void Hdf5Document::integer_axis(const std::string& name, std::span<const std::int32_t> values,
+                                const std::string& long_name) {
+  file_->integer_axis(name, values, long_name);
+}
+
+void Hdf5Document::dataset(const std::string& path, const std::vector<std::string>& dims,
+                           std::span<const double> data, const std::string& units,
+                           const std::string& long_name) {
+  file_->dataset(path, dims, data, units, long_name);
+}
+
+void Hdf5Document::text_attribute(const std::string& object, const std::string& name,
+                                  const std::string& value) {
+  file_->attribute(object, name,
+                   [&](const H5::H5Object& o) { hdf5_detail::write_text(o, name, value); });
+}
+
+void Hdf5Document::number_attribute(const std::string& object, const std::string& name,
+                                    double value) {
+  file_->attribute(object, name,
+                   [&](const H5::H5Object& o) { hdf5_detail::write_double(o, name, value); });
+}
+
+void Hdf5Document::integer_attribute(const std::string& object, const std::string& name,
+                                     std::int64_t value) {
+  file_->attribute(object, name,
+                   [&](const H5::H5Object& o) { hdf5_detail::write_int64(o, name, value); });
+}
+
+void Hdf5Document::commit() {
+  file_->commit();  // the document itself records when its file is closed
+  committed_ = true;
+}
+
+}  // namespace aerosect

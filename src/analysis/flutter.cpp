@@ -374,20 +374,12 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
 
   // Mode names from the in-vacuo shapes at nominal stiffness.
   {
-    SectionProperties sn = s;
-    sn.plunge_stiffness = nominal(kPlunge);
-    sn.pitch_stiffness = nominal(kPitch);
-    if (n == 3) sn.flap_stiffness = nominal(kFlap);
-    const Eigen::MatrixXd M = structural_mass(sn);
+    const Eigen::MatrixXd M = structural_mass(s);
     const Eigen::MatrixXd K = nominal.asDiagonal();
     Eigen::GeneralizedSelfAdjointEigenSolver<Eigen::MatrixXd> es(K, M);
-    const char* names[3] = {"plunge", "pitch", "flap"};
     for (Eigen::Index i = 0; i < n; ++i) {
-      Eigen::VectorXd v = es.eigenvectors().col(i);
-      v(kPlunge) /= s.semichord;
-      Eigen::Index d = 0;
-      v.cwiseAbs().maxCoeff(&d);
-      rep.mode_names.push_back(names[d]);
+      const Eigen::VectorXcd v = normalised_shape(es.eigenvectors().col(i).cast<cd>(), s.semichord);
+      rep.mode_names.push_back(dof_name(dominant_dof(v, M, s.semichord)));
     }
   }
 

@@ -6,6 +6,7 @@
 
 #include <fmt/format.h>
 
+#include "aerosect/analysis/mode_shapes.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/io/hdf5_document.hpp"
@@ -51,7 +52,27 @@ std::string aero_label(const Case& c, const std::string& method) {
   return c.model.aero.wagner_name == "jones" ? "R. T. Jones Wagner" : "custom Wagner";
 }
 
-nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r, bool flutter) {
+// "h/b 0.12 @ -40 deg, alpha 0.45 @ +10 deg, beta 1 @ +0 deg", phases
+// relative to the largest component.
+std::string shape_text(const Eigen::VectorXcd& v) {
+  const char* names[3] = {"h/b", "alpha", "beta"};
+  std::string t;
+  for (Eigen::Index j = 0; j < v.size(); ++j)
+    t += fmt::format("{}{} {:.3g} @ {:+.0f} deg", j ? ", " : "", names[j], std::abs(v(j)),
+                     std::arg(v(j)) * 180 / pi);
+  return t;
+}
+
+nlohmann::json shape_json(const Eigen::VectorXcd& v) {
+  const char* names[3] = {"plunge_per_semichord", "pitch", "flap"};
+  nlohmann::json j;
+  for (Eigen::Index k = 0; k < v.size(); ++k)
+    j[names[k]] = {{"magnitude", std::abs(v(k))}, {"phase_deg", std::arg(v(k)) * 180 / pi}};
+  return j;
+}
+
+nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r, bool flutter,
+                             const Case& c) {
   nlohmann::json j;
   j["found"] = x.found;
   if (!x.found) return j;
@@ -64,6 +85,11 @@ nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r, bool flu
     j["reduced_frequency"] = x.reduced_frequency;
     j["mode"] = x.mode + 1;
     j["mode_name"] = r.mode_names[static_cast<std::size_t>(x.mode)];
+  }
+  if (x.shape.size() > 0) {
+    j["shape"] = shape_json(x.shape);
+    j["dominant_dof"] = dof_name(dominant_dof(x.shape, structural_mass(c.model.section),
+                                              c.model.section.semichord));
   }
   return j;
 }
@@ -143,8 +169,8 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
       nlohmann::json mj;
       mj["method"] = m.method;
       mj["aerodynamics"] = aero_label(c, m.method);
-      mj["flutter"] = crossing_json(m.flutter, r, true);
-      mj["divergence"] = crossing_json(m.divergence, r, false);
+      mj["flutter"] = crossing_json(m.flutter, r, true, c);
+      mj["divergence"] = crossing_json(m.divergence, r, false, c);
       l["methods"].push_back(mj);
     }
     const MethodResult* ss = find_method(lr, "state-space");
@@ -212,12 +238,16 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
       t += fmt::format("  {:<12} ({})\n", m.method, aero_label(c, m.method));
       t += fmt::format("    flutter     {}", speed_text(m.flutter, r));
       if (m.flutter.found)
-        t += fmt::format(", EAS {:.5g} m/s, {:.5g} Hz (w/w_a {:.4f}), k = {:.4f}, mode {} ({})",
+        t += fmt::format(", EAS {:.5g} m/s, {:.5g} Hz (w/w_a {:.4f}), k = {:.4f}, tracked from mode {} ({})",
                          equivalent_airspeed(m.flutter.speed, r.density),
                          m.flutter.frequency / (2 * pi),
                          m.flutter.frequency / r.reference_frequency, m.flutter.reduced_frequency,
                          m.flutter.mode + 1, r.mode_names[static_cast<std::size_t>(m.flutter.mode)]);
       t += "\n";
+      if (m.flutter.found)
+        t += fmt::format("                shape {} ({}-dominated)\n", shape_text(m.flutter.shape),
+                         dof_name(dominant_dof(m.flutter.shape, structural_mass(c.model.section),
+                                               c.model.section.semichord)));
       t += fmt::format("    divergence  {}\n", speed_text(m.divergence, r));
     }
     const MethodResult* ss = find_method(lr, "state-space");

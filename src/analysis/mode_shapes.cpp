@@ -20,4 +20,27 @@ double mac(const Eigen::VectorXcd& a, const Eigen::VectorXcd& b) {
   return std::norm(a.dot(b)) / (na * nb);
 }
 
+int dominant_dof(const Eigen::VectorXcd& v, const Eigen::MatrixXd& M, double semichord) {
+  int best = 0;
+  double e_best = -1;
+  for (Eigen::Index j = 0; j < v.size(); ++j) {
+    const double q = std::abs(v(j)) * (j == kPlunge ? semichord : 1.0);
+    const double e = q * q * M(j, j);
+    if (e > e_best) {
+      e_best = e;
+      best = static_cast<int>(j);
+    }
+  }
+  return best;
+}
+
+const char* dof_name(int dof) {
+  switch (dof) {
+    case kPlunge: return "plunge";
+    case kPitch: return "pitch";
+    case kFlap: return "flap";
+  }
+  return "?";
+}
+
 }  // namespace aerosect

@@ -6,6 +6,7 @@
 
 #include <Eigen/Eigenvalues>
 
+#include "aerosect/analysis/mode_shapes.hpp"
 #include "aerosect/model/aerodynamics.hpp"
 
 namespace aerosect {
@@ -29,7 +30,8 @@ std::vector<NaturalMode> in_vacuo_modes(const SectionProperties& s) {
   for (Eigen::Index i = 0; i < es.eigenvalues().size(); ++i) {
     NaturalMode m;
     m.frequency = std::sqrt(std::max(0.0, es.eigenvalues()(i)));
-    m.shape = normalised(es.eigenvectors().col(i), s.semichord, &m.dominant_dof);
+    m.shape = normalised(es.eigenvectors().col(i), s.semichord, nullptr);
+    m.dominant_dof = dominant_dof(m.shape.cast<std::complex<double>>(), M, s.semichord);
     modes.push_back(m);
   }
   return modes;

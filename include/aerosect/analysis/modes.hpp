@@ -20,7 +20,7 @@ namespace aerosect {
 struct NaturalMode {
   double frequency = 0;  // rad/s
   DofVector shape;       // (h/b, alpha[, beta]) scaled so the largest |component| is 1, positive
-  int dominant_dof = 0;  // index of the largest component
+  int dominant_dof = 0;  // DOF with the largest kinetic-energy share (mode_shapes.hpp)
 };
 
 // Ascending frequency.

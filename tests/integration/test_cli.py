@@ -51,7 +51,7 @@ with tempfile.TemporaryDirectory() as tmp:
         f.write(open(DEMO).read().replace("mass = 18.0", "mass = -18.0"))
     r = run("check", bad)
     check("bad exit 2", r.returncode == 2, r.returncode)
-    check("bad names file line key", "bad.toml:9" in r.stderr and "section.mass" in r.stderr, r.stderr)
+    check("bad names file line key", "bad.toml:10" in r.stderr and "section.mass" in r.stderr, r.stderr)
     check("bad stdout empty", r.stdout == "", r.stdout)
     r = run("simulate", bad, "-o", os.path.join(tmp, "x.h5"))
     check("bad simulate writes nothing", r.returncode == 2 and not os.path.exists(os.path.join(tmp, "x.h5")))

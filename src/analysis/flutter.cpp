@@ -398,6 +398,7 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
     if (o.pk) lr.methods.push_back(pk_method(c, k, speeds, o.relative_tolerance));
     rep.results.push_back(std::move(lr));
   }
+  if (o.lco_prediction) rep.lco = describing_function_lco(c, speeds);
   return rep;
 }
 

@@ -192,6 +192,31 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
   } else {
     j["freeplay_band"] = nullptr;
   }
+  if (r.lco.available) {
+    const bool angle = r.lco.spring != kPlunge;
+    const double unit = angle ? 180 / pi : 1.0;
+    nlohmann::json lj;
+    lj["spring"] = dof_name(r.lco.spring);
+    lj["amplitude_units"] = angle ? "deg" : "m";
+    lj["note"] = "describing-function prediction: near-harmonic oscillation about zero assumed";
+    double lo = std::numeric_limits<double>::infinity(), hi = 0;
+    lj["points"] = nlohmann::json::array();
+    for (const auto& pt : r.lco.points) {
+      lj["points"].push_back({{"amplitude", pt.amplitude * unit},
+                              {"speed_m_s", pt.speed},
+                              {"frequency_hz", pt.frequency / (2 * pi)},
+                              {"stable", pt.stable}});
+      if (pt.stable) {
+        lo = std::min(lo, pt.speed);
+        hi = std::max(hi, pt.speed);
+      }
+    }
+    lj["stable_speed_range_m_s"] =
+        std::isfinite(lo) ? nlohmann::json::array({lo, hi}) : nlohmann::json(nullptr);
+    j["lco_prediction"] = lj;
+  } else {
+    j["lco_prediction"] = nullptr;
+  }
   const FlutterMargin fm = flutter_margin(r);
   if (fm.available) {
     nlohmann::json mj;
@@ -266,6 +291,28 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
          "flutter speeds:\n";
     t += fmt::format("  gap open {}  ..  gap closed {}\n", a ? speed_text(a->flutter, r) : "-",
                      b ? speed_text(b->flutter, r) : "-");
+  }
+  if (r.lco.available) {
+    const bool angle = r.lco.spring != kPlunge;
+    const double unit = angle ? 180 / pi : 1.0;
+    t += fmt::format("\nDescribing-function LCO prediction ({} spring; near-harmonic, about zero):\n",
+                     dof_name(r.lco.spring));
+    t += fmt::format("  {:>12} {:>12} {:>10}  {}\n", angle ? "amplitude deg" : "amplitude m",
+                     "speed m/s", "freq Hz", "branch");
+    const std::size_t n = r.lco.points.size(), every = std::max<std::size_t>(1, n / 12);
+    double lo = std::numeric_limits<double>::infinity(), hi = 0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const auto& pt = r.lco.points[i];
+      if (pt.stable) {
+        lo = std::min(lo, pt.speed);
+        hi = std::max(hi, pt.speed);
+      }
+      if (i % every != 0 && i + 1 != n) continue;
+      t += fmt::format("  {:>12.5g} {:>12.5g} {:>10.4g}  {}\n", pt.amplitude * unit, pt.speed,
+                       pt.frequency / (2 * pi), pt.stable ? "stable" : "unstable");
+    }
+    if (std::isfinite(lo))
+      t += fmt::format("  stable LCO predicted from {:.5g} to {:.5g} m/s\n", lo, hi);
   }
   const FlutterMargin fm = flutter_margin(r);
   if (fm.available) {
@@ -362,6 +409,26 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
       doc.integer_attribute(g, "divergence_found", m.divergence.found ? 1 : 0);
       doc.number_attribute(g, "divergence_speed", m.divergence.found ? m.divergence.speed : nan);
     }
+  }
+  if (r.lco.available) {
+    const bool angle = r.lco.spring != kPlunge;
+    std::vector<double> a, u, f, st, keq;
+    for (const auto& pt : r.lco.points) {
+      a.push_back(pt.amplitude);
+      u.push_back(pt.speed);
+      f.push_back(pt.frequency / (2 * pi));
+      st.push_back(pt.stable ? 1.0 : 0.0);
+      keq.push_back(pt.equivalent_stiffness);
+    }
+    doc.axis("lco_amplitude", a, angle ? "rad" : "m",
+             std::string("describing-function LCO amplitude of the ") + dof_name(r.lco.spring));
+    const std::vector<std::string> dims = {"lco_amplitude"};
+    doc.dataset("lco_prediction/speed", dims, u, "m s-1", "airspeed of the predicted LCO");
+    doc.dataset("lco_prediction/frequency", dims, f, "Hz", "frequency of the predicted LCO");
+    doc.dataset("lco_prediction/stable", dims, st, "1", "1 for a stable LCO branch, 0 unstable");
+    doc.dataset("lco_prediction/equivalent_stiffness", dims, keq,
+                angle ? "N m rad-1 m-1" : "N m-1 m-1", "describing-function stiffness N(A)");
+    doc.text_attribute("lco_prediction", "spring", dof_name(r.lco.spring));
   }
   doc.commit();
 }

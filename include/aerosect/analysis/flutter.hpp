@@ -32,6 +32,7 @@
 
 #include <Eigen/Core>
 
+#include "aerosect/analysis/describing_function.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/model/system.hpp"
 
@@ -86,6 +87,7 @@ struct FlutterOptions {
   // and flap springs, m for plunge); adds that linearisation when given.
   std::optional<double> amplitude;
   double relative_tolerance = 1e-9;      // on the crossing speeds
+  bool lco_prediction = true;            // describing-function LCO curve (one nonlinear spring)
 };
 
 struct MethodResult {
@@ -108,6 +110,7 @@ struct FlutterReport {
   double density = 0;                        // kg/m^3
   bool has_gap = false;                      // some spring has a gap (gap bounds computed)
   std::optional<double> dive_speed_eas;      // V_D from the case, m/s EAS
+  LcoPrediction lco;                         // describing-function LCO (one nonlinear spring)
 };
 
 // 400 speeds from U_max/400 to U_max = max(10 b omega_alpha, 1.5 U_case,

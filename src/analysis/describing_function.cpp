@@ -1,0 +1,89 @@
+#include "aerosect/analysis/describing_function.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+#include <Eigen/Eigenvalues>
+
+#include "aerosect/analysis/flutter.hpp"
+#include "aerosect/analysis/pk.hpp"
+
+namespace aerosect {
+
+namespace {
+
+double largest_growth(const ModelDescription& d, const DofVector& k, double U) {
+  ModelDescription m = d;
+  m.flow.airspeed = U;
+  m.held = {false, false, false};
+  const Eigen::MatrixXd A = AeroelasticModel(m).state_matrix(k);
+  Eigen::EigenSolver<Eigen::MatrixXd> es(A, false);
+  return es.eigenvalues().real().maxCoeff();
+}
+
+}  // namespace
+
+LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& speeds,
+                                      int count) {
+  LcoPrediction p;
+  const SectionProperties& s = c.model.section;
+  const int n = s.dof;
+  std::vector<int> nonlinear;
+  for (int j = 0; j < n; ++j)
+    if (!c.model.springs[j].is_linear()) nonlinear.push_back(j);
+  if (nonlinear.size() != 1) {
+    p.reason = nonlinear.empty() ? "no nonlinear spring"
+                                 : "more than one nonlinear spring (the describing-function "
+                                   "prediction here is for a single nonlinearity)";
+    return p;
+  }
+  const int j = nonlinear.front();
+  const SpringLaw& law = c.model.springs[j];
+  p.spring = j;
+
+  // Amplitude scale: the largest breakpoint distance, or where the
+  // polynomial terms match the linear one.
+  double scale = 0;
+  for (double b : law.breakpoints()) scale = std::max(scale, std::abs(b));
+  if (scale == 0) {
+    const double k = law.nominal_stiffness();
+    // |N(A) - k| = k at A = scale: found by doubling.
+    double a = 1e-6;
+    while (a < 1e3 && std::abs(law.describing_function(a) - k) < 1e-3 * std::abs(k)) a *= 2;
+    scale = a * 30;  // N has changed by ~0.1 % at a; cover well past it
+  }
+  // With a gap, N(A) changes fastest just past the breakpoint: space
+  // A = scale (1 + s) with s geometric from 1e-4 to 100; otherwise A itself.
+  const bool gap = !law.breakpoints().empty();
+  auto amplitude = [&](int i) {
+    const double f = static_cast<double>(i) / (count - 1);
+    return gap ? scale * (1 + 1e-4 * std::pow(1e6, f)) : scale * 1e-3 * std::pow(1e3, f);
+  };
+
+  DofVector k(n);
+  for (int i = 0; i < n; ++i) k(i) = c.model.springs[i].nominal_stiffness();
+  for (int i = 0; i < count; ++i) {
+    const double A = amplitude(i);
+    const double N = law.describing_function(A);
+    if (!(N >= 0)) continue;
+    k(j) = N;
+    const StabilitySweep sw = state_space_sweep(c.model, k, speeds);
+    const Crossing f = state_space_flutter(c.model, k, sw, 1e-9);
+    if (!f.found) continue;
+    LcoPredictionPoint pt;
+    pt.amplitude = A;
+    pt.equivalent_stiffness = N;
+    pt.speed = f.speed;
+    pt.frequency = f.frequency;
+    DofVector kp = k, km = k;
+    kp(j) = law.describing_function(A * (1 + 1e-3));
+    km(j) = law.describing_function(A * (1 - 1e-3));
+    pt.stable = largest_growth(c.model, kp, f.speed) < 0 && largest_growth(c.model, km, f.speed) > 0;
+    p.points.push_back(pt);
+  }
+  p.available = !p.points.empty();
+  if (!p.available) p.reason = "no flutter crossing for any equivalent stiffness in the swept speeds";
+  return p;
+}
+
+}  // namespace aerosect

@@ -87,17 +87,21 @@ std::vector<Boundary> watched_boundaries(const AeroelasticModel& model,
 // stepper's dense output, or nullopt. Grazing (the trajectory dips out of
 // the region and back within the step) is caught by checking h at the
 // extrema of x_j inside the step (zeros of its velocity), not only at the
-// step ends.
+// step ends. The interpolant is evaluated once per probe time for all
+// boundaries.
 template <class Stepper>
 std::optional<std::pair<double, const Boundary*>> first_crossing(
     const Stepper& stepper, const StateLayout& L, const std::vector<Boundary>& boundaries,
-    double ta, double tb, State& work) {
+    double ta, double tb, const State& xa, State& work) {
   if (boundaries.empty()) return std::nullopt;
-  constexpr int kProbes = 8;  // interior points used to bracket velocity zeros and crossings
+  constexpr int kProbes = 4;  // interior points bracketing velocity zeros and crossings
   const double time_tol = 1e-12 * std::max(1.0, std::abs(tb));
+  auto h_of = [&](const Boundary& b, const State& x) {
+    return b.side * (x[L.displacement + b.spring] - b.position);
+  };
   auto h_at = [&](const Boundary& b, double t) {
     stepper.calc_state(t, work);
-    return b.side * (work[L.displacement + b.spring] - b.position);
+    return h_of(b, work);
   };
   auto v_at = [&](const Boundary& b, double t) {
     stepper.calc_state(t, work);
@@ -109,45 +113,80 @@ std::optional<std::pair<double, const Boundary*>> first_crossing(
     const auto br = boost::math::tools::toms748_solve(f, a, b, fa, fb, tol, iters);
     return br.second;  // the side where h >= 0: the state has left the region
   };
-  std::optional<std::pair<double, const Boundary*>> best;
-  for (const Boundary& b : boundaries) {
-    double t_prev = ta, h_prev = h_at(b, ta), v_prev = v_at(b, ta);
-    const double limit = best ? best->first : tb;
-    for (int i = 1; i <= kProbes; ++i) {
-      const double t = ta + (tb - ta) * i / kProbes;
-      if (t > limit) break;
-      const double h = h_at(b, t), v = v_at(b, t);
+  const std::size_t nb = boundaries.size();
+  std::vector<double> h_prev(nb), v_prev(nb);
+  for (std::size_t i = 0; i < nb; ++i) {
+    h_prev[i] = h_of(boundaries[i], xa);
+    v_prev[i] = xa[L.velocity + boundaries[i].spring];
+  }
+  State probe(xa.size());
+  double t_prev = ta;
+  for (int p = 1; p <= kProbes; ++p) {
+    const double t = p == kProbes ? tb : ta + (tb - ta) * p / kProbes;
+    stepper.calc_state(t, probe);
+    std::optional<std::pair<double, const Boundary*>> best;
+    for (std::size_t i = 0; i < nb; ++i) {
+      const Boundary& b = boundaries[i];
+      const double h = h_of(b, probe), v = probe[L.velocity + b.spring];
       double crossing = -1;
-      if (h_prev <= 0 && h > 0) {
+      if (h_prev[i] <= 0 && h > 0) {
         auto f = [&](double s) { return h_at(b, s); };
-        crossing = refine(f, t_prev, t, h_prev, h);
-      } else if (h <= 0 && v_prev * v < 0) {
+        crossing = refine(f, t_prev, t, h_prev[i], h);
+      } else if (h <= 0 && v_prev[i] * v < 0) {
         // An extremum of x_j inside (t_prev, t): does it poke out of the region?
         auto fv = [&](double s) { return v_at(b, s); };
-        const double te = refine(fv, t_prev, t, v_prev, v);
+        const double te = refine(fv, t_prev, t, v_prev[i], v);
         const double he = h_at(b, te);
         if (he > 0) {
           auto f = [&](double s) { return h_at(b, s); };
-          crossing = refine(f, t_prev, te, h_prev, he);
+          crossing = refine(f, t_prev, te, h_prev[i], he);
         }
       }
-      if (crossing >= 0) {
-        if (!best || crossing < best->first) best = std::make_pair(crossing, &b);
-        break;
-      }
-      t_prev = t;
-      h_prev = h;
-      v_prev = v;
+      if (crossing >= 0 && (!best || crossing < best->first)) best = std::make_pair(crossing, &b);
+      h_prev[i] = h;
+      v_prev[i] = v;
     }
+    if (best) return best;  // probes are in time order: the first interval with a crossing wins
+    t_prev = t;
   }
-  return best;
+  return std::nullopt;
+}
+
+// True extrema (velocity zeros) of every moving DOF inside (ta, tb], located
+// on the dense output and handed to the peak observer.
+template <class Stepper>
+void report_peaks(const Stepper& stepper, const AeroelasticModel& model, double ta,
+                  const State& xa, double tb, const State& xb, const PeakObserver& peaks,
+                  State& work) {
+  const StateLayout& L = model.layout();
+  for (int j = 0; j < L.n_dof; ++j) {
+    if (model.description().held[j]) continue;
+    const double va = xa[L.velocity + j], vb = xb[L.velocity + j];
+    if (!(va * vb < 0) && !(vb == 0 && va != 0)) continue;
+    double te = tb;
+    if (vb != 0) {
+      auto f = [&](double s) {
+        stepper.calc_state(s, work);
+        return work[L.velocity + j];
+      };
+      std::uintmax_t iters = 100;
+      const double tol_t = 1e-13 * std::max(1.0, std::abs(tb));
+      const auto br = boost::math::tools::toms748_solve(
+          f, ta, tb, va, vb, [tol_t](double x, double y) { return std::abs(y - x) <= tol_t; },
+          iters);
+      te = 0.5 * (br.first + br.second);
+    }
+    stepper.calc_state(te, work);
+    peaks(j, te, work);
+  }
 }
 
 template <class Stepper>
 IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunState& run,
                            double t_end, const IntegratorSettings& settings,
                            const OutputSchedule& schedule, const SampleObserver& observer,
-                           bool emit_initial, const std::atomic<bool>* cancel) {
+                           bool emit_initial, const std::atomic<bool>* cancel,
+                           const PeakObserver& peaks) {
   auto system = [&model, &run](const State& x, State& dxdt, double /*t*/) {
     ++run.rhs_evaluations;
     model.rhs(x.data(), dxdt.data(), run.regions);
@@ -212,9 +251,19 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     }
 
     // A switching point inside the step ends the step there.
-    const auto event = first_crossing(stepper, L, boundaries, t_old, std::min(t_new, t_end), work);
+    const auto event =
+        first_crossing(stepper, L, boundaries, t_old, std::min(t_new, t_end), run.x, work);
     const double t_seg = event ? event->first : t_new;
     const double t_stop = std::min(t_seg, t_end);
+    if (peaks) {
+      const double tp = std::min(t_seg, t_end);
+      if (tp == t_new) {
+        report_peaks(stepper, model, t_old, run.x, t_new, xn, peaks, work);
+      } else {
+        stepper.calc_state(tp, sample);
+        report_peaks(stepper, model, t_old, run.x, tp, sample, peaks, work);
+      }
+    }
 
     ObserverAction action = ObserverAction::kContinue;
     if (schedule.every_step) {
@@ -293,7 +342,7 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
 IntegrationResult integrate(const AeroelasticModel& model, RunState& run, double t_end,
                             const IntegratorSettings& settings, const OutputSchedule& schedule,
                             const SampleObserver& observer, bool emit_initial,
-                            const std::atomic<bool>* cancel) {
+                            const std::atomic<bool>* cancel, const PeakObserver& peaks) {
   AEROSECT_CHECK(static_cast<int>(run.x.size()) == model.state_size());
   AEROSECT_CHECK(schedule.every_step || schedule.interval > 0);
   if (run.regions.empty()) run.regions = model.regions_of(run.x.data());
@@ -303,12 +352,12 @@ IntegrationResult integrate(const AeroelasticModel& model, RunState& run, double
       auto stepper = odeint::make_dense_output(atol, rtol, settings.max_step,
                                                odeint::runge_kutta_dopri5<State>());
       return run_loop(stepper, model, run, t_end, settings, schedule, observer, emit_initial,
-                      cancel);
+                      cancel, peaks);
     }
     case StepperKind::kBulirschStoer: {
       odeint::bulirsch_stoer_dense_out<State> stepper(atol, rtol, 1.0, 1.0, settings.max_step);
       return run_loop(stepper, model, run, t_end, settings, schedule, observer, emit_initial,
-                      cancel);
+                      cancel, peaks);
     }
   }
   throw InternalError(__FILE__, __LINE__, "unknown stepper");

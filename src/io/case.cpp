@@ -4,6 +4,7 @@
 #include <cerrno>
 #include <cstring>
 #include <cmath>
+#include <filesystem>
 #include <fstream>
 #include <limits>
 #include <map>
@@ -187,7 +188,8 @@ std::string suggestion_for(const std::string& path) {
     for (const auto& c : candidates) {
       if (same_table != (parent_of(c) == parent)) continue;
       const std::size_t d = edit_distance(leaf, leaf_of(c));
-      if (d < best_d) {
+      // A candidate sharing nothing with the leaf ('x' -> 'cg') is no hint.
+      if (d < best_d && d < leaf.size()) {
         best_d = d;
         best = c;
       }
@@ -409,6 +411,9 @@ void check_unknown_keys(const Context& ctx, const toml::table& t, const std::str
       continue;
     }
     if (!v.is_table() && is_known_key(path)) continue;
+    // A value where a table belongs (`section = 3`, `[[section]]`): left to
+    // Table::sub, which reports "must be a table" at the value.
+    if (!v.is_table() && is_known_table(path)) continue;
     SourceLocation where{ctx.file, static_cast<int>(k.source().begin.line),
                          static_cast<int>(k.source().begin.column)};
     if (where.line == 0) {
@@ -421,7 +426,7 @@ void check_unknown_keys(const Context& ctx, const toml::table& t, const std::str
     std::string problem = v.is_table() && !is_known_table(path) && is_known_key(path)
                               ? "must be a value, not a table"
                               : "unknown key";
-    if (!hint.empty()) problem += fmt::format(" (did you mean '{}'?)", hint);
+    if (!hint.empty() && hint != path) problem += fmt::format(" (did you mean '{}'?)", hint);
     throw InputError(where, path, v.is_table() ? "" : node_text(v), problem,
                      "the keys listed in README.md, \"Case file reference\"");
   }
@@ -440,6 +445,13 @@ void apply_override(toml::table& root, const std::string& text, Context& ctx) {
   };
   const std::string key = trim(text.substr(0, eq));
   const std::string value = trim(text.substr(eq + 1));
+  if (is_known_table(key)) {
+    const auto first = std::find_if(kKnownKeys.begin(), kKnownKeys.end(), [&](const std::string& k) {
+      return k.rfind(key + ".", 0) == 0;
+    });
+    throw InputError({"--set " + text, 0, 0}, key, value, "is a table, not a key",
+                     fmt::format("a key inside it, such as --set {}=...", *first));
+  }
   if (!is_known_key(key)) {
     const std::string hint = suggestion_for(key);
     throw InputError({"--set " + text, 0, 0}, key, value,
@@ -468,7 +480,8 @@ void apply_override(toml::table& root, const std::string& text, Context& ctx) {
     }
     if (!n->is_table())
       throw InputError({"--set " + text, 0, 0}, key, value,
-                       fmt::format("'{}' is not a table in the case file", key.substr(0, dot)), "");
+                       fmt::format("'{}' is not a table in the case file", key.substr(0, dot)),
+                       fmt::format("a [{}] table in the case file", key.substr(0, dot)));
     t = n->as_table();
     start = dot + 1;
   }
@@ -681,11 +694,11 @@ void read_nondimensional(const Table& nd, Case& c) {
   }
   const Table ref = nd.sub("reference");
   if (auto v = ref.number("semichord")) {
-    ref.require(*v > 0, "semichord", "must be positive", "m");
+    ref.require(*v > 0, "semichord", "must be positive", "a positive number, m");
     n.reference.semichord = *v;
   }
   if (auto v = ref.number("pitch_frequency_hz")) {
-    ref.require(*v > 0, "pitch_frequency_hz", "must be positive", "Hz");
+    ref.require(*v > 0, "pitch_frequency_hz", "must be positive", "a positive number, Hz");
     n.reference.pitch_frequency = 2 * pi * *v;
   }
   if (auto v = ref.number("density")) {
@@ -952,6 +965,11 @@ void check_mass_matrix(const Case& c, const Table& flap, const Table& nd) {
 }
 
 std::string read_file(const std::string& path) {
+  // A directory opens as a stream on POSIX and reads as empty: say so.
+  std::error_code ec;
+  if (std::filesystem::is_directory(path, ec))
+    throw InputError({path, 0, 0}, "", "", "cannot read the case file (it is a directory)",
+                     "a readable TOML file");
   std::ifstream in(path, std::ios::binary);
   if (!in)
     throw InputError({path, 0, 0}, "", "",

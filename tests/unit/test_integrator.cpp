@@ -156,3 +156,26 @@ TEST_CASE("Observer stop and cancellation end the run where they happen", "[inte
   CHECK(r2.reason == StopReason::kCancelled);
   CHECK(run2.time < 10.0);
 }
+
+TEST_CASE("Peak observer finds the true extrema on the dense output", "[integrator]") {
+  // Analytic solution (common practice): h = h0 cos(omega_h t) has its
+  // extrema at t = k pi / omega_h with value +-h0, whatever the step size.
+  const AeroelasticModel model(uncoupled_vacuum());
+  const auto& sec = model.description().section;
+  const double wh = std::sqrt(sec.plunge_stiffness / sec.mass);
+  RunState run;
+  run.x = {0.01, 0.02, 0.0, 0.0};
+  IntegratorSettings s;
+  s.relative_tolerance = 1e-11;
+  s.absolute_tolerance = 1e-14;
+  std::vector<std::pair<double, double>> peaks;
+  integrate(model, run, 4.75, s, {false, 1.0}, {}, false, nullptr,
+            [&](int dof, double t, const std::vector<double>& x) {
+              if (dof == kPlunge) peaks.emplace_back(t, x[kPlunge]);
+            });
+  REQUIRE(peaks.size() == 9);  // 1 Hz: extrema every 0.5 s up to 4.75 s, the start excluded
+  for (std::size_t k = 0; k < peaks.size(); ++k) {
+    CHECK(peaks[k].first == Approx((k + 1) * pi / wh).margin(1e-9));
+    CHECK(std::abs(peaks[k].second) == Approx(0.01).epsilon(1e-9));
+  }
+}

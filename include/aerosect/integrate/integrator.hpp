@@ -60,6 +60,11 @@ enum class ObserverAction { kContinue, kStop };
 // Called with each output sample: time (s) and state.
 using SampleObserver = std::function<ObserverAction(double t, const std::vector<double>& x)>;
 
+// Called at every true extremum of a moving DOF j (a zero of its velocity,
+// located on the dense output to 1e-13 s): time and state there. A witness
+// with no action: it never changes the run.
+using PeakObserver = std::function<void(int dof, double t, const std::vector<double>& x)>;
+
 enum class StopReason { kEndTime, kObserver, kCancelled };
 const char* to_string(StopReason r);
 
@@ -75,7 +80,8 @@ struct IntegrationResult {
 IntegrationResult integrate(const AeroelasticModel& model, RunState& run, double t_end,
                             const IntegratorSettings& settings, const OutputSchedule& schedule,
                             const SampleObserver& observer, bool emit_initial = true,
-                            const std::atomic<bool>* cancel = nullptr);
+                            const std::atomic<bool>* cancel = nullptr,
+                            const PeakObserver& peaks = {});
 
 // A default first step: 1/200 of the shortest uncoupled period (or of the
 // shortest aerodynamic lag time), s.

@@ -7,6 +7,7 @@
 #include <cmath>
 #include <fstream>
 #include <numbers>
+#include <stdexcept>
 
 #include <fmt/format.h>
 
@@ -49,8 +50,29 @@ void expect_error(const std::string& text, int line, const std::string& key,
     if (line >= 0) CHECK(e.where().line == line);
     const std::string msg = e.what();
     if (overrides.empty()) CHECK_THAT(msg, Contains("bad.toml"));
+    if (overrides.empty() && line > 0) CHECK_THAT(msg, Contains(fmt::format("bad.toml:{}:", line)));
+    if (!key.empty()) CHECK_THAT(msg, Contains("key '" + key + "'"));
     for (const auto& p : parts) CHECK_THAT(msg, Contains(p));
   }
+}
+
+// `text` with its first `from` replaced by `to` (the fixture must hold `from`).
+std::string edited(std::string text, const std::string& from, const std::string& to) {
+  const auto at = text.find(from);
+  REQUIRE(at != std::string::npos);
+  text.replace(at, from.size(), to);
+  return text;
+}
+
+// The InputError that parsing `text` throws, for checks beyond expect_error.
+InputError error_of(const std::string& text, const std::vector<std::string>& overrides = {}) {
+  try {
+    (void)parse_case(text, "bad.toml", overrides);
+  } catch (const InputError& e) {
+    return e;
+  }
+  FAIL("no error for:\n" << text);
+  throw std::logic_error("unreachable");
 }
 }  // namespace
 

@@ -45,7 +45,10 @@
 namespace aerosect {
 
 struct Hdf5WriterOptions {
-  std::size_t block_rows = 4096;  // rows per chunk and per write; >= 1
+  // Rows per chunk and per write, >= 1. Large enough that the chunk index
+  // HDF5 keeps in memory stays small for 1e7-sample runs (it grows with the
+  // number of chunks), small enough for a bounded buffer (~4 MiB at 15 columns).
+  std::size_t block_rows = 32768;
   int deflate_level = 4;          // 0..9; 0 writes without shuffle/deflate
 };
 

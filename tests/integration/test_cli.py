@@ -45,6 +45,32 @@ with tempfile.TemporaryDirectory() as tmp:
     check("simulate output exists", os.path.exists(out))
     check("simulate extremes", "pitch" in j["extremes"] and "hinge_moment" in j["extremes"])
 
+    # flutter: both methods side by side, gap bounds, margin, DF linearisation
+    fl = os.path.join(tmp, "flutter.h5")
+    r = run("flutter", DEMO, "-o", fl, "--json", "--speeds", "5:150:146", "--amplitude", "1.0")
+    check("flutter exit", r.returncode == 0, r.stderr)
+    j = json.loads(r.stdout)
+    names = [l["name"] for l in j["linearisations"]]
+    check("flutter linearisations", names == ["nominal", "gap-closed", "gap-open", "describing-function"], names)
+    nominal = j["linearisations"][0]
+    check("flutter both methods", [m["method"] for m in nominal["methods"]] == ["state-space", "p-k"])
+    check("flutter found", all(m["flutter"]["found"] for m in nominal["methods"]), nominal)
+    check("flutter wagner error", abs(nominal["wagner_approximation_error_percent"]) < 3, nominal)
+    df = j["linearisations"][3]["stiffness"]["flap"]
+    check("describing-function stiffness between gap bounds",
+          0 < df < j["linearisations"][1]["stiffness"]["flap"], df)
+    check("freeplay band", j["freeplay_band"]["gap_open_flutter_m_s"] < j["freeplay_band"]["gap_closed_flutter_m_s"])
+    check("margin", j["margin"] is not None and j["margin"]["required_eas_m_s"] == 1.15 * 72.0, j["margin"])
+    check("lco prediction", j["lco_prediction"] is not None and len(j["lco_prediction"]["points"]) > 10)
+    check("flutter file", os.path.exists(fl))
+    r = run("flutter", DEMO, "--speeds", "10:5:3")
+    check("bad speeds exit 2", r.returncode == 2 and "FROM:TO:N" in r.stderr, r.stderr)
+    r = run("flutter", DEMO, "--method", "k")
+    check("bad method exit 2", r.returncode == 2, r.returncode)
+    r = run("flutter", DEMO)
+    check("flutter text", r.returncode == 0 and "Freeplay" in r.stdout and "1.15 V_D" in r.stdout
+          and "safety-critical" in r.stdout, r.stdout[-500:])
+
     # bad input: exit code 2, message on stderr naming file, line and key
     bad = os.path.join(tmp, "bad.toml")
     with open(bad, "w") as f:

@@ -333,3 +333,526 @@ TEST_CASE("Spring laws in the case file", "[case]") {
   expect_error(base + "[springs.pitch]\nlaw = \"spline\"\n", 15, "springs.pitch.law",
                {"is not one of the choices", "\"freeplay\""});
 }
+
+// ===========================================================================
+// Every validation error of the case reader (src/io/case.cpp), table by table.
+// Common practice, no source: each check pins this project's own wording
+// (file, line, key, problem and allowed text); where a limit is physical its
+// source is named beside the check.
+//
+// Error-site index: every error site of src/io/case.cpp and the TEST_CASE
+// that triggers it. "[t]" = TEST_CASE "[t] errors"; "top-level" and "forms" =
+// "Top-level and form errors"; "--set" = "Command-line override (--set)
+// errors"; "read_file" = "read_file errors"; older TEST_CASEs are quoted.
+// Table helpers (type and shape errors):
+//   number: not a number (string)              "Wrong types"
+//   number: not a number (boolean)             [section]
+//   number: not finite (nan, inf)              "Impossible values"
+//   string: not a string                       "Wrong types", top-level
+//   choice: not a choice, with a hint          "Impossible values" (stepper), [initial]
+//   choice: not a choice, no hint              [aerodynamics], [initial], [simulation]
+//   boolean: not true/false                    "Wrong types"
+//   numbers: not an array                      [aerodynamics]
+//   numbers: element not a number / boolean    [aerodynamics]
+//   numbers: element not finite                [aerodynamics]
+//   strings: not an array                      "Wrong types"
+//   strings: element not a string              [simulation]
+//   one_of: two alternatives given             "Missing and conflicting keys", every table
+//   required_one_of: none given                "Missing and conflicting keys", every table
+//   required_number / missing: key absent      every table; "(no [t] table)" in [flow]
+//   sub: a value where a table belongs         top-level, [nondimensional], [springs.*]
+// check_unknown_keys:
+//   unknown key, with a hint                   "Unknown keys get a suggestion"
+//   unknown key, no hint                       top-level
+//   a table where a value belongs              [section], --set
+//   located at a --set override                --set
+// apply_override (--set):
+//   not key=value                              "Command-line overrides", --set
+//   unknown key (hint / no hint / title.x)     "Command-line overrides", --set
+//   a table name given as the key              --set
+//   path through a value ('flow' = 3)          --set
+// read_si, [section]: semichord missing/<=0; mass missing/<=0; elastic_axis
+//   missing/outside; CG none/two/cg outside; inertia none/two/<=0/impossible;
+//   plunge stiffness none/negative; pitch stiffness none/<=0; plunge and pitch
+//   damping ratio range                        [section], older tests
+// read_si, [flap]: hinge missing/outside/not aft; unbalance two/none; mass
+//   impossible; mass missing with cg_offset; inertia none/two/<=0; mass
+//   missing with inertia_cg; inertia below m d^2; stiffness none/negative;
+//   damping ratio range                        [flap], "Flap values"
+// read_si, [flow]: airspeed missing/negative/>=1000; density|altitude
+//   none/two; density impossible; altitude outside ISA          [flow]
+// read_nondimensional: mass_ratio missing/<=0; elastic_axis missing/outside;
+//   cg_offset missing; radius_of_gyration missing/<=0/impossible;
+//   frequency_ratio missing/negative; damping ratios range; reduced_speed
+//   missing/negative; flap key without hinge (4 keys); hinge outside/not aft;
+//   flap_radius_of_gyration missing/<=0; flap_frequency_ratio
+//   missing/negative; flap_damping_ratio range; reference semichord/
+//   pitch_frequency_hz/density               [nondimensional]
+// read_aerodynamics: model choice; wagner choice; coefficients/exponents with
+//   jones; coefficients/exponents missing; 1..8 entries; lengths differ; sum;
+//   exponents positive                         [aerodynamics], "Custom Wagner..."
+// read_initial_and_simulation, [initial]: plunge two; pitch_deg/flap_deg
+//   small angles; flap_deg/flap_rate_deg_s without flap; lag_states choice
+// read_initial_and_simulation, [simulation]: duration none/two/<=0;
+//   duration_semichords at zero airspeed; schedule two; every_step = false;
+//   sample value <=0; sample_interval_semichords at zero airspeed; too many
+//   samples (given interval / default interval); stepper choice; relative and
+//   absolute tolerance range; max_step/initial_step negative; hold type/unknown
+//                                              [initial], [simulation]
+// read_spring: law choice; key of another law (linear / other law); free play
+//   none/two/gap_below without gap_above/gap_above with a symmetric gap/
+//   negative lengths; bilinear inner_stiffness missing/negative, half_width
+//   missing/<=0; cubic coefficient missing; polynomial missing/1..8 entries;
+//   table displacements missing/forces missing/2..256 points/lengths differ/
+//   not increasing; [springs.flap] without a flap       [springs], "Spring laws..."
+// check_mass_matrix: SI flap (inertia / inertia_cg), nondimensional flap
+//                                              [flap], [nondimensional], "Flap values"
+// [envelope]: dive_speed_eas range            [envelope]
+// parse_case: not TOML; no section; both forms (first table section/flap/
+//   flow); SI without [section]; SI without [flow]      "Syntax errors...",
+//                                              "Missing and conflicting keys", forms
+// read_file: cannot open; a directory          "An unreadable path...", read_file
+// Not triggered by any test: read_file's "cannot read the case file" after a
+// successful open (a device I/O error, not producible in a unit test).
+// ===========================================================================
+
+TEST_CASE("Top-level and form errors", "[case][errors]") {
+  // Common practice, no source.
+  const std::string rest = kFlow + kSim;
+  // string(): title and description must be strings.
+  expect_error("title = 3\n" + kSection + rest, 1, "title", {"= 3", "must be a string", "a quoted string"});
+  expect_error("description = [\"a\"]\n" + kSection + rest, 1, "description", {"must be a string"});
+  // check_unknown_keys: an unknown key with nothing close gets no hint.
+  {
+    const InputError e = error_of("zzzzzz = 1\n" + kSection + rest);
+    CHECK(e.key() == "zzzzzz");
+    CHECK(e.where().line == 1);
+    CHECK(e.problem() == "unknown key");
+    CHECK_THAT(std::string(e.what()), Contains("bad.toml:1:"));
+    CHECK_THAT(std::string(e.what()), Contains("\"Case file reference\""));
+  }
+  // Table::sub: a value where a table belongs.
+  expect_error("section = 3\n" + rest, 1, "section", {"= 3", "must be a table", "a [section] table"});
+  expect_error("[[section]]\nmass = 1.0\n" + rest, 1, "section", {"must be a table", "a [section] table"});
+  expect_error("flap = 3\n" + kSection + rest, 1, "flap", {"must be a table", "a [flap] table"});
+  expect_error("flow = \"fast\"\n" + kSection + kSim, 1, "flow", {"must be a table", "a [flow] table"});
+  expect_error("nondimensional = 3\n" + kSim, 1, "nondimensional",
+               {"must be a table", "a [nondimensional] table"});
+  expect_error("aerodynamics = \"steady\"\n" + kSection + rest, 1, "aerodynamics",
+               {"must be a table", "a [aerodynamics] table"});
+  expect_error("initial = 1\n" + kSection + rest, 1, "initial", {"must be a table", "a [initial] table"});
+  expect_error("simulation = 1\n" + kSection + kFlow, 1, "simulation",
+               {"must be a table", "a [simulation] table"});
+  expect_error("envelope = 1\n" + kSection + rest, 1, "envelope", {"must be a table", "a [envelope] table"});
+  expect_error("springs = 1\n" + kSection + rest, 1, "springs", {"must be a table", "a [springs] table"});
+  // parse_case: both forms; the message names the first SI table found.
+  expect_error(kFlapTable + test::benchmark_2dof(), 6, "nondimensional",
+               {"conflicts with [flap] at line 1", "either [section] + [flow]"});
+  expect_error(kFlow + test::benchmark_2dof(), 4, "nondimensional", {"conflicts with [flow] at line 1"});
+  expect_error(test::benchmark_2dof() + kSection + rest, 1, "nondimensional",
+               {"conflicts with [section] at line 8"});
+  // parse_case: the SI form without [section] or without [flow].
+  expect_error(rest, 0, "section.semichord", {"missing (no [section] table)", "a [section] table (SI form)"});
+  expect_error(kFlapTable + rest, 0, "section.semichord", {"missing (no [section] table)"});
+  expect_error(kSection + kSim, 0, "flow.airspeed",
+               {"missing (no [flow] table)", "a [flow] table with airspeed and density or altitude"});
+}
+
+TEST_CASE("[section] errors", "[case][errors]") {
+  // Common practice, no source.
+  const std::string rest = kFlow + kSim;
+  expect_error(edited(kSection, "semichord = 0.5\n", "") + rest, 1, "section.semichord",
+               {"missing", "a positive number, m"});
+  expect_error(edited(kSection, "semichord = 0.5", "semichord = 0.0") + rest, 2, "section.semichord",
+               {"= 0.0", "must be positive", "a positive number, m"});
+  expect_error(edited(kSection, "mass = 10.0", "mass = true") + rest, 3, "section.mass",
+               {"must be a number", "a finite number"});
+  expect_error(edited(kSection, "elastic_axis = -0.2\n", "") + rest, 1, "section.elastic_axis",
+               {"missing", "-1 < x < 1"});
+  expect_error(edited(kSection, "cg_offset = 0.1\n", "") + rest, 1,
+               "section.cg | section.cg_offset | section.static_unbalance",
+               {"missing: give one of section.cg, section.cg_offset, section.static_unbalance",
+                "the CG position"});
+  expect_error(edited(kSection, "cg_offset = 0.1", "cg = -1.0") + rest, 5, "section.cg",
+               {"is outside the chord", "-1 < x < 1"});
+  expect_error(kSection + "static_unbalance = 0.5\n" + rest, 9, "section.static_unbalance",
+               {"conflicts with 'section.cg_offset': give only one of them",
+                "one of cg, cg_offset, static_unbalance"});
+  expect_error(edited(kSection, "radius_of_gyration = 0.5\n", "") + rest, 1,
+               "section.pitch_inertia | section.pitch_inertia_cg | section.radius_of_gyration",
+               {"missing: give one of", "the pitch inertia"});
+  expect_error(kSection + "pitch_inertia = 1.0\n" + rest, 6, "section.radius_of_gyration",
+               {"conflicts with 'section.pitch_inertia'"});
+  expect_error(edited(kSection, "radius_of_gyration = 0.5", "pitch_inertia_cg = 0.0") + rest, 6,
+               "section.pitch_inertia_cg", {"must be positive", "a positive number"});
+  expect_error(edited(kSection, "plunge_frequency_hz = 2.0\n", "") + rest, 1,
+               "section.plunge_stiffness | section.plunge_frequency_hz",
+               {"missing: give one of", "plunge_frequency_hz (uncoupled, Hz)"});
+  expect_error(edited(kSection, "plunge_frequency_hz = 2.0", "plunge_stiffness = -1.0") + rest, 7,
+               "section.plunge_stiffness", {"must not be negative", "a number >= 0"});
+  expect_error(edited(kSection, "pitch_frequency_hz = 5.0\n", "") + rest, 1,
+               "section.pitch_stiffness | section.pitch_frequency_hz",
+               {"missing: give one of", "pitch_frequency_hz (uncoupled, Hz)"});
+  expect_error(edited(kSection, "pitch_frequency_hz = 5.0", "pitch_frequency_hz = 0.0") + rest, 8,
+               "section.pitch_frequency_hz", {"must be positive"});
+  expect_error(kSection + "plunge_damping_ratio = -0.1\n" + rest, 9, "section.plunge_damping_ratio",
+               {"outside the allowed range", "0 <= zeta < 1"});
+  // check_unknown_keys: a key given as a table; no self-suggestion.
+  expect_error(edited(kSection, "mass = 10.0\n", "") + rest + "[section.mass]\nvalue = 10.0\n", 13,
+               "section.mass", {"must be a value, not a table", "\"Case file reference\""});
+  {
+    const InputError e = error_of(kSection + rest + "[section.cg]\nvalue = 0.0\n");
+    CHECK(e.key() == "section.cg");
+    CHECK(e.where().line == 14);
+    CHECK(e.problem() == "must be a value, not a table");
+    CHECK_THAT(std::string(e.what()), Contains("bad.toml:14:"));
+    CHECK_THAT(std::string(e.what()), Contains("key 'section.cg'"));
+  }
+}
+
+TEST_CASE("[flap] errors", "[case][errors]") {
+  // Common practice, no source. Lines: [flap] 9, hinge 10, static_unbalance 11,
+  // inertia 12, frequency_hz 13, then 14.
+  const std::string rest = kFlow + kSim;
+  expect_error(kSection + edited(kFlapTable, "hinge = 0.6\n", "") + rest, 9, "flap.hinge",
+               {"missing", "-1 < x < 1"});
+  expect_error(kSection + kFlapTable + "cg_offset = 0.1\n" + rest, 14, "flap.cg_offset",
+               {"conflicts with 'flap.static_unbalance'", "one of static_unbalance, cg_offset"});
+  expect_error(kSection + edited(kFlapTable, "static_unbalance = 0.02\n", "") + rest, 9,
+               "flap.static_unbalance", {"missing", "S_beta about the hinge", "mass with cg_offset"});
+  expect_error(kSection + kFlapTable + "mass = 0.0\n" + rest, 14, "flap.mass",
+               {"is impossible", "0 < flap mass < section mass = 10 kg/m"});
+  expect_error(kSection + edited(kFlapTable, "inertia = 0.01\n", "") + rest, 9,
+               "flap.inertia | flap.inertia_cg",
+               {"missing: give one of flap.inertia, flap.inertia_cg", "about the flap CG, with mass"});
+  expect_error(kSection + kFlapTable + "inertia_cg = 0.01\n" + rest, 14, "flap.inertia_cg",
+               {"conflicts with 'flap.inertia'"});
+  // inertia_cg without mass.
+  expect_error(kSection + edited(kFlapTable, "inertia = 0.01", "inertia_cg = 0.01") + rest, 9, "flap.mass",
+               {"missing", "needed with flap.inertia_cg"});
+  expect_error(kSection + edited(kFlapTable, "inertia = 0.01", "inertia_cg = -0.01") + rest, 12,
+               "flap.inertia_cg", {"must be positive", "a positive number, kg m^2/m"});
+  expect_error(kSection + edited(kFlapTable, "frequency_hz = 10.0\n", "") + rest, 9,
+               "flap.stiffness | flap.frequency_hz", {"missing: give one of", "hinge spring"});
+  expect_error(kSection + edited(kFlapTable, "frequency_hz = 10.0", "stiffness = -5.0") + rest, 13,
+               "flap.stiffness", {"must not be negative", "a number >= 0"});
+  expect_error(kSection + kFlapTable + "damping_ratio = 1.0\n" + rest, 14, "flap.damping_ratio",
+               {"outside the allowed range", "not percent"});
+  // A physical mass matrix is positive definite (kinetic energy > 0; common
+  // practice, no source). Here I_alpha I_beta < coupling^2:
+  // 0.625 * 0.201 < (0.201 + 0.5 * 0.8 * 1.0)^2.
+  expect_error(kSection + "[flap]\nhinge = 0.6\nmass = 5.0\nstatic_unbalance = 1.0\ninertia_cg = 0.001\n"
+                          "frequency_hz = 10.0\n" + rest,
+               13, "flap.inertia_cg", {"indefinite", "positive definite"});
+}
+
+TEST_CASE("[flow] errors", "[case][errors]") {
+  // Common practice, no source; the altitude range is that of this project's
+  // ISA model (aerosect/model/atmosphere.hpp).
+  expect_error(kSection + "[flow]\ndensity = 1.225\n" + kSim, 9, "flow.airspeed",
+               {"missing", "true airspeed, m/s, >= 0"});
+  expect_error(kSection + "[flow]\ndensity = 1.225\nairspeed = 1000.0\n" + kSim, 11, "flow.airspeed",
+               {"beyond any subsonic flight", "below 1000 m/s"});
+  expect_error(kSection + "[flow]\nairspeed = 40.0\n" + kSim, 9, "flow.density | flow.altitude",
+               {"missing: give one of flow.density, flow.altitude", "0 for vacuum"});
+  expect_error(kSection + "[flow]\naltitude = -3000.0\nairspeed = 40.0\n" + kSim, 10, "flow.altitude",
+               {"outside the standard atmosphere", "-2000 m <= altitude"});
+}
+
+TEST_CASE("[nondimensional] errors", "[case][errors]") {
+  // Common practice, no source. Lines: header 1, mass_ratio 2, elastic_axis 3,
+  // cg_offset 4, radius_of_gyration 5, frequency_ratio 6, reduced_speed 7,
+  // `extra` from 8.
+  auto nd = [](const std::string& extra) { return test::benchmark_2dof(extra) + kSim; };
+  expect_error(edited(nd(""), "mass_ratio = 100.0\n", ""), 1, "nondimensional.mass_ratio",
+               {"missing", "mu = m / (pi rho b^2)"});
+  expect_error(edited(nd(""), "mass_ratio = 100.0", "mass_ratio = 0.0"), 2, "nondimensional.mass_ratio",
+               {"must be positive", "a positive number, mu"});
+  expect_error(edited(nd(""), "elastic_axis = -0.5\n", ""), 1, "nondimensional.elastic_axis",
+               {"missing", "-1 < x < 1"});
+  expect_error(edited(nd(""), "elastic_axis = -0.5", "elastic_axis = -1.0"), 3,
+               "nondimensional.elastic_axis", {"is outside the chord"});
+  expect_error(edited(nd(""), "cg_offset = 0.25\n", ""), 1, "nondimensional.cg_offset",
+               {"missing", "x_alpha, semichords aft of the elastic axis"});
+  expect_error(edited(nd(""), "radius_of_gyration = 0.5\n", ""), 1, "nondimensional.radius_of_gyration",
+               {"missing", "r_alpha, semichords"});
+  expect_error(edited(nd(""), "radius_of_gyration = 0.5", "radius_of_gyration = 0.0"), 5,
+               "nondimensional.radius_of_gyration", {"must be positive"});
+  expect_error(edited(nd(""), "frequency_ratio = 0.2\n", ""), 1, "nondimensional.frequency_ratio",
+               {"missing", "omega_h / omega_alpha >= 0"});
+  expect_error(edited(nd(""), "frequency_ratio = 0.2", "frequency_ratio = -0.2"), 6,
+               "nondimensional.frequency_ratio", {"must not be negative", "omega_h / omega_alpha >= 0"});
+  expect_error(nd("plunge_damping_ratio = 1.0\n"), 8, "nondimensional.plunge_damping_ratio",
+               {"outside the allowed range"});
+  expect_error(nd("pitch_damping_ratio = -0.5\n"), 8, "nondimensional.pitch_damping_ratio",
+               {"outside the allowed range"});
+  expect_error(edited(nd(""), "reduced_speed = 4.000000\n", ""), 1, "nondimensional.reduced_speed",
+               {"missing", "U* = U / (b omega_alpha) >= 0"});
+  expect_error(test::benchmark_2dof("", -4.0) + kSim, 7, "nondimensional.reduced_speed",
+               {"must not be negative"});
+  // The flap keys without a hinge.
+  for (const std::string k : {"flap_cg_offset", "flap_radius_of_gyration", "flap_frequency_ratio",
+                              "flap_damping_ratio"}) {
+    INFO(k);
+    expect_error(nd(k + " = 0.5\n"), 8, "nondimensional." + k,
+                 {"needs nondimensional.hinge (a flap)", "flap keys only with a hinge position"});
+  }
+  expect_error(nd("hinge = 1.0\nflap_radius_of_gyration = 0.1\nflap_frequency_ratio = 1.5\n"), 8,
+               "nondimensional.hinge", {"is outside the chord"});
+  expect_error(nd("hinge = -0.6\nflap_radius_of_gyration = 0.1\nflap_frequency_ratio = 1.5\n"), 8,
+               "nondimensional.hinge", {"must lie aft of the elastic axis", "elastic_axis = -0.5 < hinge < 1"});
+  expect_error(nd("hinge = 0.6\nflap_frequency_ratio = 1.5\n"), 1, "nondimensional.flap_radius_of_gyration",
+               {"missing", "r_beta = sqrt(I_beta / (m b^2)), about the hinge"});
+  expect_error(nd("hinge = 0.6\nflap_radius_of_gyration = 0.0\nflap_frequency_ratio = 1.5\n"), 9,
+               "nondimensional.flap_radius_of_gyration", {"must be positive"});
+  expect_error(nd("hinge = 0.6\nflap_radius_of_gyration = 0.1\n"), 1, "nondimensional.flap_frequency_ratio",
+               {"missing", "omega_beta / omega_alpha >= 0"});
+  expect_error(nd("hinge = 0.6\nflap_radius_of_gyration = 0.1\nflap_frequency_ratio = -1.5\n"), 10,
+               "nondimensional.flap_frequency_ratio", {"must not be negative"});
+  expect_error(nd("hinge = 0.6\nflap_radius_of_gyration = 0.1\nflap_frequency_ratio = 1.5\n"
+                  "flap_damping_ratio = 1.0\n"),
+               11, "nondimensional.flap_damping_ratio", {"outside the allowed range"});
+  // Positive-definite mass matrix (common practice, no source): the plunge-flap
+  // minor is mu^2 (r_beta^2 - x_beta^2) < 0 for x_beta = 0.5, r_beta = 0.1.
+  expect_error(nd("hinge = 0.6\nflap_cg_offset = 0.5\nflap_radius_of_gyration = 0.1\n"
+                  "flap_frequency_ratio = 1.5\n"),
+               10, "nondimensional.flap_radius_of_gyration", {"indefinite", "positive definite"});
+  // [nondimensional.reference]: header at line 8, the value at line 9.
+  expect_error(nd("[nondimensional.reference]\nsemichord = 0.0\n"), 9, "nondimensional.reference.semichord",
+               {"must be positive", "a positive number, m"});
+  expect_error(nd("[nondimensional.reference]\npitch_frequency_hz = -1.0\n"), 9,
+               "nondimensional.reference.pitch_frequency_hz", {"must be positive", "a positive number, Hz"});
+  expect_error(nd("[nondimensional.reference]\ndensity = 0.0\n"), 9, "nondimensional.reference.density",
+               {"is impossible", "0 < density < 100 kg/m^3"});
+  expect_error(nd("[nondimensional.reference]\ndensity = 100.0\n"), 9, "nondimensional.reference.density",
+               {"is impossible"});
+  expect_error(nd("reference = 3\n"), 8, "nondimensional.reference",
+               {"must be a table", "a [nondimensional.reference] table"});
+}
+
+TEST_CASE("[aerodynamics] errors", "[case][errors]") {
+  // Common practice, no source. [aerodynamics] at line 14, keys from 15.
+  const std::string base = kSection + kFlow + kSim + "[aerodynamics]\n";
+  expect_error(base + "model = 1\n", 15, "aerodynamics.model", {"must be a string", "a quoted string"});
+  expect_error(base + "wagner = \"jone\"\n", 15, "aerodynamics.wagner",
+               {"did you mean \"jones\"", "\"jones\", \"custom\""});
+  {
+    const InputError e = error_of(base + "wagner = \"exact\"\n");
+    CHECK(e.key() == "aerodynamics.wagner");
+    CHECK(e.where().line == 15);
+    CHECK(e.problem() == "is not one of the choices");  // nothing close: no hint
+    CHECK(e.allowed() == "\"jones\", \"custom\"");
+  }
+  expect_error(base + "wagner_exponents = [0.05]\n", 15, "aerodynamics.wagner_exponents",
+               {"only used with wagner = \"custom\""});
+  expect_error(base + "wagner = \"custom\"\nwagner_coefficients = [0.2]\n", 14, "aerodynamics.wagner_exponents",
+               {"missing", "1 to 8 poles"});
+  expect_error(base + "wagner = \"custom\"\nwagner_coefficients = []\nwagner_exponents = []\n", 16,
+               "aerodynamics.wagner_coefficients", {"must have 1 to 8 entries"});
+  expect_error(base + "wagner = \"custom\"\nwagner_coefficients = [0.05, 0.05, 0.05, 0.05, 0.05, 0.05, 0.05, "
+                      "0.05, 0.05]\nwagner_exponents = [1, 1, 1, 1, 1, 1, 1, 1, 1]\n",
+               16, "aerodynamics.wagner_coefficients", {"must have 1 to 8 entries"});
+  // numbers(): not an array, an element not a number, an element not finite.
+  expect_error(base + "wagner_coefficients = 0.2\n", 15, "aerodynamics.wagner_coefficients",
+               {"must be an array of numbers", "an array such as [0.165, 0.335]"});
+  expect_error(base + "wagner_coefficients = [0.2, \"x\"]\n", 15, "aerodynamics.wagner_coefficients",
+               {"must be an array of numbers", "allowed: finite numbers"});
+  expect_error(base + "wagner_coefficients = [true]\n", 15, "aerodynamics.wagner_coefficients",
+               {"must be an array of numbers", "allowed: finite numbers"});
+  expect_error(base + "wagner_coefficients = [0.2, nan]\n", 15, "aerodynamics.wagner_coefficients",
+               {"must hold finite numbers", "allowed: finite numbers"});
+}
+
+TEST_CASE("[initial] errors", "[case][errors]") {
+  // Common practice, no source. [initial] at line 14, keys from 15.
+  const std::string base = kSection + kFlow + kSim + "[initial]\n";
+  expect_error(base + "plunge = 0.01\nplunge_semichords = 0.02\n", 16, "initial.plunge_semichords",
+               {"conflicts with 'initial.plunge'", "one of plunge, plunge_semichords"});
+  expect_error(base + "plunge = \"up\"\n", 15, "initial.plunge", {"must be a number"});
+  expect_error(base + "flap_rate_deg_s = 1.0\n", 15, "initial.flap_rate_deg_s",
+               {"needs a flap", "flap keys only for a 3-DOF case"});
+  // 3-DOF: [flap] 9..13, [flow] 14..16, [simulation] 17..18, [initial] 19.
+  expect_error(kSection + kFlapTable + kFlow + kSim + "[initial]\nflap_deg = 100.0\n", 20, "initial.flap_deg",
+               {"beyond the theory's small angles", "|flap| <= 90 degrees"});
+  {
+    const InputError e = error_of(base + "lag_states = \"moving\"\n");
+    CHECK(e.key() == "initial.lag_states");
+    CHECK(e.where().line == 15);
+    CHECK(e.problem() == "is not one of the choices");
+    CHECK(e.allowed() == "\"rest\", \"steady\"");
+    CHECK_THAT(std::string(e.what()), Contains("bad.toml:15:"));
+  }
+  expect_error(base + "lag_states = \"stedy\"\n", 15, "initial.lag_states", {"did you mean \"steady\""});
+  expect_error(base + "lag_states = true\n", 15, "initial.lag_states", {"must be a string"});
+}
+
+TEST_CASE("[simulation] errors", "[case][errors]") {
+  // Common practice, no source. [simulation] at line 12, keys from 13.
+  const std::string base = kSection + kFlow + "[simulation]\n";
+  expect_error(base + "duration = 1.0\nduration_semichords = 100.0\n", 14, "simulation.duration_semichords",
+               {"conflicts with 'simulation.duration'"});
+  expect_error(base + "duration_semichords = -5.0\n", 13, "simulation.duration_semichords",
+               {"must be positive", "a positive duration"});
+  expect_error(base + "duration = 1.0\nsample_rate = 100.0\nsample_interval = 0.01\n", 15,
+               "simulation.sample_interval",
+               {"conflicts with 'simulation.sample_rate'",
+                "one of sample_rate, sample_interval, sample_interval_semichords, every_step"});
+  expect_error(base + "duration = 1.0\nevery_step = false\n", 14, "simulation.every_step",
+               {"false is the default", "every_step = true, or one of sample_rate / sample_interval"});
+  CHECK(test::case_from(base + "duration = 1.0\nevery_step = true\n").simulation.output.every_step);
+  expect_error(base + "duration = 1.0\nsample_interval = 0.0\n", 14, "simulation.sample_interval",
+               {"must be positive", "a positive number"});
+  expect_error(base + "duration = 1.0\nsample_rate = -10.0\n", 14, "simulation.sample_rate",
+               {"must be positive"});
+  expect_error(base + "duration = 1.0\nsample_interval_semichords = 0.0\n", 14,
+               "simulation.sample_interval_semichords", {"must be positive"});
+  expect_error(kSection + "[flow]\ndensity = 1.2\nairspeed = 0.0\n[simulation]\nduration = 1.0\n"
+                          "sample_interval_semichords = 0.1\n",
+               14, "simulation.sample_interval_semichords", {"needs a positive airspeed", "sample_interval (s)"});
+  // Default schedule: 50 samples per 0.2 s shortest period over 1e12 s.
+  expect_error(base + "duration = 1e12\n", 13, "simulation.duration", {"asks for", "at most 2e9 samples"});
+  expect_error(base + "duration = 1.0\nstepper = \"rk4\"\n", 14, "simulation.stepper",
+               {"is not one of the choices", "\"dopri5\", \"bulirsch-stoer\""});
+  expect_error(base + "duration = 1.0\nabsolute_tolerance = 0.0\n", 14, "simulation.absolute_tolerance",
+               {"outside the useful range", "0 < absolute_tolerance <= 1"});
+  expect_error(base + "duration = 1.0\nmax_step = -1.0\n", 14, "simulation.max_step",
+               {"must not be negative", "seconds, 0 for no limit"});
+  expect_error(base + "duration = 1.0\ninitial_step = -0.001\n", 14, "simulation.initial_step",
+               {"must not be negative", "seconds, 0 for automatic"});
+  expect_error(base + "duration = 1.0\nhold = [1]\n", 14, "simulation.hold",
+               {"must be an array of strings", "allowed: strings"});
+  // 3-DOF: [simulation] 17..18.
+  expect_error(kSection + kFlapTable + kFlow + kSim + "hold = [\"yaw\"]\n", 19, "simulation.hold",
+               {"unknown degree of freedom \"yaw\"", "\"plunge\", \"pitch\", \"flap\""});
+}
+
+TEST_CASE("[springs] errors", "[case][errors]") {
+  // Common practice, no source. [springs.*] at line 14, keys from 15.
+  const std::string base = kSection + kFlow + kSim;
+  const std::string pitch = base + "[springs.pitch]\n";
+  const std::string plunge = base + "[springs.plunge]\n";
+  // A key of another law.
+  expect_error(pitch + "law = \"linear\"\ninner_stiffness = 1.0\n", 16, "springs.pitch.inner_stiffness",
+               {"does not belong to law = \"linear\"", "no other keys for a linear spring"});
+  expect_error(pitch + "cubic_coefficient = 1.0\n", 15, "springs.pitch.cubic_coefficient",
+               {"does not belong to law = \"linear\""});
+  expect_error(pitch + "law = \"freeplay\"\nhalf_gap_deg = 0.5\nhalf_width_deg = 1.0\n", 17,
+               "springs.pitch.half_width_deg",
+               {"does not belong to law = \"freeplay\"",
+                "keys of this law: half_gap_deg, total_gap_deg, gap_below_deg, gap_above_deg, offset_deg"});
+  expect_error(pitch + "law = 3\n", 15, "springs.pitch.law", {"must be a string"});
+  // Free play.
+  expect_error(pitch + "law = \"freeplay\"\ngap_below_deg = 0.5\n", 14, "springs.pitch.gap_above_deg",
+               {"missing", "gap_above_deg with gap_below_deg"});
+  expect_error(pitch + "law = \"freeplay\"\nhalf_gap_deg = 0.5\ngap_above_deg = 0.5\n", 17,
+               "springs.pitch.gap_above_deg",
+               {"conflicts with 'springs.pitch.half_gap_deg'",
+                "gap_below_deg with gap_above_deg, or one symmetric gap"});
+  expect_error(pitch + "law = \"freeplay\"\ngap_above_deg = 0.5\n", 14,
+               "springs.pitch.half_gap_deg | springs.pitch.total_gap_deg | springs.pitch.gap_below_deg",
+               {"missing: give one of", "gap_below_deg with gap_above_deg (asymmetric"});
+  expect_error(pitch + "law = \"freeplay\"\ngap_below_deg = -0.1\ngap_above_deg = 0.2\n", 16,
+               "springs.pitch.gap_below_deg", {"must not be negative", "degrees, >= 0"});
+  expect_error(pitch + "law = \"freeplay\"\ngap_below_deg = 0.1\ngap_above_deg = -0.2\n", 17,
+               "springs.pitch.gap_above_deg", {"must not be negative", "degrees, >= 0"});
+  expect_error(plunge + "law = \"freeplay\"\ntotal_gap = -0.01\n", 16, "springs.plunge.total_gap",
+               {"must not be negative", "m, >= 0"});
+  // Bilinear.
+  expect_error(pitch + "law = \"bilinear\"\ninner_stiffness = -1.0\nhalf_width_deg = 1.0\n", 16,
+               "springs.pitch.inner_stiffness", {"must not be negative", "N m/rad per m span, >= 0"});
+  expect_error(plunge + "law = \"bilinear\"\ninner_stiffness = -1.0\nhalf_width = 0.01\n", 16,
+               "springs.plunge.inner_stiffness", {"must not be negative", "N/m per m span, >= 0"});
+  expect_error(pitch + "law = \"bilinear\"\ninner_stiffness = 0.0\n", 14, "springs.pitch.half_width_deg",
+               {"missing", "distance from offset to each breakpoint"});
+  expect_error(pitch + "law = \"bilinear\"\ninner_stiffness = 0.0\nhalf_width_deg = 0.0\n", 17,
+               "springs.pitch.half_width_deg", {"must be positive", "degrees, > 0"});
+  expect_error(plunge + "law = \"bilinear\"\ninner_stiffness = 0.0\nhalf_width = -0.01\n", 17,
+               "springs.plunge.half_width", {"must be positive", "m, > 0"});
+  // Cubic and polynomial.
+  expect_error(pitch + "law = \"cubic\"\n", 14, "springs.pitch.cubic_coefficient",
+               {"missing", "beta in f = k (x + beta x^3), 1/rad^2"});
+  expect_error(plunge + "law = \"cubic\"\n", 14, "springs.plunge.cubic_coefficient",
+               {"missing", "beta, 1/m^2"});
+  expect_error(pitch + "law = \"polynomial\"\n", 14, "springs.pitch.coefficients",
+               {"missing", "[c2, c3, ...] of f = k (x + c2 x^2 + c3 x^3 + ...), x in rad"});
+  expect_error(plunge + "law = \"polynomial\"\n", 14, "springs.plunge.coefficients",
+               {"missing", "x in m"});
+  expect_error(pitch + "law = \"polynomial\"\ncoefficients = [1, 1, 1, 1, 1, 1, 1, 1, 1]\n", 16,
+               "springs.pitch.coefficients", {"must have 1 to 8 entries"});
+  // Table.
+  expect_error(pitch + "law = \"table\"\nforces = [0.0, 1.0]\n", 14, "springs.pitch.displacements_deg",
+               {"missing", "displacements_deg (degrees, strictly increasing)"});
+  expect_error(pitch + "law = \"table\"\ndisplacements_deg = [0.0, 1.0]\n", 14, "springs.pitch.forces",
+               {"missing", "forces (N m per m span) of the same length, 2 to 256 points"});
+  expect_error(plunge + "law = \"table\"\ndisplacements = [0.0, 0.1]\n", 14, "springs.plunge.forces",
+               {"missing", "displacements (m, strictly increasing) and forces (N per m span)"});
+  expect_error(pitch + "law = \"table\"\ndisplacements_deg = [0.0]\nforces = [0.0]\n", 16,
+               "springs.pitch.displacements_deg", {"must have 2 to 256 points"});
+  // [springs.flap] without a flap and without a law: located at its header.
+  expect_error(base + "[springs.flap]\ncubic_coefficient = 1.0\n", 14, "springs.flap.law",
+               {"needs a flap", "[springs.flap] only for a 3-DOF case"});
+  // A value where a [springs.<dof>] table belongs.
+  expect_error(base + "[springs]\npitch = 3\n", 15, "springs.pitch", {"must be a table", "a [springs.pitch] table"});
+}
+
+TEST_CASE("[envelope] errors", "[case][errors]") {
+  // Common practice, no source. [envelope] at line 14.
+  const std::string base = kSection + kFlow + kSim + "[envelope]\n";
+  CHECK(test::case_from(base + "dive_speed_eas = 150.0\n").dive_speed_eas == 150.0);
+  expect_error(base + "dive_speed_eas = 0.0\n", 15, "envelope.dive_speed_eas",
+               {"is impossible", "design dive speed V_D, m/s equivalent airspeed, 0 < V_D < 1000"});
+  expect_error(base + "dive_speed_eas = 1000.0\n", 15, "envelope.dive_speed_eas", {"is impossible"});
+  expect_error(base + "dive_speed_eas = \"fast\"\n", 15, "envelope.dive_speed_eas", {"must be a number"});
+}
+
+TEST_CASE("Command-line override (--set) errors", "[case][errors]") {
+  // Common practice, no source. Errors from an override are located at it
+  // (line 0, "--set KEY=VALUE" in place of the file).
+  const std::string ok = kSection + kFlow + kSim;
+  expect_error(ok, 0, "", {"--set =3", "is not of the form key=value", "--set section.mass=12.5"}, {"=3"});
+  {
+    const InputError e = error_of(ok, {"zzzz=1"});
+    CHECK(e.key() == "zzzz");
+    CHECK(e.problem() == "unknown key");  // nothing close: no hint
+    CHECK(e.where().file == "--set zzzz=1");
+    CHECK(e.where().line == 0);
+  }
+  // A path through a value: `title` is no table, so `title.x` is an unknown
+  // key (and no far-fetched hint).
+  {
+    const InputError e = error_of(ok, {"title.x=1"});
+    CHECK(e.key() == "title.x");
+    CHECK(e.problem() == "unknown key");
+    CHECK_THAT(std::string(e.what()), Contains("--set title.x=1"));
+  }
+  // A known key whose table is a value in the file.
+  expect_error("flow = 3\n" + kSection + kSim, 0, "flow.airspeed",
+               {"--set flow.airspeed=40", "'flow' is not a table in the case file", "a [flow] table"},
+               {"flow.airspeed=40"});
+  // A table name given as the key.
+  expect_error(ok, 0, "section", {"--set section=3", "is a table, not a key", "--set section.semichord=..."},
+               {"section=3"});
+  // check_unknown_keys located at the override: a table given for a value.
+  {
+    const InputError e = error_of(ok, {"flow.airspeed={ x = 1 }"});
+    CHECK(e.key() == "flow.airspeed");
+    CHECK(e.problem() == "must be a value, not a table");
+    CHECK(e.where().file == "--set flow.airspeed={ x = 1 }");
+  }
+  // A bare word is a string: a type error located at the override.
+  expect_error(ok, 0, "section.mass", {"--set section.mass=heavy", "must be a number", "'heavy'"},
+               {"section.mass=heavy"});
+}
+
+TEST_CASE("read_file errors", "[case][errors]") {
+  // Common practice, no source: a directory is not a case file.
+  const std::string dir = std::string(AEROSECT_SOURCE_DIR) + "/cases";
+  try {
+    (void)load_case(dir);
+    FAIL("no error");
+  } catch (const InputError& e) {
+    CHECK(e.where().file == dir);
+    CHECK_THAT(std::string(e.what()), Contains(dir + ": cannot read the case file (it is a directory)"));
+    CHECK(e.allowed() == "a readable TOML file");
+  }
+}

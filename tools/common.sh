@@ -32,8 +32,13 @@ ensure_packages() {
   DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y --no-install-recommends "${missing[@]}"
 }
 
+# build_aerosect [TARGET...]: packages, configure (Release, with the tests
+# target defined) and build the given targets (all when none is given).
 build_aerosect() {
   ensure_packages "${AEROSECT_PACKAGES[@]}"
-  cmake -S "$ROOT" -B "$BUILD_DIR" -G Ninja -DCMAKE_BUILD_TYPE=Release "$@" >/dev/null
-  cmake --build "$BUILD_DIR" -j "$JOBS"
+  cmake -S "$ROOT" -B "$BUILD_DIR" -G Ninja -DCMAKE_BUILD_TYPE=Release \
+    -DAEROSECT_BUILD_TESTS=ON >/dev/null
+  local targets=()
+  for t in "$@"; do targets+=(--target "$t"); done
+  cmake --build "$BUILD_DIR" -j "$JOBS" "${targets[@]}"
 }

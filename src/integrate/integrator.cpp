@@ -84,17 +84,22 @@ std::vector<Boundary> watched_boundaries(const AeroelasticModel& model,
 }
 
 // Earliest crossing time of any watched boundary inside (ta, tb] on the
-// stepper's dense output, or nullopt. Grazing (the trajectory dips out of
-// the region and back within the step) is caught by checking h at the
-// extrema of x_j inside the step (zeros of its velocity), not only at the
-// step ends. The interpolant is evaluated once per probe time for all
-// boundaries.
+// stepper's dense output, or nullopt. For each boundary the switching
+// function h and the velocity of its DOF are compared at the ends of each
+// sub-interval: a sign change of h brackets a crossing; a sign change of the
+// velocity with h <= 0 at both ends brackets an extremum of x_j, and h there
+// decides whether the trajectory dipped out of the region and back within
+// the interval (grazing), which end values alone would miss. Steps are
+// split into sub-intervals only when longer than 1/8 of the shortest
+// period (a step that long could hold two extrema); otherwise the step ends
+// are enough and no interpolant is evaluated unless something is bracketed.
 template <class Stepper>
 std::optional<std::pair<double, const Boundary*>> first_crossing(
     const Stepper& stepper, const StateLayout& L, const std::vector<Boundary>& boundaries,
-    double ta, double tb, const State& xa, State& work) {
+    double ta, double tb, const State& xa, const State& xb, double long_step, State& work,
+    State& probe) {
   if (boundaries.empty()) return std::nullopt;
-  constexpr int kProbes = 4;  // interior points bracketing velocity zeros and crossings
+  const int pieces = (tb - ta) > long_step ? 4 : 1;
   const double time_tol = 1e-12 * std::max(1.0, std::abs(tb));
   auto h_of = [&](const Boundary& b, const State& x) {
     return b.side * (x[L.displacement + b.spring] - b.position);
@@ -119,21 +124,36 @@ std::optional<std::pair<double, const Boundary*>> first_crossing(
     h_prev[i] = h_of(boundaries[i], xa);
     v_prev[i] = xa[L.velocity + boundaries[i].spring];
   }
-  State probe(xa.size());
   double t_prev = ta;
-  for (int p = 1; p <= kProbes; ++p) {
-    const double t = p == kProbes ? tb : ta + (tb - ta) * p / kProbes;
-    stepper.calc_state(t, probe);
+  for (int p = 1; p <= pieces; ++p) {
+    const double t = p == pieces ? tb : ta + (tb - ta) * p / pieces;
+    const State* xt = &xb;
+    if (p != pieces) {
+      stepper.calc_state(t, probe);
+      xt = &probe;
+    }
     std::optional<std::pair<double, const Boundary*>> best;
     for (std::size_t i = 0; i < nb; ++i) {
       const Boundary& b = boundaries[i];
-      const double h = h_of(b, probe), v = probe[L.velocity + b.spring];
+      const double h = h_of(b, *xt), v = (*xt)[L.velocity + b.spring];
       double crossing = -1;
+      const bool extremum = v_prev[i] * v < 0;
       if (h_prev[i] <= 0 && h > 0) {
         auto f = [&](double s) { return h_at(b, s); };
-        crossing = refine(f, t_prev, t, h_prev[i], h);
-      } else if (h <= 0 && v_prev[i] * v < 0) {
-        // An extremum of x_j inside (t_prev, t): does it poke out of the region?
+        double hi = t, h_hi = h;
+        if (extremum) {
+          // Out, back in and out again? The first crossing precedes the extremum
+          // when the extremum is outside.
+          auto fv = [&](double s) { return v_at(b, s); };
+          const double te = refine(fv, t_prev, t, v_prev[i], v);
+          const double he = h_at(b, te);
+          if (he > 0) {
+            hi = te;
+            h_hi = he;
+          }
+        }
+        crossing = refine(f, t_prev, hi, h_prev[i], h_hi);
+      } else if (h <= 0 && extremum) {
         auto fv = [&](double s) { return v_at(b, s); };
         const double te = refine(fv, t_prev, t, v_prev[i], v);
         const double he = h_at(b, te);
@@ -146,7 +166,7 @@ std::optional<std::pair<double, const Boundary*>> first_crossing(
       h_prev[i] = h;
       v_prev[i] = v;
     }
-    if (best) return best;  // probes are in time order: the first interval with a crossing wins
+    if (best) return best;  // sub-intervals are in time order: the first with a crossing wins
     t_prev = t;
   }
   return std::nullopt;
@@ -212,7 +232,10 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
   }
 
   stepper.initialize(run.x, t0, std::min(dt0, t_end - t0));
-  State sample(run.x.size()), work(run.x.size());
+  State sample(run.x.size()), work(run.x.size()), probe(run.x.size());
+  // A step longer than this (1/8 of the shortest uncoupled period) is split
+  // when looking for switching points.
+  const double long_step = 200.0 * default_initial_step(model) / 8.0;
   std::int64_t k = 1;  // next fixed sample index
   const double dt_out = schedule.interval;
   // Tolerance for a sample time to count as reached (round-off in t0 + k dt).
@@ -251,8 +274,14 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     }
 
     // A switching point inside the step ends the step there.
-    const auto event =
-        first_crossing(stepper, L, boundaries, t_old, std::min(t_new, t_end), run.x, work);
+    const double t_check = std::min(t_new, t_end);
+    const State* x_check = &xn;
+    if (!boundaries.empty() && t_check != t_new) {
+      stepper.calc_state(t_check, sample);
+      x_check = &sample;
+    }
+    const auto event = first_crossing(stepper, L, boundaries, t_old, t_check, run.x, *x_check,
+                                      long_step, work, probe);
     const double t_seg = event ? event->first : t_new;
     const double t_stop = std::min(t_seg, t_end);
     if (peaks) {

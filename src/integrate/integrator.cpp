@@ -1,6 +1,7 @@
 #include "aerosect/integrate/integrator.hpp"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -119,7 +120,8 @@ std::optional<std::pair<double, const Boundary*>> first_crossing(
     return br.second;  // the side where h >= 0: the state has left the region
   };
   const std::size_t nb = boundaries.size();
-  std::vector<double> h_prev(nb), v_prev(nb);
+  std::array<double, 6> h_prev{}, v_prev{};  // at most 3 springs x 2 boundaries
+  AEROSECT_CHECK(nb <= h_prev.size());
   for (std::size_t i = 0; i < nb; ++i) {
     h_prev[i] = h_of(boundaries[i], xa);
     v_prev[i] = xa[L.velocity + boundaries[i].spring];

@@ -37,7 +37,7 @@ int main(int argc, char** argv) {
   for (std::size_t i = 0; i < x.size(); ++i) x[i] += 1e-3 * static_cast<double>(i + 1);
   for (long i = 0; i < n_rhs; ++i) {
     x[0] += 1e-30;
-    model.rhs(x.data(), dx.data(), regions);
+    model.rhs(x.data(), dx.data(), 0.0, regions);
     sink += dx[1];
   }
   const double rhs_s = std::chrono::duration<double>(clock::now() - t0).count();

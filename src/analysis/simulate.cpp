@@ -44,6 +44,19 @@ std::vector<Channel> simulation_channels(const AeroelasticModel& model) {
     c.component_axis = "wagner_pole";
     ch.push_back(c);
   }
+  if (L.n_gust > 0) {
+    Channel c;
+    c.name = "gust_lag_states";
+    c.units = "m s-1";
+    c.long_name = "Kussner lag states g_i, g_i' = (U/b) d_i (w_g - g_i)";
+    c.width = L.n_gust;
+    for (int i = 0; i < L.n_gust; ++i) c.component_names.push_back(fmt::format("pole_{}", i + 1));
+    c.component_axis = "kussner_pole";
+    ch.push_back(c);
+    scalar("gust_velocity", "m s-1", "vertical gust velocity at the leading edge, positive up");
+    scalar("gust_effective_velocity", "m s-1",
+           "Kussner-weighted gust velocity w_hat (circulatory gust lift 2 pi rho U b w_hat)");
+  }
   scalar("lift", "N m-1", "aerodynamic lift per unit span, positive up");
   scalar("pitching_moment", "N m m-1",
          "aerodynamic pitching moment about the elastic axis per unit span, positive nose up");
@@ -67,6 +80,10 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
       {"aerodynamic_model", to_string(c.model.aero.model)},
       {"wagner_approximation", c.model.aero.model == AeroModel::kWagner ? c.model.aero.wagner_name
                                                                          : std::string("none")},
+      {"kussner_approximation", c.model.gusts.empty() ? std::string("none") : c.model.kussner_name},
+      {"gust_convention",
+       "gust velocity positive up, given at the leading edge; chordwise penetration at the "
+       "airspeed (typical-section idealisation)"},
       {"sign_conventions",
        "plunge h positive down; pitch alpha positive nose up; flap beta positive trailing edge "
        "down; lift positive up; pitching moment about the elastic axis positive nose up; hinge "
@@ -156,7 +173,8 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   {
     int col = 0;
     for (const auto& ch : channels) {
-      if (ch.width == 1 && ch.name != "tau" && ch.name != "effective_downwash") {
+      if (ch.width == 1 && ch.name != "tau" && ch.name != "effective_downwash" &&
+          ch.name != "gust_effective_velocity") {
         tracked.push_back({col, summary.extremes.size()});
         Extreme e;
         e.channel = ch.name;
@@ -176,13 +194,18 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   run.regions = model.regions_of(run.x.data());
 
   auto observer = [&](double t, const std::vector<double>& x) {
-    model.rhs(x.data(), dxdt.data(), run.regions);
-    const Loads l = model.loads(x.data(), dxdt.data());
+    model.rhs(x.data(), dxdt.data(), t, run.regions, run.input_segment);
+    const Loads l = model.loads(x.data(), dxdt.data(), t, run.input_segment);
     int k = 0;
     row[k++] = U_over_b * t;
     for (int j = 0; j < L.n_dof; ++j) row[k++] = x[L.displacement + j];
     for (int j = 0; j < L.n_dof; ++j) row[k++] = x[L.velocity + j];
     for (int i = 0; i < L.n_wagner; ++i) row[k++] = x[L.wagner + i];
+    if (L.n_gust > 0) {
+      for (int i = 0; i < L.n_gust; ++i) row[k++] = x[L.gust + i];
+      row[k++] = l.gust_velocity;
+      row[k++] = l.gust_effective;
+    }
     row[k++] = l.lift;
     row[k++] = l.pitching_moment;
     if (L.n_dof == 3) row[k++] = l.hinge_moment;

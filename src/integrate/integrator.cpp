@@ -209,10 +209,12 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
                            const OutputSchedule& schedule, const SampleObserver& observer,
                            bool emit_initial, const std::atomic<bool>* cancel,
                            const PeakObserver& peaks) {
-  auto system = [&model, &run](const State& x, State& dxdt, double /*t*/) {
+  auto system = [&model, &run](const State& x, State& dxdt, double t) {
     ++run.rhs_evaluations;
-    model.rhs(x.data(), dxdt.data(), run.regions);
+    model.rhs(x.data(), dxdt.data(), t, run.regions, run.input_segment);
   };
+  const auto input_breaks = model.gusts().breakpoints();
+  run.input_segment = model.gusts().segment_of(run.time);
   const StateLayout& L = model.layout();
   IntegrationResult result;
   const double t0 = run.time;
@@ -249,6 +251,14 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
   double last_switch = -std::numeric_limits<double>::infinity();
 
   while (true) {
+    // Land exactly on the next input switch time.
+    double t_break = std::numeric_limits<double>::infinity();
+    if (run.input_segment < static_cast<int>(input_breaks.size()))
+      t_break = input_breaks[static_cast<std::size_t>(run.input_segment)];
+    if (std::isfinite(t_break) && stepper.current_time() + stepper.current_time_step() > t_break) {
+      const double dt_b = t_break - stepper.current_time();
+      if (dt_b > 0) stepper.initialize(run.x, stepper.current_time(), dt_b);
+    }
     std::pair<double, double> step;
     try {
       step = stepper.do_step(system);
@@ -354,6 +364,13 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     } else {
       run.x = xn;
       run.time = t_new;
+      if (std::isfinite(t_break) &&
+          t_new >= t_break - 4 * std::numeric_limits<double>::epsilon() * std::abs(t_break)) {
+        // Input switch: the next segment's formulas from here on.
+        run.time = t_break;
+        run.input_segment = model.gusts().segment_of(t_break);
+        stepper.initialize(run.x, run.time, std::max(dt, 1e-6 * dt0));
+      }
     }
     if (action == ObserverAction::kStop) {
       result.reason = StopReason::kObserver;

@@ -18,6 +18,7 @@
 
 #include "aerosect/error.hpp"
 #include "aerosect/model/atmosphere.hpp"
+#include "aerosect/model/gust.hpp"
 #include "aerosect/model/spring.hpp"
 
 namespace aerosect {
@@ -100,6 +101,25 @@ const std::vector<std::string> kKnownKeys = {
     "simulation.initial_step",
     "simulation.hold",
     "envelope.dive_speed_eas",
+    "aerodynamics.kussner",
+    "aerodynamics.kussner_coefficients",
+    "aerodynamics.kussner_exponents",
+    "gust.shape",
+    "gust.start",
+    "gust.start_semichords",
+    "gust.amplitude",
+    "gust.amplitude_eas",
+    "gust.gradient",
+    "gust.design",
+    "gust.speed_condition",
+    "gust.altitude",
+    "gust.landing_weight_ratio",
+    "gust.zero_fuel_weight_ratio",
+    "gust.max_operating_altitude",
+    "gust.frequency_hz",
+    "gust.reduced_frequency",
+    "gust.cycles",
+    "gust.label",
     "springs.plunge.law",
     "springs.plunge.half_gap",
     "springs.plunge.total_gap",
@@ -408,6 +428,11 @@ void check_unknown_keys(const Context& ctx, const toml::table& t, const std::str
     const std::string path = prefix.empty() ? std::string(k.str()) : prefix + "." + std::string(k.str());
     if (v.is_table() && is_known_table(path)) {
       check_unknown_keys(ctx, *v.as_table(), path);
+      continue;
+    }
+    // [[gust]]: an array of tables, each checked against the gust keys.
+    if (path == "gust" && v.is_array_of_tables()) {
+      for (const auto& e : *v.as_array()) check_unknown_keys(ctx, *e.as_table(), path);
       continue;
     }
     if (!v.is_table() && is_known_key(path)) continue;
@@ -947,6 +972,126 @@ SpringLaw read_spring(const Table& t, int dof, double k) {
   return SpringLaw::table(xs, *f);
 }
 
+
+// [aerodynamics] Küssner keys and the [[gust]] tables.
+void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, Case& c) {
+  const std::string kk = aero.choice("kussner", {"two-pole", "three-pole", "custom"}, "two-pole");
+  const auto kc = aero.numbers("kussner_coefficients");
+  const auto ke = aero.numbers("kussner_exponents");
+  const std::string kwhat =
+      "psi(s) = 1 - sum c_i exp(-d_i s): kussner_coefficients = [c_1, ...] and "
+      "kussner_exponents = [d_1, ...] per semichord (not per chord), 1 to 8 poles";
+  if (kk != "custom") {
+    if (kc) aero.fail("kussner_coefficients", "is only used with kussner = \"custom\"", kwhat);
+    if (ke) aero.fail("kussner_exponents", "is only used with kussner = \"custom\"", kwhat);
+    c.model.kussner = kk == "two-pole" ? kussner_two_pole() : kussner_three_pole();
+  } else {
+    if (!kc) aero.missing("kussner_coefficients", kwhat);
+    if (!ke) aero.missing("kussner_exponents", kwhat);
+    aero.require(!kc->empty() && kc->size() <= 8, "kussner_coefficients", "must have 1 to 8 entries", kwhat);
+    aero.require(ke->size() == kc->size(), "kussner_exponents",
+                 fmt::format("has {} entries but kussner_coefficients has {}", ke->size(), kc->size()),
+                 kwhat);
+    double sum = 0;
+    for (double v : *kc) sum += v;
+    aero.require(sum > 0 && sum <= 1 + 1e-12, "kussner_coefficients",
+                 fmt::format("sum to {:.6g}: psi(0) = {:.6g} would be negative or psi would not rise", sum, 1 - sum),
+                 "coefficients whose sum lies in (0, 1] (psi(0) = 0 for a sharp-edged gust)");
+    for (double e : *ke) aero.require(e > 0, "kussner_exponents", "must all be positive", "d_i > 0");
+    c.model.kussner = {*kc, *ke};
+  }
+  c.model.kussner_name = kk;
+
+  const toml::node* node = root.get("gust");
+  if (!node) return;
+  const Table top(ctx, &root, "");
+  if (!node->is_array_of_tables())
+    top.fail("gust", "must be an array of tables", "one [[gust]] table per gust profile");
+  const double U = c.model.flow.airspeed, b = c.model.section.semichord;
+  const double rho = c.model.flow.density;
+  std::vector<GustProfile> profiles;
+  for (const auto& e : *node->as_array()) {
+    const Table g(ctx, e.as_table(), "gust");
+    GustProfile p;
+    const std::string shape =
+        g.choice("shape", {"sharp-edged", "one-minus-cosine", "sinusoidal"}, "");
+    if (shape.empty()) g.missing("shape", "\"sharp-edged\", \"one-minus-cosine\" or \"sinusoidal\"");
+    p.shape = shape == "sharp-edged" ? GustShape::kSharpEdged
+              : shape == "one-minus-cosine" ? GustShape::kOneMinusCosine
+                                            : GustShape::kSinusoidal;
+    g.require(U > 0 && rho > 0, "shape", "needs air and a positive airspeed",
+              "a case with density > 0 and airspeed > 0");
+    const std::string sk = g.one_of({"start", "start_semichords"});
+    if (sk == "start") p.start = *g.number("start");
+    if (sk == "start_semichords") p.start = *g.number("start_semichords") * b / U;
+    if (!sk.empty()) g.require(p.start >= 0, sk, "must not be negative", "s or semichords >= 0");
+    const std::string design = g.choice("design", {"cs-25"}, "");
+    const double eas_to_tas = std::sqrt(kSeaLevelDensity / rho);
+    if (p.shape == GustShape::kOneMinusCosine) {
+      const double H = g.required_number("gradient", "gust gradient distance H, m (9 to 107 m in CS-25.341)");
+      g.require(H > 0, "gradient", "must be positive", "H in m");
+      p.gradient = H;
+      if (design == "cs-25") {
+        for (const char* k : {"amplitude", "amplitude_eas"})
+          if (g.has(k)) g.fail(k, "conflicts with design = \"cs-25\" (which sizes the gust)",
+                               "either an amplitude or design = \"cs-25\" with its inputs");
+        g.require(H >= 30 * 0.3048 - 1e-9 && H <= 350 * 0.3048 + 1e-9, "gradient",
+                  "is outside the rule's range", "9.144 m <= H <= 106.68 m (30 to 350 ft)");
+        RegulationGustInputs in;
+        in.gradient = H;
+        if (auto a = g.number("altitude")) {
+          g.require(*a >= 0 && *a <= kIsaMaxAltitude, "altitude", "is out of range", "0 to 20000 m");
+          in.altitude = *a;
+        } else if (c.altitude) {
+          in.altitude = std::max(0.0, *c.altitude);
+        } else {
+          g.missing("altitude", "the altitude for the rule (m), needed when [flow] gives a density");
+        }
+        auto ratio = [&](const char* k) {
+          const double v = g.required_number(k, "a weight ratio, 0 < ratio <= 1");
+          g.require(v > 0 && v <= 1, k, "is not a weight ratio", "0 < ratio <= 1");
+          return v;
+        };
+        in.landing_weight_ratio = ratio("landing_weight_ratio");
+        in.zero_fuel_weight_ratio = ratio("zero_fuel_weight_ratio");
+        in.max_operating_altitude = g.required_number("max_operating_altitude", "Z_mo, m");
+        g.require(in.max_operating_altitude > 0 && in.max_operating_altitude < 76200,
+                  "max_operating_altitude", "is out of range", "0 < Z_mo < 76200 m (250 000 ft)");
+        in.at_dive_speed = g.choice("speed_condition", {"VC", "VD"}, "VC") == "VD";
+        p.amplitude = cs25_design_gust_velocity(in) * eas_to_tas;
+      }
+    }
+    if (design.empty() || p.shape != GustShape::kOneMinusCosine) {
+      if (!design.empty()) g.fail("design", "applies to one-minus-cosine gusts only", "shape = \"one-minus-cosine\"");
+      for (const char* k : {"speed_condition", "altitude", "landing_weight_ratio",
+                            "zero_fuel_weight_ratio", "max_operating_altitude"})
+        if (g.has(k)) g.fail(k, "is only used with design = \"cs-25\"", "design = \"cs-25\"");
+      const std::string ak = g.required_one_of(
+          {"amplitude", "amplitude_eas"}, "gust velocity in m/s: amplitude (true airspeed) or amplitude_eas");
+      const double a = *g.number(ak);
+      g.require(std::abs(a) < 100, ak, "is beyond any atmospheric gust", "|amplitude| < 100 m/s");
+      p.amplitude = ak == "amplitude" ? a : a * eas_to_tas;
+    }
+    if (p.shape != GustShape::kOneMinusCosine && g.has("gradient"))
+      g.fail("gradient", "is only used by one-minus-cosine gusts", "shape = \"one-minus-cosine\"");
+    if (p.shape == GustShape::kSinusoidal) {
+      const std::string fk = g.required_one_of(
+          {"frequency_hz", "reduced_frequency"}, "frequency_hz (Hz) or reduced_frequency (k = omega b / U)");
+      const double f = *g.number(fk);
+      g.require(f > 0, fk, "must be positive", "a positive frequency");
+      p.frequency = fk == "frequency_hz" ? 2 * pi * f : f * U / b;
+      p.cycles = nonnegative_or(g, "cycles", 0.0, "periods, 0 for until the end");
+    } else {
+      for (const char* k : {"frequency_hz", "reduced_frequency", "cycles"})
+        if (g.has(k)) g.fail(k, "is only used by sinusoidal gusts", "shape = \"sinusoidal\"");
+    }
+    p.label = g.string("label").value_or(
+        p.shape == GustShape::kOneMinusCosine ? fmt::format("1-cos H = {:g} m", p.gradient) : shape);
+    profiles.push_back(p);
+  }
+  c.model.gusts = GustField(profiles, U);
+}
+
 // The 3-DOF structural mass matrix must be positive definite.
 void check_mass_matrix(const Case& c, const Table& flap, const Table& nd) {
   if (c.model.section.dof != 3) return;
@@ -1063,6 +1208,7 @@ Case parse_case(const std::string& text, const std::string& path,
   }
 
   read_aerodynamics(top.sub("aerodynamics"), c);
+  read_gusts(root, ctx, top.sub("aerodynamics"), c);
   const Table env = top.sub("envelope");
   if (auto v = env.number("dive_speed_eas")) {
     env.require(*v > 0 && *v < 1000, "dive_speed_eas", "is impossible",

@@ -16,7 +16,11 @@ AeroelasticModel::AeroelasticModel(ModelDescription description) : d_(std::move(
   layout_.velocity = n;
   layout_.wagner = 2 * n;
   layout_.n_wagner = wagner ? static_cast<int>(d_.aero.wagner.size()) : 0;
-  layout_.size = layout_.wagner + layout_.n_wagner;
+  layout_.gust = layout_.wagner + layout_.n_wagner;
+  const bool gusty = !d_.gusts.empty() && d_.flow.density > 0.0;
+  layout_.n_gust = gusty ? static_cast<int>(d_.kussner.size()) : 0;
+  layout_.size = layout_.gust + layout_.n_gust;
+  psi0_ = d_.kussner.initial_value();
   phi0_ = wagner ? d_.aero.wagner.initial_value() : 1.0;
 
   aero_ = theodorsen_matrices(s, d_.flow, d_.aero.model);
@@ -50,6 +54,16 @@ AeroelasticModel::AeroelasticModel(ModelDescription description) : d_(std::move(
     }
   }
   A_ = state_matrix(k);
+
+  // Gust input: instantaneous part psi(0) w_g on the forces, and the drive
+  // of the Küssner lag states.
+  B_gust_ = Eigen::VectorXd::Zero(layout_.size);
+  if (layout_.n_gust > 0) {
+    B_gust_.segment(layout_.velocity, n) = mass_inverse_ * aero_.circulation_force * psi0_;
+    const double U_over_b = d_.flow.airspeed / s.semichord;
+    for (int i = 0; i < layout_.n_gust; ++i)
+      B_gust_(layout_.gust + i) = U_over_b * d_.kussner.exponents[i];
+  }
 }
 
 Eigen::MatrixXd AeroelasticModel::state_matrix(const DofVector& spring_stiffness) const {
@@ -81,6 +95,14 @@ Eigen::MatrixXd AeroelasticModel::state_matrix(const DofVector& spring_stiffness
       A(w0 + i, w0 + i) = -rate;
     }
   }
+  // Küssner lag states: they feed the forces and relax towards w_g (the
+  // drive itself is the input vector, not part of A).
+  for (int i = 0; i < layout_.n_gust; ++i) {
+    const int g = layout_.gust + i;
+    A.block(layout_.velocity, g, n, 1) =
+        mass_inverse_ * am.circulation_force * d_.kussner.coefficients[i];
+    A(g, g) = -d_.flow.airspeed / s.semichord * d_.kussner.exponents[i];
+  }
   return A;
 }
 
@@ -90,18 +112,21 @@ Eigen::MatrixXd AeroelasticModel::nominal_state_matrix() const {
   return state_matrix(k);
 }
 
-void AeroelasticModel::rhs(const double* x, double* dxdt, std::span<const int> regions) const {
+void AeroelasticModel::rhs(const double* x, double* dxdt, double t, std::span<const int> regions,
+                           int input_segment) const {
   const int N = layout_.size;
   Eigen::Map<const Eigen::VectorXd> xv(x, N);
   Eigen::Map<Eigen::VectorXd> dv(dxdt, N);
   dv.noalias() = A_ * xv;
+  if (layout_.n_gust > 0) dv.noalias() += B_gust_ * d_.gusts.velocity(t, input_segment);
   for (int j : nonlinear_) {
     const double f = d_.springs[j].force(x[layout_.displacement + j], regions[j]);
     dv.noalias() -= G_.col(j) * f;
   }
 }
 
-Loads AeroelasticModel::loads(const double* x, const double* dxdt) const {
+Loads AeroelasticModel::loads(const double* x, const double* dxdt, double t,
+                              int input_segment) const {
   const int n = layout_.n_dof;
   Eigen::Map<const Eigen::VectorXd> q(x + layout_.displacement, n);
   Eigen::Map<const Eigen::VectorXd> qd(x + layout_.velocity, n);
@@ -110,9 +135,15 @@ Loads AeroelasticModel::loads(const double* x, const double* dxdt) const {
   double wc = phi0_ * (am.downwash_displacement.dot(q) + am.downwash_rate.dot(qd));
   for (int i = 0; i < layout_.n_wagner; ++i)
     wc += d_.aero.wagner.coefficients[i] * x[layout_.wagner + i];
-  const DofVector F = -am.apparent_mass * qdd - am.damping * qd - am.stiffness * q +
-                      am.circulation_force * wc;
   Loads l;
+  if (layout_.n_gust > 0) {
+    l.gust_velocity = d_.gusts.velocity(t, input_segment);
+    l.gust_effective = psi0_ * l.gust_velocity;
+    for (int i = 0; i < layout_.n_gust; ++i)
+      l.gust_effective += d_.kussner.coefficients[i] * x[layout_.gust + i];
+  }
+  const DofVector F = -am.apparent_mass * qdd - am.damping * qd - am.stiffness * q +
+                      am.circulation_force * (wc + l.gust_effective);
   l.lift = -F(0);
   l.pitching_moment = F(1);
   l.hinge_moment = n == 3 ? F(2) : 0.0;

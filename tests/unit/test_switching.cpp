@@ -39,9 +39,9 @@ struct ExactPiecewise {
       if (c < N) e[c] = 1.0;
       // Column c of the affine map: rhs(e_c) - rhs(0) for c < N, rhs(0) for the constant.
       std::vector<double> zero(N, 0.0), d0(N);
-      model.rhs(zero.data(), d0.data(), regions);
+      model.rhs(zero.data(), d0.data(), 0.0, regions);
       if (c < N) {
-        model.rhs(e.data(), dx.data(), regions);
+        model.rhs(e.data(), dx.data(), 0.0, regions);
         for (int r = 0; r < N; ++r) Ah(r, c) = dx[r] - d0[r];
       } else {
         for (int r = 0; r < N; ++r) Ah(r, c) = d0[r];

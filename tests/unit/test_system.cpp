@@ -53,7 +53,7 @@ TEST_CASE("Right-hand side equals the state matrix for linear springs", "[system
   const AeroelasticModel model(c.model);
   REQUIRE(model.state_size() == 6);
   std::vector<double> x = {0.01, -0.02, 0.3, 0.1, 0.05, -0.04}, dx(6);
-  model.rhs(x.data(), dx.data(), model.regions_of(x.data()));
+  model.rhs(x.data(), dx.data(), 0.0, model.regions_of(x.data()));
   const Eigen::VectorXd ref = model.nominal_state_matrix() * Eigen::Map<Eigen::VectorXd>(x.data(), 6);
   for (int i = 0; i < 6; ++i) CHECK(dx[i] == Approx(ref(i)).margin(1e-14));
 }
@@ -85,7 +85,7 @@ hold = ["plunge", "pitch"]
   const auto& s = c.simulation;
   std::vector<double> x = model.initial_state(s.initial_displacement, s.initial_velocity, true);
   std::vector<double> dx(x.size());
-  model.rhs(x.data(), dx.data(), model.regions_of(x.data()));
+  model.rhs(x.data(), dx.data(), 0.0, model.regions_of(x.data()));
   for (double v : dx) CHECK(v == Approx(0.0).margin(1e-12));  // held, steady: nothing moves
   const Loads l = model.loads(x.data(), dx.data());
   const double alpha = 2.0 * std::numbers::pi / 180.0;

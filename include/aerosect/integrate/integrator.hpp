@@ -16,6 +16,11 @@
 // the sign of x. More than 50 switches closer than ~1e-9 of the shortest
 // period apart is chattering and stops the run with a NumericalError.
 //
+// Time-dependent inputs (gusts) are piecewise smooth: the stepper is made to
+// land exactly on every input switch time (its next step is shortened to
+// reach it), the stored input segment advances there and the stepper
+// restarts, so no step straddles a kink or a jump of the input.
+//
 // The model is shared and const; everything that changes during a run is in
 // RunState, so independent runs can proceed on separate threads.
 
@@ -50,6 +55,7 @@ struct RunState {
   double time = 0.0;               // s
   std::vector<double> x;           // state vector (layout of the model)
   std::vector<int> regions;        // active region of each spring
+  int input_segment = 0;           // active segment of the gust input (gust.hpp)
   std::int64_t steps = 0;          // accepted steps
   std::int64_t rhs_evaluations = 0;
   std::int64_t samples = 0;        // samples handed to the observer

@@ -2,13 +2,16 @@
 // The assembled aeroelastic system: structure + Theodorsen aerodynamics +
 // spring laws, as a first-order ODE  x' = A x + G s(q)  over the state
 //
-//   x = [ q (n_dof) | q' (n_dof) | y (n_wagner) ]
+//   x = [ q (n_dof) | q' (n_dof) | y (n_wagner) | g (n_gust) ]
 //
 //   q   displacements (h m, alpha rad[, beta rad]); slice `displacement`
 //   q'  velocities (m/s, rad/s); slice `velocity`
 //   y   Wagner lag states, m/s (see aerodynamics.hpp); slice `wagner`
+//   g   Küssner gust lag states, m/s (see gust.hpp); slice `gust`, present
+//       only when the case has gusts
 //
-// Equations: (M_s + M_a) q'' = -(C_s + C_a) q' - K_a q - f_spring(q) + f_c w_c,
+// Equations: (M_s + M_a) q'' = -(C_s + C_a) q' - K_a q - f_spring(q) + f_c (w_c + w_hat),
+//   w_hat = psi(0) w_g(t) + c . g,  g_i' = (U/b) d_i (w_g(t) - g_i)   (gust, Küssner),
 //   w_c = phi(0) Q + psi . y,  y_i' = (U/b) eps_i (Q - y_i),  Q = d_q.q + d_v.q'.
 // The total mass matrix M_s + M_a is constant and is inverted once here.
 // A contains every linear spring; each nonlinear spring j (a law with
@@ -27,6 +30,7 @@
 #include <Eigen/Core>
 
 #include "aerosect/model/aerodynamics.hpp"
+#include "aerosect/model/gust.hpp"
 #include "aerosect/model/section.hpp"
 #include "aerosect/model/spring.hpp"
 
@@ -38,6 +42,8 @@ struct StateLayout {
   int velocity = 2;      // offset of q'
   int wagner = 4;        // offset of y
   int n_wagner = 0;
+  int gust = 4;          // offset of g
+  int n_gust = 0;
   int size = 4;
 };
 
@@ -48,6 +54,9 @@ struct ModelDescription {
   AeroSettings aero;
   std::array<SpringLaw, 3> springs;        // plunge, pitch, flap restoring laws
   std::array<bool, 3> held{false, false, false};  // DOFs held at their initial value
+  GustField gusts;                                 // gust inputs (may be empty)
+  WagnerApproximation kussner = kussner_two_pole();  // Küssner approximation
+  std::string kussner_name = "two-pole";
 };
 
 // Sectional loads at one instant (per unit span; signs of aerodynamics.hpp).
@@ -56,6 +65,8 @@ struct Loads {
   double pitching_moment = 0;  // N m/m about the elastic axis, nose up
   double hinge_moment = 0;     // N m/m about the hinge, trailing edge down
   double effective_downwash = 0;  // w_c, m/s
+  double gust_velocity = 0;       // w_g at the leading edge, m/s, up positive
+  double gust_effective = 0;      // w_hat, Küssner-weighted, m/s
 };
 
 class AeroelasticModel {
@@ -69,11 +80,14 @@ class AeroelasticModel {
   const AeroMatrices& aero() const { return aero_; }
   const DofMatrix& total_mass() const { return total_mass_; }
 
-  // x' = f(x; regions). regions[j] is the active region of spring j.
-  void rhs(const double* x, double* dxdt, std::span<const int> regions) const;
+  // x' = f(x, t; regions, input segment). regions[j] is the active region of
+  // spring j; input_segment the active segment of the gust field.
+  void rhs(const double* x, double* dxdt, double t, std::span<const int> regions,
+           int input_segment = 0) const;
 
   // Loads from a state and its derivative (accelerations are dxdt[velocity..]).
-  Loads loads(const double* x, const double* dxdt) const;
+  Loads loads(const double* x, const double* dxdt, double t = 0, int input_segment = 0) const;
+  const GustField& gusts() const { return d_.gusts; }
 
   // Linear state matrix with spring j replaced by a linear spring of
   // stiffness k[j] (N/m or N m/rad); nonlinear springs use k[j] as given.
@@ -102,6 +116,8 @@ class AeroelasticModel {
   double phi0_ = 1.0;
   Eigen::MatrixXd A_;       // linear part, nonlinear springs excluded
   Eigen::MatrixXd G_;       // state_size x n_dof: maps generalised force to x'
+  Eigen::VectorXd B_gust_;  // x' += B_gust w_g(t)
+  double psi0_ = 0;         // Küssner psi(0)
   std::vector<int> nonlinear_;
 };
 

@@ -1,0 +1,117 @@
+#include "aerosect/model/gust.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <numbers>
+
+#include "aerosect/error.hpp"
+
+namespace aerosect {
+
+using std::numbers::pi;
+
+WagnerApproximation kussner_two_pole() { return {{0.5, 0.5}, {0.13, 1.0}}; }
+WagnerApproximation kussner_three_pole() {
+  return {{0.236, 0.513, 0.171}, {0.058, 0.364, 2.42}};
+}
+
+const char* to_string(GustShape s) {
+  switch (s) {
+    case GustShape::kSharpEdged: return "sharp-edged";
+    case GustShape::kOneMinusCosine: return "one-minus-cosine";
+    case GustShape::kSinusoidal: return "sinusoidal";
+  }
+  return "?";
+}
+
+namespace {
+// End time of a profile (inf when unbounded).
+double profile_end(const GustProfile& p, double U) {
+  switch (p.shape) {
+    case GustShape::kSharpEdged: return std::numeric_limits<double>::infinity();
+    case GustShape::kOneMinusCosine: return p.start + 2.0 * p.gradient / U;
+    case GustShape::kSinusoidal:
+      return p.cycles > 0 ? p.start + p.cycles * 2.0 * pi / p.frequency
+                          : std::numeric_limits<double>::infinity();
+  }
+  return std::numeric_limits<double>::infinity();
+}
+}  // namespace
+
+GustField::GustField(std::vector<GustProfile> profiles, double airspeed)
+    : profiles_(std::move(profiles)), airspeed_(airspeed) {
+  for (const auto& p : profiles_) {
+    AEROSECT_CHECK(p.shape != GustShape::kOneMinusCosine || (p.gradient > 0 && airspeed > 0));
+    breakpoints_.push_back(p.start);
+    const double e = profile_end(p, airspeed);
+    if (std::isfinite(e)) breakpoints_.push_back(e);
+  }
+  std::sort(breakpoints_.begin(), breakpoints_.end());
+  breakpoints_.erase(std::unique(breakpoints_.begin(), breakpoints_.end()), breakpoints_.end());
+}
+
+int GustField::segment_of(double t) const {
+  return static_cast<int>(std::upper_bound(breakpoints_.begin(), breakpoints_.end(), t) -
+                          breakpoints_.begin());
+}
+
+double GustField::end_time() const { return breakpoints_.empty() ? 0.0 : breakpoints_.back(); }
+
+double GustField::profile_velocity(const GustProfile& p, double t, double probe) const {
+  // `probe` is a time inside the segment: it decides which piece applies.
+  if (probe < p.start) return 0.0;
+  if (probe > profile_end(p, airspeed_)) return 0.0;
+  switch (p.shape) {
+    case GustShape::kSharpEdged: return p.amplitude;
+    case GustShape::kOneMinusCosine:
+      return 0.5 * p.amplitude * (1.0 - std::cos(pi * airspeed_ * (t - p.start) / p.gradient));
+    case GustShape::kSinusoidal: return p.amplitude * std::sin(p.frequency * (t - p.start));
+  }
+  return 0.0;
+}
+
+double GustField::velocity(double t, int segment) const {
+  // A time strictly inside the segment.
+  const int n = static_cast<int>(breakpoints_.size());
+  double probe;
+  if (n == 0) {
+    probe = t;
+  } else if (segment <= 0) {
+    probe = breakpoints_[0] - 1.0;
+  } else if (segment >= n) {
+    probe = breakpoints_[n - 1] + 1.0;
+  } else {
+    probe = 0.5 * (breakpoints_[segment - 1] + breakpoints_[segment]);
+  }
+  double w = 0;
+  for (const auto& p : profiles_) w += profile_velocity(p, t, probe);
+  return w;
+}
+
+namespace {
+constexpr double kFt = 0.3048;  // m per ft (exact)
+}
+
+double cs25_reference_gust_velocity(double h) {
+  const double h15 = 15000 * kFt, h60 = 60000 * kFt;
+  const double u0 = 56 * kFt, u15 = 44 * kFt, u60 = 20.86 * kFt;
+  if (h <= h15) return u0 + (u15 - u0) * std::max(h, 0.0) / h15;
+  return u15 + (u60 - u15) * (std::min(h, h60) - h15) / (h60 - h15);
+}
+
+double cs25_flight_profile_alleviation(const RegulationGustInputs& in) {
+  const double zmo = in.max_operating_altitude;
+  const double fgz = 1.0 - zmo / (250000 * kFt);
+  const double fgm = std::sqrt(in.zero_fuel_weight_ratio * std::tan(pi * in.landing_weight_ratio / 4));
+  const double fg0 = 0.5 * (fgz + fgm);
+  if (zmo <= 0 || in.altitude >= zmo) return in.altitude >= zmo ? 1.0 : fg0;
+  return fg0 + (1.0 - fg0) * std::max(in.altitude, 0.0) / zmo;
+}
+
+double cs25_design_gust_velocity(const RegulationGustInputs& in) {
+  const double uref = cs25_reference_gust_velocity(in.altitude) * (in.at_dive_speed ? 0.5 : 1.0);
+  return uref * cs25_flight_profile_alleviation(in) * std::pow(in.gradient / (350 * kFt), 1.0 / 6.0);
+}
+
+}  // namespace aerosect

@@ -160,7 +160,7 @@ nlohmann::json simulation_json(const Case& c, const SimulationSummary& s,
   for (const auto& e : s.extremes) {
     j["extremes"][e.channel] = {{"units", e.units},       {"max", e.max},
                                 {"time_of_max_s", e.time_of_max}, {"min", e.min},
-                                {"time_of_min_s", e.time_of_min}};
+                                {"time_of_min_s", e.time_of_min}, {"rms", e.rms}};
   }
   return j;
 }
@@ -174,10 +174,11 @@ std::string simulation_text(const Case& c, const SimulationSummary& s,
                    s.status, s.end_time, s.end_tau, s.samples, s.steps, s.rhs_evaluations,
                    s.switches);
   t += fmt::format("  written to {}\n\n", output_path);
-  t += fmt::format("  {:<20} {:>14} {:>10} {:>14} {:>10}  units\n", "channel", "max", "at s", "min", "at s");
+  t += fmt::format("  {:<24} {:>13} {:>9} {:>13} {:>9} {:>12}  units\n", "channel", "max", "at s",
+                   "min", "at s", "rms");
   for (const auto& e : s.extremes) {
-    t += fmt::format("  {:<20} {:>14.6g} {:>10.4g} {:>14.6g} {:>10.4g}  {}\n", e.channel, e.max,
-                     e.time_of_max, e.min, e.time_of_min, e.units);
+    t += fmt::format("  {:<24} {:>13.6g} {:>9.4g} {:>13.6g} {:>9.4g} {:>12.5g}  {}\n", e.channel,
+                     e.max, e.time_of_max, e.min, e.time_of_min, e.rms, e.units);
   }
   t += "\n";
   t += kSafetyCaution;

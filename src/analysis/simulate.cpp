@@ -215,6 +215,7 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
       const double v = row[tr.column];
       if (v > e.max) { e.max = v; e.time_of_max = t; }
       if (v < e.min) { e.min = v; e.time_of_min = t; }
+      e.rms += v * v;  // sum of squares until the end of the run
     }
     sink.append(t, row);
     return ObserverAction::kContinue;
@@ -222,6 +223,8 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
 
   RunOutcome outcome;
   auto fill_outcome = [&]() {
+    for (auto& e : summary.extremes)
+      e.rms = run.samples > 0 ? std::sqrt(e.rms / static_cast<double>(run.samples)) : 0.0;
     summary.end_time = run.time;
     summary.end_tau = U_over_b * run.time;
     summary.steps = run.steps;

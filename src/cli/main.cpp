@@ -17,6 +17,7 @@
 
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/flutter_report.hpp"
+#include "aerosect/analysis/gust_sweep.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/error.hpp"
@@ -105,6 +106,39 @@ int run_flutter(const Common& o, const std::string& output, const std::string& s
   return 0;
 }
 
+// "FROM:TO:N" in metres for gust gradients.
+std::vector<double> parse_gradients(const std::string& text) {
+  double from = 0, to = 0;
+  long n = 0;
+  char c1 = 0, c2 = 0;
+  std::istringstream in(text);
+  in >> from >> c1 >> to >> c2 >> n;
+  if (!in || c1 != ':' || c2 != ':' || !(in >> std::ws).eof() || !(from > 0) || !(to >= from) ||
+      n < 1 || n > 10000 || !std::isfinite(to))
+    throw aerosect::InputError({"--gradients " + text, 0, 0}, "--gradients", text,
+                               "is not a valid gradient range",
+                               "FROM:TO:N with 0 < FROM <= TO (m) and 1 <= N <= 10000, e.g. "
+                               "--gradients 9.144:106.68:12");
+  std::vector<double> g;
+  for (long i = 0; i < n; ++i) g.push_back(n == 1 ? from : from + (to - from) * i / (n - 1));
+  return g;
+}
+
+int run_gust(const Common& o, const std::string& output, const std::string& gradients) {
+  const aerosect::Case c = aerosect::load_case(o.case_path, o.overrides);
+  const std::vector<double> g =
+      gradients.empty() ? aerosect::default_gradients() : parse_gradients(gradients);
+  const aerosect::GustSweep s = aerosect::gust_gradient_sweep(c, g);
+  std::string written;
+  if (!output.empty()) {
+    aerosect::write_gust_sweep_file(output, c, s);
+    written = output;
+  }
+  print(o.json ? aerosect::gust_sweep_json(c, s, written).dump(2) + "\n"
+               : aerosect::gust_sweep_text(c, s, written));
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -139,6 +173,15 @@ int main(int argc, char** argv) {
                       "also linearise nonlinear springs by their describing function at this "
                       "amplitude (degrees for pitch/flap springs, m for plunge)");
 
+  Common gust_opts;
+  std::string gust_out, gust_gradients;
+  CLI::App* gust = app.add_subcommand(
+      "gust", "discrete-gust gradient sweep of the case's one-minus-cosine gusts (peaks, critical H)");
+  add_common(gust, gust_opts);
+  gust->add_option("-o,--output", gust_out, "HDF5 file for the peaks against H");
+  gust->add_option("--gradients", gust_gradients,
+                   "gust gradients FROM:TO:N in m (default 12 over 9.144..106.68 m)");
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -148,6 +191,7 @@ int main(int argc, char** argv) {
   try {
     if (*check) return run_check(check_opts);
     if (*sim) return run_simulate(sim_opts, output);
+    if (*gust) return run_gust(gust_opts, gust_out, gust_gradients);
     if (*flutter)
       return run_flutter(flutter_opts, flutter_out, flutter_speeds, flutter_method, flutter_amplitude);
   } catch (const aerosect::InputError& e) {

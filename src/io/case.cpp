@@ -18,6 +18,7 @@
 
 #include "aerosect/error.hpp"
 #include "aerosect/model/atmosphere.hpp"
+#include "aerosect/io/gust_record.hpp"
 #include "aerosect/model/gust.hpp"
 #include "aerosect/model/spring.hpp"
 
@@ -120,6 +121,11 @@ const std::vector<std::string> kKnownKeys = {
     "gust.reduced_frequency",
     "gust.cycles",
     "gust.label",
+    "gust.file",
+    "gust.base",
+    "gust.base_dataset",
+    "gust.velocity_dataset",
+    "gust.scale",
     "springs.plunge.law",
     "springs.plunge.half_gap",
     "springs.plunge.total_gap",
@@ -1014,11 +1020,16 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
     const Table g(ctx, e.as_table(), "gust");
     GustProfile p;
     const std::string shape =
-        g.choice("shape", {"sharp-edged", "one-minus-cosine", "sinusoidal"}, "");
-    if (shape.empty()) g.missing("shape", "\"sharp-edged\", \"one-minus-cosine\" or \"sinusoidal\"");
-    p.shape = shape == "sharp-edged" ? GustShape::kSharpEdged
+        g.choice("shape", {"sharp-edged", "one-minus-cosine", "sinusoidal", "recorded"}, "");
+    if (shape.empty())
+      g.missing("shape", "\"sharp-edged\", \"one-minus-cosine\", \"sinusoidal\" or \"recorded\"");
+    p.shape = shape == "sharp-edged"        ? GustShape::kSharpEdged
               : shape == "one-minus-cosine" ? GustShape::kOneMinusCosine
-                                            : GustShape::kSinusoidal;
+              : shape == "sinusoidal"       ? GustShape::kSinusoidal
+                                            : GustShape::kRecorded;
+    const bool recorded = p.shape == GustShape::kRecorded;
+    for (const char* k : {"file", "base", "base_dataset", "velocity_dataset", "scale"})
+      if (!recorded && g.has(k)) g.fail(k, "is only used by recorded gusts", "shape = \"recorded\"");
     g.require(U > 0 && rho > 0, "shape", "needs air and a positive airspeed",
               "a case with density > 0 and airspeed > 0");
     const std::string sk = g.one_of({"start", "start_semichords"});
@@ -1059,9 +1070,32 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
                   "max_operating_altitude", "is out of range", "0 < Z_mo < 76200 m (250 000 ft)");
         in.at_dive_speed = g.choice("speed_condition", {"VC", "VD"}, "VC") == "VD";
         p.amplitude = cs25_design_gust_velocity(in) * eas_to_tas;
+        p.regulation_sized = true;
+        p.eas_to_tas = eas_to_tas;
+        c.gust_regulation = in;
       }
     }
-    if (design.empty() || p.shape != GustShape::kOneMinusCosine) {
+    if (recorded) {
+      for (const char* k : {"amplitude", "amplitude_eas", "design", "gradient"})
+        if (g.has(k)) g.fail(k, "is not used by recorded gusts (scale the record with `scale`)",
+                             "file, base, base_dataset, velocity_dataset, scale");
+      const std::string file = g.string("file").value_or("");
+      if (file.empty()) g.missing("file", "the recorded gust file (CSV or HDF5)");
+      std::string full = file;
+      if (!file.empty() && file[0] != '/') {
+        const auto slash = c.path.rfind('/');
+        if (slash != std::string::npos) full = c.path.substr(0, slash + 1) + file;
+      }
+      const std::string base = g.choice("base", {"time", "distance"}, "time");
+      const GustRecord rec = read_gust_record(
+          full, g.string("base_dataset").value_or(base), g.string("velocity_dataset").value_or("gust_velocity"),
+          g.where("file"), "gust.file");
+      const double scale = g.number("scale").value_or(1.0);
+      p.record_time = rec.base;
+      if (base == "distance")
+        for (double& x : p.record_time) x /= U;
+      for (double w : rec.velocity) p.record_velocity.push_back(scale * w);
+    } else if (design.empty() || p.shape != GustShape::kOneMinusCosine) {
       if (!design.empty()) g.fail("design", "applies to one-minus-cosine gusts only", "shape = \"one-minus-cosine\"");
       for (const char* k : {"speed_condition", "altitude", "landing_weight_ratio",
                             "zero_fuel_weight_ratio", "max_operating_altitude"})

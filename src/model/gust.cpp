@@ -21,6 +21,7 @@ const char* to_string(GustShape s) {
     case GustShape::kSharpEdged: return "sharp-edged";
     case GustShape::kOneMinusCosine: return "one-minus-cosine";
     case GustShape::kSinusoidal: return "sinusoidal";
+    case GustShape::kRecorded: return "recorded";
   }
   return "?";
 }
@@ -34,6 +35,7 @@ double profile_end(const GustProfile& p, double U) {
     case GustShape::kSinusoidal:
       return p.cycles > 0 ? p.start + p.cycles * 2.0 * pi / p.frequency
                           : std::numeric_limits<double>::infinity();
+    case GustShape::kRecorded: return p.start + p.record_time.back();
   }
   return std::numeric_limits<double>::infinity();
 }
@@ -43,7 +45,12 @@ GustField::GustField(std::vector<GustProfile> profiles, double airspeed)
     : profiles_(std::move(profiles)), airspeed_(airspeed) {
   for (const auto& p : profiles_) {
     AEROSECT_CHECK(p.shape != GustShape::kOneMinusCosine || (p.gradient > 0 && airspeed > 0));
+    AEROSECT_CHECK(p.shape != GustShape::kRecorded ||
+                   (p.record_time.size() >= 2 && p.record_time.size() == p.record_velocity.size()));
     breakpoints_.push_back(p.start);
+    // Every sample of a record is a kink of the interpolant: a switch time.
+    if (p.shape == GustShape::kRecorded)
+      for (double tk : p.record_time) breakpoints_.push_back(p.start + tk);
     const double e = profile_end(p, airspeed);
     if (std::isfinite(e)) breakpoints_.push_back(e);
   }
@@ -67,6 +74,15 @@ double GustField::profile_velocity(const GustProfile& p, double t, double probe)
     case GustShape::kOneMinusCosine:
       return 0.5 * p.amplitude * (1.0 - std::cos(pi * airspeed_ * (t - p.start) / p.gradient));
     case GustShape::kSinusoidal: return p.amplitude * std::sin(p.frequency * (t - p.start));
+    case GustShape::kRecorded: {
+      const auto& T = p.record_time;
+      const double rp = probe - p.start;
+      if (rp < T.front()) return 0.0;
+      std::size_t i = static_cast<std::size_t>(std::upper_bound(T.begin(), T.end(), rp) - T.begin());
+      i = std::min(std::max<std::size_t>(i, 1), T.size() - 1) - 1;
+      const double f = (t - p.start - T[i]) / (T[i + 1] - T[i]);
+      return p.record_velocity[i] + f * (p.record_velocity[i + 1] - p.record_velocity[i]);
+    }
   }
   return 0.0;
 }

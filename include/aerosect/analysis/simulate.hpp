@@ -21,6 +21,7 @@ struct Extreme {
   std::string units;
   double max = 0, time_of_max = 0;
   double min = 0, time_of_min = 0;
+  double rms = 0;  // over the output samples
 };
 
 struct SimulationSummary {

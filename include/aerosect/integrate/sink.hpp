@@ -58,6 +58,14 @@ class TimeHistorySink {
   virtual void finish(const RunOutcome& outcome) = 0;
 };
 
+// Discards every row (when only a run's summary is wanted).
+class NullSink final : public TimeHistorySink {
+ public:
+  void begin(const Channel&, const std::vector<Channel>&, const RunMetadata&) override {}
+  void append(double, std::span<const double>) override {}
+  void finish(const RunOutcome&) override {}
+};
+
 // Keeps every row in memory (tests, small runs).
 class MemorySink final : public TimeHistorySink {
  public:

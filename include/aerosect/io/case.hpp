@@ -21,6 +21,7 @@
 #include <vector>
 
 #include "aerosect/integrate/integrator.hpp"
+#include "aerosect/model/gust.hpp"
 #include "aerosect/model/section.hpp"
 #include "aerosect/model/system.hpp"
 
@@ -46,6 +47,7 @@ struct Case {
   NondimensionalParameters nondimensional;  // the same section, nondimensional form
   SimulationSettings simulation;
   std::optional<double> dive_speed_eas;  // V_D, m/s equivalent airspeed ([envelope])
+  std::optional<RegulationGustInputs> gust_regulation;  // inputs of a CS-25 sized 1-cos gust
 
   // The case text with the overrides appended as comments (what was run).
   std::string text_as_run() const;

@@ -22,6 +22,8 @@
 //   1-cos         w_g = (U_ds/2) (1 - cos(pi x / H)), x = U (t - t0), 0 <= x <= 2H
 //   sinusoidal    w_g = W sin(omega (t - t0)) for t >= t0 (for `cycles` periods,
 //                 0 = until the end)
+//   recorded      w_g linearly interpolated in a series (t0 + t_k, w_k); 0 outside
+//                 it (a distance base x_k is turned into t_k = x_k / U by the reader)
 // Each profile is piecewise smooth in time; the union of the profiles' switch
 // times splits the run into input segments, and the right-hand side evaluates
 // the stored segment's formulas (like the spring regions) while the
@@ -39,7 +41,7 @@ namespace aerosect {
 WagnerApproximation kussner_two_pole();    // c = (0.5, 0.5), d = (0.13, 1.0)
 WagnerApproximation kussner_three_pole();  // c = (0.236, 0.513, 0.171), d = (0.058, 0.364, 2.42)
 
-enum class GustShape { kSharpEdged, kOneMinusCosine, kSinusoidal };
+enum class GustShape { kSharpEdged, kOneMinusCosine, kSinusoidal, kRecorded };
 const char* to_string(GustShape s);
 
 struct GustProfile {
@@ -49,6 +51,10 @@ struct GustProfile {
   double gradient = 0;    // H, m (1-cos: half the gust length)
   double frequency = 0;   // rad/s (sinusoidal)
   double cycles = 0;      // sinusoidal duration in periods, 0 = unbounded
+  std::vector<double> record_time;      // recorded: s from `start`, strictly increasing
+  std::vector<double> record_velocity;  // recorded: m/s TAS, up positive
+  bool regulation_sized = false;        // 1-cos sized by cs25_design_gust_velocity
+  double eas_to_tas = 1;                // sqrt(rho0 / rho), for re-sizing
   std::string label;      // for reports, e.g. "1-cos H = 30 m"
 };
 

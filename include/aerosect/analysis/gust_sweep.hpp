@@ -1,0 +1,44 @@
+#pragma once
+// Discrete-gust gradient sweep: the case's one-minus-cosine gusts are run
+// with each gust gradient H in turn (regulation-sized gusts re-sized by
+// CS-25.341(a) for every H), and the peak loads and excursions are
+// collected; the critical H of each quantity is the one with the largest
+// magnitude. Runs are independent (one model and run state each).
+
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "aerosect/analysis/simulate.hpp"
+#include "aerosect/io/case.hpp"
+
+namespace aerosect {
+
+struct GustSweepPoint {
+  double gradient = 0;         // H, m
+  double design_velocity = 0;  // peak gust velocity of the first 1-cos profile, m/s TAS
+  SimulationSummary summary;   // extremes of every channel
+};
+
+struct GustSweep {
+  std::vector<GustSweepPoint> points;
+  // Per channel: the gradient giving the largest |value| and that value (signed).
+  struct Critical {
+    std::string channel, units;
+    double gradient = 0, value = 0, time = 0;
+  };
+  std::vector<Critical> critical;
+};
+
+// 12 gradients spanning 30..350 ft (9.144..106.68 m), the CS-25.341 range.
+std::vector<double> default_gradients();
+
+// Throws InputError (key "gust") when the case has no one-minus-cosine gust.
+GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients);
+
+nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::string& output);
+std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string& output);
+void write_gust_sweep_file(const std::string& path, const Case& c, const GustSweep& s);
+
+}  // namespace aerosect

@@ -1,0 +1,166 @@
+#include "aerosect/analysis/gust_sweep.hpp"
+
+#include <cmath>
+
+#include <fmt/format.h>
+
+#include "aerosect/analysis/report.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/hdf5_document.hpp"
+#include "aerosect/version.hpp"
+
+namespace aerosect {
+
+std::vector<double> default_gradients() {
+  std::vector<double> g;
+  const double lo = 30 * 0.3048, hi = 350 * 0.3048;
+  for (int i = 0; i < 12; ++i) g.push_back(lo + (hi - lo) * i / 11);
+  return g;
+}
+
+GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients) {
+  std::vector<GustProfile> base = c.model.gusts.profiles();
+  bool any = false;
+  for (const auto& p : base) any |= p.shape == GustShape::kOneMinusCosine;
+  if (!any)
+    throw InputError({c.path, 0, 0}, "gust", "",
+                     "a gradient sweep needs at least one [[gust]] with shape = \"one-minus-cosine\"",
+                     "a [[gust]] table with shape = \"one-minus-cosine\" and a gradient or design");
+  GustSweep out;
+  for (double H : gradients) {
+    AEROSECT_CHECK(H > 0);
+    Case run = c;
+    std::vector<GustProfile> profiles = base;
+    double first = -1;
+    for (auto& p : profiles) {
+      if (p.shape != GustShape::kOneMinusCosine) continue;
+      if (p.regulation_sized && c.gust_regulation) {
+        RegulationGustInputs in = *c.gust_regulation;
+        in.gradient = H;
+        p.amplitude = cs25_design_gust_velocity(in) * p.eas_to_tas;
+      }
+      p.gradient = H;
+      if (first < 0) first = p.amplitude;
+    }
+    run.model.gusts = GustField(profiles, c.model.flow.airspeed);
+    // Long enough to pass through the longest gust and a little after.
+    run.simulation.duration = std::max(c.simulation.duration, run.model.gusts.end_time() * 1.5);
+    const AeroelasticModel model(run.model);
+    NullSink sink;
+    GustSweepPoint pt;
+    pt.gradient = H;
+    pt.design_velocity = first;
+    pt.summary = simulate(run, model, sink);
+    out.points.push_back(pt);
+  }
+  // Critical gradient per channel.
+  if (!out.points.empty()) {
+    for (std::size_t k = 0; k < out.points.front().summary.extremes.size(); ++k) {
+      GustSweep::Critical cr;
+      cr.channel = out.points.front().summary.extremes[k].channel;
+      cr.units = out.points.front().summary.extremes[k].units;
+      double best = -1;
+      for (const auto& p : out.points) {
+        const Extreme& e = p.summary.extremes[k];
+        for (auto [v, t] : {std::pair{e.max, e.time_of_max}, std::pair{e.min, e.time_of_min}}) {
+          if (std::abs(v) > best) {
+            best = std::abs(v);
+            cr.gradient = p.gradient;
+            cr.value = v;
+            cr.time = t;
+          }
+        }
+      }
+      out.critical.push_back(cr);
+    }
+  }
+  return out;
+}
+
+nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::string& output) {
+  nlohmann::json j;
+  j["command"] = "gust";
+  j["aerosect_version"] = kVersion;
+  j["case"] = c.path;
+  j["title"] = c.title;
+  j["dof"] = c.model.section.dof;
+  j["overrides"] = c.overrides;
+  j["caution"] = kSafetyCaution;
+  j["output"] = output;
+  j["gust_convention"] = "gust velocity positive up at the leading edge; 1-cos profiles";
+  j["points"] = nlohmann::json::array();
+  for (const auto& p : s.points) {
+    nlohmann::json pj;
+    pj["gradient_m"] = p.gradient;
+    pj["design_velocity_m_s"] = p.design_velocity;
+    for (const auto& e : p.summary.extremes)
+      pj["peaks"][e.channel] = {{"max", e.max}, {"time_of_max_s", e.time_of_max},
+                                {"min", e.min}, {"time_of_min_s", e.time_of_min}};
+    j["points"].push_back(pj);
+  }
+  for (const auto& cr : s.critical)
+    j["critical"][cr.channel] = {{"gradient_m", cr.gradient}, {"value", cr.value},
+                                 {"units", cr.units}, {"time_s", cr.time}};
+  return j;
+}
+
+std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string& output) {
+  std::string t = fmt::format("aerosect {} gust gradient sweep: {}\n", kVersion, c.path);
+  if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
+  t += "  one-minus-cosine gusts, velocity positive up at the leading edge\n\n";
+  t += fmt::format("  {:>8} {:>9} {:>12} {:>12} {:>12} {:>11} {:>11}\n", "H m", "U_ds m/s",
+                   "lift N/m", "M_a N m/m", "M_b N m/m", "pitch deg", "flap deg");
+  auto peak = [](const SimulationSummary& sm, const std::string& ch) {
+    for (const auto& e : sm.extremes)
+      if (e.channel == ch) return std::abs(e.max) > std::abs(e.min) ? e.max : e.min;
+    return std::nan("");
+  };
+  for (const auto& p : s.points) {
+    t += fmt::format("  {:>8.4g} {:>9.4g} {:>12.5g} {:>12.5g} {:>12.5g} {:>11.4g} {:>11.4g}\n",
+                     p.gradient, p.design_velocity, peak(p.summary, "lift"),
+                     peak(p.summary, "pitching_moment"), peak(p.summary, "hinge_moment"),
+                     peak(p.summary, "pitch") * 180 / 3.141592653589793,
+                     peak(p.summary, "flap") * 180 / 3.141592653589793);
+  }
+  t += "\n  critical gradient (largest magnitude):\n";
+  for (const auto& cr : s.critical)
+    t += fmt::format("    {:<18} H = {:<8.4g} m  peak {:.6g} {} at t = {:.4g} s\n", cr.channel,
+                     cr.gradient, cr.value, cr.units, cr.time);
+  if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
+  t += "\n";
+  t += kSafetyCaution;
+  t += "\n";
+  return t;
+}
+
+void write_gust_sweep_file(const std::string& path, const Case& c, const GustSweep& s) {
+  Hdf5Document doc(path);
+  doc.metadata(case_metadata(c, "gust-sweep"));
+  std::vector<double> H, U;
+  for (const auto& p : s.points) {
+    H.push_back(p.gradient);
+    U.push_back(p.design_velocity);
+  }
+  doc.axis("gradient", H, "m", "gust gradient distance H (half the gust length)");
+  doc.dataset("design_velocity", {"gradient"}, U, "m s-1",
+              "peak velocity of the first one-minus-cosine gust (true airspeed)");
+  if (!s.points.empty()) {
+    for (std::size_t k = 0; k < s.points.front().summary.extremes.size(); ++k) {
+      const Extreme& e0 = s.points.front().summary.extremes[k];
+      std::vector<double> mx, mn;
+      for (const auto& p : s.points) {
+        mx.push_back(p.summary.extremes[k].max);
+        mn.push_back(p.summary.extremes[k].min);
+      }
+      doc.dataset("peaks/" + e0.channel + "_max", {"gradient"}, mx, e0.units, "largest " + e0.channel);
+      doc.dataset("peaks/" + e0.channel + "_min", {"gradient"}, mn, e0.units, "smallest " + e0.channel);
+    }
+  }
+  for (const auto& cr : s.critical) {
+    doc.number_attribute("peaks", "critical_gradient_" + cr.channel, cr.gradient);
+    doc.number_attribute("peaks", "critical_value_" + cr.channel, cr.value);
+  }
+  doc.commit();
+}
+
+}  // namespace aerosect

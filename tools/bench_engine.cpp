@@ -98,6 +98,7 @@ int main(int argc, char** argv) {
                               sum += std::abs(x[aerosect::kPitch]);
                               ++count;
                             }
+                            return aerosect::ObserverAction::kContinue;
                           });
       seconds = std::chrono::duration<double>(clock::now() - t0c).count();
       amplitude = count ? sum / count : 0.0;

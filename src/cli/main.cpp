@@ -6,7 +6,14 @@
 #include <atomic>
 #include <csignal>
 #include <cstdio>
+#include <chrono>
 #include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <mutex>
+#include <thread>
+#include <unistd.h>
 #include <iostream>
 #include <optional>
 #include <sstream>
@@ -18,6 +25,7 @@
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/flutter_report.hpp"
 #include "aerosect/analysis/gust_sweep.hpp"
+#include "aerosect/analysis/sweep.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/error.hpp"
@@ -139,6 +147,131 @@ int run_gust(const Common& o, const std::string& output, const std::string& grad
   return 0;
 }
 
+// "KEY=FROM:TO:N" for --vary.
+aerosect::SweepAxis parse_vary(const std::string& text) {
+  const auto eq = text.find('=');
+  aerosect::SweepAxis ax;
+  double from = 0, to = 0;
+  long n = 0;
+  char c1 = 0, c2 = 0;
+  bool ok = eq != std::string::npos && eq > 0;
+  if (ok) {
+    ax.key = text.substr(0, eq);
+    std::istringstream in(text.substr(eq + 1));
+    in >> from >> c1 >> to >> c2 >> n;
+    ok = in && c1 == ':' && c2 == ':' && (in >> std::ws).eof() && std::isfinite(from) &&
+         std::isfinite(to) && to > from && n >= 2 && n <= 1000000;
+  }
+  if (!ok)
+    throw aerosect::InputError({"--vary " + text, 0, 0}, "--vary", text, "is not a valid sweep",
+                               "KEY=FROM:TO:N with a numeric case key, FROM < TO and N >= 2, e.g. "
+                               "--vary nondimensional.reduced_speed=1:7:61");
+  for (long i = 0; i < n; ++i) ax.values.push_back(from + (to - from) * i / (n - 1));
+  return ax;
+}
+
+int run_sweep_command(const Common& o, const std::string& output, const std::vector<std::string>& vary,
+                      const std::string& direction, const std::string& restart, int jobs,
+                      const std::string& shard) {
+  const aerosect::Case c = aerosect::load_case(o.case_path, o.overrides);
+  aerosect::SweepRequest req;
+  req.case_text = c.text;
+  req.case_path = c.path;
+  req.overrides = o.overrides;
+  if (vary.empty() || vary.size() > 2)
+    throw aerosect::InputError({"--vary", 0, 0}, "--vary", "", "give one or two --vary options",
+                               "--vary KEY=FROM:TO:N [--vary KEY2=FROM:TO:N]");
+  for (const auto& v : vary) req.options.axes.push_back(parse_vary(v));
+  req.options.up = direction != "down";
+  req.options.down = direction != "up";
+  req.options.continuation = restart == "continue";
+  req.options.jobs = jobs > 0 ? jobs : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+  if (!shard.empty()) {
+    int k = 0, n = 0;
+    char slash = 0;
+    std::istringstream in(shard);
+    in >> k >> slash >> n;
+    if (!in || slash != '/' || n < 1 || k < 1 || k > n || !(in >> std::ws).eof())
+      throw aerosect::InputError({"--shard " + shard, 0, 0}, "--shard", shard, "is not a shard",
+                                 "K/N with 1 <= K <= N, e.g. --shard 2/8");
+    req.options.shard_index = k;
+    req.options.shard_count = n;
+  }
+  // The journal holds every finished point; its first line identifies the sweep.
+  nlohmann::json id;
+  id["case_text"] = req.case_text;
+  id["overrides"] = req.overrides;
+  for (const auto& ax : req.options.axes) id["axes"].push_back({ax.key, ax.values});
+  id["up"] = req.options.up;
+  id["down"] = req.options.down;
+  id["continuation"] = req.options.continuation;
+  id["shard"] = {req.options.shard_index, req.options.shard_count};
+  const std::string journal = output + ".journal";
+  std::vector<aerosect::SweepPoint> done;
+  if (std::filesystem::exists(journal)) {
+    std::ifstream in(journal);
+    std::string line;
+    if (std::getline(in, line)) {
+      nlohmann::json head = nlohmann::json::parse(line, nullptr, false);
+      if (head.is_discarded() || head != id)
+        throw aerosect::InputError({journal, 1, 0}, "", "",
+                                   "this journal belongs to a different sweep",
+                                   "the same command as the interrupted run, or remove the journal / "
+                                   "choose another -o");
+      while (std::getline(in, line)) {
+        nlohmann::json pj = nlohmann::json::parse(line, nullptr, false);
+        if (pj.is_discarded()) break;  // a line cut by the interruption
+        done.push_back(aerosect::point_from_json(pj));
+      }
+    }
+    if (!done.empty())
+      std::cerr << "aerosect: resuming: " << done.size() << " finished points read from " << journal << "\n";
+  }
+  std::ofstream jout;
+  {
+    const bool fresh = done.empty();
+    jout.open(journal, fresh ? std::ios::trunc : std::ios::app);
+    if (!jout)
+      throw aerosect::OutputError(journal, "cannot open the sweep journal for writing");
+    if (fresh) jout << id.dump() << "\n" << std::flush;
+  }
+  std::size_t total = 0;
+  {
+    const std::size_t n2 = req.options.axes.size() > 1 ? req.options.axes[1].values.size() : 1;
+    const std::size_t chains = (req.options.up ? 1 : 0) + (req.options.down ? 1 : 0);
+    total = chains * n2 * req.options.axes[0].values.size() / static_cast<std::size_t>(req.options.shard_count);
+  }
+  std::mutex mu;
+  std::size_t finished = done.size();
+  const bool tty = isatty(2);
+  const auto t0 = std::chrono::steady_clock::now();
+  auto on_point = [&](const aerosect::SweepPoint& p) {
+    std::lock_guard<std::mutex> lock(mu);
+    jout << aerosect::point_json(p).dump() << "\n" << std::flush;
+    ++finished;
+    if (tty) {
+      const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+      const double eta = finished > done.size() ? el / static_cast<double>(finished - done.size()) *
+                                                      static_cast<double>(total > finished ? total - finished : 0)
+                                                : 0.0;
+      std::fprintf(stderr, "\r  %zu/%zu points, %.1f s elapsed, ETA %.1f s   ", finished, total, el, eta);
+    }
+  };
+  const std::vector<aerosect::SweepPoint> pts = aerosect::run_sweep(req, done, on_point, &g_interrupted);
+  if (tty) std::fprintf(stderr, "\n");
+  if (g_interrupted) {
+    std::cerr << "aerosect: interrupted; " << finished << " finished points kept in " << journal
+              << " (run the same command again to continue)\n";
+    return 130;
+  }
+  aerosect::write_sweep_file(output, c, req, pts);
+  jout.close();
+  std::filesystem::remove(journal);
+  print(o.json ? aerosect::sweep_json(c, req, pts, output).dump(2) + "\n"
+               : aerosect::sweep_text(c, req, pts, output));
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -182,6 +315,25 @@ int main(int argc, char** argv) {
   gust->add_option("--gradients", gust_gradients,
                    "gust gradients FROM:TO:N in m (default 12 over 9.144..106.68 m)");
 
+  Common sweep_opts;
+  std::string sweep_out, sweep_direction = "both", sweep_restart = "continue", sweep_shard;
+  std::vector<std::string> sweep_vary;
+  int sweep_jobs = 0;
+  CLI::App* sweep = app.add_subcommand(
+      "sweep", "LCO map: response class, amplitude and frequency against one or two case keys");
+  add_common(sweep, sweep_opts);
+  sweep->add_option("-o,--output", sweep_out, "HDF5 file for the map")->required();
+  sweep->add_option("--vary", sweep_vary, "KEY=FROM:TO:N (once or twice)")->required();
+  sweep->add_option("--direction", sweep_direction, "up, down or both")
+      ->check(CLI::IsMember({"up", "down", "both"}))
+      ->capture_default_str();
+  sweep->add_option("--restart", sweep_restart,
+                    "continue (each point from the previous point's final state) or fresh")
+      ->check(CLI::IsMember({"continue", "fresh"}))
+      ->capture_default_str();
+  sweep->add_option("--jobs", sweep_jobs, "threads (default: all cores)");
+  sweep->add_option("--shard", sweep_shard, "K/N: run the K-th of N deterministic parts");
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -192,6 +344,9 @@ int main(int argc, char** argv) {
     if (*check) return run_check(check_opts);
     if (*sim) return run_simulate(sim_opts, output);
     if (*gust) return run_gust(gust_opts, gust_out, gust_gradients);
+    if (*sweep)
+      return run_sweep_command(sweep_opts, sweep_out, sweep_vary, sweep_direction, sweep_restart,
+                               sweep_jobs, sweep_shard);
     if (*flutter)
       return run_flutter(flutter_opts, flutter_out, flutter_speeds, flutter_method, flutter_amplitude);
   } catch (const aerosect::InputError& e) {

@@ -177,10 +177,11 @@ std::optional<std::pair<double, const Boundary*>> first_crossing(
 // True extrema (velocity zeros) of every moving DOF inside (ta, tb], located
 // on the dense output and handed to the peak observer.
 template <class Stepper>
-void report_peaks(const Stepper& stepper, const AeroelasticModel& model, double ta,
-                  const State& xa, double tb, const State& xb, const PeakObserver& peaks,
-                  State& work) {
+ObserverAction report_peaks(const Stepper& stepper, const AeroelasticModel& model, double ta,
+                            const State& xa, double tb, const State& xb,
+                            const PeakObserver& peaks, State& work) {
   const StateLayout& L = model.layout();
+  ObserverAction action = ObserverAction::kContinue;
   for (int j = 0; j < L.n_dof; ++j) {
     if (model.description().held[j]) continue;
     const double va = xa[L.velocity + j], vb = xb[L.velocity + j];
@@ -199,8 +200,9 @@ void report_peaks(const Stepper& stepper, const AeroelasticModel& model, double 
       te = 0.5 * (br.first + br.second);
     }
     stepper.calc_state(te, work);
-    peaks(j, te, work);
+    if (peaks(j, te, work) == ObserverAction::kStop) action = ObserverAction::kStop;
   }
+  return action;
 }
 
 template <class Stepper>
@@ -296,18 +298,21 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
                                       long_step, work, probe);
     const double t_seg = event ? event->first : t_new;
     const double t_stop = std::min(t_seg, t_end);
+    ObserverAction peak_action = ObserverAction::kContinue;
     if (peaks) {
       const double tp = std::min(t_seg, t_end);
       if (tp == t_new) {
-        report_peaks(stepper, model, t_old, run.x, t_new, xn, peaks, work);
+        peak_action = report_peaks(stepper, model, t_old, run.x, t_new, xn, peaks, work);
       } else {
         stepper.calc_state(tp, sample);
-        report_peaks(stepper, model, t_old, run.x, tp, sample, peaks, work);
+        peak_action = report_peaks(stepper, model, t_old, run.x, tp, sample, peaks, work);
       }
     }
 
-    ObserverAction action = ObserverAction::kContinue;
-    if (schedule.every_step) {
+    ObserverAction action = peak_action;
+    if (action == ObserverAction::kStop) {
+      // The peak observer ends the run at the end of this segment.
+    } else if (schedule.every_step) {
       if (t_seg <= t_end + t_eps) {
         if (t_seg == t_new) {
           action = emit(t_new, xn);

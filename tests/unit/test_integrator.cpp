@@ -172,6 +172,7 @@ TEST_CASE("Peak observer finds the true extrema on the dense output", "[integrat
   integrate(model, run, 4.75, s, {false, 1.0}, {}, false, nullptr,
             [&](int dof, double t, const std::vector<double>& x) {
               if (dof == kPlunge) peaks.emplace_back(t, x[kPlunge]);
+              return ObserverAction::kContinue;
             });
   REQUIRE(peaks.size() == 9);  // 1 Hz: extrema every 0.5 s up to 4.75 s, the start excluded
   for (std::size_t k = 0; k < peaks.size(); ++k) {

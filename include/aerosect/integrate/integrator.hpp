@@ -67,9 +67,11 @@ enum class ObserverAction { kContinue, kStop };
 using SampleObserver = std::function<ObserverAction(double t, const std::vector<double>& x)>;
 
 // Called at every true extremum of a moving DOF j (a zero of its velocity,
-// located on the dense output to 1e-13 s): time and state there. A witness
-// with no action: it never changes the run.
-using PeakObserver = std::function<void(int dof, double t, const std::vector<double>& x)>;
+// located on the dense output to 1e-13 s): time and state there. A witness:
+// it never changes the trajectory; returning kStop ends the run after the
+// current step (an LCO detector that has seen the cycle settle).
+using PeakObserver =
+    std::function<ObserverAction(int dof, double t, const std::vector<double>& x)>;
 
 enum class StopReason { kEndTime, kObserver, kCancelled };
 const char* to_string(StopReason r);

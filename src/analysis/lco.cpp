@@ -1,0 +1,150 @@
+#include "aerosect/analysis/lco.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+
+namespace aerosect {
+
+const char* to_string(ResponseClass c) {
+  switch (c) {
+    case ResponseClass::kDecayed: return "decayed";
+    case ResponseClass::kPeriodic: return "periodic";
+    case ResponseClass::kNonPeriodic: return "non-periodic";
+    case ResponseClass::kDivergent: return "divergent";
+  }
+  return "?";
+}
+
+LcoTracker::LcoTracker(const AeroelasticModel& model, LcoSettings settings)
+    : model_(model), s_(settings) {
+  watch_ = kPitch;
+  if (s_.watch_dof >= 0) {
+    watch_ = s_.watch_dof;
+  } else if (!model.nonlinear_springs().empty()) {
+    watch_ = model.nonlinear_springs().front();
+  }
+  const SpringLaw& law = model.description().springs[watch_];
+  const auto bp = law.breakpoints();
+  if (!bp.empty()) {
+    const int r = law.region_of(law.offset());
+    if (law.gap_open_stiffness() < law.gap_closed_stiffness() && r > 0 &&
+        r < static_cast<int>(bp.size()) + 1) {
+      has_gap_ = true;
+      gap_lo_ = r > 0 ? bp[r - 1] : -1e300;
+      gap_hi_ = r < static_cast<int>(bp.size()) ? bp[r] : 1e300;
+    }
+  }
+}
+
+ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>& x) {
+  const StateLayout& L = model_.layout();
+  const double b = model_.description().section.semichord;
+  // Divergence on any DOF.
+  for (int j = 0; j < L.n_dof; ++j) {
+    const double v = std::abs(x[L.displacement + j]);
+    if ((j == kPlunge && v > s_.divergence_plunge * b) || (j != kPlunge && v > s_.divergence_angle)) {
+      decided_ = ResponseClass::kDivergent;
+      decided_flag_ = true;
+      return ObserverAction::kStop;
+    }
+  }
+  extrema_[dof].push_back({t, x[L.displacement + dof]});
+  if (dof != watch_) return ObserverAction::kContinue;
+  const auto& e = extrema_[dof];
+  const std::size_t n = e.size();
+  // A cycle completes at a maximum preceded by a minimum and a maximum.
+  if (n < 3) return ObserverAction::kContinue;
+  const Extremum &a = e[n - 3], &m = e[n - 2], &c = e[n - 1];
+  if (!(c.x > m.x && a.x > m.x)) return ObserverAction::kContinue;  // c is not a maximum
+  amplitude_.push_back(0.5 * (c.x - m.x));
+  period_.push_back(c.t - a.t);
+  cycle_end_.push_back(c.t);
+  const std::size_t k = amplitude_.size();
+  // Decay to rest.
+  if (amplitude_.back() < s_.decay_floor) {
+    decided_ = ResponseClass::kDecayed;
+    decided_flag_ = true;
+    return ObserverAction::kStop;
+  }
+  if (static_cast<int>(k) < std::max(s_.min_cycles, s_.settle_cycles + 1))
+    return ObserverAction::kContinue;
+  // Into the gap: the last cycles inside the gap, shrinking.
+  if (has_gap_) {
+    bool inside = true, shrinking = true;
+    for (std::size_t i = k - s_.settle_cycles; i < k; ++i) {
+      shrinking = shrinking && amplitude_[i] <= amplitude_[i - 1];
+    }
+    for (std::size_t i = n - 2 * s_.settle_cycles; i < n; ++i)
+      inside = inside && e[i].x > gap_lo_ && e[i].x < gap_hi_;
+    if (inside && shrinking) {
+      decided_ = ResponseClass::kDecayed;
+      decided_flag_ = true;
+      return ObserverAction::kStop;
+    }
+  }
+  // Stationary cycle, possibly with p sub-peaks per period (maxima of
+  // alternating heights): the sequences A_k and T_k repeat with lag p.
+  for (int lag = 1; lag <= kMaxLag; ++lag) {
+    const std::size_t need = static_cast<std::size_t>(s_.settle_cycles * lag + lag);
+    if (k < need || static_cast<int>(k) < s_.min_cycles * lag) break;
+    double amax = 0, tsum = 0;
+    for (std::size_t i = k - static_cast<std::size_t>(lag); i < k; ++i) {
+      amax = std::max(amax, amplitude_[i]);
+      tsum += period_[i];
+    }
+    bool settled = true;
+    for (std::size_t i = k - need + static_cast<std::size_t>(lag); i < k && settled; ++i) {
+      settled = std::abs(amplitude_[i] - amplitude_[i - lag]) <= s_.tolerance * amax &&
+                std::abs(period_[i] - period_[i - lag]) <= s_.tolerance * tsum;
+    }
+    if (settled) {
+      lag_ = lag;
+      decided_ = ResponseClass::kPeriodic;
+      decided_flag_ = true;
+      return ObserverAction::kStop;
+    }
+  }
+  return ObserverAction::kContinue;
+}
+
+LcoResult LcoTracker::result() const {
+  LcoResult r;
+  r.watched_dof = watch_;
+  r.cycles = static_cast<int>(amplitude_.size());
+  r.stopped_early = decided_flag_;
+  r.response = decided_flag_ ? decided_ : ResponseClass::kNonPeriodic;
+  if (!decided_flag_ && amplitude_.size() >= 2 &&
+      amplitude_.back() < 1e-3 * amplitude_.front() && amplitude_.back() < amplitude_[amplitude_.size() - 2])
+    r.response = ResponseClass::kDecayed;  // still decaying at the end of the run
+  if (!decided_flag_ && amplitude_.empty()) r.response = ResponseClass::kDecayed;  // no oscillation
+  const std::size_t k = amplitude_.size();
+  if (k == 0) return r;
+  const std::size_t window =
+      std::min<std::size_t>(k, static_cast<std::size_t>(s_.settle_cycles * lag_));
+  double pmean = 0, amin = 1e300, amax = 0;
+  for (std::size_t i = k - window; i < k; ++i) {
+    pmean += period_[i];
+    amin = std::min(amin, amplitude_[i]);
+    amax = std::max(amax, amplitude_[i]);
+  }
+  pmean = pmean / static_cast<double>(window) * lag_;  // the whole period of a p-peak cycle
+  r.frequency = pmean > 0 ? 1.0 / pmean : 0.0;
+  r.peaks_per_period = lag_;
+  r.spread = amax > 0 ? (amax - amin) / (0.5 * (amax + amin)) : 0.0;
+  // Per-DOF figures over the window of the last cycles.
+  const double t_from = k > window ? cycle_end_[k - window - 1] : cycle_end_.front() - period_.front();
+  const double t_to = cycle_end_.back();
+  for (int j = 0; j < model_.n_dof(); ++j) {
+    double mx = -1e300, mn = 1e300;
+    for (const auto& ex : extrema_[j]) {
+      if (ex.t < t_from - 1e-12 || ex.t > t_to + 1e-12) continue;
+      mx = std::max(mx, ex.x);
+      mn = std::min(mn, ex.x);
+    }
+    if (mx >= mn) r.dof[j] = {0.5 * (mx - mn), mx, mn};
+  }
+  return r;
+}
+
+}  // namespace aerosect

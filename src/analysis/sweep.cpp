@@ -1,0 +1,357 @@
+#include "aerosect/analysis/sweep.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <map>
+#include <numbers>
+#include <tuple>
+
+#include <fmt/format.h>
+
+#include "aerosect/analysis/report.hpp"
+#include "aerosect/analysis/simulate.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/hdf5_document.hpp"
+#include "aerosect/version.hpp"
+
+namespace aerosect {
+
+namespace {
+
+using Key = std::tuple<int, int, int>;  // direction, j, i
+
+struct Chain {
+  int direction, j;
+};
+
+SweepPoint run_point(const SweepRequest& r, int d, int i, int j, const SweepPoint* previous) {
+  const SweepOptions& o = r.options;
+  SweepPoint p;
+  p.direction = d;
+  p.i = i;
+  p.j = j;
+  p.value1 = o.axes[0].values[static_cast<std::size_t>(i)];
+  p.value2 = o.axes.size() > 1 ? o.axes[1].values[static_cast<std::size_t>(j)] : 0.0;
+  std::vector<std::string> ov = r.overrides;
+  ov.push_back(fmt::format("{}={:.17g}", o.axes[0].key, p.value1));
+  if (o.axes.size() > 1) ov.push_back(fmt::format("{}={:.17g}", o.axes[1].key, p.value2));
+  const Case c = parse_case(r.case_text, r.case_path, ov);
+  const AeroelasticModel model(c.model);
+  RunState run;
+  // A divergent or failed point's final state is no start for the next.
+  const bool carry = o.continuation && previous && previous->ok &&
+                     previous->lco.response != ResponseClass::kDivergent &&
+                     static_cast<int>(previous->final_state.size()) == model.state_size() &&
+                     static_cast<int>(previous->final_regions.size()) == model.n_dof();
+  if (carry) {
+    run.x = previous->final_state;
+    run.regions = previous->final_regions;
+  } else {
+    run.x = model.initial_state(c.simulation.initial_displacement, c.simulation.initial_velocity,
+                                c.simulation.steady_lag_states);
+    run.regions = model.regions_of(run.x.data());
+  }
+  LcoTracker tracker(model, o.lco);
+  try {
+    integrate(model, run, c.simulation.duration, c.simulation.integrator,
+              {false, 2.0 * c.simulation.duration}, {}, false, nullptr,
+              [&tracker](int dof, double t, const std::vector<double>& x) {
+                return tracker.on_peak(dof, t, x);
+              });
+  } catch (const NumericalError& e) {
+    p.ok = false;
+    p.error = e.what();
+  }
+  p.lco = tracker.result();
+  p.end_time = run.time;
+  p.steps = run.steps;
+  p.switches = run.switches;
+  p.final_state = run.x;
+  p.final_regions = run.regions;
+  // The next point starts from this one's state at t = 0 of its own run.
+  return p;
+}
+
+}  // namespace
+
+std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<SweepPoint>& done,
+                                  const std::function<void(const SweepPoint&)>& on_point,
+                                  const std::atomic<bool>* cancel) {
+  const SweepOptions& o = r.options;
+  AEROSECT_CHECK(!o.axes.empty() && o.axes.size() <= 2);
+  const int n1 = static_cast<int>(o.axes[0].values.size());
+  const int n2 = o.axes.size() > 1 ? static_cast<int>(o.axes[1].values.size()) : 1;
+  std::vector<Chain> chains;
+  for (int d : {0, 1}) {
+    if ((d == 0 && !o.up) || (d == 1 && !o.down)) continue;
+    for (int j = 0; j < n2; ++j) chains.push_back({d, j});
+  }
+  std::vector<Chain> mine;
+  for (std::size_t c = 0; c < chains.size(); ++c)
+    if (static_cast<int>(c % static_cast<std::size_t>(o.shard_count)) == o.shard_index - 1)
+      mine.push_back(chains[c]);
+  std::map<Key, SweepPoint> known;
+  for (const auto& p : done) known[{p.direction, p.j, p.i}] = p;
+
+  std::vector<std::vector<SweepPoint>> results(mine.size());
+  // Validate the swept values once, up front (bad input is an error before any work).
+  {
+    std::vector<std::string> ov = r.overrides;
+    for (const auto& ax : o.axes)
+      for (double v : ax.values) {
+        std::vector<std::string> o2 = ov;
+        o2.push_back(fmt::format("{}={:.17g}", ax.key, v));
+        (void)parse_case(r.case_text, r.case_path, o2);
+      }
+  }
+  std::exception_ptr failure;
+#pragma omp parallel for schedule(dynamic, 1) num_threads(std::max(1, o.jobs))
+  for (std::size_t c = 0; c < mine.size(); ++c) {
+    try {
+      const Chain ch = mine[c];
+      const SweepPoint* previous = nullptr;
+      std::vector<SweepPoint>& out = results[c];
+      out.reserve(static_cast<std::size_t>(n1));
+      for (int k = 0; k < n1; ++k) {
+        if (cancel && cancel->load()) break;
+        const int i = ch.direction == 0 ? k : n1 - 1 - k;
+        auto it = known.find({ch.direction, ch.j, i});
+        if (it != known.end()) {
+          out.push_back(it->second);
+        } else {
+          out.push_back(run_point(r, ch.direction, i, ch.j, previous));
+          if (on_point) on_point(out.back());
+        }
+        previous = &out.back();
+      }
+    } catch (...) {
+#pragma omp critical
+      failure = std::current_exception();
+    }
+  }
+  if (failure) std::rethrow_exception(failure);
+  std::vector<SweepPoint> all;
+  for (auto& v : results)
+    for (auto& p : v) all.push_back(std::move(p));
+  std::sort(all.begin(), all.end(), [](const SweepPoint& a, const SweepPoint& b) {
+    return std::tie(a.direction, a.j, a.i) < std::tie(b.direction, b.j, b.i);
+  });
+  return all;
+}
+
+nlohmann::json point_json(const SweepPoint& p) {
+  nlohmann::json j;
+  j["direction"] = p.direction;
+  j["i"] = p.i;
+  j["j"] = p.j;
+  j["value1"] = p.value1;
+  j["value2"] = p.value2;
+  j["ok"] = p.ok;
+  j["error"] = p.error;
+  j["class"] = to_string(p.lco.response);
+  j["class_code"] = static_cast<int>(p.lco.response);
+  j["watched_dof"] = p.lco.watched_dof;
+  j["cycles"] = p.lco.cycles;
+  j["frequency_hz"] = p.lco.frequency;
+  j["spread"] = p.lco.spread;
+  j["stopped_early"] = p.lco.stopped_early;
+  for (int k = 0; k < 3; ++k)
+    j["dof"].push_back({p.lco.dof[k].amplitude, p.lco.dof[k].max, p.lco.dof[k].min});
+  j["end_time"] = p.end_time;
+  j["steps"] = p.steps;
+  j["switches"] = p.switches;
+  j["final_state"] = p.final_state;
+  j["final_regions"] = p.final_regions;
+  return j;
+}
+
+SweepPoint point_from_json(const nlohmann::json& j) {
+  SweepPoint p;
+  p.direction = j.at("direction");
+  p.i = j.at("i");
+  p.j = j.at("j");
+  p.value1 = j.at("value1");
+  p.value2 = j.at("value2");
+  p.ok = j.at("ok");
+  p.error = j.at("error");
+  p.lco.response = static_cast<ResponseClass>(j.at("class_code").get<int>());
+  p.lco.watched_dof = j.at("watched_dof");
+  p.lco.cycles = j.at("cycles");
+  p.lco.frequency = j.at("frequency_hz");
+  p.lco.spread = j.at("spread");
+  p.lco.stopped_early = j.at("stopped_early");
+  for (int k = 0; k < 3; ++k) {
+    const auto& d = j.at("dof").at(static_cast<std::size_t>(k));
+    p.lco.dof[k] = {d.at(0), d.at(1), d.at(2)};
+  }
+  p.end_time = j.at("end_time");
+  p.steps = j.at("steps");
+  p.switches = j.at("switches");
+  p.final_state = j.at("final_state").get<std::vector<double>>();
+  p.final_regions = j.at("final_regions").get<std::vector<int>>();
+  return p;
+}
+
+SweepSummary summarize(const std::vector<SweepPoint>& points, int jj) {
+  SweepSummary s;
+  std::vector<const SweepPoint*> up, down;
+  for (const auto& p : points) {
+    if (p.j != jj) continue;
+    (p.direction == 0 ? up : down).push_back(&p);
+    const double a = p.lco.dof[static_cast<std::size_t>(p.lco.watched_dof)].amplitude;
+    if (p.lco.response == ResponseClass::kPeriodic && (!s.largest_amplitude || a > *s.largest_amplitude)) {
+      s.largest_amplitude = a;
+      s.largest_at = p.value1;
+      s.largest_direction = p.direction;
+    }
+  }
+  std::sort(up.begin(), up.end(), [](auto a, auto b) { return a->i < b->i; });
+  std::sort(down.begin(), down.end(), [](auto a, auto b) { return a->i < b->i; });
+  for (const SweepPoint* p : up)
+    if (p->lco.response == ResponseClass::kPeriodic) {
+      s.onset_up = p->value1;
+      break;
+    }
+  for (const SweepPoint* p : down)
+    if (p->lco.response == ResponseClass::kPeriodic) {
+      s.disappearance_down = p->value1;
+      break;
+    }
+  return s;
+}
+
+namespace {
+const char* kDofNames[3] = {"plunge", "pitch", "flap"};
+}
+
+nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
+                          const std::string& output) {
+  nlohmann::json j;
+  j["command"] = "sweep";
+  j["aerosect_version"] = kVersion;
+  j["case"] = c.path;
+  j["title"] = c.title;
+  j["dof"] = c.model.section.dof;
+  j["overrides"] = c.overrides;
+  j["caution"] = kSafetyCaution;
+  j["output"] = output;
+  for (const auto& ax : r.options.axes)
+    j["vary"].push_back({{"key", ax.key}, {"from", ax.values.front()}, {"to", ax.values.back()},
+                         {"count", ax.values.size()}});
+  j["continuation"] = r.options.continuation;
+  j["points_computed"] = p.size();
+  const SweepSummary s = summarize(p);
+  auto opt = [](const std::optional<double>& v) { return v ? nlohmann::json(*v) : nlohmann::json(nullptr); };
+  j["lco_onset_up"] = opt(s.onset_up);
+  j["lco_disappearance_down"] = opt(s.disappearance_down);
+  if (s.onset_up && s.disappearance_down && *s.disappearance_down < *s.onset_up)
+    j["hysteresis_band"] = {*s.disappearance_down, *s.onset_up};
+  else
+    j["hysteresis_band"] = nullptr;
+  j["largest_amplitude"] = opt(s.largest_amplitude);
+  j["largest_amplitude_at"] = s.largest_amplitude ? nlohmann::json(s.largest_at) : nlohmann::json(nullptr);
+  j["points"] = nlohmann::json::array();
+  for (const auto& q : p) {
+    nlohmann::json pj = point_json(q);
+    pj.erase("final_state");
+    pj.erase("final_regions");
+    j["points"].push_back(pj);
+  }
+  return j;
+}
+
+std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
+                       const std::string& output) {
+  std::string t = fmt::format("aerosect {} sweep: {}\n", kVersion, c.path);
+  if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
+  for (const auto& ax : r.options.axes)
+    t += fmt::format("  {} from {:.6g} to {:.6g} ({} values)\n", ax.key, ax.values.front(),
+                     ax.values.back(), ax.values.size());
+  t += fmt::format("  {}; {} points\n\n", r.options.continuation ? "continuation" : "fresh starts",
+                   p.size());
+  t += fmt::format("  {:>4} {:>14} {:>13} {:>12} {:>10} {:>7}\n", "dir", r.options.axes[0].key, "class",
+                   "amplitude", "freq Hz", "cycles");
+  for (const auto& q : p) {
+    const int w = q.lco.watched_dof;
+    const bool angle = w != kPlunge;
+    t += fmt::format("  {:>4} {:>14.6g} {:>13} {:>9.5g} {:<2} {:>10.4g} {:>7}{}\n",
+                     q.direction == 0 ? "up" : "down", q.value1,
+                     q.ok ? to_string(q.lco.response) : "failed",
+                     q.lco.dof[static_cast<std::size_t>(w)].amplitude * (angle ? 180 / std::numbers::pi : 1.0),
+                     angle ? "°" : "m", q.lco.frequency, q.lco.cycles,
+                     q.ok ? "" : "  " + q.error.substr(0, 60));
+  }
+  const SweepSummary s = summarize(p);
+  t += "\n";
+  t += s.onset_up ? fmt::format("  LCO onset going up: {:.6g}\n", *s.onset_up) : "  no LCO going up\n";
+  if (r.options.down)
+    t += s.disappearance_down ? fmt::format("  LCO persists going down to: {:.6g}\n", *s.disappearance_down)
+                              : "  no LCO going down\n";
+  if (s.onset_up && s.disappearance_down && *s.disappearance_down < *s.onset_up)
+    t += fmt::format("  hysteresis band: {:.6g} .. {:.6g}\n", *s.disappearance_down, *s.onset_up);
+  if (s.largest_amplitude)
+    t += fmt::format("  largest LCO amplitude of the {}: {:.5g} at {:.6g}\n",
+                     kDofNames[p.front().lco.watched_dof], *s.largest_amplitude, s.largest_at);
+  if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
+  t += "\n";
+  t += kSafetyCaution;
+  t += "\n";
+  return t;
+}
+
+void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
+                      const std::vector<SweepPoint>& points) {
+  Hdf5Document doc(path);
+  RunMetadata meta = case_metadata(c, "sweep");
+  meta.text_attributes.push_back({"continuation", r.options.continuation ? "continue" : "fresh"});
+  doc.metadata(meta);
+  const auto& o = r.options;
+  const std::size_t n1 = o.axes[0].values.size();
+  const std::size_t n2 = o.axes.size() > 1 ? o.axes[1].values.size() : 1;
+  const std::vector<std::int32_t> dirs = {0, 1};
+  doc.integer_axis("direction", dirs, "sweep direction: 0 up (ascending), 1 down");
+  doc.text_attribute("direction", "names", "up,down");
+  doc.axis("value_1", o.axes[0].values, "1", "swept value of " + o.axes[0].key);
+  doc.text_attribute("value_1", "key", o.axes[0].key);
+  std::vector<std::string> dims = {"direction", "value_1"};
+  if (o.axes.size() > 1) {
+    doc.axis("value_2", o.axes[1].values, "1", "swept value of " + o.axes[1].key);
+    doc.text_attribute("value_2", "key", o.axes[1].key);
+    dims.push_back("value_2");
+  }
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  const std::size_t N = 2 * n1 * n2;
+  auto at = [&](const SweepPoint& p) {
+    return (static_cast<std::size_t>(p.direction) * n1 + static_cast<std::size_t>(p.i)) * n2 +
+           static_cast<std::size_t>(p.j);
+  };
+  auto table = [&](const std::string& name, auto&& f, const std::string& units, const std::string& ln) {
+    std::vector<double> v(N, nan);
+    for (const auto& p : points) v[at(p)] = f(p);
+    doc.dataset(name, dims, v, units, ln);
+  };
+  table("response_class", [](const SweepPoint& p) { return p.ok ? static_cast<double>(p.lco.response) : 4.0; },
+        "1", "0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed (NaN: not run)");
+  table("frequency", [](const SweepPoint& p) { return p.lco.frequency; }, "Hz", "LCO frequency");
+  table("cycles", [](const SweepPoint& p) { return static_cast<double>(p.lco.cycles); }, "1",
+        "complete cycles of the watched DOF");
+  table("spread", [](const SweepPoint& p) { return p.lco.spread; }, "1",
+        "relative spread of the cycle amplitude over the last cycles");
+  table("end_time", [](const SweepPoint& p) { return p.end_time; }, "s", "time the run ended");
+  table("switches", [](const SweepPoint& p) { return static_cast<double>(p.switches); }, "1",
+        "spring switching points crossed");
+  for (int k = 0; k < c.model.section.dof; ++k) {
+    const std::string u = k == kPlunge ? "m" : "rad";
+    const std::string n = kDofNames[k];
+    table(n + "_amplitude", [k](const SweepPoint& p) { return p.lco.dof[k].amplitude; }, u,
+          n + " half peak-to-peak amplitude over the last cycles");
+    table(n + "_max", [k](const SweepPoint& p) { return p.lco.dof[k].max; }, u, n + " largest value");
+    table(n + "_min", [k](const SweepPoint& p) { return p.lco.dof[k].min; }, u, n + " smallest value");
+  }
+  if (!points.empty())
+    doc.text_attribute("", "watched_dof", kDofNames[points.front().lco.watched_dof]);
+  doc.commit();
+}
+
+}  // namespace aerosect

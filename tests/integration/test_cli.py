@@ -71,6 +71,26 @@ with tempfile.TemporaryDirectory() as tmp:
     check("flutter text", r.returncode == 0 and "Freeplay" in r.stdout and "1.15 V_D" in r.stdout
           and "safety-critical" in r.stdout, r.stdout[-500:])
 
+    # sweep: map written, journal removed, JSON summary
+    sw = os.path.join(tmp, "map.h5")
+    r = run("sweep", DEMO, "--vary", "flow.airspeed=20:60:5", "-o", sw, "--json", "--jobs", "2",
+            "--set", "simulation.duration=2.0")
+    check("sweep exit", r.returncode == 0, r.stderr)
+    j = json.loads(r.stdout)
+    check("sweep points", j["points_computed"] == 10, j.get("points_computed"))
+    check("sweep file", os.path.exists(sw) and not os.path.exists(sw + ".journal"))
+    check("sweep classes", all(p["class"] in ("decayed", "periodic", "non-periodic", "divergent") for p in j["points"]))
+    # a journal from another sweep is refused, not silently reused
+    with open(sw + ".journal", "w") as f:
+        f.write('{"other": 1}\n')
+    r = run("sweep", DEMO, "--vary", "flow.airspeed=20:60:5", "-o", sw)
+    check("foreign journal refused", r.returncode == 2 and "different sweep" in r.stderr, r.stderr)
+    os.remove(sw + ".journal")
+    r = run("sweep", DEMO, "--vary", "flow.airsped=20:60:5", "-o", sw)
+    check("sweep bad key", r.returncode == 2 and "did you mean 'flow.airspeed'" in r.stderr, r.stderr)
+    r = run("sweep", DEMO, "--vary", "flow.airspeed=60:20:5", "-o", sw)
+    check("sweep bad range", r.returncode == 2 and "FROM < TO" in r.stderr, r.stderr)
+
     # bad input: exit code 2, message on stderr naming file, line and key
     bad = os.path.join(tmp, "bad.toml")
     with open(bad, "w") as f:

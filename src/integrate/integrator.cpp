@@ -138,9 +138,13 @@ std::optional<std::pair<double, const Boundary*>> first_crossing(
     for (std::size_t i = 0; i < nb; ++i) {
       const Boundary& b = boundaries[i];
       const double h = h_of(b, *xt), v = (*xt)[L.velocity + b.spring];
+      // An excursion past the breakpoint smaller than this is a touch, not a
+      // switch (a peak that sits on the breakpoint to round-off would
+      // otherwise flip the region back and forth at one instant).
+      const double h_tol = 1e-10 * std::max(std::abs(b.position), 1e-9);
       double crossing = -1;
       const bool extremum = v_prev[i] * v < 0;
-      if (h_prev[i] <= 0 && h > 0) {
+      if (h_prev[i] <= 0 && h > h_tol) {
         auto f = [&](double s) { return h_at(b, s); };
         double hi = t, h_hi = h;
         if (extremum) {
@@ -149,19 +153,29 @@ std::optional<std::pair<double, const Boundary*>> first_crossing(
           auto fv = [&](double s) { return v_at(b, s); };
           const double te = refine(fv, t_prev, t, v_prev[i], v);
           const double he = h_at(b, te);
-          if (he > 0) {
+          if (he > h_tol) {
             hi = te;
             h_hi = he;
           }
         }
         crossing = refine(f, t_prev, hi, h_prev[i], h_hi);
-      } else if (h <= 0 && extremum) {
+      } else if (h <= h_tol && extremum) {
         auto fv = [&](double s) { return v_at(b, s); };
         const double te = refine(fv, t_prev, t, v_prev[i], v);
         const double he = h_at(b, te);
-        if (he > 0) {
+        if (he > h_tol) {
           auto f = [&](double s) { return h_at(b, s); };
           crossing = refine(f, t_prev, te, h_prev[i], he);
+        }
+      }
+      if (crossing >= 0) {
+        // The restart state must lie strictly beyond the breakpoint: a root
+        // that lands exactly on it (h == 0 in floating point) would start the
+        // next region on its own boundary and switch back at once.
+        double bump = 4 * std::numeric_limits<double>::epsilon() * std::max(1.0, std::abs(crossing));
+        for (int k = 0; k < 40 && h_at(b, crossing) <= 0 && crossing < t; ++k) {
+          crossing = std::min(t, crossing + bump);
+          bump *= 2;
         }
       }
       if (crossing >= 0 && (!best || crossing < best->first)) best = std::make_pair(crossing, &b);

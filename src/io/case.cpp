@@ -21,6 +21,7 @@
 #include "aerosect/io/gust_record.hpp"
 #include "aerosect/model/gust.hpp"
 #include "aerosect/model/spring.hpp"
+#include "aerosect/model/turbulence.hpp"
 
 namespace aerosect {
 
@@ -126,6 +127,12 @@ const std::vector<std::string> kKnownKeys = {
     "gust.base_dataset",
     "gust.velocity_dataset",
     "gust.scale",
+    "gust.model",
+    "gust.intensity",
+    "gust.severity",
+    "gust.scale_length",
+    "gust.seed",
+    "gust.sample_interval",
     "springs.plunge.law",
     "springs.plunge.half_gap",
     "springs.plunge.total_gap",
@@ -1019,15 +1026,18 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
   for (const auto& e : *node->as_array()) {
     const Table g(ctx, e.as_table(), "gust");
     GustProfile p;
-    const std::string shape =
-        g.choice("shape", {"sharp-edged", "one-minus-cosine", "sinusoidal", "recorded"}, "");
+    const std::string shape = g.choice(
+        "shape", {"sharp-edged", "one-minus-cosine", "sinusoidal", "recorded", "turbulence"}, "");
     if (shape.empty())
       g.missing("shape", "\"sharp-edged\", \"one-minus-cosine\", \"sinusoidal\" or \"recorded\"");
+    const bool turbulence = shape == "turbulence";
     p.shape = shape == "sharp-edged"        ? GustShape::kSharpEdged
               : shape == "one-minus-cosine" ? GustShape::kOneMinusCosine
               : shape == "sinusoidal"       ? GustShape::kSinusoidal
                                             : GustShape::kRecorded;
-    const bool recorded = p.shape == GustShape::kRecorded;
+    const bool recorded = p.shape == GustShape::kRecorded && !turbulence;
+    for (const char* k : {"model", "intensity", "severity", "scale_length", "seed", "sample_interval"})
+      if (!turbulence && g.has(k)) g.fail(k, "is only used by turbulence", "shape = \"turbulence\"");
     for (const char* k : {"file", "base", "base_dataset", "velocity_dataset", "scale"})
       if (!recorded && g.has(k)) g.fail(k, "is only used by recorded gusts", "shape = \"recorded\"");
     g.require(U > 0 && rho > 0, "shape", "needs air and a positive airspeed",
@@ -1075,7 +1085,59 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
         c.gust_regulation = in;
       }
     }
-    if (recorded) {
+    if (turbulence) {
+      // Continuous turbulence: a seeded record from the shaping filter
+      // (turbulence.hpp), replayed as a recorded gust over the whole run.
+      for (const char* k : {"amplitude", "amplitude_eas", "design", "gradient", "file"})
+        if (g.has(k)) g.fail(k, "is not used by turbulence", "model, intensity or severity, scale_length, seed");
+      TurbulenceSpec spec;
+      spec.model = g.choice("model", {"dryden", "von-karman"}, "von-karman") == "dryden"
+                       ? TurbulenceModel::kDryden
+                       : TurbulenceModel::kVonKarman;
+      spec.airspeed = U;
+      double h = c.altitude.value_or(-1.0);
+      if (auto a = g.number("altitude")) h = *a;
+      const std::string ik = g.one_of({"intensity", "severity"});
+      if (ik == "intensity") {
+        spec.intensity = *g.number("intensity");
+        g.require(spec.intensity >= 0 && spec.intensity < 50, "intensity", "is impossible", "0 <= sigma_w < 50 m/s");
+      } else {
+        const std::string sev = g.choice("severity", {"light", "moderate", "severe"}, "");
+        if (sev.empty()) g.missing("intensity | gust.severity", "intensity (sigma_w, m/s) or severity (MIL-F-8785C)");
+        if (!(h > 0)) g.missing("altitude", "an altitude (m) for the MIL-F-8785C intensity");
+        spec.intensity = mil8785c_intensity(sev == "light" ? TurbulenceSeverity::kLight
+                                            : sev == "moderate" ? TurbulenceSeverity::kModerate
+                                                                : TurbulenceSeverity::kSevere, h);
+      }
+      if (auto L = g.number("scale_length")) {
+        g.require(*L > 0, "scale_length", "must be positive", "L_w in m (MIL-F-8785C convention)");
+        spec.scale_length = *L;
+      } else {
+        if (!(h > 0)) g.missing("scale_length", "a scale length (m), or an altitude for the MIL-F-8785C default");
+        spec.scale_length = mil8785c_scale_length(spec.model, h);
+      }
+      const double seed = g.number("seed").value_or(1.0);
+      g.require(seed >= 0 && seed < 9.007e15 && seed == std::floor(seed), "seed", "must be a whole number",
+                "0 <= seed < 2^53");
+      spec.seed = static_cast<std::uint64_t>(seed);
+      const auto w = uncoupled_frequencies(c.model.section);
+      const double fastest = std::max({w.plunge, w.pitch, w.flap});
+      double dt = std::min(spec.scale_length / U / 20.0, 2 * pi / fastest / 40.0);
+      if (auto v = g.number("sample_interval")) {
+        g.require(*v > 0, "sample_interval", "must be positive", "s");
+        dt = *v;
+      }
+      const double span = c.simulation.duration - p.start;
+      g.require(span / dt < 5e7, "sample_interval", fmt::format("gives {:.3g} samples", span / dt),
+                "at most 5e7 samples in a turbulence record");
+      const std::size_t n = static_cast<std::size_t>(std::ceil(std::max(span, dt) / dt)) + 1;
+      const std::vector<double> rec = turbulence_record(spec, dt, n);
+      p.record_velocity = rec;
+      p.record_time.resize(n);
+      for (std::size_t k = 0; k < n; ++k) p.record_time[k] = static_cast<double>(k) * dt;
+      p.label = fmt::format("{} turbulence sigma = {:.3g} m/s, L = {:.4g} m, seed {}", to_string(spec.model),
+                            spec.intensity, spec.scale_length, spec.seed);
+    } else if (recorded) {
       for (const char* k : {"amplitude", "amplitude_eas", "design", "gradient"})
         if (g.has(k)) g.fail(k, "is not used by recorded gusts (scale the record with `scale`)",
                              "file, base, base_dataset, velocity_dataset, scale");
@@ -1119,7 +1181,7 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
       for (const char* k : {"frequency_hz", "reduced_frequency", "cycles"})
         if (g.has(k)) g.fail(k, "is only used by sinusoidal gusts", "shape = \"sinusoidal\"");
     }
-    p.label = g.string("label").value_or(
+    if (!turbulence) p.label = g.string("label").value_or(
         p.shape == GustShape::kOneMinusCosine ? fmt::format("1-cos H = {:g} m", p.gradient) : shape);
     profiles.push_back(p);
   }
@@ -1242,7 +1304,6 @@ Case parse_case(const std::string& text, const std::string& path,
   }
 
   read_aerodynamics(top.sub("aerodynamics"), c);
-  read_gusts(root, ctx, top.sub("aerodynamics"), c);
   const Table env = top.sub("envelope");
   if (auto v = env.number("dive_speed_eas")) {
     env.require(*v > 0 && *v < 1000, "dive_speed_eas", "is impossible",
@@ -1250,6 +1311,7 @@ Case parse_case(const std::string& text, const std::string& path,
     c.dive_speed_eas = *v;
   }
   read_initial_and_simulation(top.sub("initial"), top.sub("simulation"), c);
+  read_gusts(root, ctx, top.sub("aerodynamics"), c);
   return c;
 }
 

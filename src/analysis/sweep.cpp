@@ -140,6 +140,33 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
   return all;
 }
 
+nlohmann::json request_json(const SweepRequest& r) {
+  nlohmann::json id;
+  id["case_text"] = r.case_text;
+  id["case_path"] = r.case_path;
+  id["overrides"] = r.overrides;
+  for (const auto& ax : r.options.axes) id["axes"].push_back({ax.key, ax.values});
+  id["up"] = r.options.up;
+  id["down"] = r.options.down;
+  id["continuation"] = r.options.continuation;
+  id["shard"] = {r.options.shard_index, r.options.shard_count};
+  return id;
+}
+
+SweepRequest request_from_json(const nlohmann::json& j) {
+  SweepRequest r;
+  r.case_text = j.at("case_text");
+  r.case_path = j.at("case_path");
+  r.overrides = j.at("overrides").get<std::vector<std::string>>();
+  for (const auto& a : j.at("axes")) r.options.axes.push_back({a.at(0), a.at(1).get<std::vector<double>>()});
+  r.options.up = j.at("up");
+  r.options.down = j.at("down");
+  r.options.continuation = j.at("continuation");
+  r.options.shard_index = j.at("shard").at(0);
+  r.options.shard_count = j.at("shard").at(1);
+  return r;
+}
+
 nlohmann::json point_json(const SweepPoint& p) {
   nlohmann::json j;
   j["direction"] = p.direction;
@@ -351,7 +378,86 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
   }
   if (!points.empty())
     doc.text_attribute("", "watched_dof", kDofNames[points.front().lco.watched_dof]);
+  // Everything needed to merge shards into the file an unsharded run writes.
+  doc.text_attribute("", "sweep_request", request_json(r).dump());
   doc.commit();
+}
+
+}  // namespace aerosect
+
+namespace aerosect {
+
+void merge_sweep_files(const std::vector<std::string>& inputs, const std::string& output) {
+  std::optional<nlohmann::json> request;
+  std::vector<int> shards;
+  int count = 0;
+  std::map<Key, SweepPoint> merged;
+  for (const auto& path : inputs) {
+    nlohmann::json req = nlohmann::json::parse(read_text_attribute(path, "sweep_request"), nullptr, false);
+    if (req.is_discarded())
+      throw InputError({path, 0, 0}, "", "", "is not an aerosect sweep file", "files written by aerosect sweep");
+    const int k = req.at("shard").at(0), n = req.at("shard").at(1);
+    req["shard"] = {1, 1};
+    if (request && *request != req)
+      throw InputError({path, 0, 0}, "", "", "is a shard of a different sweep than " + inputs.front(),
+                       "the shard files of one sweep command");
+    if (count && n != count)
+      throw InputError({path, 0, 0}, "", "", fmt::format("is shard {}/{}, the others are of {}", k, n, count),
+                       "shards of one --shard K/N series");
+    if (std::find(shards.begin(), shards.end(), k) != shards.end())
+      throw InputError({path, 0, 0}, "", "", fmt::format("shard {}/{} is given twice", k, n), "each shard once");
+    request = req;
+    count = n;
+    shards.push_back(k);
+    // Points of this shard: the entries its tables hold (NaN: not run here).
+    const SweepRequest r = request_from_json(req);
+    const std::size_t n1 = r.options.axes[0].values.size();
+    const std::size_t n2 = r.options.axes.size() > 1 ? r.options.axes[1].values.size() : 1;
+    auto table = [&](const std::string& name) { return read_double_dataset(path, name); };
+    const auto cls = table("response_class");
+    const auto freq = table("frequency"), cyc = table("cycles"), spr = table("spread");
+    const auto end = table("end_time"), sw = table("switches");
+    const std::string watched = read_text_attribute(path, "watched_dof");
+    const int w = watched == "plunge" ? kPlunge : watched == "flap" ? kFlap : kPitch;
+    const int ndof = static_cast<int>(parse_case(r.case_text, r.case_path, r.overrides).model.section.dof);
+    std::vector<std::vector<double>> amp(3), mx(3), mn(3);
+    for (int d = 0; d < ndof; ++d) {
+      amp[d] = table(std::string(kDofNames[d]) + "_amplitude");
+      mx[d] = table(std::string(kDofNames[d]) + "_max");
+      mn[d] = table(std::string(kDofNames[d]) + "_min");
+    }
+    for (int dir = 0; dir < 2; ++dir)
+      for (std::size_t i = 0; i < n1; ++i)
+        for (std::size_t j = 0; j < n2; ++j) {
+          const std::size_t at = (static_cast<std::size_t>(dir) * n1 + i) * n2 + j;
+          if (std::isnan(cls[at])) continue;
+          SweepPoint p;
+          p.direction = dir;
+          p.i = static_cast<int>(i);
+          p.j = static_cast<int>(j);
+          p.value1 = r.options.axes[0].values[i];
+          p.value2 = n2 > 1 ? r.options.axes[1].values[j] : 0.0;
+          p.ok = cls[at] != 4.0;
+          p.lco.response = p.ok ? static_cast<ResponseClass>(static_cast<int>(cls[at])) : ResponseClass::kNonPeriodic;
+          p.lco.watched_dof = w;
+          p.lco.frequency = freq[at];
+          p.lco.cycles = static_cast<int>(cyc[at]);
+          p.lco.spread = spr[at];
+          p.end_time = end[at];
+          p.switches = static_cast<std::int64_t>(sw[at]);
+          for (int d = 0; d < ndof; ++d) p.lco.dof[d] = {amp[d][at], mx[d][at], mn[d][at]};
+          merged[{dir, p.j, p.i}] = p;
+        }
+  }
+  if (!request || static_cast<int>(shards.size()) != count)
+    throw InputError({inputs.empty() ? "" : inputs.front(), 0, 0}, "", "",
+                     fmt::format("{} of {} shards given", shards.size(), count),
+                     "every shard file 1/N..N/N of the sweep");
+  const SweepRequest r = request_from_json(*request);
+  std::vector<SweepPoint> points;
+  for (auto& [key, p] : merged) points.push_back(std::move(p));
+  const Case c = parse_case(r.case_text, r.case_path, r.overrides);
+  write_sweep_file(output, c, r, points);
 }
 
 }  // namespace aerosect

@@ -198,14 +198,7 @@ int run_sweep_command(const Common& o, const std::string& output, const std::vec
     req.options.shard_count = n;
   }
   // The journal holds every finished point; its first line identifies the sweep.
-  nlohmann::json id;
-  id["case_text"] = req.case_text;
-  id["overrides"] = req.overrides;
-  for (const auto& ax : req.options.axes) id["axes"].push_back({ax.key, ax.values});
-  id["up"] = req.options.up;
-  id["down"] = req.options.down;
-  id["continuation"] = req.options.continuation;
-  id["shard"] = {req.options.shard_index, req.options.shard_count};
+  const nlohmann::json id = aerosect::request_json(req);
   const std::string journal = output + ".journal";
   std::vector<aerosect::SweepPoint> done;
   if (std::filesystem::exists(journal)) {
@@ -334,6 +327,14 @@ int main(int argc, char** argv) {
   sweep->add_option("--jobs", sweep_jobs, "threads (default: all cores)");
   sweep->add_option("--shard", sweep_shard, "K/N: run the K-th of N deterministic parts");
 
+  std::vector<std::string> merge_inputs;
+  std::string merge_out;
+  bool merge_json = false;
+  CLI::App* merge = app.add_subcommand("merge", "join the shard files of one sweep into one map");
+  merge->add_option("FILES", merge_inputs, "shard files (from sweep --shard K/N)")->required();
+  merge->add_option("-o,--output", merge_out, "merged HDF5 map")->required();
+  merge->add_flag("--json", merge_json, "print a machine-readable summary");
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -344,6 +345,12 @@ int main(int argc, char** argv) {
     if (*check) return run_check(check_opts);
     if (*sim) return run_simulate(sim_opts, output);
     if (*gust) return run_gust(gust_opts, gust_out, gust_gradients);
+    if (*merge) {
+      aerosect::merge_sweep_files(merge_inputs, merge_out);
+      print(merge_json ? nlohmann::json{{"command", "merge"}, {"inputs", merge_inputs}, {"output", merge_out}}.dump(2) + "\n"
+                       : "merged " + std::to_string(merge_inputs.size()) + " shard files into " + merge_out + "\n");
+      return 0;
+    }
     if (*sweep)
       return run_sweep_command(sweep_opts, sweep_out, sweep_vary, sweep_direction, sweep_restart,
                                sweep_jobs, sweep_shard);

@@ -396,3 +396,43 @@ void Hdf5Document::commit() {
 }
 
 }  // namespace aerosect
+
+namespace aerosect {
+
+std::string read_text_attribute(const std::string& path, const std::string& name) {
+  H5::Exception::dontPrint();
+  try {
+    const H5::H5File f(path, H5F_ACC_RDONLY);
+    const H5::Group root = f.openGroup("/");
+    if (!root.attrExists(name))
+      throw InputError({path, 0, 0}, "", "", fmt::format("has no attribute '{}'", name),
+                       "a file written by the aerosect command that makes it");
+    const H5::Attribute a = root.openAttribute(name);
+    std::string v;
+    a.read(a.getStrType(), v);
+    return v;
+  } catch (const H5::Exception& e) {
+    throw InputError({path, 0, 0}, "", "", "cannot read the HDF5 file (" + e.getDetailMsg() + ")",
+                     "a readable HDF5 file written by aerosect");
+  }
+}
+
+std::vector<double> read_double_dataset(const std::string& path, const std::string& name) {
+  H5::Exception::dontPrint();
+  try {
+    const H5::H5File f(path, H5F_ACC_RDONLY);
+    if (!f.nameExists(name))
+      throw InputError({path, 0, 0}, "", "", fmt::format("has no dataset '{}'", name),
+                       "a file written by the aerosect command that makes it");
+    const H5::DataSet d = f.openDataSet(name);
+    const hssize_t n = d.getSpace().getSimpleExtentNpoints();
+    std::vector<double> v(static_cast<std::size_t>(n));
+    if (n > 0) d.read(v.data(), H5::PredType::NATIVE_DOUBLE);
+    return v;
+  } catch (const H5::Exception& e) {
+    throw InputError({path, 0, 0}, "", "", "cannot read the HDF5 file (" + e.getDetailMsg() + ")",
+                     "a readable HDF5 file written by aerosect");
+  }
+}
+
+}  // namespace aerosect

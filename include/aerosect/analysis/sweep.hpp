@@ -67,6 +67,11 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
                                   const std::function<void(const SweepPoint&)>& on_point,
                                   const std::atomic<bool>* cancel = nullptr);
 
+// The request as JSON (the journal's first line, the file's sweep_request
+// attribute) and back.
+nlohmann::json request_json(const SweepRequest& r);
+SweepRequest request_from_json(const nlohmann::json& j);
+
 // JSON record of a point (the journal line) and back.
 nlohmann::json point_json(const SweepPoint& p);
 SweepPoint point_from_json(const nlohmann::json& j);
@@ -86,5 +91,10 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
                        const std::string& output);
 void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
                       const std::vector<SweepPoint>& points);
+
+// Joins the files of the shards 1/N..N/N of one sweep into the file the
+// unsharded sweep writes (same request, every point once). Throws
+// InputError when the files are not shards of one sweep or one is missing.
+void merge_sweep_files(const std::vector<std::string>& inputs, const std::string& output);
 
 }  // namespace aerosect

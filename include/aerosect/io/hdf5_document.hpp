@@ -73,4 +73,11 @@ class Hdf5Document {
   bool committed_ = false;
 };
 
+// A text attribute of a file's root group (for reading back aerosect's own
+// files). Throws InputError naming the file when it or the attribute is
+// missing.
+std::string read_text_attribute(const std::string& path, const std::string& name);
+// A double dataset, flattened row-major; InputError when missing.
+std::vector<double> read_double_dataset(const std::string& path, const std::string& name);
+
 }  // namespace aerosect

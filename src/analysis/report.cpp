@@ -5,6 +5,7 @@
 
 #include <fmt/format.h>
 
+#include "aerosect/model/system.hpp"
 #include "aerosect/version.hpp"
 
 namespace aerosect {
@@ -79,6 +80,34 @@ nlohmann::json check_json(const Case& c, const CheckReport& r) {
     j["divergence"]["speed_m_s"] = nullptr;
   }
   j["divergence"]["density_kg_m3"] = c.model.flow.density;
+  // The assembled first-order model, for independent re-integration:
+  // x' = A x - G f(q), f the nonlinear spring laws (piecewise polynomials).
+  const AeroelasticModel model(c.model);
+  nlohmann::json lm;
+  lm["state_size"] = model.state_size();
+  lm["layout"] = {{"displacement", model.layout().displacement}, {"velocity", model.layout().velocity},
+                  {"wagner", model.layout().wagner}, {"n_wagner", model.layout().n_wagner},
+                  {"gust", model.layout().gust}, {"n_gust", model.layout().n_gust}};
+  for (Eigen::Index i = 0; i < model.linear_part().rows(); ++i) {
+    std::vector<double> row(model.linear_part().cols());
+    for (Eigen::Index k = 0; k < model.linear_part().cols(); ++k) row[k] = model.linear_part()(i, k);
+    lm["A"].push_back(row);
+  }
+  lm["nonlinear_springs"] = nlohmann::json::array();
+  for (int jn : model.nonlinear_springs()) {
+    const SpringLaw& law = c.model.springs[jn];
+    std::vector<double> g(model.state_size());
+    for (int i = 0; i < model.state_size(); ++i) g[i] = model.force_input()(i, jn);
+    auto v = [](std::span<const double> s) { return std::vector<double>(s.begin(), s.end()); };
+    lm["nonlinear_springs"].push_back({{"dof", jn}, {"kind", law.kind()}, {"G", g},
+                                       {"breakpoints", v(law.breakpoints())}, {"slopes", v(law.slopes())},
+                                       {"intercepts", v(law.intercepts())},
+                                       {"polynomial_terms", v(law.polynomial_terms())}});
+  }
+  const auto& s0 = c.simulation;
+  lm["initial_state"] = model.initial_state(s0.initial_displacement, s0.initial_velocity, s0.steady_lag_states);
+  lm["duration_s"] = s0.duration;
+  j["linear_model"] = lm;
   return j;
 }
 

@@ -64,6 +64,9 @@ class SpringLaw {
   // N(A) = 1/(pi A) * integral_0^2pi f(A sin theta) sin theta dtheta.
   double describing_function(double amplitude) const;
   const std::string& kind() const { return kind_; }
+  std::span<const double> slopes() const { return slopes_; }
+  std::span<const double> intercepts() const { return intercepts_; }
+  std::span<const double> polynomial_terms() const { return poly_; }  // of x^2, x^3, ...
   double offset() const { return offset_; }
 
  private:

@@ -95,6 +95,11 @@ class AeroelasticModel {
   // Linear state matrix with every spring at its nominal stiffness.
   Eigen::MatrixXd nominal_state_matrix() const;
 
+  // The linear part A (nonlinear springs excluded) and the input map G
+  // (state_size x n_dof): x' = A x - G f(q) for the nonlinear springs' f.
+  const Eigen::MatrixXd& linear_part() const { return A_; }
+  const Eigen::MatrixXd& force_input() const { return G_; }
+
   // Indices of springs that are not linear (handled outside A).
   std::span<const int> nonlinear_springs() const { return nonlinear_; }
 

@@ -139,16 +139,7 @@ FlutterMargin flutter_margin(const FlutterReport& r) {
 }
 
 nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::string& output) {
-  nlohmann::json j;
-  j["command"] = "flutter";
-  j["aerosect_version"] = kVersion;
-  j["case"] = c.path;
-  j["title"] = c.title;
-  j["input_form"] = c.input_form;
-  j["dof"] = c.model.section.dof;
-  j["aerodynamic_model"] = to_string(c.model.aero.model);
-  j["overrides"] = c.overrides;
-  j["caution"] = kSafetyCaution;
+  nlohmann::json j = report_header(c, "flutter");
   j["output"] = output;
   j["density_kg_m3"] = r.density;
   j["reference_speed_m_s"] = r.reference_speed;

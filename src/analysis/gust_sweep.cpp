@@ -78,14 +78,7 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
 }
 
 nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::string& output) {
-  nlohmann::json j;
-  j["command"] = "gust";
-  j["aerosect_version"] = kVersion;
-  j["case"] = c.path;
-  j["title"] = c.title;
-  j["dof"] = c.model.section.dof;
-  j["overrides"] = c.overrides;
-  j["caution"] = kSafetyCaution;
+  nlohmann::json j = report_header(c, "gust");
   j["output"] = output;
   j["gust_convention"] = "gust velocity positive up at the leading edge; 1-cos profiles";
   j["points"] = nlohmann::json::array();

@@ -28,7 +28,9 @@ nlohmann::json parameters_json(const RunMetadata& m) {
   return j;
 }
 
-nlohmann::json common_json(const Case& c, const char* command) {
+}  // namespace
+
+nlohmann::json report_header(const Case& c, const char* command) {
   nlohmann::json j;
   j["command"] = command;
   j["aerosect_version"] = kVersion;
@@ -42,6 +44,8 @@ nlohmann::json common_json(const Case& c, const char* command) {
   return j;
 }
 
+namespace {
+
 std::string fmt_num(double v) { return std::isfinite(v) ? fmt::format("{:.6g}", v) : "inf"; }
 }  // namespace
 
@@ -53,7 +57,7 @@ CheckReport check_case(const Case& c) {
 }
 
 nlohmann::json check_json(const Case& c, const CheckReport& r) {
-  nlohmann::json j = common_json(c, "check");
+  nlohmann::json j = report_header(c, "check");
   j["parameters"] = parameters_json(case_metadata(c, "check"));
   const auto w = uncoupled_frequencies(c.model.section);
   j["uncoupled_frequencies_hz"]["plunge"] = w.plunge / (2 * pi);
@@ -175,7 +179,7 @@ std::string check_text(const Case& c, const CheckReport& r) {
 
 nlohmann::json simulation_json(const Case& c, const SimulationSummary& s,
                                const std::string& output_path) {
-  nlohmann::json j = common_json(c, "simulate");
+  nlohmann::json j = report_header(c, "simulate");
   j["output"] = output_path;
   j["completed"] = s.completed;
   j["status"] = s.status;

@@ -254,14 +254,7 @@ const char* kDofNames[3] = {"plunge", "pitch", "flap"};
 
 nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
                           const std::string& output) {
-  nlohmann::json j;
-  j["command"] = "sweep";
-  j["aerosect_version"] = kVersion;
-  j["case"] = c.path;
-  j["title"] = c.title;
-  j["dof"] = c.model.section.dof;
-  j["overrides"] = c.overrides;
-  j["caution"] = kSafetyCaution;
+  nlohmann::json j = report_header(c, "sweep");
   j["output"] = output;
   for (const auto& ax : r.options.axes)
     j["vary"].push_back({{"key", ax.key}, {"from", ax.values.front()}, {"to", ax.values.back()},

@@ -17,6 +17,11 @@ namespace aerosect {
 // The caution every report carries (theory sheet, section 6).
 extern const char* const kSafetyCaution;
 
+// The keys every JSON summary starts with (README, "JSON output"):
+// command, aerosect_version, case, title, input_form, dof,
+// aerodynamic_model, overrides, caution.
+nlohmann::json report_header(const Case& c, const char* command);
+
 struct CheckReport {
   std::vector<NaturalMode> modes;
   Divergence divergence;

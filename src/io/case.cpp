@@ -109,6 +109,7 @@ const std::vector<std::string> kKnownKeys = {
     "gust.shape",
     "gust.start",
     "gust.start_semichords",
+    "gust.start_distance",
     "gust.amplitude",
     "gust.amplitude_eas",
     "gust.gradient",
@@ -1042,9 +1043,10 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
       if (!recorded && g.has(k)) g.fail(k, "is only used by recorded gusts", "shape = \"recorded\"");
     g.require(U > 0 && rho > 0, "shape", "needs air and a positive airspeed",
               "a case with density > 0 and airspeed > 0");
-    const std::string sk = g.one_of({"start", "start_semichords"});
+    const std::string sk = g.one_of({"start", "start_semichords", "start_distance"});
     if (sk == "start") p.start = *g.number("start");
     if (sk == "start_semichords") p.start = *g.number("start_semichords") * b / U;
+    if (sk == "start_distance") p.start = *g.number("start_distance") / U;
     if (!sk.empty()) g.require(p.start >= 0, sk, "must not be negative", "s or semichords >= 0");
     const std::string design = g.choice("design", {"cs-25"}, "");
     const double eas_to_tas = std::sqrt(kSeaLevelDensity / rho);

@@ -289,6 +289,11 @@ TEST_CASE("Gust keys are validated", "[gust][case][errors]") {
                 "kussner_exponents = [0.1, 1.0]\n",
          "aerodynamics.kussner_coefficients", "sum to 1.1");
   expect("gust = 3\n" + base, "gust", "must be an array of tables");
+  expect(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 1.0\nstart = 0.1\nstart_distance = 3.0\n",
+         "gust.start_distance", "conflicts with 'gust.start'");
+  // start_distance in m flown: 3 m at 30 m/s is 0.1 s.
+  const Case d = test::case_from(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 1.0\nstart_distance = 3.0\n");
+  CHECK(d.model.gusts.profiles().front().start == Approx(0.1));
 }
 
 TEST_CASE("Continuous turbulence in a case: seeded, reproducible, of the given intensity", "[gust]") {

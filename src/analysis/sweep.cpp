@@ -9,6 +9,7 @@
 
 #include <fmt/format.h>
 
+#include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/error.hpp"
@@ -371,6 +372,39 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
   }
   if (!points.empty())
     doc.text_attribute("", "watched_dof", kDofNames[points.front().lco.watched_dof]);
+  // Linear flutter speeds and the describing-function LCO curve, in the
+  // units of the swept key, for the bifurcation plot's overlay (when the
+  // first key is the airspeed or the reduced speed).
+  const std::string& key = o.axes[0].key;
+  if (key == "flow.airspeed" || key == "nondimensional.reduced_speed") {
+    const double per = key == "flow.airspeed" ? 1.0 : 1.0 / (c.model.section.semichord *
+                                                            uncoupled_frequencies(c.model.section).pitch);
+    FlutterOptions fo;
+    fo.pk = false;
+    const FlutterReport fr = flutter_analysis(c, fo);
+    const char* names[4] = {"linear_flutter_value", "gap_closed_flutter_value", "gap_open_flutter_value",
+                            "describing_function_flutter_value"};
+    for (const auto& lr : fr.results) {
+      const Crossing& x = lr.methods.front().flutter;
+      if (x.found) doc.number_attribute("", names[static_cast<int>(lr.linearisation)], x.speed * per);
+    }
+    if (fr.lco.available) {
+      std::vector<double> v, a, st;
+      for (const auto& pt : fr.lco.points) {
+        v.push_back(pt.speed * per);
+        a.push_back(pt.amplitude);
+        st.push_back(pt.stable ? 1.0 : 0.0);
+      }
+      std::vector<double> idx(v.size());
+      for (std::size_t q = 0; q < idx.size(); ++q) idx[q] = static_cast<double>(q);
+      doc.axis("lco_prediction_point", idx, "1", "point of the describing-function curve");
+      const std::vector<std::string> pd = {"lco_prediction_point"};
+      doc.dataset("lco_prediction/value", pd, v, "1", "swept value (" + key + ") of the predicted LCO");
+      doc.dataset("lco_prediction/amplitude", pd, a, fr.lco.spring == kPlunge ? "m" : "rad",
+                  std::string("predicted LCO amplitude of the ") + kDofNames[fr.lco.spring]);
+      doc.dataset("lco_prediction/stable", pd, st, "1", "1 stable branch, 0 unstable");
+    }
+  }
   // Everything needed to merge shards into the file an unsharded run writes.
   doc.text_attribute("", "sweep_request", request_json(r).dump());
   doc.commit();

@@ -76,22 +76,38 @@ int run_simulate(const Common& o, const std::string& output) {
   return 0;
 }
 
-// "FROM:TO:N" -> N speeds from FROM to TO (m/s), ascending.
-std::vector<double> parse_speeds(const std::string& text) {
-  double from = 0, to = 0;
-  long n = 0;
+// "FROM:TO:N": the three numbers, or nullopt when the text is not of that form.
+struct Range {
+  double from, to;
+  long n;
+  // N evenly spaced values from FROM to TO (FROM alone when N = 1).
+  std::vector<double> values() const {
+    std::vector<double> v;
+    for (long i = 0; i < n; ++i) v.push_back(n == 1 ? from : from + (to - from) * i / (n - 1));
+    return v;
+  }
+};
+std::optional<Range> parse_range(const std::string& text) {
+  Range r{0, 0, 0};
   char c1 = 0, c2 = 0;
   std::istringstream in(text);
-  in >> from >> c1 >> to >> c2 >> n;
-  if (!in || c1 != ':' || c2 != ':' || !(in >> std::ws).eof() || !(from >= 0) || !(to > from) ||
-      n < 2 || n > 100000 || !std::isfinite(to))
+  in >> r.from >> c1 >> r.to >> c2 >> r.n;
+  if (!in || c1 != ':' || c2 != ':' || !(in >> std::ws).eof() || !std::isfinite(r.from) ||
+      !std::isfinite(r.to))
+    return std::nullopt;
+  return r;
+}
+
+// "FROM:TO:N" -> N speeds from FROM to TO (m/s), ascending.
+std::vector<double> parse_speeds(const std::string& text) {
+  const auto r = parse_range(text);
+  if (!r || !(r->from >= 0) || !(r->to > r->from) || r->n < 2 || r->n > 100000)
     throw aerosect::InputError({"--speeds " + text, 0, 0}, "--speeds", text,
                                "is not a valid speed range",
                                "FROM:TO:N with 0 <= FROM < TO (m/s, true airspeed) and 2 <= N "
                                "<= 100000, e.g. --speeds 10:120:221");
-  std::vector<double> s(static_cast<std::size_t>(n));
-  for (long i = 0; i < n; ++i) s[static_cast<std::size_t>(i)] = from + (to - from) * i / (n - 1);
-  if (s.front() == 0.0) s.front() = 1e-6 * to;  // U = 0 has no reduced frequency
+  std::vector<double> s = r->values();
+  if (s.front() == 0.0) s.front() = 1e-6 * r->to;  // U = 0 has no reduced frequency
   return s;
 }
 
@@ -116,20 +132,13 @@ int run_flutter(const Common& o, const std::string& output, const std::string& s
 
 // "FROM:TO:N" in metres for gust gradients.
 std::vector<double> parse_gradients(const std::string& text) {
-  double from = 0, to = 0;
-  long n = 0;
-  char c1 = 0, c2 = 0;
-  std::istringstream in(text);
-  in >> from >> c1 >> to >> c2 >> n;
-  if (!in || c1 != ':' || c2 != ':' || !(in >> std::ws).eof() || !(from > 0) || !(to >= from) ||
-      n < 1 || n > 10000 || !std::isfinite(to))
+  const auto r = parse_range(text);
+  if (!r || !(r->from > 0) || !(r->to >= r->from) || r->n < 1 || r->n > 10000)
     throw aerosect::InputError({"--gradients " + text, 0, 0}, "--gradients", text,
                                "is not a valid gradient range",
                                "FROM:TO:N with 0 < FROM <= TO (m) and 1 <= N <= 10000, e.g. "
                                "--gradients 9.144:106.68:12");
-  std::vector<double> g;
-  for (long i = 0; i < n; ++i) g.push_back(n == 1 ? from : from + (to - from) * i / (n - 1));
-  return g;
+  return r->values();
 }
 
 int run_gust(const Common& o, const std::string& output, const std::string& gradients) {
@@ -150,24 +159,12 @@ int run_gust(const Common& o, const std::string& output, const std::string& grad
 // "KEY=FROM:TO:N" for --vary.
 aerosect::SweepAxis parse_vary(const std::string& text) {
   const auto eq = text.find('=');
-  aerosect::SweepAxis ax;
-  double from = 0, to = 0;
-  long n = 0;
-  char c1 = 0, c2 = 0;
-  bool ok = eq != std::string::npos && eq > 0;
-  if (ok) {
-    ax.key = text.substr(0, eq);
-    std::istringstream in(text.substr(eq + 1));
-    in >> from >> c1 >> to >> c2 >> n;
-    ok = in && c1 == ':' && c2 == ':' && (in >> std::ws).eof() && std::isfinite(from) &&
-         std::isfinite(to) && to > from && n >= 2 && n <= 1000000;
-  }
-  if (!ok)
+  const auto r = eq != std::string::npos && eq > 0 ? parse_range(text.substr(eq + 1)) : std::nullopt;
+  if (!r || !(r->to > r->from) || r->n < 2 || r->n > 1000000)
     throw aerosect::InputError({"--vary " + text, 0, 0}, "--vary", text, "is not a valid sweep",
                                "KEY=FROM:TO:N with a numeric case key, FROM < TO and N >= 2, e.g. "
                                "--vary nondimensional.reduced_speed=1:7:61");
-  for (long i = 0; i < n; ++i) ax.values.push_back(from + (to - from) * i / (n - 1));
-  return ax;
+  return {text.substr(0, eq), r->values()};
 }
 
 int run_sweep_command(const Common& o, const std::string& output, const std::vector<std::string>& vary,

@@ -49,12 +49,9 @@ double default_initial_step(const AeroelasticModel& model) {
 
 namespace {
 
-std::string describe_state(const AeroelasticModel& model, const State& x) {
+std::string describe_state(const State& x) {
   std::string s;
-  for (std::size_t i = 0; i < x.size(); ++i) {
-    (void)model;
-    s += fmt::format("{}x[{}] = {:.6g}", i ? ", " : "", i, x[i]);
-  }
+  for (std::size_t i = 0; i < x.size(); ++i) s += fmt::format("{}x[{}] = {:.6g}", i ? ", " : "", i, x[i]);
   return s;
 }
 
@@ -286,7 +283,7 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
                              b.position);
       throw NumericalError(stepper.current_time(),
                            fmt::format("step-size control failed ({}){}; state: {}", e.what(),
-                                       where, describe_state(model, stepper.current_state())));
+                                       where, describe_state(stepper.current_state())));
     }
     ++run.steps;
     const double t_old = step.first, t_new = step.second;
@@ -294,7 +291,7 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     if (!all_finite(xn)) {
       throw NumericalError(t_old, fmt::format("non-finite state after the step to t = "
                                               "{:.9g} s; state at the step start: {}",
-                                              t_new, describe_state(model, run.x)));
+                                              t_new, describe_state(run.x)));
     }
     const double dt = t_new - t_old;
     if (!(dt > 16.0 * std::numeric_limits<double>::epsilon() * std::abs(t_new))) {

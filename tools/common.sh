@@ -36,8 +36,11 @@ ensure_packages() {
 # target defined) and build the given targets (all when none is given).
 build_aerosect() {
   ensure_packages "${AEROSECT_PACKAGES[@]}"
+  local launcher=()
+  # ccache, when the machine has it, only speeds up rebuilds (not installed by us).
+  if command -v ccache >/dev/null 2>&1; then launcher=(-DCMAKE_CXX_COMPILER_LAUNCHER=ccache); fi
   cmake -S "$ROOT" -B "$BUILD_DIR" -G Ninja -DCMAKE_BUILD_TYPE=Release \
-    -DAEROSECT_BUILD_TESTS=ON >/dev/null
+    -DAEROSECT_BUILD_TESTS=ON "${launcher[@]}" >/dev/null
   local targets=()
   for t in "$@"; do targets+=(--target "$t"); done
   cmake --build "$BUILD_DIR" -j "$JOBS" "${targets[@]}"

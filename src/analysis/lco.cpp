@@ -4,6 +4,8 @@
 #include <cmath>
 #include <numbers>
 
+#include <Eigen/Eigenvalues>
+
 namespace aerosect {
 
 const char* to_string(ResponseClass c) {
@@ -15,6 +17,30 @@ const char* to_string(ResponseClass c) {
   }
   return "?";
 }
+
+namespace {
+
+// True when rest is an unstable equilibrium: the state matrix linearised
+// about rest (every gap open: the gap-open stiffness of each gap law, the
+// linear coefficient of the others) has an eigenvalue with a positive real
+// part. A motion that has died down to the floor there has not decayed: it
+// is leaving the equilibrium (inside a freeplay gap above the gap-open
+// flutter speed, or any section above its linear flutter speed).
+bool rest_unstable(const AeroelasticModel& model) {
+  const auto& springs = model.description().springs;
+  const int n = model.n_dof();
+  DofVector k(n);
+  for (int j = 0; j < n; ++j) {
+    const SpringLaw& law = springs[static_cast<std::size_t>(j)];
+    k(j) = law.breakpoints().empty() ? law.nominal_stiffness() : law.gap_open_stiffness();
+  }
+  const Eigen::VectorXcd ev = Eigen::EigenSolver<Eigen::MatrixXd>(model.state_matrix(k), false).eigenvalues();
+  for (Eigen::Index i = 0; i < ev.size(); ++i)
+    if (ev(i).real() > 0) return true;
+  return false;
+}
+
+}  // namespace
 
 LcoTracker::LcoTracker(const AeroelasticModel& model, LcoSettings settings)
     : model_(model), s_(settings) {
@@ -35,6 +61,7 @@ LcoTracker::LcoTracker(const AeroelasticModel& model, LcoSettings settings)
       gap_hi_ = r < static_cast<int>(bp.size()) ? bp[r] : 1e300;
     }
   }
+  rest_unstable_ = rest_unstable(model);
 }
 
 ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>& x) {
@@ -61,8 +88,8 @@ ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>&
   period_.push_back(c.t - a.t);
   cycle_end_.push_back(c.t);
   const std::size_t k = amplitude_.size();
-  // Decay to rest.
-  if (amplitude_.back() < s_.decay_floor) {
+  // Decay to rest (not when rest in the gap is unstable: see above).
+  if (amplitude_.back() < s_.decay_floor && !rest_unstable_) {
     decided_ = ResponseClass::kDecayed;
     decided_flag_ = true;
     return ObserverAction::kStop;
@@ -77,7 +104,7 @@ ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>&
     }
     for (std::size_t i = n - 2 * s_.settle_cycles; i < n; ++i)
       inside = inside && e[i].x > gap_lo_ && e[i].x < gap_hi_;
-    if (inside && shrinking) {
+    if (inside && shrinking && !rest_unstable_) {
       decided_ = ResponseClass::kDecayed;
       decided_flag_ = true;
       return ObserverAction::kStop;

@@ -82,3 +82,40 @@ TEST_CASE("Sweep classes: decay at low speed, LCO with freeplay, divergence past
   CHECK(pts[1].lco.dof[kPitch].amplitude > pts[0].lco.dof[kPitch].amplitude);
   CHECK(pts[2].lco.response == ResponseClass::kDivergent);
 }
+
+TEST_CASE("A tiny motion about an unstable rest state is not classed decayed", "[sweep]") {
+  // Common practice, no source: an equilibrium whose linearisation has an
+  // eigenvalue with a positive real part is left by any disturbance, however
+  // small, so a motion below the decay floor there must not end the run as
+  // decayed. Benchmark section (Lee, Price & Wong 1999): linear flutter at
+  // U*_L = 6.2851, so at U* = 7 a 1e-12 rad start grows until it diverges;
+  // with pitch freeplay (gap-open flutter speed U* = 1.063, measured in
+  // test_flutter.cpp) rest inside the gap is unstable at U* = 4 and the
+  // same start grows into the LCO of the 2-degree start of the first test.
+  SweepRequest lin = request(2, 1);
+  lin.case_text = test::benchmark_2dof("[initial]\npitch_deg = 1e-10\n[simulation]\n"
+                                       "duration_semichords = 20000\n");
+  lin.options.axes[0].values = {7.0, 7.5};
+  lin.options.down = false;
+  lin.options.continuation = false;
+  for (const auto& p : run_sweep(lin, {}, {})) CHECK(p.lco.response == ResponseClass::kDivergent);
+
+  SweepRequest fp = request(2, 1);
+  fp.case_text = test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n[initial]\npitch_deg = 1e-10\n"
+      "[simulation]\nduration_semichords = 20000\n");
+  fp.options.axes[0].values = {4.0, 4.5};
+  fp.options.down = false;
+  fp.options.continuation = false;
+  const auto tiny = run_sweep(fp, {}, {});
+  SweepRequest big = fp;
+  big.case_text = test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n[initial]\npitch_deg = 2.0\n"
+      "[simulation]\nduration_semichords = 20000\n");
+  const auto ref = run_sweep(big, {}, {});
+  for (std::size_t k = 0; k < tiny.size(); ++k) {
+    CHECK(tiny[k].lco.response == ResponseClass::kPeriodic);
+    CHECK(tiny[k].lco.dof[kPitch].amplitude ==
+          Approx(ref[k].lco.dof[kPitch].amplitude).epsilon(1e-3));
+  }
+}

@@ -75,6 +75,7 @@ class LcoTracker {
   int watch_ = kPitch;
   double gap_lo_ = 0, gap_hi_ = 0;  // watched spring's innermost region around its offset
   bool has_gap_ = false;
+  bool rest_unstable_ = false;  // rest is unstable (linearised about it, gaps open)
   std::array<std::vector<Extremum>, 3> extrema_;
   std::vector<double> amplitude_, period_, cycle_end_;  // per complete cycle
   static constexpr int kMaxLag = 4;

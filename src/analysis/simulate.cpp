@@ -152,7 +152,7 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
 }
 
 SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHistorySink& sink,
-                           const std::atomic<bool>* cancel) {
+                           const std::atomic<bool>* cancel, const RunState* start) {
   const StateLayout& L = model.layout();
   const SimulationSettings& set = c.simulation;
   const std::vector<Channel> channels = simulation_channels(model);
@@ -190,8 +190,15 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   const double U_over_b = c.model.flow.airspeed / c.model.section.semichord;
   std::vector<double> row(width), dxdt(L.size);
   RunState run;
-  run.x = model.initial_state(set.initial_displacement, set.initial_velocity, set.steady_lag_states);
-  run.regions = model.regions_of(run.x.data());
+  if (start) {
+    AEROSECT_CHECK(static_cast<int>(start->x.size()) == L.size &&
+                   static_cast<int>(start->regions.size()) == L.n_dof);
+    run.x = start->x;
+    run.regions = start->regions;
+  } else {
+    run.x = model.initial_state(set.initial_displacement, set.initial_velocity, set.steady_lag_states);
+    run.regions = model.regions_of(run.x.data());
+  }
 
   auto observer = [&](double t, const std::vector<double>& x) {
     model.rhs(x.data(), dxdt.data(), t, run.regions, run.input_segment);

@@ -8,6 +8,7 @@
 #include <cstdio>
 #include <chrono>
 #include <cmath>
+#include <cstdlib>
 #include <cstdio>
 #include <filesystem>
 #include <fstream>
@@ -21,10 +22,12 @@
 #include <vector>
 
 #include <CLI/CLI.hpp>
+#include <fmt/format.h>
 
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/flutter_report.hpp"
 #include "aerosect/analysis/gust_sweep.hpp"
+#include "aerosect/analysis/study.hpp"
 #include "aerosect/analysis/sweep.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
@@ -262,6 +265,100 @@ int run_sweep_command(const Common& o, const std::string& output, const std::vec
   return 0;
 }
 
+// The plotting tool: $AEROSECT_PLOT, else tools/plot of the source tree
+// this binary was built from.
+std::string plot_tool() {
+  if (const char* env = std::getenv("AEROSECT_PLOT"); env && *env) return env;
+  return AEROSECT_PLOT_TOOL;
+}
+
+std::string shell_quote(const std::string& s) {
+  std::string q = "'";
+  for (char ch : s) q += ch == '\'' ? std::string("'\\''") : std::string(1, ch);
+  return q + "'";
+}
+
+int run_study_command(const Common& o, const std::string& dir, int jobs, int points,
+                      const std::string& speeds, bool no_plots) {
+  const aerosect::Case c = aerosect::load_case(o.case_path, o.overrides);
+  aerosect::StudyOptions so;
+  so.jobs = jobs > 0 ? jobs : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+  so.sweep_points = points;
+  if (!speeds.empty()) {
+    const auto r = parse_range(speeds);
+    if (!r || !(r->from > 0) || !(r->to > r->from) || r->n < 2 || r->n > 100000)
+      throw aerosect::InputError({"--sweep-speeds " + speeds, 0, 0}, "--sweep-speeds", speeds,
+                                 "is not a valid speed range",
+                                 "FROM:TO:N with 0 < FROM < TO (m/s, true airspeed) and 2 <= N <= 100000, "
+                                 "e.g. --sweep-speeds 10:90:41");
+    so.sweep_speeds = std::make_pair(r->from, r->to);
+    so.sweep_points = static_cast<int>(r->n);
+  }
+  const auto t0 = std::chrono::steady_clock::now();
+  auto progress = [&](const std::string& stage) {
+    const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    std::fprintf(stderr, "aerosect study [%6.1f s]: %s\n", el, stage.c_str());
+  };
+  const aerosect::StudyResult r = aerosect::run_study(c, dir, so, &g_interrupted, progress);
+  if (g_interrupted) {
+    std::cerr << "aerosect: interrupted; the files finished so far are kept in " << dir << "\n";
+    return 130;
+  }
+  std::vector<aerosect::StudyFigure> figures;
+  std::vector<std::string> notes;
+  const std::string tool = plot_tool();
+  if (no_plots) {
+    notes.push_back("figures not made: --no-plots was given");
+  } else if (!std::filesystem::exists(tool)) {
+    notes.push_back("figures not made: the plotting tool " + tool +
+                    " was not found (set AEROSECT_PLOT to tools/plot)");
+  } else {
+    progress("figures (" + tool + ")");
+    for (const auto& h5 : r.hdf5_files) {
+      const std::string file = (std::filesystem::path(dir) / h5).string();
+      const std::string cmd = shell_quote(tool) + " " + shell_quote(file) + " -o " + shell_quote(dir) + " 2>&1";
+      FILE* pipe = ::popen(cmd.c_str(), "r");
+      if (!pipe) {
+        notes.push_back("figures of " + h5 + " not made: cannot run " + tool);
+        continue;
+      }
+      std::string out;
+      char buf[4096];
+      while (std::size_t n = std::fread(buf, 1, sizeof buf, pipe)) out.append(buf, n);
+      const int status = ::pclose(pipe);
+      std::istringstream lines(out);
+      std::string line, last;
+      while (std::getline(lines, line)) {
+        if (line.empty()) continue;
+        last = line;
+        if (line.size() > 4 && line.compare(line.size() - 4, 4, ".png") == 0 && std::filesystem::exists(line))
+          figures.push_back({line, aerosect::study_figure_caption(line)});
+      }
+      if (status != 0) notes.push_back("figures of " + h5 + " not made: the plotting tool said: " + last);
+    }
+  }
+  const std::string html = (std::filesystem::path(dir) / "report.html").string();
+  aerosect::write_study_report(c, r, figures, notes, html);
+  if (o.json) {
+    nlohmann::json j = r.summary;
+    j["report"] = html;
+    j["figures"] = nlohmann::json::array();
+    for (const auto& f : figures) j["figures"].push_back(f.path);
+    j["notes"] = notes;
+    print(j.dump(2) + "\n");
+  } else {
+    std::string t = fmt::format("aerosect study of {}\n\n", c.path);
+    for (const auto& row : r.rows)
+      t += fmt::format("  {:<70} {:>14} {:<8} {}\n", row.quantity, row.value, row.units, row.note);
+    t += "\n";
+    for (const auto& p : r.parts) t += fmt::format("  {:<12} {}\n", p.name, p.done ? "done" : p.detail);
+    for (const auto& n : notes) t += "  " + n + "\n";
+    t += fmt::format("\n{}\n\nreport: {}\n", aerosect::kSafetyCaution, html);
+    print(t);
+  }
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -332,6 +429,22 @@ int main(int argc, char** argv) {
   merge->add_option("-o,--output", merge_out, "merged HDF5 map")->required();
   merge->add_flag("--json", merge_json, "print a machine-readable summary");
 
+  Common study_opts;
+  std::string study_dir, study_speeds;
+  int study_jobs = 0, study_points = 41;
+  bool study_no_plots = false;
+  CLI::App* study = app.add_subcommand(
+      "study", "the whole clearance study of a case: flutter, freeplay band, LCO sweep, design gusts, "
+               "HDF5 files, figures and an HTML report in one directory");
+  add_common(study, study_opts);
+  study->add_option("-o,--output", study_dir, "directory for the files and report.html")->required();
+  study->add_option("--jobs", study_jobs, "threads of the LCO sweep (default: all cores)");
+  study->add_option("--sweep-points", study_points, "airspeeds of the LCO sweep per direction")
+      ->capture_default_str();
+  study->add_option("--sweep-speeds", study_speeds,
+                    "LCO sweep airspeeds FROM:TO:N in m/s TAS (default: from the freeplay band and V_D)");
+  study->add_flag("--no-plots", study_no_plots, "skip the figures (the report says so)");
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -340,6 +453,8 @@ int main(int argc, char** argv) {
 
   try {
     if (*check) return run_check(check_opts);
+    if (*study)
+      return run_study_command(study_opts, study_dir, study_jobs, study_points, study_speeds, study_no_plots);
     if (*sim) return run_simulate(sim_opts, output);
     if (*gust) return run_gust(gust_opts, gust_out, gust_gradients);
     if (*merge) {

@@ -41,7 +41,11 @@ std::vector<Channel> simulation_channels(const AeroelasticModel& model);
 // the case text as run, the program version).
 RunMetadata case_metadata(const Case& c, const std::string& file_kind);
 
+// `start`, when given, replaces the case's initial conditions: its state
+// vector and spring regions are the state at t = 0 (e.g. the final state of
+// a sweep point, to record a settled limit cycle).
 SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHistorySink& sink,
-                           const std::atomic<bool>* cancel = nullptr);
+                           const std::atomic<bool>* cancel = nullptr,
+                           const RunState* start = nullptr);
 
 }  // namespace aerosect

@@ -1,0 +1,506 @@
+#include "aerosect/analysis/study.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <filesystem>
+#include <limits>
+#include <numbers>
+#include <sstream>
+
+#include <fmt/format.h>
+#include <toml++/toml.h>
+
+#include "aerosect/analysis/flutter.hpp"
+#include "aerosect/analysis/flutter_report.hpp"
+#include "aerosect/analysis/gust_sweep.hpp"
+#include "aerosect/analysis/modes.hpp"
+#include "aerosect/analysis/report.hpp"
+#include "aerosect/analysis/simulate.hpp"
+#include "aerosect/analysis/sweep.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/hdf5_writer.hpp"
+#include "aerosect/io/text_file.hpp"
+
+namespace aerosect {
+
+namespace {
+
+namespace fs = std::filesystem;
+const char* const kDof[3] = {"plunge", "pitch", "flap"};
+constexpr double kDeg = 180.0 / std::numbers::pi;
+
+std::string sig4(double v) {
+  if (!std::isfinite(v)) return v > 0 ? "none in range" : "n/a";
+  return fmt::format("{:.4g}", v);
+}
+
+// Edits of the case text for a derived run (the LCO sweep, the LCO time
+// history): gusts removed, the run length and output replaced, and
+// optionally an initial disturbance of one DOF. The result is the complete
+// text of the derived case, kept in its files as the case as run.
+struct Derivation {
+  bool remove_gusts = true;
+  bool at_rest = false;                // initial conditions removed
+  std::optional<double> duration;      // s
+  std::optional<double> sample_interval;  // s
+  int disturb_dof = -1;                // DOF given an initial displacement
+  double disturbance = 0;              // m or rad
+};
+
+std::string derived_case_text(const Case& c, const Derivation& d) {
+  toml::table root = toml::parse(std::string_view(c.text), std::string_view(c.path));
+  if (d.remove_gusts) root.erase("gust");
+  if (d.at_rest) root.erase("initial");
+  toml::table* sim = root["simulation"].as_table();
+  if (!sim) {
+    root.insert("simulation", toml::table{});
+    sim = root["simulation"].as_table();
+  }
+  if (d.duration) {
+    sim->erase("duration");
+    sim->erase("duration_semichords");
+    sim->insert_or_assign("duration", *d.duration);
+  }
+  if (d.sample_interval) {
+    for (const char* k : {"sample_rate", "sample_interval", "sample_interval_semichords", "every_step"})
+      sim->erase(k);
+    sim->insert_or_assign("sample_interval", *d.sample_interval);
+  }
+  if (d.disturb_dof >= 0) {
+    toml::table* init = root["initial"].as_table();
+    if (!init) {
+      root.insert("initial", toml::table{});
+      init = root["initial"].as_table();
+    }
+    if (d.disturb_dof == kPlunge) {
+      init->erase("plunge_semichords");
+      init->insert_or_assign("plunge", d.disturbance);
+    } else {
+      init->insert_or_assign(fmt::format("{}_deg", kDof[d.disturb_dof]), d.disturbance * kDeg);
+    }
+  }
+  std::ostringstream out;
+  out << "# Derived by aerosect study from " << c.path << ":"
+      << (d.remove_gusts ? " gusts removed;" : "") << (d.at_rest ? " starts at rest;" : "")
+      << (d.duration ? " run length set;" : "") << (d.sample_interval ? " output interval set;" : "")
+      << (d.disturb_dof >= 0 ? " initial disturbance added;" : "") << "\n"
+      << root << "\n";
+  return out.str();
+}
+
+bool has_one_minus_cosine(const Case& c) {
+  for (const auto& p : c.model.gusts.profiles())
+    if (p.shape == GustShape::kOneMinusCosine) return true;
+  return false;
+}
+
+bool has_turbulence(const Case& c) {
+  for (const auto& p : c.model.gusts.profiles())
+    if (p.label.find("turbulence") != std::string::npos) return true;
+  return false;
+}
+
+// The first nonlinear spring's DOF, or -1.
+int nonlinear_dof(const Case& c) {
+  for (int k = 0; k < c.model.section.dof; ++k)
+    if (!c.model.springs[static_cast<std::size_t>(k)].is_linear()) return k;
+  return -1;
+}
+
+const MethodResult* method_of(const FlutterReport& r, Linearisation l, const std::string& name) {
+  for (const auto& lr : r.results)
+    if (lr.linearisation == l)
+      for (const auto& m : lr.methods)
+        if (m.method == name) return &m;
+  return nullptr;
+}
+
+double tas_from_eas(double eas, double density) { return eas / std::sqrt(density / 1.225); }
+
+class Rows {
+ public:
+  explicit Rows(std::vector<StudyRow>& rows) : rows_(rows) {}
+  // A number shown in `units` (the file holds number / scale).
+  void add(std::string id, std::string quantity, double number, std::string units, std::string source,
+           std::string note = {}) {
+    StudyRow r;
+    r.id = std::move(id);
+    r.quantity = std::move(quantity);
+    r.value = sig4(number);
+    if (std::isfinite(number)) r.number = number;
+    r.units = std::move(units);
+    r.source = std::move(source);
+    r.note = std::move(note);
+    rows_.push_back(std::move(r));
+  }
+  // A row without a number (a statement).
+  void text(std::string id, std::string quantity, std::string value, std::string source = {},
+            std::string note = {}) {
+    StudyRow r;
+    r.id = std::move(id);
+    r.quantity = std::move(quantity);
+    r.value = std::move(value);
+    r.source = std::move(source);
+    r.note = std::move(note);
+    rows_.push_back(std::move(r));
+  }
+
+ private:
+  std::vector<StudyRow>& rows_;
+};
+
+nlohmann::json row_json(const StudyRow& r) {
+  return {{"id", r.id},         {"quantity", r.quantity},
+          {"value", r.value},   {"number", r.number ? nlohmann::json(*r.number) : nlohmann::json()},
+          {"units", r.units},   {"source", r.source},
+          {"note", r.note}};
+}
+
+}  // namespace
+
+StudyResult run_study(const Case& c, const std::string& directory, const StudyOptions& o,
+                      const std::atomic<bool>* cancel,
+                      const std::function<void(const std::string&)>& progress) {
+  auto say = [&](const std::string& s) {
+    if (progress) progress(s);
+  };
+  auto cancelled = [&] { return cancel && cancel->load(); };
+  {
+    std::error_code ec;
+    fs::create_directories(directory, ec);
+    if (ec || !fs::is_directory(directory))
+      throw OutputError(directory, fmt::format("cannot create the study directory '{}': {}", directory,
+                                               ec ? ec.message() : "not a directory"));
+  }
+  StudyResult R;
+  R.directory = directory;
+  Rows rows(R.rows);
+  auto path = [&](const std::string& name) { return (fs::path(directory) / name).string(); };
+  auto part = [&](std::string name, bool done, std::string detail, std::vector<std::string> files = {}) {
+    R.parts.push_back({std::move(name), done, std::move(detail), std::move(files)});
+  };
+  const bool si = c.input_form == "si";
+  const double rho = c.model.flow.density;
+
+  // --- The case as run, and its check --------------------------------------
+  write_file_atomically(path("case.toml"), c.text_as_run());
+  say("check");
+  const CheckReport check = check_case(c);
+  write_file_atomically(path("check.json"), check_json(c, check).dump(2) + "\n");
+  part("check", true,
+       fmt::format("{} in-vacuo modes, lowest {:.4g} Hz", check.modes.size(),
+                   check.modes.empty() ? 0.0 : check.modes.front().frequency / (2 * std::numbers::pi)),
+       {"case.toml", "check.json"});
+
+  // --- Linear flutter and divergence, both methods ---------------------------
+  say("flutter: state-space and p-k");
+  FlutterOptions fo;
+  const FlutterReport fr = flutter_analysis(c, fo);
+  write_flutter_file(path("flutter.h5"), c, fr);
+  R.hdf5_files.push_back("flutter.h5");
+  part("flutter", true,
+       fmt::format("state-space and p-k over {} speeds up to {:.4g} m/s TAS; linearisations: {}",
+                   fr.results.front().methods.front().sweep.speeds.size(),
+                   fr.results.front().methods.front().sweep.speeds.back(),
+                   [&] {
+                     std::string s;
+                     for (const auto& lr : fr.results) s += (s.empty() ? "" : ", ") + std::string(to_string(lr.linearisation));
+                     return s;
+                   }()),
+       {"flutter.h5"});
+  const char* lin_group[4] = {"nominal", "gap_closed", "gap_open", "describing_function"};
+  auto flutter_rows = [&](Linearisation l, const std::string& label, const std::string& id) {
+    for (const char* method : {"state-space", "p-k"}) {
+      const MethodResult* m = method_of(fr, l, method);
+      if (!m) continue;
+      const std::string g = fmt::format("/{}/{}", lin_group[static_cast<int>(l)],
+                                        std::string(method) == "p-k" ? "pk" : "state_space");
+      const std::string mid = std::string(method) == "p-k" ? "pk" : "state_space";
+      if (m->flutter.found) {
+        rows.add(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method),
+                 m->flutter.speed, "m/s TAS", "flutter.h5: " + g + "@flutter_speed",
+                 fmt::format("{:.4g} m/s EAS, {:.4g} Hz", equivalent_airspeed(m->flutter.speed, rho),
+                             m->flutter.frequency / (2 * std::numbers::pi)));
+      } else {
+        rows.text(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method),
+                  fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
+                  "flutter.h5: " + g + "@flutter_found");
+      }
+    }
+  };
+  flutter_rows(Linearisation::kNominal, "Linear", "linear");
+  if (const MethodResult* m = method_of(fr, Linearisation::kNominal, "state-space")) {
+    if (m->divergence.found)
+      rows.add("divergence", "Divergence speed (state-space)", m->divergence.speed, "m/s TAS",
+               "flutter.h5: /nominal/state_space@divergence_speed",
+               fmt::format("{:.4g} m/s EAS", equivalent_airspeed(m->divergence.speed, rho)));
+    else
+      rows.text("divergence", "Divergence speed (state-space)",
+                fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
+                "flutter.h5: /nominal/state_space@divergence_found");
+  }
+  const FlutterMargin fm = flutter_margin(fr);
+  if (fm.available) {
+    rows.add("clearance_speed", "Clearance speed 1.15 V_D", fm.required_eas, "m/s EAS",
+             "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m/s EAS", fm.dive_speed_eas));
+    if (std::isfinite(fm.margin))
+      rows.add("margin", fmt::format("Margin of the lowest instability ({}) over 1.15 V_D", fm.critical_kind),
+               100 * fm.margin, "%", "flutter.h5: /nominal/state_space (EAS = TAS sqrt(rho/1.225))",
+               fm.cleared ? "cleared (linear model, nominal springs)" : "NOT cleared");
+    else
+      rows.text("margin", "Margin over 1.15 V_D", "no instability in the analysed range",
+                "flutter.h5: /nominal/state_space", "cleared (linear model, nominal springs)");
+  } else {
+    rows.text("margin", "Margin over 1.15 V_D", "not assessed", "",
+              "the case gives no envelope.dive_speed_eas");
+  }
+  if (fr.has_gap) {
+    flutter_rows(Linearisation::kGapOpen, "Gap-open (freeplay band lower end)", "gap_open");
+    flutter_rows(Linearisation::kGapClosed, "Gap-closed (freeplay band upper end)", "gap_closed");
+  }
+
+  // --- LCO sweep up and down --------------------------------------------------
+  const int nl = nonlinear_dof(c);
+  std::string sweep_key = si ? "flow.airspeed" : "nondimensional.reduced_speed";
+  const double per = si ? 1.0 : 1.0 / fr.reference_speed;  // swept value per m/s TAS
+  std::optional<double> vd_tas;
+  if (c.dive_speed_eas) vd_tas = tas_from_eas(*c.dive_speed_eas, rho);
+  if (nl < 0) {
+    part("lco-sweep", false, "skipped: the case has no nonlinear spring (freeplay, bilinear, cubic, "
+                              "polynomial or table law), so its response is linear and the flutter "
+                              "analysis above is the whole answer");
+    rows.text("lco", "Limit-cycle oscillation", "not studied", "", "no nonlinear spring in the case");
+  } else if (cancelled()) {
+    part("lco-sweep", false, "skipped: interrupted");
+  } else {
+    // Speed range: below the lowest speed a limit cycle can exist at (the
+    // gap-open flutter speed, or lower where the describing-function curve
+    // dips below it) up to just under the gap-closed (nominal) flutter speed.
+    const MethodResult* nominal = method_of(fr, Linearisation::kNominal, "state-space");
+    const MethodResult* open = method_of(fr, Linearisation::kGapOpen, "state-space");
+    double lo = std::numeric_limits<double>::infinity(), hi = 0;
+    if (open && open->flutter.found) lo = open->flutter.speed;
+    if (fr.lco.available)
+      for (const auto& p : fr.lco.points)
+        if (p.speed > 0) lo = std::min(lo, p.speed);
+    if (nominal && nominal->flutter.found) {
+      if (!fr.has_gap) lo = std::min(lo, nominal->flutter.speed);
+      hi = fr.has_gap ? 0.98 * nominal->flutter.speed : 1.3 * nominal->flutter.speed;
+    } else {
+      hi = vd_tas ? 1.2 * 1.15 * *vd_tas : 1.5 * c.model.flow.airspeed;
+    }
+    if (!std::isfinite(lo)) lo = 0.2 * hi;
+    lo = std::min(0.6 * lo, 0.5 * hi);
+    if (o.sweep_speeds) {
+      lo = o.sweep_speeds->first;
+      hi = o.sweep_speeds->second;
+    }
+    const int n = std::max(2, o.sweep_points);
+    SweepAxis axis{sweep_key, {}};
+    for (int i = 0; i < n; ++i) axis.values.push_back(per * (lo + (hi - lo) * i / (n - 1)));
+
+    // Run length and disturbance.
+    const double f_low = check.modes.empty() ? 1.0 : check.modes.front().frequency / (2 * std::numbers::pi);
+    Derivation dv;
+    const double sweep_duration =
+        o.sweep_duration > 0 ? o.sweep_duration : std::max(c.simulation.duration, 400.0 / f_low);
+    dv.duration = sweep_duration;
+    bool at_rest = true;
+    for (int k = 0; k < c.model.section.dof; ++k)
+      if (c.simulation.initial_displacement(k) != 0 || c.simulation.initial_velocity(k) != 0) at_rest = false;
+    std::string disturbance_note = "initial conditions of the case";
+    if (at_rest) {
+      const auto bp = c.model.springs[static_cast<std::size_t>(nl)].breakpoints();
+      double gap = 0;
+      for (double b : bp) gap = std::max(gap, std::abs(b));
+      dv.disturb_dof = nl;
+      dv.disturbance = gap > 0 ? 4.0 * gap : (nl == kPlunge ? 0.1 * c.model.section.semichord : 2.0 / kDeg);
+      disturbance_note = fmt::format("the case starts at rest: {} displaced by {:.4g} {}", kDof[nl],
+                                     nl == kPlunge ? dv.disturbance : dv.disturbance * kDeg,
+                                     nl == kPlunge ? "m" : "deg");
+    }
+    SweepRequest req;
+    req.case_text = derived_case_text(c, dv);
+    req.case_path = c.path + " (LCO sweep)";
+    req.overrides = c.overrides;
+    req.options.axes = {axis};
+    req.options.up = req.options.down = true;
+    req.options.continuation = true;
+    req.options.jobs = std::max(1, o.jobs);
+    say(fmt::format("LCO sweep: {} speeds {:.4g}..{:.4g} m/s TAS, up and down", n, lo, hi));
+    const Case sweep_case = parse_case(req.case_text, req.case_path, req.overrides);
+    const std::vector<SweepPoint> pts = run_sweep(req, {}, {}, cancel);
+    if (cancelled()) {
+      part("lco-sweep", false, "interrupted");
+    } else {
+      write_sweep_file(path("sweep.h5"), sweep_case, req, pts);
+      R.hdf5_files.push_back("sweep.h5");
+      part("lco-sweep", true,
+           fmt::format("{} speeds from {:.4g} to {:.4g} m/s TAS, up and down with continuation; runs of up "
+                       "to {:.4g} s; {}; gusts removed",
+                       n, lo, hi, sweep_duration, disturbance_note),
+           {"sweep.h5"});
+      const SweepSummary s = summarize(pts);
+      const int w = pts.front().lco.watched_dof;
+      const bool angle = w != kPlunge;
+      const std::string key_note = si ? "" : fmt::format(" (U* = value x {:.4g} m/s)", fr.reference_speed);
+      if (s.onset_up)
+        rows.add("lco_onset_up", "LCO onset, sweeping up", *s.onset_up / per, "m/s TAS",
+                 "sweep.h5: first response_class = 1 at direction 0" + key_note,
+                 fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*s.onset_up / per, rho)));
+      else
+        rows.text("lco_onset_up", "LCO onset, sweeping up", "no LCO found", "sweep.h5: response_class");
+      if (s.disappearance_down)
+        rows.add("lco_persists_down", "LCO persists, sweeping down, to", *s.disappearance_down / per, "m/s TAS",
+                 "sweep.h5: lowest response_class = 1 at direction 1" + key_note,
+                 fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*s.disappearance_down / per, rho)));
+      else
+        rows.text("lco_persists_down", "LCO persists, sweeping down, to", "no LCO found",
+                  "sweep.h5: response_class");
+      if (s.onset_up && s.disappearance_down && *s.disappearance_down < *s.onset_up)
+        rows.text("hysteresis", "Hysteresis band",
+                  fmt::format("{} .. {} m/s TAS", sig4(*s.disappearance_down / per), sig4(*s.onset_up / per)),
+                  "sweep.h5: response_class, both directions");
+      else
+        rows.text("hysteresis", "Hysteresis band", "none seen at this speed spacing",
+                  "sweep.h5: response_class, both directions");
+      // Largest LCO inside the envelope (at or below V_D).
+      const SweepPoint* worst = nullptr;
+      for (const auto& p : pts) {
+        if (!p.ok || p.lco.response != ResponseClass::kPeriodic) continue;
+        if (vd_tas && p.value1 / per > *vd_tas * (1 + 1e-12)) continue;
+        if (!worst || p.lco.dof[static_cast<std::size_t>(w)].amplitude >
+                          worst->lco.dof[static_cast<std::size_t>(w)].amplitude)
+          worst = &p;
+      }
+      const std::string where = vd_tas ? fmt::format("at or below V_D ({:.4g} m/s TAS)", *vd_tas)
+                                       : std::string("over the sweep (no V_D given)");
+      if (!worst) {
+        rows.text("lco_largest", "Largest LCO " + where, "no LCO", "sweep.h5: response_class");
+        part("lco-history", false, "skipped: no LCO " + where);
+      } else {
+        const double a = worst->lco.dof[static_cast<std::size_t>(w)].amplitude;
+        rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDof[w]),
+                 angle ? a * kDeg : a, angle ? "deg" : "m",
+                 fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]{}", kDof[w],
+                             worst->direction, worst->i, angle ? " (rad in the file)" : ""),
+                 fmt::format("at {:.4g} m/s TAS sweeping {}, {:.4g} Hz", worst->value1 / per,
+                             worst->direction == 0 ? "up" : "down", worst->lco.frequency));
+        for (int k = 0; k < c.model.section.dof; ++k) {
+          if (k == w) continue;
+          const double ak = worst->lco.dof[static_cast<std::size_t>(k)].amplitude;
+          rows.add(fmt::format("lco_largest_{}", kDof[k]), fmt::format("  {} amplitude at that LCO", kDof[k]),
+                   k == kPlunge ? ak : ak * kDeg, k == kPlunge ? "m" : "deg",
+                   fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]", kDof[k],
+                               worst->direction, worst->i));
+        }
+        if (c.model.section.dof == 3) {
+          const SpringLaw& law = c.model.springs[kFlap];
+          const double fmax = law.force(worst->lco.dof[kFlap].max, law.region_of(worst->lco.dof[kFlap].max));
+          const double fmin = law.force(worst->lco.dof[kFlap].min, law.region_of(worst->lco.dof[kFlap].min));
+          rows.add("lco_hinge_spring_moment", "  hinge-spring (control circuit) moment at that LCO, largest |value|",
+                   std::max(std::abs(fmax), std::abs(fmin)), "N m/m",
+                   "flap spring law at sweep.h5: flap_max / flap_min of that point");
+        }
+        // Time history of that cycle, from the point's final state.
+        if (!cancelled() && worst->lco.frequency > 0) {
+          say(fmt::format("LCO time history at {:.4g} m/s TAS", worst->value1 / per));
+          const double period = 1.0 / worst->lco.frequency;
+          Derivation hv;
+          hv.duration = 10 * period;
+          hv.sample_interval = period / 200;
+          std::vector<std::string> ov = c.overrides;
+          ov.push_back(fmt::format("{}={:.17g}", sweep_key, worst->value1));
+          const Case hc = parse_case(derived_case_text(c, hv), c.path + " (largest LCO)", ov);
+          const AeroelasticModel hm(hc.model);
+          RunState start;
+          start.x = worst->final_state;
+          start.regions = worst->final_regions;
+          Hdf5TimeHistoryWriter writer(path("lco.h5"));
+          const SimulationSummary hs = simulate(hc, hm, writer, cancel, &start);
+          R.hdf5_files.push_back("lco.h5");
+          part("lco-history", hs.completed,
+               fmt::format("10 cycles of the largest LCO {} ({:.4g} m/s TAS), started from the sweep point's "
+                           "final state",
+                           where, worst->value1 / per),
+               {"lco.h5"});
+          for (const auto& e : hs.extremes)
+            if (e.channel == "hinge_moment")
+              rows.add("lco_hinge_moment", "  aerodynamic hinge moment at that LCO, largest |value|",
+                       std::max(std::abs(e.max), std::abs(e.min)), "N m/m",
+                       "lco.h5: hinge_moment (largest |sample|)");
+        }
+      }
+    }
+  }
+
+  // --- Design gusts -----------------------------------------------------------
+  if (!has_one_minus_cosine(c)) {
+    part("gust-sweep", false,
+         c.model.gusts.empty() ? "skipped: the case has no [[gust]]"
+                               : "skipped: the case has no one-minus-cosine gust to size over H");
+  } else if (!cancelled()) {
+    say("design gust: 1-cos gradient sweep");
+    // From rest, so the peaks are the gust's and not the release transient's.
+    Derivation gv;
+    gv.remove_gusts = false;
+    gv.at_rest = true;
+    const Case gc = parse_case(derived_case_text(c, gv), c.path + " (design gust, from rest)", c.overrides);
+    const GustSweep gs = gust_gradient_sweep(gc, default_gradients());
+    write_gust_sweep_file(path("gust.h5"), gc, gs);
+    R.hdf5_files.push_back("gust.h5");
+    part("gust-sweep", true,
+         fmt::format("{} gust gradients H from {:.4g} to {:.4g} m{}, from rest", gs.points.size(),
+                     gs.points.front().gradient, gs.points.back().gradient,
+                     c.altitude ? fmt::format(" at {:.4g} m (ISA)", *c.altitude) : std::string()),
+         {"gust.h5"});
+    for (const auto& cr : gs.critical) {
+      if (cr.channel != "plunge" && cr.channel != "pitch" && cr.channel != "flap" && cr.channel != "lift" &&
+          cr.channel != "pitching_moment" && cr.channel != "hinge_moment")
+        continue;
+      const bool angle = cr.channel == "pitch" || cr.channel == "flap";
+      rows.add("gust_peak_" + cr.channel, fmt::format("Design gust: peak {}", cr.channel),
+               angle ? cr.value * kDeg : cr.value, angle ? "deg" : cr.units,
+               fmt::format("gust.h5: /peaks@critical_value_{}{}", cr.channel, angle ? " (rad in the file)" : ""),
+               fmt::format("critical H = {:.4g} m", cr.gradient));
+    }
+  }
+
+  // --- The case as given: initial conditions and gusts -------------------------
+  if (!cancelled()) {
+    say("response to the case as given");
+    const AeroelasticModel model(c.model);
+    Hdf5TimeHistoryWriter writer(path("response.h5"));
+    const SimulationSummary rs = simulate(c, model, writer, cancel);
+    R.hdf5_files.push_back("response.h5");
+    part("response", rs.completed,
+         fmt::format("{:.4g} s from the case's initial conditions{}", rs.end_time,
+                     c.model.gusts.empty() ? std::string(", no gusts")
+                                           : fmt::format(" with its {} gust input(s)", c.model.gusts.profiles().size())),
+         {"response.h5"});
+    if (has_turbulence(c))
+      for (const auto& e : rs.extremes)
+        if (e.channel == "lift" || e.channel == "pitch" || e.channel == "flap" || e.channel == "hinge_moment") {
+          const bool angle = e.channel == "pitch" || e.channel == "flap";
+          rows.add("turbulence_rms_" + e.channel, fmt::format("Turbulence: RMS {}", e.channel),
+                   angle ? e.rms * kDeg : e.rms, angle ? "deg" : e.units,
+                   fmt::format("response.h5: {} (RMS of the samples){}", e.channel, angle ? " (rad in the file)" : ""));
+        }
+    if (!has_turbulence(c))
+      part("turbulence", false, "skipped: the case asks for no turbulence");
+  }
+
+  // --- summary.json ---------------------------------------------------------------
+  nlohmann::json j = report_header(c, "study");
+  j["directory"] = directory;
+  for (const auto& r : R.rows) j["summary"].push_back(row_json(r));
+  for (const auto& p : R.parts)
+    j["parts"].push_back({{"name", p.name}, {"done", p.done}, {"detail", p.detail}, {"files", p.files}});
+  j["hdf5_files"] = R.hdf5_files;
+  j["completed"] = !cancelled();
+  R.summary = j;
+  write_file_atomically(path("summary.json"), j.dump(2) + "\n");
+  return R;
+}
+
+}  // namespace aerosect

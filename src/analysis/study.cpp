@@ -364,6 +364,22 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
       else
         rows.text("hysteresis", "Hysteresis band", "none seen at this speed spacing",
                   "sweep.h5: response_class, both directions");
+      // Where any LCO was found, either direction.
+      {
+        std::optional<double> first, last;
+        for (const auto& p : pts)
+          if (p.ok && p.lco.response == ResponseClass::kPeriodic) {
+            first = std::min(first.value_or(p.value1), p.value1);
+            last = std::max(last.value_or(p.value1), p.value1);
+          }
+        if (first)
+          rows.text("lco_range", "LCO found between (either direction)",
+                    fmt::format("{} .. {} m/s TAS", sig4(*first / per), sig4(*last / per)),
+                    "sweep.h5: response_class = 1", vd_tas && *first / per <= *vd_tas ? "inside the envelope (at or below V_D)" : "");
+        else
+          rows.text("lco_range", "LCO found between (either direction)", "no LCO in the sweep",
+                    "sweep.h5: response_class");
+      }
       // Largest LCO inside the envelope (at or below V_D).
       const SweepPoint* worst = nullptr;
       for (const auto& p : pts) {

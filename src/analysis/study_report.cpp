@@ -47,7 +47,10 @@ h1 { font-size: 1.6em; margin-bottom: 0.2em; }
 h2 { font-size: 1.25em; border-bottom: 1px solid #aaa; margin-top: 1.6em; }
 .caution { border: 2px solid #b00; background: #fff3f3; padding: 0.6em 1em; }
 .caution strong { color: #b00; }
-table { border-collapse: collapse; width: 100%; font-size: 0.92em; }
+table { border-collapse: collapse; width: 100%; font-size: 0.92em; table-layout: fixed; }
+#summary col.q { width: 32%; } #summary col.v { width: 13%; } #summary col.u { width: 9%; }
+#summary col.r { width: 22%; } #summary col.s { width: 24%; }
+td.src { overflow-wrap: anywhere; }
 th, td { border: 1px solid #bbb; padding: 0.3em 0.5em; text-align: left; vertical-align: top; }
 th { background: #eee; }
 td.num { text-align: right; white-space: nowrap; font-variant-numeric: tabular-nums; }
@@ -78,7 +81,7 @@ std::string study_figure_caption(const std::string& png_name) {
       {"sweep_bifurcation", "Bifurcation diagram: LCO amplitude against airspeed, sweeping up and "
                             "down (continuation), with the describing-function prediction and the "
                             "linear flutter speeds; where the two directions differ is hysteresis."},
-      {"gust_gust", "Design gust gradient sweep: peak responses against the gust gradient distance H "
+      {"gust_gust_peaks", "Design gust gradient sweep: peak responses against the gust gradient distance H "
                     "(one-minus-cosine gusts sized per CS-25.341(a) when the case asks for it)."},
       {"response_time", "Response to the case as given: time histories with the gust velocity on top."},
       {"response_phase", "Phase portraits of the response to the case as given."},
@@ -119,14 +122,16 @@ void write_study_report(const Case& c, const StudyResult& r, const std::vector<S
   h += fmt::format("<p class=\"meta\">{}</p></div>\n", escape(kSafetyCaution));
 
   // Summary table.
-  h += "<h2>Summary</h2>\n<table id=\"summary\">\n<thead><tr><th>Quantity</th><th>Value</th>"
+  h += "<h2>Summary</h2>\n<table id=\"summary\">\n<colgroup><col class=\"q\"><col class=\"v\"><col "
+       "class=\"u\"><col class=\"r\"><col class=\"s\"></colgroup>\n<thead><tr><th>Quantity</th><th>Value</th>"
        "<th>Units</th><th>Remark</th><th>Source</th></tr></thead>\n<tbody>\n";
   for (const auto& row : r.rows)
-    h += fmt::format("<tr id=\"row-{}\" data-id=\"{}\"{}><td>{}</td><td class=\"num\">{}</td><td>{}</td><td>{}</td>"
+    h += fmt::format("<tr id=\"row-{}\" data-id=\"{}\"{}><td>{}</td><td class=\"{}\">{}</td><td>{}</td><td>{}</td>"
                      "<td class=\"src\">{}</td></tr>\n",
                      escape(row.id), escape(row.id),
                      row.number ? fmt::format(" data-number=\"{:.17g}\"", *row.number) : std::string(),
-                     escape(row.quantity), escape(row.value), escape(row.units), escape(row.note),
+                     escape(row.quantity), row.number ? "num" : "txt", escape(row.value), escape(row.units),
+                     escape(row.note),
                      escape(row.source));
   h += "</tbody>\n</table>\n";
   h += "<p class=\"meta\">Airspeeds are true airspeed (TAS) unless marked EAS; EAS = TAS "

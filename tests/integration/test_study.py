@@ -1,0 +1,242 @@
+#!/usr/bin/python3
+"""End-to-end test of `aerosect study`: the demo case and a case without
+freeplay or gusts, the HTML report opened in headless Chromium, and every
+number of the report's summary table traced back to the HDF5 files.
+
+    test_study.py AEROSECT SOURCE_DIR [--keep DIR]
+
+Checks:
+  - the demo study exits 0 and writes every file it lists (HDF5, JSON,
+    PNG, report.html); each HDF5 file opens with h5py;
+  - in the browser every image of the report loads and the summary table
+    has the rows the issue asks for (flutter, divergence, margin, freeplay
+    band, LCO onset / persistence / hysteresis, largest LCO and hinge
+    moments inside the envelope, gust peaks);
+  - the numbers in the report are the numbers in the files: each row's
+    number is recomputed here from the HDF5 file it names (attributes, or
+    the sweep table and its rules, or the time history) and must equal the
+    one in summary.json to 1e-12, and the cell shown in the browser must be
+    that number to its 4 significant digits;
+  - a case without freeplay and without gusts runs, and its report says
+    the LCO sweep and the gust sweep were skipped and why.
+Common practice, no source: a report is only as good as its traceability.
+"""
+
+import argparse
+import json
+import math
+import os
+import re
+import shutil
+import subprocess
+import sys
+import tempfile
+
+import h5py
+import numpy as np
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from browser import check_report  # noqa: E402
+from test_plot_flutter import Checks  # noqa: E402
+
+DEG = 180.0 / math.pi
+
+
+def run_study(exe, case, out, *extra):
+    r = subprocess.run([exe, "study", case, "-o", out, "--json", "--jobs", "2", *extra],
+                       capture_output=True, text=True)
+    if r.returncode != 0:
+        raise AssertionError(f"study exited {r.returncode}: {r.stderr[-2000:]}")
+    return json.loads(r.stdout)
+
+
+def rows_by_id(summary):
+    return {row["id"]: row for row in summary["summary"]}
+
+
+def sweep_expectations(path, vd_tas):
+    """Onset, persistence and the largest LCO at or below V_D from the sweep
+    table, by the rules the report states."""
+    with h5py.File(path, "r") as f:
+        v = f["value_1"][:]
+        rc = f["response_class"][:]
+        watched = f.attrs["watched_dof"]
+        watched = watched.decode() if isinstance(watched, bytes) else str(watched)
+        amp = {d: f[f"{d}_amplitude"][:] for d in ("plunge", "pitch", "flap") if f"{d}_amplitude" in f}
+        fmax, fmin = f["flap_max"][:], f["flap_min"][:]
+    out = {}
+    up = np.nonzero(rc[0] == 1)[0]
+    down = np.nonzero(rc[1] == 1)[0]
+    if up.size:
+        out["lco_onset_up"] = v[up[0]]
+    if down.size:
+        out["lco_persists_down"] = v[down[0]]
+    best = None
+    for d in (0, 1):
+        for i in range(len(v)):
+            if rc[d, i] == 1 and v[i] <= vd_tas * (1 + 1e-12):
+                a = amp[watched][d, i]
+                if best is None or a > best[0]:
+                    best = (a, d, i)
+    if best:
+        a, d, i = best
+        out["lco_largest"] = a * (DEG if watched != "plunge" else 1)
+        for k, arr in amp.items():
+            if k != watched:
+                out[f"lco_largest_{k}"] = arr[d, i] * (1 if k == "plunge" else DEG)
+        out["_flap_extremes"] = (fmax[d, i], fmin[d, i])
+    return out
+
+
+def check_demo(exe, src, work, checks):
+    out = os.path.join(work, "demo")
+    case = os.path.join(src, "cases", "demo_aileron.toml")
+    summary = run_study(exe, case, out)
+    rows = rows_by_id(summary)
+
+    def files_written():
+        for name in summary["hdf5_files"]:
+            with h5py.File(os.path.join(out, name), "r") as f:
+                assert f.attrs["aerosect_file_kind"] is not None, name
+        for name in ("report.html", "summary.json", "case.toml", "check.json"):
+            assert os.path.getsize(os.path.join(out, name)) > 0, name
+        assert set(summary["hdf5_files"]) >= {"flutter.h5", "sweep.h5", "gust.h5", "response.h5", "lco.h5"}
+        assert len(summary["figures"]) >= 8, summary["figures"]
+        for p in summary["figures"]:
+            assert os.path.getsize(p) > 10000, p
+    checks.run("demo study writes every file", files_written)
+
+    # Expected numbers, recomputed from the files the rows name.
+    expected = {}
+    with h5py.File(os.path.join(out, "flutter.h5"), "r") as f:
+        for lin in ("nominal", "gap_open", "gap_closed"):
+            for g in ("state_space", "pk"):
+                grp = f[lin][g]
+                ident = {"nominal": "linear", "gap_open": "gap_open", "gap_closed": "gap_closed"}[lin]
+                if grp.attrs["flutter_found"]:
+                    expected[f"{ident}_flutter_{g}"] = float(grp.attrs["flutter_speed"])
+        ss = f["nominal"]["state_space"]
+        if ss.attrs["divergence_found"]:
+            expected["divergence"] = float(ss.attrs["divergence_speed"])
+        rho = float(f.attrs["density"])
+        vd = float(f.attrs["dive_speed_eas"])
+    expected["clearance_speed"] = 1.15 * vd
+    crit = min(expected["linear_flutter_state_space"], expected.get("divergence", math.inf))
+    expected["margin"] = 100 * (crit * math.sqrt(rho / 1.225) / (1.15 * vd) - 1)
+    vd_tas = vd / math.sqrt(rho / 1.225)
+    sw = sweep_expectations(os.path.join(out, "sweep.h5"), vd_tas)
+    flap_extremes = sw.pop("_flap_extremes", None)
+    expected.update(sw)
+    with h5py.File(os.path.join(out, "lco.h5"), "r") as f:
+        expected["lco_hinge_moment"] = float(np.max(np.abs(f["hinge_moment"][:])))
+    with h5py.File(os.path.join(out, "gust.h5"), "r") as f:
+        peaks = f["peaks"].attrs
+        for ch in ("plunge", "pitch", "flap", "lift", "pitching_moment", "hinge_moment"):
+            key = f"critical_value_{ch}"
+            if key in peaks:
+                expected[f"gust_peak_{ch}"] = float(peaks[key]) * (DEG if ch in ("pitch", "flap") else 1)
+
+    def numbers_match_files():
+        missing = [k for k in expected if k not in rows]
+        assert not missing, f"rows missing from the summary: {missing}"
+        for k, want in expected.items():
+            got = rows[k]["number"]
+            assert got is not None and math.isclose(got, want, rel_tol=1e-12, abs_tol=1e-15), \
+                f"{k}: summary {got} against file {want}"
+    checks.run("every summary number equals its HDF5 source", numbers_match_files)
+
+    def hinge_spring_moment():
+        # Freeplay law of the demo (1 deg total gap, flap stiffness from its
+        # frequency): the moment is K (|beta| - delta) outside the gap.
+        with h5py.File(os.path.join(out, "sweep.h5"), "r") as f:
+            k = float(f["parameters/si/flap_stiffness"][()])
+        delta = 0.5 / DEG
+        m = max(k * max(abs(x) - delta, 0.0) for x in flap_extremes)
+        assert math.isclose(rows["lco_hinge_spring_moment"]["number"], m, rel_tol=1e-9), \
+            (rows["lco_hinge_spring_moment"]["number"], m)
+    checks.run("hinge-spring moment from the freeplay law at the LCO extremes", hinge_spring_moment)
+
+    shot = os.path.join(out, "report_screenshot.png")
+    result = {}
+
+    def browser_opens():
+        result.update(check_report(os.path.join(out, "report.html"), shot))
+        assert result["images"], "no images"
+        bad = [i["alt"][:40] for i in result["images"] if not i["loaded"]]
+        assert not bad, f"images that did not load: {bad}"
+        assert len(result["images"]) == len(summary["figures"])
+        assert not result["console_errors"], result["console_errors"]
+        assert result["screenshot_size"][1] > 3000
+    checks.run("report opens in Chromium, every image loads", browser_opens)
+
+    def table_rows():
+        shown = result["summary_rows"]
+        assert shown and shown[0][:2] == ["Quantity", "Value"], shown[:1]
+        body = shown[1:]
+        assert len(body) == len(summary["summary"])
+        for cells, row in zip(body, summary["summary"]):
+            assert cells[0] == row["quantity"].strip(), (cells[0], row["quantity"])
+            assert cells[1] == row["value"], (cells[1], row["value"])
+            if row["number"] is not None:
+                assert float(cells[1]) == float(f"{row['number']:.4g}"), (cells[1], row["number"])
+        needed = ["linear_flutter_state_space", "linear_flutter_pk", "divergence", "clearance_speed",
+                  "margin", "gap_open_flutter_state_space", "gap_closed_flutter_state_space",
+                  "lco_onset_up", "lco_persists_down", "hysteresis", "lco_largest",
+                  "lco_hinge_moment", "lco_hinge_spring_moment", "gust_peak_lift", "gust_peak_flap"]
+        assert not [k for k in needed if k not in rows], [k for k in needed if k not in rows]
+    checks.run("summary table shows every row with its value", table_rows)
+
+    def cautions_first():
+        html = open(os.path.join(out, "report.html"), encoding="utf-8").read()
+        first_caution = html.find('id="caution"')
+        assert 0 < first_caution < html.find('id="summary"')
+        for phrase in ("preliminary design", "ground vibration tests", "flight flutter testing",
+                       "licensed engineers", "applicable specification"):
+            assert phrase in html[first_caution:html.find('id="summary"')], phrase
+        assert 'id="case"' in html and "dive_speed_eas" in html and 'id="version"' in html
+    checks.run("cautions at the top; case as run and version present", cautions_first)
+
+
+def check_plain_case(exe, src, work, checks):
+    text = open(os.path.join(src, "cases", "demo_aileron.toml"), encoding="utf-8").read()
+    text = re.sub(r"\[springs\.flap\][^\[]*", "", text)
+    text = re.sub(r"\[\[gust\]\][^\[]*$", "", text, flags=re.S)
+    case = os.path.join(work, "plain.toml")
+    with open(case, "w", encoding="utf-8") as fh:
+        fh.write(text)
+    out = os.path.join(work, "plain")
+
+    def skips():
+        summary = run_study(exe, case, out, "--no-plots")
+        parts = {p["name"]: p for p in summary["parts"]}
+        assert not parts["lco-sweep"]["done"] and "no nonlinear spring" in parts["lco-sweep"]["detail"]
+        assert not parts["gust-sweep"]["done"] and "no [[gust]]" in parts["gust-sweep"]["detail"]
+        assert parts["flutter"]["done"] and parts["response"]["done"]
+        assert "sweep.h5" not in summary["hdf5_files"] and "gust.h5" not in summary["hdf5_files"]
+        html = open(os.path.join(out, "report.html"), encoding="utf-8").read()
+        assert "skipped: the case has no nonlinear spring" in html
+        assert "skipped: the case has no [[gust]]" in html
+        assert "--no-plots was given" in html
+    checks.run("a case without freeplay or gusts skips those parts and says so", skips)
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("aerosect")
+    ap.add_argument("source_dir")
+    ap.add_argument("--keep")
+    a = ap.parse_args()
+    work = a.keep or tempfile.mkdtemp(prefix="aerosect-study-")
+    os.makedirs(work, exist_ok=True)
+    checks = Checks()
+    try:
+        check_demo(a.aerosect, a.source_dir, work, checks)
+        check_plain_case(a.aerosect, a.source_dir, work, checks)
+    finally:
+        if not a.keep:
+            shutil.rmtree(work, ignore_errors=True)
+    return checks.summary()
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -4,6 +4,9 @@
 #include <cmath>
 
 #include <Eigen/Eigenvalues>
+#include <boost/math/tools/roots.hpp>
+#include <complex>
+#include <limits>
 
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/pk.hpp"
@@ -12,13 +15,27 @@ namespace aerosect {
 
 namespace {
 
-double largest_growth(const ModelDescription& d, const DofVector& k, double U) {
+// Largest real part of the oscillatory eigenvalues (|Im| > 0: flutter, not
+// the real divergence or lag roots) and that root's frequency, rad/s.
+std::pair<double, double> oscillatory_growth(const ModelDescription& d, const DofVector& k, double U) {
   ModelDescription m = d;
   m.flow.airspeed = U;
   m.held = {false, false, false};
   const Eigen::MatrixXd A = AeroelasticModel(m).state_matrix(k);
   Eigen::EigenSolver<Eigen::MatrixXd> es(A, false);
-  return es.eigenvalues().real().maxCoeff();
+  double g = -std::numeric_limits<double>::infinity(), w = 0;
+  for (Eigen::Index i = 0; i < es.eigenvalues().size(); ++i) {
+    const std::complex<double> l = es.eigenvalues()(i);
+    if (std::abs(l.imag()) > 1e-8 * std::max(1.0, std::abs(l)) && l.real() > g) {
+      g = l.real();
+      w = std::abs(l.imag());
+    }
+  }
+  return {g, w};
+}
+
+double largest_growth(const ModelDescription& d, const DofVector& k, double U) {
+  return oscillatory_growth(d, k, U).first;
 }
 
 }  // namespace
@@ -62,25 +79,43 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
 
   DofVector k(n);
   for (int i = 0; i < n; ++i) k(i) = c.model.springs[i].nominal_stiffness();
+  // Every neutral speed of each equivalent linear system: the speeds where
+  // the largest oscillatory growth rate changes sign on the grid, refined by
+  // TOMS 748. Branch b is the b-th crossing from below at that amplitude.
+  std::vector<LcoPredictionPoint> all;
   for (int i = 0; i < count; ++i) {
     const double A = amplitude(i);
     const double N = law.describing_function(A);
     if (!(N >= 0)) continue;
     k(j) = N;
-    const StabilitySweep sw = state_space_sweep(c.model, k, speeds);
-    const Crossing f = state_space_flutter(c.model, k, sw, 1e-9);
-    if (!f.found) continue;
-    LcoPredictionPoint pt;
-    pt.amplitude = A;
-    pt.equivalent_stiffness = N;
-    pt.speed = f.speed;
-    pt.frequency = f.frequency;
-    DofVector kp = k, km = k;
-    kp(j) = law.describing_function(A * (1 + 1e-3));
-    km(j) = law.describing_function(A * (1 - 1e-3));
-    pt.stable = largest_growth(c.model, kp, f.speed) < 0 && largest_growth(c.model, km, f.speed) > 0;
-    p.points.push_back(pt);
+    auto g = [&](double U) { return largest_growth(c.model, k, U); };
+    int branch = 0;
+    double g0 = g(speeds.front());
+    for (std::size_t q = 1; q < speeds.size(); ++q) {
+      const double g1 = g(speeds[q]);
+      if ((g0 < 0) != (g1 < 0) && std::isfinite(g0) && std::isfinite(g1)) {
+        boost::uintmax_t iterations = 100;
+        const auto root = boost::math::tools::toms748_solve(
+            g, speeds[q - 1], speeds[q], g0, g1,
+            boost::math::tools::eps_tolerance<double>(40), iterations);
+        LcoPredictionPoint pt;
+        pt.amplitude = A;
+        pt.equivalent_stiffness = N;
+        pt.speed = 0.5 * (root.first + root.second);
+        pt.frequency = oscillatory_growth(c.model, k, pt.speed).second;
+        pt.branch = branch++;
+        DofVector kp = k, km = k;
+        kp(j) = law.describing_function(A * (1 + 1e-3));
+        km(j) = law.describing_function(A * (1 - 1e-3));
+        pt.stable = largest_growth(c.model, kp, pt.speed) < 0 && largest_growth(c.model, km, pt.speed) > 0;
+        all.push_back(pt);
+      }
+      g0 = g1;
+    }
   }
+  std::stable_sort(all.begin(), all.end(),
+                   [](const auto& a, const auto& b) { return a.branch < b.branch; });
+  p.points = std::move(all);
   p.available = !p.points.empty();
   if (!p.available) p.reason = "no flutter crossing for any equivalent stiffness in the swept speeds";
   return p;

@@ -196,7 +196,8 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
       lj["points"].push_back({{"amplitude", pt.amplitude * unit},
                               {"speed_m_s", pt.speed},
                               {"frequency_hz", pt.frequency / (2 * pi)},
-                              {"stable", pt.stable}});
+                              {"stable", pt.stable},
+                              {"branch", pt.branch}});
       if (pt.stable) {
         lo = std::min(lo, pt.speed);
         hi = std::max(hi, pt.speed);
@@ -403,17 +404,22 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
   }
   if (r.lco.available) {
     const bool angle = r.lco.spring != kPlunge;
-    std::vector<double> a, u, f, st, keq;
+    std::vector<double> a, u, f, st, keq, br, idx;
     for (const auto& pt : r.lco.points) {
+      idx.push_back(static_cast<double>(idx.size()));
+      br.push_back(pt.branch);
       a.push_back(pt.amplitude);
       u.push_back(pt.speed);
       f.push_back(pt.frequency / (2 * pi));
       st.push_back(pt.stable ? 1.0 : 0.0);
       keq.push_back(pt.equivalent_stiffness);
     }
-    doc.axis("lco_amplitude", a, angle ? "rad" : "m",
-             std::string("describing-function LCO amplitude of the ") + dof_name(r.lco.spring));
-    const std::vector<std::string> dims = {"lco_amplitude"};
+    doc.axis("lco_prediction_point", idx, "1", "point of the describing-function curves");
+    const std::vector<std::string> dims = {"lco_prediction_point"};
+    doc.dataset("lco_prediction/amplitude", dims, a, angle ? "rad" : "m",
+                std::string("describing-function LCO amplitude of the ") + dof_name(r.lco.spring));
+    doc.dataset("lco_prediction/branch", dims, br, "1",
+                "neutral speed of the equivalent linear system counted from below (0 lowest)");
     doc.dataset("lco_prediction/speed", dims, u, "m s-1", "airspeed of the predicted LCO");
     doc.dataset("lco_prediction/frequency", dims, f, "Hz", "frequency of the predicted LCO");
     doc.dataset("lco_prediction/stable", dims, st, "1", "1 for a stable LCO branch, 0 unstable");

@@ -389,8 +389,9 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
       if (x.found) doc.number_attribute("", names[static_cast<int>(lr.linearisation)], x.speed * per);
     }
     if (fr.lco.available) {
-      std::vector<double> v, a, st;
+      std::vector<double> v, a, st, br;
       for (const auto& pt : fr.lco.points) {
+        br.push_back(pt.branch);
         v.push_back(pt.speed * per);
         a.push_back(pt.amplitude);
         st.push_back(pt.stable ? 1.0 : 0.0);
@@ -403,6 +404,8 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
       doc.dataset("lco_prediction/amplitude", pd, a, fr.lco.spring == kPlunge ? "m" : "rad",
                   std::string("predicted LCO amplitude of the ") + kDofNames[fr.lco.spring]);
       doc.dataset("lco_prediction/stable", pd, st, "1", "1 stable branch, 0 unstable");
+      doc.dataset("lco_prediction/branch", pd, br, "1",
+                  "neutral speed of the equivalent linear system counted from below (0 lowest)");
     }
   }
   // Everything needed to merge shards into the file an unsharded run writes.

@@ -109,8 +109,10 @@ TEST_CASE("Freeplay prediction joins the gap-open and gap-closed flutter speeds"
   const Crossing& open = r.results.at(2).methods.at(0).flutter;
   REQUIRE(closed.found);
   REQUIRE(open.found);
-  const LcoPrediction p = describing_function_lco(c, speeds, 80);
-  REQUIRE(p.available);
+  const LcoPrediction all = describing_function_lco(c, speeds, 80);
+  REQUIRE(all.available);
+  LcoPrediction p = all;  // the lowest neutral speed at each amplitude
+  std::erase_if(p.points, [](const LcoPredictionPoint& q) { return q.branch != 0; });
   CHECK(p.points.front().speed == Approx(open.speed).epsilon(1e-3));
   // At A = 101 half-gaps N/k = 0.987: within 1 % of the gap-closed speed.
   CHECK(p.points.back().speed == Approx(closed.speed).epsilon(0.01));
@@ -144,4 +146,40 @@ TEST_CASE("Freeplay LCO below the gap-open flutter speed, predicted and simulate
   INFO("simulated LCO half peak-to-peak at U* = " << 0.5 * (lowest + U_open) << ": " << a
                                                   << " half-gaps");
   CHECK(a > 1.05);  // a sustained oscillation outside the gap
+}
+
+TEST_CASE("Every neutral speed counts: an instability band that closes bounds the LCO", "[df]") {
+  // Gelb & Vander Velde 1968: an LCO of amplitude A can exist wherever the
+  // equivalent linear system (k = N(A)) is neutral, at every such speed, not
+  // only the lowest. The demo scenario (invented data, used here only as a
+  // section whose gap-open instability restabilises) has aileron freeplay
+  // with a gap-open flutter band of about 11.5..30 m/s and gap-closed flutter
+  // at 94 m/s. Counting only the lowest neutral speed joined the band to the
+  // 94 m/s flutter and predicted a stable LCO at 50 m/s, where the simulation
+  // (exact switching, 3 deg aileron start, no gust) dies out completely.
+  const Case demo = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml");
+  const LcoPrediction p = describing_function_lco(demo, default_speeds(demo), 60);
+  REQUIRE(p.available);
+  int closing = 0;
+  for (const auto& pt : p.points) {
+    if (pt.branch == 1) {
+      ++closing;
+      CHECK(pt.speed > 15.0);
+      CHECK(pt.speed < 40.0);
+    }
+    // No stable small-amplitude LCO predicted between the band and 90 m/s.
+    if (pt.stable && pt.amplitude < 2 * 0.5 * pi / 180) CHECK((pt.speed < 40.0 || pt.speed > 90.0));
+  }
+  CHECK(closing > 5);
+  std::string text = demo.text;
+  text = text.substr(0, text.find("[[gust]]"));
+  const Case quiet = test::case_from(text + "", {"flow.airspeed=50", "simulation.duration=40",
+                                                "initial.flap_deg=3"});
+  const AeroelasticModel model(quiet.model);
+  MemorySink sink;
+  REQUIRE(simulate(quiet, model, sink).completed);
+  const auto beta = sink.column("flap");
+  const auto from = beta.begin() + static_cast<long>(0.8 * beta.size());
+  const auto [lo, hi] = std::minmax_element(from, beta.end());
+  CHECK(0.5 * (*hi - *lo) < 1e-6);
 }

@@ -20,9 +20,16 @@ The LCO figure is taken over the last fifth of the run (or over the last
 plus the half difference of the mean maxima and mean minima and the last
 complete cycle's (max - preceding min)/2.
 
+With --cycle-samples N the last LCO period of the run, T = 1/frequency
+ending at the end time, is sampled at N equally spaced instants of the
+dense output and its content is given per DOF from numpy's FFT (rfft):
+mean, RMS about zero and about the mean, harmonic amplitudes
+a_k = 2|X_k|/N (k = 1..5) and THD = sqrt(sum_{k=2}^{N/2} a_k^2)/a_1 over the
+whole one-sided spectrum (the Nyquist bin with weight sqrt(2)|X_{N/2}|/N).
+
 Usage:
   peer_solve_ivp.py AEROSECT CASE [--set KEY=VALUE ...] [--rtol R] [--atol A]
-                    [--duration SECONDS] [--cycles N]
+                    [--duration SECONDS] [--cycles N] [--cycle-samples N]
 Prints one JSON object.
 """
 import argparse
@@ -63,6 +70,7 @@ class Peer:
         self.nfev = 0
         self.nsteps = 0
         self.switches = 0
+        self.tail = []  # (t0, t1, dense output) of the segments in the last tenth
 
     def rhs_factory(self, regions):
         A, springs = self.A, self.springs
@@ -80,8 +88,9 @@ class Peer:
             return dx
         return rhs
 
-    def run(self, rtol, atol, duration=None):
+    def run(self, rtol, atol, duration=None, keep_tail=False):
         T = self.duration if duration is None else duration
+        self.keep_tail = keep_tail
         vel = self.layout["velocity"]
         w = self.watch
         x = self.x0.copy()
@@ -117,6 +126,8 @@ class Peer:
                 raise RuntimeError(sol.message)
             self.nfev += sol.nfev
             self.nsteps += len(sol.t) - 1
+            if self.keep_tail and sol.t[-1] >= 0.9 * T and sol.sol is not None:
+                self.tail.append((sol.t[0], sol.t[-1], sol.sol))
             # Peaks of the watched DOF in this segment.
             for te, ye in zip(sol.t_events[0], sol.y_events[0]):
                 if te <= t:
@@ -138,6 +149,26 @@ class Peer:
                 t = sol.t[-1]
                 break
         return peaks, T
+
+    def cycle(self, period, T, samples, harmonics=5):
+        """Content of the last period of the run from numpy's FFT."""
+        n_dof = self.layout["velocity"]
+        ts = T - period + period * np.arange(samples) / samples
+        x = np.empty((n_dof, samples))
+        for m, t in enumerate(ts):
+            seg = next(s for s in self.tail if s[0] <= t <= s[1])
+            x[:, m] = seg[2](t)[:n_dof]
+        out = []
+        for d in range(n_dof):
+            X = np.fft.rfft(x[d])
+            a = 2.0 * np.abs(X) / samples
+            a[samples // 2] = np.sqrt(2.0) * np.abs(X[samples // 2]) / samples
+            out.append(dict(mean=float(X[0].real / samples),
+                            rms=float(np.sqrt(np.mean(x[d] ** 2))),
+                            rms_about_mean=float(np.std(x[d])),
+                            harmonics=[float(v) for v in a[1:harmonics + 1]],
+                            thd=float(np.sqrt(np.sum(a[2:] ** 2)) / a[1])))
+        return dict(samples=samples, period_s=period, dof=out)
 
     @staticmethod
     def lco(peaks, T, cycles=None):
@@ -198,6 +229,8 @@ def main(argv=None):
     ap.add_argument("--duration", type=float, default=None, help="seconds (default: the case's)")
     ap.add_argument("--cycles", type=int, default=None,
                     help="LCO window: the last N cycles instead of the last fifth of the run")
+    ap.add_argument("--cycle-samples", type=int, default=None,
+                    help="sample the last LCO period at N points and give its FFT content")
     a = ap.parse_args(argv)
     lm = load_model(a.aerosect, a.case, a.set)
     rtol, atol = a.rtol, a.atol
@@ -216,9 +249,11 @@ def main(argv=None):
             sys.exit("peer_solve_ivp: give --rtol and --atol (not in the case file)")
     peer = Peer(lm)
     t0 = time.perf_counter()
-    peaks, T = peer.run(rtol, atol, a.duration)
+    peaks, T = peer.run(rtol, atol, a.duration, keep_tail=a.cycle_samples is not None)
     wall = time.perf_counter() - t0
     res = Peer.lco(peaks, T, a.cycles)
+    if a.cycle_samples and res["frequency_hz"] > 0:
+        res["cycle"] = peer.cycle(1.0 / res["frequency_hz"], T, a.cycle_samples)
     res.update(watched_dof=peer.watch, duration_s=T, rtol=rtol, atol=atol,
                steps=peer.nsteps, nfev=peer.nfev, switches=peer.switches,
                peaks=len(peaks), wall_s=wall)

@@ -6,6 +6,8 @@
 
 #include <Eigen/Eigenvalues>
 
+#include "aerosect/error.hpp"
+
 namespace aerosect {
 
 const char* to_string(ResponseClass c) {
@@ -172,6 +174,77 @@ LcoResult LcoTracker::result() const {
     if (mx >= mn) r.dof[j] = {0.5 * (mx - mn), mx, mn};
   }
   return r;
+}
+
+}  // namespace aerosect
+
+namespace aerosect {
+
+DofHarmonics harmonic_content(std::span<const double> x, int harmonics) {
+  const std::size_t n = x.size();
+  AEROSECT_CHECK(n >= 4 && harmonics >= 1 && 2 * static_cast<std::size_t>(harmonics) < n);
+  DofHarmonics h;
+  const double inv_n = 1.0 / static_cast<double>(n);
+  for (double v : x) h.mean += v;
+  h.mean *= inv_n;
+  double sq = 0, ac = 0;
+  for (double v : x) {
+    sq += v * v;
+    ac += (v - h.mean) * (v - h.mean);
+  }
+  h.rms = std::sqrt(sq * inv_n);
+  h.rms_about_mean = std::sqrt(ac * inv_n);
+  // X_k = sum x_n exp(-2 pi i k n / N), the bins asked for only (K << N);
+  // the angle is reduced with (k n mod N) so it stays exact for large n.
+  h.harmonics.resize(static_cast<std::size_t>(harmonics));
+  for (int k = 1; k <= harmonics; ++k) {
+    double re = 0, im = 0;
+    for (std::size_t m = 0; m < n; ++m) {
+      const std::size_t kn = (static_cast<std::size_t>(k) * m) % n;
+      const double a = 2.0 * std::numbers::pi * static_cast<double>(kn) * inv_n;
+      re += (x[m] - h.mean) * std::cos(a);
+      im -= (x[m] - h.mean) * std::sin(a);
+    }
+    h.harmonics[static_cast<std::size_t>(k - 1)] = 2.0 * inv_n * std::hypot(re, im);
+  }
+  // Parseval: 2 rms_about_mean^2 = sum over every resolved harmonic of a_k^2.
+  const double a1 = h.harmonics.front();
+  const double rest = 2.0 * h.rms_about_mean * h.rms_about_mean - a1 * a1;
+  h.thd = a1 > 0 ? std::sqrt(std::max(0.0, rest)) / a1 : 0.0;
+  return h;
+}
+
+SettledCycle sample_settled_cycle(const AeroelasticModel& model, RunState& run, double period,
+                                  const IntegratorSettings& settings, const CycleSettings& cycle,
+                                  int watched_dof) {
+  AEROSECT_CHECK(period > 0 && std::isfinite(period) && cycle.samples >= 4);
+  const StateLayout& L = model.layout();
+  const std::size_t n = static_cast<std::size_t>(cycle.samples);
+  SettledCycle out;
+  out.period = period;
+  out.samples = cycle.samples;
+  std::array<std::vector<double>, 3> raw;
+  for (int j = 0; j < L.n_dof; ++j) raw[j].reserve(n + 1);
+  // Samples at t0 + k T/N, k = 0..N (the integrator computes the times from
+  // k, never by accumulation); the one at t0 + T closes the period and is
+  // not used.
+  integrate(model, run, run.time + period, settings, {false, period / static_cast<double>(n)},
+            [&](double, const std::vector<double>& x) {
+              for (int j = 0; j < L.n_dof; ++j) raw[j].push_back(x[L.displacement + j]);
+              return ObserverAction::kContinue;
+            });
+  AEROSECT_CHECK(raw[0].size() >= n);
+  // Phase origin: the watched DOF's largest sample.
+  const auto& w = raw[static_cast<std::size_t>(watched_dof)];
+  const std::size_t origin =
+      static_cast<std::size_t>(std::max_element(w.begin(), w.begin() + static_cast<long>(n)) - w.begin());
+  for (int j = 0; j < L.n_dof; ++j) {
+    auto& t = out.trace[j];
+    t.resize(n);
+    for (std::size_t m = 0; m < n; ++m) t[m] = raw[j][(origin + m) % n];
+    out.dof[j] = harmonic_content(t, cycle.harmonics);
+  }
+  return out;
 }
 
 }  // namespace aerosect

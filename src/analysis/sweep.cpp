@@ -60,11 +60,20 @@ SweepPoint run_point(const SweepRequest& r, int d, int i, int j, const SweepPoin
               [&tracker](int dof, double t, const std::vector<double>& x) {
                 return tracker.on_peak(dof, t, x);
               });
+    p.lco = tracker.result();
+    // A settled cycle: one more period, sampled, for RMS and harmonics.
+    if (p.lco.response == ResponseClass::kPeriodic && p.lco.frequency > 0) {
+      p.cycle = sample_settled_cycle(model, run, 1.0 / p.lco.frequency, c.simulation.integrator,
+                                     o.cycle, p.lco.watched_dof);
+      if (!o.traces)
+        for (auto& t : p.cycle.trace) t.clear();
+    }
   } catch (const NumericalError& e) {
     p.ok = false;
     p.error = e.what();
+    p.lco = tracker.result();
+    p.cycle = {};
   }
-  p.lco = tracker.result();
   p.end_time = run.time;
   p.steps = run.steps;
   p.switches = run.switches;
@@ -151,6 +160,9 @@ nlohmann::json request_json(const SweepRequest& r) {
   id["down"] = r.options.down;
   id["continuation"] = r.options.continuation;
   id["shard"] = {r.options.shard_index, r.options.shard_count};
+  id["traces"] = r.options.traces;
+  id["cycle_samples"] = r.options.cycle.samples;
+  id["harmonics"] = r.options.cycle.harmonics;
   return id;
 }
 
@@ -165,6 +177,9 @@ SweepRequest request_from_json(const nlohmann::json& j) {
   r.options.continuation = j.at("continuation");
   r.options.shard_index = j.at("shard").at(0);
   r.options.shard_count = j.at("shard").at(1);
+  r.options.traces = j.value("traces", false);
+  r.options.cycle.samples = j.value("cycle_samples", CycleSettings{}.samples);
+  r.options.cycle.harmonics = j.value("harmonics", CycleSettings{}.harmonics);
   return r;
 }
 
@@ -186,6 +201,21 @@ nlohmann::json point_json(const SweepPoint& p) {
   j["stopped_early"] = p.lco.stopped_early;
   for (int k = 0; k < 3; ++k)
     j["dof"].push_back({p.lco.dof[k].amplitude, p.lco.dof[k].max, p.lco.dof[k].min});
+  if (p.cycle.samples > 0) {
+    nlohmann::json cj;
+    cj["samples"] = p.cycle.samples;
+    cj["period_s"] = p.cycle.period;
+    for (int k = 0; k < 3; ++k) {
+      const DofHarmonics& h = p.cycle.dof[k];
+      cj["dof"].push_back({{"mean", h.mean}, {"rms", h.rms}, {"rms_about_mean", h.rms_about_mean},
+                           {"harmonics", h.harmonics}, {"thd", h.thd}});
+    }
+    if (!p.cycle.trace[0].empty())
+      for (int k = 0; k < 3; ++k) cj["trace"].push_back(p.cycle.trace[k]);
+    j["cycle"] = cj;
+  } else {
+    j["cycle"] = nullptr;
+  }
   j["end_time"] = p.end_time;
   j["steps"] = p.steps;
   j["switches"] = p.switches;
@@ -212,6 +242,23 @@ SweepPoint point_from_json(const nlohmann::json& j) {
   for (int k = 0; k < 3; ++k) {
     const auto& d = j.at("dof").at(static_cast<std::size_t>(k));
     p.lco.dof[k] = {d.at(0), d.at(1), d.at(2)};
+  }
+  if (j.contains("cycle") && !j.at("cycle").is_null()) {
+    const auto& cj = j.at("cycle");
+    p.cycle.samples = cj.at("samples");
+    p.cycle.period = cj.at("period_s");
+    for (int k = 0; k < 3; ++k) {
+      const auto& d = cj.at("dof").at(static_cast<std::size_t>(k));
+      DofHarmonics& h = p.cycle.dof[k];
+      h.mean = d.at("mean");
+      h.rms = d.at("rms");
+      h.rms_about_mean = d.at("rms_about_mean");
+      h.harmonics = d.at("harmonics").get<std::vector<double>>();
+      h.thd = d.at("thd");
+    }
+    if (cj.contains("trace"))
+      for (int k = 0; k < 3; ++k)
+        p.cycle.trace[k] = cj.at("trace").at(static_cast<std::size_t>(k)).get<std::vector<double>>();
   }
   p.end_time = j.at("end_time");
   p.steps = j.at("steps");
@@ -277,6 +324,7 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
     nlohmann::json pj = point_json(q);
     pj.erase("final_state");
     pj.erase("final_regions");
+    if (pj["cycle"].is_object()) pj["cycle"].erase("trace");  // in the file, not the summary
     j["points"].push_back(pj);
   }
   return j;
@@ -370,6 +418,48 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
     table(n + "_max", [k](const SweepPoint& p) { return p.lco.dof[k].max; }, u, n + " largest value");
     table(n + "_min", [k](const SweepPoint& p) { return p.lco.dof[k].min; }, u, n + " smallest value");
   }
+  // Content of the settled cycle (periodic points; NaN elsewhere).
+  const int nh = o.cycle.harmonics, ns = o.cycle.samples;
+  auto cycle_table = [&](const std::string& name, const std::string& axis, int width, auto&& f,
+                         const std::string& units, const std::string& ln) {
+    std::vector<double> v(N * static_cast<std::size_t>(width), nan);
+    for (const auto& p : points)
+      if (p.cycle.samples > 0)
+        for (int q = 0; q < width; ++q) v[at(p) * static_cast<std::size_t>(width) + q] = f(p, q);
+    std::vector<std::string> d = dims;
+    if (!axis.empty()) d.push_back(axis);
+    doc.dataset(name, d, v, units, ln);
+  };
+  std::vector<std::int32_t> harmonic(static_cast<std::size_t>(nh));
+  for (int q = 0; q < nh; ++q) harmonic[static_cast<std::size_t>(q)] = q + 1;
+  doc.integer_axis("harmonic", harmonic, "harmonic number k of the LCO frequency");
+  if (o.traces) {
+    std::vector<double> phase(static_cast<std::size_t>(ns));
+    for (int q = 0; q < ns; ++q) phase[static_cast<std::size_t>(q)] = static_cast<double>(q) / ns;
+    doc.axis("cycle_phase", phase, "1",
+             "time since the phase origin (the watched DOF's largest sample) over the LCO period");
+  }
+  for (int k = 0; k < c.model.section.dof; ++k) {
+    const std::string u = k == kPlunge ? "m" : "rad";
+    const std::string n = kDofNames[k];
+    cycle_table(n + "_mean", "", 1, [k](const SweepPoint& p, int) { return p.cycle.dof[k].mean; }, u,
+                n + " mean over one settled LCO period");
+    cycle_table(n + "_rms", "", 1, [k](const SweepPoint& p, int) { return p.cycle.dof[k].rms; }, u,
+                n + " RMS about zero over one settled LCO period");
+    cycle_table(n + "_rms_about_mean", "", 1,
+                [k](const SweepPoint& p, int) { return p.cycle.dof[k].rms_about_mean; }, u,
+                n + " RMS about the mean over one settled LCO period");
+    cycle_table(n + "_harmonics", "harmonic", nh,
+                [k](const SweepPoint& p, int q) { return p.cycle.dof[k].harmonics[static_cast<std::size_t>(q)]; },
+                u, n + " amplitude of harmonic k of the LCO (one-period DFT)");
+    cycle_table(n + "_thd", "", 1, [k](const SweepPoint& p, int) { return p.cycle.dof[k].thd; }, "1",
+                n + " total harmonic distortion relative to the fundamental");
+    if (o.traces)
+      cycle_table(n + "_cycle", "cycle_phase", ns,
+                  [k](const SweepPoint& p, int q) { return p.cycle.trace[k][static_cast<std::size_t>(q)]; }, u,
+                  n + " over one settled LCO period from the phase origin");
+  }
+  doc.integer_attribute("", "cycle_samples", ns);
   if (!points.empty())
     doc.text_attribute("", "watched_dof", kDofNames[points.front().lco.watched_dof]);
   // Linear flutter speeds and the describing-function LCO curve, in the
@@ -456,6 +546,18 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
       mx[d] = table(std::string(kDofNames[d]) + "_max");
       mn[d] = table(std::string(kDofNames[d]) + "_min");
     }
+    const std::size_t nh = static_cast<std::size_t>(r.options.cycle.harmonics);
+    const std::size_t ns = static_cast<std::size_t>(r.options.cycle.samples);
+    std::vector<std::vector<double>> cmean(3), crms(3), crms0(3), cthd(3), charm(3), ctrace(3);
+    for (int d = 0; d < ndof; ++d) {
+      const std::string n = kDofNames[d];
+      cmean[d] = table(n + "_mean");
+      crms[d] = table(n + "_rms");
+      crms0[d] = table(n + "_rms_about_mean");
+      cthd[d] = table(n + "_thd");
+      charm[d] = table(n + "_harmonics");
+      if (r.options.traces) ctrace[d] = table(n + "_cycle");
+    }
     for (int dir = 0; dir < 2; ++dir)
       for (std::size_t i = 0; i < n1; ++i)
         for (std::size_t j = 0; j < n2; ++j) {
@@ -476,6 +578,22 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
           p.end_time = end[at];
           p.switches = static_cast<std::int64_t>(sw[at]);
           for (int d = 0; d < ndof; ++d) p.lco.dof[d] = {amp[d][at], mx[d][at], mn[d][at]};
+          if (!std::isnan(cmean[0][at])) {
+            p.cycle.samples = static_cast<int>(ns);
+            p.cycle.period = 1.0 / p.lco.frequency;
+            for (int d = 0; d < ndof; ++d) {
+              DofHarmonics& h = p.cycle.dof[d];
+              h.mean = cmean[d][at];
+              h.rms = crms[d][at];
+              h.rms_about_mean = crms0[d][at];
+              h.thd = cthd[d][at];
+              h.harmonics.assign(charm[d].begin() + static_cast<long>(at * nh),
+                                 charm[d].begin() + static_cast<long>((at + 1) * nh));
+              if (r.options.traces)
+                p.cycle.trace[d].assign(ctrace[d].begin() + static_cast<long>(at * ns),
+                                        ctrace[d].begin() + static_cast<long>((at + 1) * ns));
+            }
+          }
           merged[{dir, p.j, p.i}] = p;
         }
   }

@@ -172,7 +172,7 @@ aerosect::SweepAxis parse_vary(const std::string& text) {
 
 int run_sweep_command(const Common& o, const std::string& output, const std::vector<std::string>& vary,
                       const std::string& direction, const std::string& restart, int jobs,
-                      const std::string& shard) {
+                      const std::string& shard, bool traces) {
   const aerosect::Case c = aerosect::load_case(o.case_path, o.overrides);
   aerosect::SweepRequest req;
   req.case_text = c.text;
@@ -185,6 +185,7 @@ int run_sweep_command(const Common& o, const std::string& output, const std::vec
   req.options.up = direction != "down";
   req.options.down = direction != "up";
   req.options.continuation = restart == "continue";
+  req.options.traces = traces;
   req.options.jobs = jobs > 0 ? jobs : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
   if (!shard.empty()) {
     int k = 0, n = 0;
@@ -406,6 +407,7 @@ int main(int argc, char** argv) {
   std::string sweep_out, sweep_direction = "both", sweep_restart = "continue", sweep_shard;
   std::vector<std::string> sweep_vary;
   int sweep_jobs = 0;
+  bool sweep_traces = false;
   CLI::App* sweep = app.add_subcommand(
       "sweep", "LCO map: response class, amplitude and frequency against one or two case keys");
   add_common(sweep, sweep_opts);
@@ -420,6 +422,8 @@ int main(int argc, char** argv) {
       ->capture_default_str();
   sweep->add_option("--jobs", sweep_jobs, "threads (default: all cores)");
   sweep->add_option("--shard", sweep_shard, "K/N: run the K-th of N deterministic parts");
+  sweep->add_flag("--traces", sweep_traces,
+                  "keep one settled cycle of every DOF per periodic point in the map");
 
   std::vector<std::string> merge_inputs;
   std::string merge_out;
@@ -465,7 +469,7 @@ int main(int argc, char** argv) {
     }
     if (*sweep)
       return run_sweep_command(sweep_opts, sweep_out, sweep_vary, sweep_direction, sweep_restart,
-                               sweep_jobs, sweep_shard);
+                               sweep_jobs, sweep_shard, sweep_traces);
     if (*flutter)
       return run_flutter(flutter_opts, flutter_out, flutter_speeds, flutter_method, flutter_amplitude);
   } catch (const aerosect::InputError& e) {

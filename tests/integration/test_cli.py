@@ -24,6 +24,47 @@ def run(*args):
     return subprocess.run([BIN, *args], capture_output=True, text=True, timeout=300)
 
 
+def same_files(p, q):
+    """Every dataset (values, NaN equal to NaN) and every attribute equal."""
+    import h5py
+    import numpy as np
+    same = True
+    with h5py.File(p) as a, h5py.File(q) as b:
+        names = []
+        a.visit(names.append)
+        bnames = []
+        b.visit(bnames.append)
+        same &= sorted(names) == sorted(bnames)
+        for n in names:
+            if isinstance(a[n], h5py.Dataset):
+                x, y = a[n][()], b[n][()]
+                same &= np.array_equal(x, y, equal_nan=True) if np.asarray(x).dtype.kind == "f" else np.array_equal(x, y)
+                for key in a[n].attrs:
+                    if key in ("DIMENSION_LIST", "REFERENCE_LIST"):
+                        continue  # object references differ between files
+                    same &= key in b[n].attrs and str(a[n].attrs[key]) == str(b[n].attrs[key])
+        for key in a.attrs:
+            same &= key in b.attrs and str(a.attrs[key]) == str(b.attrs[key])
+    return same
+
+
+FREEPLAY = """\
+[nondimensional]
+mass_ratio = 100.0
+elastic_axis = -0.5
+cg_offset = 0.25
+radius_of_gyration = 0.5
+frequency_ratio = 0.2
+reduced_speed = 5.0
+[springs.pitch]
+law = "freeplay"
+half_gap_deg = 0.5
+[initial]
+pitch_deg = 2.0
+[simulation]
+duration_semichords = 3000
+"""
+
 with tempfile.TemporaryDirectory() as tmp:
     # check, human and JSON
     r = run("check", DEMO)
@@ -93,17 +134,89 @@ with tempfile.TemporaryDirectory() as tmp:
     merged = os.path.join(tmp, "merged.h5")
     r = run("merge", *parts, "-o", merged)
     check("merge exit", r.returncode == 0, r.stderr)
-    same = True
-    with h5py.File(sw) as a, h5py.File(merged) as b:
-        names = []
-        a.visit(names.append)
-        for n in names:
-            if isinstance(a[n], h5py.Dataset):
-                x, y = a[n][()], b[n][()]
-                same &= np.array_equal(x, y, equal_nan=True) if np.asarray(x).dtype.kind == "f" else np.array_equal(x, y)
-        for key in a.attrs:
-            same &= key in b.attrs and str(a.attrs[key]) == str(b.attrs[key])
-    check("merged equals unsharded", same)
+    check("merged equals unsharded", same_files(sw, merged), "")
+    # --traces: one settled cycle per periodic point (2-DOF freeplay LCOs);
+    # --jobs 1 equals --jobs 2, shards merged equal the unsharded file
+    fcase = os.path.join(tmp, "freeplay.toml")
+    with open(fcase, "w") as f:
+        f.write(FREEPLAY)
+    vary = ["--vary", "nondimensional.reduced_speed=4:6:3", "--traces"]
+    t1, t2 = os.path.join(tmp, "t1.h5"), os.path.join(tmp, "t2.h5")
+    r = run("sweep", fcase, *vary, "-o", t1, "--jobs", "1", "--json")
+    check("traces sweep exit", r.returncode == 0, r.stderr)
+    j = json.loads(r.stdout)
+    per = [p for p in j["points"] if p["class"] == "periodic"]
+    check("traces sweep periodic points", len(per) == 6, [p["class"] for p in j["points"]])
+    check("json cycle content, no trace", all(
+        p["cycle"]["samples"] == 128 and len(p["cycle"]["dof"][1]["harmonics"]) == 5
+        and "trace" not in p["cycle"] for p in per), per[:1])
+    r = run("sweep", fcase, *vary, "-o", t2, "--jobs", "2")
+    check("traces sweep jobs 2 exit", r.returncode == 0, r.stderr)
+    check("traces: --jobs 1 file equals --jobs 2 file", same_files(t1, t2))
+    tparts = []
+    for k in (1, 2):
+        part = os.path.join(tmp, f"tpart{k}.h5")
+        r = run("sweep", fcase, *vary, "-o", part, "--shard", f"{k}/2", "--jobs", "1")
+        check(f"traces shard {k} exit", r.returncode == 0, r.stderr)
+        tparts.append(part)
+    tm = os.path.join(tmp, "tmerged.h5")
+    r = run("merge", *tparts, "-o", tm)
+    check("traces merge exit", r.returncode == 0, r.stderr)
+    check("traces: merged equals unsharded", same_files(t1, tm))
+    with h5py.File(t1) as f:
+        d = f["pitch_cycle"]
+        dims = [f[d.dims[i][0].name].name for i in range(3)] if all(len(d.dims[i]) for i in range(3)) else []
+        check("pitch_cycle over direction, value_1, cycle_phase",
+              d.shape == (2, 3, 128) and dims == ["/direction", "/value_1", "/cycle_phase"], (d.shape, dims))
+        check("pitch_cycle units", d.attrs["units"] == b"rad" or d.attrs["units"] == "rad", d.attrs["units"])
+        h = f["pitch_harmonics"]
+        check("pitch_harmonics over harmonic 1..5", h.shape == (2, 3, 5) and
+              list(f["harmonic"][()]) == [1, 2, 3, 4, 5] and f[h.dims[2][0].name].name == "/harmonic")
+        pc, cls = f["pitch_cycle"][()], f["response_class"][()]
+        check("traces present exactly for periodic points",
+              np.all(np.isfinite(pc[cls == 1])) and np.all(np.isnan(pc[cls != 1])))
+        check("rms table", np.allclose(f["pitch_rms"][()][cls == 1],
+                                       np.sqrt(np.mean(pc[cls == 1] ** 2, axis=-1)), rtol=1e-12))
+    r = run("sweep", fcase, "--vary", "nondimensional.reduced_speed=4:6:3", "-o", t1, "--jobs", "1")
+    with h5py.File(t1) as f:
+        check("no traces without --traces", "pitch_cycle" not in f and "pitch_harmonics" in f)
+
+    # progress line on stderr only when stderr is a terminal
+    import pty
+    import select
+    master, slave = pty.openpty()
+    pr = subprocess.Popen([BIN, "sweep", fcase, "--vary", "nondimensional.reduced_speed=4:6:3",
+                           "-o", os.path.join(tmp, "p.h5"), "--jobs", "1"],
+                          stdout=subprocess.PIPE, stderr=slave, text=False)
+    os.close(slave)
+    tty_err = b""
+    while True:
+        ready, _, _ = select.select([master], [], [], 60)
+        if not ready:
+            break
+        try:
+            chunk = os.read(master, 4096)
+        except OSError:  # EIO: the child closed the terminal
+            break
+        if not chunk:
+            break
+        tty_err += chunk
+    pr.communicate(timeout=120)
+    os.close(master)
+    tty_err = tty_err.decode(errors="replace")
+    check("progress exit", pr.returncode == 0, pr.returncode)
+    import re
+    lines = re.findall(r"(\d+)/(\d+) points, ([0-9.]+) s elapsed, ETA ([0-9.]+) s", tty_err)
+    check("progress on a terminal: points done, elapsed, ETA",
+          len(lines) == 6 and [int(a) for a, _, _, _ in lines] == list(range(1, 7))
+          and all(int(b) == 6 for _, b, _, _ in lines) and float(lines[-1][3]) == 0.0, repr(tty_err))
+    check("progress elapsed non-decreasing",
+          all(float(lines[i][2]) <= float(lines[i + 1][2]) for i in range(len(lines) - 1)), lines)
+    r = run("sweep", fcase, "--vary", "nondimensional.reduced_speed=4:6:3",
+            "-o", os.path.join(tmp, "p.h5"), "--jobs", "1")
+    check("no progress when stderr is not a terminal",
+          r.returncode == 0 and "ETA" not in r.stderr and "points," not in r.stderr, repr(r.stderr))
+
     r = run("merge", parts[0], "-o", merged)
     check("merge with a shard missing", r.returncode == 2 and "1 of 2 shards" in r.stderr, r.stderr)
 

@@ -1,6 +1,9 @@
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <atomic>
+#include <cmath>
+#include <numbers>
 #include <mutex>
 
 #include "aerosect/analysis/sweep.hpp"
@@ -19,6 +22,7 @@ SweepRequest request(int n, int jobs) {
   for (int i = 0; i < n; ++i) ax.values.push_back(0.5 + 5.0 * i / (n - 1));
   r.options.axes = {ax};
   r.options.jobs = jobs;
+  r.options.traces = true;
   return r;
 }
 }  // namespace
@@ -35,6 +39,12 @@ TEST_CASE("Sweep results do not depend on the job count", "[sweep]") {
     CHECK(a[k].lco.response == b[k].lco.response);
     CHECK(a[k].lco.dof[kPitch].amplitude == b[k].lco.dof[kPitch].amplitude);  // bit for bit
     CHECK(a[k].final_state == b[k].final_state);
+    CHECK(a[k].cycle.samples == b[k].cycle.samples);
+    for (int d = 0; d < 2; ++d) {
+      CHECK(a[k].cycle.trace[d] == b[k].cycle.trace[d]);
+      CHECK(a[k].cycle.dof[d].harmonics == b[k].cycle.dof[d].harmonics);
+      CHECK(a[k].cycle.dof[d].rms == b[k].cycle.dof[d].rms);
+    }
   }
 }
 
@@ -59,6 +69,11 @@ TEST_CASE("A resumed sweep recomputes nothing it already has", "[sweep]") {
   for (std::size_t k = 0; k < full.size(); ++k) {
     CHECK(resumed[k].lco.response == full[k].lco.response);
     CHECK(resumed[k].lco.dof[kPitch].amplitude == full[k].lco.dof[kPitch].amplitude);
+    // the cycle content and traces survive the journal's JSON form bit for bit
+    CHECK(resumed[k].cycle.samples == full[k].cycle.samples);
+    CHECK(resumed[k].cycle.trace[kPitch] == full[k].cycle.trace[kPitch]);
+    CHECK(resumed[k].cycle.dof[kPitch].harmonics == full[k].cycle.dof[kPitch].harmonics);
+    CHECK(resumed[k].cycle.dof[kPitch].thd == full[k].cycle.dof[kPitch].thd);
   }
 }
 
@@ -117,5 +132,45 @@ TEST_CASE("A tiny motion about an unstable rest state is not classed decayed", "
     CHECK(tiny[k].lco.response == ResponseClass::kPeriodic);
     CHECK(tiny[k].lco.dof[kPitch].amplitude ==
           Approx(ref[k].lco.dof[kPitch].amplitude).epsilon(1e-3));
+  }
+}
+
+TEST_CASE("A periodic point carries one sampled settled cycle", "[sweep]") {
+  // Consistency (common practice, no source): the samples of the settled
+  // cycle lie within the true peaks the tracker found (the peaks are the
+  // extrema of the same trajectory, to the integrator's tolerance) and
+  // come within the sampling resolution of them; mean^2 + rms_about_mean^2
+  // = rms^2 (an identity of the definitions); non-periodic and decayed
+  // points carry no cycle. The harmonics themselves are checked against
+  // scipy/numpy in tests/integration/test_peer_scipy.py.
+  SweepRequest fp = request(3, 1);
+  fp.options.axes[0].values = {2.0, 5.0};
+  fp.options.down = false;
+  const auto pts = run_sweep(fp, {}, {});
+  REQUIRE(pts.size() == 2);
+  CHECK(pts[0].lco.response != ResponseClass::kPeriodic);
+  CHECK(pts[0].cycle.samples == 0);
+  const SweepPoint& p = pts[1];
+  REQUIRE(p.lco.response == ResponseClass::kPeriodic);
+  REQUIRE(p.cycle.samples == 128);
+  CHECK_THAT(p.cycle.period, Catch::Matchers::WithinRel(1.0 / p.lco.frequency, 1e-15));
+  for (int d : {kPlunge, kPitch}) {
+    const auto& t = p.cycle.trace[d];
+    REQUIRE(t.size() == 128);
+    const double hi = *std::max_element(t.begin(), t.end()), lo = *std::min_element(t.begin(), t.end());
+    const double A = p.lco.dof[d].amplitude;
+    CHECK(hi <= p.lco.dof[d].max + 1e-6 * A);
+    CHECK(lo >= p.lco.dof[d].min - 1e-6 * A);
+    // a sample lies within T/(2N) of each peak: |x - x_peak| <= x''max (T/2N)^2/2,
+    // x''max <= (2 pi/T)^2 sum k^2 a_k (five harmonics; the rest is ~1e-3 of a_1)
+    double curv = 0;
+    for (int k = 1; k <= 5; ++k) curv += k * k * p.cycle.dof[d].harmonics[k - 1];
+    const double resolution = 1.1 * curv * std::pow(std::numbers::pi / 128, 2) / 2;
+    CHECK(hi >= p.lco.dof[d].max - resolution);
+    CHECK(lo <= p.lco.dof[d].min + resolution);
+    const DofHarmonics& h = p.cycle.dof[d];
+    CHECK_THAT(h.mean * h.mean + h.rms_about_mean * h.rms_about_mean,
+               Catch::Matchers::WithinRel(h.rms * h.rms, 1e-12));
+    if (d == p.lco.watched_dof) CHECK(t[0] == hi);  // phase origin at the watched DOF's largest sample
   }
 }

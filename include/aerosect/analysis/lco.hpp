@@ -20,8 +20,32 @@
 //                 chaotic): the spread of A over the last cycles is given.
 // Per DOF, over the last settled cycles: half peak-to-peak amplitude, the
 // largest and smallest value (asymmetric cycles), in m or rad.
+//
+// Cycle content (periodic runs; the tracker sees only peaks, so the cycle is
+// sampled afterwards by sample_settled_cycle): one more period T = 1/f is
+// integrated from where the tracker stopped and each DOF is sampled from the
+// dense output at N equally spaced instants x_n = x(t0 + n T/N), n = 0..N-1
+// (N = samples per cycle, 128 by default). Over exactly one period
+// (harmonic_content):
+//   mean            x_bar = (1/N) sum x_n                          (m or rad)
+//   rms             sqrt((1/N) sum x_n^2), about ZERO              (m or rad)
+//   rms_about_mean  sqrt((1/N) sum (x_n - x_bar)^2)                (m or rad)
+//   harmonics       a_k = (2/N) |X_k|, X_k = sum x_n exp(-2 pi i k n / N),
+//                   k = 1..K (K = 5 by default): the amplitude of the k-th
+//                   harmonic, x(t) ~ x_bar + sum a_k cos(2 pi k t/T + phi_k)
+//                   (m or rad); needs K < N/2
+//   thd             total harmonic distortion relative to the fundamental,
+//                   sqrt(sum_{k>=2} a_k^2) / a_1 over every harmonic the
+//                   sampling resolves (2 .. N/2), from Parseval's relation
+//                   2 rms_about_mean^2 = sum_k a_k^2 (the Nyquist bin,
+//                   k = N/2, counted with weight sqrt(2) (X_{N/2}/N)); 1
+// With uniform samples over one whole period, these sums are the exact
+// Fourier coefficients of the cycle up to aliasing by harmonics N-k, N+k,
+// ... (the rectangle rule is exact for trigonometric polynomials of degree
+// below N), so they are as accurate as the cycle's spectrum decays.
 
 #include <array>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -58,6 +82,37 @@ struct LcoResult {
   bool stopped_early = false;
   std::array<DofCycle, 3> dof{};
 };
+
+// Mean, RMS and harmonic content of one period of a signal given by N
+// equally spaced samples (see above). harmonics: K, 1 <= K < N/2.
+struct DofHarmonics {
+  double mean = 0, rms = 0, rms_about_mean = 0;  // m or rad
+  std::vector<double> harmonics;                 // a_1 .. a_K, m or rad
+  double thd = 0;                                // 1 (0 when a_1 = 0)
+};
+DofHarmonics harmonic_content(std::span<const double> one_period, int harmonics);
+
+struct CycleSettings {
+  int samples = 128;   // N, samples per cycle
+  int harmonics = 5;   // K
+};
+
+// One settled cycle: per DOF, the N samples (rotated so that sample 0 is the
+// watched DOF's largest sample: the phase origin lies at its maximum to
+// within T/N) and their harmonic content.
+struct SettledCycle {
+  double period = 0;  // s, the T sampled
+  int samples = 0;    // N
+  std::array<std::vector<double>, 3> trace;  // per DOF, m or rad (empty for absent DOFs)
+  std::array<DofHarmonics, 3> dof;
+};
+
+// Integrates one period T more from `run` (which moves on by T) with the
+// sample observer at T/N and returns the sampled cycle. Throws
+// NumericalError like integrate().
+SettledCycle sample_settled_cycle(const AeroelasticModel& model, RunState& run, double period,
+                                  const IntegratorSettings& settings, const CycleSettings& cycle,
+                                  int watched_dof);
 
 class LcoTracker {
  public:

@@ -14,6 +14,13 @@
 // thread; the callback must be thread-safe), so a caller can flush it;
 // points listed in `done` are not recomputed (resume), their final states
 // continuing the chain.
+//
+// A periodic point's run goes on for one more LCO period, sampled at
+// `cycle.samples` instants (sample_settled_cycle in lco.hpp): per DOF mean,
+// RMS (about zero and about the mean), harmonic amplitudes 1..K and THD;
+// with `traces` the sampled cycle itself is kept too. The point's final
+// state (the next point's start under continuation) is the state after
+// that period.
 
 #include <functional>
 #include <optional>
@@ -39,6 +46,8 @@ struct SweepOptions {
   int jobs = 1;
   int shard_index = 1, shard_count = 1;  // K/N
   LcoSettings lco;
+  CycleSettings cycle;
+  bool traces = false;  // keep the sampled settled cycle of each periodic point
 };
 
 struct SweepPoint {
@@ -48,6 +57,8 @@ struct SweepPoint {
   bool ok = true;
   std::string error;  // numerical trouble, when !ok
   LcoResult lco;
+  SettledCycle cycle;  // periodic points only (cycle.samples == 0 otherwise);
+                       // traces empty unless SweepOptions::traces
   double end_time = 0;
   std::int64_t steps = 0, switches = 0;
   std::vector<double> final_state;

@@ -54,6 +54,9 @@ AeroelasticModel::AeroelasticModel(ModelDescription description) : d_(std::move(
     }
   }
   A_ = state_matrix(k);
+  // The velocity rows of G_, packed for the right-hand side's loop.
+  for (int j : nonlinear_)
+    for (int i = 0; i < n; ++i) g_velocity_rows_.push_back(G_(layout_.velocity + i, j));
 
   // Gust input: instantaneous part psi(0) w_g on the forces, and the drive
   // of the Küssner lag states.
@@ -114,14 +117,29 @@ Eigen::MatrixXd AeroelasticModel::nominal_state_matrix() const {
 
 void AeroelasticModel::rhs(const double* x, double* dxdt, double t, std::span<const int> regions,
                            int input_segment) const {
-  const int N = layout_.size;
-  Eigen::Map<const Eigen::VectorXd> xv(x, N);
-  Eigen::Map<Eigen::VectorXd> dv(dxdt, N);
-  dv.noalias() = A_ * xv;
-  if (layout_.n_gust > 0) dv.noalias() += B_gust_ * d_.gusts.velocity(t, input_segment);
+  // x' = A x (+ B_gust w_g) - sum_j G_j f_j. The state has ~6..16 entries:
+  // a plain column-by-column loop (independent rows: it vectorises) beats a
+  // general dynamic-size matrix-vector product here; each row's sum runs in
+  // the order j = 0..N-1.
+  const std::size_t N = static_cast<std::size_t>(layout_.size);
+  const double* a = A_.data();  // column-major
+  for (std::size_t i = 0; i < N; ++i) dxdt[i] = a[i] * x[0];
+  for (std::size_t j = 1; j < N; ++j) {
+    const double xj = x[j];
+    const double* col = a + j * N;
+    for (std::size_t i = 0; i < N; ++i) dxdt[i] += col[i] * xj;
+  }
+  if (layout_.n_gust > 0) {
+    const double w = d_.gusts.velocity(t, input_segment);
+    for (std::size_t i = 0; i < N; ++i) dxdt[i] += B_gust_(static_cast<Eigen::Index>(i)) * w;
+  }
+  // G_j is zero outside the velocity rows.
+  const std::size_t n = static_cast<std::size_t>(layout_.n_dof), v0 = static_cast<std::size_t>(layout_.velocity);
+  const double* g = g_velocity_rows_.data();
   for (int j : nonlinear_) {
     const double f = d_.springs[j].force(x[layout_.displacement + j], regions[j]);
-    dv.noalias() -= G_.col(j) * f;
+    for (std::size_t i = 0; i < n; ++i) dxdt[v0 + i] -= g[i] * f;
+    g += n;
   }
 }
 

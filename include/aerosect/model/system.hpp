@@ -124,6 +124,7 @@ class AeroelasticModel {
   Eigen::VectorXd B_gust_;  // x' += B_gust w_g(t)
   double psi0_ = 0;         // Küssner psi(0)
   std::vector<int> nonlinear_;
+  std::vector<double> g_velocity_rows_;  // per nonlinear spring, its G_ column's velocity rows
 };
 
 }  // namespace aerosect

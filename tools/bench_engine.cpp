@@ -1,11 +1,14 @@
 // Engine micro-benchmark for tools/bench: right-hand-side evaluations per
-// second and integration steps per second for a case (3-DOF demo by default).
+// second and integration steps per second for a case (3-DOF demo by default);
+// with --run, one in-process run of a case timed like the scipy peer's.
 // Prints one JSON object. Timing is wall-clock over repeated work; compare
 // figures measured in one run only.
 
 #include <chrono>
 #include <cstdint>
 #include <cstdio>
+#include <cstdlib>
+#include <utility>
 #include <string>
 #include <vector>
 
@@ -16,9 +19,64 @@
 #include "aerosect/model/system.hpp"
 #include "aerosect/model/section.hpp"
 
+namespace {
+
+// One run of a case as the scipy peer does it (tools/peer_solve_ivp.py): the
+// case's own duration, stepper and tolerances, exact switching, true peaks
+// of the watched DOF (the first nonlinear spring's, else pitch) collected,
+// no sample output. Wall time of integrate() only (model built beforehand),
+// minimum over `repeats` runs. Prints one JSON object.
+int run_like_peer(const char* path, int repeats) {
+  using clock = std::chrono::steady_clock;
+  const aerosect::Case c = aerosect::load_case(path);
+  const aerosect::AeroelasticModel model(c.model);
+  const auto& set = c.simulation;
+  const int watch = model.nonlinear_springs().empty() ? aerosect::kPitch
+                                                      : model.nonlinear_springs().front();
+  double best = 1e300;
+  aerosect::RunState last;
+  std::size_t peaks = 0;
+  for (int rep = 0; rep < repeats; ++rep) {
+    aerosect::RunState run;
+    run.x = model.initial_state(set.initial_displacement, set.initial_velocity,
+                                set.steady_lag_states);
+    std::vector<std::pair<double, double>> found;
+    found.reserve(100000);
+    const auto t0 = clock::now();
+    aerosect::integrate(model, run, set.duration, set.integrator, {false, 2.0 * set.duration}, {},
+                        false, nullptr, [&](int dof, double t, const std::vector<double>& x) {
+                          if (dof == watch) found.emplace_back(t, x[static_cast<std::size_t>(dof)]);
+                          return aerosect::ObserverAction::kContinue;
+                        });
+    best = std::min(best, std::chrono::duration<double>(clock::now() - t0).count());
+    last = run;
+    peaks = found.size();
+  }
+  nlohmann::json j;
+  j["case"] = path;
+  j["stepper"] = aerosect::to_string(set.integrator.stepper);
+  j["duration_s"] = set.duration;
+  j["relative_tolerance"] = set.integrator.relative_tolerance;
+  j["absolute_tolerance"] = set.integrator.absolute_tolerance;
+  j["repeats"] = repeats;
+  j["min_seconds"] = best;
+  j["steps"] = last.steps;
+  j["rhs_evaluations"] = last.rhs_evaluations;
+  j["switches"] = last.switches;
+  j["peaks"] = peaks;
+  j["final_state"] = last.x;
+  std::printf("%s\n", j.dump(2).c_str());
+  return 0;
+}
+
+}  // namespace
+
 int main(int argc, char** argv) {
+  if (argc >= 3 && std::string(argv[1]) == "--run") {
+    return run_like_peer(argv[2], argc >= 4 ? std::atoi(argv[3]) : 5);
+  }
   if (argc < 2) {
-    std::fprintf(stderr, "usage: aerosect_bench CASE\n");
+    std::fprintf(stderr, "usage: aerosect_bench CASE | aerosect_bench --run CASE [REPEATS]\n");
     return 2;
   }
   using clock = std::chrono::steady_clock;

@@ -402,6 +402,18 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
                              worst->direction, worst->i, angle ? " (rad in the file)" : ""),
                  fmt::format("at {:.4g} m/s TAS sweeping {}, {:.4g} Hz", worst->value1 / per,
                              worst->direction == 0 ? "up" : "down", worst->lco.frequency));
+        if (worst->cycle.samples > 0) {
+          const DofHarmonics& h = worst->cycle.dof[static_cast<std::size_t>(w)];
+          rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDof[w]), angle ? h.rms * kDeg : h.rms,
+                   angle ? "deg" : "m",
+                   fmt::format("sweep.h5: {}_rms[direction {}, value_1 index {}]{}", kDof[w], worst->direction,
+                               worst->i, angle ? " (rad in the file)" : ""));
+          rows.add("lco_largest_thd", fmt::format("  {} total harmonic distortion at that LCO", kDof[w]),
+                   100 * h.thd, "%",
+                   fmt::format("sweep.h5: {}_thd[direction {}, value_1 index {}] x 100", kDof[w], worst->direction,
+                               worst->i),
+                   "harmonics above the first, against the first");
+        }
         for (int k = 0; k < c.model.section.dof; ++k) {
           if (k == w) continue;
           const double ak = worst->lco.dof[static_cast<std::size_t>(k)].amplitude;

@@ -85,6 +85,10 @@ def sweep_expectations(path, vd_tas):
             if k != watched:
                 out[f"lco_largest_{k}"] = arr[d, i] * (1 if k == "plunge" else DEG)
         out["_flap_extremes"] = (fmax[d, i], fmin[d, i])
+        with h5py.File(path, "r") as f:
+            scale = DEG if watched != "plunge" else 1
+            out["lco_largest_rms"] = f[f"{watched}_rms"][d, i] * scale
+            out["lco_largest_thd"] = f[f"{watched}_thd"][d, i] * 100
     return out
 
 

@@ -26,7 +26,10 @@ struct Chain {
   int direction, j;
 };
 
-SweepPoint run_point(const SweepRequest& r, int d, int i, int j, const SweepPoint* previous) {
+// Runs one point; nullopt when `cancel` stopped it (an unfinished point is
+// neither reported nor kept: a resumed sweep runs it again).
+std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
+                                    const SweepPoint* previous, const std::atomic<bool>* cancel) {
   const SweepOptions& o = r.options;
   SweepPoint p;
   p.direction = d;
@@ -55,11 +58,13 @@ SweepPoint run_point(const SweepRequest& r, int d, int i, int j, const SweepPoin
   }
   LcoTracker tracker(model, o.lco);
   try {
-    integrate(model, run, c.simulation.duration, c.simulation.integrator,
-              {false, 2.0 * c.simulation.duration}, {}, false, nullptr,
-              [&tracker](int dof, double t, const std::vector<double>& x) {
-                return tracker.on_peak(dof, t, x);
-              });
+    const IntegrationResult res =
+        integrate(model, run, c.simulation.duration, c.simulation.integrator,
+                  {false, 2.0 * c.simulation.duration}, {}, false, cancel,
+                  [&tracker](int dof, double t, const std::vector<double>& x) {
+                    return tracker.on_peak(dof, t, x);
+                  });
+    if (res.reason == StopReason::kCancelled) return std::nullopt;
     p.lco = tracker.result();
     // A settled cycle: one more period, sampled, for RMS and harmonics.
     if (p.lco.response == ResponseClass::kPeriodic && p.lco.frequency > 0) {
@@ -130,7 +135,9 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
         if (it != known.end()) {
           out.push_back(it->second);
         } else {
-          out.push_back(run_point(r, ch.direction, i, ch.j, previous));
+          std::optional<SweepPoint> p = run_point(r, ch.direction, i, ch.j, previous, cancel);
+          if (!p) break;
+          out.push_back(std::move(*p));
           if (on_point) on_point(out.back());
         }
         previous = &out.back();

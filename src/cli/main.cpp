@@ -1,15 +1,22 @@
 // aerosect command-line driver: parses arguments, dispatches to the engine,
 // prints its reports and turns its typed errors into messages and exit codes.
 //   0 success; 1 internal error; 2 bad input; 3 numerical trouble;
-//   4 output could not be written; 130 interrupted.
+//   4 output could not be written; 128 + signal number when stopped by a
+//   signal: 130 for SIGINT (Ctrl-C), 143 for SIGTERM.
+// The first SIGINT or SIGTERM stops the run cleanly (simulate keeps the
+// partial time history as NAME.incomplete.h5; sweep keeps every finished
+// point in its journal and resumes from it when run again); a second one
+// ends the program at once, as the signal's default action does.
 
 #include <atomic>
+#include <cerrno>
 #include <csignal>
-#include <cstdio>
 #include <chrono>
 #include <cmath>
 #include <cstdlib>
 #include <cstdio>
+#include <cstdlib>
+#include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <mutex>
@@ -38,8 +45,20 @@
 
 namespace {
 
-std::atomic<bool> g_interrupted{false};
-extern "C" void on_signal(int) { g_interrupted.store(true); }
+// Set by the first SIGINT/SIGTERM (and by a sweep whose journal cannot be
+// written): the engine stops at the next step.
+std::atomic<bool> g_cancel{false};
+volatile std::sig_atomic_t g_signal = 0;  // the first signal received
+extern "C" void on_signal(int s) {
+  if (g_signal != 0) {  // the second: stop now
+    std::signal(s, SIG_DFL);
+    std::raise(s);
+    return;
+  }
+  g_signal = s;
+  g_cancel.store(true);
+}
+int signal_status() { return 128 + static_cast<int>(g_signal); }
 
 struct Common {
   std::string case_path;
@@ -68,13 +87,13 @@ int run_simulate(const Common& o, const std::string& output) {
   const aerosect::Case c = aerosect::load_case(o.case_path, o.overrides);
   const aerosect::AeroelasticModel model(c.model);
   aerosect::Hdf5TimeHistoryWriter writer(output);
-  const aerosect::SimulationSummary s = aerosect::simulate(c, model, writer, &g_interrupted);
+  const aerosect::SimulationSummary s = aerosect::simulate(c, model, writer, &g_cancel);
   print(o.json ? aerosect::simulation_json(c, s, writer.final_path()).dump(2) + "\n"
                : aerosect::simulation_text(c, s, writer.final_path()));
   if (!s.completed) {
     std::cerr << "aerosect: run " << s.status << " at t = " << s.end_time
               << " s; partial result kept in " << writer.final_path() << "\n";
-    return g_interrupted ? 130 : 3;
+    return g_signal != 0 ? signal_status() : 3;
   }
   return 0;
 }
@@ -201,22 +220,38 @@ int run_sweep_command(const Common& o, const std::string& output, const std::vec
   // The journal holds every finished point; its first line identifies the sweep.
   const nlohmann::json id = aerosect::request_json(req);
   const std::string journal = output + ".journal";
+  // A line counts when it ends in a newline and parses: a run killed while
+  // writing (kill -9, power loss) leaves at most one cut line at the end,
+  // which is cut off before new points are appended.
   std::vector<aerosect::SweepPoint> done;
   if (std::filesystem::exists(journal)) {
-    std::ifstream in(journal);
+    std::ifstream in(journal, std::ios::binary);
     std::string line;
-    if (std::getline(in, line)) {
+    std::streamoff good_end = 0;  // bytes of the complete lines read
+    auto complete_line = [&] { return std::getline(in, line) && !in.eof(); };
+    if (complete_line()) {
       nlohmann::json head = nlohmann::json::parse(line, nullptr, false);
       if (head.is_discarded() || head != id)
         throw aerosect::InputError({journal, 1, 0}, "", "",
                                    "this journal belongs to a different sweep",
                                    "the same command as the interrupted run, or remove the journal / "
                                    "choose another -o");
-      while (std::getline(in, line)) {
+      good_end = in.tellg();
+      while (complete_line()) {
         nlohmann::json pj = nlohmann::json::parse(line, nullptr, false);
-        if (pj.is_discarded()) break;  // a line cut by the interruption
+        if (pj.is_discarded()) break;
         done.push_back(aerosect::point_from_json(pj));
+        good_end = in.tellg();
       }
+    }
+    in.close();
+    std::error_code ec;
+    const auto size = std::filesystem::file_size(journal, ec);
+    if (!done.empty() && !ec && size > static_cast<std::uintmax_t>(good_end)) {
+      std::filesystem::resize_file(journal, static_cast<std::uintmax_t>(good_end), ec);
+      if (ec) throw aerosect::OutputError(journal, "cannot cut off its incomplete last line: " + ec.message());
+      std::cerr << "aerosect: " << journal << ": dropped " << size - static_cast<std::uintmax_t>(good_end)
+                << " bytes after the last complete point (cut by the interruption)\n";
     }
     if (!done.empty())
       std::cerr << "aerosect: resuming: " << done.size() << " finished points read from " << journal << "\n";
@@ -226,8 +261,11 @@ int run_sweep_command(const Common& o, const std::string& output, const std::vec
     const bool fresh = done.empty();
     jout.open(journal, fresh ? std::ios::trunc : std::ios::app);
     if (!jout)
-      throw aerosect::OutputError(journal, "cannot open the sweep journal for writing");
+      throw aerosect::OutputError(journal, std::string("cannot open the sweep journal for writing: ") +
+                                               std::strerror(errno));
     if (fresh) jout << id.dump() << "\n" << std::flush;
+    if (!jout)
+      throw aerosect::OutputError(journal, std::string("cannot write the sweep journal: ") + std::strerror(errno));
   }
   std::size_t total = 0;
   {
@@ -236,12 +274,20 @@ int run_sweep_command(const Common& o, const std::string& output, const std::vec
     total = chains * n2 * req.options.axes[0].values.size() / static_cast<std::size_t>(req.options.shard_count);
   }
   std::mutex mu;
+  std::string journal_failure;  // why a point could not be journaled; the sweep stops then
   std::size_t finished = done.size();
   const bool tty = isatty(2);
   const auto t0 = std::chrono::steady_clock::now();
   auto on_point = [&](const aerosect::SweepPoint& p) {
     std::lock_guard<std::mutex> lock(mu);
+    if (!journal_failure.empty()) return;
+    errno = 0;
     jout << aerosect::point_json(p).dump() << "\n" << std::flush;
+    if (!jout) {
+      journal_failure = errno != 0 ? std::strerror(errno) : "write failed";
+      g_cancel.store(true);
+      return;
+    }
     ++finished;
     if (tty) {
       const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
@@ -251,18 +297,28 @@ int run_sweep_command(const Common& o, const std::string& output, const std::vec
       std::fprintf(stderr, "\r  %zu/%zu points, %.1f s elapsed, ETA %.1f s   ", finished, total, el, eta);
     }
   };
-  const std::vector<aerosect::SweepPoint> pts = aerosect::run_sweep(req, done, on_point, &g_interrupted);
+  const std::vector<aerosect::SweepPoint> pts = aerosect::run_sweep(req, done, on_point, &g_cancel);
   if (tty) std::fprintf(stderr, "\n");
-  if (g_interrupted) {
-    std::cerr << "aerosect: interrupted; " << finished << " finished points kept in " << journal
-              << " (run the same command again to continue)\n";
-    return 130;
+  if (!journal_failure.empty())
+    throw aerosect::OutputError(journal, fmt::format("writing a finished point failed ({}); the {} points "
+                                                     "before it are kept there: make room and run the "
+                                                     "same command again to continue",
+                                                     journal_failure, finished));
+  if (g_signal != 0) {
+    std::cerr << "aerosect: interrupted by signal " << static_cast<int>(g_signal) << "; " << finished
+              << " finished points kept in " << journal << " (run the same command again to continue)\n";
+    return signal_status();
   }
   aerosect::write_sweep_file(output, c, req, pts);
   jout.close();
   std::filesystem::remove(journal);
-  print(o.json ? aerosect::sweep_json(c, req, pts, output).dump(2) + "\n"
-               : aerosect::sweep_text(c, req, pts, output));
+  if (o.json) {
+    nlohmann::json j = aerosect::sweep_json(c, req, pts, output);
+    j["points_resumed"] = done.size();  // read from the journal, not recomputed
+    print(j.dump(2) + "\n");
+  } else {
+    print(aerosect::sweep_text(c, req, pts, output));
+  }
   return 0;
 }
 
@@ -300,10 +356,10 @@ int run_study_command(const Common& o, const std::string& dir, int jobs, int poi
     const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     std::fprintf(stderr, "aerosect study [%6.1f s]: %s\n", el, stage.c_str());
   };
-  const aerosect::StudyResult r = aerosect::run_study(c, dir, so, &g_interrupted, progress);
-  if (g_interrupted) {
+  const aerosect::StudyResult r = aerosect::run_study(c, dir, so, &g_cancel, progress);
+  if (g_signal != 0) {
     std::cerr << "aerosect: interrupted; the files finished so far are kept in " << dir << "\n";
-    return 130;
+    return signal_status();
   }
   std::vector<aerosect::StudyFigure> figures;
   std::vector<std::string> notes;
@@ -455,35 +511,45 @@ int main(int argc, char** argv) {
     return app.exit(e) == 0 ? 0 : 2;
   }
 
-  try {
-    if (*check) return run_check(check_opts);
-    if (*study)
-      return run_study_command(study_opts, study_dir, study_jobs, study_points, study_speeds, study_no_plots);
-    if (*sim) return run_simulate(sim_opts, output);
-    if (*gust) return run_gust(gust_opts, gust_out, gust_gradients);
-    if (*merge) {
-      aerosect::merge_sweep_files(merge_inputs, merge_out);
-      print(merge_json ? nlohmann::json{{"command", "merge"}, {"inputs", merge_inputs}, {"output", merge_out}}.dump(2) + "\n"
-                       : "merged " + std::to_string(merge_inputs.size()) + " shard files into " + merge_out + "\n");
-      return 0;
+  const int status = [&]() -> int {
+    try {
+      if (*check) return run_check(check_opts);
+      if (*study)
+        return run_study_command(study_opts, study_dir, study_jobs, study_points, study_speeds, study_no_plots);
+      if (*sim) return run_simulate(sim_opts, output);
+      if (*gust) return run_gust(gust_opts, gust_out, gust_gradients);
+      if (*merge) {
+        aerosect::merge_sweep_files(merge_inputs, merge_out);
+        print(merge_json ? nlohmann::json{{"command", "merge"}, {"inputs", merge_inputs}, {"output", merge_out}}.dump(2) + "\n"
+                         : "merged " + std::to_string(merge_inputs.size()) + " shard files into " + merge_out + "\n");
+        return 0;
+      }
+      if (*sweep)
+        return run_sweep_command(sweep_opts, sweep_out, sweep_vary, sweep_direction, sweep_restart,
+                                 sweep_jobs, sweep_shard, sweep_traces);
+      if (*flutter)
+        return run_flutter(flutter_opts, flutter_out, flutter_speeds, flutter_method, flutter_amplitude);
+    } catch (const aerosect::InputError& e) {
+      std::cerr << "aerosect: error in the case:\n" << e.what() << "\n";
+      return 2;
+    } catch (const aerosect::NumericalError& e) {
+      std::cerr << "aerosect: " << e.what() << "\n";
+      return 3;
+    } catch (const aerosect::OutputError& e) {
+      std::cerr << "aerosect: " << e.what() << "\n";
+      return 4;
+    } catch (const std::exception& e) {
+      std::cerr << "aerosect: " << e.what() << "\n";
+      return 1;
     }
-    if (*sweep)
-      return run_sweep_command(sweep_opts, sweep_out, sweep_vary, sweep_direction, sweep_restart,
-                               sweep_jobs, sweep_shard, sweep_traces);
-    if (*flutter)
-      return run_flutter(flutter_opts, flutter_out, flutter_speeds, flutter_method, flutter_amplitude);
-  } catch (const aerosect::InputError& e) {
-    std::cerr << "aerosect: error in the case:\n" << e.what() << "\n";
-    return 2;
-  } catch (const aerosect::NumericalError& e) {
-    std::cerr << "aerosect: " << e.what() << "\n";
-    return 3;
-  } catch (const aerosect::OutputError& e) {
-    std::cerr << "aerosect: " << e.what() << "\n";
-    return 4;
-  } catch (const std::exception& e) {
-    std::cerr << "aerosect: " << e.what() << "\n";
-    return 1;
+    return 0;
+  }();
+  // After an HDF5 failure its shutdown at exit may crash (hdf5_writer.hpp).
+  if (aerosect::hdf5_shutdown_unsafe()) {
+    std::cout.flush();
+    std::cerr.flush();
+    std::fflush(nullptr);
+    std::_Exit(status);
   }
-  return 0;
+  return status;
 }

@@ -174,6 +174,7 @@ class Document {
       write_text(d, "long_name", long_name);
       for (std::size_t k = 0; k < scales.size(); ++k)
         attach_scale(d, *scales[k], static_cast<unsigned>(k));
+      close_now(d);
     });
   }
 
@@ -197,6 +198,7 @@ class Document {
         if (d.attrExists(name))
           refuse(fmt::format("attribute '{}' of '{}' already written", name, where));
         write(d);
+        close_now(d);
         return;
       }
       if (existing == parts.size()) {

@@ -6,11 +6,13 @@
 #include <hdf5_hl.h>
 
 #include <algorithm>
+#include <atomic>
 #include <cerrno>
 #include <cstdio>
 #include <cstring>
 #include <filesystem>
 #include <map>
+#include <new>
 #include <system_error>
 #include <utility>
 
@@ -65,7 +67,13 @@ void quiet_hdf5() {
   recorded_hdf5_error.clear();
 }
 
+namespace {
+std::atomic<bool> g_hdf5_failed{false};
+}  // namespace
+
 std::string describe(const H5::Exception& e) {
+  // Every HDF5 failure the program sees passes here (see shutdown_unsafe).
+  g_hdf5_failed.store(true);
   std::string msg = fmt::format("HDF5 {}: {}", e.getFuncName(), e.getDetailMsg());
   if (!recorded_hdf5_error.empty()) msg += " (" + shorten(recorded_hdf5_error) + ")";
   recorded_hdf5_error.clear();
@@ -197,6 +205,7 @@ void write_parameter(const H5::Group& group, const ParameterRecord& p) {
   dataset.write(&p.value, H5::PredType::NATIVE_DOUBLE);
   write_text(dataset, "units", p.units);
   write_text(dataset, "long_name", p.long_name);
+  close_now(dataset);
 }
 
 }  // namespace
@@ -257,11 +266,25 @@ std::string rename_into_place(const std::string& from, const std::string& to) {
                      ec.message(), from);
 }
 
+bool shutdown_unsafe() noexcept { return g_hdf5_failed.load(); }
+
+void close_now(H5::DataSet& dataset) {
+  try {
+    dataset.close();
+  } catch (...) {
+    new (&dataset) H5::DataSet();  // as in close_quietly: the id is gone
+    throw;
+  }
+}
+
 void close_quietly(H5::DataSet& dataset) noexcept {
   try {
     dataset.close();
   } catch (...) {
-    // Already failing; the file is about to be removed.
+    // H5Dclose releases the id even when the close fails, but the wrapper
+    // keeps it, and its destructor would close it again (and print to
+    // stderr): the wrapper is replaced without running its destructor.
+    new (&dataset) H5::DataSet();
   }
 }
 
@@ -271,7 +294,9 @@ void close_quietly(std::unique_ptr<H5::H5File>& file) noexcept {
     file->close();
   } catch (...) {
     // The file id stays valid and a second H5Fclose on it crashes HDF5 1.10:
-    // the wrapper is let go without its destructor.
+    // the wrapper is let go without its destructor. HDF5's own shutdown at
+    // process exit closes it again and crashes the same way (see
+    // shutdown_unsafe).
     static_cast<void>(file.release());
   }
 }

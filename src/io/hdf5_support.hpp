@@ -120,5 +120,12 @@ std::string rename_into_place(const std::string& from, const std::string& to);
 // of the same id crashes HDF5 1.10).
 void close_quietly(H5::DataSet& dataset) noexcept;
 void close_quietly(std::unique_ptr<H5::H5File>& file) noexcept;
+// Closes a dataset just written, so that a failed write-back of its data
+// (HDF5 flushes a dataset's buffer when it closes) is thrown here, not
+// printed by the destructor; the wrapper is left empty either way.
+void close_now(H5::DataSet& dataset);
+
+// True once an HDF5 call on a file failed (see aerosect::hdf5_shutdown_unsafe).
+bool shutdown_unsafe() noexcept;
 
 }  // namespace aerosect::hdf5_detail

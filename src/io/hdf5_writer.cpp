@@ -227,7 +227,12 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
       }
       f.series.push_back(std::move(s));
     }
-    for (auto& [name, d] : axes) d.close();
+    try {
+      for (auto& [name, d] : axes) close_now(d);
+    } catch (...) {
+      for (auto& [name, d] : axes) close_quietly(d);  // the rest, without a word each
+      throw;
+    }
 
     write_parameters(root, meta);
     root.close();
@@ -355,5 +360,7 @@ void Hdf5TimeHistoryWriter::finish(const RunOutcome& outcome) {
   }
   final_path_ = target;
 }
+
+bool hdf5_shutdown_unsafe() noexcept { return shutdown_unsafe(); }
 
 }  // namespace aerosect

@@ -13,7 +13,8 @@
 // Each finished point is handed to `on_point` at once (from the worker
 // thread; the callback must be thread-safe), so a caller can flush it;
 // points listed in `done` are not recomputed (resume), their final states
-// continuing the chain.
+// continuing the chain. When `cancel` turns true the points in flight stop
+// and are dropped (neither reported nor returned) and no new point starts.
 //
 // A periodic point's run goes on for one more LCO period, sampled at
 // `cycle.samples` instants (sample_settled_cycle in lco.hpp): per DOF mean,

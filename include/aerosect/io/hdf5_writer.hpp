@@ -95,4 +95,13 @@ class Hdf5TimeHistoryWriter final : public TimeHistorySink {
   std::unique_ptr<File> file_;
 };
 
+// True once HDF5 failed on a file of this process (a time history, an
+// Hdf5Document or a file read), e.g. a write refused for the file size
+// limit, a disk quota or an I/O error, which the free-space check cannot
+// foresee. The failure was thrown as OutputError and the temporary file
+// removed, but HDF5 1.10 may keep the file half-open and then crash or loop
+// when it shuts down at process exit: a program should end with std::_Exit
+// once its own output is flushed (aerosect's main does).
+bool hdf5_shutdown_unsafe() noexcept;
+
 }  // namespace aerosect

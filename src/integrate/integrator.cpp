@@ -49,11 +49,27 @@ double default_initial_step(const AeroelasticModel& model) {
 
 namespace {
 
-std::string describe_state(const State& x) {
+// "plunge = 0.01, pitch = ..., wagner_lag_state_1 = ..." (the model's layout).
+std::string describe_state(const StateLayout& L, const State& x) {
   std::string s;
-  for (std::size_t i = 0; i < x.size(); ++i) s += fmt::format("{}x[{}] = {:.6g}", i ? ", " : "", i, x[i]);
+  for (std::size_t i = 0; i < x.size(); ++i)
+    s += fmt::format("{}{} = {:.6g}", i ? ", " : "", state_component_name(L, static_cast<int>(i)), x[i]);
   return s;
 }
+
+// The components of x that are NaN or infinite, by name.
+std::string non_finite_components(const StateLayout& L, const State& x) {
+  std::string s;
+  for (std::size_t i = 0; i < x.size(); ++i)
+    if (!std::isfinite(x[i]))
+      s += fmt::format("{}{} = {}", s.empty() ? "" : ", ", state_component_name(L, static_cast<int>(i)), x[i]);
+  return s;
+}
+
+constexpr const char* kCollapseHint =
+    "the state may be growing without bound (a softening spring past its turning point) or a "
+    "discontinuity may be crossed that no switching function handles, or the tolerances "
+    "(simulation.relative_tolerance, absolute_tolerance) cannot be met in double precision";
 
 bool all_finite(const State& x) {
   return std::all_of(x.begin(), x.end(), [](double v) { return std::isfinite(v); });
@@ -68,6 +84,30 @@ struct Boundary {
   int side = 1;         // +1: upper boundary, -1: lower boundary
   int next_region = 0;  // region entered on crossing
 };
+
+const char* dof_name(int j) { return j == kPlunge ? "plunge" : j == kPitch ? "pitch" : "flap"; }
+
+// The watched switching functions h = +-(x_j - breakpoint) at state x,
+// nearest first: "h = pitch - 0.00872665 = -1.2e-09 (the pitch spring's
+// upper breakpoint, rad)", or a note that none is watched.
+std::string describe_switching(const StateLayout& L, const std::vector<Boundary>& boundaries,
+                               const State& x) {
+  if (boundaries.empty()) return "no switching function is watched (no spring breakpoint)";
+  std::vector<std::pair<double, std::string>> items;
+  for (const Boundary& b : boundaries) {
+    const char* name = dof_name(b.spring);
+    const double h = b.side * (x[L.displacement + b.spring] - b.position);
+    const std::string f = b.side > 0 ? fmt::format("{} - {:.9g}", name, b.position)
+                                     : fmt::format("{:.9g} - {}", b.position, name);
+    items.emplace_back(std::abs(h), fmt::format("h = {} = {:.3g} (the {} spring's {} breakpoint, {})",
+                                                f, h, name, b.side > 0 ? "upper" : "lower",
+                                                b.spring == kPlunge ? "m" : "rad"));
+  }
+  std::sort(items.begin(), items.end());
+  std::string s = items.size() > 1 ? "switching functions, nearest first: " : "switching function: ";
+  for (std::size_t k = 0; k < items.size(); ++k) s += (k ? "; " : "") + items[k].second;
+  return s;
+}
 
 std::vector<Boundary> watched_boundaries(const AeroelasticModel& model,
                                          const std::vector<int>& regions) {
@@ -252,7 +292,8 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
   State sample(run.x.size()), work(run.x.size()), probe(run.x.size());
   // A step longer than this (1/8 of the shortest uncoupled period) is split
   // when looking for switching points.
-  const double long_step = 200.0 * default_initial_step(model) / 8.0;
+  const double shortest_period = 200.0 * default_initial_step(model);
+  const double long_step = shortest_period / 8.0;
   std::int64_t k = 1;  // next fixed sample index
   const double dt_out = schedule.interval;
   // Tolerance for a sample time to count as reached (round-off in t0 + k dt).
@@ -268,34 +309,40 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     double t_break = std::numeric_limits<double>::infinity();
     if (run.input_segment < static_cast<int>(input_breaks.size()))
       t_break = input_breaks[static_cast<std::size_t>(run.input_segment)];
+    bool landing = false;
     if (std::isfinite(t_break) && stepper.current_time() + stepper.current_time_step() > t_break) {
       const double dt_b = t_break - stepper.current_time();
       if (dt_b > 0) stepper.initialize(run.x, stepper.current_time(), dt_b);
+      landing = true;
     }
     std::pair<double, double> step;
     try {
       step = stepper.do_step(system);
     } catch (const odeint::step_adjustment_error& e) {
-      std::string where;
-      for (const Boundary& b : boundaries)
-        where += fmt::format("; near the {} spring's breakpoint at {:.6g}",
-                             b.spring == kPlunge ? "plunge" : b.spring == kPitch ? "pitch" : "flap",
-                             b.position);
       throw NumericalError(stepper.current_time(),
-                           fmt::format("step-size control failed ({}){}; state: {}", e.what(),
-                                       where, describe_state(stepper.current_state())));
+                           fmt::format("step-size control failed ({}); {}; state: {}; {}", e.what(),
+                                       describe_switching(L, boundaries, run.x),
+                                       describe_state(L, run.x), kCollapseHint));
     }
     ++run.steps;
     const double t_old = step.first, t_new = step.second;
     const State& xn = stepper.current_state();
     if (!all_finite(xn)) {
-      throw NumericalError(t_old, fmt::format("non-finite state after the step to t = "
-                                              "{:.9g} s; state at the step start: {}",
-                                              t_new, describe_state(run.x)));
+      throw NumericalError(t_old, fmt::format("non-finite state after the step to t = {:.9g} s: {}; "
+                                              "state at the step start: {}",
+                                              t_new, non_finite_components(L, xn),
+                                              describe_state(L, run.x)));
     }
+    // Collapse: a step of a few round-offs of the time, or of the model's
+    // shortest period near t = 0 (where round-off of t alone would allow
+    // ever smaller steps and the run would crawl instead of stopping). A
+    // step cut short to land on an input switch time is exempt.
     const double dt = t_new - t_old;
-    if (!(dt > 16.0 * std::numeric_limits<double>::epsilon() * std::abs(t_new))) {
-      throw NumericalError(t_new, fmt::format("step size collapsed to {:.3g} s", dt));
+    if (!landing && !(dt > 16.0 * std::numeric_limits<double>::epsilon() *
+                               std::max(std::abs(t_new), shortest_period))) {
+      throw NumericalError(t_new, fmt::format("step size collapsed to {:.3g} s; {}; state: {}; {}", dt,
+                                              describe_switching(L, boundaries, xn),
+                                              describe_state(L, xn), kCollapseHint));
     }
 
     // A switching point inside the step ends the step there.
@@ -367,10 +414,11 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
       if (run.time - last_switch < chatter_dt) {
         if (++close_switches > 50)
           throw NumericalError(run.time, fmt::format(
-              "chattering: {} switches within {:.3g} s at the {} spring's breakpoint {:.6g} (the "
-              "state is trapped on a switching surface)",
-              close_switches, run.time - last_switch,
-              b.spring == kPlunge ? "plunge" : b.spring == kPitch ? "pitch" : "flap", b.position));
+              "chattering: {} switches within {:.3g} s at the {} spring's breakpoint {:.9g} (the "
+              "state is trapped on a switching surface: the spring force jumps there and both "
+              "sides push the state back onto it); state: {}",
+              close_switches, run.time - last_switch, dof_name(b.spring), b.position,
+              describe_state(L, run.x)));
       } else {
         close_switches = 0;
       }

@@ -86,6 +86,20 @@ SpringLaw SpringLaw::table(std::vector<double> x, std::vector<double> f) {
   return s;
 }
 
+SpringLaw SpringLaw::piecewise_linear(std::vector<double> breakpoints, std::vector<double> slopes,
+                                      std::vector<double> intercepts) {
+  AEROSECT_CHECK(slopes.size() == breakpoints.size() + 1 && intercepts.size() == slopes.size());
+  AEROSECT_CHECK(std::adjacent_find(breakpoints.begin(), breakpoints.end(),
+                                    [](double a, double b) { return !(a < b); }) == breakpoints.end());
+  SpringLaw s;
+  s.breakpoints_ = std::move(breakpoints);
+  s.slopes_ = std::move(slopes);
+  s.intercepts_ = std::move(intercepts);
+  s.nominal_stiffness_ = s.slopes_[static_cast<std::size_t>(s.region_of(0.0))];
+  s.kind_ = "piecewise";
+  return s;
+}
+
 bool SpringLaw::is_linear() const {
   return breakpoints_.empty() && poly_.empty() && intercepts_[0] == 0.0;
 }

@@ -6,6 +6,15 @@
 
 namespace aerosect {
 
+std::string state_component_name(const StateLayout& L, int i) {
+  static const char* const dofs[3] = {"plunge", "pitch", "flap"};
+  if (i >= L.displacement && i < L.displacement + L.n_dof) return dofs[i - L.displacement];
+  if (i >= L.velocity && i < L.velocity + L.n_dof) return std::string(dofs[i - L.velocity]) + "_velocity";
+  if (i >= L.wagner && i < L.wagner + L.n_wagner) return "wagner_lag_state_" + std::to_string(i - L.wagner + 1);
+  if (i >= L.gust && i < L.gust + L.n_gust) return "gust_lag_state_" + std::to_string(i - L.gust + 1);
+  return "x[" + std::to_string(i) + "]";
+}
+
 AeroelasticModel::AeroelasticModel(ModelDescription description) : d_(std::move(description)) {
   const SectionProperties& s = d_.section;
   const int n = s.dof;

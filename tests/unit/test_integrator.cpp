@@ -1,8 +1,12 @@
 #include <catch2/catch.hpp>
 
 #include <cmath>
+#include <limits>
 #include <numbers>
 
+#include <boost/math/quadrature/exp_sinh.hpp>
+
+#include "aerosect/error.hpp"
 #include "aerosect/integrate/integrator.hpp"
 #include "aerosect/model/system.hpp"
 #include "helpers.hpp"
@@ -178,5 +182,91 @@ TEST_CASE("Peak observer finds the true extrema on the dense output", "[integrat
   for (std::size_t k = 0; k < peaks.size(); ++k) {
     CHECK(peaks[k].first == Approx((k + 1) * pi / wh).margin(1e-9));
     CHECK(std::abs(peaks[k].second) == Approx(0.01).epsilon(1e-9));
+  }
+}
+
+TEST_CASE("A non-finite state stops the run naming the time and the components", "[integrator]") {
+  // A hardening cubic pitch spring f = k (x + x^3) released from 1e120 rad:
+  // x^3 overflows to inf in the first right-hand side (IEEE 754 double
+  // range ~1.8e308), so the first step yields a non-finite state.
+  ModelDescription d = uncoupled_vacuum();
+  d.springs[kPitch] = SpringLaw::cubic(d.section.pitch_stiffness, 1.0);
+  const AeroelasticModel model(d);
+  RunState run;
+  run.x = {0.0, 1e120, 0.0, 0.0};
+  try {
+    integrate(model, run, 1.0, {}, {false, 0.01}, {}, false);
+    FAIL("no NumericalError");
+  } catch (const NumericalError& e) {
+    const std::string m = e.what();
+    INFO(m);
+    CHECK(e.time() == 0.0);
+    CHECK(m.find("non-finite state") != std::string::npos);
+    CHECK(m.find("pitch_velocity = ") != std::string::npos);
+    CHECK((m.find("inf") != std::string::npos || m.find("nan") != std::string::npos));
+    // The start state, by name, for the user to see where it came from.
+    CHECK(m.find("pitch = 1e+120") != std::string::npos);
+    CHECK(m.find("x[") == std::string::npos);
+  }
+}
+
+TEST_CASE("A finite-time blow-up is reported as a step-size collapse at the blow-up time",
+          "[integrator]") {
+  // Softening cubic pitch spring, x'' = -w^2 (x - x^3), released at rest from
+  // x0 = 2 (beyond the turning point x = 1): energy conservation gives
+  // x'^2 = w^2 (x^2/2 + 1)(x^2 - 4), and with x = 2 cosh u the escape time is
+  // t* = (1/w) int_0^inf du / sqrt(2 cosh^2 u + 1) (common practice, no
+  // source), evaluated with Boost.Math's exp_sinh quadrature. The step size
+  // collapses within a few round-offs of t*, so the reported time agrees to
+  // the integrator's tolerance (rtol 1e-8; 1e-6 allowed).
+  ModelDescription d = uncoupled_vacuum();
+  d.springs[kPitch] = SpringLaw::cubic(d.section.pitch_stiffness, -1.0);
+  const AeroelasticModel model(d);
+  const double w = std::sqrt(d.section.pitch_stiffness / d.section.pitch_inertia);
+  boost::math::quadrature::exp_sinh<double> q;
+  const double t_star =
+      q.integrate([](double u) { return 1.0 / std::sqrt(2 * std::cosh(u) * std::cosh(u) + 1); }, 0.0,
+                  std::numeric_limits<double>::infinity()) /
+      w;
+  RunState run;
+  run.x = {0.0, 2.0, 0.0, 0.0};
+  try {
+    integrate(model, run, 10.0, {}, {false, 0.01}, {}, false);
+    FAIL("no NumericalError");
+  } catch (const NumericalError& e) {
+    const std::string m = e.what();
+    INFO(m << "\nt* = " << t_star);
+    CHECK(e.time() == Approx(t_star).epsilon(1e-6));
+    CHECK((m.find("step size collapsed") != std::string::npos ||
+           m.find("step-size control failed") != std::string::npos));
+    CHECK(m.find("no switching function is watched") != std::string::npos);
+    CHECK(m.find("pitch = ") != std::string::npos);
+    CHECK(m.find("softening spring") != std::string::npos);
+  }
+}
+
+TEST_CASE("A step-size collapse near a breakpoint names the switching function", "[integrator]") {
+  // Pitch freeplay (gap +-0.01 rad) and a tolerance no step can meet (1e-300
+  // relative and absolute, far below double round-off): the step size
+  // collapses at once, next to the upper breakpoint the state starts on.
+  ModelDescription d = uncoupled_vacuum();
+  d.springs[kPitch] = SpringLaw::freeplay(d.section.pitch_stiffness, 0.01, 0.01, 0.0);
+  const AeroelasticModel model(d);
+  RunState run;
+  run.x = {0.0, 0.0100001, 0.0, 0.0};
+  IntegratorSettings s;
+  s.relative_tolerance = 1e-300;
+  s.absolute_tolerance = 1e-300;
+  try {
+    integrate(model, run, 1.0, s, {false, 0.01}, {}, false);
+    FAIL("no NumericalError");
+  } catch (const NumericalError& e) {
+    const std::string m = e.what();
+    INFO(m);
+    CHECK((m.find("step size collapsed") != std::string::npos ||
+           m.find("step-size control failed") != std::string::npos));
+    // Region 2 (beyond the gap) watches its lower boundary h = 0.01 - pitch.
+    CHECK(m.find("switching function: h = 0.01 - pitch = ") != std::string::npos);
+    CHECK(m.find("the pitch spring's lower breakpoint, rad") != std::string::npos);
   }
 }

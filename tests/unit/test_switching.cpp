@@ -10,6 +10,7 @@
 #include <unsupported/Eigen/MatrixFunctions>
 
 #include "aerosect/analysis/simulate.hpp"
+#include "aerosect/error.hpp"
 #include "aerosect/integrate/integrator.hpp"
 #include "helpers.hpp"
 
@@ -258,4 +259,40 @@ TEST_CASE("Breakpoints that do not change the law reproduce the linear response"
   }
   CHECK(err_zero == 0.0);
   CHECK(err_table < 1e-9 * amp);
+}
+
+TEST_CASE("A preloaded spring released on its breakpoint chatters and is stopped", "[switching]") {
+  // Pitch held by a preloaded centring spring f = k x + F sign(x) (a force
+  // jump of 2F at x = 0), released at rest at x = 0: either side of the
+  // breakpoint the spring pushes the state back across it, so the exact
+  // solution stays there (Filippov sliding; common practice, no source),
+  // which a run switching between smooth regions cannot follow. Each switch
+  // lies a few 1e-10 s after the previous one (the excursion must exceed the
+  // 1e-19 rad touch tolerance at acceleration F / I = 10 rad/s^2), well
+  // inside the guard's 1e-9 of the shortest period (2 pi s here).
+  ModelDescription d;
+  d.section.semichord = 1;
+  d.section.mass = 1;
+  d.section.pitch_inertia = 1;
+  d.section.plunge_stiffness = 1;
+  d.section.pitch_stiffness = 1;
+  d.springs[kPlunge] = SpringLaw::linear(1);
+  const double F = 10.0;
+  d.springs[kPitch] = SpringLaw::piecewise_linear({0.0}, {1.0, 1.0}, {-F, F});
+  d.flow = {0.0, 0.0};
+  const AeroelasticModel model(d);
+  RunState run;
+  run.x = {0.0, 0.0, 0.0, 0.0};
+  try {
+    integrate(model, run, 1.0, {}, {false, 0.01}, {});
+    FAIL("no NumericalError");
+  } catch (const NumericalError& e) {
+    const std::string m = e.what();
+    INFO(m);
+    CHECK(m.find("chattering: 51 switches") != std::string::npos);
+    CHECK(m.find("pitch spring's breakpoint 0") != std::string::npos);
+    CHECK(m.find("trapped on a switching surface") != std::string::npos);
+    CHECK(e.time() < 1e-6);  // at the release, not after a long crawl
+    CHECK(run.switches == 52);  // the first switch, then 51 close ones
+  }
 }

@@ -22,6 +22,7 @@
 //   cubic       f = k (x + beta x^3)   (beta > 0 hardening, < 0 softening)
 //   polynomial  f = sum_i c_i x^i, i = 1..n
 //   table       piecewise linear through (x_i, f_i), end segments extended
+//   piecewise   given slopes and intercepts per region (may jump)
 
 #include <span>
 #include <string>
@@ -41,6 +42,12 @@ class SpringLaw {
   static SpringLaw polynomial(std::vector<double> coefficients);
   // Points sorted by x, at least two.
   static SpringLaw table(std::vector<double> x, std::vector<double> f);
+  // Raw pieces: f = slopes[r] x + intercepts[r] in region r, breakpoints
+  // strictly increasing, one more slope (and intercept) than breakpoints.
+  // Continuity is not required: a preloaded centring spring,
+  // f = k x + F sign(x), jumps by 2F at its breakpoint 0.
+  static SpringLaw piecewise_linear(std::vector<double> breakpoints, std::vector<double> slopes,
+                                    std::vector<double> intercepts);
 
   // f(x) in the given region, and df/dx there.
   double force(double x, int region) const;

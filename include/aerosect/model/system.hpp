@@ -25,6 +25,7 @@
 
 #include <array>
 #include <span>
+#include <string>
 #include <vector>
 
 #include <Eigen/Core>
@@ -46,6 +47,11 @@ struct StateLayout {
   int n_gust = 0;
   int size = 4;
 };
+
+// Name of state component i, as the time-history file names it: "plunge",
+// "pitch", "flap", "plunge_velocity", ..., "wagner_lag_state_1",
+// "gust_lag_state_1" (lag states numbered from 1).
+std::string state_component_name(const StateLayout& layout, int i);
 
 // Everything the model is built from (the resolved case, SI units).
 struct ModelDescription {

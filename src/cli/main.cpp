@@ -87,7 +87,15 @@ int run_simulate(const Common& o, const std::string& output) {
   const aerosect::Case c = aerosect::load_case(o.case_path, o.overrides);
   const aerosect::AeroelasticModel model(c.model);
   aerosect::Hdf5TimeHistoryWriter writer(output);
-  const aerosect::SimulationSummary s = aerosect::simulate(c, model, writer, &g_cancel);
+  aerosect::SimulationSummary s;
+  try {
+    s = aerosect::simulate(c, model, writer, &g_cancel);
+  } catch (const aerosect::NumericalError& e) {
+    std::cerr << "aerosect: " << e.what() << "\n";
+    if (!writer.final_path().empty())
+      std::cerr << "aerosect: the run up to the trouble is kept in " << writer.final_path() << "\n";
+    return 3;
+  }
   print(o.json ? aerosect::simulation_json(c, s, writer.final_path()).dump(2) + "\n"
                : aerosect::simulation_text(c, s, writer.final_path()));
   if (!s.completed) {

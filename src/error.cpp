@@ -1,20 +1,64 @@
 #include "aerosect/error.hpp"
 
+#include <algorithm>
+
 #include <fmt/format.h>
 
 namespace aerosect {
 
 namespace {
+// Messages show at most kShownKey characters of a key (room for three
+// alternatives "a | b | c"; an unknown key may be any length) and kShownValue
+// of a value or a command-line option.
+constexpr std::size_t kShownKey = 90, kShownValue = 60;
+
+std::string shown(const std::string& s, std::size_t limit = kShownValue) {
+  if (s.size() <= limit) return s;
+  std::size_t cut = limit - 3;
+  while (cut > 0 && (static_cast<unsigned char>(s[cut]) & 0xC0) == 0x80) --cut;  // UTF-8 boundary
+  return s.substr(0, cut) + "...";
+}
+
+}  // namespace
+
+std::string wrapped(const std::string& text, std::size_t width) {
+  std::string out;
+  std::size_t start = 0;
+  while (start <= text.size()) {
+    const std::size_t nl = std::min(text.find('\n', start), text.size());
+    std::string line = text.substr(start, nl - start);
+    while (line.size() > width) {
+      std::size_t cut = line.rfind(' ', width);
+      if (cut == std::string::npos || cut < 8) cut = line.find(' ', width);
+      if (cut == std::string::npos) break;
+      const std::size_t next = line.find_first_not_of(' ', cut);
+      if (next == std::string::npos) break;  // only spaces beyond the limit
+      out += line.substr(0, cut) + "\n";
+      line = "    " + line.substr(next);
+    }
+    out += line;
+    if (nl == text.size()) break;
+    out += "\n";
+    start = nl + 1;
+  }
+  return out;
+}
+
+namespace {
+
 std::string format_input_error(const SourceLocation& w, const std::string& key,
                                const std::string& value, const std::string& problem,
                                const std::string& allowed) {
-  const std::string file = w.file.empty() ? std::string("<input>") : w.file;
+  // A command-line option ("--set KEY=VALUE") is shown shortened; a file path whole.
+  const std::string file = w.file.empty()              ? std::string("<input>")
+                           : w.file.rfind("--", 0) == 0 ? shown(w.file)
+                                                        : w.file;
   const std::string line = w.line > 0 ? fmt::format(":{}", w.line) : std::string();
   const std::string column = w.line > 0 && w.column > 0 ? fmt::format(":{}", w.column) : std::string();
   const std::string what = key.empty() && value.empty() ? std::string()
-                           : value.empty()              ? fmt::format("key '{}': ", key)
-                           : key.empty()                ? fmt::format("{}: ", value)
-                                           : fmt::format("key '{}' = {}: ", key, value);
+                           : value.empty()              ? fmt::format("key '{}': ", shown(key, kShownKey))
+                           : key.empty()                ? fmt::format("{}: ", shown(value))
+                                           : fmt::format("key '{}' = {}: ", shown(key, kShownKey), shown(value));
   const std::string tail = allowed.empty() ? std::string() : fmt::format("\n  allowed: {}", allowed);
   return fmt::format("{}{}{}: {}{}{}", file, line, column, what, problem, tail);
 }

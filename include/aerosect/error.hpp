@@ -28,7 +28,10 @@ struct SourceLocation {
 };
 
 // Bad user input. what() is the complete one-screen message:
-//   FILE:LINE:COL: KEY = VALUE: PROBLEM; allowed: ALLOWED
+//   FILE:LINE:COL: key 'KEY' = VALUE: PROBLEM
+//     allowed: ALLOWED
+// with the key shown to at most 90 characters, the value to 60 (the accessors
+// return them whole); `wrapped` fits it to a screen's width.
 class InputError : public Error {
  public:
   InputError(SourceLocation where, std::string key, std::string value,
@@ -70,6 +73,11 @@ class InternalError : public Error {
  public:
   InternalError(const char* file, int line, const std::string& condition);
 };
+
+// `text` with every line wider than `width` columns broken at its last space
+// before the limit, the continuation indented by four spaces (a word wider
+// than the limit stays whole). For showing messages on a terminal.
+std::string wrapped(const std::string& text, std::size_t width = 100);
 
 #define AEROSECT_CHECK(cond)                                         \
   do {                                                               \

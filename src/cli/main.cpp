@@ -538,16 +538,16 @@ int main(int argc, char** argv) {
       if (*flutter)
         return run_flutter(flutter_opts, flutter_out, flutter_speeds, flutter_method, flutter_amplitude);
     } catch (const aerosect::InputError& e) {
-      std::cerr << "aerosect: error in the case:\n" << e.what() << "\n";
+      std::cerr << "aerosect: error in the case:\n" << aerosect::wrapped(e.what()) << "\n";
       return 2;
     } catch (const aerosect::NumericalError& e) {
-      std::cerr << "aerosect: " << e.what() << "\n";
+      std::cerr << aerosect::wrapped(std::string("aerosect: ") + e.what()) << "\n";
       return 3;
     } catch (const aerosect::OutputError& e) {
-      std::cerr << "aerosect: " << e.what() << "\n";
+      std::cerr << aerosect::wrapped(std::string("aerosect: ") + e.what()) << "\n";
       return 4;
     } catch (const std::exception& e) {
-      std::cerr << "aerosect: " << e.what() << "\n";
+      std::cerr << aerosect::wrapped(std::string("aerosect: ") + e.what()) << "\n";
       return 1;
     }
     return 0;

@@ -207,9 +207,11 @@ std::string parent_of(const std::string& path) {
 
 // Closest known key (or table) to an unknown dotted path, or "": first
 // among the keys of the same table, then anywhere (a key put in the wrong
-// table).
-std::string suggestion_for(const std::string& path) {
-  std::vector<std::string> candidates = kKnownKeys;
+// table). An unknown table is matched against tables only ([springs.roll]
+// is no 'simulation.hold'); an unknown value against keys and tables.
+std::string suggestion_for(const std::string& path, bool is_table = false) {
+  std::vector<std::string> candidates;
+  if (!is_table) candidates = kKnownKeys;
   for (const auto& k : kKnownKeys) {
     for (auto p = k.find('.'); p != std::string::npos; p = k.find('.', p + 1))
       candidates.push_back(k.substr(0, p));
@@ -245,16 +247,27 @@ std::string quoted_list(const std::vector<std::string>& v) {
   return join(q);
 }
 
+// A value on one line as the user would write it: numbers in their shortest
+// round-trip form (0.1, not 0.10000000000000001), arrays element by element,
+// at most 60 characters.
 std::string node_text(const toml::node& n) {
-  std::ostringstream os;
+  std::string s;
   if (n.is_table()) {
-    os << "(table)";
+    s = "(table)";
   } else if (auto* a = n.as_array()) {
-    os << *a;
+    s = "[";
+    for (std::size_t i = 0; i < a->size() && s.size() <= 60; ++i)
+      s += (i ? ", " : "") + node_text(*a->get(i));
+    s += "]";
+  } else if (auto* f = n.as_floating_point()) {
+    const double v = f->get();
+    s = std::isnan(v) ? std::string("nan") : fmt::format("{}", v);
+    if (std::isfinite(v) && s.find_first_of(".e") == std::string::npos) s += ".0";
   } else {
+    std::ostringstream os;
     n.visit([&](auto&& v) { os << v; });
+    s = os.str();
   }
-  std::string s = os.str();
   if (s.size() > 60) s = s.substr(0, 57) + "...";
   return s;
 }
@@ -461,7 +474,7 @@ void check_unknown_keys(const Context& ctx, const toml::table& t, const std::str
     }
     if (auto it = ctx.overrides.find(path); it != ctx.overrides.end())
       where = {"--set " + it->second, 0, 0};
-    const std::string hint = suggestion_for(path);
+    const std::string hint = suggestion_for(path, v.is_table() && !is_known_key(path));
     std::string problem = v.is_table() && !is_known_table(path) && is_known_key(path)
                               ? "must be a value, not a table"
                               : "unknown key";
@@ -560,6 +573,37 @@ double chord_position(const Table& t, std::string_view key) {
   return v;
 }
 
+// A quantity derived from inputs must be a finite number (and positive when
+// `positive`): each input may be finite while their product overflows double
+// precision (mass = 1e308 kg/m gives an infinite stiffness) or a square
+// underflows (semichord = 1e-308 m gives a zero inertia). The message points
+// at the input farthest from 1 in magnitude, the likely culprit; `inputs`
+// lists the keys the quantity comes from (absent keys are skipped).
+struct DerivedInput {
+  const Table* table;
+  std::string key;
+};
+void require_physical(double v, const std::string& what, const std::vector<DerivedInput>& inputs,
+                      bool positive = false) {
+  if (std::isfinite(v) && (!positive || v > 0)) return;
+  const DerivedInput* worst = nullptr;
+  double worst_size = -1;
+  for (const auto& in : inputs) {
+    const std::optional<double> x = in.table->number(in.key);
+    if (!x) continue;
+    const double size = *x == 0 ? 0 : std::abs(std::log10(std::abs(*x)));
+    if (size > worst_size) {
+      worst_size = size;
+      worst = &in;
+    }
+  }
+  AEROSECT_CHECK(worst != nullptr);
+  worst->table->fail(worst->key,
+                     fmt::format("gives {} = {:g}, {} double precision", what, v,
+                                 std::isfinite(v) ? "below" : "beyond"),
+                     "values of physical size (every derived quantity a finite number)");
+}
+
 void read_si(const Table& sec, const Table& flap, const Table& flow, Case& c) {
   SectionProperties& s = c.model.section;
   FlowConditions& f = c.model.flow;
@@ -597,6 +641,11 @@ void read_si(const Table& sec, const Table& flap, const Table& flow, Case& c) {
   } else {
     s.pitch_inertia = m * iv * iv * b * b;
   }
+  const std::vector<DerivedInput> mass_inputs = {
+      {&sec, "semichord"}, {&sec, "mass"}, {&sec, cg_key}, {&sec, inertia_key}};
+  require_physical(s.static_unbalance, "a static unbalance (kg m/m)", mass_inputs);
+  require_physical(s.pitch_inertia, "a pitch inertia (kg m^2/m)", mass_inputs, true);
+  require_physical(m * x_alpha_b * x_alpha_b, "an inertia term m (x_alpha b)^2", mass_inputs);
   // A physical section has I_cg = I_alpha - m (x_alpha b)^2 > 0, i.e. r_alpha^2 > x_alpha^2.
   const double I_cg = s.pitch_inertia - m * x_alpha_b * x_alpha_b;
   if (!(I_cg > 1e-12 * s.pitch_inertia)) {
@@ -614,12 +663,18 @@ void read_si(const Table& sec, const Table& flap, const Table& flow, Case& c) {
   const double khv = *sec.number(kh);
   sec.require(khv >= 0, kh, "must not be negative", "a number >= 0");
   s.plunge_stiffness = kh == "plunge_stiffness" ? khv : m * std::pow(2 * pi * khv, 2);
+  require_physical(s.plunge_stiffness, "a plunge stiffness (N/m per m span)", {{&sec, "mass"}, {&sec, kh}});
   const std::string ka = sec.required_one_of(
       {"pitch_stiffness", "pitch_frequency_hz"},
       "pitch_stiffness (N m/rad per m span) or pitch_frequency_hz (uncoupled, Hz)");
   const double kav = *sec.number(ka);
   sec.require(kav > 0, ka, "must be positive", "a positive number");
   s.pitch_stiffness = ka == "pitch_stiffness" ? kav : s.pitch_inertia * std::pow(2 * pi * kav, 2);
+  {
+    std::vector<DerivedInput> in = mass_inputs;
+    in.push_back({&sec, ka});
+    require_physical(s.pitch_stiffness, "a pitch stiffness (N m/rad per m span)", in);
+  }
   s.plunge_damping_ratio = damping_ratio(sec, "plunge_damping_ratio");
   s.pitch_damping_ratio = damping_ratio(sec, "pitch_damping_ratio");
 
@@ -645,6 +700,8 @@ void read_si(const Table& sec, const Table& flap, const Table& flow, Case& c) {
     } else {
       s.flap_static_unbalance = *flap.number("static_unbalance");
     }
+    require_physical(s.flap_static_unbalance, "a flap static unbalance (kg m/m)",
+                     {{&flap, "mass"}, {&flap, su}, {&sec, "semichord"}});
     const std::string ik = flap.required_one_of(
         {"inertia", "inertia_cg"},
         "inertia (I_beta about the hinge, kg m^2/m) or inertia_cg (about the flap CG, with mass)");
@@ -670,7 +727,11 @@ void read_si(const Table& sec, const Table& flap, const Table& flow, Case& c) {
         "stiffness (hinge spring, N m/rad per m span) or frequency_hz (uncoupled, Hz)");
     const double kbv = *flap.number(kb);
     flap.require(kbv >= 0, kb, "must not be negative", "a number >= 0");
+    require_physical(s.flap_inertia, "a flap inertia (kg m^2/m)",
+                     {{&flap, "mass"}, {&flap, su}, {&flap, ik}, {&sec, "semichord"}});
     s.flap_stiffness = kb == "stiffness" ? kbv : s.flap_inertia * std::pow(2 * pi * kbv, 2);
+    require_physical(s.flap_stiffness, "a flap stiffness (N m/rad per m span)",
+                     {{&flap, "mass"}, {&flap, su}, {&flap, ik}, {&flap, kb}, {&sec, "semichord"}});
     s.flap_damping_ratio = damping_ratio(flap, "damping_ratio");
   }
 
@@ -745,6 +806,25 @@ void read_nondimensional(const Table& nd, Case& c) {
     n.reference.density = *v;
   }
   from_nondimensional(n, c.model.section, c.model.flow);
+  // The SI section these numbers resolve to must be finite (mass_ratio = 1e308
+  // overflows the mass); the reference scales come from [nondimensional.reference].
+  const SectionProperties& s = c.model.section;
+  const std::vector<DerivedInput> in = {
+      {&nd, "mass_ratio"},       {&nd, "cg_offset"},       {&nd, "radius_of_gyration"},
+      {&nd, "frequency_ratio"},  {&nd, "reduced_speed"},   {&nd, "flap_cg_offset"},
+      {&nd, "flap_radius_of_gyration"}, {&nd, "flap_frequency_ratio"},
+      {&ref, "semichord"},       {&ref, "pitch_frequency_hz"}, {&ref, "density"}};
+  require_physical(s.mass, "a mass (kg/m)", in);
+  require_physical(s.static_unbalance, "a static unbalance (kg m/m)", in);
+  require_physical(s.pitch_inertia, "a pitch inertia (kg m^2/m)", in, true);
+  require_physical(s.plunge_stiffness, "a plunge stiffness (N/m per m span)", in);
+  require_physical(s.pitch_stiffness, "a pitch stiffness (N m/rad per m span)", in);
+  require_physical(c.model.flow.airspeed, "an airspeed (m/s)", in);
+  if (n.dof == 3) {
+    require_physical(s.flap_static_unbalance, "a flap static unbalance (kg m/m)", in);
+    require_physical(s.flap_inertia, "a flap inertia (kg m^2/m)", in, true);
+    require_physical(s.flap_stiffness, "a flap stiffness (N m/rad per m span)", in);
+  }
 }
 
 void read_aerodynamics(const Table& t, Case& c) {
@@ -916,11 +996,20 @@ SpringLaw read_spring(const Table& t, int dof, double k) {
     auto v = t.number(key);
     if (!v) return def;
     t.require(*v >= 0, key, "must not be negative", du + ", >= 0");
+    if (angle)
+      t.require(*v <= 90, key, "is beyond the theory's small angles", "0 <= angle <= 90 degrees");
     return *v * unit;
+  };
+  auto offset_of = [&]() {
+    const double v = t.number("offset" + suf).value_or(0.0);
+    if (angle)
+      t.require(std::abs(v) <= 90, "offset" + suf, "is beyond the theory's small angles",
+                "|offset| <= 90 degrees");
+    return v * unit;
   };
   if (law == "linear") return SpringLaw::linear(k);
   if (law == "freeplay") {
-    const double offset = t.number("offset" + suf).value_or(0.0) * unit;
+    const double offset = offset_of();
     const std::string g = t.required_one_of(
         {"half_gap" + suf, "total_gap" + suf, "gap_below" + suf},
         fmt::format("the free play: half_gap{0} (half of the total free play, {1}), total_gap{0} "
@@ -943,12 +1032,15 @@ SpringLaw read_spring(const Table& t, int dof, double k) {
     return SpringLaw::freeplay(k, below, above, offset);
   }
   if (law == "bilinear") {
-    const double offset = t.number("offset" + suf).value_or(0.0) * unit;
+    const double offset = offset_of();
     const double kin = t.required_number("inner_stiffness", "the stiffness inside the breakpoints");
     t.require(kin >= 0, "inner_stiffness", "must not be negative",
               angle ? "N m/rad per m span, >= 0" : "N/m per m span, >= 0");
     const double d = t.required_number("half_width" + suf, "distance from offset to each breakpoint");
     t.require(d > 0, "half_width" + suf, "must be positive", du + ", > 0");
+    if (angle)
+      t.require(d <= 90, "half_width" + suf, "is beyond the theory's small angles",
+                "0 < half_width_deg <= 90 degrees");
     return SpringLaw::bilinear(kin, k, d * unit, offset);
   }
   if (law == "cubic") {

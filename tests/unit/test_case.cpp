@@ -856,3 +856,73 @@ TEST_CASE("read_file errors", "[case][errors]") {
     CHECK(e.allowed() == "a readable TOML file");
   }
 }
+
+// Found by the bad-input corpus (tests/bad_cases) and the case fuzzer; the
+// wording and the limits of the message are this project's own (common
+// practice, no source).
+TEST_CASE("Inputs whose derived quantities leave double precision", "[case][errors]") {
+  auto with = [](std::string text, const std::string& from, const std::string& to) {
+    text.replace(text.find(from), from.size(), to);
+    return text;
+  };
+  // m (2 pi f_h)^2 overflows: the message points at the mass, not the frequency.
+  expect_error(with(kSection, "mass = 10.0", "mass = 1e308") + kFlow + kSim, 3, "section.mass",
+               {"gives a plunge stiffness", "= inf", "beyond double precision"});
+  expect_error(with(kSection, "pitch_frequency_hz = 5.0", "pitch_frequency_hz = 1e300") + kFlow + kSim,
+               8, "section.pitch_frequency_hz", {"gives a pitch stiffness", "beyond double precision"});
+  // m r^2 b^2 overflows or underflows to zero (it was a "-nan" message before).
+  expect_error(with(kSection, "semichord = 0.5", "semichord = 1e308") + kFlow + kSim, 2,
+               "section.semichord", {"gives a pitch inertia", "beyond double precision"});
+  expect_error(with(kSection, "semichord = 0.5", "semichord = 1e-308") + kFlow + kSim, 2,
+               "section.semichord", {"gives a pitch inertia (kg m^2/m) = 0", "below double precision"});
+  // The nondimensional form resolves to an infinite mass.
+  expect_error(with(test::benchmark_2dof(kSim), "mass_ratio = 100.0", "mass_ratio = 1e308"), 2,
+               "nondimensional.mass_ratio", {"gives a mass (kg/m) = inf"});
+}
+
+TEST_CASE("Spring angles stay within the small-angle range", "[case][errors]") {
+  // The same 90-degree bound as initial.pitch_deg (the aerodynamics is linear).
+  const std::string base = kSection + kFlow + kSim;  // lines 1..13
+  expect_error(base + "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 1e308\n", 16,
+               "springs.pitch.half_gap_deg", {"small angles", "0 <= angle <= 90 degrees"});
+  expect_error(base + "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\noffset_deg = -100\n", 17,
+               "springs.pitch.offset_deg", {"small angles", "|offset| <= 90 degrees"});
+  expect_error(base + "[springs.pitch]\nlaw = \"bilinear\"\ninner_stiffness = 1.0\nhalf_width_deg = 95\n",
+               17, "springs.pitch.half_width_deg", {"small angles"});
+  // Plunge gaps are lengths, with no such bound.
+  CHECK_NOTHROW(test::case_from(base + "[springs.plunge]\nlaw = \"freeplay\"\nhalf_gap = 100.0\n"));
+}
+
+TEST_CASE("Messages show values as written and fit one screen", "[case][errors]") {
+  // Shortest round-trip numbers, arrays on one line.
+  expect_error(kSection + "cg = 0.0\n" + kFlow + kSim, 5, "section.cg_offset",
+               {"key 'section.cg_offset' = 0.1: conflicts"});
+  expect_error(kSection + kFlow + kSim + "[aerodynamics]\nwagner = \"custom\"\n"
+                   "wagner_coefficients = [0.165, nan]\nwagner_exponents = [0.0455, 0.3]\n",
+               16, "aerodynamics.wagner_coefficients", {"= [0.165, nan]: must hold finite numbers"});
+  // An unknown table is matched against tables only (it was 'simulation.hold').
+  {
+    const InputError e = error_of(kSection + kFlow + kSim + "[springs.roll]\nlaw = \"cubic\"\n");
+    CHECK(e.key() == "springs.roll");
+    CHECK(e.problem() == "unknown key");
+  }
+  // A 5000-character key is shown shortened; wrapped() keeps every line
+  // within 100 columns.
+  const InputError e = error_of(kSection + std::string(5000, 'k') + " = 1.0\n" + kFlow + kSim);
+  CHECK(e.key().size() == 5000 + 8);
+  const std::string msg = e.what();
+  CHECK(msg.size() < 300);
+  CHECK_THAT(msg, Contains("key 'section.kkkk") && Contains("...' = 1.0: unknown key"));
+  const std::string screen = wrapped(msg);
+  std::size_t widest = 0, lines = 0;
+  for (std::size_t at = 0; at <= screen.size(); ++lines) {
+    const std::size_t nl = std::min(screen.find('\n', at), screen.size());
+    widest = std::max(widest, nl - at);
+    at = nl + 1;
+  }
+  CHECK(widest <= 100);
+  CHECK(lines == 4);
+  CHECK(wrapped("a b", 100) == "a b");
+  CHECK(wrapped(std::string(60, 'x') + " " + std::string(60, 'y'), 100) ==
+        std::string(60, 'x') + "\n    " + std::string(60, 'y'));
+}

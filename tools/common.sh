@@ -16,6 +16,13 @@ AEROSECT_PACKAGES=(
   chromium python3-websocket  # the HTML report's browser test (tests/integration/browser.py)
 )
 
+# The hardened stages of tools/test (sanitizer build, tools/fuzz) also need
+# clang with its sanitizer and libFuzzer runtimes and clang's OpenMP.
+AEROSECT_CHECK_PACKAGES=(clang libclang-rt-14-dev libomp-14-dev)
+
+# Extra cmake arguments for build_aerosect (a caller sets them before the call).
+EXTRA_CMAKE_ARGS=()
+
 ensure_packages() {
   local missing=()
   for p in "$@"; do
@@ -34,14 +41,17 @@ ensure_packages() {
 }
 
 # build_aerosect [TARGET...]: packages, configure (Release, with the tests
-# target defined) and build the given targets (all when none is given).
+# target defined, then EXTRA_CMAKE_ARGS; warnings are errors when
+# AEROSECT_WERROR=ON, as in CI) and build the given targets (all when none is
+# given).
 build_aerosect() {
   ensure_packages "${AEROSECT_PACKAGES[@]}"
   local launcher=()
   # ccache, when the machine has it, only speeds up rebuilds (not installed by us).
   if command -v ccache >/dev/null 2>&1; then launcher=(-DCMAKE_CXX_COMPILER_LAUNCHER=ccache); fi
   cmake -S "$ROOT" -B "$BUILD_DIR" -G Ninja -DCMAKE_BUILD_TYPE=Release \
-    -DAEROSECT_BUILD_TESTS=ON "${launcher[@]}" >/dev/null
+    -DAEROSECT_BUILD_TESTS=ON -DAEROSECT_WERROR="${AEROSECT_WERROR:-OFF}" "${launcher[@]}" \
+    "${EXTRA_CMAKE_ARGS[@]}" >/dev/null
   local targets=()
   for t in "$@"; do targets+=(--target "$t"); done
   cmake --build "$BUILD_DIR" -j "$JOBS" "${targets[@]}"

@@ -130,9 +130,10 @@ with tempfile.TemporaryDirectory() as tmp:
             check(f"{sig.name}: complete file still complete", int(f.attrs["complete"]) == 1)
 
     # ------------------------------------------------------------------- sweep
-    # 10 speeds x 2 directions, steps <= 1e-5 s: some seconds on 2 threads.
+    # 10 speeds x 2 directions, steps <= 1e-5 s (5 s runs): long enough to stop
+    # mid-sweep, short enough under the sanitizers (about 10 times slower).
     sweep_args = ["sweep", DEMO, "--vary", "flow.airspeed=20:60:10", "--jobs", "2", "--json",
-                  "--set", "simulation.duration=20", "--set", "simulation.max_step=1e-5"]
+                  "--set", "simulation.duration=5", "--set", "simulation.max_step=1e-5"]
     n_points = 20
     ref = os.path.join(tmp, "ref.h5")
     r = run(*sweep_args, "-o", ref)

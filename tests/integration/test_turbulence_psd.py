@@ -45,24 +45,8 @@ import numpy as np
 from scipy import signal, stats
 
 
-class Checks:
-    def __init__(self):
-        self.passed = self.failed = 0
-
-    def run(self, name, function, *args):
-        try:
-            function(*args)
-        except Exception as e:  # every failure is reported, the others still run
-            self.failed += 1
-            print(f"FAIL {name}: {e}")
-            traceback.print_exc(limit=2)
-        else:
-            self.passed += 1
-            print(f"PASS {name}")
-
-    def summary(self):
-        print(f"{self.passed} passed, {self.failed} failed")
-        return 1 if self.failed else 0
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from test_plot_flutter import Checks  # noqa: E402
 
 
 # --- the program under test --------------------------------------------------

@@ -1,6 +1,7 @@
 #include "aerosect/error.hpp"
 
 #include <algorithm>
+#include <cstdint>
 
 #include <fmt/format.h>
 
@@ -12,7 +13,47 @@ namespace {
 // of a value or a command-line option.
 constexpr std::size_t kShownKey = 90, kShownValue = 60;
 
-std::string shown(const std::string& s, std::size_t limit = kShownValue) {
+// Bytes from a file or the command line, safe to show on a terminal: control
+// characters (NUL, ESC of an escape sequence, BEL, ..., DEL and the C1
+// controls U+0080..U+009F) and bytes that are not UTF-8 are shown as \xNN;
+// printable UTF-8 text is kept as it is.
+std::string printable(const std::string& s, bool keep_newlines = false) {
+  std::string out;
+  out.reserve(s.size());
+  auto escape = [&out](unsigned char c) { out += fmt::format("\\x{:02X}", c); };
+  for (std::size_t i = 0; i < s.size();) {
+    const auto c = static_cast<unsigned char>(s[i]);
+    if (c < 0x80) {
+      if ((c < 0x20 && !(keep_newlines && c == '\n')) || c == 0x7F) escape(c);
+      else out += static_cast<char>(c);
+      ++i;
+      continue;
+    }
+    // Length and smallest code point of a UTF-8 sequence starting with c.
+    const int len = (c & 0xE0) == 0xC0 ? 2 : (c & 0xF0) == 0xE0 ? 3 : (c & 0xF8) == 0xF0 ? 4 : 0;
+    bool ok = len > 0 && i + static_cast<std::size_t>(len) <= s.size();
+    std::uint32_t cp = len == 2 ? (c & 0x1Fu) : len == 3 ? (c & 0x0Fu) : (c & 0x07u);
+    for (int k = 1; ok && k < len; ++k) {
+      const auto d = static_cast<unsigned char>(s[i + static_cast<std::size_t>(k)]);
+      ok = (d & 0xC0) == 0x80;
+      cp = (cp << 6) | (d & 0x3Fu);
+    }
+    static constexpr std::uint32_t kMin[5] = {0, 0, 0x80, 0x800, 0x10000};
+    ok = ok && cp >= kMin[len] && cp <= 0x10FFFF && !(cp >= 0xD800 && cp <= 0xDFFF) &&
+         !(cp >= 0x80 && cp <= 0x9F);
+    if (!ok) {
+      escape(c);
+      ++i;
+      continue;
+    }
+    out.append(s, i, static_cast<std::size_t>(len));
+    i += static_cast<std::size_t>(len);
+  }
+  return out;
+}
+
+std::string shown(const std::string& raw, std::size_t limit = kShownValue) {
+  const std::string s = printable(raw);
   if (s.size() <= limit) return s;
   std::size_t cut = limit - 3;
   while (cut > 0 && (static_cast<unsigned char>(s[cut]) & 0xC0) == 0x80) --cut;  // UTF-8 boundary
@@ -52,7 +93,7 @@ std::string format_input_error(const SourceLocation& w, const std::string& key,
   // A command-line option ("--set KEY=VALUE") is shown shortened; a file path whole.
   const std::string file = w.file.empty()              ? std::string("<input>")
                            : w.file.rfind("--", 0) == 0 ? shown(w.file)
-                                                        : w.file;
+                                                        : printable(w.file);
   const std::string line = w.line > 0 ? fmt::format(":{}", w.line) : std::string();
   const std::string column = w.line > 0 && w.column > 0 ? fmt::format(":{}", w.column) : std::string();
   const std::string what = key.empty() && value.empty() ? std::string()
@@ -60,7 +101,7 @@ std::string format_input_error(const SourceLocation& w, const std::string& key,
                            : key.empty()                ? fmt::format("{}: ", shown(value))
                                            : fmt::format("key '{}' = {}: ", shown(key, kShownKey), shown(value));
   const std::string tail = allowed.empty() ? std::string() : fmt::format("\n  allowed: {}", allowed);
-  return fmt::format("{}{}{}: {}{}{}", file, line, column, what, problem, tail);
+  return fmt::format("{}{}{}: {}{}{}", file, line, column, what, printable(problem, true), tail);
 }
 }  // namespace
 

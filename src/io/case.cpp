@@ -1,4 +1,5 @@
 #include "aerosect/io/case.hpp"
+#include "aerosect/io/text_file.hpp"
 
 #include <algorithm>
 #include <cerrno>
@@ -1299,22 +1300,11 @@ void check_mass_matrix(const Case& c, const Table& flap, const Table& nd) {
   nd.fail("flap_radius_of_gyration", msg, allowed);
 }
 
+// A regular file of at most kMaxCaseFileBytes (a FIFO or /dev/zero is
+// refused before anything is read).
 std::string read_file(const std::string& path) {
-  // A directory opens as a stream on POSIX and reads as empty: say so.
-  std::error_code ec;
-  if (std::filesystem::is_directory(path, ec))
-    throw InputError({path, 0, 0}, "", "", "cannot read the case file (it is a directory)",
-                     "a readable TOML file");
-  std::ifstream in(path, std::ios::binary);
-  if (!in)
-    throw InputError({path, 0, 0}, "", "",
-                     fmt::format("cannot open the case file ({})", std::strerror(errno)),
-                     "a readable TOML file");
-  std::ostringstream ss;
-  ss << in.rdbuf();
-  if (in.bad())
-    throw InputError({path, 0, 0}, "", "", "cannot read the case file", "a readable TOML file");
-  return ss.str();
+  return read_input_file(path, kMaxCaseFileBytes, "case file", {path, 0, 0}, "",
+                         "a readable TOML file");
 }
 
 }  // namespace

@@ -3,6 +3,8 @@
 
 #include "hdf5_support.hpp"
 
+#include "aerosect/io/output_claim.hpp"
+
 #include <hdf5_hl.h>
 
 #include <algorithm>
@@ -226,8 +228,9 @@ void write_parameters(const H5::Group& root, const RunMetadata& meta) {
 // The file on disk.
 
 void require_not_directory(const std::string& target) {
-  std::error_code ec;
-  if (fs::is_directory(target, ec)) throw OutputError(target, "a directory of that name exists");
+  // Also: not a device or FIFO, not an input of this run, not another run's
+  // output (output_claim.hpp).
+  claim_output(target);
 }
 
 std::string cannot_create(const std::string& temporary_path) {

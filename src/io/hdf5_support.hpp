@@ -95,8 +95,10 @@ void write_parameters(const H5::Group& root, const RunMetadata& meta);
 
 // --- The file on disk ---------------------------------------------------------
 
-// Throws OutputError(target, "a directory of that name exists") when
-// `target` is a directory.
+// Claims `target` for this run (claim_output, output_claim.hpp): throws
+// OutputError(target, "a directory of that name exists") when `target` is a
+// directory, and refuses a device, a FIFO, an input of this run and an
+// output another run holds.
 void require_not_directory(const std::string& target);
 
 // Empty when `temporary_path` can be created (it is, empty), else the

@@ -12,12 +12,14 @@
 #include <unistd.h>
 
 #include "aerosect/error.hpp"
+#include "aerosect/io/output_claim.hpp"
 
 namespace aerosect {
 
 namespace fs = std::filesystem;
 
 void write_file_atomically(const std::string& path, std::string_view contents) {
+  claim_output(path);
   const std::string temporary = fmt::format("{}.part-{}", path, static_cast<long>(::getpid()));
   {
     std::ofstream out(temporary, std::ios::binary | std::ios::trunc);
@@ -102,6 +104,7 @@ int open_checked(const std::string& path, std::uint64_t max_bytes, const std::st
                        S_ISDIR(st.st_mode) ? "" : ", not a regular file"),
            allowed);
   }
+  register_input(path);
   size = static_cast<std::uint64_t>(st.st_size);
   if (size > max_bytes) {
     ::close(fd);

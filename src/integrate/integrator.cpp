@@ -6,6 +6,7 @@
 #include <limits>
 #include <numbers>
 #include <optional>
+#include <span>
 
 #include <boost/math/tools/toms748_solve.hpp>
 #include <boost/numeric/odeint.hpp>
@@ -49,12 +50,21 @@ double default_initial_step(const AeroelasticModel& model) {
 
 namespace {
 
-// "plunge = 0.01, pitch = ..., wagner_lag_state_1 = ..." (the model's layout).
+// "plunge = 0.01, pitch = ..., wagner_lag_state_1 = ..." (the model's
+// layout; the monodromy entries of an augmented state are left out).
 std::string describe_state(const StateLayout& L, const State& x) {
   std::string s;
-  for (std::size_t i = 0; i < x.size(); ++i)
+  for (std::size_t i = 0; i < x.size() && i < static_cast<std::size_t>(L.size); ++i)
     s += fmt::format("{}{} = {:.6g}", i ? ", " : "", state_component_name(L, static_cast<int>(i)), x[i]);
   return s;
+}
+
+// Name of component i of the (possibly augmented) integrated vector:
+// the state's own names, then "monodromy(r, c)" (0-based) past them.
+std::string component_name(const StateLayout& L, std::size_t i) {
+  const auto n = static_cast<std::size_t>(L.size);
+  if (i < n) return state_component_name(L, static_cast<int>(i));
+  return fmt::format("monodromy({}, {})", (i - n) % n, (i - n) / n);
 }
 
 // The components of x that are NaN or infinite, by name.
@@ -62,8 +72,16 @@ std::string non_finite_components(const StateLayout& L, const State& x) {
   std::string s;
   for (std::size_t i = 0; i < x.size(); ++i)
     if (!std::isfinite(x[i]))
-      s += fmt::format("{}{} = {}", s.empty() ? "" : ", ", state_component_name(L, static_cast<int>(i)), x[i]);
+      s += fmt::format("{}{} = {}", s.empty() ? "" : ", ", component_name(L, i), x[i]);
   return s;
+}
+
+// The leading n entries of s (the state x of an augmented [x; vec(Phi)]),
+// copied into buf only when s is longer.
+const State& state_part(const State& s, std::size_t n, State& buf) {
+  if (s.size() == n) return s;
+  buf.assign(s.begin(), s.begin() + static_cast<std::ptrdiff_t>(n));
+  return buf;
 }
 
 constexpr const char* kCollapseHint =
@@ -119,6 +137,49 @@ std::vector<Boundary> watched_boundaries(const AeroelasticModel& model,
     if (r < static_cast<int>(bp.size())) out.push_back({j, bp[r], +1, r + 1});
   }
   return out;
+}
+
+// The monodromy's jump at a switch through boundary b at time t: with x
+// the augmented state [x; vec(Phi)] at the crossing and `regions` still the
+// old ones, Phi <- S Phi, S = I + (f+ - f-) grad_h^T / (grad_h^T f-),
+// grad_h = side e_{q_j} (integrator.hpp). S = I when the spring force is
+// continuous at the breakpoint; a grazing crossing with a force jump throws.
+void apply_saltation(const AeroelasticModel& model, const Boundary& b, double t,
+                     std::span<const int> regions, int input_segment, double shortest_period,
+                     State& x) {
+  const StateLayout& L = model.layout();
+  const int from = regions[static_cast<std::size_t>(b.spring)];
+  const SpringLaw& law = model.description().springs[static_cast<std::size_t>(b.spring)];
+  const double jump = law.force_jump(std::min(from, b.next_region));
+  if (jump == 0.0) return;
+  const auto n = static_cast<std::size_t>(L.size);
+  std::vector<int> to(regions.begin(), regions.end());
+  to[static_cast<std::size_t>(b.spring)] = b.next_region;
+  State f_minus(n), f_plus(n);
+  model.rhs(x.data(), f_minus.data(), t, regions, input_segment);
+  model.rhs(x.data(), f_plus.data(), t, to, input_segment);
+  const auto q = static_cast<std::size_t>(L.displacement + b.spring);
+  const auto v = static_cast<std::size_t>(L.velocity + b.spring);
+  const double normal_speed = b.side * f_minus[q];  // grad_h^T f-
+  const double accel = std::abs(f_minus[v]), accel_jump = std::abs(f_plus[v] - f_minus[v]);
+  if (!(std::abs(normal_speed) > 1e-8 * (accel + accel_jump) * shortest_period)) {
+    const char* name = dof_name(b.spring);
+    throw NumericalError(t, fmt::format(
+        "grazing crossing of the {} spring's breakpoint {:.9g}, where its force jumps by {:.6g}: "
+        "the speed across it ({}_velocity = {:.3g}) is too small for the saltation matrix of the "
+        "monodromy (grad_h^T f- ~ 0: the flow is not differentiable there); state: {}",
+        name, law.breakpoints()[static_cast<std::size_t>(std::min(from, b.next_region))], jump,
+        name, f_minus[q], describe_state(L, x)));
+  }
+  // S Phi = Phi + (f+ - f-) (side e_q^T Phi) / (side f-_q); f+ - f- is zero
+  // outside the velocity rows, so row q of Phi is read before it could change.
+  const auto N = static_cast<Eigen::Index>(n);
+  Eigen::Map<Eigen::MatrixXd> Phi(x.data() + n, N, N);
+  const Eigen::RowVectorXd row = Phi.row(static_cast<Eigen::Index>(q)) / f_minus[q];
+  for (std::size_t i = 0; i < n; ++i) {
+    const double df = f_plus[i] - f_minus[i];
+    if (df != 0.0) Phi.row(static_cast<Eigen::Index>(i)) += df * row;
+  }
 }
 
 // Earliest crossing time of any watched boundary inside (ta, tb] on the
@@ -230,7 +291,7 @@ std::optional<std::pair<double, const Boundary*>> first_crossing(
 template <class Stepper>
 ObserverAction report_peaks(const Stepper& stepper, const AeroelasticModel& model, double ta,
                             const State& xa, double tb, const State& xb,
-                            const PeakObserver& peaks, State& work) {
+                            const PeakObserver& peaks, State& work, State& view) {
   const StateLayout& L = model.layout();
   ObserverAction action = ObserverAction::kContinue;
   for (int j = 0; j < L.n_dof; ++j) {
@@ -251,7 +312,8 @@ ObserverAction report_peaks(const Stepper& stepper, const AeroelasticModel& mode
       te = 0.5 * (br.first + br.second);
     }
     stepper.calc_state(te, work);
-    if (peaks(j, te, work) == ObserverAction::kStop) action = ObserverAction::kStop;
+    const State& x = state_part(work, static_cast<std::size_t>(L.size), view);
+    if (peaks(j, te, x) == ObserverAction::kStop) action = ObserverAction::kStop;
   }
   return action;
 }
@@ -262,10 +324,43 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
                            const OutputSchedule& schedule, const SampleObserver& observer,
                            bool emit_initial, const std::atomic<bool>* cancel,
                            const PeakObserver& peaks) {
-  auto system = [&model, &run](const State& x, State& dxdt, double t) {
+  // The integrated vector: run.x itself, or [x; vec(Phi)] when the
+  // monodromy is tracked (written back to run.x / run.monodromy on every
+  // exit, exceptions included).
+  const bool track = run.track_monodromy;
+  const auto n = static_cast<std::size_t>(model.state_size());
+  State augmented;
+  if (track) {
+    augmented = run.x;
+    augmented.insert(augmented.end(), run.monodromy.begin(), run.monodromy.end());
+  }
+  State& cur = track ? augmented : run.x;
+  struct WriteBack {
+    RunState& run;
+    const State& cur;
+    bool track;
+    std::size_t n;
+    ~WriteBack() {
+      if (!track) return;
+      std::copy(cur.begin(), cur.begin() + static_cast<std::ptrdiff_t>(n), run.x.begin());
+      std::copy(cur.begin() + static_cast<std::ptrdiff_t>(n), cur.end(), run.monodromy.begin());
+    }
+  } write_back{run, cur, track, n};
+  Eigen::MatrixXd jac;
+  if (track) jac.resize(static_cast<Eigen::Index>(n), static_cast<Eigen::Index>(n));
+  auto system = [&model, &run, &jac, track, n](const State& x, State& dxdt, double t) {
     ++run.rhs_evaluations;
     model.rhs(x.data(), dxdt.data(), t, run.regions, run.input_segment);
+    if (track) {
+      // Phi' = Df(x) Phi.
+      const auto N = static_cast<Eigen::Index>(n);
+      model.jacobian(x.data(), t, run.regions, run.input_segment, jac);
+      Eigen::Map<const Eigen::MatrixXd> Phi(x.data() + n, N, N);
+      Eigen::Map<Eigen::MatrixXd> dPhi(dxdt.data() + n, N, N);
+      dPhi.noalias() = jac * Phi;
+    }
   };
+  State view;  // the state part handed to observers
   const auto input_breaks = model.gusts().breakpoints();
   run.input_segment = model.gusts().segment_of(run.time);
   const StateLayout& L = model.layout();
@@ -275,10 +370,10 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
                                                : default_initial_step(model);
   auto emit = [&](double t, const State& x) {
     ++run.samples;
-    return observer ? observer(t, x) : ObserverAction::kContinue;
+    return observer ? observer(t, state_part(x, n, view)) : ObserverAction::kContinue;
   };
 
-  if (emit_initial && emit(t0, run.x) == ObserverAction::kStop) {
+  if (emit_initial && emit(t0, cur) == ObserverAction::kStop) {
     result.reason = StopReason::kObserver;
     result.end_time = t0;
     return result;
@@ -288,8 +383,8 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     return result;
   }
 
-  stepper.initialize(run.x, t0, std::min(dt0, t_end - t0));
-  State sample(run.x.size()), work(run.x.size()), probe(run.x.size());
+  stepper.initialize(cur, t0, std::min(dt0, t_end - t0));
+  State sample(cur.size()), work(cur.size()), probe(cur.size());
   // A step longer than this (1/8 of the shortest uncoupled period) is split
   // when looking for switching points.
   const double shortest_period = 200.0 * default_initial_step(model);
@@ -312,7 +407,7 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     bool landing = false;
     if (std::isfinite(t_break) && stepper.current_time() + stepper.current_time_step() > t_break) {
       const double dt_b = t_break - stepper.current_time();
-      if (dt_b > 0) stepper.initialize(run.x, stepper.current_time(), dt_b);
+      if (dt_b > 0) stepper.initialize(cur, stepper.current_time(), dt_b);
       landing = true;
     }
     std::pair<double, double> step;
@@ -321,8 +416,8 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     } catch (const odeint::step_adjustment_error& e) {
       throw NumericalError(stepper.current_time(),
                            fmt::format("step-size control failed ({}); {}; state: {}; {}", e.what(),
-                                       describe_switching(L, boundaries, run.x),
-                                       describe_state(L, run.x), kCollapseHint));
+                                       describe_switching(L, boundaries, cur),
+                                       describe_state(L, cur), kCollapseHint));
     }
     ++run.steps;
     const double t_old = step.first, t_new = step.second;
@@ -331,7 +426,7 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
       throw NumericalError(t_old, fmt::format("non-finite state after the step to t = {:.9g} s: {}; "
                                               "state at the step start: {}",
                                               t_new, non_finite_components(L, xn),
-                                              describe_state(L, run.x)));
+                                              describe_state(L, cur)));
     }
     // Collapse: a step of a few round-offs of the time, or of the model's
     // shortest period near t = 0 (where round-off of t alone would allow
@@ -352,7 +447,7 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
       stepper.calc_state(t_check, sample);
       x_check = &sample;
     }
-    const auto event = first_crossing(stepper, L, boundaries, t_old, t_check, run.x, *x_check,
+    const auto event = first_crossing(stepper, L, boundaries, t_old, t_check, cur, *x_check,
                                       long_step, work, probe);
     const double t_seg = event ? event->first : t_new;
     const double t_stop = std::min(t_seg, t_end);
@@ -360,10 +455,10 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     if (peaks) {
       const double tp = std::min(t_seg, t_end);
       if (tp == t_new) {
-        peak_action = report_peaks(stepper, model, t_old, run.x, t_new, xn, peaks, work);
+        peak_action = report_peaks(stepper, model, t_old, cur, t_new, xn, peaks, work, view);
       } else {
         stepper.calc_state(tp, sample);
-        peak_action = report_peaks(stepper, model, t_old, run.x, tp, sample, peaks, work);
+        peak_action = report_peaks(stepper, model, t_old, cur, tp, sample, peaks, work, view);
       }
     }
 
@@ -394,9 +489,9 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
     // Reached the end time before any switch.
     if (t_seg >= t_end - t_eps) {
       if (t_new == t_end) {
-        run.x = xn;
+        cur = xn;
       } else {
-        stepper.calc_state(t_end, run.x);
+        stepper.calc_state(t_end, cur);
       }
       run.time = t_end;
       result.end_time = t_end;
@@ -407,8 +502,10 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
       // Switch: the state at the crossing starts a new smooth segment in
       // the next region; the stepper restarts there with the last step size.
       const Boundary& b = *event->second;
-      stepper.calc_state(event->first, run.x);
+      stepper.calc_state(event->first, cur);
       run.time = event->first;
+      if (track)
+        apply_saltation(model, b, run.time, run.regions, run.input_segment, shortest_period, cur);
       run.regions[b.spring] = b.next_region;
       ++run.switches;
       if (run.time - last_switch < chatter_dt) {
@@ -418,22 +515,22 @@ IntegrationResult run_loop(Stepper& stepper, const AeroelasticModel& model, RunS
               "state is trapped on a switching surface: the spring force jumps there and both "
               "sides push the state back onto it); state: {}",
               close_switches, run.time - last_switch, dof_name(b.spring), b.position,
-              describe_state(L, run.x)));
+              describe_state(L, cur)));
       } else {
         close_switches = 0;
       }
       last_switch = run.time;
       boundaries = watched_boundaries(model, run.regions);
-      stepper.initialize(run.x, run.time, std::max(dt, 1e-6 * dt0));
+      stepper.initialize(cur, run.time, std::max(dt, 1e-6 * dt0));
     } else {
-      run.x = xn;
+      cur = xn;
       run.time = t_new;
       if (std::isfinite(t_break) &&
           t_new >= t_break - 4 * std::numeric_limits<double>::epsilon() * std::abs(t_break)) {
         // Input switch: the next segment's formulas from here on.
         run.time = t_break;
         run.input_segment = model.gusts().segment_of(t_break);
-        stepper.initialize(run.x, run.time, std::max(dt, 1e-6 * dt0));
+        stepper.initialize(cur, run.time, std::max(dt, 1e-6 * dt0));
       }
     }
     if (action == ObserverAction::kStop) {
@@ -457,6 +554,8 @@ IntegrationResult integrate(const AeroelasticModel& model, RunState& run, double
                             const std::atomic<bool>* cancel, const PeakObserver& peaks) {
   AEROSECT_CHECK(static_cast<int>(run.x.size()) == model.state_size());
   AEROSECT_CHECK(schedule.every_step || schedule.interval > 0);
+  AEROSECT_CHECK(!run.track_monodromy ||
+                 run.monodromy.size() == run.x.size() * run.x.size());
   if (run.regions.empty()) run.regions = model.regions_of(run.x.data());
   const double atol = settings.absolute_tolerance, rtol = settings.relative_tolerance;
   switch (settings.stepper) {

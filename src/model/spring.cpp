@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <numbers>
 
 #include <boost/math/quadrature/gauss_kronrod.hpp>
@@ -132,6 +133,20 @@ double SpringLaw::tangent_stiffness(double x, int region) const {
 int SpringLaw::region_of(double x) const {
   return static_cast<int>(std::upper_bound(breakpoints_.begin(), breakpoints_.end(), x) -
                           breakpoints_.begin());
+}
+
+double SpringLaw::force_jump(int i) const {
+  AEROSECT_CHECK(i >= 0 && i < static_cast<int>(breakpoints_.size()));
+  const auto r = static_cast<std::size_t>(i);
+  const double x = breakpoints_[r];
+  // The polynomial terms are the same on both sides: only the linear pieces differ.
+  const double below = slopes_[r] * x + intercepts_[r];
+  const double above = slopes_[r + 1] * x + intercepts_[r + 1];
+  // Round-off of the two evaluations (a few ulps of their terms) is no jump.
+  const double scale = std::abs(slopes_[r] * x) + std::abs(intercepts_[r]) +
+                       std::abs(slopes_[r + 1] * x) + std::abs(intercepts_[r + 1]);
+  const double jump = above - below;
+  return std::abs(jump) <= 16 * std::numeric_limits<double>::epsilon() * scale ? 0.0 : jump;
 }
 
 double SpringLaw::gap_closed_stiffness() const {

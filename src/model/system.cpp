@@ -152,6 +152,21 @@ void AeroelasticModel::rhs(const double* x, double* dxdt, double t, std::span<co
   }
 }
 
+void AeroelasticModel::jacobian(const double* x, double /*t*/, std::span<const int> regions,
+                                int /*input_segment*/, Eigen::Ref<Eigen::MatrixXd> J) const {
+  AEROSECT_CHECK(J.rows() == layout_.size && J.cols() == layout_.size);
+  J = A_;
+  // Only the velocity rows of G_j are nonzero, and f_j depends on q_j alone.
+  const int n = layout_.n_dof;
+  const double* g = g_velocity_rows_.data();
+  for (int j : nonlinear_) {
+    const int c = layout_.displacement + j;
+    const double k = d_.springs[j].tangent_stiffness(x[c], regions[j]);
+    for (int i = 0; i < n; ++i) J(layout_.velocity + i, c) -= g[i] * k;
+    g += n;
+  }
+}
+
 Loads AeroelasticModel::loads(const double* x, const double* dxdt, double t,
                               int input_segment) const {
   const int n = layout_.n_dof;

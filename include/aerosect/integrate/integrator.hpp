@@ -21,6 +21,30 @@
 // reach it), the stored input segment advances there and the stepper
 // restarts, so no step straddles a kink or a jump of the input.
 //
+// Variational flow (monodromy). With RunState::track_monodromy set, the
+// stepper integrates the augmented state [x; vec(Phi)] (n + n^2 entries,
+// Phi column-major) with Phi' = Df(x(t)) Phi, Df = AeroelasticModel::
+// jacobian() in the stored regions; the error control covers both parts.
+// Every switching function, input switch time, velocity zero and sample
+// uses x alone, so the trajectory's events are those of the plain run (its
+// steps, and so its last digits, differ). At a spring switch through
+// h = side (q_j - breakpoint) = 0 at time t_s, Phi jumps by the saltation
+// matrix (di Bernardo et al., Piecewise-smooth Dynamical Systems):
+//   Phi <- S Phi,  S = I + (f+ - f-) grad_h^T / (grad_h^T f-),
+// f-/f+ the vector field at x(t_s) in the old/new region, grad_h = side e_q_j.
+// f+ - f- = -G_j (f_j(q; new) - f_j(q; old)) is nonzero only when the spring
+// force jumps at the breakpoint; freeplay, bilinear and table laws are
+// continuous there (SpringLaw::force_jump() == 0), so f+ = f- and S = I: the
+// crossing time still moves with x0, but a continuous field makes that move
+// invisible to first order. A `piecewise` law with a jump gets S. When such
+// a jump meets a grazing crossing, where the normal speed grad_h^T f- =
+// side q_j' is below 1e-8 of (|q_j''| + |jump of q_j''|) x the model's
+// shortest period, S is unbounded or the flow not differentiable there: the
+// run stops with a NumericalError naming the grazing instead of returning a
+// meaningless Phi. On return run.monodromy holds Phi(t_end, t_start) times
+// the matrix the caller put there (the identity gives the monodromy itself).
+// Sample and peak observers still receive the n-vector x only.
+//
 // The model is shared and const; everything that changes during a run is in
 // RunState, so independent runs can proceed on separate threads.
 
@@ -60,6 +84,9 @@ struct RunState {
   std::int64_t rhs_evaluations = 0;
   std::int64_t samples = 0;        // samples handed to the observer
   std::int64_t switches = 0;       // spring region changes (switching points crossed)
+  bool track_monodromy = false;    // integrate Phi' = Df(x(t)) Phi with the state (see above)
+  std::vector<double> monodromy;   // n*n, column-major; the caller sets it (identity to
+                                   // start); on return Phi(t_end, t_start) applied to it
 };
 
 enum class ObserverAction { kContinue, kStop };

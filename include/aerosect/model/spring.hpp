@@ -56,6 +56,11 @@ class SpringLaw {
   int region_of(double x) const;
 
   std::span<const double> breakpoints() const { return breakpoints_; }
+  // Jump of the force across breakpoint i (0-based):
+  // f(x_i; region i+1) - f(x_i; region i), in N/m or N m/m. Exactly 0 when
+  // the law is continuous there to round-off (freeplay, bilinear, table and
+  // continuous piecewise laws), so callers may test it against zero.
+  double force_jump(int i) const;
   int region_count() const { return static_cast<int>(slopes_.size()); }
   // True when f = k x exactly (goes into the linear state matrix).
   bool is_linear() const;

@@ -91,6 +91,18 @@ class AeroelasticModel {
   void rhs(const double* x, double* dxdt, double t, std::span<const int> regions,
            int input_segment = 0) const;
 
+  // State-space Jacobian of rhs() at x (n x n, n = state_size()), written
+  // into J:
+  //   Df = A - sum_j G_j f_j'(q_j; region_j) e_{q_j}^T
+  // over the nonlinear springs j, f_j' their tangent stiffness in the stored
+  // region (N/m or N m/rad per unit span), e_{q_j} the unit vector of
+  // displacement j; J(r, c) = d x'_r / d x_c (units of x_r / (s x_c)). The
+  // gust input enters rhs() additively (B_gust w_g(t)), so neither t nor the
+  // input segment changes Df; both are taken for symmetry with rhs(). At a
+  // breakpoint Df is one-sided: the stored region decides, as in rhs().
+  void jacobian(const double* x, double t, std::span<const int> regions, int input_segment,
+                Eigen::Ref<Eigen::MatrixXd> J) const;
+
   // Loads from a state and its derivative (accelerations are dxdt[velocity..]).
   Loads loads(const double* x, const double* dxdt, double t = 0, int input_segment = 0) const;
   const GustField& gusts() const { return d_.gusts; }

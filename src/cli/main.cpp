@@ -13,6 +13,7 @@
 #include <csignal>
 #include <chrono>
 #include <cmath>
+#include <numbers>
 #include <cstdlib>
 #include <cstdio>
 #include <cstdlib>
@@ -31,6 +32,8 @@
 #include <CLI/CLI.hpp>
 #include <fmt/format.h>
 
+#include "aerosect/analysis/branch_report.hpp"
+#include "aerosect/analysis/continuation.hpp"
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/flutter_report.hpp"
 #include "aerosect/analysis/gust_sweep.hpp"
@@ -330,6 +333,66 @@ int run_sweep_command(const Common& o, const std::string& output, const std::vec
   return 0;
 }
 
+struct OrbitsOptions {
+  std::string output, key, start = "auto", watch;
+  std::optional<double> from, to, start_amplitude;
+  int points = 200;
+};
+
+// The orbit branch: progress on a terminal; the first signal stops it and
+// the points so far are written (root attribute complete = 0).
+int run_orbits(const Common& o, const OrbitsOptions& oo) {
+  const aerosect::Case c = aerosect::load_case(o.case_path, o.overrides);
+  aerosect::BranchOptions bo;
+  bo.key = oo.key;
+  bo.from = oo.from;
+  bo.to = oo.to;
+  bo.max_points = oo.points;
+  if (oo.points < 2 || oo.points > 100000)
+    throw aerosect::InputError({"--points", 0, 0}, "--points", std::to_string(oo.points),
+                               "is out of range", "2 to 100000 points");
+  bo.start = oo.start == "hopf"        ? aerosect::BranchStart::kHopf
+             : oo.start == "march"      ? aerosect::BranchStart::kMarch
+             : oo.start == "describing" ? aerosect::BranchStart::kDescribing
+                                        : aerosect::BranchStart::kAuto;
+  if (oo.start_amplitude) {
+    if (!(*oo.start_amplitude > 0) || !std::isfinite(*oo.start_amplitude))
+      throw aerosect::InputError({"--start-amplitude", 0, 0}, "--start-amplitude",
+                                 fmt::format("{}", *oo.start_amplitude), "is not a positive amplitude",
+                                 "a positive number, degrees for pitch/flap, m for plunge");
+    bo.start_amplitude = *oo.start_amplitude;
+  }
+  if (!oo.watch.empty()) {
+    const int j = oo.watch == "plunge" ? 0 : oo.watch == "pitch" ? 1 : oo.watch == "flap" ? 2 : -1;
+    if (j < 0 || j >= c.model.section.dof)
+      throw aerosect::InputError({"--watch", 0, 0}, "--watch", oo.watch, "is not a DOF of this case",
+                                 c.model.section.dof == 3 ? "plunge, pitch or flap" : "plunge or pitch");
+    bo.orbit.watched_dof = j;
+  }
+  if (oo.start_amplitude) {
+    const int w = bo.orbit.watched_dof >= 0 ? bo.orbit.watched_dof
+                  : aerosect::orbit_watched_dof(aerosect::AeroelasticModel(c.model), -1);
+    if (w != 0) bo.start_amplitude *= std::numbers::pi / 180.0;
+  }
+  const bool tty = isatty(2);
+  const auto t0 = std::chrono::steady_clock::now();
+  auto progress = [&](const aerosect::BranchPoint& p, int n) {
+    if (!tty) return;
+    const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    std::fprintf(stderr, "\r  %d orbits, parameter %.6g, %s, %.1f s elapsed   ", n, p.parameter, p.orbit.stable ? "stable  " : "unstable", el);
+  };
+  const aerosect::Branch b = aerosect::continue_branch(c, bo, &g_cancel, progress);
+  if (tty) std::fprintf(stderr, "\n");
+  aerosect::write_branch_file(oo.output, c, b);
+  if (g_signal != 0) {
+    std::cerr << "aerosect: interrupted by signal " << static_cast<int>(g_signal) << "; the " << b.points.size()
+              << " orbits found so far are kept in " << oo.output << " (complete = 0)\n";
+    return signal_status();
+  }
+  print(o.json ? aerosect::branch_json(c, b, oo.output).dump(2) + "\n" : aerosect::branch_text(c, b, oo.output));
+  return 0;
+}
+
 // The plotting tool: $AEROSECT_PLOT, else tools/plot of the source tree
 // this binary was built from.
 std::string plot_tool() {
@@ -513,6 +576,26 @@ int main(int argc, char** argv) {
                     "LCO sweep airspeeds FROM:TO:N in m/s TAS (default: from the freeplay band and V_D)");
   study->add_flag("--no-plots", study_no_plots, "skip the figures (the report says so)");
 
+  Common orbits_opts;
+  OrbitsOptions orbits_o;
+  CLI::App* orbits = app.add_subcommand(
+      "orbits", "limit cycles solved by shooting and continued in a case key: stable and unstable "
+                "branches, Floquet multipliers, folds -> HDF5 branch file");
+  add_common(orbits, orbits_opts);
+  orbits->add_option("-o,--output", orbits_o.output, "HDF5 branch file")->required();
+  orbits->add_option("--key", orbits_o.key,
+                     "numeric case key to continue in (default flow.airspeed, or "
+                     "nondimensional.reduced_speed for a nondimensional case)");
+  orbits->add_option("--from", orbits_o.from, "parameter window start (default: a quarter of the case's value)");
+  orbits->add_option("--to", orbits_o.to, "parameter window end (default: four times the case's value)");
+  orbits->add_option("--start", orbits_o.start, "auto, hopf, march or describing")
+      ->check(CLI::IsMember({"auto", "hopf", "march", "describing"}))
+      ->capture_default_str();
+  orbits->add_option("--start-amplitude", orbits_o.start_amplitude,
+                     "hopf start: amplitude of the first orbit (degrees for pitch/flap, m for plunge)");
+  orbits->add_option("--points", orbits_o.points, "most orbits on the branch")->capture_default_str();
+  orbits->add_option("--watch", orbits_o.watch, "DOF whose maxima define the section (plunge, pitch, flap)");
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -522,6 +605,7 @@ int main(int argc, char** argv) {
   const int status = [&]() -> int {
     try {
       if (*check) return run_check(check_opts);
+      if (*orbits) return run_orbits(orbits_opts, orbits_o);
       if (*study)
         return run_study_command(study_opts, study_dir, study_jobs, study_points, study_speeds, study_no_plots);
       if (*sim) return run_simulate(sim_opts, output);

@@ -1,0 +1,220 @@
+#include "aerosect/analysis/branch_report.hpp"
+
+#include <cmath>
+#include <limits>
+#include <numbers>
+
+#include <fmt/format.h>
+
+#include "aerosect/analysis/report.hpp"
+#include "aerosect/analysis/simulate.hpp"
+#include "aerosect/io/hdf5_document.hpp"
+
+namespace aerosect {
+
+namespace {
+
+const char* const kDofNames[3] = {"plunge", "pitch", "flap"};
+const char* dof_units(int j) { return j == kPlunge ? "m" : "rad"; }
+
+bool complete(const Branch& b) { return !b.cancelled && !b.points.empty(); }
+
+// JSON has no infinity: null for a non-finite number.
+nlohmann::json num(double v) { return std::isfinite(v) ? nlohmann::json(v) : nlohmann::json(); }
+
+}  // namespace
+
+void write_branch_file(const std::string& path, const Case& c, const Branch& b) {
+  Hdf5Document doc(path);
+  RunMetadata meta = case_metadata(c, "orbit_branch");
+  meta.text_attributes.push_back({"parameter_key", b.key});
+  meta.text_attributes.push_back({"start", to_string(b.start)});
+  meta.text_attributes.push_back({"start_detail", b.start_detail});
+  meta.text_attributes.push_back({"stop_reason", b.stop_reason});
+  meta.text_attributes.push_back({"watched_dof", kDofNames[b.watched_dof]});
+  doc.metadata(meta);
+  doc.integer_attribute("", "complete", complete(b) ? 1 : 0);
+  if (b.hopf_parameter) doc.number_attribute("", "hopf_parameter", *b.hopf_parameter);
+  const std::size_t N = b.points.size();
+  doc.integer_attribute("", "points", static_cast<std::int64_t>(N));
+  if (N > 0) {
+    const int dof = c.model.section.dof;
+    std::vector<std::int32_t> idx(N);
+    for (std::size_t i = 0; i < N; ++i) idx[i] = static_cast<std::int32_t>(i);
+    doc.integer_axis("point", idx, "point number along the branch");
+    auto table = [&](const std::string& name, auto&& f, const std::string& units, const std::string& ln) {
+      std::vector<double> v(N);
+      for (std::size_t i = 0; i < N; ++i) v[i] = f(b.points[i]);
+      doc.dataset(name, {"point"}, v, units, ln);
+    };
+    table("parameter", [](const BranchPoint& p) { return p.parameter; }, "1",
+          "value of the continuation key " + b.key + " (case-file units)");
+    table("airspeed", [](const BranchPoint& p) { return p.airspeed; }, "m s-1", "true airspeed");
+    table("arclength", [](const BranchPoint& p) { return p.arclength; }, "1", "scaled arclength from the first point");
+    table("period", [](const BranchPoint& p) { return p.orbit.period; }, "s", "orbit period (the full period)");
+    table("frequency", [](const BranchPoint& p) { return p.orbit.frequency(); }, "Hz", "orbit frequency, 1/period");
+    table("stable", [](const BranchPoint& p) { return p.orbit.stable ? 1.0 : 0.0; }, "1",
+          "1: every nontrivial Floquet multiplier inside the unit circle, 0: unstable");
+    table("largest_multiplier_modulus", [](const BranchPoint& p) { return p.orbit.largest_nontrivial; }, "1",
+          "largest modulus of the nontrivial Floquet multipliers");
+    table("residual", [](const BranchPoint& p) { return p.orbit.residual; }, "1",
+          "scaled Newton residual of the shooting equations");
+    table("trivial_multiplier_error", [](const BranchPoint& p) { return p.orbit.trivial_multiplier_error; }, "1",
+          "distance of the multiplier nearest 1 from 1 (accuracy of the monodromy matrix)");
+    table("switches_per_period", [](const BranchPoint& p) { return static_cast<double>(p.orbit.switches); }, "1",
+          "spring breakpoints crossed per period");
+    table("peaks_per_period", [](const BranchPoint& p) { return static_cast<double>(p.orbit.peaks_per_period); }, "1",
+          "maxima of the watched DOF per period (2: period-2 orbit)");
+    table("grazing_margin", [](const BranchPoint& p) {
+            return std::isfinite(p.orbit.grazing_margin) ? p.orbit.grazing_margin
+                                                          : std::numeric_limits<double>::quiet_NaN();
+          }, "1", "closest approach of a spring DOF's extremum to a breakpoint over its amplitude (NaN: no breakpoint)");
+    const int nh = b.points.front().orbit.content[0].harmonics.empty()
+                       ? 0 : static_cast<int>(b.points.front().orbit.content[b.watched_dof].harmonics.size());
+    if (nh > 0) {
+      std::vector<std::int32_t> h(static_cast<std::size_t>(nh));
+      for (int k = 0; k < nh; ++k) h[static_cast<std::size_t>(k)] = k + 1;
+      doc.integer_axis("harmonic", h, "harmonic number k of the orbit frequency");
+    }
+    for (int j = 0; j < dof; ++j) {
+      const std::string n = kDofNames[j], u = dof_units(j);
+      table(n + "_amplitude", [j](const BranchPoint& p) { return p.orbit.dof[j].amplitude; }, u,
+            n + " half peak-to-peak amplitude over one period");
+      table(n + "_max", [j](const BranchPoint& p) { return p.orbit.dof[j].max; }, u, n + " largest value");
+      table(n + "_min", [j](const BranchPoint& p) { return p.orbit.dof[j].min; }, u, n + " smallest value");
+      table(n + "_mean", [j](const BranchPoint& p) { return p.orbit.content[j].mean; }, u, n + " mean over one period");
+      if (nh > 0) {
+        std::vector<double> v(N * static_cast<std::size_t>(nh));
+        for (std::size_t i = 0; i < N; ++i)
+          for (int k = 0; k < nh; ++k)
+            v[i * static_cast<std::size_t>(nh) + static_cast<std::size_t>(k)] =
+                b.points[i].orbit.content[j].harmonics[static_cast<std::size_t>(k)];
+        doc.dataset(n + "_harmonics", {"point", "harmonic"}, v, u,
+                    n + " amplitude of harmonic k over one period (DFT of N samples)");
+      }
+    }
+    // Floquet multipliers (every one, the trivial included), by decreasing modulus.
+    const std::size_t M = b.points.front().orbit.multipliers.size();
+    std::vector<std::int32_t> mi(M);
+    for (std::size_t k = 0; k < M; ++k) mi[k] = static_cast<std::int32_t>(k + 1);
+    doc.integer_axis("multiplier", mi, "Floquet multiplier number, by decreasing modulus");
+    std::vector<double> re(N * M, std::numeric_limits<double>::quiet_NaN()), im = re;
+    for (std::size_t i = 0; i < N; ++i)
+      for (std::size_t k = 0; k < M && k < b.points[i].orbit.multipliers.size(); ++k) {
+        re[i * M + k] = b.points[i].orbit.multipliers[k].real();
+        im[i * M + k] = b.points[i].orbit.multipliers[k].imag();
+      }
+    doc.dataset("multipliers_real", {"point", "multiplier"}, re, "1", "real part of the Floquet multipliers");
+    doc.dataset("multipliers_imag", {"point", "multiplier"}, im, "1", "imaginary part of the Floquet multipliers");
+    // The state on the section (restart data).
+    const std::size_t S = b.points.front().orbit.x0.size();
+    std::vector<std::int32_t> si(S);
+    std::string names;
+    for (std::size_t k = 0; k < S; ++k) si[k] = static_cast<std::int32_t>(k);
+    doc.integer_axis("state", si, "state component number");
+    std::vector<double> xs(N * S);
+    for (std::size_t i = 0; i < N; ++i)
+      for (std::size_t k = 0; k < S; ++k) xs[i * S + k] = b.points[i].orbit.x0[k];
+    doc.dataset("state_on_section", {"point", "state"}, xs, "1",
+                "state at the section point (watched DOF at a maximum, its velocity zero); SI units "
+                "per component (m, rad, m s-1, rad s-1, lag states m s-1)");
+  }
+  // Bifurcations.
+  const std::size_t B = b.bifurcations.size();
+  doc.integer_attribute("", "bifurcations", static_cast<std::int64_t>(B));
+  if (B > 0) {
+    std::vector<std::int32_t> bi(B);
+    for (std::size_t k = 0; k < B; ++k) bi[k] = static_cast<std::int32_t>(k + 1);
+    doc.integer_axis("bifurcation", bi, "bifurcation number along the branch");
+    auto table = [&](const std::string& name, auto&& f, const std::string& units, const std::string& ln) {
+      std::vector<double> v(B);
+      for (std::size_t k = 0; k < B; ++k) v[k] = f(b.bifurcations[k]);
+      doc.dataset(name, {"bifurcation"}, v, units, ln);
+    };
+    table("bifurcation_kind", [](const Bifurcation& f) { return static_cast<double>(f.kind); }, "1",
+          "1 fold, 2 period doubling, 3 torus (Neimark-Sacker), 4 branch point");
+    table("bifurcation_parameter", [](const Bifurcation& f) { return f.parameter; }, "1",
+          "located value of the continuation key");
+    table("bifurcation_amplitude", [](const Bifurcation& f) { return f.amplitude; },
+          dof_units(b.watched_dof), "watched DOF amplitude there (interpolated)");
+    table("bifurcation_period", [](const Bifurcation& f) { return f.period; }, "s", "period there (interpolated)");
+    table("bifurcation_after_point", [](const Bifurcation& f) { return static_cast<double>(f.after); }, "1",
+          "located between this point and the next");
+  }
+  doc.commit();
+}
+
+nlohmann::json branch_json(const Case& c, const Branch& b, const std::string& output_path) {
+  nlohmann::json j = report_header(c, "orbits");
+  j["output"] = output_path;
+  j["parameter_key"] = b.key;
+  j["start"] = to_string(b.start);
+  j["start_detail"] = b.start_detail;
+  j["hopf_parameter"] = b.hopf_parameter ? nlohmann::json(*b.hopf_parameter) : nlohmann::json();
+  j["stop_reason"] = b.stop_reason;
+  j["complete"] = complete(b);
+  j["watched_dof"] = kDofNames[b.watched_dof];
+  j["points"] = nlohmann::json::array();
+  for (const auto& p : b.points) {
+    const Orbit& o = p.orbit;
+    nlohmann::json q;
+    q["parameter"] = p.parameter;
+    q["airspeed_m_s"] = p.airspeed;
+    q["period_s"] = o.period;
+    q["frequency_hz"] = o.frequency();
+    q["stable"] = o.stable;
+    q["largest_multiplier_modulus"] = o.largest_nontrivial;
+    q["residual"] = o.residual;
+    q["trivial_multiplier_error"] = o.trivial_multiplier_error;
+    q["switches_per_period"] = o.switches;
+    q["peaks_per_period"] = o.peaks_per_period;
+    q["grazing_margin"] = num(o.grazing_margin);
+    for (int k = 0; k < c.model.section.dof; ++k) {
+      const std::string n = kDofNames[k];
+      q["amplitude"][n] = o.dof[k].amplitude;
+      q["max"][n] = o.dof[k].max;
+      q["min"][n] = o.dof[k].min;
+      q["mean"][n] = o.content[k].mean;
+      q["harmonics"][n] = o.content[k].harmonics;
+    }
+    q["multipliers"] = nlohmann::json::array();
+    for (const auto& mu : o.multipliers) q["multipliers"].push_back({mu.real(), mu.imag()});
+    q["state_on_section"] = o.x0;
+    j["points"].push_back(q);
+  }
+  j["bifurcations"] = nlohmann::json::array();
+  for (const auto& f : b.bifurcations)
+    j["bifurcations"].push_back({{"kind", to_string(f.kind)}, {"parameter", f.parameter},
+                                 {"amplitude", f.amplitude}, {"period_s", f.period}, {"after_point", f.after}});
+  return j;
+}
+
+std::string branch_text(const Case& c, const Branch& b, const std::string& output_path) {
+  const double deg = 180.0 / std::numbers::pi;
+  const int w = b.watched_dof;
+  const double unit = w == kPlunge ? 1.0 : deg;
+  const char* uname = w == kPlunge ? "m" : "deg";
+  std::string t = fmt::format("aerosect orbits: {}\n", c.path);
+  if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
+  t += fmt::format("  continuation in {}; start: {}\n", b.key, b.start_detail);
+  if (b.hopf_parameter) t += fmt::format("  linear flutter (Hopf) point at {:.9g}\n", *b.hopf_parameter);
+  t += fmt::format("\n  {:>14} {:>14} {:>12} {:>10} {:>10} {:>9} {:>9}\n", b.key.substr(b.key.rfind('.') + 1),
+                   fmt::format("{} amp ({})", kDofNames[w], uname), "freq (Hz)", "stable", "max |mu|",
+                   "switches", "residual");
+  for (const auto& p : b.points)
+    t += fmt::format("  {:>14.8g} {:>14.6g} {:>12.6g} {:>10} {:>10.6f} {:>9} {:>9.2g}\n", p.parameter,
+                     p.orbit.dof[w].amplitude * unit, p.orbit.frequency(), p.orbit.stable ? "yes" : "no",
+                     p.orbit.largest_nontrivial, p.orbit.switches, p.orbit.residual);
+  if (!b.bifurcations.empty()) t += "\n  bifurcations:\n";
+  for (const auto& f : b.bifurcations)
+    t += fmt::format("    {:<16} at {:.9g}, amplitude {:.6g} {}\n", to_string(f.kind), f.parameter,
+                     f.amplitude * unit, uname);
+  t += fmt::format("\n  {} points; {}{}\n", b.points.size(), b.cancelled ? "interrupted; " : "", b.stop_reason);
+  if (!output_path.empty()) t += fmt::format("  written to {}\n", output_path);
+  t += "\n";
+  t += kSafetyCaution;
+  t += "\n";
+  return t;
+}
+
+}  // namespace aerosect

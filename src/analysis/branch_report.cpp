@@ -132,7 +132,7 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b) 
       doc.dataset(name, {"bifurcation"}, v, units, ln);
     };
     table("bifurcation_kind", [](const Bifurcation& f) { return static_cast<double>(f.kind); }, "1",
-          "1 fold, 2 period doubling, 3 torus (Neimark-Sacker), 4 branch point");
+          "1 fold, 2 period doubling, 3 torus (Neimark-Sacker), 4 branch point, 5 grazing (branch end)");
     table("bifurcation_parameter", [](const Bifurcation& f) { return f.parameter; }, "1",
           "located value of the continuation key");
     table("bifurcation_amplitude", [](const Bifurcation& f) { return f.amplitude; },

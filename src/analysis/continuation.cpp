@@ -33,6 +33,7 @@ const char* to_string(BifurcationKind k) {
     case BifurcationKind::kPeriodDoubling: return "period-doubling";
     case BifurcationKind::kTorus: return "torus";
     case BifurcationKind::kBranchPoint: return "branch-point";
+    case BifurcationKind::kGrazing: return "grazing";
   }
   return "?";
 }
@@ -323,6 +324,8 @@ struct Window {
 struct Trace {
   std::vector<BranchPoint> points;
   std::string stop;
+  std::string grazing;     // set when the trace ended at a grazing point
+  double grazing_at = 0;   // parameter of the last orbit before it
 };
 
 // Continues from a converged start along +t0 until a stop condition.
@@ -374,6 +377,20 @@ Trace run_direction(Context& ctx, const Layout& l, const Corrected& start, Eigen
       return tr;
     }
     const double amp = p.orbit.dof[l.watched].amplitude;
+    // The number of switches per period changes only where the orbit
+    // touches a breakpoint with zero normal velocity: a grazing point lies
+    // between the two orbits. Beyond it the orbit lives inside one region
+    // (for freeplay: the linear motion inside the gap, a whole family at one
+    // parameter value); the branch ends there.
+    const std::int64_t prev_switches = tr.points.empty() ? start.orbit.switches : tr.points.back().orbit.switches;
+    if (p.orbit.switches != prev_switches) {
+      tr.grazing = fmt::format("grazing: the orbit touches a spring breakpoint between {:.9g} and {:.9g} "
+                               "(switches per period {} -> {})", y.lambda, p.parameter, prev_switches,
+                               p.orbit.switches);
+      tr.grazing_at = y.lambda;
+      tr.stop = tr.grazing;
+      return tr;
+    }
     tr.points.push_back(std::move(p));
     if (accepted) accepted(tr.points.back());
     if (amp > max_amplitude) {
@@ -681,10 +698,11 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
   };
   if (progress) progress(p0, count);
   const int budget = std::max(1, o.max_points - 1);
+  std::vector<const Trace*> grazing_ends;
+  Trace down, up, one;
   if (both_ways) {
-    Trace down = run_direction(ctx, l, first, -t0, S, win, o, max_amp, min_amp, budget / 2, accepted);
+    down = run_direction(ctx, l, first, -t0, S, win, o, max_amp, min_amp, budget / 2, accepted);
     if (down.stop == "cancelled") br.cancelled = true;
-    Trace up;
     if (!br.cancelled) {
       up = run_direction(ctx, l, first, t0, S, win, o, max_amp, min_amp,
                          budget - static_cast<int>(down.points.size()), accepted);
@@ -705,14 +723,29 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
       br.points.push_back(std::move(q));
     }
     br.stop_reason = "low end: " + down.stop + "; high end: " + (up.stop.empty() ? "not run" : up.stop);
+    grazing_ends = {&down, &up};
   } else {
-    Trace tr = run_direction(ctx, l, first, t0, S, win, o, max_amp, min_amp, budget, accepted);
-    br.cancelled = tr.stop == "cancelled";
+    one = run_direction(ctx, l, first, t0, S, win, o, max_amp, min_amp, budget, accepted);
+    br.cancelled = one.stop == "cancelled";
     br.points.push_back(p0);
-    for (auto& q : tr.points) br.points.push_back(std::move(q));
-    br.stop_reason = tr.stop;
+    for (auto& q : one.points) br.points.push_back(std::move(q));
+    br.stop_reason = one.stop;
+    grazing_ends = {&one};
   }
   br.bifurcations = locate_bifurcations(br.points, w);
+  // Grazing ends: at the first or last point.
+  for (const Trace* tr : grazing_ends) {
+    if (tr->grazing.empty() || br.points.empty()) continue;
+    const bool low_end = tr == grazing_ends[0] && both_ways;
+    const BranchPoint& p = low_end ? br.points.front() : br.points.back();
+    Bifurcation g;
+    g.kind = BifurcationKind::kGrazing;
+    g.after = low_end ? -1 : static_cast<int>(br.points.size()) - 1;
+    g.parameter = p.parameter;
+    g.amplitude = p.orbit.dof[w].amplitude;
+    g.period = p.orbit.period;
+    br.bifurcations.push_back(g);
+  }
   return br;
 }
 

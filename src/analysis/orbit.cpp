@@ -81,22 +81,17 @@ Flow plain_flow(const AeroelasticModel& model, const std::vector<double>& x0, do
 
 }  // namespace
 
-Flow orbit_flow(const AeroelasticModel& model, const std::vector<double>& x0, double period,
-                const IntegratorSettings& settings, bool monodromy,
-                const std::atomic<bool>* cancel) {
-  AEROSECT_CHECK(period > 0 && std::isfinite(period));
-  Flow out = plain_flow(model, x0, period, settings, true, cancel);
-  if (!monodromy) return out;
-  // Monodromy by central differences of the flow (a stand-in for the
-  // variational equations): column i = (phi(x0 + h e_i) - phi(x0 - h e_i)) / 2h.
+Eigen::MatrixXd finite_difference_monodromy(const AeroelasticModel& model,
+                                            const std::vector<double>& x0, double period,
+                                            const IntegratorSettings& settings,
+                                            const std::atomic<bool>* cancel) {
   const int n = model.state_size();
   const Eigen::VectorXd w = state_weights(model);
   double scale = 0;
   for (int i = 0; i < n; ++i) scale = std::max(scale, std::abs(w(i) * x0[static_cast<std::size_t>(i)]));
   if (!(scale > 0)) scale = 1e-3;
-  out.monodromy = Eigen::MatrixXd::Identity(n, n);
-  const std::vector<int> act = active_components(model);
-  for (int i : act) {
+  Eigen::MatrixXd phi = Eigen::MatrixXd::Identity(n, n);
+  for (int i : active_components(model)) {
     const double h = 1e-6 * scale / w(i);
     std::vector<double> xp = x0, xm = x0;
     xp[static_cast<std::size_t>(i)] += h;
@@ -104,8 +99,17 @@ Flow orbit_flow(const AeroelasticModel& model, const std::vector<double>& x0, do
     const Flow fp = plain_flow(model, xp, period, settings, false, cancel);
     const Flow fm = plain_flow(model, xm, period, settings, false, cancel);
     for (int k = 0; k < n; ++k)
-      out.monodromy(k, i) = (fp.x[static_cast<std::size_t>(k)] - fm.x[static_cast<std::size_t>(k)]) / (2 * h);
+      phi(k, i) = (fp.x[static_cast<std::size_t>(k)] - fm.x[static_cast<std::size_t>(k)]) / (2 * h);
   }
+  return phi;
+}
+
+Flow orbit_flow(const AeroelasticModel& model, const std::vector<double>& x0, double period,
+                const IntegratorSettings& settings, bool monodromy,
+                const std::atomic<bool>* cancel) {
+  AEROSECT_CHECK(period > 0 && std::isfinite(period));
+  Flow out = plain_flow(model, x0, period, settings, true, cancel);
+  if (monodromy) out.monodromy = finite_difference_monodromy(model, x0, period, settings, cancel);
   return out;
 }
 

@@ -25,7 +25,13 @@
 // circle without a fold; period doubling where a real negative multiplier
 // crosses -1; a torus (Neimark-Sacker) bifurcation where a complex pair
 // crosses the unit circle (located by linear interpolation of the largest
-// modulus of that kind).
+// modulus of that kind). A change of the number of switches per period
+// between two orbits means a grazing point lies between them (an extremum
+// of a spring DOF passes a breakpoint with zero normal velocity; the
+// return map is not differentiable there): that end of the branch stops
+// at the last orbit before it, recorded as a grazing bifurcation (beyond a
+// freeplay branch's grazing point lies the linear motion inside the gap, a
+// vertical family of orbits at the gap-open flutter speed).
 //
 // Starts:
 //   hopf       the linear system's flutter (Hopf) point in lambda, from the
@@ -96,12 +102,13 @@ struct BranchPoint {
   Orbit orbit;
 };
 
-enum class BifurcationKind { kFold = 1, kPeriodDoubling = 2, kTorus = 3, kBranchPoint = 4 };
+enum class BifurcationKind { kFold = 1, kPeriodDoubling = 2, kTorus = 3, kBranchPoint = 4, kGrazing = 5 };
 const char* to_string(BifurcationKind k);
 
 struct Bifurcation {
   BifurcationKind kind = BifurcationKind::kFold;
-  int after = 0;             // between points after and after + 1
+  int after = 0;             // between points after and after + 1 (grazing: the end
+                             // point of the branch it lies beyond; -1 before the first)
   double parameter = 0;      // located lambda
   double amplitude = 0;      // watched DOF amplitude there (interpolated)
   double period = 0;         // s (interpolated)

@@ -201,5 +201,15 @@ if os.path.exists(out4):
         check(int(f.attrs["complete"]) == 0, "SIGINT: complete = 0")
         check(int(f.attrs["points"]) >= 1, "SIGINT: the orbits found so far are kept")
 
+# --- 5. Bad options: exit 2, the option and what is allowed named ---------
+for args, key in ((["--key", "flow.no_such_key"], "flow.no_such_key"),
+                  (["--start-amplitude", "-1"], "--start-amplitude"),
+                  (["--points", "1"], "--points"),
+                  (["--from", "3", "--to", "3"], "--from/--to")):
+    r = run(["orbits", case, "-o", os.path.join(tmp, "bad.h5")] + args)
+    check(r.returncode == 2 and key in r.stderr and "allowed" in r.stderr,
+          f"orbits {' '.join(args)}: exit 2 naming {key} ({r.returncode}: {r.stderr.strip()[:160]})")
+    check(not os.path.exists(os.path.join(tmp, "bad.h5")), f"orbits {' '.join(args)}: no file written")
+
 print(f"\n{len(failures)} failures")
 sys.exit(1 if failures else 0)

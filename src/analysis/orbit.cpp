@@ -56,13 +56,21 @@ std::vector<int> active_components(const AeroelasticModel& model) {
   return a;
 }
 
-// Plain flow phi_T(x0): end state, end regions, switches, extrema.
+// The flow phi_T(x0): end state, end regions, switches, extrema; with
+// `monodromy` the variational equations ride along (integrator.hpp).
 Flow plain_flow(const AeroelasticModel& model, const std::vector<double>& x0, double period,
-                const IntegratorSettings& settings, bool extrema, const std::atomic<bool>* cancel) {
+                const IntegratorSettings& settings, bool extrema, const std::atomic<bool>* cancel,
+                bool monodromy = false) {
   const StateLayout& L = model.layout();
+  const int n = L.size;
   RunState run;
   run.x = x0;
   run.regions = model.regions_of(x0.data());
+  if (monodromy) {
+    run.track_monodromy = true;
+    run.monodromy.assign(static_cast<std::size_t>(n) * static_cast<std::size_t>(n), 0.0);
+    for (int i = 0; i < n; ++i) run.monodromy[static_cast<std::size_t>(i) * static_cast<std::size_t>(n + 1)] = 1.0;
+  }
   Flow out;
   PeakObserver peaks;
   if (extrema)
@@ -76,6 +84,7 @@ Flow plain_flow(const AeroelasticModel& model, const std::vector<double>& x0, do
   out.x = std::move(run.x);
   out.regions = std::move(run.regions);
   out.switches = run.switches;
+  if (monodromy) out.monodromy = Eigen::Map<const Eigen::MatrixXd>(run.monodromy.data(), n, n);
   return out;
 }
 
@@ -108,9 +117,7 @@ Flow orbit_flow(const AeroelasticModel& model, const std::vector<double>& x0, do
                 const IntegratorSettings& settings, bool monodromy,
                 const std::atomic<bool>* cancel) {
   AEROSECT_CHECK(period > 0 && std::isfinite(period));
-  Flow out = plain_flow(model, x0, period, settings, true, cancel);
-  if (monodromy) out.monodromy = finite_difference_monodromy(model, x0, period, settings, cancel);
-  return out;
+  return plain_flow(model, x0, period, settings, true, cancel, monodromy);
 }
 
 void describe_orbit(const AeroelasticModel& model, Orbit& o, const Flow& flow,

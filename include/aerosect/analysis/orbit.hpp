@@ -104,7 +104,8 @@ int orbit_watched_dof(const AeroelasticModel& model, int requested);
 // Per-component weights of the scaled norms (see above).
 Eigen::VectorXd state_weights(const AeroelasticModel& model);
 
-// The flow over one period from x0, with the monodromy when asked.
+// The flow over one period from x0, with the monodromy when asked (the
+// variational equations integrated with the state, integrator.hpp).
 struct Flow {
   std::vector<double> x;          // phi_T(x0)
   std::vector<int> regions;       // spring regions at T

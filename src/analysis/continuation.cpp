@@ -557,7 +557,7 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
                                     c.simulation.steady_lag_states);
     const double pitch_period = 2 * std::numbers::pi / pitch_frequency(c.model.section);
     const double duration = std::max(c.simulation.duration, 400.0 * pitch_period);
-    const auto seed = seed_from_time_march(m, x0, duration, o.orbit.integrator, w, cancel);
+    const auto seed = seed_from_time_march(m, x0, duration, c.simulation.integrator, w, cancel);
     if (!seed) {
       if (o.start == BranchStart::kMarch || (cancel && cancel->load())) {
         br.cancelled = cancel && cancel->load();

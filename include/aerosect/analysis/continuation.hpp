@@ -41,7 +41,8 @@
 //              branch runs to larger amplitudes (smooth laws: cubic,
 //              polynomial);
 //   march      the case marched in time from its initial state at its own
-//              lambda until the LCO tracker sees a periodic cycle (lco.hpp);
+//              lambda (at the case's own tolerances: it only seeds Newton)
+//              until the LCO tracker sees a periodic cycle (lco.hpp);
 //              the branch runs both ways from there;
 //   describing the describing-function prediction (describing_function.hpp)
 //              at the case's airspeed: its orbit nearest in speed, solved at

@@ -4,6 +4,7 @@
 // Prints one JSON object. Timing is wall-clock over repeated work; compare
 // figures measured in one run only.
 
+#include <algorithm>
 #include <chrono>
 #include <cstdint>
 #include <cstdio>
@@ -14,6 +15,8 @@
 
 #include <nlohmann/json.hpp>
 
+#include "aerosect/analysis/continuation.hpp"
+#include "aerosect/analysis/orbit.hpp"
 #include "aerosect/integrate/integrator.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/model/system.hpp"
@@ -69,9 +72,56 @@ int run_like_peer(const char* path, int repeats) {
   return 0;
 }
 
+// Orbits (issue: limit cycles solved): the branch of a case from a
+// time-marched start (--orbits CASE POINTS), timed in-process with its
+// CPU-independent wall clock, and one orbit solved again from a nearby seed
+// (the branch's middle orbit, state and period perturbed by 1e-4 relative):
+// minimum over 10 solves. Prints one JSON object.
+int orbits_bench(const char* path, int points) {
+  using clock = std::chrono::steady_clock;
+  const aerosect::Case c = aerosect::load_case(path, {"flow.airspeed=25"});
+  aerosect::BranchOptions o;
+  o.from = 10;
+  o.to = 90;
+  o.start = aerosect::BranchStart::kMarch;
+  o.max_points = points;
+  const auto t0 = clock::now();
+  const aerosect::Branch b = aerosect::continue_branch(c, o);
+  const double branch_s = std::chrono::duration<double>(clock::now() - t0).count();
+  nlohmann::json j;
+  j["branch_seconds"] = branch_s;
+  j["branch_orbits"] = b.points.size();
+  j["stop_reason"] = b.stop_reason;
+  if (!b.points.empty()) {
+    const aerosect::BranchPoint& p = b.points[b.points.size() / 2];
+    const aerosect::ParameterFamily fam = aerosect::parameter_family(c, "");
+    const aerosect::AeroelasticModel model(fam.model_at(p.parameter));
+    aerosect::OrbitSeed seed{p.orbit.x0, p.orbit.period * (1 + 1e-4)};
+    for (double& v : seed.x0) v *= 1 + 1e-4;
+    double best = 1e300;
+    int iterations = 0;
+    bool converged = false;
+    for (int r = 0; r < 10; ++r) {
+      const auto t1 = clock::now();
+      const aerosect::Orbit orb = aerosect::solve_orbit(model, seed);
+      best = std::min(best, std::chrono::duration<double>(clock::now() - t1).count());
+      iterations = orb.iterations;
+      converged = orb.converged;
+    }
+    j["one_orbit_seconds"] = best;
+    j["one_orbit_newton_iterations"] = iterations;
+    j["one_orbit_converged"] = converged;
+  }
+  std::printf("%s\n", j.dump().c_str());
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
+  if (argc >= 3 && std::string(argv[1]) == "--orbits") {
+    return orbits_bench(argv[2], argc >= 4 ? std::atoi(argv[3]) : 100);
+  }
   if (argc >= 3 && std::string(argv[1]) == "--run") {
     return run_like_peer(argv[2], argc >= 4 ? std::atoi(argv[3]) : 5);
   }

@@ -505,9 +505,20 @@ std::vector<Bifurcation> locate_bifurcations(const std::vector<BranchPoint>& pts
       const double u = (1.0 - ma) / (mb - ma);
       return std::isfinite(u) ? std::clamp(u, 0.0, 1.0) : 0.5;
     };
-    if (ca.pos != cb.pos && !fold) out.push_back(at(cross(ca.mpos, cb.mpos), BifurcationKind::kBranchPoint));
-    if (ca.neg != cb.neg) out.push_back(at(cross(ca.mneg, cb.mneg), BifurcationKind::kPeriodDoubling));
-    if (ca.cplx != cb.cplx) out.push_back(at(cross(ca.mcplx, cb.mcplx), BifurcationKind::kTorus));
+    // One kind's count changes and its largest modulus crosses 1. When
+    // several kinds change at once (two real multipliers meeting and
+    // turning complex between the points) the step is too coarse to say
+    // which crossed: nothing is reported for that interval.
+    const int kinds_changed = (ca.pos != cb.pos) + (ca.neg != cb.neg) + (ca.cplx != cb.cplx);
+    auto crossed = [kinds_changed](int na, int nb, double ma, double mb) {
+      return kinds_changed == 1 && na != nb && (ma - 1) * (mb - 1) < 0;
+    };
+    if (crossed(ca.pos, cb.pos, ca.mpos, cb.mpos) && !fold)
+      out.push_back(at(cross(ca.mpos, cb.mpos), BifurcationKind::kBranchPoint));
+    if (crossed(ca.neg, cb.neg, ca.mneg, cb.mneg))
+      out.push_back(at(cross(ca.mneg, cb.mneg), BifurcationKind::kPeriodDoubling));
+    if (crossed(ca.cplx, cb.cplx, ca.mcplx, cb.mcplx))
+      out.push_back(at(cross(ca.mcplx, cb.mcplx), BifurcationKind::kTorus));
   }
   return out;
 }
@@ -517,8 +528,8 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
   const ParameterFamily fam = parameter_family(c, o.key);
   Branch br;
   br.key = fam.key;
-  Window win{std::min(o.from.value_or(fam.value / 4), o.to.value_or(4 * fam.value)),
-             std::max(o.from.value_or(fam.value / 4), o.to.value_or(4 * fam.value))};
+  Window win{std::min(o.from.value_or(fam.value / 10), o.to.value_or(4 * fam.value)),
+             std::max(o.from.value_or(fam.value / 10), o.to.value_or(4 * fam.value))};
   if (!(win.hi > win.lo))
     throw InputError({"--from/--to", 0, 0}, "--from/--to", fmt::format("{}..{}", win.lo, win.hi),
                      "is an empty parameter window", "two different values of the key, e.g. --from 40 --to 90");
@@ -598,8 +609,9 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
     for (int j = 0; j < m.n_dof(); ++j) k(j) = c.model.springs[j].nominal_stiffness();
     k(p.spring) = best->equivalent_stiffness;
     const OrbitSeed seed = seed_from_harmonic(m, k, p.spring, best->amplitude, best->frequency);
-    br.start_detail = fmt::format("describing-function orbit at {} = {:.9g} (amplitude {:.6g})", fam.key,
-                                  lambda, best->amplitude);
+    br.start_detail = fmt::format("describing-function orbit at {} = {:.9g} ({} amplitude {:.6g} {})",
+                                  fam.key, lambda, p.spring == kPlunge ? "plunge" : p.spring == kPitch ? "pitch" : "flap",
+                                  best->amplitude, p.spring == kPlunge ? "m" : "rad");
     first = fixed_lambda(seed, lambda);
     r0(l.m + 1) = 1.0;
   }

@@ -586,7 +586,7 @@ int main(int argc, char** argv) {
   orbits->add_option("--key", orbits_o.key,
                      "numeric case key to continue in (default flow.airspeed, or "
                      "nondimensional.reduced_speed for a nondimensional case)");
-  orbits->add_option("--from", orbits_o.from, "parameter window start (default: a quarter of the case's value)");
+  orbits->add_option("--from", orbits_o.from, "parameter window start (default: a tenth of the case's value)");
   orbits->add_option("--to", orbits_o.to, "parameter window end (default: four times the case's value)");
   orbits->add_option("--start", orbits_o.start, "auto, hopf, march or describing")
       ->check(CLI::IsMember({"auto", "hopf", "march", "describing"}))

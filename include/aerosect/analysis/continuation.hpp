@@ -25,7 +25,9 @@
 // circle without a fold; period doubling where a real negative multiplier
 // crosses -1; a torus (Neimark-Sacker) bifurcation where a complex pair
 // crosses the unit circle (located by linear interpolation of the largest
-// modulus of that kind). A change of the number of switches per period
+// modulus of that kind). Only when one kind's count outside the circle
+// changes between the points: where real multipliers meet and turn complex
+// in the same interval the crossing is not attributed (a finer step would). A change of the number of switches per period
 // between two orbits means a grazing point lies between them (an extremum
 // of a spring DOF passes a breakpoint with zero normal velocity; the
 // return map is not differentiable there): that end of the branch stops
@@ -83,7 +85,7 @@ const char* to_string(BranchStart s);
 
 struct BranchOptions {
   std::string key;                 // "" = default (see parameter_family)
-  std::optional<double> from, to;  // parameter window (default: [value/4, 4 value])
+  std::optional<double> from, to;  // parameter window (default: [value/10, 4 value])
   BranchStart start = BranchStart::kAuto;
   double start_amplitude = 0;      // hopf start: watched DOF amplitude, m or rad (0: automatic)
   int max_points = 200;

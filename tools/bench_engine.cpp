@@ -46,11 +46,11 @@ int run_like_peer(const char* path, int repeats) {
     std::vector<std::pair<double, double>> found;
     found.reserve(100000);
     const auto t0 = clock::now();
-    aerosect::integrate(model, run, set.duration, set.integrator, {false, 2.0 * set.duration}, {},
-                        false, nullptr, [&](int dof, double t, const std::vector<double>& x) {
-                          if (dof == watch) found.emplace_back(t, x[static_cast<std::size_t>(dof)]);
-                          return aerosect::ObserverAction::kContinue;
-                        });
+    aerosect::integrate(model, run, set.duration, set.integrator, aerosect::OutputSchedule::none(),
+                        {{}, [&](int dof, double t, const std::vector<double>& x) {
+                           if (dof == watch) found.emplace_back(t, x[static_cast<std::size_t>(dof)]);
+                           return aerosect::ObserverAction::kContinue;
+                         }});
     best = std::min(best, std::chrono::duration<double>(clock::now() - t0).count());
     last = run;
     peaks = found.size();
@@ -152,7 +152,7 @@ int main(int argc, char** argv) {
 
   // Integration of the case's own run, repeated from its initial state,
   // without output (the observer is not called).
-  aerosect::OutputSchedule no_output{false, set.duration * 100.0};
+  const aerosect::OutputSchedule no_output = aerosect::OutputSchedule::none();
   std::int64_t steps = 0, rhs = 0;
   long repeats = 0;
   t0 = clock::now();
@@ -160,7 +160,7 @@ int main(int argc, char** argv) {
     aerosect::RunState run;
     run.x = model.initial_state(set.initial_displacement, set.initial_velocity,
                                 set.steady_lag_states);
-    aerosect::integrate(model, run, set.duration, set.integrator, no_output, {}, false);
+    aerosect::integrate(model, run, set.duration, set.integrator, no_output);
     steps += run.steps;
     rhs += run.rhs_evaluations;
     ++repeats;
@@ -200,14 +200,14 @@ int main(int argc, char** argv) {
       long count = 0;
       const double t_from = c.simulation.duration * 0.8;
       const auto t0c = clock::now();
-      aerosect::integrate(m, r, c.simulation.duration, s, {false, c.simulation.duration}, {}, false,
-                          nullptr, [&](int dof, double t, const std::vector<double>& x) {
-                            if (dof == aerosect::kPitch && t >= t_from) {
-                              sum += std::abs(x[aerosect::kPitch]);
-                              ++count;
-                            }
-                            return aerosect::ObserverAction::kContinue;
-                          });
+      aerosect::integrate(m, r, c.simulation.duration, s, aerosect::OutputSchedule::none(),
+                          {{}, [&](int dof, double t, const std::vector<double>& x) {
+                             if (dof == aerosect::kPitch && t >= t_from) {
+                               sum += std::abs(x[aerosect::kPitch]);
+                               ++count;
+                             }
+                             return aerosect::ObserverAction::kContinue;
+                           }});
       seconds = std::chrono::duration<double>(clock::now() - t0c).count();
       amplitude = count ? sum / count : 0.0;
       return r;

@@ -229,10 +229,10 @@ SettledCycle sample_settled_cycle(const AeroelasticModel& model, RunState& run, 
   // k, never by accumulation); the one at t0 + T closes the period and is
   // not used.
   integrate(model, run, run.time + period, settings, {false, period / static_cast<double>(n)},
-            [&](double, const std::vector<double>& x) {
+            {[&](double, const std::vector<double>& x) {
               for (int j = 0; j < L.n_dof; ++j) raw[j].push_back(x[L.displacement + j]);
               return ObserverAction::kContinue;
-            });
+            }});
   AEROSECT_CHECK(raw[0].size() >= n);
   // Phase origin: the watched DOF's largest sample.
   const auto& w = raw[static_cast<std::size_t>(watched_dof)];

@@ -79,7 +79,7 @@ Flow plain_flow(const AeroelasticModel& model, const std::vector<double>& x0, do
       return ObserverAction::kContinue;
     };
   const IntegrationResult r =
-      integrate(model, run, period, settings, {false, 2.0 * period}, {}, false, cancel, peaks);
+      integrate(model, run, period, settings, OutputSchedule::none(), {{}, peaks, cancel});
   if (r.reason == StopReason::kCancelled) throw NumericalError(run.time, "cancelled");
   out.x = std::move(run.x);
   out.regions = std::move(run.regions);
@@ -312,10 +312,10 @@ std::optional<OrbitSeed> seed_from_time_march(const AeroelasticModel& model,
   run.x = start;
   run.regions = model.regions_of(start.data());
   const IntegrationResult r =
-      integrate(model, run, duration, settings, {false, 2.0 * duration}, {}, false, cancel,
-                [&tracker](int dof, double t, const std::vector<double>& x) {
-                  return tracker.on_peak(dof, t, x);
-                });
+      integrate(model, run, duration, settings, OutputSchedule::none(),
+                {{}, [&tracker](int dof, double t, const std::vector<double>& x) {
+                   return tracker.on_peak(dof, t, x);
+                 }, cancel});
   if (r.reason == StopReason::kCancelled) return std::nullopt;
   const LcoResult lr = tracker.result();
   if (lr.response != ResponseClass::kPeriodic || !(lr.frequency > 0)) return std::nullopt;
@@ -324,8 +324,8 @@ std::optional<OrbitSeed> seed_from_time_march(const AeroelasticModel& model,
   std::optional<std::vector<double>> at_max;
   std::vector<double> f(static_cast<std::size_t>(L.size));
   const double period = 1.0 / lr.frequency;
-  integrate(model, run, run.time + 2.0 * period, settings, {false, 4.0 * period}, {}, false, cancel,
-            [&](int dof, double, const std::vector<double>& x) {
+  integrate(model, run, run.time + 2.0 * period, settings, OutputSchedule::none(),
+            {{}, [&](int dof, double, const std::vector<double>& x) {
               if (dof != w || at_max) return at_max ? ObserverAction::kStop : ObserverAction::kContinue;
               model.rhs(x.data(), f.data(), 0, model.regions_of(x.data()));
               if (f[static_cast<std::size_t>(L.velocity + w)] < 0) {
@@ -333,7 +333,7 @@ std::optional<OrbitSeed> seed_from_time_march(const AeroelasticModel& model,
                 return ObserverAction::kStop;
               }
               return ObserverAction::kContinue;
-            });
+            }, cancel});
   if (!at_max) return std::nullopt;
   (*at_max)[static_cast<std::size_t>(L.velocity + w)] = 0.0;
   return OrbitSeed{*at_max, period};

@@ -247,8 +247,8 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
                        {"switches", static_cast<double>(run.switches)}};
   };
   try {
-    const IntegrationResult r = integrate(model, run, set.duration, set.integrator, set.output,
-                                          observer, true, cancel);
+    const IntegrationResult r =
+        integrate(model, run, set.duration, set.integrator, set.output, {observer, {}, cancel});
     summary.completed = r.reason == StopReason::kEndTime;
     summary.status = r.reason == StopReason::kEndTime    ? "completed"
                      : r.reason == StopReason::kCancelled ? "cancelled"

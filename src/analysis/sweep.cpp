@@ -60,10 +60,10 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
   try {
     const IntegrationResult res =
         integrate(model, run, c.simulation.duration, c.simulation.integrator,
-                  {false, 2.0 * c.simulation.duration}, {}, false, cancel,
-                  [&tracker](int dof, double t, const std::vector<double>& x) {
-                    return tracker.on_peak(dof, t, x);
-                  });
+                  OutputSchedule::none(),
+                  {{}, [&tracker](int dof, double t, const std::vector<double>& x) {
+                     return tracker.on_peak(dof, t, x);
+                   }, cancel});
     if (res.reason == StopReason::kCancelled) return std::nullopt;
     p.lco = tracker.result();
     // A settled cycle: one more period, sampled, for RMS and harmonics.

@@ -1,5 +1,9 @@
 #include "aerosect/model/system.hpp"
 
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+
 #include <Eigen/LU>
 
 #include "aerosect/error.hpp"
@@ -76,6 +80,17 @@ AeroelasticModel::AeroelasticModel(ModelDescription description) : d_(std::move(
     for (int i = 0; i < layout_.n_gust; ++i)
       B_gust_(layout_.gust + i) = U_over_b * d_.kussner.exponents[i];
   }
+}
+
+double AeroelasticModel::shortest_period() const {
+  const auto w = uncoupled_frequencies(d_.section);
+  double wmax = std::max({w.plunge, w.pitch, w.flap});
+  if (layout_.n_wagner > 0 && d_.flow.airspeed > 0) {
+    for (double e : d_.aero.wagner.exponents)
+      wmax = std::max(wmax, e * d_.flow.airspeed / d_.section.semichord);
+  }
+  if (!(wmax > 0) || !std::isfinite(wmax)) return 0.2;
+  return 2.0 * std::numbers::pi / wmax;
 }
 
 Eigen::MatrixXd AeroelasticModel::state_matrix(const DofVector& spring_stiffness) const {

@@ -42,7 +42,7 @@ double final_error(const AeroelasticModel& model, double h, StepperKind kind) {
   s.max_step = h;
   s.initial_step = h;
   const double T = 2.0;
-  integrate(model, run, T, s, {false, T}, {}, false);
+  integrate(model, run, T, s, OutputSchedule::none());
   const auto& sec = model.description().section;
   const double wh = std::sqrt(sec.plunge_stiffness / sec.mass);
   const double wa = std::sqrt(sec.pitch_stiffness / sec.pitch_inertia);
@@ -81,11 +81,11 @@ TEST_CASE("Adaptive steppers meet their tolerance on the analytic solution", "[i
     const double wh = std::sqrt(sec.plunge_stiffness / sec.mass);
     const double wa = std::sqrt(sec.pitch_stiffness / sec.pitch_inertia);
     integrate(model, run, 3.0, s, {false, 0.01},
-              [&](double t, const std::vector<double>& x) {
+              {[&](double t, const std::vector<double>& x) {
                 max_err = std::max({max_err, std::abs(x[0] - 0.01 * std::cos(wh * t)) / 0.01,
                                     std::abs(x[1] - 0.02 * std::cos(wa * t)) / 0.02});
                 return ObserverAction::kContinue;
-              });
+              }});
     INFO(to_string(kind) << " max relative error " << max_err);
     CHECK(max_err < 1e-7);
   }
@@ -109,10 +109,10 @@ TEST_CASE("Undamped structure in vacuum conserves energy", "[integrator]") {
   s.relative_tolerance = 1e-11;
   s.absolute_tolerance = 1e-14;
   double worst = 0;
-  integrate(model, run, 20.0, s, {false, 0.005}, [&](double, const std::vector<double>& x) {
+  integrate(model, run, 20.0, s, {false, 0.005}, {[&](double, const std::vector<double>& x) {
     worst = std::max(worst, std::abs(energy(x) - E0) / E0);
     return ObserverAction::kContinue;
-  });
+  }});
   INFO("worst relative energy drift " << worst);
   CHECK(worst < 1e-8);
 }
@@ -124,10 +124,10 @@ TEST_CASE("Fixed-rate output lands exactly on k dt; every-step output on each st
   RunState run;
   run.x = {0.01, 0.0, 0.0, 0.0};
   std::vector<double> times;
-  integrate(model, run, 1.0, {}, {false, 0.1}, [&](double t, const std::vector<double>&) {
+  integrate(model, run, 1.0, {}, {false, 0.1}, {[&](double t, const std::vector<double>&) {
     times.push_back(t);
     return ObserverAction::kContinue;
-  });
+  }});
   REQUIRE(times.size() == 11);
   for (std::size_t k = 0; k < times.size(); ++k) CHECK(times[k] == Approx(0.1 * k).margin(1e-15));
   CHECK(run.time == 1.0);
@@ -135,10 +135,10 @@ TEST_CASE("Fixed-rate output lands exactly on k dt; every-step output on each st
   RunState run2;
   run2.x = {0.01, 0.0, 0.0, 0.0};
   std::int64_t samples = 0;
-  integrate(model, run2, 1.0, {}, {true, 0.0}, [&](double, const std::vector<double>&) {
+  integrate(model, run2, 1.0, {}, {true, 0.0}, {[&](double, const std::vector<double>&) {
     ++samples;
     return ObserverAction::kContinue;
-  });
+  }});
   CHECK(samples == run2.steps + 1);
 }
 
@@ -148,16 +148,16 @@ TEST_CASE("Observer stop and cancellation end the run where they happen", "[inte
   RunState run;
   run.x = {0.01, 0.0, 0.0, 0.0};
   const IntegrationResult r = integrate(model, run, 10.0, {}, {false, 0.1},
-                                        [&](double t, const std::vector<double>&) {
+                                        {[&](double t, const std::vector<double>&) {
                                           return t >= 0.5 ? ObserverAction::kStop
                                                           : ObserverAction::kContinue;
-                                        });
+                                        }});
   CHECK(r.reason == StopReason::kObserver);
   CHECK(r.end_time < 1.0);
   std::atomic<bool> cancel{true};
   RunState run2;
   run2.x = {0.01, 0.0, 0.0, 0.0};
-  const IntegrationResult r2 = integrate(model, run2, 10.0, {}, {false, 0.1}, {}, true, &cancel);
+  const IntegrationResult r2 = integrate(model, run2, 10.0, {}, {false, 0.1}, {{}, {}, &cancel});
   CHECK(r2.reason == StopReason::kCancelled);
   CHECK(run2.time < 10.0);
 }
@@ -174,11 +174,11 @@ TEST_CASE("Peak observer finds the true extrema on the dense output", "[integrat
   s.relative_tolerance = 1e-11;
   s.absolute_tolerance = 1e-14;
   std::vector<std::pair<double, double>> peaks;
-  integrate(model, run, 4.75, s, {false, 1.0}, {}, false, nullptr,
-            [&](int dof, double t, const std::vector<double>& x) {
-              if (dof == kPlunge) peaks.emplace_back(t, x[kPlunge]);
-              return ObserverAction::kContinue;
-            });
+  integrate(model, run, 4.75, s, OutputSchedule::none(),
+            {{}, [&](int dof, double t, const std::vector<double>& x) {
+               if (dof == kPlunge) peaks.emplace_back(t, x[kPlunge]);
+               return ObserverAction::kContinue;
+             }});
   REQUIRE(peaks.size() == 9);  // 1 Hz: extrema every 0.5 s up to 4.75 s, the start excluded
   for (std::size_t k = 0; k < peaks.size(); ++k) {
     CHECK(peaks[k].first == Approx((k + 1) * pi / wh).margin(1e-9));
@@ -196,7 +196,7 @@ TEST_CASE("A non-finite state stops the run naming the time and the components",
   RunState run;
   run.x = {0.0, 1e120, 0.0, 0.0};
   try {
-    integrate(model, run, 1.0, {}, {false, 0.01}, {}, false);
+    integrate(model, run, 1.0, {}, {false, 0.01, false});
     FAIL("no NumericalError");
   } catch (const NumericalError& e) {
     const std::string m = e.what();
@@ -232,7 +232,7 @@ TEST_CASE("A finite-time blow-up is reported as a step-size collapse at the blow
   RunState run;
   run.x = {0.0, 2.0, 0.0, 0.0};
   try {
-    integrate(model, run, 10.0, {}, {false, 0.01}, {}, false);
+    integrate(model, run, 10.0, {}, {false, 0.01, false});
     FAIL("no NumericalError");
   } catch (const NumericalError& e) {
     const std::string m = e.what();
@@ -259,7 +259,7 @@ TEST_CASE("A step-size collapse near a breakpoint names the switching function",
   s.relative_tolerance = 1e-300;
   s.absolute_tolerance = 1e-300;
   try {
-    integrate(model, run, 1.0, s, {false, 0.01}, {}, false);
+    integrate(model, run, 1.0, s, {false, 0.01, false});
     FAIL("no NumericalError");
   } catch (const NumericalError& e) {
     const std::string m = e.what();
@@ -299,11 +299,11 @@ VariationalRun run_variational(const AeroelasticModel& model, const std::vector<
   run.monodromy.assign(I.data(), I.data() + n * n);
   VariationalRun out;
   out.scale.assign(static_cast<std::size_t>(n), 0.0);
-  integrate(model, run, T, s, {false, T / 200}, [&](double, const std::vector<double>& x) {
+  integrate(model, run, T, s, {false, T / 200}, {[&](double, const std::vector<double>& x) {
     REQUIRE(static_cast<int>(x.size()) == n);  // observers see the state only
     for (int i = 0; i < n; ++i) out.scale[i] = std::max(out.scale[i], std::abs(x[i]));
     return ObserverAction::kContinue;
-  });
+  }});
   out.x = run.x;
   out.regions = run.regions;
   out.phi = Eigen::Map<const Eigen::MatrixXd>(run.monodromy.data(), n, n);
@@ -326,7 +326,7 @@ Eigen::MatrixXd central_differences(const AeroelasticModel& model, const std::ve
       RunState run;
       run.x = x0;
       run.x[c] += k == 0 ? eps : -eps;
-      integrate(model, run, T, s, {false, T}, {}, false);
+      integrate(model, run, T, s, OutputSchedule::none());
       CHECK(run.switches == switches);
       end[k] = run.x;
     }
@@ -501,7 +501,7 @@ TEST_CASE("A grazing crossing of a force jump stops a monodromy run", "[integrat
   const Eigen::MatrixXd I = Eigen::MatrixXd::Identity(4, 4);
   run.monodromy.assign(I.data(), I.data() + 16);
   try {
-    integrate(model, run, 1.0, {}, {false, 0.01}, {});
+    integrate(model, run, 1.0, {}, {false, 0.01});
     FAIL("no NumericalError");
   } catch (const NumericalError& e) {
     const std::string m = e.what();

@@ -79,14 +79,14 @@ TEST_CASE("A converged orbit is the cycle a long time march settles on", "[orbit
   for (double& v : run.x) v *= 1.0 + 1e-4;
   run.regions = model.regions_of(run.x.data());
   const OrbitSettings s;
-  integrate(model, run, periods * o.period - 0.25 * o.period, s.integrator, {false, 1e9}, {}, false);
+  integrate(model, run, periods * o.period - 0.25 * o.period, s.integrator, OutputSchedule::none());
   const StateLayout& L = model.layout();
   std::vector<double> at_max;
-  integrate(model, run, run.time + o.period, s.integrator, {false, 1e9}, {}, false, nullptr,
-            [&](int dof, double, const std::vector<double>& x) {
+  integrate(model, run, run.time + o.period, s.integrator, OutputSchedule::none(),
+            {{}, [&](int dof, double, const std::vector<double>& x) {
               if (dof == o.watched_dof && x[L.displacement + dof] > 0 && at_max.empty()) at_max = x;
               return ObserverAction::kContinue;
-            });
+            }});
   REQUIRE(!at_max.empty());
   const Eigen::VectorXd W = state_weights(model);
   double err = 0, scale = o.dof[o.watched_dof].amplitude;
@@ -217,11 +217,11 @@ TEST_CASE("Softening cubic with a hardening quintic: subcritical branch and its 
     run.regions = m.regions_of(run.x.data());
     double late_max = 0;
     const double t_end = 150 * u->orbit.period;
-    integrate(m, run, t_end, OrbitSettings{}.integrator, {false, 1e9}, {}, false, nullptr,
-              [&](int dof, double t, const std::vector<double>& x) {
+    integrate(m, run, t_end, OrbitSettings{}.integrator, OutputSchedule::none(),
+              {{}, [&](int dof, double t, const std::vector<double>& x) {
                 if (dof == kPitch && t > t_end - 3 * u->orbit.period) late_max = std::max(late_max, std::abs(x[kPitch]));
                 return ObserverAction::kContinue;
-              });
+              }});
     CAPTURE(factor, A, late_max, u->parameter);
     if (factor < 1) CHECK(late_max < 0.5 * A);
     else CHECK(late_max > 1.5 * A);
@@ -326,11 +326,11 @@ TEST_CASE("Flap-freeplay branch of the demo: describing function and time marchi
     run.regions = m.regions_of(run.x.data());
     double late = 0;
     const double t_end = periods * period;
-    integrate(m, run, t_end, OrbitSettings{}.integrator, {false, 1e9}, {}, false, nullptr,
-              [&](int dof, double t, const std::vector<double>& xs) {
+    integrate(m, run, t_end, OrbitSettings{}.integrator, OutputSchedule::none(),
+              {{}, [&](int dof, double t, const std::vector<double>& xs) {
                 if (dof == kFlap && t > t_end - 3 * period) late = std::max(late, std::abs(xs[kFlap]));
                 return ObserverAction::kContinue;
-              });
+              }});
     return late;
   };
   const double below = march_amplitude(fold->parameter * 0.995, pf.orbit.x0, 400, pf.orbit.period);

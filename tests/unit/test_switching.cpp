@@ -138,10 +138,10 @@ TEST_CASE("Freeplay response against the exact piecewise-linear solution", "[swi
   const std::vector<double> ts = times(0.5, 400);  // 200 s = 800 semichords
   std::vector<std::vector<double>> got;
   integrate(model, run, ts.back(), s, {false, 0.5},
-            [&](double t, const std::vector<double>& x) {
+            {[&](double t, const std::vector<double>& x) {
               if (t > 0) got.push_back(x);
               return ObserverAction::kContinue;
-            });
+            }});
   std::int64_t ref_switches = 0;
   const ExactPiecewise exact{model, kPitch};
   const auto ref = exact.solve(x0, ts, 0.05, ref_switches);
@@ -185,7 +185,7 @@ TEST_CASE("A trajectory that grazes a breakpoint within one step is caught", "[s
   s.max_step = 2 * pi / 8;
   const double T = 2 * pi * 10;  // ten periods (omega = 1)
   // The run starts at the peak, inside the region below the breakpoint.
-  integrate(model, run, T, s, {false, T / 40}, {});
+  integrate(model, run, T, s, {false, T / 40});
   std::int64_t ref_switches = 0;
   const ExactPiecewise exact{model, kPitch};
   const Eigen::VectorXd x0 = (Eigen::VectorXd(4) << 0.0, A, 0.0, 0.0).finished();
@@ -284,7 +284,7 @@ TEST_CASE("A preloaded spring released on its breakpoint chatters and is stopped
   RunState run;
   run.x = {0.0, 0.0, 0.0, 0.0};
   try {
-    integrate(model, run, 1.0, {}, {false, 0.01}, {});
+    integrate(model, run, 1.0, {}, {false, 0.01});
     FAIL("no NumericalError");
   } catch (const NumericalError& e) {
     const std::string m = e.what();

@@ -2,7 +2,17 @@
 // Time integration of an AeroelasticModel with Boost.Odeint's adaptive
 // dense-output steppers (Dormand-Prince 5(4) by default, Bulirsch-Stoer as
 // an option). Output is taken from the dense output at fixed sample times
-// (t0 + k dt, computed from k, never accumulated) or at every accepted step.
+// (t0 + k dt, computed from k, never accumulated), at every accepted step,
+// or not at all.
+//
+// Events. Every event is the zero of a witness function of the trajectory,
+// crossed in the witness's direction: a spring boundary
+// h = +-(q_j - breakpoint) (action: the spring's region changes), an input
+// switch time t - t_k (action: the input segment advances) and the
+// velocity of a moving DOF (no action: a true extremum, reported to the
+// peak observer). The run is a short loop of named stages: take a step and
+// check it, locate the earliest event inside it, report peaks and emit
+// samples up to there, then apply the event or stop.
 //
 // Piecewise springs (breakpoints) switch exactly: after each accepted step
 // the switching functions h = +-(x_j - breakpoint) of the boundaries of the
@@ -69,9 +79,14 @@ struct IntegratorSettings {
   double initial_step = 0.0;  // s; 0 = chosen from the model's time scales
 };
 
+// Which samples the sample observer receives.
 struct OutputSchedule {
-  bool every_step = false;   // true: one sample per accepted step
-  double interval = 0.0;     // s, when !every_step
+  bool every_step = false;    // true: one sample per accepted step (and switch)
+  double interval = 0.0;      // s, fixed-rate samples when !every_step; 0: no samples
+  bool include_start = true;  // also the state at the start time
+  // No samples at all (a run watched by its peaks, or only its end state).
+  static OutputSchedule none() { return {false, 0.0, false}; }
+  bool any() const { return every_step || interval > 0; }
 };
 
 // Mutable per-run data.
@@ -100,6 +115,13 @@ using SampleObserver = std::function<ObserverAction(double t, const std::vector<
 using PeakObserver =
     std::function<ObserverAction(int dof, double t, const std::vector<double>& x)>;
 
+// What watches a run: any member may be empty.
+struct RunObservers {
+  SampleObserver sample = {};                 // each scheduled sample
+  PeakObserver peak = {};                     // each true extremum of a moving DOF
+  const std::atomic<bool>* cancel = nullptr;  // polled after every step: true ends the run
+};
+
 enum class StopReason { kEndTime, kObserver, kCancelled };
 const char* to_string(StopReason r);
 
@@ -108,18 +130,14 @@ struct IntegrationResult {
   double end_time = 0.0;  // s, time of the last state in RunState
 };
 
-// Integrates from run.time to t_end. The first sample (at run.time) is
-// emitted only when `emit_initial` is true. On return run.time/run.x hold
-// the last state reached (t_end, or where it stopped). Throws
-// NumericalError on a non-finite state or step-size collapse.
+// Integrates from run.time to t_end. On return run.time/run.x hold the
+// last state reached (t_end, or where it stopped). Throws NumericalError on
+// a non-finite state, a step-size collapse or chattering.
 IntegrationResult integrate(const AeroelasticModel& model, RunState& run, double t_end,
                             const IntegratorSettings& settings, const OutputSchedule& schedule,
-                            const SampleObserver& observer, bool emit_initial = true,
-                            const std::atomic<bool>* cancel = nullptr,
-                            const PeakObserver& peaks = {});
+                            const RunObservers& observers = {});
 
-// A default first step: 1/200 of the shortest uncoupled period (or of the
-// shortest aerodynamic lag time), s.
+// A default first step: 1/200 of the model's shortest period, s.
 double default_initial_step(const AeroelasticModel& model);
 
 }  // namespace aerosect

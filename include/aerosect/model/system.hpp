@@ -85,6 +85,11 @@ class AeroelasticModel {
   int state_size() const { return layout_.size; }
   const AeroMatrices& aero() const { return aero_; }
   const DofMatrix& total_mass() const { return total_mass_; }
+  // The shortest natural time scale, s: 2 pi over the largest of the
+  // uncoupled structural frequencies and the Wagner lag rates eps_i U / b.
+  // A model with neither (no stiffness, no flow) gets 0.2 s, an arbitrary
+  // scale that keeps the integrator's step heuristics finite.
+  double shortest_period() const;
 
   // x' = f(x, t; regions, input segment). regions[j] is the active region of
   // spring j; input_segment the active segment of the gust field.

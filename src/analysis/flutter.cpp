@@ -13,7 +13,7 @@
 #include "aerosect/analysis/mode_shapes.hpp"
 #include "aerosect/analysis/pk.hpp"
 #include "aerosect/error.hpp"
-#include "aerosect/model/atmosphere.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
@@ -283,15 +283,12 @@ const char* to_string(Linearisation l) {
   return "?";
 }
 
-double equivalent_airspeed(double U, double rho) { return U * std::sqrt(rho / kSeaLevelDensity); }
-
 std::vector<double> default_speeds(const Case& c) {
   const auto w = uncoupled_frequencies(c.model.section);
   const double ref = c.model.section.semichord * w.pitch;
   double umax = std::max(10.0 * ref, 1.5 * c.model.flow.airspeed);
   if (c.dive_speed_eas && c.model.flow.density > 0)
-    umax = std::max(umax, 1.5 * 1.15 * *c.dive_speed_eas *
-                              std::sqrt(kSeaLevelDensity / c.model.flow.density));
+    umax = std::max(umax, 1.5 * 1.15 * true_airspeed(*c.dive_speed_eas, c.model.flow.density));
   const int n = 400;
   std::vector<double> s(n);
   for (int i = 0; i < n; ++i) s[i] = umax * (i + 1) / n;
@@ -361,7 +358,7 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
     nominal(j) = law.nominal_stiffness();
     closed(j) = law.gap_closed_stiffness();
     open(j) = law.gap_open_stiffness();
-    const double unit = j == kPlunge ? 1.0 : pi / 180.0;
+    const double unit = j == kPlunge ? 1.0 : kRadPerDeg;
     df(j) = o.amplitude ? law.describing_function(*o.amplitude * unit) : nominal(j);
     if (!law.breakpoints().empty()) rep.has_gap = true;
   }

@@ -10,7 +10,7 @@
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/io/hdf5_document.hpp"
-#include "aerosect/model/atmosphere.hpp"
+#include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
 
 namespace aerosect {
@@ -59,7 +59,7 @@ std::string shape_text(const Eigen::VectorXcd& v) {
   std::string t;
   for (Eigen::Index j = 0; j < v.size(); ++j)
     t += fmt::format("{}{} {:.3g} @ {:+.0f} deg", j ? ", " : "", names[j], std::abs(v(j)),
-                     std::arg(v(j)) * 180 / pi);
+                     std::arg(v(j)) * kDegPerRad);
   return t;
 }
 
@@ -67,7 +67,7 @@ nlohmann::json shape_json(const Eigen::VectorXcd& v) {
   const char* names[3] = {"plunge_per_semichord", "pitch", "flap"};
   nlohmann::json j;
   for (Eigen::Index k = 0; k < v.size(); ++k)
-    j[names[k]] = {{"magnitude", std::abs(v(k))}, {"phase_deg", std::arg(v(k)) * 180 / pi}};
+    j[names[k]] = {{"magnitude", std::abs(v(k))}, {"phase_deg", std::arg(v(k)) * kDegPerRad}};
   return j;
 }
 
@@ -153,8 +153,7 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
   for (const auto& lr : r.results) {
     nlohmann::json l;
     l["name"] = to_string(lr.linearisation);
-    const char* dofs[3] = {"plunge", "pitch", "flap"};
-    for (int k = 0; k < lr.stiffness.size(); ++k) l["stiffness"][dofs[k]] = lr.stiffness(k);
+    for (int k = 0; k < lr.stiffness.size(); ++k) l["stiffness"][kDofNames[k]] = lr.stiffness(k);
     l["methods"] = nlohmann::json::array();
     for (const auto& m : lr.methods) {
       nlohmann::json mj;
@@ -185,7 +184,7 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
   }
   if (r.lco.available) {
     const bool angle = r.lco.spring != kPlunge;
-    const double unit = angle ? 180 / pi : 1.0;
+    const double unit = angle ? kDegPerRad : 1.0;
     nlohmann::json lj;
     lj["spring"] = dof_name(r.lco.spring);
     lj["amplitude_units"] = angle ? "deg" : "m";
@@ -286,7 +285,7 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
   }
   if (r.lco.available) {
     const bool angle = r.lco.spring != kPlunge;
-    const double unit = angle ? 180 / pi : 1.0;
+    const double unit = angle ? kDegPerRad : 1.0;
     t += fmt::format("\nDescribing-function LCO prediction ({} spring; near-harmonic, about zero):\n",
                      dof_name(r.lco.spring));
     t += fmt::format("  {:>12} {:>12} {:>10}  {}\n", angle ? "amplitude deg" : "amplitude m",
@@ -341,7 +340,7 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
   if (r.dive_speed_eas) {
     doc.number_attribute("", "dive_speed_eas", *r.dive_speed_eas);
     doc.number_attribute("", "clearance_speed_tas",
-                         1.15 * *r.dive_speed_eas * std::sqrt(kSeaLevelDensity / r.density));
+                         1.15 * true_airspeed(*r.dive_speed_eas, r.density));
   }
   if (r.results.empty() || r.results.front().methods.empty()) {
     doc.commit();
@@ -364,9 +363,8 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
 
   for (const auto& lr : r.results) {
     const std::string lg = group_name(lr.linearisation);
-    const char* dofs[3] = {"plunge", "pitch", "flap"};
     for (int k = 0; k < lr.stiffness.size(); ++k)
-      doc.number_attribute(lg, std::string("stiffness_") + dofs[k], lr.stiffness(k));
+      doc.number_attribute(lg, std::string("stiffness_") + kDofNames[k], lr.stiffness(k));
     for (const auto& m : lr.methods) {
       const std::string g = lg + "/" + method_group(m.method);
       const std::size_t ns = m.sweep.speeds.size();

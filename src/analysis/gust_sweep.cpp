@@ -7,6 +7,7 @@
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/hdf5_document.hpp"
+#include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
 
 namespace aerosect {
@@ -112,8 +113,8 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
     t += fmt::format("  {:>8.4g} {:>9.4g} {:>12.5g} {:>12.5g} {:>12.5g} {:>11.4g} {:>11.4g}\n",
                      p.gradient, p.design_velocity, peak(p.summary, "lift"),
                      peak(p.summary, "pitching_moment"), peak(p.summary, "hinge_moment"),
-                     peak(p.summary, "pitch") * 180 / 3.141592653589793,
-                     peak(p.summary, "flap") * 180 / 3.141592653589793);
+                     peak(p.summary, "pitch") * kDegPerRad,
+                     peak(p.summary, "flap") * kDegPerRad);
   }
   t += "\n  critical gradient (largest magnitude):\n";
   for (const auto& cr : s.critical)

@@ -34,13 +34,4 @@ int dominant_dof(const Eigen::VectorXcd& v, const Eigen::MatrixXd& M, double sem
   return best;
 }
 
-const char* dof_name(int dof) {
-  switch (dof) {
-    case kPlunge: return "plunge";
-    case kPitch: return "pitch";
-    case kFlap: return "flap";
-  }
-  return "?";
-}
-
 }  // namespace aerosect

@@ -6,6 +6,7 @@
 #include <fmt/format.h>
 
 #include "aerosect/model/system.hpp"
+#include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
 
 namespace aerosect {
@@ -20,7 +21,6 @@ const char* const kSafetyCaution =
     "hardware come from the applicable specification, not from this tool.";
 
 namespace {
-const char* kDofNames[3] = {"plunge", "pitch", "flap"};
 
 nlohmann::json parameters_json(const RunMetadata& m) {
   nlohmann::json j = nlohmann::json::object();

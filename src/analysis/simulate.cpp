@@ -7,15 +7,14 @@
 
 #include "aerosect/error.hpp"
 #include "aerosect/model/atmosphere.hpp"
+#include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
 
 namespace aerosect {
 
 namespace {
-const char* kDofNames[3] = {"plunge", "pitch", "flap"};
 const char* kDofLong[3] = {"plunge displacement, positive down", "pitch angle, positive nose up",
                            "flap angle, positive trailing edge down"};
-const char* kDofUnits[3] = {"m", "rad", "rad"};
 const char* kRateUnits[3] = {"m s-1", "rad s-1", "rad s-1"};
 }  // namespace
 

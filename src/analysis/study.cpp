@@ -20,14 +20,13 @@
 #include "aerosect/error.hpp"
 #include "aerosect/io/hdf5_writer.hpp"
 #include "aerosect/io/text_file.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
 namespace {
 
 namespace fs = std::filesystem;
-const char* const kDof[3] = {"plunge", "pitch", "flap"};
-constexpr double kDeg = 180.0 / std::numbers::pi;
 
 std::string sig4(double v) {
   if (!std::isfinite(v)) return v > 0 ? "none in range" : "n/a";
@@ -76,7 +75,7 @@ std::string derived_case_text(const Case& c, const Derivation& d) {
       init->erase("plunge_semichords");
       init->insert_or_assign("plunge", d.disturbance);
     } else {
-      init->insert_or_assign(fmt::format("{}_deg", kDof[d.disturb_dof]), d.disturbance * kDeg);
+      init->insert_or_assign(fmt::format("{}_deg", kDofNames[d.disturb_dof]), d.disturbance * kDegPerRad);
     }
   }
   std::ostringstream out;
@@ -115,7 +114,6 @@ const MethodResult* method_of(const FlutterReport& r, Linearisation l, const std
   return nullptr;
 }
 
-double tas_from_eas(double eas, double density) { return eas / std::sqrt(density / 1.225); }
 
 class Rows {
  public:
@@ -245,7 +243,8 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
              "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m/s EAS", fm.dive_speed_eas));
     if (std::isfinite(fm.margin))
       rows.add("margin", fmt::format("Margin of the lowest instability ({}) over 1.15 V_D", fm.critical_kind),
-               100 * fm.margin, "%", "flutter.h5: /nominal/state_space (EAS = TAS sqrt(rho/1.225))",
+               100 * fm.margin, "%",
+               fmt::format("flutter.h5: /nominal/state_space (EAS = TAS sqrt(rho/{}))", kSeaLevelDensity),
                fm.cleared ? "cleared (linear model, nominal springs)" : "NOT cleared");
     else
       rows.text("margin", "Margin over 1.15 V_D", "no instability in the analysed range",
@@ -264,7 +263,7 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
   std::string sweep_key = si ? "flow.airspeed" : "nondimensional.reduced_speed";
   const double per = si ? 1.0 : 1.0 / fr.reference_speed;  // swept value per m/s TAS
   std::optional<double> vd_tas;
-  if (c.dive_speed_eas) vd_tas = tas_from_eas(*c.dive_speed_eas, rho);
+  if (c.dive_speed_eas) vd_tas = true_airspeed(*c.dive_speed_eas, rho);
   if (nl < 0) {
     part("lco-sweep", false, "skipped: the case has no nonlinear spring (freeplay, bilinear, cubic, "
                               "polynomial or table law), so its response is linear and the flutter "
@@ -314,9 +313,9 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
       double gap = 0;
       for (double b : bp) gap = std::max(gap, std::abs(b));
       dv.disturb_dof = nl;
-      dv.disturbance = gap > 0 ? 4.0 * gap : (nl == kPlunge ? 0.1 * c.model.section.semichord : 2.0 / kDeg);
-      disturbance_note = fmt::format("the case starts at rest: {} displaced by {:.4g} {}", kDof[nl],
-                                     nl == kPlunge ? dv.disturbance : dv.disturbance * kDeg,
+      dv.disturbance = gap > 0 ? 4.0 * gap : (nl == kPlunge ? 0.1 * c.model.section.semichord : 2.0 * kRadPerDeg);
+      disturbance_note = fmt::format("the case starts at rest: {} displaced by {:.4g} {}", kDofNames[nl],
+                                     nl == kPlunge ? dv.disturbance : dv.disturbance * kDegPerRad,
                                      nl == kPlunge ? "m" : "deg");
     }
     SweepRequest req;
@@ -396,30 +395,30 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
         part("lco-history", false, "skipped: no LCO " + where);
       } else {
         const double a = worst->lco.dof[static_cast<std::size_t>(w)].amplitude;
-        rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDof[w]),
-                 angle ? a * kDeg : a, angle ? "deg" : "m",
-                 fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]{}", kDof[w],
+        rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDofNames[w]),
+                 angle ? a * kDegPerRad : a, angle ? "deg" : "m",
+                 fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]{}", kDofNames[w],
                              worst->direction, worst->i, angle ? " (rad in the file)" : ""),
                  fmt::format("at {:.4g} m/s TAS sweeping {}, {:.4g} Hz", worst->value1 / per,
                              worst->direction == 0 ? "up" : "down", worst->lco.frequency));
         if (worst->cycle.samples > 0) {
           const DofHarmonics& h = worst->cycle.dof[static_cast<std::size_t>(w)];
-          rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDof[w]), angle ? h.rms * kDeg : h.rms,
+          rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDofNames[w]), angle ? h.rms * kDegPerRad : h.rms,
                    angle ? "deg" : "m",
-                   fmt::format("sweep.h5: {}_rms[direction {}, value_1 index {}]{}", kDof[w], worst->direction,
+                   fmt::format("sweep.h5: {}_rms[direction {}, value_1 index {}]{}", kDofNames[w], worst->direction,
                                worst->i, angle ? " (rad in the file)" : ""));
-          rows.add("lco_largest_thd", fmt::format("  {} total harmonic distortion at that LCO", kDof[w]),
+          rows.add("lco_largest_thd", fmt::format("  {} total harmonic distortion at that LCO", kDofNames[w]),
                    100 * h.thd, "%",
-                   fmt::format("sweep.h5: {}_thd[direction {}, value_1 index {}] x 100", kDof[w], worst->direction,
+                   fmt::format("sweep.h5: {}_thd[direction {}, value_1 index {}] x 100", kDofNames[w], worst->direction,
                                worst->i),
                    "harmonics above the first, against the first");
         }
         for (int k = 0; k < c.model.section.dof; ++k) {
           if (k == w) continue;
           const double ak = worst->lco.dof[static_cast<std::size_t>(k)].amplitude;
-          rows.add(fmt::format("lco_largest_{}", kDof[k]), fmt::format("  {} amplitude at that LCO", kDof[k]),
-                   k == kPlunge ? ak : ak * kDeg, k == kPlunge ? "m" : "deg",
-                   fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]", kDof[k],
+          rows.add(fmt::format("lco_largest_{}", kDofNames[k]), fmt::format("  {} amplitude at that LCO", kDofNames[k]),
+                   k == kPlunge ? ak : ak * kDegPerRad, k == kPlunge ? "m" : "deg",
+                   fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]", kDofNames[k],
                                worst->direction, worst->i));
         }
         if (c.model.section.dof == 3) {
@@ -488,7 +487,7 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
         continue;
       const bool angle = cr.channel == "pitch" || cr.channel == "flap";
       rows.add("gust_peak_" + cr.channel, fmt::format("Design gust: peak {}", cr.channel),
-               angle ? cr.value * kDeg : cr.value, angle ? "deg" : cr.units,
+               angle ? cr.value * kDegPerRad : cr.value, angle ? "deg" : cr.units,
                fmt::format("gust.h5: /peaks@critical_value_{}{}", cr.channel, angle ? " (rad in the file)" : ""),
                fmt::format("critical H = {:.4g} m", cr.gradient));
     }
@@ -511,7 +510,7 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
         if (e.channel == "lift" || e.channel == "pitch" || e.channel == "flap" || e.channel == "hinge_moment") {
           const bool angle = e.channel == "pitch" || e.channel == "flap";
           rows.add("turbulence_rms_" + e.channel, fmt::format("Turbulence: RMS {}", e.channel),
-                   angle ? e.rms * kDeg : e.rms, angle ? "deg" : e.units,
+                   angle ? e.rms * kDegPerRad : e.rms, angle ? "deg" : e.units,
                    fmt::format("response.h5: {} (RMS of the samples){}", e.channel, angle ? " (rad in the file)" : ""));
         }
     if (!has_turbulence(c))

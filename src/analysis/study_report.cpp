@@ -12,6 +12,7 @@
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/study.hpp"
 #include "aerosect/io/text_file.hpp"
+#include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
 
 namespace aerosect {
@@ -134,9 +135,11 @@ void write_study_report(const Case& c, const StudyResult& r, const std::vector<S
                      escape(row.note),
                      escape(row.source));
   h += "</tbody>\n</table>\n";
-  h += "<p class=\"meta\">Airspeeds are true airspeed (TAS) unless marked EAS; EAS = TAS "
-       "&radic;(&rho;/1.225 kg/m&sup3;). Values are shown to 4 significant digits; the files hold "
-       "them in full.</p>\n";
+  h += fmt::format(
+      "<p class=\"meta\">Airspeeds are true airspeed (TAS) unless marked EAS; EAS = TAS "
+      "&radic;(&rho;/{} kg/m&sup3;). Values are shown to 4 significant digits; the files hold "
+      "them in full.</p>\n",
+      kSeaLevelDensity);
 
   // Parts.
   h += "<h2>What was run</h2>\n<ul id=\"parts\">\n";

@@ -14,6 +14,7 @@
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/hdf5_document.hpp"
+#include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
 
 namespace aerosect {
@@ -303,10 +304,6 @@ SweepSummary summarize(const std::vector<SweepPoint>& points, int jj) {
   return s;
 }
 
-namespace {
-const char* kDofNames[3] = {"plunge", "pitch", "flap"};
-}
-
 nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
                           const std::string& output) {
   nlohmann::json j = report_header(c, "sweep");
@@ -354,7 +351,7 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
     t += fmt::format("  {:>4} {:>14.6g} {:>13} {:>9.5g} {:<2} {:>10.4g} {:>7}{}\n",
                      q.direction == 0 ? "up" : "down", q.value1,
                      q.ok ? to_string(q.lco.response) : "failed",
-                     q.lco.dof[static_cast<std::size_t>(w)].amplitude * (angle ? 180 / std::numbers::pi : 1.0),
+                     q.lco.dof[static_cast<std::size_t>(w)].amplitude * (angle ? kDegPerRad : 1.0),
                      angle ? "°" : "m", q.lco.frequency, q.lco.cycles,
                      q.ok ? "" : "  " + q.error.substr(0, 60));
   }
@@ -545,7 +542,7 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
     const auto freq = table("frequency"), cyc = table("cycles"), spr = table("spread");
     const auto end = table("end_time"), sw = table("switches");
     const std::string watched = read_text_attribute(path, "watched_dof");
-    const int w = watched == "plunge" ? kPlunge : watched == "flap" ? kFlap : kPitch;
+    const int w = dof_index(watched) >= 0 ? dof_index(watched) : kPitch;
     const int ndof = static_cast<int>(parse_case(r.case_text, r.case_path, r.overrides).model.section.dof);
     std::vector<std::vector<double>> amp(3), mx(3), mn(3);
     for (int d = 0; d < ndof; ++d) {

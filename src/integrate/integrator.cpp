@@ -11,6 +11,7 @@
 #include <fmt/format.h>
 
 #include "aerosect/error.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
@@ -82,8 +83,6 @@ constexpr const char* kCollapseHint =
 bool all_finite(const State& x) {
   return std::all_of(x.begin(), x.end(), [](double v) { return std::isfinite(v); });
 }
-
-const char* dof_name(int j) { return j == kPlunge ? "plunge" : j == kPitch ? "pitch" : "flap"; }
 
 // ---------------------------------------------------------------------------
 // Witnesses. Every event of a run is a zero of a witness function of the

@@ -23,13 +23,13 @@
 #include "aerosect/model/gust.hpp"
 #include "aerosect/model/spring.hpp"
 #include "aerosect/model/turbulence.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
 namespace {
 
 using std::numbers::pi;
-constexpr double kDeg = pi / 180.0;
 
 // ---------------------------------------------------------------------------
 // The schema: every key a case file may hold.
@@ -877,19 +877,19 @@ void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
   if (auto v = ini.number("pitch_deg")) {
     ini.require(std::abs(*v) <= 90, "pitch_deg", "is beyond the theory's small angles",
                 "|pitch| <= 90 degrees (the aerodynamics is linear: keep it small)");
-    s.initial_displacement(kPitch) = *v * kDeg;
+    s.initial_displacement(kPitch) = *v * kRadPerDeg;
   }
   if (auto v = ini.number("plunge_rate")) s.initial_velocity(kPlunge) = *v;
-  if (auto v = ini.number("pitch_rate_deg_s")) s.initial_velocity(kPitch) = *v * kDeg;
+  if (auto v = ini.number("pitch_rate_deg_s")) s.initial_velocity(kPitch) = *v * kRadPerDeg;
   for (const char* k : {"flap_deg", "flap_rate_deg_s"})
     if (n == 2 && ini.has(k)) ini.fail(k, "needs a flap", "flap keys only for a 3-DOF case");
   if (n == 3) {
     if (auto v = ini.number("flap_deg")) {
       ini.require(std::abs(*v) <= 90, "flap_deg", "is beyond the theory's small angles",
                   "|flap| <= 90 degrees");
-      s.initial_displacement(kFlap) = *v * kDeg;
+      s.initial_displacement(kFlap) = *v * kRadPerDeg;
     }
-    if (auto v = ini.number("flap_rate_deg_s")) s.initial_velocity(kFlap) = *v * kDeg;
+    if (auto v = ini.number("flap_rate_deg_s")) s.initial_velocity(kFlap) = *v * kRadPerDeg;
   }
   s.steady_lag_states = ini.choice("lag_states", {"rest", "steady"}, "rest") == "steady";
 
@@ -954,8 +954,7 @@ void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
   if (auto held = sim.strings("hold")) {
     for (const auto& h : *held) {
       const std::vector<std::string> names =
-          n == 3 ? std::vector<std::string>{"plunge", "pitch", "flap"}
-                 : std::vector<std::string>{"plunge", "pitch"};
+          std::vector<std::string>(kDofNames, kDofNames + n);
       auto it = std::find(names.begin(), names.end(), h);
       if (it == names.end())
         sim.fail("hold", fmt::format("names an unknown degree of freedom \"{}\"", h),
@@ -971,7 +970,7 @@ void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
 SpringLaw read_spring(const Table& t, int dof, double k) {
   const bool angle = dof != kPlunge;
   const std::string suf = angle ? "_deg" : "";
-  const double unit = angle ? kDeg : 1.0;
+  const double unit = angle ? kRadPerDeg : 1.0;
   const std::string du = angle ? "degrees" : "m";
   const std::string law =
       t.choice("law", {"linear", "freeplay", "bilinear", "cubic", "polynomial", "table"}, "linear");
@@ -1142,7 +1141,7 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
     if (sk == "start_distance") p.start = *g.number("start_distance") / U;
     if (!sk.empty()) g.require(p.start >= 0, sk, "must not be negative", "s or semichords >= 0");
     const std::string design = g.choice("design", {"cs-25"}, "");
-    const double eas_to_tas = std::sqrt(kSeaLevelDensity / rho);
+    const double eas_to_tas = eas_to_tas_factor(rho);
     if (p.shape == GustShape::kOneMinusCosine) {
       const double H = g.required_number("gradient", "gust gradient distance H, m (9 to 107 m in CS-25.341)");
       g.require(H > 0, "gradient", "must be positive", "H in m");
@@ -1379,9 +1378,8 @@ Case parse_case(const std::string& text, const std::string& path,
   const Table springs = top.sub("springs");
   const double k_nominal[3] = {s.plunge_stiffness, s.pitch_stiffness,
                                s.dof == 3 ? s.flap_stiffness : 0.0};
-  const char* dof_names[3] = {"plunge", "pitch", "flap"};
   for (int j = 0; j < 3; ++j) {
-    const Table t = springs.sub(dof_names[j]);
+    const Table t = springs.sub(kDofNames[j]);
     if (j == kFlap && s.dof == 2 && t.present())
       t.fail("law", "needs a flap", "[springs.flap] only for a 3-DOF case");
     c.model.springs[j] = read_spring(t, j, k_nominal[j]);

@@ -7,13 +7,13 @@
 #include <Eigen/LU>
 
 #include "aerosect/error.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
 std::string state_component_name(const StateLayout& L, int i) {
-  static const char* const dofs[3] = {"plunge", "pitch", "flap"};
-  if (i >= L.displacement && i < L.displacement + L.n_dof) return dofs[i - L.displacement];
-  if (i >= L.velocity && i < L.velocity + L.n_dof) return std::string(dofs[i - L.velocity]) + "_velocity";
+  if (i >= L.displacement && i < L.displacement + L.n_dof) return kDofNames[i - L.displacement];
+  if (i >= L.velocity && i < L.velocity + L.n_dof) return std::string(kDofNames[i - L.velocity]) + "_velocity";
   if (i >= L.wagner && i < L.wagner + L.n_wagner) return "wagner_lag_state_" + std::to_string(i - L.wagner + 1);
   if (i >= L.gust && i < L.gust + L.n_gust) return "gust_lag_state_" + std::to_string(i - L.gust + 1);
   return "x[" + std::to_string(i) + "]";

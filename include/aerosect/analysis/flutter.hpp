@@ -35,6 +35,7 @@
 #include "aerosect/analysis/describing_function.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/model/system.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
@@ -118,8 +119,5 @@ struct FlutterReport {
 std::vector<double> default_speeds(const Case& c);
 
 FlutterReport flutter_analysis(const Case& c, const FlutterOptions& options);
-
-// Equivalent airspeed of a true airspeed at density rho: U sqrt(rho / 1.225).
-double equivalent_airspeed(double true_airspeed, double density);
 
 }  // namespace aerosect

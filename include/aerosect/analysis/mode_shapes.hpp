@@ -11,12 +11,13 @@
 
 #include <Eigen/Core>
 
+#include "aerosect/units.hpp"  // dof_name
+
 namespace aerosect {
 
 Eigen::VectorXcd normalised_shape(Eigen::VectorXcd v, double semichord);
 double mac(const Eigen::VectorXcd& a, const Eigen::VectorXcd& b);
 int dominant_dof(const Eigen::VectorXcd& normalised, const Eigen::MatrixXd& structural_mass,
                  double semichord);
-const char* dof_name(int dof);
 
 }  // namespace aerosect

@@ -9,13 +9,13 @@
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/io/hdf5_document.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
 namespace {
 
-const char* const kDofNames[3] = {"plunge", "pitch", "flap"};
-const char* dof_units(int j) { return j == kPlunge ? "m" : "rad"; }
+const char* dof_units(int j) { return kDofUnits[j]; }
 
 bool complete(const Branch& b) { return !b.cancelled && !b.points.empty(); }
 
@@ -190,7 +190,7 @@ nlohmann::json branch_json(const Case& c, const Branch& b, const std::string& ou
 }
 
 std::string branch_text(const Case& c, const Branch& b, const std::string& output_path) {
-  const double deg = 180.0 / std::numbers::pi;
+  const double deg = kDegPerRad;
   const int w = b.watched_dof;
   const double unit = w == kPlunge ? 1.0 : deg;
   const char* uname = w == kPlunge ? "m" : "deg";

@@ -44,6 +44,7 @@
 #include "aerosect/error.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/io/hdf5_writer.hpp"
+#include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
 
 namespace {
@@ -363,7 +364,7 @@ int run_orbits(const Common& o, const OrbitsOptions& oo) {
     bo.start_amplitude = *oo.start_amplitude;
   }
   if (!oo.watch.empty()) {
-    const int j = oo.watch == "plunge" ? 0 : oo.watch == "pitch" ? 1 : oo.watch == "flap" ? 2 : -1;
+    const int j = aerosect::dof_index(oo.watch);
     if (j < 0 || j >= c.model.section.dof)
       throw aerosect::InputError({"--watch", 0, 0}, "--watch", oo.watch, "is not a DOF of this case",
                                  c.model.section.dof == 3 ? "plunge, pitch or flap" : "plunge or pitch");
@@ -372,7 +373,7 @@ int run_orbits(const Common& o, const OrbitsOptions& oo) {
   if (oo.start_amplitude) {
     const int w = bo.orbit.watched_dof >= 0 ? bo.orbit.watched_dof
                   : aerosect::orbit_watched_dof(aerosect::AeroelasticModel(c.model), -1);
-    if (w != 0) bo.start_amplitude *= std::numbers::pi / 180.0;
+    if (w != 0) bo.start_amplitude *= aerosect::kRadPerDeg;
   }
   const bool tty = isatty(2);
   const auto t0 = std::chrono::steady_clock::now();

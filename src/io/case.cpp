@@ -1,6 +1,8 @@
 #include "aerosect/io/case.hpp"
 #include "aerosect/io/text_file.hpp"
 
+#include "case_gusts.hpp"
+
 #include <algorithm>
 #include <cerrno>
 #include <cstring>
@@ -19,10 +21,9 @@
 
 #include "aerosect/error.hpp"
 #include "aerosect/model/atmosphere.hpp"
-#include "aerosect/io/gust_record.hpp"
+#include "aerosect/io/toml_reader.hpp"
 #include "aerosect/model/gust.hpp"
 #include "aerosect/model/spring.hpp"
-#include "aerosect/model/turbulence.hpp"
 #include "aerosect/units.hpp"
 
 namespace aerosect {
@@ -30,10 +31,12 @@ namespace aerosect {
 namespace {
 
 using std::numbers::pi;
+using namespace toml_input;
 
 // ---------------------------------------------------------------------------
-// The schema: every key a case file may hold.
-const std::vector<std::string> kKnownKeys = {
+// The schema: every key a case file may hold. The gust keys come from
+// case_gusts.cpp, the spring keys from kSpringLaws below.
+const std::vector<std::string> kCaseKeys = {
     "title",
     "description",
     "section.semichord",
@@ -104,461 +107,56 @@ const std::vector<std::string> kKnownKeys = {
     "simulation.initial_step",
     "simulation.hold",
     "envelope.dive_speed_eas",
-    "aerodynamics.kussner",
-    "aerodynamics.kussner_coefficients",
-    "aerodynamics.kussner_exponents",
-    "gust.shape",
-    "gust.start",
-    "gust.start_semichords",
-    "gust.start_distance",
-    "gust.amplitude",
-    "gust.amplitude_eas",
-    "gust.gradient",
-    "gust.design",
-    "gust.speed_condition",
-    "gust.altitude",
-    "gust.landing_weight_ratio",
-    "gust.zero_fuel_weight_ratio",
-    "gust.max_operating_altitude",
-    "gust.frequency_hz",
-    "gust.reduced_frequency",
-    "gust.cycles",
-    "gust.label",
-    "gust.file",
-    "gust.base",
-    "gust.base_dataset",
-    "gust.velocity_dataset",
-    "gust.scale",
-    "gust.model",
-    "gust.intensity",
-    "gust.severity",
-    "gust.scale_length",
-    "gust.seed",
-    "gust.sample_interval",
-    "springs.plunge.law",
-    "springs.plunge.half_gap",
-    "springs.plunge.total_gap",
-    "springs.plunge.gap_below",
-    "springs.plunge.gap_above",
-    "springs.plunge.offset",
-    "springs.plunge.inner_stiffness",
-    "springs.plunge.half_width",
-    "springs.plunge.cubic_coefficient",
-    "springs.plunge.coefficients",
-    "springs.plunge.displacements",
-    "springs.plunge.forces",
-    "springs.pitch.law",
-    "springs.pitch.half_gap_deg",
-    "springs.pitch.total_gap_deg",
-    "springs.pitch.gap_below_deg",
-    "springs.pitch.gap_above_deg",
-    "springs.pitch.offset_deg",
-    "springs.pitch.inner_stiffness",
-    "springs.pitch.half_width_deg",
-    "springs.pitch.cubic_coefficient",
-    "springs.pitch.coefficients",
-    "springs.pitch.displacements_deg",
-    "springs.pitch.forces",
-    "springs.flap.law",
-    "springs.flap.half_gap_deg",
-    "springs.flap.total_gap_deg",
-    "springs.flap.gap_below_deg",
-    "springs.flap.gap_above_deg",
-    "springs.flap.offset_deg",
-    "springs.flap.inner_stiffness",
-    "springs.flap.half_width_deg",
-    "springs.flap.cubic_coefficient",
-    "springs.flap.coefficients",
-    "springs.flap.displacements_deg",
-    "springs.flap.forces",
 };
 
-// Tables that may appear (prefixes of known keys).
-bool is_known_table(const std::string& path) {
-  return std::any_of(kKnownKeys.begin(), kKnownKeys.end(),
-                     [&](const std::string& k) { return k.rfind(path + ".", 0) == 0; });
-}
-bool is_known_key(const std::string& path) {
-  return std::find(kKnownKeys.begin(), kKnownKeys.end(), path) != kKnownKeys.end();
-}
-
-std::size_t edit_distance(std::string_view a, std::string_view b) {
-  std::vector<std::size_t> prev(b.size() + 1), cur(b.size() + 1);
-  for (std::size_t j = 0; j <= b.size(); ++j) prev[j] = j;
-  for (std::size_t i = 1; i <= a.size(); ++i) {
-    cur[0] = i;
-    for (std::size_t j = 1; j <= b.size(); ++j) {
-      const std::size_t sub = prev[j - 1] + (a[i - 1] == b[j - 1] ? 0 : 1);
-      cur[j] = std::min({prev[j] + 1, cur[j - 1] + 1, sub});
-    }
-    std::swap(prev, cur);
-  }
-  return prev[b.size()];
-}
-
-std::string leaf_of(const std::string& path) {
-  const auto p = path.rfind('.');
-  return p == std::string::npos ? path : path.substr(p + 1);
-}
-
-std::string parent_of(const std::string& path) {
-  const auto p = path.rfind('.');
-  return p == std::string::npos ? std::string() : path.substr(0, p);
-}
-
-// Closest known key (or table) to an unknown dotted path, or "": first
-// among the keys of the same table, then anywhere (a key put in the wrong
-// table). An unknown table is matched against tables only ([springs.roll]
-// is no 'simulation.hold'); an unknown value against keys and tables.
-std::string suggestion_for(const std::string& path, bool is_table = false) {
-  std::vector<std::string> candidates;
-  if (!is_table) candidates = kKnownKeys;
-  for (const auto& k : kKnownKeys) {
-    for (auto p = k.find('.'); p != std::string::npos; p = k.find('.', p + 1))
-      candidates.push_back(k.substr(0, p));
-  }
-  const std::string leaf = leaf_of(path), parent = parent_of(path);
-  const std::size_t limit = std::max<std::size_t>(2, leaf.size() / 3);
-  for (bool same_table : {true, false}) {
-    std::string best;
-    std::size_t best_d = limit + 1;
-    for (const auto& c : candidates) {
-      if (same_table != (parent_of(c) == parent)) continue;
-      const std::size_t d = edit_distance(leaf, leaf_of(c));
-      // A candidate sharing nothing with the leaf ('x' -> 'cg') is no hint.
-      if (d < best_d && d < leaf.size()) {
-        best_d = d;
-        best = c;
-      }
-    }
-    if (!best.empty()) return best;
-  }
-  return std::string();
-}
-
-std::string join(const std::vector<std::string>& v, const char* sep = ", ") {
-  std::string s;
-  for (std::size_t i = 0; i < v.size(); ++i) s += (i ? sep : "") + v[i];
-  return s;
-}
-
-std::string quoted_list(const std::vector<std::string>& v) {
-  std::vector<std::string> q;
-  for (const auto& s : v) q.push_back("\"" + s + "\"");
-  return join(q);
-}
-
-// A value on one line as the user would write it: numbers in their shortest
-// round-trip form (0.1, not 0.10000000000000001), arrays element by element,
-// at most 60 characters.
-std::string node_text(const toml::node& n) {
-  std::string s;
-  if (n.is_table()) {
-    s = "(table)";
-  } else if (auto* a = n.as_array()) {
-    s = "[";
-    for (std::size_t i = 0; i < a->size() && s.size() <= 60; ++i)
-      s += (i ? ", " : "") + node_text(*a->get(i));
-    s += "]";
-  } else if (auto* f = n.as_floating_point()) {
-    const double v = f->get();
-    s = std::isnan(v) ? std::string("nan") : fmt::format("{}", v);
-    if (std::isfinite(v) && s.find_first_of(".e") == std::string::npos) s += ".0";
-  } else {
-    std::ostringstream os;
-    n.visit([&](auto&& v) { os << v; });
-    s = os.str();
-  }
-  if (s.size() > 60) s = s.substr(0, 57) + "...";
-  return s;
-}
-
-// ---------------------------------------------------------------------------
-// Reading context: where values came from.
-struct Context {
-  std::string file;
-  std::map<std::string, std::string> overrides;  // key -> "key=value"
+// The laws of a [springs.<dof>] table and the keys of each law: one list
+// for the three DOFs. A displacement key (kSpringLengthKeys) carries the
+// suffix "_deg" (degrees) in the pitch and flap tables and none (m) in the
+// plunge table.
+const std::vector<std::pair<std::string, std::vector<std::string>>> kSpringLaws = {
+    {"linear", {}},
+    {"freeplay", {"half_gap", "total_gap", "gap_below", "gap_above", "offset"}},
+    {"bilinear", {"inner_stiffness", "half_width", "offset"}},
+    {"cubic", {"cubic_coefficient"}},
+    {"polynomial", {"coefficients"}},
+    {"table", {"displacements", "forces"}},
 };
+const std::vector<std::string> kSpringLengthKeys = {"half_gap",  "total_gap",  "gap_below",    "gap_above",
+                                                    "offset",    "half_width", "displacements"};
 
-class Table {
- public:
-  Table(const Context& ctx, const toml::table* t, std::string path)
-      : ctx_(ctx), t_(t), path_(std::move(path)) {}
-
-  bool present() const { return t_ != nullptr; }
-  const std::string& path() const { return path_; }
-  std::string key_path(std::string_view key) const {
-    return path_.empty() ? std::string(key) : path_ + "." + std::string(key);
-  }
-
-  const toml::node* node(std::string_view key) const {
-    return t_ ? t_->get(key) : nullptr;
-  }
-  bool has(std::string_view key) const { return node(key) != nullptr; }
-
-  SourceLocation where(std::string_view key) const {
-    const std::string kp = key_path(key);
-    if (auto it = ctx_.overrides.find(kp); it != ctx_.overrides.end())
-      return {"--set " + it->second, 0, 0};
-    if (const toml::node* n = node(key)) {
-      const auto& src = n->source();
-      return {ctx_.file, static_cast<int>(src.begin.line), static_cast<int>(src.begin.column)};
-    }
-    return where_table();
-  }
-  SourceLocation where_table() const {
-    if (t_) {
-      const auto& src = t_->source();
-      return {ctx_.file, static_cast<int>(src.begin.line), 0};
-    }
-    return {ctx_.file, 0, 0};
-  }
-
-  [[noreturn]] void fail(std::string_view key, const std::string& problem,
-                         const std::string& allowed) const {
-    const toml::node* n = node(key);
-    throw InputError(where(key), key_path(key), n ? node_text(*n) : std::string(), problem,
-                     allowed);
-  }
-
-  // A number (integers accepted), or nullopt when absent.
-  std::optional<double> number(std::string_view key) const {
-    const toml::node* n = node(key);
-    if (!n) return std::nullopt;
-    std::optional<double> v = n->value<double>();
-    if (!v || n->is_boolean()) fail(key, "must be a number", "a finite number");
-    if (!std::isfinite(*v)) fail(key, "must be finite", "a finite number (not nan or inf)");
-    return v;
-  }
-
-  double required_number(std::string_view key, const std::string& what) const {
-    auto v = number(key);
-    if (!v) missing(key, what);
-    return *v;
-  }
-
-  [[noreturn]] void missing(std::string_view key, const std::string& what) const {
-    throw InputError(where_table(), key_path(key), "",
-                     fmt::format("missing{}", present() ? "" : fmt::format(" (no [{}] table)", path_)),
-                     what);
-  }
-
-  std::optional<std::string> string(std::string_view key) const {
-    const toml::node* n = node(key);
-    if (!n) return std::nullopt;
-    auto v = n->value<std::string>();
-    if (!v) fail(key, "must be a string", "a quoted string");
-    return v;
-  }
-
-  std::string choice(std::string_view key, const std::vector<std::string>& allowed,
-                     const std::string& def) const {
-    auto v = string(key);
-    if (!v) return def;
-    if (std::find(allowed.begin(), allowed.end(), *v) == allowed.end()) {
-      std::string hint;
-      std::size_t best = 3;
-      for (const auto& a : allowed) {
-        const std::size_t d = edit_distance(*v, a);
-        if (d < best) {
-          best = d;
-          hint = a;
-        }
-      }
-      fail(key, hint.empty() ? "is not one of the choices"
-                             : fmt::format("is not one of the choices (did you mean \"{}\"?)", hint),
-           quoted_list(allowed));
-    }
-    return *v;
-  }
-
-  std::optional<bool> boolean(std::string_view key) const {
-    const toml::node* n = node(key);
-    if (!n) return std::nullopt;
-    if (!n->is_boolean()) fail(key, "must be true or false", "true or false");
-    return n->value<bool>();
-  }
-
-  std::optional<std::vector<double>> numbers(std::string_view key) const {
-    const toml::node* n = node(key);
-    if (!n) return std::nullopt;
-    const toml::array* a = n->as_array();
-    if (!a) fail(key, "must be an array of numbers", "an array such as [0.165, 0.335]");
-    std::vector<double> out;
-    for (const auto& e : *a) {
-      auto v = e.value<double>();
-      if (!v || e.is_boolean()) fail(key, "must be an array of numbers", "finite numbers");
-      if (!std::isfinite(*v)) fail(key, "must hold finite numbers", "finite numbers");
-      out.push_back(*v);
-    }
-    return out;
-  }
-
-  std::optional<std::vector<std::string>> strings(std::string_view key) const {
-    const toml::node* n = node(key);
-    if (!n) return std::nullopt;
-    const toml::array* a = n->as_array();
-    if (!a) fail(key, "must be an array of strings", "an array such as [\"plunge\"]");
-    std::vector<std::string> out;
-    for (const auto& e : *a) {
-      auto v = e.value<std::string>();
-      if (!v) fail(key, "must be an array of strings", "strings");
-      out.push_back(*v);
-    }
-    return out;
-  }
-
-  // Which one of alternative keys is given; "" when none. Two given: error.
-  std::string one_of(const std::vector<std::string>& keys) const {
-    std::string found;
-    for (const auto& k : keys) {
-      if (!has(k)) continue;
-      if (!found.empty())
-        fail(k, fmt::format("conflicts with '{}': give only one of them", key_path(found)),
-             "one of " + join(keys));
-      found = k;
-    }
-    return found;
-  }
-  std::string required_one_of(const std::vector<std::string>& keys,
-                              const std::string& what) const {
-    std::string k = one_of(keys);
-    if (k.empty()) {
-      std::vector<std::string> full;
-      for (const auto& x : keys) full.push_back(key_path(x));
-      throw InputError(where_table(), join(full, " | "), "",
-                       fmt::format("missing: give one of {}", join(full)), what);
-    }
-    return k;
-  }
-
-  // Value checks.
-  void require(bool ok, std::string_view key, const std::string& problem,
-               const std::string& allowed) const {
-    if (!ok) fail(key, problem, allowed);
-  }
-  Table sub(std::string_view key) const {
-    const toml::node* n = node(key);
-    if (n && !n->is_table())
-      fail(key, "must be a table", fmt::format("a [{}] table", key_path(key)));
-    return Table(ctx_, n ? n->as_table() : nullptr, key_path(key));
-  }
-
- private:
-  const Context& ctx_;
-  const toml::table* t_;
-  std::string path_;
-};
-
-// Unknown keys anywhere in the document.
-void check_unknown_keys(const Context& ctx, const toml::table& t, const std::string& prefix) {
-  for (const auto& [k, v] : t) {
-    const std::string path = prefix.empty() ? std::string(k.str()) : prefix + "." + std::string(k.str());
-    if (v.is_table() && is_known_table(path)) {
-      check_unknown_keys(ctx, *v.as_table(), path);
-      continue;
-    }
-    // [[gust]]: an array of tables, each checked against the gust keys.
-    if (path == "gust" && v.is_array_of_tables()) {
-      for (const auto& e : *v.as_array()) check_unknown_keys(ctx, *e.as_table(), path);
-      continue;
-    }
-    if (!v.is_table() && is_known_key(path)) continue;
-    // A value where a table belongs (`section = 3`, `[[section]]`): left to
-    // Table::sub, which reports "must be a table" at the value.
-    if (!v.is_table() && is_known_table(path)) continue;
-    SourceLocation where{ctx.file, static_cast<int>(k.source().begin.line),
-                         static_cast<int>(k.source().begin.column)};
-    if (where.line == 0) {
-      where.line = static_cast<int>(v.source().begin.line);
-      where.column = static_cast<int>(v.source().begin.column);
-    }
-    if (auto it = ctx.overrides.find(path); it != ctx.overrides.end())
-      where = {"--set " + it->second, 0, 0};
-    const std::string hint = suggestion_for(path, v.is_table() && !is_known_key(path));
-    std::string problem = v.is_table() && !is_known_table(path) && is_known_key(path)
-                              ? "must be a value, not a table"
-                              : "unknown key";
-    if (!hint.empty() && hint != path) problem += fmt::format(" (did you mean '{}'?)", hint);
-    throw InputError(where, path, v.is_table() ? "" : node_text(v), problem,
-                     "the keys listed in README.md, \"Case file reference\"");
-  }
+// A spring key as written in the table of DOF `dof`.
+std::string spring_key(const std::string& key, int dof) {
+  const bool length = std::find(kSpringLengthKeys.begin(), kSpringLengthKeys.end(), key) !=
+                      kSpringLengthKeys.end();
+  return length && is_angle_dof(dof) ? key + "_deg" : key;
 }
 
-// ---------------------------------------------------------------------------
-// Overrides.
-void apply_override(toml::table& root, const std::string& text, Context& ctx) {
-  const auto eq = text.find('=');
-  if (eq == std::string::npos || eq == 0)
-    throw InputError({"--set " + text, 0, 0}, "", text, "is not of the form key=value",
-                     "--set section.mass=12.5 (a dotted key from the case-file reference)");
-  auto trim = [](std::string s) {
-    const auto b = s.find_first_not_of(" \t"), e = s.find_last_not_of(" \t");
-    return b == std::string::npos ? std::string() : s.substr(b, e - b + 1);
-  };
-  const std::string key = trim(text.substr(0, eq));
-  const std::string value = trim(text.substr(eq + 1));
-  if (is_known_table(key)) {
-    const auto first = std::find_if(kKnownKeys.begin(), kKnownKeys.end(), [&](const std::string& k) {
-      return k.rfind(key + ".", 0) == 0;
-    });
-    throw InputError({"--set " + text, 0, 0}, key, value, "is a table, not a key",
-                     fmt::format("a key inside it, such as --set {}=...", *first));
-  }
-  if (!is_known_key(key)) {
-    const std::string hint = suggestion_for(key);
-    throw InputError({"--set " + text, 0, 0}, key, value,
-                     hint.empty() ? "unknown key" : fmt::format("unknown key (did you mean '{}'?)", hint),
-                     "the keys listed in README.md, \"Case file reference\"");
-  }
-  // Parse the value as TOML; a bare word is a string.
-  toml::table parsed;
-  try {
-    parsed = toml::parse(std::string_view("v = " + value));
-  } catch (const toml::parse_error&) {
-    parsed = toml::table{};
-    parsed.insert("v", value);
-  }
-  // Walk/create the tables on the path.
-  toml::table* t = &root;
-  std::size_t start = 0;
-  while (true) {
-    const auto dot = key.find('.', start);
-    if (dot == std::string::npos) break;
-    const std::string part = key.substr(start, dot - start);
-    toml::node* n = t->get(part);
-    if (!n) {
-      t->insert(part, toml::table{});
-      n = t->get(part);
-    }
-    if (!n->is_table())
-      throw InputError({"--set " + text, 0, 0}, key, value,
-                       fmt::format("'{}' is not a table in the case file", key.substr(0, dot)),
-                       fmt::format("a [{}] table in the case file", key.substr(0, dot)));
-    t = n->as_table();
-    start = dot + 1;
-  }
-  const std::string leaf = key.substr(start);
-  t->insert_or_assign(leaf, *parsed.get("v"));
-  ctx.overrides[key] = text;
+// springs.<dof>.law, then the laws' keys in the order first named.
+std::vector<std::string> spring_case_keys() {
+  std::vector<std::string> names = {"law"};
+  for (const auto& [law, keys] : kSpringLaws)
+    for (const auto& k : keys)
+      if (std::find(names.begin(), names.end(), k) == names.end()) names.push_back(k);
+  std::vector<std::string> out;
+  for (int dof = 0; dof < kMaxDof; ++dof)
+    for (const auto& k : names) out.push_back(fmt::format("springs.{}.{}", kDofNames[dof], spring_key(k, dof)));
+  return out;
+}
+
+const Schema& case_schema() {
+  static const Schema schema = [] {
+    std::vector<std::string> keys = kCaseKeys;
+    for (const auto& k : gust_case_keys()) keys.push_back(k);
+    for (const auto& k : spring_case_keys()) keys.push_back(k);
+    return Schema(std::move(keys), {"gust"}, "the keys listed in README.md, \"Case file reference\"",
+                  "--set section.mass=12.5 (a dotted key from the case-file reference)", "case file");
+  }();
+  return schema;
 }
 
 // ---------------------------------------------------------------------------
 // Reading the section forms.
 constexpr const char* kChordPos = "a position in semichords from midchord, -1 < x < 1";
-
-double positive(const Table& t, std::string_view key, const std::string& units) {
-  const double v = t.required_number(key, "a positive number, " + units);
-  t.require(v > 0, key, "must be positive", "a positive number, " + units);
-  return v;
-}
-
-double nonnegative_or(const Table& t, std::string_view key, double def, const std::string& what) {
-  auto v = t.number(key);
-  if (!v) return def;
-  t.require(*v >= 0, key, "must not be negative", what);
-  return *v;
-}
 
 double damping_ratio(const Table& t, std::string_view key) {
   auto v = t.number(key);
@@ -972,17 +570,15 @@ SpringLaw read_spring(const Table& t, int dof, double k) {
   const std::string suf = angle ? "_deg" : "";
   const double unit = angle ? kRadPerDeg : 1.0;
   const std::string du = angle ? "degrees" : "m";
-  const std::string law =
-      t.choice("law", {"linear", "freeplay", "bilinear", "cubic", "polynomial", "table"}, "linear");
+  std::vector<std::string> laws;
+  for (const auto& l : kSpringLaws) laws.push_back(l.first);
+  const std::string law = t.choice("law", laws, "linear");
   // Keys that belong to each law; any other law's key is an error.
-  const std::map<std::string, std::vector<std::string>> keys_of = {
-      {"linear", {}},
-      {"freeplay", {"half_gap" + suf, "total_gap" + suf, "gap_below" + suf, "gap_above" + suf,
-                    "offset" + suf}},
-      {"bilinear", {"inner_stiffness", "half_width" + suf, "offset" + suf}},
-      {"cubic", {"cubic_coefficient"}},
-      {"polynomial", {"coefficients"}},
-      {"table", {"displacements" + suf, "forces"}}};
+  std::map<std::string, std::vector<std::string>> keys_of;
+  for (const auto& [l, keys] : kSpringLaws) {
+    auto& mine = keys_of[l];
+    for (const auto& k : keys) mine.push_back(spring_key(k, dof));
+  }
   const auto& mine = keys_of.at(law);
   for (const auto& [other, ks] : keys_of) {
     for (const auto& key : ks) {
@@ -1079,209 +675,6 @@ SpringLaw read_spring(const Table& t, int dof, double k) {
 }
 
 
-// [aerodynamics] Küssner keys and the [[gust]] tables.
-void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, Case& c) {
-  const std::string kk = aero.choice("kussner", {"two-pole", "three-pole", "custom"}, "two-pole");
-  const auto kc = aero.numbers("kussner_coefficients");
-  const auto ke = aero.numbers("kussner_exponents");
-  const std::string kwhat =
-      "psi(s) = 1 - sum c_i exp(-d_i s): kussner_coefficients = [c_1, ...] and "
-      "kussner_exponents = [d_1, ...] per semichord (not per chord), 1 to 8 poles";
-  if (kk != "custom") {
-    if (kc) aero.fail("kussner_coefficients", "is only used with kussner = \"custom\"", kwhat);
-    if (ke) aero.fail("kussner_exponents", "is only used with kussner = \"custom\"", kwhat);
-    c.model.kussner = kk == "two-pole" ? kussner_two_pole() : kussner_three_pole();
-  } else {
-    if (!kc) aero.missing("kussner_coefficients", kwhat);
-    if (!ke) aero.missing("kussner_exponents", kwhat);
-    aero.require(!kc->empty() && kc->size() <= 8, "kussner_coefficients", "must have 1 to 8 entries", kwhat);
-    aero.require(ke->size() == kc->size(), "kussner_exponents",
-                 fmt::format("has {} entries but kussner_coefficients has {}", ke->size(), kc->size()),
-                 kwhat);
-    double sum = 0;
-    for (double v : *kc) sum += v;
-    aero.require(sum > 0 && sum <= 1 + 1e-12, "kussner_coefficients",
-                 fmt::format("sum to {:.6g}: psi(0) = {:.6g} would be negative or psi would not rise", sum, 1 - sum),
-                 "coefficients whose sum lies in (0, 1] (psi(0) = 0 for a sharp-edged gust)");
-    for (double e : *ke) aero.require(e > 0, "kussner_exponents", "must all be positive", "d_i > 0");
-    c.model.kussner = {*kc, *ke};
-  }
-  c.model.kussner_name = kk;
-
-  const toml::node* node = root.get("gust");
-  if (!node) return;
-  const Table top(ctx, &root, "");
-  if (!node->is_array_of_tables())
-    top.fail("gust", "must be an array of tables", "one [[gust]] table per gust profile");
-  const double U = c.model.flow.airspeed, b = c.model.section.semichord;
-  const double rho = c.model.flow.density;
-  std::vector<GustProfile> profiles;
-  for (const auto& e : *node->as_array()) {
-    const Table g(ctx, e.as_table(), "gust");
-    GustProfile p;
-    const std::string shape = g.choice(
-        "shape", {"sharp-edged", "one-minus-cosine", "sinusoidal", "recorded", "turbulence"}, "");
-    if (shape.empty())
-      g.missing("shape", "\"sharp-edged\", \"one-minus-cosine\", \"sinusoidal\" or \"recorded\"");
-    const bool turbulence = shape == "turbulence";
-    p.shape = shape == "sharp-edged"        ? GustShape::kSharpEdged
-              : shape == "one-minus-cosine" ? GustShape::kOneMinusCosine
-              : shape == "sinusoidal"       ? GustShape::kSinusoidal
-                                            : GustShape::kRecorded;
-    const bool recorded = p.shape == GustShape::kRecorded && !turbulence;
-    for (const char* k : {"model", "intensity", "severity", "scale_length", "seed", "sample_interval"})
-      if (!turbulence && g.has(k)) g.fail(k, "is only used by turbulence", "shape = \"turbulence\"");
-    for (const char* k : {"file", "base", "base_dataset", "velocity_dataset", "scale"})
-      if (!recorded && g.has(k)) g.fail(k, "is only used by recorded gusts", "shape = \"recorded\"");
-    g.require(U > 0 && rho > 0, "shape", "needs air and a positive airspeed",
-              "a case with density > 0 and airspeed > 0");
-    const std::string sk = g.one_of({"start", "start_semichords", "start_distance"});
-    if (sk == "start") p.start = *g.number("start");
-    if (sk == "start_semichords") p.start = *g.number("start_semichords") * b / U;
-    if (sk == "start_distance") p.start = *g.number("start_distance") / U;
-    if (!sk.empty()) g.require(p.start >= 0, sk, "must not be negative", "s or semichords >= 0");
-    const std::string design = g.choice("design", {"cs-25"}, "");
-    const double eas_to_tas = eas_to_tas_factor(rho);
-    if (p.shape == GustShape::kOneMinusCosine) {
-      const double H = g.required_number("gradient", "gust gradient distance H, m (9 to 107 m in CS-25.341)");
-      g.require(H > 0, "gradient", "must be positive", "H in m");
-      p.gradient = H;
-      if (design == "cs-25") {
-        for (const char* k : {"amplitude", "amplitude_eas"})
-          if (g.has(k)) g.fail(k, "conflicts with design = \"cs-25\" (which sizes the gust)",
-                               "either an amplitude or design = \"cs-25\" with its inputs");
-        g.require(H >= 30 * 0.3048 - 1e-9 && H <= 350 * 0.3048 + 1e-9, "gradient",
-                  "is outside the rule's range", "9.144 m <= H <= 106.68 m (30 to 350 ft)");
-        RegulationGustInputs in;
-        in.gradient = H;
-        if (auto a = g.number("altitude")) {
-          g.require(*a >= 0 && *a <= kIsaMaxAltitude, "altitude", "is out of range", "0 to 20000 m");
-          in.altitude = *a;
-        } else if (c.altitude) {
-          in.altitude = std::max(0.0, *c.altitude);
-        } else {
-          g.missing("altitude", "the altitude for the rule (m), needed when [flow] gives a density");
-        }
-        auto ratio = [&](const char* k) {
-          const double v = g.required_number(k, "a weight ratio, 0 < ratio <= 1");
-          g.require(v > 0 && v <= 1, k, "is not a weight ratio", "0 < ratio <= 1");
-          return v;
-        };
-        in.landing_weight_ratio = ratio("landing_weight_ratio");
-        in.zero_fuel_weight_ratio = ratio("zero_fuel_weight_ratio");
-        in.max_operating_altitude = g.required_number("max_operating_altitude", "Z_mo, m");
-        g.require(in.max_operating_altitude > 0 && in.max_operating_altitude < 76200,
-                  "max_operating_altitude", "is out of range", "0 < Z_mo < 76200 m (250 000 ft)");
-        in.at_dive_speed = g.choice("speed_condition", {"VC", "VD"}, "VC") == "VD";
-        p.amplitude = cs25_design_gust_velocity(in) * eas_to_tas;
-        p.regulation_sized = true;
-        p.eas_to_tas = eas_to_tas;
-        c.gust_regulation = in;
-      }
-    }
-    if (turbulence) {
-      // Continuous turbulence: a seeded record from the shaping filter
-      // (turbulence.hpp), replayed as a recorded gust over the whole run.
-      for (const char* k : {"amplitude", "amplitude_eas", "design", "gradient", "file"})
-        if (g.has(k)) g.fail(k, "is not used by turbulence", "model, intensity or severity, scale_length, seed");
-      TurbulenceSpec spec;
-      spec.model = g.choice("model", {"dryden", "von-karman"}, "von-karman") == "dryden"
-                       ? TurbulenceModel::kDryden
-                       : TurbulenceModel::kVonKarman;
-      spec.airspeed = U;
-      double h = c.altitude.value_or(-1.0);
-      if (auto a = g.number("altitude")) h = *a;
-      const std::string ik = g.one_of({"intensity", "severity"});
-      if (ik == "intensity") {
-        spec.intensity = *g.number("intensity");
-        g.require(spec.intensity >= 0 && spec.intensity < 50, "intensity", "is impossible", "0 <= sigma_w < 50 m/s");
-      } else {
-        const std::string sev = g.choice("severity", {"light", "moderate", "severe"}, "");
-        if (sev.empty()) g.missing("intensity | gust.severity", "intensity (sigma_w, m/s) or severity (MIL-F-8785C)");
-        if (!(h > 0)) g.missing("altitude", "an altitude (m) for the MIL-F-8785C intensity");
-        spec.intensity = mil8785c_intensity(sev == "light" ? TurbulenceSeverity::kLight
-                                            : sev == "moderate" ? TurbulenceSeverity::kModerate
-                                                                : TurbulenceSeverity::kSevere, h);
-      }
-      if (auto L = g.number("scale_length")) {
-        g.require(*L > 0, "scale_length", "must be positive", "L_w in m (MIL-F-8785C convention)");
-        spec.scale_length = *L;
-      } else {
-        if (!(h > 0)) g.missing("scale_length", "a scale length (m), or an altitude for the MIL-F-8785C default");
-        spec.scale_length = mil8785c_scale_length(spec.model, h);
-      }
-      const double seed = g.number("seed").value_or(1.0);
-      g.require(seed >= 0 && seed < 9.007e15 && seed == std::floor(seed), "seed", "must be a whole number",
-                "0 <= seed < 2^53");
-      spec.seed = static_cast<std::uint64_t>(seed);
-      const auto w = uncoupled_frequencies(c.model.section);
-      const double fastest = std::max({w.plunge, w.pitch, w.flap});
-      double dt = std::min(spec.scale_length / U / 20.0, 2 * pi / fastest / 40.0);
-      if (auto v = g.number("sample_interval")) {
-        g.require(*v > 0, "sample_interval", "must be positive", "s");
-        dt = *v;
-      }
-      const double span = c.simulation.duration - p.start;
-      g.require(span / dt < 5e7, "sample_interval", fmt::format("gives {:.3g} samples", span / dt),
-                "at most 5e7 samples in a turbulence record");
-      const std::size_t n = static_cast<std::size_t>(std::ceil(std::max(span, dt) / dt)) + 1;
-      const std::vector<double> rec = turbulence_record(spec, dt, n);
-      p.record_velocity = rec;
-      p.record_time.resize(n);
-      for (std::size_t k = 0; k < n; ++k) p.record_time[k] = static_cast<double>(k) * dt;
-      p.label = fmt::format("{} turbulence sigma = {:.3g} m/s, L = {:.4g} m, seed {}", to_string(spec.model),
-                            spec.intensity, spec.scale_length, spec.seed);
-    } else if (recorded) {
-      for (const char* k : {"amplitude", "amplitude_eas", "design", "gradient"})
-        if (g.has(k)) g.fail(k, "is not used by recorded gusts (scale the record with `scale`)",
-                             "file, base, base_dataset, velocity_dataset, scale");
-      const std::string file = g.string("file").value_or("");
-      if (file.empty()) g.missing("file", "the recorded gust file (CSV or HDF5)");
-      std::string full = file;
-      if (!file.empty() && file[0] != '/') {
-        const auto slash = c.path.rfind('/');
-        if (slash != std::string::npos) full = c.path.substr(0, slash + 1) + file;
-      }
-      const std::string base = g.choice("base", {"time", "distance"}, "time");
-      const GustRecord rec = read_gust_record(
-          full, g.string("base_dataset").value_or(base), g.string("velocity_dataset").value_or("gust_velocity"),
-          g.where("file"), "gust.file");
-      const double scale = g.number("scale").value_or(1.0);
-      p.record_time = rec.base;
-      if (base == "distance")
-        for (double& x : p.record_time) x /= U;
-      for (double w : rec.velocity) p.record_velocity.push_back(scale * w);
-    } else if (design.empty() || p.shape != GustShape::kOneMinusCosine) {
-      if (!design.empty()) g.fail("design", "applies to one-minus-cosine gusts only", "shape = \"one-minus-cosine\"");
-      for (const char* k : {"speed_condition", "altitude", "landing_weight_ratio",
-                            "zero_fuel_weight_ratio", "max_operating_altitude"})
-        if (g.has(k)) g.fail(k, "is only used with design = \"cs-25\"", "design = \"cs-25\"");
-      const std::string ak = g.required_one_of(
-          {"amplitude", "amplitude_eas"}, "gust velocity in m/s: amplitude (true airspeed) or amplitude_eas");
-      const double a = *g.number(ak);
-      g.require(std::abs(a) < 100, ak, "is beyond any atmospheric gust", "|amplitude| < 100 m/s");
-      p.amplitude = ak == "amplitude" ? a : a * eas_to_tas;
-    }
-    if (p.shape != GustShape::kOneMinusCosine && g.has("gradient"))
-      g.fail("gradient", "is only used by one-minus-cosine gusts", "shape = \"one-minus-cosine\"");
-    if (p.shape == GustShape::kSinusoidal) {
-      const std::string fk = g.required_one_of(
-          {"frequency_hz", "reduced_frequency"}, "frequency_hz (Hz) or reduced_frequency (k = omega b / U)");
-      const double f = *g.number(fk);
-      g.require(f > 0, fk, "must be positive", "a positive frequency");
-      p.frequency = fk == "frequency_hz" ? 2 * pi * f : f * U / b;
-      p.cycles = nonnegative_or(g, "cycles", 0.0, "periods, 0 for until the end");
-    } else {
-      for (const char* k : {"frequency_hz", "reduced_frequency", "cycles"})
-        if (g.has(k)) g.fail(k, "is only used by sinusoidal gusts", "shape = \"sinusoidal\"");
-    }
-    if (!turbulence) p.label = g.string("label").value_or(
-        p.shape == GustShape::kOneMinusCosine ? fmt::format("1-cos H = {:g} m", p.gradient) : shape);
-    profiles.push_back(p);
-  }
-  c.model.gusts = GustField(profiles, U);
-}
-
 // The 3-DOF structural mass matrix must be positive definite.
 void check_mass_matrix(const Case& c, const Table& flap, const Table& nd) {
   if (c.model.section.dof != 3) return;
@@ -1308,7 +701,7 @@ std::string read_file(const std::string& path) {
 
 }  // namespace
 
-const std::vector<std::string>& known_case_keys() { return kKnownKeys; }
+const std::vector<std::string>& known_case_keys() { return case_schema().keys(); }
 
 std::string Case::text_as_run() const {
   std::string s = text;
@@ -1331,17 +724,9 @@ Case parse_case(const std::string& text, const std::string& path,
   c.text = text;
   c.overrides = overrides;
 
-  toml::table root;
-  try {
-    root = toml::parse(std::string_view(text), std::string_view(path));
-  } catch (const toml::parse_error& e) {
-    const auto& src = e.source();
-    throw InputError({path, static_cast<int>(src.begin.line), static_cast<int>(src.begin.column)},
-                     "", "", fmt::format("not valid TOML: {}", e.description()),
-                     "TOML syntax (https://toml.io): key = value lines under [table] headers");
-  }
-  for (const auto& o : overrides) apply_override(root, o, ctx);
-  check_unknown_keys(ctx, root, "");
+  toml::table root = parse_document(text, path);
+  for (const auto& o : overrides) apply_override(root, o, case_schema(), ctx);
+  check_unknown_keys(ctx, case_schema(), root);
 
   const Table top(ctx, &root, "");
   c.title = top.string("title").value_or("");

@@ -1,5 +1,6 @@
 // libFuzzer target: arbitrary bytes as a case file through the reader and
-// validator (parse_case), then the model build from a case that reads.
+// validator (parse_case: io/toml_reader.cpp, io/case.cpp, io/case_gusts.cpp),
+// then the model build from a case that reads.
 // InputError is the expected answer to bad input; any other exception
 // (libFuzzer reports it as a crash), a crash, a sanitizer report or a
 // message longer than one screen is a finding.

@@ -1,7 +1,15 @@
-#!/usr/bin/python3
 """Plots of aerosect result files (HDF5, see include/aerosect/io/hdf5_writer.hpp).
 
-    tools/plot FILE.h5 [-o OUTDIR]
+    tools/plot FILE.h5 [-o OUTDIR]         (the command: a thin wrapper over main())
+    python3 -m aerosect.plot FILE.h5 [-o OUTDIR]   (with python/ on PYTHONPATH)
+
+As a library: plot_file(path, outdir) plots every figure of a file and
+returns the paths written; each figure also has its own function taking the
+open h5py.File, the stem of the output names and the output directory, and
+returning the path it wrote (plot_time_histories, plot_phase_portraits,
+plot_vg, plot_vg_gaps, plot_sweep, plot_gust_sweep). PlotError says why a
+file cannot be plotted. Everything a figure shows is read from the file
+itself (datasets and attributes).
 
 The root attribute `aerosect_file_kind` selects the plotter. For a
 `simulation` file it writes, into OUTDIR (default: the directory of FILE):
@@ -160,12 +168,11 @@ def gust_panel(f):
     return lines
 
 
-def plot_simulation(f, stem, outdir):
+def plot_time_histories(f, stem, outdir):
+    """<stem>_time.png: the stacked time histories of a simulation file."""
     if "time" not in f:
         raise PlotError("simulation file without a 'time' dataset")
     time, time_label = series(f, "time", convert=False)
-    written = []
-
     panels = [
         (p[0], signed_label(p[1], n))
         for n in ("plunge", "pitch", "flap", "lift", "pitching_moment", "hinge_moment")
@@ -196,34 +203,46 @@ def plot_simulation(f, stem, outdir):
     axes[-1, 0].set_xlabel(time_label)
     axes[-1, 0].set_xlim(time[0], time[-1])
     axes[0, 0].set_title(figure_title(f), fontsize="medium")
-    written.append(save(fig, os.path.join(outdir, f"{stem}_time.png")))
+    return save(fig, os.path.join(outdir, f"{stem}_time.png"))
 
+
+def plot_phase_portraits(f, stem, outdir):
+    """<stem>_phase.png: one phase portrait per DOF; None when the file has no
+    displacement with its velocity."""
     dofs = []
     for name in ("plunge", "pitch", "flap"):
         displacement = series(f, name)
         velocity = series(f, f"{name}_velocity")
         if displacement is not None and velocity is not None:
             dofs.append((name, displacement, velocity))
-    if dofs:
-        fig, axes = plt.subplots(1, len(dofs), squeeze=False,
-                                 figsize=(WIDTH_IN, 3.8 if len(dofs) > 1 else 5.2))
-        for ax, (name, (x, x_label), (v, v_label)) in zip(axes[0], dofs):
-            ax.plot(x, v, linewidth=0.7)
-            finite = np.flatnonzero(np.isfinite(x) & np.isfinite(v))
-            if finite.size:
-                ax.plot(x[finite[0]], v[finite[0]], "o", color="tab:green", label="start")
-                ax.plot(x[finite[-1]], v[finite[-1]], "s", color="tab:red", label="end")
-            ax.set_xlabel(x_label)
-            ax.set_ylabel(v_label)
-            ax.set_title(name, fontsize="medium")
-            ax.grid(True, linewidth=0.4, alpha=0.6)
-        fig.suptitle(figure_title(f), fontsize="medium", x=0.02, ha="left")
-        fig.tight_layout(rect=(0, 0, 1, 0.93))
-        handles, labels = axes[0, 0].get_legend_handles_labels()
-        if handles:
-            fig.legend(handles, labels, loc="upper right", ncol=2, fontsize="small",
-                       frameon=False)
-        written.append(save(fig, os.path.join(outdir, f"{stem}_phase.png")))
+    if not dofs:
+        return None
+    fig, axes = plt.subplots(1, len(dofs), squeeze=False,
+                             figsize=(WIDTH_IN, 3.8 if len(dofs) > 1 else 5.2))
+    for ax, (name, (x, x_label), (v, v_label)) in zip(axes[0], dofs):
+        ax.plot(x, v, linewidth=0.7)
+        finite = np.flatnonzero(np.isfinite(x) & np.isfinite(v))
+        if finite.size:
+            ax.plot(x[finite[0]], v[finite[0]], "o", color="tab:green", label="start")
+            ax.plot(x[finite[-1]], v[finite[-1]], "s", color="tab:red", label="end")
+        ax.set_xlabel(x_label)
+        ax.set_ylabel(v_label)
+        ax.set_title(name, fontsize="medium")
+        ax.grid(True, linewidth=0.4, alpha=0.6)
+    fig.suptitle(figure_title(f), fontsize="medium", x=0.02, ha="left")
+    fig.tight_layout(rect=(0, 0, 1, 0.93))
+    handles, labels = axes[0, 0].get_legend_handles_labels()
+    if handles:
+        fig.legend(handles, labels, loc="upper right", ncol=2, fontsize="small",
+                   frameon=False)
+    return save(fig, os.path.join(outdir, f"{stem}_phase.png"))
+
+
+def plot_simulation(f, stem, outdir):
+    written = [plot_time_histories(f, stem, outdir)]
+    phase = plot_phase_portraits(f, stem, outdir)
+    if phase is not None:
+        written.append(phase)
     return written
 
 
@@ -977,26 +996,34 @@ PLOTTERS = {
 }
 
 
+def plot_file(path, outdir=None):
+    """Every figure of the aerosect result file `path` (its kind read from its
+    own `aerosect_file_kind` attribute) into `outdir` (default: the file's
+    directory), named after the file's stem; returns the paths written.
+    Raises PlotError for a file it cannot plot, OSError for one h5py cannot
+    read."""
+    outdir = outdir or os.path.dirname(os.path.abspath(path))
+    stem = os.path.splitext(os.path.basename(path))[0]
+    with h5py.File(path, "r") as f:
+        kind = text_attribute(f, "aerosect_file_kind")
+        if kind is None:
+            raise PlotError("not an aerosect result file (no aerosect_file_kind attribute)")
+        plotter = PLOTTERS.get(kind)
+        if plotter is None:
+            raise PlotError(f"no plots for files of kind '{kind}' "
+                            f"(known: {', '.join(sorted(PLOTTERS))})")
+        os.makedirs(outdir, exist_ok=True)
+        return plotter(f, stem, outdir)
+
+
 def main(argv):
     parser = argparse.ArgumentParser(prog="plot", description="Plot an aerosect result file.")
     parser.add_argument("file", help="aerosect HDF5 result file")
     parser.add_argument("-o", "--outdir", help="directory for the PNG files "
                         "(default: the directory of FILE)")
     args = parser.parse_args(argv)
-
-    outdir = args.outdir or os.path.dirname(os.path.abspath(args.file))
-    stem = os.path.splitext(os.path.basename(args.file))[0]
     try:
-        with h5py.File(args.file, "r") as f:
-            kind = text_attribute(f, "aerosect_file_kind")
-            if kind is None:
-                raise PlotError("not an aerosect result file (no aerosect_file_kind attribute)")
-            plotter = PLOTTERS.get(kind)
-            if plotter is None:
-                raise PlotError(f"no plots for files of kind '{kind}' "
-                                f"(known: {', '.join(sorted(PLOTTERS))})")
-            os.makedirs(outdir, exist_ok=True)
-            paths = plotter(f, stem, outdir)
+        paths = plot_file(args.file, args.outdir)
     except PlotError as e:
         print(f"plot: {args.file}: {e}", file=sys.stderr)
         return 2

@@ -1,0 +1,154 @@
+#!/usr/bin/python3
+"""The plotting module (python/aerosect/plot.py) used in-process, as a
+library: each figure function on files the program writes, the file-level
+entry point, the refusal of other files, and the command-line wrapper
+tools/plot giving the same paths as the module.
+
+    test_plot_module.py AEROSECT SOURCE_DIR
+
+Checks what the program's own files give (common practice, no source):
+every figure is a PNG of the module's width (WIDTH_IN x DPI pixels), each
+function returns the paths it wrote, and main() answers 2 with a message for
+a file that is not an aerosect result.
+"""
+
+import contextlib
+import io
+import os
+import struct
+import subprocess
+import sys
+import tempfile
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from test_plot_flutter import Checks  # noqa: E402
+
+AEROSECT, SOURCE = sys.argv[1], sys.argv[2]
+sys.path.insert(0, os.path.join(SOURCE, "python"))
+import h5py  # noqa: E402
+
+from aerosect import plot  # noqa: E402
+
+CASE = """title = "plot module test"
+[nondimensional]
+mass_ratio = 100.0
+elastic_axis = -0.5
+cg_offset = 0.25
+radius_of_gyration = 0.5
+frequency_ratio = 0.2
+reduced_speed = 5.0
+[springs.pitch]
+law = "freeplay"
+half_gap_deg = 0.5
+[initial]
+pitch_deg = 2.0
+[simulation]
+duration_semichords = 200.0
+sample_interval_semichords = 1.0
+"""
+
+
+def png_size(path):
+    with open(path, "rb") as f:
+        head = f.read(24)
+    assert head[:8] == b"\x89PNG\r\n\x1a\n", f"{path} is not a PNG"
+    return struct.unpack(">II", head[16:24])
+
+
+def check_png(path):
+    assert os.path.isfile(path), f"{path} was not written"
+    width, height = png_size(path)
+    expected = round(plot.WIDTH_IN * plot.DPI)
+    assert abs(width - expected) <= 2, f"{path}: {width} px wide, expected {expected}"
+    assert height > 100, f"{path}: only {height} px high"
+
+
+def run(*args):
+    result = subprocess.run([AEROSECT, *args], capture_output=True, text=True)
+    assert result.returncode == 0, f"aerosect {' '.join(args)}: {result.stderr}"
+
+
+def check_figure_functions(work):
+    """Each figure function, called on an open file, returns the path it wrote."""
+    sim, flut = os.path.join(work, "run.h5"), os.path.join(work, "flutter.h5")
+    with h5py.File(sim, "r") as f:
+        path = plot.plot_time_histories(f, "run", work)
+        assert path == os.path.join(work, "run_time.png"), path
+        check_png(path)
+        path = plot.plot_phase_portraits(f, "run", work)
+        assert path == os.path.join(work, "run_phase.png"), path
+        check_png(path)
+    with h5py.File(flut, "r") as f:
+        speed, reference, labels = plot.flutter_axes(f)
+        path = plot.plot_vg(f, "flutter", work, speed, reference, labels)
+        assert path == os.path.join(work, "flutter_vg.png"), path
+        check_png(path)
+        path = plot.plot_vg_gaps(f, "flutter", work, speed, reference, labels)
+        assert path == os.path.join(work, "flutter_vg_gaps.png"), path
+        check_png(path)
+
+
+def check_plot_file(work):
+    """plot_file: the kind read from the file's own attribute, every figure of it."""
+    out = os.path.join(work, "by_file")
+    paths = plot.plot_file(os.path.join(work, "run.h5"), out)
+    assert [os.path.basename(p) for p in paths] == ["run_time.png", "run_phase.png"], paths
+    for p in paths:
+        check_png(p)
+    paths = plot.plot_file(os.path.join(work, "flutter.h5"), out)
+    assert [os.path.basename(p) for p in paths] == ["flutter_vg.png", "flutter_vg_gaps.png"], paths
+
+
+def check_refusals(work):
+    """A file that is not an aerosect result: PlotError from plot_file, 2 from main."""
+    other = os.path.join(work, "other.h5")
+    with h5py.File(other, "w") as f:
+        f["x"] = [1.0, 2.0]
+    try:
+        plot.plot_file(other, work)
+    except plot.PlotError as e:
+        assert "aerosect_file_kind" in str(e), str(e)
+    else:
+        raise AssertionError("plot_file accepted a file without aerosect_file_kind")
+    text = os.path.join(work, "not_hdf5.h5")
+    with open(text, "w") as f:
+        f.write("not HDF5\n")
+    for path in (other, text):
+        err = io.StringIO()
+        with contextlib.redirect_stderr(err), contextlib.redirect_stdout(io.StringIO()):
+            status = plot.main([path])
+        assert status == 2, f"main() gave {status} for {path}"
+        assert err.getvalue().startswith(f"plot: {path}: "), err.getvalue()
+
+
+def check_main_and_wrapper(work):
+    """main() prints the paths written; tools/plot (the wrapper) prints the same."""
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out):
+        status = plot.main([os.path.join(work, "run.h5"), "-o", os.path.join(work, "main")])
+    assert status == 0
+    in_process = out.getvalue().split()
+    result = subprocess.run([sys.executable, os.path.join(SOURCE, "tools", "plot"),
+                             os.path.join(work, "run.h5"), "-o", os.path.join(work, "main")],
+                            capture_output=True, text=True)
+    assert result.returncode == 0, result.stderr
+    assert result.stdout.split() == in_process, (result.stdout, in_process)
+
+
+def main():
+    checks = Checks()
+    with tempfile.TemporaryDirectory(prefix="aerosect-plot-module-") as work:
+        case = os.path.join(work, "case.toml")
+        with open(case, "w") as f:
+            f.write(CASE)
+        run("simulate", case, "-o", os.path.join(work, "run.h5"))
+        run("flutter", case, "--speeds", "0.5:8:16", "-o", os.path.join(work, "flutter.h5"))
+        checks.run("figure functions return the paths they wrote", check_figure_functions, work)
+        checks.run("plot_file plots every figure of the file's kind", check_plot_file, work)
+        checks.run("other files are refused", check_refusals, work)
+        checks.run("main and the tools/plot wrapper agree", check_main_and_wrapper, work)
+    return checks.summary()
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -55,14 +55,6 @@ class Registry {
   std::map<std::string, int> claims_;  // lock file path -> locked descriptor
 };
 
-const char* kind_of(mode_t m) {
-  if (S_ISDIR(m)) return "a directory";
-  if (S_ISFIFO(m)) return "a FIFO (named pipe)";
-  if (S_ISCHR(m)) return "a character device";
-  if (S_ISBLK(m)) return "a block device";
-  if (S_ISSOCK(m)) return "a socket";
-  return "not a regular file";
-}
 
 bool lock_exclusive(int fd) {
   struct flock fl {};
@@ -114,6 +106,16 @@ void Registry::claim(const std::string& target) {
 
 }  // namespace
 
+const char* file_type_name(unsigned mode) {
+  const mode_t m = static_cast<mode_t>(mode);
+  if (S_ISDIR(m)) return "a directory";
+  if (S_ISFIFO(m)) return "a FIFO (named pipe)";
+  if (S_ISCHR(m)) return "a character device";
+  if (S_ISBLK(m)) return "a block device";
+  if (S_ISSOCK(m)) return "a socket";
+  return "not a regular file";
+}
+
 void register_input(const std::string& path) {
   struct stat st {};
   if (::stat(path.c_str(), &st) == 0) Registry::instance().add_input({st.st_dev, st.st_ino});
@@ -126,7 +128,7 @@ void claim_output(const std::string& target) {
     if (S_ISDIR(st.st_mode)) throw OutputError(target, "a directory of that name exists");
     if (!S_ISREG(st.st_mode))
       throw OutputError(target, fmt::format("it is {}; aerosect writes regular files only, and "
-                                            "writing would replace it", kind_of(st.st_mode)));
+                                            "writing would replace it", file_type_name(st.st_mode)));
     if (Registry::instance().is_input({st.st_dev, st.st_ino}))
       throw OutputError(target, "it is an input of this run; writing would replace it: choose "
                                 "another output name");

@@ -51,15 +51,6 @@ std::string read_file_bytes(const std::string& path) {
 
 namespace {
 
-// "a FIFO (named pipe)", "a character device", ... for a file type.
-const char* kind_of(mode_t m) {
-  if (S_ISDIR(m)) return "a directory";
-  if (S_ISFIFO(m)) return "a FIFO (named pipe)";
-  if (S_ISCHR(m)) return "a character device";
-  if (S_ISBLK(m)) return "a block device";
-  if (S_ISSOCK(m)) return "a socket";
-  return "not a regular file";
-}
 
 std::string size_text(std::uint64_t bytes) {
   if (bytes >= (1ull << 20)) return fmt::format("{:.4g} MiB", static_cast<double>(bytes) / (1 << 20));
@@ -100,7 +91,7 @@ int open_checked(const std::string& path, std::uint64_t max_bytes, const std::st
   if (!S_ISREG(st.st_mode)) {
     ::close(fd);
     refuse(path, where, key,
-           fmt::format("cannot read the {} (it is {}{})", what, kind_of(st.st_mode),
+           fmt::format("cannot read the {} (it is {}{})", what, file_type_name(st.st_mode),
                        S_ISDIR(st.st_mode) ? "" : ", not a regular file"),
            allowed);
   }

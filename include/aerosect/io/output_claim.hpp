@@ -23,6 +23,10 @@
 
 namespace aerosect {
 
+// "a directory", "a FIFO (named pipe)", "a character device", ... for a
+// stat() st_mode that is not a regular file (shared by the input checks).
+const char* file_type_name(unsigned mode);
+
 // Records `path` (if it exists) as an input of this process.
 void register_input(const std::string& path);
 

@@ -10,32 +10,33 @@
 
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/pk.hpp"
+#include "aerosect/analysis/root_tracking.hpp"
 
 namespace aerosect {
 
 namespace {
 
-// Largest real part of the oscillatory eigenvalues (|Im| > 0: flutter, not
-// the real divergence or lag roots) and that root's frequency, rad/s.
-std::pair<double, double> oscillatory_growth(const ModelDescription& d, const DofVector& k, double U) {
-  ModelDescription m = d;
-  m.flow.airspeed = U;
-  m.held = {false, false, false};
-  const Eigen::MatrixXd A = AeroelasticModel(m).state_matrix(k);
-  Eigen::EigenSolver<Eigen::MatrixXd> es(A, false);
-  double g = -std::numeric_limits<double>::infinity(), w = 0;
+// The oscillatory root (|Im| > 0: flutter, not the real divergence or lag
+// roots) with the largest growth margin (root_tracking.hpp), and its
+// frequency, rad/s.
+Root oscillatory_root(const AeroelasticModel& model, const DofVector& k, double U) {
+  Eigen::EigenSolver<Eigen::MatrixXd> es(model.state_matrix_at(U, k), false);
+  Root best;
+  best.eigenvalue = {-std::numeric_limits<double>::infinity(), 0.0};
+  best.spectral_radius = es.eigenvalues().cwiseAbs().maxCoeff();
   for (Eigen::Index i = 0; i < es.eigenvalues().size(); ++i) {
     const std::complex<double> l = es.eigenvalues()(i);
-    if (std::abs(l.imag()) > 1e-8 * std::max(1.0, std::abs(l)) && l.real() > g) {
-      g = l.real();
-      w = std::abs(l.imag());
+    if (std::abs(l.imag()) > 1e-8 * std::max(1.0, std::abs(l)) &&
+        growth_margin(l, best.spectral_radius) > growth_margin(best)) {
+      best.eigenvalue = l;
+      best.frequency = std::abs(l.imag());
     }
   }
-  return {g, w};
+  return best;
 }
 
-double largest_growth(const ModelDescription& d, const DofVector& k, double U) {
-  return oscillatory_growth(d, k, U).first;
+double largest_growth(const AeroelasticModel& model, const DofVector& k, double U) {
+  return growth_margin(oscillatory_root(model, k, U));
 }
 
 }  // namespace
@@ -77,6 +78,7 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
     return gap ? scale * (1 + 1e-4 * std::pow(1e6, f)) : scale * 1e-3 * std::pow(1e3, f);
   };
 
+  const AeroelasticModel model = stability_model(c.model);
   DofVector k(n);
   for (int i = 0; i < n; ++i) k(i) = c.model.springs[i].nominal_stiffness();
   // Every neutral speed of each equivalent linear system: the speeds where
@@ -88,26 +90,33 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
     const double N = law.describing_function(A);
     if (!(N >= 0)) continue;
     k(j) = N;
-    auto g = [&](double U) { return largest_growth(c.model, k, U); };
+    auto g = [&](double U) { return largest_growth(model, k, U); };
     int branch = 0;
     double g0 = g(speeds.front());
     for (std::size_t q = 1; q < speeds.size(); ++q) {
       const double g1 = g(speeds[q]);
       if ((g0 < 0) != (g1 < 0) && std::isfinite(g0) && std::isfinite(g1)) {
+        // The growth criterion picks the interval; the neutral point
+        // Re lambda = 0 inside it is the LCO speed (the margin's own zero
+        // when Re lambda does not change sign there: round-off level).
+        auto re = [&](double U) { return oscillatory_root(model, k, U).eigenvalue.real(); };
+        const double r0 = re(speeds[q - 1]), r1 = re(speeds[q]);
+        const bool neutral = (r0 < 0) != (r1 < 0);
         boost::uintmax_t iterations = 100;
         const auto root = boost::math::tools::toms748_solve(
-            g, speeds[q - 1], speeds[q], g0, g1,
-            boost::math::tools::eps_tolerance<double>(40), iterations);
+            [&](double U) { return neutral ? re(U) : g(U); }, speeds[q - 1], speeds[q],
+            neutral ? r0 : g0, neutral ? r1 : g1, boost::math::tools::eps_tolerance<double>(40),
+            iterations);
         LcoPredictionPoint pt;
         pt.amplitude = A;
         pt.equivalent_stiffness = N;
         pt.speed = 0.5 * (root.first + root.second);
-        pt.frequency = oscillatory_growth(c.model, k, pt.speed).second;
+        pt.frequency = oscillatory_root(model, k, pt.speed).frequency;
         pt.branch = branch++;
         DofVector kp = k, km = k;
         kp(j) = law.describing_function(A * (1 + 1e-3));
         km(j) = law.describing_function(A * (1 - 1e-3));
-        pt.stable = largest_growth(c.model, kp, pt.speed) < 0 && largest_growth(c.model, km, pt.speed) > 0;
+        pt.stable = largest_growth(model, kp, pt.speed) < 0 && largest_growth(model, km, pt.speed) > 0;
         all.push_back(pt);
       }
       g0 = g1;

@@ -22,146 +22,99 @@ namespace {
 using cd = std::complex<double>;
 using std::numbers::pi;
 
-Eigen::MatrixXd matrix_at(const ModelDescription& model, const DofVector& k, double U) {
-  ModelDescription d = model;
-  d.flow.airspeed = U;
-  d.held = {false, false, false};
-  return AeroelasticModel(d).state_matrix(k);
-}
-
 // Eigenvalues in the closed upper half plane with their displacement parts.
 struct Candidates {
   std::vector<cd> values;
   std::vector<Eigen::VectorXcd> shapes;  // normalised (h/b, ...)
+  double spectral_radius = 0;
 };
 
-Candidates candidates_at(const ModelDescription& model, const DofVector& k, double U) {
-  const Eigen::MatrixXd A = matrix_at(model, k, U);
+Candidates candidates_of(const Eigen::MatrixXd& A, int n, double b) {
   Eigen::EigenSolver<Eigen::MatrixXd> es(A, true);
   AEROSECT_CHECK(es.info() == Eigen::Success);
-  const int n = model.section.dof;
   const double scale = es.eigenvalues().cwiseAbs().maxCoeff();
   Candidates c;
+  c.spectral_radius = scale;
   for (Eigen::Index i = 0; i < es.eigenvalues().size(); ++i) {
     const cd v = es.eigenvalues()(i);
     if (v.imag() < -1e-12 * scale) continue;
     c.values.push_back(cd(v.real(), std::max(0.0, v.imag())));
-    c.shapes.push_back(normalised_shape(es.eigenvectors().col(i).head(n), model.section.semichord));
+    c.shapes.push_back(normalised_shape(es.eigenvectors().col(i).head(n), b));
   }
   return c;
-}
-
-StabilityRoot make_root(cd lambda, const Eigen::VectorXcd& shape, double U, double b) {
-  StabilityRoot r;
-  r.eigenvalue = lambda;
-  r.frequency = std::abs(lambda.imag());
-  const double mag = std::abs(lambda);
-  r.damping_ratio = mag > 0 ? -lambda.real() / mag : 0.0;
-  r.reduced_frequency = U > 0 ? r.frequency * b / U
-                              : (r.frequency > 0 ? std::numeric_limits<double>::infinity() : 0.0);
-  r.shape = shape;
-  return r;
 }
 
 // Continue every mode's root from `from` to the candidates `c`. Returns
 // false when the assignment is not clean (step too large). With `strict`
 // false (the step cannot be refined further, e.g. exactly at a frequency
 // coalescence) each mode takes the nearest candidate not yet taken.
-bool assign(const std::vector<StabilityRoot>& from, const Candidates& c, double U, double b,
-            std::vector<StabilityRoot>& to, bool strict = true) {
+bool assign(const std::vector<Root>& from, const Candidates& c, double U, double b,
+            std::vector<Root>& to, bool strict = true) {
   const std::size_t m = from.size();
-  to.assign(m, StabilityRoot{});
-  std::vector<int> taken(c.values.size(), -1);
+  to.assign(m, Root{});
+  std::vector<bool> taken(c.values.size(), false);
   for (std::size_t j = 0; j < m; ++j) {
-    const cd ref = from[j].eigenvalue;
-    // Nearest candidate, and its separation from the others.
-    std::size_t best = 0;
-    double d_best = std::numeric_limits<double>::infinity();
-    for (std::size_t i = 0; i < c.values.size(); ++i) {
-      if (!strict && taken[i] >= 0) continue;
-      const double d = std::abs(c.values[i] - ref);
-      if (d < d_best) {
-        d_best = d;
-        best = i;
-      }
-    }
-    if (!strict) {
-      taken[best] = static_cast<int>(j);
-      to[j] = make_root(c.values[best], c.shapes[best], U, b);
-      continue;
-    }
-    // Near-equidistant candidates: the best correlated shape wins.
-    std::size_t chosen = best;
-    double best_mac = -1;
-    int count = 0;
-    for (std::size_t i = 0; i < c.values.size(); ++i) {
-      if (std::abs(c.values[i] - ref) > 1.5 * d_best + 1e-14 * std::abs(ref)) continue;
-      ++count;
-      const double q = mac(c.shapes[i], from[j].shape);
-      if (q > best_mac) {
-        best_mac = q;
-        chosen = i;
-      }
-    }
-    if (count == 1) chosen = best;
+    const int chosen = strict ? continuing_candidate(c.values, c.shapes, from[j].eigenvalue,
+                                                     from[j].shape, 1.5)
+                              : continuing_candidate(c.values, c.shapes, from[j].eigenvalue,
+                                                     Eigen::VectorXcd(), 1.0, taken);
+    AEROSECT_CHECK(chosen >= 0);
+    const std::size_t i = static_cast<std::size_t>(chosen);
     double sep = std::numeric_limits<double>::infinity();
-    for (std::size_t i = 0; i < c.values.size(); ++i)
-      if (i != chosen) sep = std::min(sep, std::abs(c.values[i] - c.values[chosen]));
-    if (taken[chosen] >= 0) return false;
-    if (std::abs(c.values[chosen] - ref) > 0.5 * sep) return false;
-    taken[chosen] = static_cast<int>(j);
-    to[j] = make_root(c.values[chosen], c.shapes[chosen], U, b);
+    for (std::size_t q = 0; q < c.values.size(); ++q)
+      if (q != i) sep = std::min(sep, std::abs(c.values[q] - c.values[i]));
+    if (strict) {
+      if (taken[i]) return false;
+      if (std::abs(c.values[i] - from[j].eigenvalue) > 0.5 * sep) return false;
+    }
+    taken[i] = true;
+    to[j] = make_root(c.values[i], c.shapes[i], U, b);
+    to[j].spectral_radius = c.spectral_radius;
+    to[j].separation = sep;
   }
   return true;
 }
 
-std::vector<StabilityRoot> advance(const ModelDescription& model, const DofVector& k, double Ua,
-                                   const std::vector<StabilityRoot>& from, double Ub,
-                                   int depth = 0) {
-  const Candidates c = candidates_at(model, k, Ub);
-  std::vector<StabilityRoot> to;
-  if (assign(from, c, Ub, model.section.semichord, to)) return to;
-  if (depth >= 14) {
-    assign(from, c, Ub, model.section.semichord, to, false);
+// The state-space root provider: eigenvalues of A(U), assigned to the modes.
+RootProvider state_space_provider(const AeroelasticModel& model, const DofVector& k) {
+  RootProvider p;
+  p.max_halvings = 14;
+  p.step = [&model, k](double U, const std::vector<Root>& from,
+                       bool last_try) -> std::optional<std::vector<Root>> {
+    const double b = model.description().section.semichord;
+    const Candidates c = candidates_of(model.state_matrix_at(U, k), model.n_dof(), b);
+    std::vector<Root> to;
+    if (assign(from, c, U, b, to)) return to;
+    if (!last_try) return std::nullopt;
+    assign(from, c, U, b, to, false);
     return to;
-  }
-  const double Um = 0.5 * (Ua + Ub);
-  const std::vector<StabilityRoot> mid = advance(model, k, Ua, from, Um, depth + 1);
-  return advance(model, k, Um, mid, Ub, depth + 1);
+  };
+  return p;
 }
 
 // Roots at U = 0 from the in-vacuo modes of (K, M_s).
-std::vector<StabilityRoot> still_air_roots(const ModelDescription& model, const DofVector& k) {
-  const Eigen::MatrixXd M = structural_mass(model.section);
-  const Eigen::MatrixXd K = k.asDiagonal();
-  Eigen::GeneralizedSelfAdjointEigenSolver<Eigen::MatrixXd> es(K, M);
-  AEROSECT_CHECK(es.info() == Eigen::Success);
-  std::vector<StabilityRoot> vacuo;
-  for (Eigen::Index i = 0; i < es.eigenvalues().size(); ++i) {
-    const double w = std::sqrt(std::max(0.0, es.eigenvalues()(i)));
-    vacuo.push_back(make_root(cd(0.0, w),
-                              normalised_shape(es.eigenvectors().col(i).cast<cd>(),
-                                               model.section.semichord),
-                              0.0, model.section.semichord));
-  }
+std::vector<Root> still_air_roots(const AeroelasticModel& model, const DofVector& k) {
+  const SectionProperties& s = model.description().section;
+  std::vector<Root> roots = in_vacuo_roots(s, k);
   // Still air adds apparent mass and (if any) structural damping: follow by
   // scaling the density from 0 to the case's value.
-  ModelDescription d = model;
-  const double rho = model.flow.density;
-  std::vector<StabilityRoot> roots = vacuo;
+  ModelDescription d = model.description();
+  const double rho = d.flow.density;
   const int steps = 8;
-  for (int s = 1; s <= steps; ++s) {
-    d.flow.density = rho * s / steps;
-    const Candidates c = candidates_at(d, k, 0.0);
-    std::vector<StabilityRoot> next;
-    if (!assign(roots, c, 0.0, model.section.semichord, next)) {
+  for (int step = 1; step <= steps; ++step) {
+    d.flow.density = rho * step / steps;
+    const Candidates c =
+        candidates_of(AeroelasticModel(d).state_matrix_at(0.0, k), s.dof, s.semichord);
+    std::vector<Root> next;
+    if (!assign(roots, c, 0.0, s.semichord, next)) {
       // Fall back to nearest-only matching at this density step.
       next = roots;
       for (auto& r : next) {
         std::size_t best = 0;
         for (std::size_t i = 1; i < c.values.size(); ++i)
           if (std::abs(c.values[i] - r.eigenvalue) < std::abs(c.values[best] - r.eigenvalue)) best = i;
-        r = make_root(c.values[best], c.shapes[best], 0.0, model.section.semichord);
+        r = make_root(c.values[best], c.shapes[best], 0.0, s.semichord);
+        r.spectral_radius = c.spectral_radius;
       }
     }
     roots = next;
@@ -169,81 +122,42 @@ std::vector<StabilityRoot> still_air_roots(const ModelDescription& model, const 
   return roots;
 }
 
-double frequency_floor(const ModelDescription& model) {
-  const auto w = uncoupled_frequencies(model.section);
-  return 1e-6 * std::max({w.plunge, w.pitch, w.flap});
-}
-
 }  // namespace
 
-StabilitySweep state_space_sweep(const ModelDescription& model, const DofVector& k,
-                                 const std::vector<double>& speeds) {
-  StabilitySweep sw;
-  sw.speeds = speeds;
-  std::vector<StabilityRoot> current = still_air_roots(model, k);
-  double U = 0;
-  for (std::size_t i = 0; i < speeds.size(); ++i) {
-    AEROSECT_CHECK(speeds[i] >= 0 && std::isfinite(speeds[i]));
-    if (i > 0) AEROSECT_CHECK(speeds[i] > speeds[i - 1]);
-    if (speeds[i] > U) current = advance(model, k, U, current, speeds[i]);
-    U = speeds[i];
-    sw.roots.push_back(current);
-  }
-  return sw;
+AeroelasticModel stability_model(const ModelDescription& description) {
+  ModelDescription d;
+  d.section = description.section;
+  d.flow = description.flow;
+  d.aero = description.aero;
+  d.springs = description.springs;
+  // held: none; gusts: none (see flutter.hpp).
+  return AeroelasticModel(std::move(d));
 }
 
-Crossing state_space_flutter(const ModelDescription& model, const DofVector& k,
-                             const StabilitySweep& sweep, double rtol) {
-  Crossing best;
-  const double w_floor = frequency_floor(model);
-  auto tol = [rtol](double x, double y) {
-    return std::abs(y - x) <= rtol * std::min(std::abs(x), std::abs(y));
-  };
-  // Growth rate beyond round-off: a neutral root of an undamped system (Re
-  // exactly 0 in theory, +-1e-16 |lambda| in floating point) is not unstable.
-  auto growth = [](const StabilityRoot& r) {
-    return r.eigenvalue.real() - 1e-9 * std::abs(r.eigenvalue);
-  };
-  for (std::size_t i = 0; i + 1 < sweep.speeds.size(); ++i) {
-    const auto& lo = sweep.roots[i];
-    const auto& hi = sweep.roots[i + 1];
-    const double Ua = sweep.speeds[i], Ub = sweep.speeds[i + 1];
-    for (std::size_t j = 0; j < lo.size(); ++j) {
-      const double ga = growth(lo[j]), gb = growth(hi[j]);
-      if (!(ga < 0 && gb >= 0)) continue;
-      if (hi[j].frequency <= w_floor && lo[j].frequency <= w_floor) continue;  // divergence
-      auto g = [&](double U) {
-        if (U <= Ua) return ga;
-        return growth(advance(model, k, Ua, lo, U)[j]);
-      };
-      double U = Ub;
-      if (gb != 0.0) {
-        std::uintmax_t iters = 200;
-        const auto br = boost::math::tools::toms748_solve(g, Ua, Ub, ga, gb, tol, iters);
-        U = 0.5 * (br.first + br.second);
-      }
-      if (best.found && U >= best.speed) continue;
-      const StabilityRoot r = advance(model, k, Ua, lo, U)[j];
-      if (r.frequency <= w_floor) continue;
-      best.found = true;
-      best.speed = U;
-      best.frequency = r.frequency;
-      best.reduced_frequency = r.reduced_frequency;
-      best.mode = static_cast<int>(j);
-      best.shape = r.shape;
-    }
-    if (best.found) break;
-  }
-  return best;
+RootSweep state_space_sweep(const AeroelasticModel& model, const DofVector& k,
+                            const std::vector<double>& speeds) {
+  return sweep_roots(state_space_provider(model, k), still_air_roots(model, k), speeds);
 }
 
-Crossing state_space_divergence(const ModelDescription& model, const DofVector& k,
+RootSweep state_space_sweep(const ModelDescription& d, const DofVector& k,
+                            const std::vector<double>& speeds) {
+  return state_space_sweep(stability_model(d), k, speeds);
+}
+
+Crossing state_space_flutter(const AeroelasticModel& model, const DofVector& k,
+                             const RootSweep& sweep, double rtol) {
+  return first_flutter_crossing(state_space_provider(model, k), sweep, rtol,
+                                frequency_floor(model.description().section));
+}
+
+Crossing state_space_divergence(const AeroelasticModel& model, const DofVector& k,
                                 const std::vector<double>& speeds, double rtol) {
   Crossing c;
-  auto det = [&](double U) { return matrix_at(model, k, U).partialPivLu().determinant(); };
+  auto det = [&](double U) { return model.state_matrix_at(U, k).partialPivLu().determinant(); };
   auto tol = [rtol](double x, double y) {
     return std::abs(y - x) <= rtol * std::min(std::abs(x), std::abs(y));
   };
+  const SectionProperties& s = model.description().section;
   double Ua = -1, da = 0;
   for (double U : speeds) {
     if (U <= 0) continue;
@@ -256,15 +170,13 @@ Crossing state_space_divergence(const ModelDescription& model, const DofVector& 
         Ud = 0.5 * (br.first + br.second);
       }
       // Shape: the null vector of A at divergence (displacement part).
-      const Eigen::MatrixXd A = matrix_at(model, k, Ud);
-      Eigen::FullPivLU<Eigen::MatrixXd> lu(A);
+      const Eigen::MatrixXd A = model.state_matrix_at(Ud, k);
       Eigen::EigenSolver<Eigen::MatrixXd> es(A, true);
       Eigen::Index i0 = 0;
       es.eigenvalues().cwiseAbs().minCoeff(&i0);
       c.found = true;
       c.speed = Ud;
-      c.shape = normalised_shape(es.eigenvectors().col(i0).head(model.section.dof),
-                                 model.section.semichord);
+      c.shape = normalised_shape(es.eigenvectors().col(i0).head(s.dof), s.semichord);
       return c;
     }
     Ua = U;
@@ -297,43 +209,20 @@ std::vector<double> default_speeds(const Case& c) {
 
 namespace {
 
-MethodResult pk_method(const Case& c, const DofVector& k, const std::vector<double>& speeds,
-                       double rtol) {
+MethodResult pk_method(const Case& c, const AeroelasticModel& model, const DofVector& k,
+                       const std::vector<double>& speeds, double rtol) {
   PkProblem pr;
   pr.section = c.model.section;
   pr.density = c.model.flow.density;
   pr.spring_stiffness = k;
   pr.aerodynamics = PkAerodynamics::kExactTheodorsen;
-  const PkSweep sw = pk_sweep(pr, speeds);
   MethodResult m;
   m.method = "p-k";
-  m.sweep.speeds = sw.speeds;
-  for (const auto& row : sw.roots) {
-    std::vector<StabilityRoot> out;
-    for (const auto& r : row) {
-      StabilityRoot s;
-      s.eigenvalue = r.p;
-      s.frequency = r.frequency;
-      s.damping_ratio = r.damping_ratio;
-      s.reduced_frequency = r.reduced_frequency;
-      s.shape = r.shape;
-      out.push_back(s);
-    }
-    m.sweep.roots.push_back(out);
-  }
-  const PkCrossing f = pk_flutter(pr, sw, rtol);
-  const double w_floor = frequency_floor(c.model);
-  if (f.found && f.frequency > w_floor) {
-    m.flutter.found = true;
-    m.flutter.speed = f.speed;
-    m.flutter.frequency = f.frequency;
-    m.flutter.reduced_frequency = f.reduced_frequency;
-    m.flutter.mode = f.mode;
-    m.flutter.shape = f.shape;
-  }
+  m.sweep = pk_sweep(pr, speeds);
+  m.flutter = pk_flutter(pr, m.sweep, rtol);
   // Divergence is a static property (C(0) = 1 for both methods): the
   // quasi-static eigenproblem is exact for it.
-  m.divergence = state_space_divergence(c.model, k, speeds, rtol);
+  m.divergence = state_space_divergence(model, k, speeds, rtol);
   return m;
 }
 
@@ -380,6 +269,7 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
     }
   }
 
+  const AeroelasticModel model = stability_model(c.model);
   for (const auto& [lin, k] : lins) {
     LinearisationResult lr;
     lr.linearisation = lin;
@@ -387,12 +277,12 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
     if (o.state_space) {
       MethodResult m;
       m.method = "state-space";
-      m.sweep = state_space_sweep(c.model, k, speeds);
-      m.flutter = state_space_flutter(c.model, k, m.sweep, o.relative_tolerance);
-      m.divergence = state_space_divergence(c.model, k, speeds, o.relative_tolerance);
+      m.sweep = state_space_sweep(model, k, speeds);
+      m.flutter = state_space_flutter(model, k, m.sweep, o.relative_tolerance);
+      m.divergence = state_space_divergence(model, k, speeds, o.relative_tolerance);
       lr.methods.push_back(std::move(m));
     }
-    if (o.pk) lr.methods.push_back(pk_method(c, k, speeds, o.relative_tolerance));
+    if (o.pk) lr.methods.push_back(pk_method(c, model, k, speeds, o.relative_tolerance));
     rep.results.push_back(std::move(lr));
   }
   if (o.lco_prediction) rep.lco = describing_function_lco(c, speeds);

@@ -371,7 +371,7 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
       std::vector<double> f(ns * n), z(ns * n), re(ns * n), im(ns * n), kr(ns * n);
       for (std::size_t i = 0; i < ns; ++i) {
         for (int j = 0; j < n; ++j) {
-          const StabilityRoot& root = m.sweep.roots[i][static_cast<std::size_t>(j)];
+          const Root& root = m.sweep.roots[i][static_cast<std::size_t>(j)];
           const std::size_t at = i * n + j;
           f[at] = root.frequency / (2 * pi);
           z[at] = root.damping_ratio;

@@ -6,6 +6,7 @@
 
 #include <Eigen/Eigenvalues>
 
+#include "aerosect/analysis/root_tracking.hpp"
 #include "aerosect/error.hpp"
 
 namespace aerosect {
@@ -24,8 +25,8 @@ namespace {
 
 // True when rest is an unstable equilibrium: the state matrix linearised
 // about rest (every gap open: the gap-open stiffness of each gap law, the
-// linear coefficient of the others) has an eigenvalue with a positive real
-// part. A motion that has died down to the floor there has not decayed: it
+// linear coefficient of the others) has a growing eigenvalue (the growth
+// criterion of root_tracking.hpp). A motion that has died down to the floor there has not decayed: it
 // is leaving the equilibrium (inside a freeplay gap above the gap-open
 // flutter speed, or any section above its linear flutter speed).
 bool rest_unstable(const AeroelasticModel& model) {
@@ -36,10 +37,7 @@ bool rest_unstable(const AeroelasticModel& model) {
     const SpringLaw& law = springs[static_cast<std::size_t>(j)];
     k(j) = law.breakpoints().empty() ? law.nominal_stiffness() : law.gap_open_stiffness();
   }
-  const Eigen::VectorXcd ev = Eigen::EigenSolver<Eigen::MatrixXd>(model.state_matrix(k), false).eigenvalues();
-  for (Eigen::Index i = 0; i < ev.size(); ++i)
-    if (ev(i).real() > 0) return true;
-  return false;
+  return any_growing(Eigen::EigenSolver<Eigen::MatrixXd>(model.state_matrix(k), false).eigenvalues());
 }
 
 }  // namespace

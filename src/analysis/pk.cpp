@@ -4,10 +4,10 @@
 #include <cmath>
 #include <cstdint>
 #include <limits>
+#include <optional>
 
 #include <Eigen/Eigenvalues>
 #include <Eigen/LU>
-#include <boost/math/tools/toms748_solve.hpp>
 
 #include "aerosect/analysis/mode_shapes.hpp"
 #include "aerosect/error.hpp"
@@ -97,35 +97,15 @@ Spectrum spectrum(const Assembly& a, const Quadratic& q) {
   return {es.eigenvalues(), es.eigenvectors().topRows(n)};
 }
 
-// Index of the eigenvalue continuing (p_ref, shape_ref).
+// Index of the eigenvalue continuing (p_ref, shape_ref): root_tracking.hpp.
 Eigen::Index pick(const Spectrum& sp, cd p_ref, const Eigen::VectorXcd& shape_ref,
                   double semichord, double ambiguity_ratio) {
-  const Eigen::Index m = sp.values.size();
-  Eigen::Index best = 0;
-  double d_best = std::numeric_limits<double>::infinity();
-  for (Eigen::Index i = 0; i < m; ++i) {
-    const double d = std::abs(sp.values(i) - p_ref);
-    if (d < d_best) {
-      d_best = d;
-      best = i;
-    }
-  }
-  if (shape_ref.size() != sp.shapes.rows()) return best;
-  // Several nearly equidistant candidates: the best-correlated shape wins.
-  const double reach = ambiguity_ratio * d_best + 1e-14 * std::abs(p_ref);
-  Eigen::Index chosen = best;
-  double best_mac = -1;
-  int count = 0;
-  for (Eigen::Index i = 0; i < m; ++i) {
-    if (std::abs(sp.values(i) - p_ref) > reach) continue;
-    ++count;
-    const double c = mac(normalised_shape(sp.shapes.col(i), semichord), shape_ref);
-    if (c > best_mac) {
-      best_mac = c;
-      chosen = i;
-    }
-  }
-  return count > 1 ? chosen : best;
+  std::vector<cd> values(sp.values.data(), sp.values.data() + sp.values.size());
+  std::vector<Eigen::VectorXcd> shapes;
+  for (Eigen::Index i = 0; i < sp.values.size(); ++i)
+    shapes.push_back(normalised_shape(sp.shapes.col(i), semichord));
+  const Eigen::VectorXcd ref = shape_ref.size() == sp.shapes.rows() ? shape_ref : Eigen::VectorXcd();
+  return continuing_candidate(values, shapes, p_ref, ref, ambiguity_ratio);
 }
 
 double separation(const Spectrum& sp, Eigen::Index i) {
@@ -162,28 +142,20 @@ void polish(const Quadratic& q, cd& p, Eigen::VectorXcd& v, double sep) {
 
 // A root at rounding level of the spectrum's scale is a neutral zero root
 // (a free DOF): its sign is noise, so it is reported as exactly 0.
-PkRoot make_root(cd p, const Eigen::VectorXcd& q, double U, double b, double sep,
-                 double spectral_radius) {
+Root pk_root(cd p, const Eigen::VectorXcd& q, double U, double b, double sep,
+             double spectral_radius) {
   if (std::abs(p) <= 1e-10 * spectral_radius) p = 0.0;
-  PkRoot r;
-  r.p = p;
-  r.frequency = std::abs(p.imag());
-  const double mag = std::abs(p);
-  r.damping_ratio = mag > 0 ? -p.real() / mag : 0.0;
-  if (U > 0)
-    r.reduced_frequency = r.frequency * b / U;
-  else
-    r.reduced_frequency = r.frequency > 0 ? std::numeric_limits<double>::infinity() : 0.0;
-  r.shape = normalised_shape(q, b);
+  Root r = make_root(p, normalised_shape(q, b), U, b);
   r.separation = sep;
+  r.spectral_radius = spectral_radius;
   return r;
 }
 
 // One mode at one speed, from a starting root.
-PkRoot solve_mode(const PkProblem& pr, const Assembly& a, const PkRoot& start) {
+Root solve_mode(const PkProblem& pr, const Assembly& a, const Root& start) {
   const PkSettings& st = pr.settings;
   const double U = a.airspeed, b = a.semichord;
-  cd p_ref = start.p;
+  cd p_ref = start.eigenvalue;
   Eigen::VectorXcd shape_ref = start.shape;
   if (U <= 0) {
     const Quadratic q = quadratic(a, 0.0);  // circulatory terms vanish at U = 0
@@ -193,7 +165,7 @@ PkRoot solve_mode(const PkProblem& pr, const Assembly& a, const PkRoot& start) {
     cd p = sp.values(i);
     Eigen::VectorXcd v = sp.shapes.col(i);
     polish(q, p, v, sep);
-    PkRoot r = make_root(p, v, U, b, sep, sp.values.cwiseAbs().maxCoeff());
+    Root r = pk_root(p, v, U, b, sep, sp.values.cwiseAbs().maxCoeff());
     r.converged = true;
     r.iterations = 1;
     return r;
@@ -203,7 +175,7 @@ PkRoot solve_mode(const PkProblem& pr, const Assembly& a, const PkRoot& start) {
   double k = p_ref.imag() * b / U;
   double k_old = 0, r_old = 0;
   bool have_old = false;
-  PkRoot r;
+  Root r;
   for (int it = 1; it <= st.max_iterations; ++it) {
     const Quadratic q = quadratic(a, circulation(pr, k));
     const Spectrum sp = spectrum(a, q);
@@ -214,7 +186,7 @@ PkRoot solve_mode(const PkProblem& pr, const Assembly& a, const PkRoot& start) {
     polish(q, p, v, sep);
     const double radius = sp.values.cwiseAbs().maxCoeff();
     const double k_new = p.imag() * b / U;
-    r = make_root(p, v, U, b, sep, radius);
+    r = pk_root(p, v, U, b, sep, radius);
     r.reduced_frequency = std::abs(k);  // the k at which C was evaluated
     r.iterations = it;
     // Relative to |p| b / U: the same as relative to k for an oscillatory
@@ -241,48 +213,31 @@ PkRoot solve_mode(const PkProblem& pr, const Assembly& a, const PkRoot& start) {
   return r;
 }
 
-// Starting roots from the in-vacuo modes of (K, M_s), ascending frequency.
-std::vector<PkRoot> in_vacuo_start(const PkProblem& pr) {
-  const DofVector k = springs_of(pr);
-  const Eigen::MatrixXd M = structural_mass(pr.section);
-  const Eigen::MatrixXd K = k.asDiagonal();
-  Eigen::GeneralizedSelfAdjointEigenSolver<Eigen::MatrixXd> es(K, M);
-  AEROSECT_CHECK(es.info() == Eigen::Success);
-  std::vector<PkRoot> roots;
-  for (Eigen::Index i = 0; i < es.eigenvalues().size(); ++i) {
-    PkRoot r;
-    r.p = cd(0.0, std::sqrt(std::max(0.0, es.eigenvalues()(i))));
-    r.frequency = r.p.imag();
-    r.shape = normalised_shape(es.eigenvectors().col(i).cast<cd>(), pr.section.semichord);
-    r.converged = true;
-    roots.push_back(r);
-  }
-  return roots;
-}
-
-bool acceptable_step(const std::vector<PkRoot>& from, const std::vector<PkRoot>& to,
+bool acceptable_step(const std::vector<Root>& from, const std::vector<Root>& to,
                      double fraction) {
   for (std::size_t i = 0; i < to.size(); ++i) {
     if (!to[i].converged && from[i].converged) return false;
-    if (std::abs(to[i].p - from[i].p) > fraction * from[i].separation) return false;
+    if (std::abs(to[i].eigenvalue - from[i].eigenvalue) > fraction * from[i].separation) return false;
     for (std::size_t j = 0; j < i; ++j)
-      if (std::abs(to[i].p - to[j].p) <=
-          1e-9 * std::max(std::abs(to[i].p), std::abs(to[j].p)))
+      if (std::abs(to[i].eigenvalue - to[j].eigenvalue) <=
+          1e-9 * std::max(std::abs(to[i].eigenvalue), std::abs(to[j].eigenvalue)))
         return false;
   }
   return true;
 }
 
-// Continue roots from (Ua, from) to Ub with step halving.
-std::vector<PkRoot> advance(const PkProblem& pr, double Ua, const std::vector<PkRoot>& from,
-                            double Ub, int depth) {
-  std::vector<PkRoot> to = pk_roots(pr, Ub, from);
-  if (depth >= pr.settings.max_step_halvings ||
-      acceptable_step(from, to, pr.settings.max_step_fraction))
-    return to;
-  const double Um = 0.5 * (Ua + Ub);
-  const std::vector<PkRoot> mid = advance(pr, Ua, from, Um, depth + 1);
-  return advance(pr, Um, mid, Ub, depth + 1);
+// The p-k root provider: a step is accepted when acceptable_step holds (or
+// it cannot be halved further).
+RootProvider pk_provider(const PkProblem& pr) {
+  RootProvider p;
+  p.max_halvings = pr.settings.max_step_halvings;
+  p.step = [&pr](double U, const std::vector<Root>& from,
+                 bool last_try) -> std::optional<std::vector<Root>> {
+    std::vector<Root> to = pk_roots(pr, U, from);
+    if (last_try || acceptable_step(from, to, pr.settings.max_step_fraction)) return to;
+    return std::nullopt;
+  };
+  return p;
 }
 
 }  // namespace
@@ -299,28 +254,28 @@ DofVector nominal_spring_stiffness(const SectionProperties& s) {
   return structural_stiffness(s).diagonal();
 }
 
-std::vector<PkRoot> pk_roots(const PkProblem& problem, double airspeed,
-                             const std::vector<PkRoot>& previous) {
+std::vector<Root> pk_roots(const PkProblem& problem, double airspeed,
+                             const std::vector<Root>& previous) {
   const Assembly a = assemble(problem, airspeed);
-  std::vector<PkRoot> start = previous;
+  std::vector<Root> start = previous;
   if (start.empty()) {
-    start = in_vacuo_start(problem);
+    start = in_vacuo_roots(problem.section, springs_of(problem));
     if (airspeed > 0) {
       const Assembly still = assemble(problem, 0.0);
-      for (PkRoot& r : start) r = solve_mode(problem, still, r);
+      for (Root& r : start) r = solve_mode(problem, still, r);
     }
   }
   AEROSECT_CHECK(static_cast<int>(start.size()) == a.n);
-  std::vector<PkRoot> roots;
+  std::vector<Root> roots;
   roots.reserve(start.size());
-  for (const PkRoot& r : start) roots.push_back(solve_mode(problem, a, r));
+  for (const Root& r : start) roots.push_back(solve_mode(problem, a, r));
   return roots;
 }
 
-std::vector<PkRoot> pk_roots(const SectionProperties& s, double density, double airspeed,
+std::vector<Root> pk_roots(const SectionProperties& s, double density, double airspeed,
                              const DofVector& spring_stiffness, PkAerodynamics aero,
                              const WagnerApproximation& wagner,
-                             const std::vector<PkRoot>& previous) {
+                             const std::vector<Root>& previous) {
   PkProblem pr;
   pr.section = s;
   pr.density = density;
@@ -330,60 +285,17 @@ std::vector<PkRoot> pk_roots(const SectionProperties& s, double density, double 
   return pk_roots(pr, airspeed, previous);
 }
 
-PkSweep pk_sweep(const PkProblem& problem, const std::vector<double>& speeds) {
-  PkSweep sw;
-  sw.speeds = speeds;
+RootSweep pk_sweep(const PkProblem& problem, const std::vector<double>& speeds) {
   for (std::size_t i = 0; i < speeds.size(); ++i) {
     AEROSECT_CHECK(speeds[i] >= 0.0 && std::isfinite(speeds[i]));
     if (i > 0) AEROSECT_CHECK(speeds[i] > speeds[i - 1]);
   }
-  double U = 0;
-  std::vector<PkRoot> current = pk_roots(problem, 0.0, {});
-  for (double target : speeds) {
-    if (target > U) current = advance(problem, U, current, target, 0);
-    U = target;
-    sw.roots.push_back(current);
-  }
-  return sw;
+  return sweep_roots(pk_provider(problem), pk_roots(problem, 0.0, {}), speeds);
 }
 
-PkCrossing pk_flutter(const PkProblem& problem, const PkSweep& sweep,
-                      double relative_tolerance) {
-  AEROSECT_CHECK(sweep.roots.size() == sweep.speeds.size());
-  AEROSECT_CHECK(relative_tolerance > 0);
-  PkCrossing best;
-  for (std::size_t i = 0; i + 1 < sweep.speeds.size(); ++i) {
-    const std::vector<PkRoot>& lo = sweep.roots[i];
-    const std::vector<PkRoot>& hi = sweep.roots[i + 1];
-    const double Ua = sweep.speeds[i], Ub = sweep.speeds[i + 1];
-    for (std::size_t j = 0; j < lo.size(); ++j) {
-      if (!(lo[j].damping_ratio > 0 && hi[j].damping_ratio <= 0)) continue;
-      auto re_p = [&](double U) {
-        if (U <= Ua) return lo[j].p.real();
-        return advance(problem, Ua, lo, U, 0)[j].p.real();
-      };
-      auto tol = [relative_tolerance](double x, double y) {
-        return std::abs(y - x) <= relative_tolerance * std::min(std::abs(x), std::abs(y));
-      };
-      std::uintmax_t max_iter = 200;
-      double U = Ub;
-      if (hi[j].p.real() != 0.0) {
-        const auto bracket = boost::math::tools::toms748_solve(
-            re_p, Ua, Ub, lo[j].p.real(), hi[j].p.real(), tol, max_iter);
-        U = 0.5 * (bracket.first + bracket.second);
-      }
-      if (best.found && U >= best.speed) continue;
-      const PkRoot r = advance(problem, Ua, lo, U, 0)[j];
-      best.found = true;
-      best.speed = U;
-      best.frequency = r.frequency;
-      best.reduced_frequency = r.reduced_frequency;
-      best.mode = static_cast<int>(j);
-      best.shape = r.shape;
-    }
-    if (best.found) break;
-  }
-  return best;
+Crossing pk_flutter(const PkProblem& problem, const RootSweep& sweep, double relative_tolerance) {
+  return first_flutter_crossing(pk_provider(problem), sweep, relative_tolerance,
+                                frequency_floor(problem.section));
 }
 
 }  // namespace aerosect

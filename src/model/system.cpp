@@ -54,6 +54,20 @@ AeroelasticModel::AeroelasticModel(ModelDescription description) : d_(std::move(
       for (int j = 0; j < na; ++j) mass_inverse_(active[i], active[j]) = Mi(i, j);
   }
 
+  // Speed-independent blocks of state_matrix_at: Theodorsen's terms at
+  // U = 1 m/s are the coefficients of U and U^2.
+  {
+    FlowConditions unit = d_.flow;
+    unit.airspeed = 1.0;
+    const AeroMatrices a1 = theodorsen_matrices(s, unit, d_.aero.model);
+    unit_stiffness_ = a1.stiffness - phi0_ * a1.circulation_force * a1.downwash_displacement.transpose();
+    unit_damping_ = a1.damping - phi0_ * a1.circulation_force * a1.downwash_rate.transpose();
+    structural_damping_ = structural_damping(s);
+    unit_circulation_ = a1.circulation_force;
+    unit_downwash_displacement_ = a1.downwash_displacement;
+    downwash_rate_ = a1.downwash_rate;
+  }
+
   G_ = Eigen::MatrixXd::Zero(layout_.size, n);
   G_.block(layout_.velocity, 0, n, n) = mass_inverse_;
 
@@ -94,31 +108,43 @@ double AeroelasticModel::shortest_period() const {
 }
 
 Eigen::MatrixXd AeroelasticModel::state_matrix(const DofVector& spring_stiffness) const {
-  const SectionProperties& s = d_.section;
-  const int n = layout_.n_dof, nw = layout_.n_wagner, w0 = layout_.wagner;
   const auto& am = aero_;
-
   // Effective stiffness and damping including the instantaneous part of the
   // circulatory force (phi(0) Q).
   DofMatrix K = spring_stiffness.asDiagonal();
   K += am.stiffness - phi0_ * am.circulation_force * am.downwash_displacement.transpose();
-  DofMatrix C = structural_damping(s) + am.damping -
+  DofMatrix C = structural_damping(d_.section) + am.damping -
                 phi0_ * am.circulation_force * am.downwash_rate.transpose();
+  return assemble(d_.flow.airspeed, K, C, am.circulation_force, am.downwash_displacement,
+                  am.downwash_rate);
+}
 
+Eigen::MatrixXd AeroelasticModel::state_matrix_at(double U, const DofVector& spring_stiffness) const {
+  AEROSECT_CHECK(U >= 0 && std::isfinite(U));
+  DofMatrix K = spring_stiffness.asDiagonal();
+  K += (U * U) * unit_stiffness_;
+  const DofMatrix C = structural_damping_ + U * unit_damping_;
+  return assemble(U, K, C, U * unit_circulation_, U * unit_downwash_displacement_, downwash_rate_);
+}
+
+Eigen::MatrixXd AeroelasticModel::assemble(double U, const DofMatrix& K, const DofMatrix& C,
+                                           const DofVector& fc, const DofVector& dq,
+                                           const DofVector& dv) const {
+  const int n = layout_.n_dof, nw = layout_.n_wagner, w0 = layout_.wagner;
+  const double U_over_b = U / d_.section.semichord;
   Eigen::MatrixXd A = Eigen::MatrixXd::Zero(layout_.size, layout_.size);
   for (int j = 0; j < n; ++j)
     if (!d_.held[j]) A(layout_.displacement + j, layout_.velocity + j) = 1.0;
   A.block(layout_.velocity, layout_.displacement, n, n) = -mass_inverse_ * K;
   A.block(layout_.velocity, layout_.velocity, n, n) = -mass_inverse_ * C;
   if (nw > 0) {
-    const double U_over_b = d_.flow.airspeed / s.semichord;
     const auto& wg = d_.aero.wagner;
     for (int i = 0; i < nw; ++i) {
-      const DofVector col = mass_inverse_ * am.circulation_force * wg.coefficients[i];
+      const DofVector col = mass_inverse_ * fc * wg.coefficients[i];
       A.block(layout_.velocity, w0 + i, n, 1) = col;
       const double rate = U_over_b * wg.exponents[i];
-      A.block(w0 + i, layout_.displacement, 1, n) = rate * am.downwash_displacement.transpose();
-      A.block(w0 + i, layout_.velocity, 1, n) = rate * am.downwash_rate.transpose();
+      A.block(w0 + i, layout_.displacement, 1, n) = rate * dq.transpose();
+      A.block(w0 + i, layout_.velocity, 1, n) = rate * dv.transpose();
       A(w0 + i, w0 + i) = -rate;
     }
   }
@@ -126,9 +152,8 @@ Eigen::MatrixXd AeroelasticModel::state_matrix(const DofVector& spring_stiffness
   // drive itself is the input vector, not part of A).
   for (int i = 0; i < layout_.n_gust; ++i) {
     const int g = layout_.gust + i;
-    A.block(layout_.velocity, g, n, 1) =
-        mass_inverse_ * am.circulation_force * d_.kussner.coefficients[i];
-    A(g, g) = -d_.flow.airspeed / s.semichord * d_.kussner.exponents[i];
+    A.block(layout_.velocity, g, n, 1) = mass_inverse_ * fc * d_.kussner.coefficients[i];
+    A(g, g) = -U_over_b * d_.kussner.exponents[i];
   }
   return A;
 }

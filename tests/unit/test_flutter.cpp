@@ -113,7 +113,7 @@ TEST_CASE("Modes are tracked continuously through the sweep", "[flutter]") {
   // a tracked root moves little compared with the distance between modes;
   // sort-order tracking would jump at the frequency coalescence.
   const Case c = test::case_from(textbook());
-  const StabilitySweep sw = state_space_sweep(c.model, nominal_spring_stiffness(c.model.section),
+  const RootSweep sw = state_space_sweep(c.model, nominal_spring_stiffness(c.model.section),
                                               grid(0.01, 2.6, 260));
   for (std::size_t i = 1; i < sw.speeds.size(); ++i) {
     for (std::size_t j = 0; j < 2; ++j) {
@@ -181,8 +181,8 @@ TEST_CASE("3-DOF: state-space and p-k agree to the Wagner approximation's error"
   pr.section = c.model.section;
   pr.density = c.model.flow.density;
   pr.aerodynamics = PkAerodynamics::kWagnerApproximation;
-  const PkSweep sw = pk_sweep(pr, grid(0.02, 8.0, 200));
-  const PkCrossing x = pk_flutter(pr, sw, 1e-10);
+  const RootSweep sw = pk_sweep(pr, grid(0.02, 8.0, 200));
+  const Crossing x = pk_flutter(pr, sw, 1e-10);
   REQUIRE(x.found);
   CHECK(x.speed == Approx(ss.flutter.speed).epsilon(1e-7));
   CHECK(x.frequency == Approx(ss.flutter.frequency).epsilon(1e-6));

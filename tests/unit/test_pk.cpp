@@ -57,10 +57,10 @@ std::vector<double> speeds(double step, double last) {
   return v;
 }
 
-PkCrossing flutter_of(const PkProblem& p, double last_speed, double tol = 1e-10) {
-  const PkSweep sw = pk_sweep(p, speeds(0.05, last_speed));
+Crossing flutter_of(const PkProblem& p, double last_speed, double tol = 1e-10) {
+  const RootSweep sw = pk_sweep(p, speeds(0.05, last_speed));
   for (const auto& at_speed : sw.roots)
-    for (const PkRoot& r : at_speed) REQUIRE(r.converged);
+    for (const Root& r : at_speed) REQUIRE(r.converged);
   return pk_flutter(p, sw, tol);
 }
 
@@ -135,7 +135,7 @@ TEST_CASE("p-k flutter, exact Theodorsen: textbook section", "[pk]") {
   // Hodges & Pierce ch. 5 as transcribed in the theory sheet; exact-Theodorsen
   // values "computed with scipy" there: U/(b omega_theta) = 2.1839 at
   // omega/omega_theta = 0.6490 (printed digits: half a unit of the last).
-  const PkCrossing c = flutter_of(textbook(PkAerodynamics::kExactTheodorsen), 2.6);
+  const Crossing c = flutter_of(textbook(PkAerodynamics::kExactTheodorsen), 2.6);
   REQUIRE(c.found);
   CHECK(c.speed == Approx(2.1839).margin(5e-5));
   CHECK(c.frequency == Approx(0.6490).margin(5e-5));
@@ -148,7 +148,7 @@ TEST_CASE("p-k flutter, exact Theodorsen: textbook section", "[pk]") {
 TEST_CASE("p-k flutter, exact Theodorsen: nonlinear-aerofoil benchmark", "[pk]") {
   // Lee, Price & Wong 1999 section; exact-Theodorsen U* = 6.2566 (theory sheet
   // section 4, "computed with scipy"), printed digits.
-  const PkCrossing c = flutter_of(benchmark(PkAerodynamics::kExactTheodorsen), 8.0);
+  const Crossing c = flutter_of(benchmark(PkAerodynamics::kExactTheodorsen), 8.0);
   REQUIRE(c.found);
   CHECK(c.speed == Approx(6.2566).margin(5e-5));
   CHECK(c.mode == 1);
@@ -157,12 +157,12 @@ TEST_CASE("p-k flutter, exact Theodorsen: nonlinear-aerofoil benchmark", "[pk]")
 TEST_CASE("p-k flutter, Jones rational C(k)", "[pk][wagner]") {
   // Lee, Price & Wong 1999: linear flutter with Jones' Wagner approximation
   // U*_L = 6.2851.
-  const PkCrossing lpw = flutter_of(benchmark(PkAerodynamics::kWagnerApproximation), 8.0);
+  const Crossing lpw = flutter_of(benchmark(PkAerodynamics::kWagnerApproximation), 8.0);
   REQUIRE(lpw.found);
   CHECK(lpw.speed == Approx(6.2851).epsilon(1e-4));
   // Hodges & Pierce ch. 5 (as transcribed): Jones-Wagner flutter 2.170 at
   // 0.6443 omega_theta (printed digits).
-  const PkCrossing hp = flutter_of(textbook(PkAerodynamics::kWagnerApproximation), 2.6);
+  const Crossing hp = flutter_of(textbook(PkAerodynamics::kWagnerApproximation), 2.6);
   REQUIRE(hp.found);
   CHECK(hp.speed == Approx(2.170).margin(5e-4));
   CHECK(hp.frequency == Approx(0.6443).margin(5e-5));
@@ -176,7 +176,7 @@ TEST_CASE("p-k with the Wagner rational C(k) reproduces the state-space flutter 
   // matrix must have a neutral root at the p-k flutter speed and frequency.
   for (const PkProblem& p : {benchmark(PkAerodynamics::kWagnerApproximation),
                              textbook(PkAerodynamics::kWagnerApproximation)}) {
-    const PkCrossing c = flutter_of(p, 8.0, 1e-13);
+    const Crossing c = flutter_of(p, 8.0, 1e-13);
     REQUIRE(c.found);
     auto rightmost = [&](double U) {
       ModelDescription d;
@@ -216,7 +216,7 @@ TEST_CASE("A very stiff flap reproduces the 2-DOF p-k flutter speed", "[pk][flap
       FlowConditions f;
       from_nondimensional(n, three.section, f);
       const double last = use_textbook ? 2.6 : 8.0;
-      const PkCrossing c2 = flutter_of(two, last), c3 = flutter_of(three, last);
+      const Crossing c2 = flutter_of(two, last), c3 = flutter_of(three, last);
       REQUIRE(c2.found);
       REQUIRE(c3.found);
       CHECK(c3.speed == Approx(c2.speed).epsilon(1e-6));
@@ -234,7 +234,7 @@ TEST_CASE("Spring stiffness argument: dynamic similarity", "[pk]") {
   const PkProblem p = benchmark(PkAerodynamics::kExactTheodorsen);
   PkProblem q = p;
   q.spring_stiffness = 4.0 * nominal_spring_stiffness(p.section);
-  const PkCrossing c1 = flutter_of(p, 8.0), c2 = flutter_of(q, 16.0);
+  const Crossing c1 = flutter_of(p, 8.0), c2 = flutter_of(q, 16.0);
   REQUIRE(c1.found);
   REQUIRE(c2.found);
   CHECK(c2.speed == Approx(2 * c1.speed).epsilon(1e-8));
@@ -248,47 +248,47 @@ TEST_CASE("p-k roots at and near zero airspeed", "[pk]") {
   PkProblem vac = textbook(PkAerodynamics::kExactTheodorsen);
   vac.density = 0;
   const auto modes = in_vacuo_modes(vac.section);
-  const std::vector<PkRoot> r0 = pk_roots(vac, 0.0);
+  const std::vector<Root> r0 = pk_roots(vac, 0.0);
   REQUIRE(r0.size() == 2);
   for (int i = 0; i < 2; ++i) {
     CHECK(r0[i].converged);
-    CHECK(std::abs(r0[i].p.real()) < 1e-12);
-    CHECK(r0[i].p.imag() == Approx(modes[i].frequency).epsilon(1e-12));
+    CHECK(std::abs(r0[i].eigenvalue.real()) < 1e-12);
+    CHECK(r0[i].eigenvalue.imag() == Approx(modes[i].frequency).epsilon(1e-12));
     CHECK(r0[i].damping_ratio == Approx(0).margin(1e-12));
   }
   // In still air the apparent mass lowers the frequencies, with no damping;
   // k = omega b / U is infinite there.
   const PkProblem air = textbook(PkAerodynamics::kExactTheodorsen);
-  const std::vector<PkRoot> still = pk_roots(air, 0.0);
+  const std::vector<Root> still = pk_roots(air, 0.0);
   for (int i = 0; i < 2; ++i) {
-    CHECK(still[i].p.imag() < modes[i].frequency);
-    CHECK(std::abs(still[i].p.real()) < 1e-12);
+    CHECK(still[i].eigenvalue.imag() < modes[i].frequency);
+    CHECK(std::abs(still[i].eigenvalue.real()) < 1e-12);
     CHECK(std::isinf(still[i].reduced_frequency));
   }
   // A small positive speed: large k, roots continuous with still air, and
   // positive aerodynamic damping (common practice, no source).
-  const std::vector<PkRoot> slow = pk_roots(air, 1e-3, still);
+  const std::vector<Root> slow = pk_roots(air, 1e-3, still);
   for (int i = 0; i < 2; ++i) {
     CHECK(slow[i].converged);
     CHECK(slow[i].reduced_frequency > 100);
-    CHECK(std::abs(slow[i].p - still[i].p) < 1e-3 * std::abs(still[i].p));
+    CHECK(std::abs(slow[i].eigenvalue - still[i].eigenvalue) < 1e-3 * std::abs(still[i].eigenvalue));
     CHECK(slow[i].damping_ratio > 0);
   }
   // Damping ratio definition zeta = -Re(p) / |p|.
-  for (const PkRoot& r : slow)
-    CHECK(r.damping_ratio == Approx(-r.p.real() / std::abs(r.p)).epsilon(1e-14));
+  for (const Root& r : slow)
+    CHECK(r.damping_ratio == Approx(-r.eigenvalue.real() / std::abs(r.eigenvalue)).epsilon(1e-14));
 }
 
 TEST_CASE("One-step roots from still air agree with the swept roots", "[pk]") {
   // Internal consistency: far from any mode interaction a single continuation
   // step lands on the same roots as the stepped sweep.
   const PkProblem p = benchmark(PkAerodynamics::kExactTheodorsen);
-  const PkSweep sw = pk_sweep(p, speeds(0.25, 3.0));
-  const std::vector<PkRoot> direct = pk_roots(p, 3.0);
+  const RootSweep sw = pk_sweep(p, speeds(0.25, 3.0));
+  const std::vector<Root> direct = pk_roots(p, 3.0);
   for (int i = 0; i < 2; ++i) {
-    CHECK(std::abs(direct[i].p - sw.roots.back()[i].p) < 1e-10);
+    CHECK(std::abs(direct[i].eigenvalue - sw.roots.back()[i].eigenvalue) < 1e-10);
     CHECK(direct[i].reduced_frequency ==
-          Approx(std::abs(direct[i].p.imag()) * p.section.semichord / 3.0).epsilon(1e-11));
+          Approx(std::abs(direct[i].eigenvalue.imag()) * p.section.semichord / 3.0).epsilon(1e-11));
   }
   CHECK_THROWS_AS(pk_sweep(p, {1.0, 0.5}), InternalError);
 }

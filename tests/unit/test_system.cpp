@@ -93,3 +93,46 @@ hold = ["plunge", "pitch"]
   CHECK(l.lift == Approx(L).epsilon(1e-12));
   CHECK(l.pitching_moment == Approx((0.5 - 0.2) * 0.5 * L).epsilon(1e-12));
 }
+
+TEST_CASE("State matrix at another airspeed equals the matrix of a model built there",
+          "[system]") {
+  // state_matrix_at scales stored per-unit-speed blocks (Theodorsen's terms
+  // are proportional to U or U^2, NACA Report 496; common practice, no
+  // source) instead of rebuilding the model: the two must agree to
+  // round-off. Tolerance: 1e-14 relative to the largest entry of the same
+  // row (a few ulps of the products and sums involved).
+  auto check = [](const ModelDescription& d, const DofVector& k) {
+    const AeroelasticModel model(d);
+    for (double U : {0.0, 0.37 * d.flow.airspeed, d.flow.airspeed, 2.9 * d.flow.airspeed}) {
+      ModelDescription there = d;
+      there.flow.airspeed = U;
+      const Eigen::MatrixXd ref = AeroelasticModel(there).state_matrix(k);
+      const Eigen::MatrixXd A = model.state_matrix_at(U, k);
+      REQUIRE(A.rows() == ref.rows());
+      REQUIRE(A.cols() == ref.cols());
+      for (Eigen::Index i = 0; i < A.rows(); ++i) {
+        const double scale = ref.row(i).cwiseAbs().maxCoeff();
+        for (Eigen::Index j = 0; j < A.cols(); ++j) {
+          INFO("U = " << U << " m/s, entry (" << i << ", " << j << ")");
+          CHECK(std::abs(A(i, j) - ref(i, j)) <= 1e-14 * scale);
+        }
+      }
+    }
+    // At the model's own airspeed the two forms are the same matrix.
+    CHECK((model.state_matrix_at(d.flow.airspeed, k) - model.state_matrix(k)).cwiseAbs().maxCoeff() <=
+          1e-14 * model.state_matrix(k).cwiseAbs().maxCoeff());
+  };
+  // The shipped 3-DOF demo case (with its gust lag states), at nominal and
+  // gap-open (zero flap stiffness) springs.
+  const Case demo = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml");
+  DofVector k(3);
+  for (int j = 0; j < 3; ++j) k(j) = demo.model.springs[j].nominal_stiffness();
+  check(demo.model, k);
+  k(2) = 0.0;
+  check(demo.model, k);
+  // A 2-DOF section (Lee, Price & Wong benchmark data, theory sheet section 4).
+  const Case two = test::case_from(test::benchmark_2dof("[simulation]\nduration = 1.0\n"));
+  DofVector k2(2);
+  for (int j = 0; j < 2; ++j) k2(j) = two.model.springs[j].nominal_stiffness();
+  check(two.model, k2);
+}

@@ -2,20 +2,18 @@
 // Linear stability of the assembled model: flutter and divergence.
 //
 // State-space method. The model's linear state matrix A(U) (structure +
-// apparent mass + Wagner lag states, built analytically by
-// AeroelasticModel::state_matrix with a chosen stiffness per spring) is
-// solved for its eigenvalues lambda at each airspeed. The structural modes
-// are numbered like the in-vacuo modes (ascending frequency) and followed
-// in speed by continuation: the candidate nearest the previous root, with
-// the mode-shape correlation (MAC of the displacement part) deciding between
-// near-equidistant candidates; a step is halved while a root would move by
-// more than half its distance to the nearest other eigenvalue or two modes
-// claim one eigenvalue. Never by sort order, so modes do not swap through a
-// frequency coalescence.
+// apparent mass + Wagner lag states, AeroelasticModel::state_matrix_at with
+// a chosen stiffness per spring) is solved for its eigenvalues lambda at
+// each airspeed. The structural modes are numbered like the in-vacuo modes
+// (ascending frequency) and followed in speed by the continuation of
+// root_tracking.hpp (nearest candidate, MAC tie-break, never sort order); a
+// step is halved while a root would move by more than half its distance to
+// the nearest other eigenvalue or two modes claim one eigenvalue (at most
+// 14 times).
 //   frequency = |Im lambda| (rad/s), damping ratio zeta = -Re lambda / |lambda|
 //   (negative = unstable), reduced frequency k = omega b / U.
-// Flutter: the first speed at which an oscillatory mode's Re(lambda) turns
-// from negative to non-negative, located by TOMS 748 on Re(lambda(U)).
+// Flutter: the first crossing of root_tracking.hpp (growth criterion there),
+// located by TOMS 748 on Re(lambda(U)).
 // Divergence: a real eigenvalue through zero; det A(U) changes sign there
 // (complex pairs contribute |lambda|^2 > 0), located by TOMS 748 on det A.
 // With every Wagner approximation phi(inf) = 1 the divergence speed is the
@@ -33,44 +31,35 @@
 #include <Eigen/Core>
 
 #include "aerosect/analysis/describing_function.hpp"
+#include "aerosect/analysis/root_tracking.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/model/system.hpp"
 #include "aerosect/units.hpp"
 
 namespace aerosect {
 
-struct StabilityRoot {
-  std::complex<double> eigenvalue;  // 1/s
-  double frequency = 0;             // rad/s
-  double damping_ratio = 0;         // -Re / |lambda|
-  double reduced_frequency = 0;     // omega b / U (inf at U = 0 for an oscillatory root)
-  Eigen::VectorXcd shape;           // (h/b, alpha[, beta]), largest |component| = 1
-};
+// Roots, sweeps and crossings: root_tracking.hpp (shared with p-k).
 
-struct StabilitySweep {
-  std::vector<double> speeds;                     // m/s, ascending
-  std::vector<std::vector<StabilityRoot>> roots;  // [speed][mode]
-};
-
-struct Crossing {
-  bool found = false;
-  double speed = 0;              // m/s (true airspeed)
-  double frequency = 0;          // rad/s (0 for divergence)
-  double reduced_frequency = 0;  // omega b / U
-  int mode = -1;                 // tracked mode (-1 for divergence)
-  Eigen::VectorXcd shape;        // (h/b, alpha[, beta]) at the crossing
-};
+// The model the stability analyses linearise: the description with no DOF
+// held and no gust input (the Küssner lag states are driven by the input
+// alone and never change stability; a long turbulence record is not
+// carried). Built once per analysis; state_matrix_at gives A(U).
+AeroelasticModel stability_model(const ModelDescription& description);
 
 // Sweep of the state-space eigenvalues. `model` gives everything but the
 // airspeed (which each speed replaces) and `stiffness` the linear stiffness
 // of every spring (N/m, N m/rad). Speeds must be >= 0 and ascending.
-StabilitySweep state_space_sweep(const ModelDescription& model, const DofVector& stiffness,
+// `model` is a stability_model (held DOFs and gusts are ignored either way).
+RootSweep state_space_sweep(const AeroelasticModel& model, const DofVector& stiffness,
                                  const std::vector<double>& speeds);
-Crossing state_space_flutter(const ModelDescription& model, const DofVector& stiffness,
-                             const StabilitySweep& sweep, double relative_tolerance = 1e-9);
-Crossing state_space_divergence(const ModelDescription& model, const DofVector& stiffness,
+Crossing state_space_flutter(const AeroelasticModel& model, const DofVector& stiffness,
+                             const RootSweep& sweep, double relative_tolerance = 1e-9);
+Crossing state_space_divergence(const AeroelasticModel& model, const DofVector& stiffness,
                                 const std::vector<double>& speeds,
                                 double relative_tolerance = 1e-9);
+// The same from a description (builds its stability_model once).
+RootSweep state_space_sweep(const ModelDescription& model, const DofVector& stiffness,
+                                 const std::vector<double>& speeds);
 
 // ---------------------------------------------------------------------------
 // The flutter command: both methods over the spring linearisations a case
@@ -93,7 +82,7 @@ struct FlutterOptions {
 
 struct MethodResult {
   std::string method;  // "state-space" or "p-k"
-  StabilitySweep sweep;
+  RootSweep sweep;
   Crossing flutter, divergence;
 };
 

@@ -58,6 +58,7 @@
 
 #include <Eigen/Core>
 
+#include "aerosect/analysis/root_tracking.hpp"
 #include "aerosect/model/aerodynamics.hpp"
 #include "aerosect/model/section.hpp"
 
@@ -88,56 +89,37 @@ struct PkProblem {
 // Nominal spring stiffness per DOF: (K_h, K_alpha[, K_beta]) of the section.
 DofVector nominal_spring_stiffness(const SectionProperties& s);
 
-struct PkRoot {
-  std::complex<double> p;         // eigenvalue, 1/s
-  double frequency = 0;           // |Im p|, rad/s
-  double damping_ratio = 0;       // -Re(p) / |p|
-  double reduced_frequency = 0;   // k = frequency b / U (+inf at U = 0)
-  Eigen::VectorXcd shape;         // (h/b, alpha[, beta]); largest |component| = 1
-  double separation = 0;          // |p - nearest other eigenvalue| at the same C(k), 1/s
-  bool converged = false;
-  int iterations = 0;
-};
+// Roots (Root: eigenvalue p, frequency, damping ratio, reduced frequency k
+// at which C was evaluated, shape, separation from the nearest other
+// eigenvalue at the same C(k), converged, iterations), sweeps and crossings
+// are the shared types of root_tracking.hpp.
 
 // Roots at one airspeed U >= 0, one per mode, continuing from `previous`
 // (one root per mode, as returned for a nearby speed; the order is kept).
 // An empty `previous` starts from the still-air roots (themselves seeded by
 // the in-vacuo modes of (K, M_s)). Single step: no step control; use
 // pk_sweep to follow roots over a speed range.
-std::vector<PkRoot> pk_roots(const PkProblem& problem, double airspeed,
-                             const std::vector<PkRoot>& previous = {});
+std::vector<Root> pk_roots(const PkProblem& problem, double airspeed,
+                             const std::vector<Root>& previous = {});
 
 // Convenience form of the same with the problem spelt out.
-std::vector<PkRoot> pk_roots(const SectionProperties& s, double density, double airspeed,
+std::vector<Root> pk_roots(const SectionProperties& s, double density, double airspeed,
                              const DofVector& spring_stiffness, PkAerodynamics aero,
                              const WagnerApproximation& wagner,
-                             const std::vector<PkRoot>& previous);
-
-struct PkSweep {
-  std::vector<double> speeds;               // m/s, ascending
-  std::vector<std::vector<PkRoot>> roots;   // [speed][mode]
-};
+                             const std::vector<Root>& previous);
 
 // Roots at each speed (speeds >= 0, strictly ascending; AEROSECT_CHECK),
 // followed from still air with the step control described above.
-PkSweep pk_sweep(const PkProblem& problem, const std::vector<double>& speeds);
+RootSweep pk_sweep(const PkProblem& problem, const std::vector<double>& speeds);
 
-struct PkCrossing {
-  bool found = false;
-  double speed = 0;              // m/s
-  double frequency = 0;          // rad/s
-  double reduced_frequency = 0;  // omega b / U
-  int mode = -1;                 // index into PkSweep::roots[i]
-  Eigen::VectorXcd shape;        // (h/b, alpha[, beta]) at the crossing
-};
-
-// First crossing in speed of any mode's damping ratio from stable (> 0) to
-// unstable (<= 0) between consecutive sweep speeds, refined on speed by
-// bracketing root finding (TOMS 748) on Re(p) to `relative_tolerance`. When
-// several modes cross in the same interval the lowest refined speed wins.
-// A crossing with frequency ~ 0 is a static divergence of the tracked mode.
-// `sweep` must come from pk_sweep on the same problem.
-PkCrossing pk_flutter(const PkProblem& problem, const PkSweep& sweep,
+// First flutter crossing of root_tracking.hpp (the shared growth criterion
+// decides the bracketing interval; TOMS 748 on Re(p) re-tracked from the
+// lower speed refines it to `relative_tolerance`). When several modes cross
+// in the same interval the lowest refined speed wins. A crossing whose
+// frequency stays below frequency_floor(section) is a static divergence of
+// the tracked mode and is skipped. `sweep` must come from pk_sweep on the
+// same problem.
+Crossing pk_flutter(const PkProblem& problem, const RootSweep& sweep,
                       double relative_tolerance = 1e-6);
 
 }  // namespace aerosect

@@ -117,6 +117,16 @@ class AeroelasticModel {
   Eigen::MatrixXd state_matrix(const DofVector& spring_stiffness) const;
   // Linear state matrix with every spring at its nominal stiffness.
   Eigen::MatrixXd nominal_state_matrix() const;
+  // state_matrix(spring_stiffness) of the same model at another true
+  // airspeed (m/s, >= 0), from speed-independent blocks stored at
+  // construction (no copy of the description: a model with a long gust
+  // record gives it as fast as one without). With Theodorsen's terms
+  // f_c, d_q, C_a proportional to U and K_a to U^2:
+  //   K(U) = diag(k) + U^2 K_1,   K_1 = K_a/U^2 - phi(0) (f_c/U)(d_q/U)^T
+  //   C(U) = C_s + U C_1,         C_1 = C_a/U   - phi(0) (f_c/U) d_v^T
+  // and the Wagner and Küssner rates (U/b) eps_i. Equals the matrix of a
+  // model built at that airspeed to round-off (about 1e-16 relative).
+  Eigen::MatrixXd state_matrix_at(double airspeed, const DofVector& spring_stiffness) const;
 
   // The linear part A (nonlinear springs excluded) and the input map G
   // (state_size x n_dof): x' = A x - G f(q) for the nonlinear springs' f.
@@ -145,6 +155,14 @@ class AeroelasticModel {
   Eigen::MatrixXd A_;       // linear part, nonlinear springs excluded
   Eigen::MatrixXd G_;       // state_size x n_dof: maps generalised force to x'
   Eigen::VectorXd B_gust_;  // x' += B_gust w_g(t)
+  // Per unit airspeed (state_matrix_at): K_1, C_1, f_c/U, d_q/U; d_v and
+  // the structural damping C_s do not depend on U.
+  DofMatrix unit_stiffness_, unit_damping_, structural_damping_;
+  DofVector unit_circulation_, unit_downwash_displacement_, downwash_rate_;
+  Eigen::MatrixXd assemble(double airspeed, const DofMatrix& K, const DofMatrix& C,
+                           const DofVector& circulation_force,
+                           const DofVector& downwash_displacement,
+                           const DofVector& downwash_rate) const;
   double psi0_ = 0;         // Küssner psi(0)
   std::vector<int> nonlinear_;
   std::vector<double> g_velocity_rows_;  // per nonlinear spring, its G_ column's velocity rows

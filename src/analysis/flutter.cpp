@@ -22,14 +22,38 @@ namespace {
 using cd = std::complex<double>;
 using std::numbers::pi;
 
-// Eigenvalues in the closed upper half plane with their displacement parts.
+// Eigenvalues in the closed upper half plane with their displacement parts,
+// each marked when it is an aerodynamic lag root (see is_lag_root).
 struct Candidates {
   std::vector<cd> values;
   std::vector<Eigen::VectorXcd> shapes;  // normalised (h/b, ...)
+  std::vector<bool> lag;                 // aerodynamic lag root
   double spectral_radius = 0;
 };
 
-Candidates candidates_of(const Eigen::MatrixXd& A, int n, double b) {
+// An eigenvector x = [q | q' | y] of A belongs to an aerodynamic lag root
+// when its Wagner lag states carry more than kLagRatio times the 3/4-chord
+// downwash Q that drives them: with y_i' = r_i (Q - y_i), an eigenvector has
+// y_i = r_i Q / (lambda + r_i), so |y_i| >> |Q| means lambda sits at the lag
+// pole -r_i and the root lives in the lag dynamics, not the structure (a
+// structural root has |y_i / Q| = |r_i / (lambda + r_i)| of order 1). Q is
+// read from A's own Wagner rows: r_i Q = A(w_i, 0:2n) x(0:2n).
+constexpr double kLagRatio = 3.0;
+bool is_lag_root(const Eigen::MatrixXd& A, const StateLayout& L, const Eigen::VectorXcd& x) {
+  const int m = 2 * L.n_dof;
+  double worst = 0;
+  for (int i = 0; i < L.n_wagner; ++i) {
+    const int w = L.wagner + i;
+    const double rate = -A(w, w);
+    if (!(rate > 0)) continue;
+    const cd Q = (A.row(w).head(m).cast<cd>() * x.head(m))(0) / rate;
+    const double y = std::abs(x(w));
+    if (y > kLagRatio * std::abs(Q)) worst = std::max(worst, y);
+  }
+  return worst > 0;
+}
+
+Candidates candidates_of(const Eigen::MatrixXd& A, const StateLayout& L, double b) {
   Eigen::EigenSolver<Eigen::MatrixXd> es(A, true);
   AEROSECT_CHECK(es.info() == Eigen::Success);
   const double scale = es.eigenvalues().cwiseAbs().maxCoeff();
@@ -39,7 +63,8 @@ Candidates candidates_of(const Eigen::MatrixXd& A, int n, double b) {
     const cd v = es.eigenvalues()(i);
     if (v.imag() < -1e-12 * scale) continue;
     c.values.push_back(cd(v.real(), std::max(0.0, v.imag())));
-    c.shapes.push_back(normalised_shape(es.eigenvectors().col(i).head(n), b));
+    c.shapes.push_back(normalised_shape(es.eigenvectors().col(i).head(L.n_dof), b));
+    c.lag.push_back(is_lag_root(A, L, es.eigenvectors().col(i)));
   }
   return c;
 }
@@ -48,16 +73,28 @@ Candidates candidates_of(const Eigen::MatrixXd& A, int n, double b) {
 // false when the assignment is not clean (step too large). With `strict`
 // false (the step cannot be refined further, e.g. exactly at a frequency
 // coalescence) each mode takes the nearest candidate not yet taken.
+// Structural modes continue onto structural candidates: aerodynamic lag
+// roots are passed over while any other candidate is left (a mode seeded at
+// zero frequency, a DOF without stiffness, would otherwise fall onto one of
+// the lag roots that leave zero with it as U grows from 0).
 bool assign(const std::vector<Root>& from, const Candidates& c, double U, double b,
             std::vector<Root>& to, bool strict = true) {
   const std::size_t m = from.size();
   to.assign(m, Root{});
   std::vector<bool> taken(c.values.size(), false);
+  std::size_t structural = 0;
+  for (bool lag : c.lag) structural += lag ? 0 : 1;
+  const std::vector<bool> skip_lag = structural >= m ? c.lag : std::vector<bool>();
   for (std::size_t j = 0; j < m; ++j) {
+    std::vector<bool> skip = skip_lag;
+    if (!strict) {
+      if (skip.empty()) skip.assign(c.values.size(), false);
+      for (std::size_t i = 0; i < skip.size(); ++i) skip[i] = skip[i] || taken[i];
+    }
     const int chosen = strict ? continuing_candidate(c.values, c.shapes, from[j].eigenvalue,
-                                                     from[j].shape, 1.5)
+                                                     from[j].shape, 1.5, skip)
                               : continuing_candidate(c.values, c.shapes, from[j].eigenvalue,
-                                                     Eigen::VectorXcd(), 1.0, taken);
+                                                     Eigen::VectorXcd(), 1.0, skip);
     AEROSECT_CHECK(chosen >= 0);
     const std::size_t i = static_cast<std::size_t>(chosen);
     double sep = std::numeric_limits<double>::infinity();
@@ -71,6 +108,7 @@ bool assign(const std::vector<Root>& from, const Candidates& c, double U, double
     to[j] = make_root(c.values[i], c.shapes[i], U, b);
     to[j].spectral_radius = c.spectral_radius;
     to[j].separation = sep;
+    to[j].aerodynamic_lag = c.lag[i];
   }
   return true;
 }
@@ -82,7 +120,7 @@ RootProvider state_space_provider(const AeroelasticModel& model, const DofVector
   p.step = [&model, k](double U, const std::vector<Root>& from,
                        bool last_try) -> std::optional<std::vector<Root>> {
     const double b = model.description().section.semichord;
-    const Candidates c = candidates_of(model.state_matrix_at(U, k), model.n_dof(), b);
+    const Candidates c = candidates_of(model.state_matrix_at(U, k), model.layout(), b);
     std::vector<Root> to;
     if (assign(from, c, U, b, to)) return to;
     if (!last_try) return std::nullopt;
@@ -103,8 +141,8 @@ std::vector<Root> still_air_roots(const AeroelasticModel& model, const DofVector
   const int steps = 8;
   for (int step = 1; step <= steps; ++step) {
     d.flow.density = rho * step / steps;
-    const Candidates c =
-        candidates_of(AeroelasticModel(d).state_matrix_at(0.0, k), s.dof, s.semichord);
+    const AeroelasticModel still(d);
+    const Candidates c = candidates_of(still.state_matrix_at(0.0, k), still.layout(), s.semichord);
     std::vector<Root> next;
     if (!assign(roots, c, 0.0, s.semichord, next)) {
       // Fall back to nearest-only matching at this density step.
@@ -228,6 +266,14 @@ MethodResult pk_method(const Case& c, const AeroelasticModel& model, const DofVe
 
 }  // namespace
 
+std::vector<std::string> mode_names(const SectionProperties& s, const DofVector& k) {
+  const Eigen::MatrixXd M = structural_mass(s);
+  std::vector<std::string> names;
+  for (const Root& r : in_vacuo_roots(s, k))
+    names.push_back(dof_name(dominant_dof(r.shape, M, s.semichord)));
+  return names;
+}
+
 FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
   FlutterReport rep;
   const SectionProperties& s = c.model.section;
@@ -258,22 +304,14 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
   }
   if (o.amplitude) lins.push_back({Linearisation::kDescribingFunction, df});
 
-  // Mode names from the in-vacuo shapes at nominal stiffness.
-  {
-    const Eigen::MatrixXd M = structural_mass(s);
-    const Eigen::MatrixXd K = nominal.asDiagonal();
-    Eigen::GeneralizedSelfAdjointEigenSolver<Eigen::MatrixXd> es(K, M);
-    for (Eigen::Index i = 0; i < n; ++i) {
-      const Eigen::VectorXcd v = normalised_shape(es.eigenvectors().col(i).cast<cd>(), s.semichord);
-      rep.mode_names.push_back(dof_name(dominant_dof(v, M, s.semichord)));
-    }
-  }
+  rep.mode_names = mode_names(s, nominal);
 
   const AeroelasticModel model = stability_model(c.model);
   for (const auto& [lin, k] : lins) {
     LinearisationResult lr;
     lr.linearisation = lin;
     lr.stiffness = k;
+    lr.mode_names = mode_names(s, k);
     if (o.state_space) {
       MethodResult m;
       m.method = "state-space";

@@ -71,8 +71,8 @@ nlohmann::json shape_json(const Eigen::VectorXcd& v) {
   return j;
 }
 
-nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r, bool flutter,
-                             const Case& c) {
+nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r,
+                             const std::vector<std::string>& names, bool flutter, const Case& c) {
   nlohmann::json j;
   j["found"] = x.found;
   if (!x.found) return j;
@@ -84,7 +84,7 @@ nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r, bool flu
     j["frequency_ratio"] = x.frequency / r.reference_frequency;
     j["reduced_frequency"] = x.reduced_frequency;
     j["mode"] = x.mode + 1;
-    j["mode_name"] = r.mode_names[static_cast<std::size_t>(x.mode)];
+    j["mode_name"] = names[static_cast<std::size_t>(x.mode)];
   }
   if (x.shape.size() > 0) {
     j["shape"] = shape_json(x.shape);
@@ -103,23 +103,33 @@ std::string speed_text(const Crossing& x, const FlutterReport& r) {
 
 FlutterMargin flutter_margin(const FlutterReport& r) {
   FlutterMargin m;
-  if (!r.dive_speed_eas || r.results.empty()) return m;
-  const MethodResult* p = primary(r.results.front());
-  if (!p) return m;
+  if (!r.dive_speed_eas || r.results.empty() || r.results.front().methods.empty()) return m;
+  // The lowest instability over every method run (state-space and p-k):
+  // the margin rests on the lower of the two, never on one by convention.
   double crit = std::numeric_limits<double>::infinity();
-  if (p->flutter.found) {
-    crit = p->flutter.speed;
-    m.critical_kind = "flutter";
-  }
-  if (p->divergence.found && p->divergence.speed < crit) {
-    crit = p->divergence.speed;
-    m.critical_kind = "divergence";
+  for (const MethodResult& p : r.results.front().methods) {
+    if (p.flutter.found && p.flutter.speed < crit) {
+      crit = p.flutter.speed;
+      m.critical_kind = "flutter";
+      m.critical_method = p.method;
+    }
+    if (p.divergence.found && p.divergence.speed < crit) {
+      crit = p.divergence.speed;
+      m.critical_kind = "divergence";
+      m.critical_method = p.method;
+    }
   }
   m.dive_speed_eas = *r.dive_speed_eas;
   m.required_eas = 1.15 * *r.dive_speed_eas;
   if (const LinearisationResult* open = find_lin(r, Linearisation::kGapOpen)) {
-    if (const MethodResult* q = primary(*open); q && q->flutter.found)
-      m.lco_onset_eas = equivalent_airspeed(q->flutter.speed, r.density);
+    for (const MethodResult& q : open->methods)
+      if (q.flutter.found) {
+        const double eas = equivalent_airspeed(q.flutter.speed, r.density);
+        if (!m.lco_onset_eas || eas < *m.lco_onset_eas) {
+          m.lco_onset_eas = eas;
+          m.lco_onset_method = q.method;
+        }
+      }
   }
   if (!std::isfinite(crit)) {
     m.available = true;  // nothing found in the swept range
@@ -154,13 +164,14 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
     nlohmann::json l;
     l["name"] = to_string(lr.linearisation);
     for (int k = 0; k < lr.stiffness.size(); ++k) l["stiffness"][kDofNames[k]] = lr.stiffness(k);
+    l["mode_names"] = lr.mode_names;
     l["methods"] = nlohmann::json::array();
     for (const auto& m : lr.methods) {
       nlohmann::json mj;
       mj["method"] = m.method;
       mj["aerodynamics"] = aero_label(c, m.method);
-      mj["flutter"] = crossing_json(m.flutter, r, true, c);
-      mj["divergence"] = crossing_json(m.divergence, r, false, c);
+      mj["flutter"] = crossing_json(m.flutter, r, lr.mode_names, true, c);
+      mj["divergence"] = crossing_json(m.divergence, r, lr.mode_names, false, c);
       l["methods"].push_back(mj);
     }
     const MethodResult* ss = find_method(lr, "state-space");
@@ -214,10 +225,12 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
     mj["dive_speed_eas_m_s"] = fm.dive_speed_eas;
     mj["required_eas_m_s"] = fm.required_eas;
     mj["critical"] = fm.critical_kind;
+    mj["critical_method"] = fm.critical_method.empty() ? nlohmann::json(nullptr) : nlohmann::json(fm.critical_method);
     mj["critical_eas_m_s"] = std::isfinite(fm.critical_eas) ? nlohmann::json(fm.critical_eas) : nullptr;
     mj["margin_percent"] = std::isfinite(fm.margin) ? nlohmann::json(100 * fm.margin) : nullptr;
     mj["cleared"] = fm.cleared;
     mj["lco_onset_eas_m_s"] = fm.lco_onset_eas ? nlohmann::json(*fm.lco_onset_eas) : nullptr;
+    mj["lco_onset_method"] = fm.lco_onset_eas ? nlohmann::json(fm.lco_onset_method) : nullptr;
     mj["caution"] = kMarginCaution;
     j["margin"] = mj;
   } else {
@@ -250,6 +263,12 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
     for (int k = 0; k < lr.stiffness.size(); ++k)
       t += fmt::format("{}{} = {:.5g}", k ? ", " : "", dofs[k], lr.stiffness(k));
     t += ")\n";
+    if (lr.mode_names != r.mode_names) {
+      t += "  modes at these springs:";
+      for (std::size_t i = 0; i < lr.mode_names.size(); ++i)
+        t += fmt::format(" {} ({})", i + 1, lr.mode_names[i]);
+      t += "\n";
+    }
     for (const auto& m : lr.methods) {
       t += fmt::format("  {:<12} ({})\n", m.method, aero_label(c, m.method));
       t += fmt::format("    flutter     {}", speed_text(m.flutter, r));
@@ -258,7 +277,7 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
                          equivalent_airspeed(m.flutter.speed, r.density),
                          m.flutter.frequency / (2 * pi),
                          m.flutter.frequency / r.reference_frequency, m.flutter.reduced_frequency,
-                         m.flutter.mode + 1, r.mode_names[static_cast<std::size_t>(m.flutter.mode)]);
+                         m.flutter.mode + 1, lr.mode_names[static_cast<std::size_t>(m.flutter.mode)]);
       t += "\n";
       if (m.flutter.found)
         t += fmt::format("                shape {} ({}-dominated)\n", shape_text(m.flutter.shape),
@@ -313,13 +332,13 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
     if (fm.critical_kind == "none") {
       t += "  no flutter or divergence in the swept range\n";
     } else {
-      t += fmt::format("  lowest instability: {} at {:.5g} m/s EAS: margin {:+.1f} % -> {}\n",
-                       fm.critical_kind, fm.critical_eas, 100 * fm.margin,
+      t += fmt::format("  lowest instability: {} ({}) at {:.5g} m/s EAS: margin {:+.1f} % -> {}\n",
+                       fm.critical_kind, fm.critical_method, fm.critical_eas, 100 * fm.margin,
                        fm.cleared ? "beyond 1.15 V_D" : "INSIDE 1.15 V_D");
     }
     if (fm.lco_onset_eas)
-      t += fmt::format("  freeplay LCO can start at the gap-open flutter speed, {:.5g} m/s EAS ({})\n",
-                       *fm.lco_onset_eas,
+      t += fmt::format("  freeplay LCO can start at the gap-open flutter speed ({}), {:.5g} m/s EAS ({})\n",
+                       fm.lco_onset_method, *fm.lco_onset_eas,
                        *fm.lco_onset_eas >= fm.required_eas ? "beyond 1.15 V_D" : "INSIDE 1.15 V_D");
     t += fmt::format("  {}\n", kMarginCaution);
   }
@@ -365,10 +384,15 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
     const std::string lg = group_name(lr.linearisation);
     for (int k = 0; k < lr.stiffness.size(); ++k)
       doc.number_attribute(lg, std::string("stiffness_") + kDofNames[k], lr.stiffness(k));
+    {
+      std::string lnames;
+      for (std::size_t i = 0; i < lr.mode_names.size(); ++i) lnames += (i ? "," : "") + lr.mode_names[i];
+      doc.text_attribute(lg, "mode_names", lnames);
+    }
     for (const auto& m : lr.methods) {
       const std::string g = lg + "/" + method_group(m.method);
       const std::size_t ns = m.sweep.speeds.size();
-      std::vector<double> f(ns * n), z(ns * n), re(ns * n), im(ns * n), kr(ns * n);
+      std::vector<double> f(ns * n), z(ns * n), re(ns * n), im(ns * n), kr(ns * n), lag(ns * n);
       for (std::size_t i = 0; i < ns; ++i) {
         for (int j = 0; j < n; ++j) {
           const Root& root = m.sweep.roots[i][static_cast<std::size_t>(j)];
@@ -378,6 +402,7 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
           re[at] = root.eigenvalue.real();
           im[at] = root.eigenvalue.imag();
           kr[at] = root.reduced_frequency;
+          lag[at] = root.aerodynamic_lag ? 1.0 : 0.0;
         }
       }
       const std::vector<std::string> dims = {"speed", "mode"};
@@ -387,6 +412,8 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
       doc.dataset(g + "/eigenvalue_real", dims, re, "s-1", "real part of the eigenvalue");
       doc.dataset(g + "/eigenvalue_imag", dims, im, "s-1", "imaginary part of the eigenvalue");
       doc.dataset(g + "/reduced_frequency", dims, kr, "1", "reduced frequency omega b / U");
+      doc.dataset(g + "/aerodynamic_lag", dims, lag, "1",
+                  "1 where the tracked root is an aerodynamic lag root, not a structural one");
       doc.text_attribute(g, "aerodynamics", aero_label(c, m.method));
       const double nan = std::numeric_limits<double>::quiet_NaN();
       doc.integer_attribute(g, "flutter_found", m.flutter.found ? 1 : 0);

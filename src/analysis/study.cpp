@@ -242,9 +242,12 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
     rows.add("clearance_speed", "Clearance speed 1.15 V_D", fm.required_eas, "m/s EAS",
              "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m/s EAS", fm.dive_speed_eas));
     if (std::isfinite(fm.margin))
-      rows.add("margin", fmt::format("Margin of the lowest instability ({}) over 1.15 V_D", fm.critical_kind),
+      rows.add("margin",
+               fmt::format("Margin of the lowest instability ({}, {}) over 1.15 V_D", fm.critical_kind,
+                           fm.critical_method),
                100 * fm.margin, "%",
-               fmt::format("flutter.h5: /nominal/state_space (EAS = TAS sqrt(rho/{}))", kSeaLevelDensity),
+               fmt::format("flutter.h5: /nominal/{} (EAS = TAS sqrt(rho/{}))",
+                           fm.critical_method == "p-k" ? "pk" : "state_space", kSeaLevelDensity),
                fm.cleared ? "cleared (linear model, nominal springs)" : "NOT cleared");
     else
       rows.text("margin", "Margin over 1.15 V_D", "no instability in the analysed range",

@@ -90,11 +90,18 @@ struct LinearisationResult {
   Linearisation linearisation = Linearisation::kNominal;
   DofVector stiffness;               // per DOF, SI
   std::vector<MethodResult> methods; // state-space first when both
+  std::vector<std::string> mode_names;  // mode naming rule below, at this stiffness
 };
 
 struct FlutterReport {
   std::vector<LinearisationResult> results;  // nominal first
-  std::vector<std::string> mode_names;       // "plunge", "pitch", "flap" (dominant DOF in vacuo)
+  // Mode naming rule: mode i (numbered as the in-vacuo modes of
+  // (diag(k), M_s), ascending frequency) is named after the DOF holding the
+  // largest share of its in-vacuo kinetic energy (mode_shapes.hpp,
+  // dominant_dof), at the linearisation's own stiffness: a DOF without
+  // stiffness gives a mode of zero in-vacuo frequency, numbered first and
+  // named after that DOF. These are the nominal linearisation's names.
+  std::vector<std::string> mode_names;       // "plunge", "pitch", "flap"
   double reference_speed = 0;                // b omega_alpha, m/s
   double reference_frequency = 0;            // omega_alpha, rad/s
   double density = 0;                        // kg/m^3
@@ -102,6 +109,9 @@ struct FlutterReport {
   std::optional<double> dive_speed_eas;      // V_D from the case, m/s EAS
   LcoPrediction lco;                         // describing-function LCO (one nonlinear spring)
 };
+
+// Names of the modes of (diag(stiffness), M_s) by the rule above.
+std::vector<std::string> mode_names(const SectionProperties& section, const DofVector& stiffness);
 
 // 400 speeds from U_max/400 to U_max = max(10 b omega_alpha, 1.5 U_case,
 // 1.5 * 1.15 V_D in TAS).

@@ -13,7 +13,9 @@
 
 namespace aerosect {
 
-// Lowest instability of the nominal linearisation and the margin against
+// Lowest instability of the nominal linearisation over every method run
+// (state-space and p-k: the lower speed, and the method that gave it) and
+// the margin against
 // 1.15 V_D (CS-25.629(b) / 14 CFR 25.629(b): no flutter within the V_D/M_D
 // envelope enlarged by 15 % in equivalent airspeed).
 struct FlutterMargin {
@@ -22,10 +24,12 @@ struct FlutterMargin {
   double required_eas = 0;       // 1.15 V_D
   double critical_eas = 0;       // lowest flutter/divergence speed, EAS
   double critical_tas = 0;
-  std::string critical_kind;     // "flutter" or "divergence"
+  std::string critical_kind;     // "flutter" or "divergence" ("none")
+  std::string critical_method;   // "state-space" or "p-k": the method with the lowest speed
   double margin = 0;             // critical_eas / required_eas - 1
   bool cleared = false;          // margin >= 0
-  std::optional<double> lco_onset_eas;  // gap-open flutter speed (freeplay), EAS
+  std::optional<double> lco_onset_eas;  // lowest gap-open flutter speed (freeplay), EAS
+  std::string lco_onset_method;         // the method that gave it
 };
 FlutterMargin flutter_margin(const FlutterReport& r);
 

@@ -63,6 +63,8 @@ struct Root {
   Eigen::VectorXcd shape;           // (h/b, alpha[, beta]), largest |component| = 1
   double spectral_radius = 0;       // largest |eigenvalue| of the problem, 1/s (growth criterion)
   double separation = 0;            // |lambda - nearest other eigenvalue|, 1/s (step control)
+  bool aerodynamic_lag = false;     // state-space: the root is an aerodynamic lag root
+                                    // (flutter.hpp), not a structural one
   bool converged = true;            // p-k: the k iteration converged
   int iterations = 0;               // p-k: iterations used
 };

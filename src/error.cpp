@@ -124,4 +124,6 @@ InternalError::InternalError(const char* file, int line, const std::string& cond
     : Error(fmt::format("internal error (please report): {}:{}: check failed: {}", file, line,
                         condition)) {}
 
+Cancelled::Cancelled() : Error("stopped on request (cancel flag set)") {}
+
 }  // namespace aerosect

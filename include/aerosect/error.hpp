@@ -9,6 +9,7 @@
 // The engine never prints or exits; the command-line driver turns these into
 // messages and exit codes.
 
+#include <atomic>
 #include <stdexcept>
 #include <string>
 
@@ -73,6 +74,26 @@ class InternalError : public Error {
  public:
   InternalError(const char* file, int line, const std::string& condition);
 };
+
+// The run was stopped because its caller turned the cancel flag it handed
+// the engine to true (the command-line driver does so on SIGINT/SIGTERM).
+// Not a failure of the run: nothing after the point of stopping was
+// written. Analyses that return a partial result instead (simulate, the
+// sweep) say so in their result and do not throw this.
+class Cancelled : public Error {
+ public:
+  Cancelled();
+};
+
+// True when `cancel` is given and set. Engine loops poll it between units
+// of work (a speed, a gust gradient, a sweep point, a study stage).
+inline bool cancel_requested(const std::atomic<bool>* cancel) {
+  return cancel != nullptr && cancel->load(std::memory_order_relaxed);
+}
+// Throws Cancelled when cancel_requested(cancel).
+inline void stop_if_cancelled(const std::atomic<bool>* cancel) {
+  if (cancel_requested(cancel)) throw Cancelled();
+}
 
 // `text` with every line wider than `width` columns broken at its last space
 // before the limit, the continuation indented by four spaces (a word wider

@@ -11,6 +11,7 @@
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/pk.hpp"
 #include "aerosect/analysis/root_tracking.hpp"
+#include "aerosect/error.hpp"
 
 namespace aerosect {
 
@@ -42,7 +43,7 @@ double largest_growth(const AeroelasticModel& model, const DofVector& k, double 
 }  // namespace
 
 LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& speeds,
-                                      int count) {
+                                      int count, const std::atomic<bool>* cancel) {
   LcoPrediction p;
   const SectionProperties& s = c.model.section;
   const int n = s.dof;
@@ -86,6 +87,7 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
   // TOMS 748. Branch b is the b-th crossing from below at that amplitude.
   std::vector<LcoPredictionPoint> all;
   for (int i = 0; i < count; ++i) {
+    stop_if_cancelled(cancel);
     const double A = amplitude(i);
     const double N = law.describing_function(A);
     if (!(N >= 0)) continue;

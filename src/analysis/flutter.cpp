@@ -173,13 +173,13 @@ AeroelasticModel stability_model(const ModelDescription& description) {
 }
 
 RootSweep state_space_sweep(const AeroelasticModel& model, const DofVector& k,
-                            const std::vector<double>& speeds) {
-  return sweep_roots(state_space_provider(model, k), still_air_roots(model, k), speeds);
+                            const std::vector<double>& speeds, const std::atomic<bool>* cancel) {
+  return sweep_roots(state_space_provider(model, k), still_air_roots(model, k), speeds, cancel);
 }
 
 RootSweep state_space_sweep(const ModelDescription& d, const DofVector& k,
-                            const std::vector<double>& speeds) {
-  return state_space_sweep(stability_model(d), k, speeds);
+                            const std::vector<double>& speeds, const std::atomic<bool>* cancel) {
+  return state_space_sweep(stability_model(d), k, speeds, cancel);
 }
 
 Crossing state_space_flutter(const AeroelasticModel& model, const DofVector& k,
@@ -248,7 +248,7 @@ std::vector<double> default_speeds(const Case& c) {
 namespace {
 
 MethodResult pk_method(const Case& c, const AeroelasticModel& model, const DofVector& k,
-                       const std::vector<double>& speeds, double rtol) {
+                       const std::vector<double>& speeds, double rtol, const std::atomic<bool>* cancel) {
   PkProblem pr;
   pr.section = c.model.section;
   pr.density = c.model.flow.density;
@@ -256,7 +256,8 @@ MethodResult pk_method(const Case& c, const AeroelasticModel& model, const DofVe
   pr.aerodynamics = PkAerodynamics::kExactTheodorsen;
   MethodResult m;
   m.method = "p-k";
-  m.sweep = pk_sweep(pr, speeds);
+  m.sweep = pk_sweep(pr, speeds, cancel);
+  stop_if_cancelled(cancel);
   m.flutter = pk_flutter(pr, m.sweep, rtol);
   // Divergence is a static property (C(0) = 1 for both methods): the
   // quasi-static eigenproblem is exact for it.
@@ -308,6 +309,7 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
 
   const AeroelasticModel model = stability_model(c.model);
   for (const auto& [lin, k] : lins) {
+    stop_if_cancelled(o.cancel);
     LinearisationResult lr;
     lr.linearisation = lin;
     lr.stiffness = k;
@@ -315,15 +317,16 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
     if (o.state_space) {
       MethodResult m;
       m.method = "state-space";
-      m.sweep = state_space_sweep(model, k, speeds);
+      m.sweep = state_space_sweep(model, k, speeds, o.cancel);
+      stop_if_cancelled(o.cancel);
       m.flutter = state_space_flutter(model, k, m.sweep, o.relative_tolerance);
       m.divergence = state_space_divergence(model, k, speeds, o.relative_tolerance);
       lr.methods.push_back(std::move(m));
     }
-    if (o.pk) lr.methods.push_back(pk_method(c, model, k, speeds, o.relative_tolerance));
+    if (o.pk) lr.methods.push_back(pk_method(c, model, k, speeds, o.relative_tolerance, o.cancel));
     rep.results.push_back(std::move(lr));
   }
-  if (o.lco_prediction) rep.lco = describing_function_lco(c, speeds);
+  if (o.lco_prediction) rep.lco = describing_function_lco(c, speeds, 80, o.cancel);
   return rep;
 }
 

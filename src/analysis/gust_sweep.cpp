@@ -19,7 +19,8 @@ std::vector<double> default_gradients() {
   return g;
 }
 
-GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients) {
+GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients,
+                              const std::atomic<bool>* cancel) {
   std::vector<GustProfile> base = c.model.gusts.profiles();
   bool any = false;
   for (const auto& p : base) any |= p.shape == GustShape::kOneMinusCosine;
@@ -30,6 +31,7 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
   GustSweep out;
   for (double H : gradients) {
     AEROSECT_CHECK(H > 0);
+    stop_if_cancelled(cancel);
     Case run = c;
     std::vector<GustProfile> profiles = base;
     double first = -1;
@@ -51,7 +53,8 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
     GustSweepPoint pt;
     pt.gradient = H;
     pt.design_velocity = first;
-    pt.summary = simulate(run, model, sink);
+    pt.summary = simulate(run, model, sink, cancel);
+    stop_if_cancelled(cancel);  // a run stopped part-way is no peak
     out.points.push_back(pt);
   }
   // Critical gradient per channel.

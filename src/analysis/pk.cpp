@@ -285,12 +285,13 @@ std::vector<Root> pk_roots(const SectionProperties& s, double density, double ai
   return pk_roots(pr, airspeed, previous);
 }
 
-RootSweep pk_sweep(const PkProblem& problem, const std::vector<double>& speeds) {
+RootSweep pk_sweep(const PkProblem& problem, const std::vector<double>& speeds,
+                   const std::atomic<bool>* cancel) {
   for (std::size_t i = 0; i < speeds.size(); ++i) {
     AEROSECT_CHECK(speeds[i] >= 0.0 && std::isfinite(speeds[i]));
     if (i > 0) AEROSECT_CHECK(speeds[i] > speeds[i - 1]);
   }
-  return sweep_roots(pk_provider(problem), pk_roots(problem, 0.0, {}), speeds);
+  return sweep_roots(pk_provider(problem), pk_roots(problem, 0.0, {}), speeds, cancel);
 }
 
 Crossing pk_flutter(const PkProblem& problem, const RootSweep& sweep, double relative_tolerance) {

@@ -114,7 +114,7 @@ std::vector<Root> continue_roots(const RootProvider& p, double Ua, const std::ve
 }
 
 RootSweep sweep_roots(const RootProvider& p, std::vector<Root> current,
-                      const std::vector<double>& speeds) {
+                      const std::vector<double>& speeds, const std::atomic<bool>* cancel) {
   RootSweep sw;
   sw.speeds = speeds;
   for (std::size_t i = 0; i < speeds.size(); ++i) {
@@ -123,6 +123,7 @@ RootSweep sweep_roots(const RootProvider& p, std::vector<Root> current,
   }
   double U = 0;
   for (double target : speeds) {
+    stop_if_cancelled(cancel);
     if (target > U) current = advance(p, U, current, target, 0);
     U = target;
     sw.roots.push_back(current);

@@ -154,15 +154,437 @@ nlohmann::json row_json(const StudyRow& r) {
           {"note", r.note}};
 }
 
+// ---------------------------------------------------------------------------
+// The stages. Each reads what the earlier ones left in Study, writes its
+// files, adds its summary rows and its part, and returns; run_study calls
+// them in order. A set cancel flag ends a stage by Cancelled.
+
+struct Study {
+  Study(const Case& c_, const std::string& directory, const StudyOptions& o_, const std::atomic<bool>* cancel_,
+        const std::function<void(const std::string&)>& progress)
+      : c(c_), o(o_), cancel(cancel_), progress_(progress), rows(R.rows) {
+    R.directory = directory;
+    si = c.input_form == "si";
+    rho = c.model.flow.density;
+    if (c.dive_speed_eas) vd_tas = true_airspeed(*c.dive_speed_eas, rho);
+  }
+  const Case& c;
+  const StudyOptions& o;
+  const std::atomic<bool>* cancel;
+  const std::function<void(const std::string&)>& progress_;
+  StudyResult R;
+  Rows rows;
+  bool si = true;
+  double rho = 0;
+  std::optional<double> vd_tas;  // V_D, m/s TAS
+  CheckReport check;             // from the check stage
+  FlutterReport flutter;         // from the flutter stage
+
+  void say(const std::string& s) const {
+    if (progress_) progress_(s);
+  }
+  std::string path(const std::string& name) const { return (fs::path(R.directory) / name).string(); }
+  void part(std::string name, bool done, std::string detail, std::vector<std::string> files = {}) {
+    R.parts.push_back({std::move(name), done, std::move(detail), std::move(files)});
+  }
+};
+
+// The case as run, and its check.
+void check_stage(Study& s) {
+  write_file_atomically(s.path("case.toml"), s.c.text_as_run());
+  s.say("check");
+  s.check = check_case(s.c);
+  write_file_atomically(s.path("check.json"), check_json(s.c, s.check).dump(2) + "\n");
+  s.part("check", true,
+         fmt::format("{} in-vacuo modes, lowest {:.4g} Hz", s.check.modes.size(),
+                     s.check.modes.empty() ? 0.0 : s.check.modes.front().frequency / (2 * std::numbers::pi)),
+         {"case.toml", "check.json"});
+}
+
+// Rows of the flutter speeds of one linearisation, both methods.
+void flutter_rows(Study& s, Linearisation l, const std::string& label, const std::string& id) {
+  const char* lin_group[4] = {"nominal", "gap_closed", "gap_open", "describing_function"};
+  for (const char* method : {"state-space", "p-k"}) {
+    const MethodResult* m = method_of(s.flutter, l, method);
+    if (!m) continue;
+    const std::string g = fmt::format("/{}/{}", lin_group[static_cast<int>(l)],
+                                      std::string(method) == "p-k" ? "pk" : "state_space");
+    const std::string mid = std::string(method) == "p-k" ? "pk" : "state_space";
+    if (m->flutter.found) {
+      s.rows.add(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method), m->flutter.speed,
+                 "m/s TAS", "flutter.h5: " + g + "@flutter_speed",
+                 fmt::format("{:.4g} m/s EAS, {:.4g} Hz", equivalent_airspeed(m->flutter.speed, s.rho),
+                             m->flutter.frequency / (2 * std::numbers::pi)));
+    } else {
+      s.rows.text(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method),
+                  fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
+                  "flutter.h5: " + g + "@flutter_found");
+    }
+  }
+}
+
+// Linear flutter and divergence, both methods; the margin over 1.15 V_D.
+void flutter_stage(Study& s) {
+  s.say("flutter: state-space and p-k");
+  FlutterOptions fo;
+  fo.cancel = s.cancel;
+  s.flutter = flutter_analysis(s.c, fo);
+  const FlutterReport& fr = s.flutter;
+  write_flutter_file(s.path("flutter.h5"), s.c, fr);
+  s.R.hdf5_files.push_back("flutter.h5");
+  std::string lins;
+  for (const auto& lr : fr.results) lins += (lins.empty() ? "" : ", ") + std::string(to_string(lr.linearisation));
+  s.part("flutter", true,
+         fmt::format("state-space and p-k over {} speeds up to {:.4g} m/s TAS; linearisations: {}",
+                     fr.results.front().methods.front().sweep.speeds.size(),
+                     fr.results.front().methods.front().sweep.speeds.back(), lins),
+         {"flutter.h5"});
+  flutter_rows(s, Linearisation::kNominal, "Linear", "linear");
+  if (const MethodResult* m = method_of(fr, Linearisation::kNominal, "state-space")) {
+    if (m->divergence.found)
+      s.rows.add("divergence", "Divergence speed (state-space)", m->divergence.speed, "m/s TAS",
+                 "flutter.h5: /nominal/state_space@divergence_speed",
+                 fmt::format("{:.4g} m/s EAS", equivalent_airspeed(m->divergence.speed, s.rho)));
+    else
+      s.rows.text("divergence", "Divergence speed (state-space)",
+                  fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
+                  "flutter.h5: /nominal/state_space@divergence_found");
+  }
+  const FlutterMargin fm = flutter_margin(fr);
+  if (fm.available) {
+    s.rows.add("clearance_speed", "Clearance speed 1.15 V_D", fm.required_eas, "m/s EAS",
+               "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m/s EAS", fm.dive_speed_eas));
+    if (std::isfinite(fm.margin))
+      s.rows.add("margin",
+                 fmt::format("Margin of the lowest instability ({}, {}) over 1.15 V_D", fm.critical_kind,
+                             fm.critical_method),
+                 100 * fm.margin, "%",
+                 fmt::format("flutter.h5: /nominal/{} (EAS = TAS sqrt(rho/{}))",
+                             fm.critical_method == "p-k" ? "pk" : "state_space", kSeaLevelDensity),
+                 fm.cleared ? "cleared (linear model, nominal springs)" : "NOT cleared");
+    else
+      s.rows.text("margin", "Margin over 1.15 V_D", "no instability in the analysed range",
+                  "flutter.h5: /nominal/state_space", "cleared (linear model, nominal springs)");
+  } else {
+    s.rows.text("margin", "Margin over 1.15 V_D", "not assessed", "", "the case gives no envelope.dive_speed_eas");
+  }
+  if (fr.has_gap) {
+    flutter_rows(s, Linearisation::kGapOpen, "Gap-open (freeplay band lower end)", "gap_open");
+    flutter_rows(s, Linearisation::kGapClosed, "Gap-closed (freeplay band upper end)", "gap_closed");
+  }
+}
+
+// What the LCO sweep stage hands the rows and the LCO history stage.
+struct LcoSweepRun {
+  std::vector<SweepPoint> points;
+  double per = 1;  // swept value per m/s TAS
+  std::string key;
+};
+
+// The LCO sweep's speed range (m/s TAS): below the lowest speed a limit
+// cycle can exist at (the gap-open flutter speed, or lower where the
+// describing-function curve dips below it) up to just under the gap-closed
+// (nominal) flutter speed.
+std::pair<double, double> lco_sweep_range(const Study& s) {
+  const FlutterReport& fr = s.flutter;
+  const MethodResult* nominal = method_of(fr, Linearisation::kNominal, "state-space");
+  const MethodResult* open = method_of(fr, Linearisation::kGapOpen, "state-space");
+  double lo = std::numeric_limits<double>::infinity(), hi = 0;
+  if (open && open->flutter.found) lo = open->flutter.speed;
+  if (fr.lco.available)
+    for (const auto& p : fr.lco.points)
+      if (p.speed > 0) lo = std::min(lo, p.speed);
+  if (nominal && nominal->flutter.found) {
+    if (!fr.has_gap) lo = std::min(lo, nominal->flutter.speed);
+    hi = fr.has_gap ? 0.98 * nominal->flutter.speed : 1.3 * nominal->flutter.speed;
+  } else {
+    hi = s.vd_tas ? 1.2 * 1.15 * *s.vd_tas : 1.5 * s.c.model.flow.airspeed;
+  }
+  if (!std::isfinite(lo)) lo = 0.2 * hi;
+  lo = std::min(0.6 * lo, 0.5 * hi);
+  if (s.o.sweep_speeds) return *s.o.sweep_speeds;
+  return {lo, hi};
+}
+
+// The LCO sweep up and down in airspeed, written to sweep.h5.
+LcoSweepRun lco_sweep_stage(Study& s, int nl) {
+  const Case& c = s.c;
+  LcoSweepRun run;
+  run.key = s.si ? "flow.airspeed" : "nondimensional.reduced_speed";
+  run.per = s.si ? 1.0 : 1.0 / s.flutter.reference_speed;
+  const auto [lo, hi] = lco_sweep_range(s);
+  const int n = std::max(2, s.o.sweep_points);
+  SweepAxis axis{run.key, {}};
+  for (int i = 0; i < n; ++i) axis.values.push_back(run.per * (lo + (hi - lo) * i / (n - 1)));
+
+  // Run length and disturbance.
+  const double f_low = s.check.modes.empty() ? 1.0 : s.check.modes.front().frequency / (2 * std::numbers::pi);
+  Derivation dv;
+  const double sweep_duration =
+      s.o.sweep_duration > 0 ? s.o.sweep_duration : std::max(c.simulation.duration, 400.0 / f_low);
+  dv.duration = sweep_duration;
+  bool at_rest = true;
+  for (int k = 0; k < c.model.section.dof; ++k)
+    if (c.simulation.initial_displacement(k) != 0 || c.simulation.initial_velocity(k) != 0) at_rest = false;
+  std::string disturbance_note = "initial conditions of the case";
+  if (at_rest) {
+    const auto bp = c.model.springs[static_cast<std::size_t>(nl)].breakpoints();
+    double gap = 0;
+    for (double b : bp) gap = std::max(gap, std::abs(b));
+    dv.disturb_dof = nl;
+    dv.disturbance = gap > 0 ? 4.0 * gap : (nl == kPlunge ? 0.1 * c.model.section.semichord : 2.0 * kRadPerDeg);
+    disturbance_note = fmt::format("the case starts at rest: {} displaced by {:.4g} {}", kDofNames[nl],
+                                   nl == kPlunge ? dv.disturbance : dv.disturbance * kDegPerRad,
+                                   nl == kPlunge ? "m" : "deg");
+  }
+  SweepRequest req;
+  req.case_text = derived_case_text(c, dv);
+  req.case_path = c.path + " (LCO sweep)";
+  req.overrides = c.overrides;
+  req.options.axes = {axis};
+  req.options.up = req.options.down = true;
+  req.options.continuation = true;
+  req.options.jobs = std::max(1, s.o.jobs);
+  s.say(fmt::format("LCO sweep: {} speeds {:.4g}..{:.4g} m/s TAS, up and down", n, lo, hi));
+  const Case sweep_case = parse_case(req.case_text, req.case_path, req.overrides);
+  run.points = run_sweep(req, {}, {}, s.cancel);
+  stop_if_cancelled(s.cancel);  // an interrupted sweep's points are not a map
+  write_sweep_file(s.path("sweep.h5"), sweep_case, req, run.points);
+  s.R.hdf5_files.push_back("sweep.h5");
+  s.part("lco-sweep", true,
+         fmt::format("{} speeds from {:.4g} to {:.4g} m/s TAS, up and down with continuation; runs of up "
+                     "to {:.4g} s; {}; gusts removed",
+                     n, lo, hi, sweep_duration, disturbance_note),
+         {"sweep.h5"});
+  return run;
+}
+
+// Rows of the sweep: onset, persistence, hysteresis, where LCOs were found.
+void lco_sweep_rows(Study& s, const LcoSweepRun& run) {
+  const std::vector<SweepPoint>& pts = run.points;
+  const double per = run.per;
+  const SweepSummary sm = summarize(pts);
+  const std::string key_note = s.si ? "" : fmt::format(" (U* = value x {:.4g} m/s)", s.flutter.reference_speed);
+  if (sm.onset_up)
+    s.rows.add("lco_onset_up", "LCO onset, sweeping up", *sm.onset_up / per, "m/s TAS",
+               "sweep.h5: first response_class = 1 at direction 0" + key_note,
+               fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*sm.onset_up / per, s.rho)));
+  else
+    s.rows.text("lco_onset_up", "LCO onset, sweeping up", "no LCO found", "sweep.h5: response_class");
+  if (sm.disappearance_down)
+    s.rows.add("lco_persists_down", "LCO persists, sweeping down, to", *sm.disappearance_down / per, "m/s TAS",
+               "sweep.h5: lowest response_class = 1 at direction 1" + key_note,
+               fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*sm.disappearance_down / per, s.rho)));
+  else
+    s.rows.text("lco_persists_down", "LCO persists, sweeping down, to", "no LCO found", "sweep.h5: response_class");
+  if (sm.onset_up && sm.disappearance_down && *sm.disappearance_down < *sm.onset_up)
+    s.rows.text("hysteresis", "Hysteresis band",
+                fmt::format("{} .. {} m/s TAS", sig4(*sm.disappearance_down / per), sig4(*sm.onset_up / per)),
+                "sweep.h5: response_class, both directions");
+  else
+    s.rows.text("hysteresis", "Hysteresis band", "none seen at this speed spacing",
+                "sweep.h5: response_class, both directions");
+  // Where any LCO was found, either direction.
+  std::optional<double> first, last;
+  for (const auto& p : pts)
+    if (p.ok && p.lco.response == ResponseClass::kPeriodic) {
+      first = std::min(first.value_or(p.value1), p.value1);
+      last = std::max(last.value_or(p.value1), p.value1);
+    }
+  if (first)
+    s.rows.text("lco_range", "LCO found between (either direction)",
+                fmt::format("{} .. {} m/s TAS", sig4(*first / per), sig4(*last / per)), "sweep.h5: response_class = 1",
+                s.vd_tas && *first / per <= *s.vd_tas ? "inside the envelope (at or below V_D)" : "");
+  else
+    s.rows.text("lco_range", "LCO found between (either direction)", "no LCO in the sweep", "sweep.h5: response_class");
+}
+
+// The largest LCO inside the envelope (at or below V_D), or nullptr.
+const SweepPoint* largest_lco(const Study& s, const LcoSweepRun& run) {
+  const SweepPoint* worst = nullptr;
+  for (const auto& p : run.points) {
+    if (!p.ok || p.lco.response != ResponseClass::kPeriodic) continue;
+    if (s.vd_tas && p.value1 / run.per > *s.vd_tas * (1 + 1e-12)) continue;
+    const auto w = static_cast<std::size_t>(p.lco.watched_dof);
+    if (!worst || p.lco.dof[w].amplitude > worst->lco.dof[w].amplitude) worst = &p;
+  }
+  return worst;
+}
+
+// Rows of the largest LCO: amplitudes, RMS, distortion, hinge-spring moment.
+void largest_lco_rows(Study& s, const SweepPoint& worst, const std::string& where, double per) {
+  const Case& c = s.c;
+  const int w = worst.lco.watched_dof;
+  const bool angle = w != kPlunge;
+  const double a = worst.lco.dof[static_cast<std::size_t>(w)].amplitude;
+  s.rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDofNames[w]), angle ? a * kDegPerRad : a,
+             angle ? "deg" : "m",
+             fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]{}", kDofNames[w], worst.direction, worst.i,
+                         angle ? " (rad in the file)" : ""),
+             fmt::format("at {:.4g} m/s TAS sweeping {}, {:.4g} Hz", worst.value1 / per,
+                         worst.direction == 0 ? "up" : "down", worst.lco.frequency));
+  if (worst.cycle.samples > 0) {
+    const DofHarmonics& h = worst.cycle.dof[static_cast<std::size_t>(w)];
+    s.rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDofNames[w]), angle ? h.rms * kDegPerRad : h.rms,
+               angle ? "deg" : "m",
+               fmt::format("sweep.h5: {}_rms[direction {}, value_1 index {}]{}", kDofNames[w], worst.direction, worst.i,
+                           angle ? " (rad in the file)" : ""));
+    s.rows.add("lco_largest_thd", fmt::format("  {} total harmonic distortion at that LCO", kDofNames[w]), 100 * h.thd,
+               "%",
+               fmt::format("sweep.h5: {}_thd[direction {}, value_1 index {}] x 100", kDofNames[w], worst.direction,
+                           worst.i),
+               "harmonics above the first, against the first");
+  }
+  for (int k = 0; k < c.model.section.dof; ++k) {
+    if (k == w) continue;
+    const double ak = worst.lco.dof[static_cast<std::size_t>(k)].amplitude;
+    s.rows.add(fmt::format("lco_largest_{}", kDofNames[k]), fmt::format("  {} amplitude at that LCO", kDofNames[k]),
+               k == kPlunge ? ak : ak * kDegPerRad, k == kPlunge ? "m" : "deg",
+               fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]", kDofNames[k], worst.direction,
+                           worst.i));
+  }
+  if (c.model.section.dof == 3) {
+    const SpringLaw& law = c.model.springs[kFlap];
+    const double fmax = law.force(worst.lco.dof[kFlap].max, law.region_of(worst.lco.dof[kFlap].max));
+    const double fmin = law.force(worst.lco.dof[kFlap].min, law.region_of(worst.lco.dof[kFlap].min));
+    s.rows.add("lco_hinge_spring_moment", "  hinge-spring (control circuit) moment at that LCO, largest |value|",
+               std::max(std::abs(fmax), std::abs(fmin)), "N m/m",
+               "flap spring law at sweep.h5: flap_max / flap_min of that point");
+  }
+}
+
+// Time history of the largest LCO, from the sweep point's final state.
+void lco_history_stage(Study& s, const SweepPoint& worst, const std::string& where, const LcoSweepRun& run) {
+  const Case& c = s.c;
+  s.say(fmt::format("LCO time history at {:.4g} m/s TAS", worst.value1 / run.per));
+  const double period = 1.0 / worst.lco.frequency;
+  Derivation hv;
+  hv.duration = 10 * period;
+  hv.sample_interval = period / 200;
+  std::vector<std::string> ov = c.overrides;
+  ov.push_back(fmt::format("{}={:.17g}", run.key, worst.value1));
+  const Case hc = parse_case(derived_case_text(c, hv), c.path + " (largest LCO)", ov);
+  const AeroelasticModel hm(hc.model);
+  RunState start;
+  start.x = worst.final_state;
+  start.regions = worst.final_regions;
+  Hdf5TimeHistoryWriter writer(s.path("lco.h5"));
+  const SimulationSummary hs = simulate(hc, hm, writer, s.cancel, &start);
+  stop_if_cancelled(s.cancel);  // the partial run is lco.incomplete.h5
+  s.R.hdf5_files.push_back("lco.h5");
+  s.part("lco-history", hs.completed,
+         fmt::format("10 cycles of the largest LCO {} ({:.4g} m/s TAS), started from the sweep point's final state",
+                     where, worst.value1 / run.per),
+         {"lco.h5"});
+  for (const auto& e : hs.extremes)
+    if (e.channel == "hinge_moment")
+      s.rows.add("lco_hinge_moment", "  aerodynamic hinge moment at that LCO, largest |value|",
+                 std::max(std::abs(e.max), std::abs(e.min)), "N m/m", "lco.h5: hinge_moment (largest |sample|)");
+}
+
+// The LCO sweep, its rows and the history of its largest LCO.
+void lco_stages(Study& s) {
+  const int nl = nonlinear_dof(s.c);
+  if (nl < 0) {
+    s.part("lco-sweep", false, "skipped: the case has no nonlinear spring (freeplay, bilinear, cubic, "
+                               "polynomial or table law), so its response is linear and the flutter "
+                               "analysis above is the whole answer");
+    s.rows.text("lco", "Limit-cycle oscillation", "not studied", "", "no nonlinear spring in the case");
+    return;
+  }
+  const LcoSweepRun run = lco_sweep_stage(s, nl);
+  lco_sweep_rows(s, run);
+  const std::string where = s.vd_tas ? fmt::format("at or below V_D ({:.4g} m/s TAS)", *s.vd_tas)
+                                     : std::string("over the sweep (no V_D given)");
+  const SweepPoint* worst = largest_lco(s, run);
+  if (!worst) {
+    s.rows.text("lco_largest", "Largest LCO " + where, "no LCO", "sweep.h5: response_class");
+    s.part("lco-history", false, "skipped: no LCO " + where);
+    return;
+  }
+  largest_lco_rows(s, *worst, where, run.per);
+  if (worst->lco.frequency > 0) lco_history_stage(s, *worst, where, run);
+}
+
+// The design-gust gradient sweep, from rest.
+void gust_stage(Study& s) {
+  const Case& c = s.c;
+  if (!has_one_minus_cosine(c)) {
+    s.part("gust-sweep", false,
+           c.model.gusts.empty() ? "skipped: the case has no [[gust]]"
+                                 : "skipped: the case has no one-minus-cosine gust to size over H");
+    return;
+  }
+  s.say("design gust: 1-cos gradient sweep");
+  // From rest, so the peaks are the gust's and not the release transient's.
+  Derivation gv;
+  gv.remove_gusts = false;
+  gv.at_rest = true;
+  const Case gc = parse_case(derived_case_text(c, gv), c.path + " (design gust, from rest)", c.overrides);
+  const GustSweep gs = gust_gradient_sweep(gc, default_gradients(), s.cancel);
+  write_gust_sweep_file(s.path("gust.h5"), gc, gs);
+  s.R.hdf5_files.push_back("gust.h5");
+  s.part("gust-sweep", true,
+         fmt::format("{} gust gradients H from {:.4g} to {:.4g} m{}, from rest", gs.points.size(),
+                     gs.points.front().gradient, gs.points.back().gradient,
+                     c.altitude ? fmt::format(" at {:.4g} m (ISA)", *c.altitude) : std::string()),
+         {"gust.h5"});
+  for (const auto& cr : gs.critical) {
+    if (cr.channel != "plunge" && cr.channel != "pitch" && cr.channel != "flap" && cr.channel != "lift" &&
+        cr.channel != "pitching_moment" && cr.channel != "hinge_moment")
+      continue;
+    const bool angle = cr.channel == "pitch" || cr.channel == "flap";
+    s.rows.add("gust_peak_" + cr.channel, fmt::format("Design gust: peak {}", cr.channel),
+               angle ? cr.value * kDegPerRad : cr.value, angle ? "deg" : cr.units,
+               fmt::format("gust.h5: /peaks@critical_value_{}{}", cr.channel, angle ? " (rad in the file)" : ""),
+               fmt::format("critical H = {:.4g} m", cr.gradient));
+  }
+}
+
+// The case as given: initial conditions and gusts (turbulence RMS rows).
+void response_stage(Study& s) {
+  const Case& c = s.c;
+  s.say("response to the case as given");
+  const AeroelasticModel model(c.model);
+  Hdf5TimeHistoryWriter writer(s.path("response.h5"));
+  const SimulationSummary rs = simulate(c, model, writer, s.cancel);
+  stop_if_cancelled(s.cancel);  // the partial run is response.incomplete.h5
+  s.R.hdf5_files.push_back("response.h5");
+  s.part("response", rs.completed,
+         fmt::format("{:.4g} s from the case's initial conditions{}", rs.end_time,
+                     c.model.gusts.empty() ? std::string(", no gusts")
+                                           : fmt::format(" with its {} gust input(s)", c.model.gusts.profiles().size())),
+         {"response.h5"});
+  if (!has_turbulence(c)) {
+    s.part("turbulence", false, "skipped: the case asks for no turbulence");
+    return;
+  }
+  for (const auto& e : rs.extremes)
+    if (e.channel == "lift" || e.channel == "pitch" || e.channel == "flap" || e.channel == "hinge_moment") {
+      const bool angle = e.channel == "pitch" || e.channel == "flap";
+      s.rows.add("turbulence_rms_" + e.channel, fmt::format("Turbulence: RMS {}", e.channel),
+                 angle ? e.rms * kDegPerRad : e.rms, angle ? "deg" : e.units,
+                 fmt::format("response.h5: {} (RMS of the samples){}", e.channel, angle ? " (rad in the file)" : ""));
+    }
+}
+
+// What summary.json holds.
+nlohmann::json summary_json(const Case& c, const StudyResult& R) {
+  nlohmann::json j = report_header(c, "study");
+  j["directory"] = R.directory;
+  for (const auto& r : R.rows) j["summary"].push_back(row_json(r));
+  for (const auto& p : R.parts)
+    j["parts"].push_back({{"name", p.name}, {"done", p.done}, {"detail", p.detail}, {"files", p.files}});
+  j["hdf5_files"] = R.hdf5_files;
+  j["completed"] = R.completed;
+  return j;
+}
+
 }  // namespace
 
 StudyResult run_study(const Case& c, const std::string& directory, const StudyOptions& o,
                       const std::atomic<bool>* cancel,
                       const std::function<void(const std::string&)>& progress) {
-  auto say = [&](const std::string& s) {
-    if (progress) progress(s);
-  };
-  auto cancelled = [&] { return cancel && cancel->load(); };
   {
     std::error_code ec;
     fs::create_directories(directory, ec);
@@ -170,367 +592,47 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
       throw OutputError(directory, fmt::format("cannot create the study directory '{}': {}", directory,
                                                ec ? ec.message() : "not a directory"));
   }
-  StudyResult R;
-  R.directory = directory;
-  Rows rows(R.rows);
-  auto path = [&](const std::string& name) { return (fs::path(directory) / name).string(); };
-  auto part = [&](std::string name, bool done, std::string detail, std::vector<std::string> files = {}) {
-    R.parts.push_back({std::move(name), done, std::move(detail), std::move(files)});
-  };
-  const bool si = c.input_form == "si";
-  const double rho = c.model.flow.density;
-
-  // --- The case as run, and its check --------------------------------------
-  write_file_atomically(path("case.toml"), c.text_as_run());
-  say("check");
-  const CheckReport check = check_case(c);
-  write_file_atomically(path("check.json"), check_json(c, check).dump(2) + "\n");
-  part("check", true,
-       fmt::format("{} in-vacuo modes, lowest {:.4g} Hz", check.modes.size(),
-                   check.modes.empty() ? 0.0 : check.modes.front().frequency / (2 * std::numbers::pi)),
-       {"case.toml", "check.json"});
-
-  // --- Linear flutter and divergence, both methods ---------------------------
-  say("flutter: state-space and p-k");
-  FlutterOptions fo;
-  const FlutterReport fr = flutter_analysis(c, fo);
-  write_flutter_file(path("flutter.h5"), c, fr);
-  R.hdf5_files.push_back("flutter.h5");
-  part("flutter", true,
-       fmt::format("state-space and p-k over {} speeds up to {:.4g} m/s TAS; linearisations: {}",
-                   fr.results.front().methods.front().sweep.speeds.size(),
-                   fr.results.front().methods.front().sweep.speeds.back(),
-                   [&] {
-                     std::string s;
-                     for (const auto& lr : fr.results) s += (s.empty() ? "" : ", ") + std::string(to_string(lr.linearisation));
-                     return s;
-                   }()),
-       {"flutter.h5"});
-  const char* lin_group[4] = {"nominal", "gap_closed", "gap_open", "describing_function"};
-  auto flutter_rows = [&](Linearisation l, const std::string& label, const std::string& id) {
-    for (const char* method : {"state-space", "p-k"}) {
-      const MethodResult* m = method_of(fr, l, method);
-      if (!m) continue;
-      const std::string g = fmt::format("/{}/{}", lin_group[static_cast<int>(l)],
-                                        std::string(method) == "p-k" ? "pk" : "state_space");
-      const std::string mid = std::string(method) == "p-k" ? "pk" : "state_space";
-      if (m->flutter.found) {
-        rows.add(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method),
-                 m->flutter.speed, "m/s TAS", "flutter.h5: " + g + "@flutter_speed",
-                 fmt::format("{:.4g} m/s EAS, {:.4g} Hz", equivalent_airspeed(m->flutter.speed, rho),
-                             m->flutter.frequency / (2 * std::numbers::pi)));
-      } else {
-        rows.text(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method),
-                  fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
-                  "flutter.h5: " + g + "@flutter_found");
-      }
-    }
-  };
-  flutter_rows(Linearisation::kNominal, "Linear", "linear");
-  if (const MethodResult* m = method_of(fr, Linearisation::kNominal, "state-space")) {
-    if (m->divergence.found)
-      rows.add("divergence", "Divergence speed (state-space)", m->divergence.speed, "m/s TAS",
-               "flutter.h5: /nominal/state_space@divergence_speed",
-               fmt::format("{:.4g} m/s EAS", equivalent_airspeed(m->divergence.speed, rho)));
-    else
-      rows.text("divergence", "Divergence speed (state-space)",
-                fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
-                "flutter.h5: /nominal/state_space@divergence_found");
+  Study s(c, directory, o, cancel, progress);
+  try {
+    check_stage(s);
+    stop_if_cancelled(cancel);
+    flutter_stage(s);
+    stop_if_cancelled(cancel);
+    lco_stages(s);
+    stop_if_cancelled(cancel);
+    gust_stage(s);
+    stop_if_cancelled(cancel);
+    response_stage(s);
+    s.R.completed = true;
+  } catch (const Cancelled&) {
+    s.R.completed = false;
+    s.part("interrupted", false, "stopped on request: the stages after the last one listed were not run");
   }
-  const FlutterMargin fm = flutter_margin(fr);
-  if (fm.available) {
-    rows.add("clearance_speed", "Clearance speed 1.15 V_D", fm.required_eas, "m/s EAS",
-             "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m/s EAS", fm.dive_speed_eas));
-    if (std::isfinite(fm.margin))
-      rows.add("margin",
-               fmt::format("Margin of the lowest instability ({}, {}) over 1.15 V_D", fm.critical_kind,
-                           fm.critical_method),
-               100 * fm.margin, "%",
-               fmt::format("flutter.h5: /nominal/{} (EAS = TAS sqrt(rho/{}))",
-                           fm.critical_method == "p-k" ? "pk" : "state_space", kSeaLevelDensity),
-               fm.cleared ? "cleared (linear model, nominal springs)" : "NOT cleared");
-    else
-      rows.text("margin", "Margin over 1.15 V_D", "no instability in the analysed range",
-                "flutter.h5: /nominal/state_space", "cleared (linear model, nominal springs)");
-  } else {
-    rows.text("margin", "Margin over 1.15 V_D", "not assessed", "",
-              "the case gives no envelope.dive_speed_eas");
-  }
-  if (fr.has_gap) {
-    flutter_rows(Linearisation::kGapOpen, "Gap-open (freeplay band lower end)", "gap_open");
-    flutter_rows(Linearisation::kGapClosed, "Gap-closed (freeplay band upper end)", "gap_closed");
-  }
+  s.R.summary = summary_json(c, s.R);
+  write_file_atomically(s.path("summary.json"), s.R.summary.dump(2) + "\n");
+  return std::move(s.R);
+}
 
-  // --- LCO sweep up and down --------------------------------------------------
-  const int nl = nonlinear_dof(c);
-  std::string sweep_key = si ? "flow.airspeed" : "nondimensional.reduced_speed";
-  const double per = si ? 1.0 : 1.0 / fr.reference_speed;  // swept value per m/s TAS
-  std::optional<double> vd_tas;
-  if (c.dive_speed_eas) vd_tas = true_airspeed(*c.dive_speed_eas, rho);
-  if (nl < 0) {
-    part("lco-sweep", false, "skipped: the case has no nonlinear spring (freeplay, bilinear, cubic, "
-                              "polynomial or table law), so its response is linear and the flutter "
-                              "analysis above is the whole answer");
-    rows.text("lco", "Limit-cycle oscillation", "not studied", "", "no nonlinear spring in the case");
-  } else if (cancelled()) {
-    part("lco-sweep", false, "skipped: interrupted");
-  } else {
-    // Speed range: below the lowest speed a limit cycle can exist at (the
-    // gap-open flutter speed, or lower where the describing-function curve
-    // dips below it) up to just under the gap-closed (nominal) flutter speed.
-    const MethodResult* nominal = method_of(fr, Linearisation::kNominal, "state-space");
-    const MethodResult* open = method_of(fr, Linearisation::kGapOpen, "state-space");
-    double lo = std::numeric_limits<double>::infinity(), hi = 0;
-    if (open && open->flutter.found) lo = open->flutter.speed;
-    if (fr.lco.available)
-      for (const auto& p : fr.lco.points)
-        if (p.speed > 0) lo = std::min(lo, p.speed);
-    if (nominal && nominal->flutter.found) {
-      if (!fr.has_gap) lo = std::min(lo, nominal->flutter.speed);
-      hi = fr.has_gap ? 0.98 * nominal->flutter.speed : 1.3 * nominal->flutter.speed;
-    } else {
-      hi = vd_tas ? 1.2 * 1.15 * *vd_tas : 1.5 * c.model.flow.airspeed;
-    }
-    if (!std::isfinite(lo)) lo = 0.2 * hi;
-    lo = std::min(0.6 * lo, 0.5 * hi);
-    if (o.sweep_speeds) {
-      lo = o.sweep_speeds->first;
-      hi = o.sweep_speeds->second;
-    }
-    const int n = std::max(2, o.sweep_points);
-    SweepAxis axis{sweep_key, {}};
-    for (int i = 0; i < n; ++i) axis.values.push_back(per * (lo + (hi - lo) * i / (n - 1)));
+nlohmann::json study_json(const StudyResult& r, const std::vector<StudyFigure>& figures,
+                          const std::vector<std::string>& notes, const std::string& html_path) {
+  nlohmann::json j = r.summary;
+  j["report"] = html_path;
+  j["figures"] = nlohmann::json::array();
+  for (const auto& f : figures) j["figures"].push_back(f.path);
+  j["notes"] = notes;
+  return j;
+}
 
-    // Run length and disturbance.
-    const double f_low = check.modes.empty() ? 1.0 : check.modes.front().frequency / (2 * std::numbers::pi);
-    Derivation dv;
-    const double sweep_duration =
-        o.sweep_duration > 0 ? o.sweep_duration : std::max(c.simulation.duration, 400.0 / f_low);
-    dv.duration = sweep_duration;
-    bool at_rest = true;
-    for (int k = 0; k < c.model.section.dof; ++k)
-      if (c.simulation.initial_displacement(k) != 0 || c.simulation.initial_velocity(k) != 0) at_rest = false;
-    std::string disturbance_note = "initial conditions of the case";
-    if (at_rest) {
-      const auto bp = c.model.springs[static_cast<std::size_t>(nl)].breakpoints();
-      double gap = 0;
-      for (double b : bp) gap = std::max(gap, std::abs(b));
-      dv.disturb_dof = nl;
-      dv.disturbance = gap > 0 ? 4.0 * gap : (nl == kPlunge ? 0.1 * c.model.section.semichord : 2.0 * kRadPerDeg);
-      disturbance_note = fmt::format("the case starts at rest: {} displaced by {:.4g} {}", kDofNames[nl],
-                                     nl == kPlunge ? dv.disturbance : dv.disturbance * kDegPerRad,
-                                     nl == kPlunge ? "m" : "deg");
-    }
-    SweepRequest req;
-    req.case_text = derived_case_text(c, dv);
-    req.case_path = c.path + " (LCO sweep)";
-    req.overrides = c.overrides;
-    req.options.axes = {axis};
-    req.options.up = req.options.down = true;
-    req.options.continuation = true;
-    req.options.jobs = std::max(1, o.jobs);
-    say(fmt::format("LCO sweep: {} speeds {:.4g}..{:.4g} m/s TAS, up and down", n, lo, hi));
-    const Case sweep_case = parse_case(req.case_text, req.case_path, req.overrides);
-    const std::vector<SweepPoint> pts = run_sweep(req, {}, {}, cancel);
-    if (cancelled()) {
-      part("lco-sweep", false, "interrupted");
-    } else {
-      write_sweep_file(path("sweep.h5"), sweep_case, req, pts);
-      R.hdf5_files.push_back("sweep.h5");
-      part("lco-sweep", true,
-           fmt::format("{} speeds from {:.4g} to {:.4g} m/s TAS, up and down with continuation; runs of up "
-                       "to {:.4g} s; {}; gusts removed",
-                       n, lo, hi, sweep_duration, disturbance_note),
-           {"sweep.h5"});
-      const SweepSummary s = summarize(pts);
-      const int w = pts.front().lco.watched_dof;
-      const bool angle = w != kPlunge;
-      const std::string key_note = si ? "" : fmt::format(" (U* = value x {:.4g} m/s)", fr.reference_speed);
-      if (s.onset_up)
-        rows.add("lco_onset_up", "LCO onset, sweeping up", *s.onset_up / per, "m/s TAS",
-                 "sweep.h5: first response_class = 1 at direction 0" + key_note,
-                 fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*s.onset_up / per, rho)));
-      else
-        rows.text("lco_onset_up", "LCO onset, sweeping up", "no LCO found", "sweep.h5: response_class");
-      if (s.disappearance_down)
-        rows.add("lco_persists_down", "LCO persists, sweeping down, to", *s.disappearance_down / per, "m/s TAS",
-                 "sweep.h5: lowest response_class = 1 at direction 1" + key_note,
-                 fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*s.disappearance_down / per, rho)));
-      else
-        rows.text("lco_persists_down", "LCO persists, sweeping down, to", "no LCO found",
-                  "sweep.h5: response_class");
-      if (s.onset_up && s.disappearance_down && *s.disappearance_down < *s.onset_up)
-        rows.text("hysteresis", "Hysteresis band",
-                  fmt::format("{} .. {} m/s TAS", sig4(*s.disappearance_down / per), sig4(*s.onset_up / per)),
-                  "sweep.h5: response_class, both directions");
-      else
-        rows.text("hysteresis", "Hysteresis band", "none seen at this speed spacing",
-                  "sweep.h5: response_class, both directions");
-      // Where any LCO was found, either direction.
-      {
-        std::optional<double> first, last;
-        for (const auto& p : pts)
-          if (p.ok && p.lco.response == ResponseClass::kPeriodic) {
-            first = std::min(first.value_or(p.value1), p.value1);
-            last = std::max(last.value_or(p.value1), p.value1);
-          }
-        if (first)
-          rows.text("lco_range", "LCO found between (either direction)",
-                    fmt::format("{} .. {} m/s TAS", sig4(*first / per), sig4(*last / per)),
-                    "sweep.h5: response_class = 1", vd_tas && *first / per <= *vd_tas ? "inside the envelope (at or below V_D)" : "");
-        else
-          rows.text("lco_range", "LCO found between (either direction)", "no LCO in the sweep",
-                    "sweep.h5: response_class");
-      }
-      // Largest LCO inside the envelope (at or below V_D).
-      const SweepPoint* worst = nullptr;
-      for (const auto& p : pts) {
-        if (!p.ok || p.lco.response != ResponseClass::kPeriodic) continue;
-        if (vd_tas && p.value1 / per > *vd_tas * (1 + 1e-12)) continue;
-        if (!worst || p.lco.dof[static_cast<std::size_t>(w)].amplitude >
-                          worst->lco.dof[static_cast<std::size_t>(w)].amplitude)
-          worst = &p;
-      }
-      const std::string where = vd_tas ? fmt::format("at or below V_D ({:.4g} m/s TAS)", *vd_tas)
-                                       : std::string("over the sweep (no V_D given)");
-      if (!worst) {
-        rows.text("lco_largest", "Largest LCO " + where, "no LCO", "sweep.h5: response_class");
-        part("lco-history", false, "skipped: no LCO " + where);
-      } else {
-        const double a = worst->lco.dof[static_cast<std::size_t>(w)].amplitude;
-        rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDofNames[w]),
-                 angle ? a * kDegPerRad : a, angle ? "deg" : "m",
-                 fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]{}", kDofNames[w],
-                             worst->direction, worst->i, angle ? " (rad in the file)" : ""),
-                 fmt::format("at {:.4g} m/s TAS sweeping {}, {:.4g} Hz", worst->value1 / per,
-                             worst->direction == 0 ? "up" : "down", worst->lco.frequency));
-        if (worst->cycle.samples > 0) {
-          const DofHarmonics& h = worst->cycle.dof[static_cast<std::size_t>(w)];
-          rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDofNames[w]), angle ? h.rms * kDegPerRad : h.rms,
-                   angle ? "deg" : "m",
-                   fmt::format("sweep.h5: {}_rms[direction {}, value_1 index {}]{}", kDofNames[w], worst->direction,
-                               worst->i, angle ? " (rad in the file)" : ""));
-          rows.add("lco_largest_thd", fmt::format("  {} total harmonic distortion at that LCO", kDofNames[w]),
-                   100 * h.thd, "%",
-                   fmt::format("sweep.h5: {}_thd[direction {}, value_1 index {}] x 100", kDofNames[w], worst->direction,
-                               worst->i),
-                   "harmonics above the first, against the first");
-        }
-        for (int k = 0; k < c.model.section.dof; ++k) {
-          if (k == w) continue;
-          const double ak = worst->lco.dof[static_cast<std::size_t>(k)].amplitude;
-          rows.add(fmt::format("lco_largest_{}", kDofNames[k]), fmt::format("  {} amplitude at that LCO", kDofNames[k]),
-                   k == kPlunge ? ak : ak * kDegPerRad, k == kPlunge ? "m" : "deg",
-                   fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]", kDofNames[k],
-                               worst->direction, worst->i));
-        }
-        if (c.model.section.dof == 3) {
-          const SpringLaw& law = c.model.springs[kFlap];
-          const double fmax = law.force(worst->lco.dof[kFlap].max, law.region_of(worst->lco.dof[kFlap].max));
-          const double fmin = law.force(worst->lco.dof[kFlap].min, law.region_of(worst->lco.dof[kFlap].min));
-          rows.add("lco_hinge_spring_moment", "  hinge-spring (control circuit) moment at that LCO, largest |value|",
-                   std::max(std::abs(fmax), std::abs(fmin)), "N m/m",
-                   "flap spring law at sweep.h5: flap_max / flap_min of that point");
-        }
-        // Time history of that cycle, from the point's final state.
-        if (!cancelled() && worst->lco.frequency > 0) {
-          say(fmt::format("LCO time history at {:.4g} m/s TAS", worst->value1 / per));
-          const double period = 1.0 / worst->lco.frequency;
-          Derivation hv;
-          hv.duration = 10 * period;
-          hv.sample_interval = period / 200;
-          std::vector<std::string> ov = c.overrides;
-          ov.push_back(fmt::format("{}={:.17g}", sweep_key, worst->value1));
-          const Case hc = parse_case(derived_case_text(c, hv), c.path + " (largest LCO)", ov);
-          const AeroelasticModel hm(hc.model);
-          RunState start;
-          start.x = worst->final_state;
-          start.regions = worst->final_regions;
-          Hdf5TimeHistoryWriter writer(path("lco.h5"));
-          const SimulationSummary hs = simulate(hc, hm, writer, cancel, &start);
-          R.hdf5_files.push_back("lco.h5");
-          part("lco-history", hs.completed,
-               fmt::format("10 cycles of the largest LCO {} ({:.4g} m/s TAS), started from the sweep point's "
-                           "final state",
-                           where, worst->value1 / per),
-               {"lco.h5"});
-          for (const auto& e : hs.extremes)
-            if (e.channel == "hinge_moment")
-              rows.add("lco_hinge_moment", "  aerodynamic hinge moment at that LCO, largest |value|",
-                       std::max(std::abs(e.max), std::abs(e.min)), "N m/m",
-                       "lco.h5: hinge_moment (largest |sample|)");
-        }
-      }
-    }
-  }
-
-  // --- Design gusts -----------------------------------------------------------
-  if (!has_one_minus_cosine(c)) {
-    part("gust-sweep", false,
-         c.model.gusts.empty() ? "skipped: the case has no [[gust]]"
-                               : "skipped: the case has no one-minus-cosine gust to size over H");
-  } else if (!cancelled()) {
-    say("design gust: 1-cos gradient sweep");
-    // From rest, so the peaks are the gust's and not the release transient's.
-    Derivation gv;
-    gv.remove_gusts = false;
-    gv.at_rest = true;
-    const Case gc = parse_case(derived_case_text(c, gv), c.path + " (design gust, from rest)", c.overrides);
-    const GustSweep gs = gust_gradient_sweep(gc, default_gradients());
-    write_gust_sweep_file(path("gust.h5"), gc, gs);
-    R.hdf5_files.push_back("gust.h5");
-    part("gust-sweep", true,
-         fmt::format("{} gust gradients H from {:.4g} to {:.4g} m{}, from rest", gs.points.size(),
-                     gs.points.front().gradient, gs.points.back().gradient,
-                     c.altitude ? fmt::format(" at {:.4g} m (ISA)", *c.altitude) : std::string()),
-         {"gust.h5"});
-    for (const auto& cr : gs.critical) {
-      if (cr.channel != "plunge" && cr.channel != "pitch" && cr.channel != "flap" && cr.channel != "lift" &&
-          cr.channel != "pitching_moment" && cr.channel != "hinge_moment")
-        continue;
-      const bool angle = cr.channel == "pitch" || cr.channel == "flap";
-      rows.add("gust_peak_" + cr.channel, fmt::format("Design gust: peak {}", cr.channel),
-               angle ? cr.value * kDegPerRad : cr.value, angle ? "deg" : cr.units,
-               fmt::format("gust.h5: /peaks@critical_value_{}{}", cr.channel, angle ? " (rad in the file)" : ""),
-               fmt::format("critical H = {:.4g} m", cr.gradient));
-    }
-  }
-
-  // --- The case as given: initial conditions and gusts -------------------------
-  if (!cancelled()) {
-    say("response to the case as given");
-    const AeroelasticModel model(c.model);
-    Hdf5TimeHistoryWriter writer(path("response.h5"));
-    const SimulationSummary rs = simulate(c, model, writer, cancel);
-    R.hdf5_files.push_back("response.h5");
-    part("response", rs.completed,
-         fmt::format("{:.4g} s from the case's initial conditions{}", rs.end_time,
-                     c.model.gusts.empty() ? std::string(", no gusts")
-                                           : fmt::format(" with its {} gust input(s)", c.model.gusts.profiles().size())),
-         {"response.h5"});
-    if (has_turbulence(c))
-      for (const auto& e : rs.extremes)
-        if (e.channel == "lift" || e.channel == "pitch" || e.channel == "flap" || e.channel == "hinge_moment") {
-          const bool angle = e.channel == "pitch" || e.channel == "flap";
-          rows.add("turbulence_rms_" + e.channel, fmt::format("Turbulence: RMS {}", e.channel),
-                   angle ? e.rms * kDegPerRad : e.rms, angle ? "deg" : e.units,
-                   fmt::format("response.h5: {} (RMS of the samples){}", e.channel, angle ? " (rad in the file)" : ""));
-        }
-    if (!has_turbulence(c))
-      part("turbulence", false, "skipped: the case asks for no turbulence");
-  }
-
-  // --- summary.json ---------------------------------------------------------------
-  nlohmann::json j = report_header(c, "study");
-  j["directory"] = directory;
-  for (const auto& r : R.rows) j["summary"].push_back(row_json(r));
-  for (const auto& p : R.parts)
-    j["parts"].push_back({{"name", p.name}, {"done", p.done}, {"detail", p.detail}, {"files", p.files}});
-  j["hdf5_files"] = R.hdf5_files;
-  j["completed"] = !cancelled();
-  R.summary = j;
-  write_file_atomically(path("summary.json"), j.dump(2) + "\n");
-  return R;
+std::string study_text(const Case& c, const StudyResult& r, const std::vector<std::string>& notes,
+                       const std::string& html_path) {
+  std::string t = fmt::format("aerosect study of {}\n\n", c.path);
+  for (const auto& row : r.rows)
+    t += fmt::format("  {:<70} {:>14} {:<8} {}\n", row.quantity, row.value, row.units, row.note);
+  t += "\n";
+  for (const auto& p : r.parts) t += fmt::format("  {:<12} {}\n", p.name, p.done ? "done" : p.detail);
+  for (const auto& n : notes) t += "  " + n + "\n";
+  t += fmt::format("\n{}\n\nreport: {}\n", kSafetyCaution, html_path);
+  return t;
 }
 
 }  // namespace aerosect

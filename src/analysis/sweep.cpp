@@ -276,6 +276,43 @@ SweepPoint point_from_json(const nlohmann::json& j) {
   return p;
 }
 
+JournalHead sweep_journal_head(const SweepRequest& r) {
+  JournalHead h;
+  h.kind = "sweep";
+  h.format = 2;
+  h.readable = {1};  // format 1 had the request as the head line; the point records are the same
+  h.identity = request_json(r);
+  return h;
+}
+
+std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepRequest& r) {
+  (void)r;
+  std::vector<SweepPoint> done;
+  for (const auto& rec : journal.records()) {
+    try {
+      done.push_back(point_from_json(rec.value));
+    } catch (const nlohmann::json::exception& e) {
+      throw InputError({journal.path(), rec.line, 0}, "", "",
+                       std::string("is not a sweep point record: ") + e.what(),
+                       "the lines aerosect sweep wrote (remove the journal to start the sweep again)");
+    }
+  }
+  return done;
+}
+
+std::size_t sweep_point_count(const SweepRequest& r) {
+  const SweepOptions& o = r.options;
+  const std::size_t n1 = o.axes.empty() ? 0 : o.axes[0].values.size();
+  const std::size_t n2 = o.axes.size() > 1 ? o.axes[1].values.size() : 1;
+  std::size_t chains = 0, mine = 0;
+  for (int d : {0, 1}) {
+    if ((d == 0 && !o.up) || (d == 1 && !o.down)) continue;
+    for (std::size_t j = 0; j < n2; ++j, ++chains)
+      if (static_cast<int>(chains % static_cast<std::size_t>(o.shard_count)) == o.shard_index - 1) ++mine;
+  }
+  return mine * n1;
+}
+
 SweepSummary summarize(const std::vector<SweepPoint>& points, int jj) {
   SweepSummary s;
   std::vector<const SweepPoint*> up, down;
@@ -511,12 +548,22 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
 
 namespace aerosect {
 
-void merge_sweep_files(const std::vector<std::string>& inputs, const std::string& output) {
+nlohmann::json merge_json(const std::vector<std::string>& inputs, const std::string& output) {
+  return {{"command", "merge"}, {"inputs", inputs}, {"output", output}};
+}
+
+std::string merge_text(const std::vector<std::string>& inputs, const std::string& output) {
+  return fmt::format("merged {} shard files into {}\n", inputs.size(), output);
+}
+
+void merge_sweep_files(const std::vector<std::string>& inputs, const std::string& output,
+                       const std::atomic<bool>* cancel) {
   std::optional<nlohmann::json> request;
   std::vector<int> shards;
   int count = 0;
   std::map<Key, SweepPoint> merged;
   for (const auto& path : inputs) {
+    stop_if_cancelled(cancel);
     nlohmann::json req = nlohmann::json::parse(read_text_attribute(path, "sweep_request"), nullptr, false);
     if (req.is_discarded())
       throw InputError({path, 0, 0}, "", "", "is not an aerosect sweep file", "files written by aerosect sweep");
@@ -609,6 +656,7 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
   std::vector<SweepPoint> points;
   for (auto& [key, p] : merged) points.push_back(std::move(p));
   const Case c = parse_case(r.case_text, r.case_path, r.overrides);
+  stop_if_cancelled(cancel);
   write_sweep_file(output, c, r, points);
 }
 

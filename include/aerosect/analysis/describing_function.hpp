@@ -16,6 +16,7 @@
 // The prediction assumes a near-harmonic oscillation about x = 0: for an
 // offset or asymmetric gap the bias is ignored (say so when reporting).
 
+#include <atomic>
 #include <string>
 #include <vector>
 
@@ -42,8 +43,9 @@ struct LcoPrediction {
 };
 
 // `speeds` is the flutter sweep grid (m/s, ascending); `count` amplitudes
-// are spaced geometrically over the range where N(A) changes.
+// are spaced geometrically over the range where N(A) changes. A set
+// `cancel` stops it between amplitudes (throws Cancelled).
 LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& speeds,
-                                      int count = 80);
+                                      int count = 80, const std::atomic<bool>* cancel = nullptr);
 
 }  // namespace aerosect

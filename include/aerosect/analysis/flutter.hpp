@@ -23,6 +23,7 @@
 // section; the difference between the two flutter speeds is the error of
 // the Wagner approximation.
 
+#include <atomic>
 #include <complex>
 #include <optional>
 #include <string>
@@ -50,8 +51,10 @@ AeroelasticModel stability_model(const ModelDescription& description);
 // airspeed (which each speed replaces) and `stiffness` the linear stiffness
 // of every spring (N/m, N m/rad). Speeds must be >= 0 and ascending.
 // `model` is a stability_model (held DOFs and gusts are ignored either way).
+// A set `cancel` stops the sweep between speeds (throws Cancelled).
 RootSweep state_space_sweep(const AeroelasticModel& model, const DofVector& stiffness,
-                                 const std::vector<double>& speeds);
+                            const std::vector<double>& speeds,
+                            const std::atomic<bool>* cancel = nullptr);
 Crossing state_space_flutter(const AeroelasticModel& model, const DofVector& stiffness,
                              const RootSweep& sweep, double relative_tolerance = 1e-9);
 Crossing state_space_divergence(const AeroelasticModel& model, const DofVector& stiffness,
@@ -59,7 +62,8 @@ Crossing state_space_divergence(const AeroelasticModel& model, const DofVector& 
                                 double relative_tolerance = 1e-9);
 // The same from a description (builds its stability_model once).
 RootSweep state_space_sweep(const ModelDescription& model, const DofVector& stiffness,
-                                 const std::vector<double>& speeds);
+                            const std::vector<double>& speeds,
+                            const std::atomic<bool>* cancel = nullptr);
 
 // ---------------------------------------------------------------------------
 // The flutter command: both methods over the spring linearisations a case
@@ -78,6 +82,8 @@ struct FlutterOptions {
   std::optional<double> amplitude;
   double relative_tolerance = 1e-9;      // on the crossing speeds
   bool lco_prediction = true;            // describing-function LCO curve (one nonlinear spring)
+  // When set, the analysis stops between speeds and throws Cancelled.
+  const std::atomic<bool>* cancel = nullptr;
 };
 
 struct MethodResult {

@@ -5,6 +5,7 @@
 // collected; the critical H of each quantity is the one with the largest
 // magnitude. Runs are independent (one model and run state each).
 
+#include <atomic>
 #include <string>
 #include <vector>
 
@@ -34,8 +35,10 @@ struct GustSweep {
 // 12 gradients spanning 30..350 ft (9.144..106.68 m), the CS-25.341 range.
 std::vector<double> default_gradients();
 
-// Throws InputError (key "gust") when the case has no one-minus-cosine gust.
-GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients);
+// Throws InputError (key "gust") when the case has no one-minus-cosine gust,
+// Cancelled when `cancel` is set during the sweep (the run in flight stops).
+GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients,
+                              const std::atomic<bool>* cancel = nullptr);
 
 nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::string& output);
 std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string& output);

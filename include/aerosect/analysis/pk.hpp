@@ -53,6 +53,7 @@
 // At U = 0 the circulatory terms vanish and k = omega b / U is reported as
 // +infinity for an oscillatory root (0 for a real root).
 
+#include <atomic>
 #include <complex>
 #include <vector>
 
@@ -110,7 +111,9 @@ std::vector<Root> pk_roots(const SectionProperties& s, double density, double ai
 
 // Roots at each speed (speeds >= 0, strictly ascending; AEROSECT_CHECK),
 // followed from still air with the step control described above.
-RootSweep pk_sweep(const PkProblem& problem, const std::vector<double>& speeds);
+// A set `cancel` stops the sweep between speeds (throws Cancelled).
+RootSweep pk_sweep(const PkProblem& problem, const std::vector<double>& speeds,
+                   const std::atomic<bool>* cancel = nullptr);
 
 // First flutter crossing of root_tracking.hpp (the shared growth criterion
 // decides the bracketing interval; TOMS 748 on Re(p) re-tracked from the

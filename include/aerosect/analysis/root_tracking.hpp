@@ -44,6 +44,7 @@
 // whose frequency is below the frequency floor at both ends is a static
 // divergence, not flutter, and is skipped.
 
+#include <atomic>
 #include <complex>
 #include <functional>
 #include <optional>
@@ -129,9 +130,11 @@ std::vector<Root> continue_roots(const RootProvider& provider, double Ua,
                                  const std::vector<Root>& from, double Ub);
 
 // Roots at each speed (>= 0, strictly ascending; AEROSECT_CHECK), continued
-// from `start`, the roots at U = 0.
+// from `start`, the roots at U = 0. A set `cancel` stops the sweep between
+// speeds (throws Cancelled).
 RootSweep sweep_roots(const RootProvider& provider, std::vector<Root> start,
-                      const std::vector<double>& speeds);
+                      const std::vector<double>& speeds,
+                      const std::atomic<bool>* cancel = nullptr);
 
 // Speed in [Ua, Ub] where a root turns from decaying to growing (see
 // Crossings above); `root_at(U)` gives the root at U (eigenvalue and

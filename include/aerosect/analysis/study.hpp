@@ -65,11 +65,16 @@ struct StudyResult {
   std::vector<StudyPart> parts;
   std::vector<std::string> hdf5_files;  // relative, in the order written
   nlohmann::json summary;               // what summary.json holds
+  bool completed = false;               // false: stopped by the cancel flag
 };
 
-// Runs the study into `directory` (created when missing). `progress` gets a
-// short line per stage. Throws InputError for a bad case, NumericalError
-// when a mandatory stage fails, OutputError when a file cannot be written.
+// Runs the study into `directory` (created when missing), one stage after
+// the other (check, flutter, LCO sweep and history, design gust, response).
+// `progress` gets a short line per stage. When `cancel` turns true the stage
+// running stops, nothing more is written but summary.json, which lists the
+// stages done and says "completed": false (the result's `completed` too).
+// Throws InputError for a bad case, NumericalError when a mandatory stage
+// fails, OutputError when a file cannot be written.
 StudyResult run_study(const Case& c, const std::string& directory, const StudyOptions& options,
                       const std::atomic<bool>* cancel = nullptr,
                       const std::function<void(const std::string&)>& progress = {});
@@ -86,6 +91,14 @@ struct StudyFigure {
 // are missing). Throws OutputError.
 void write_study_report(const Case& c, const StudyResult& r, const std::vector<StudyFigure>& figures,
                         const std::vector<std::string>& notes, const std::string& html_path);
+
+// The driver's summaries of a finished study (the figures made and notes
+// such as why figures are missing): JSON (summary.json plus report, figures
+// and notes) and text (the rows, the parts, the caution).
+nlohmann::json study_json(const StudyResult& r, const std::vector<StudyFigure>& figures,
+                          const std::vector<std::string>& notes, const std::string& html_path);
+std::string study_text(const Case& c, const StudyResult& r, const std::vector<std::string>& notes,
+                       const std::string& html_path);
 
 // A caption for a figure file written by tools/plot for a study file.
 std::string study_figure_caption(const std::string& png_name);

@@ -23,6 +23,7 @@
 // state (the next point's start under continuation) is the state after
 // that period.
 
+#include <atomic>
 #include <functional>
 #include <optional>
 #include <string>
@@ -32,6 +33,7 @@
 
 #include "aerosect/analysis/lco.hpp"
 #include "aerosect/io/case.hpp"
+#include "aerosect/io/journal.hpp"
 
 namespace aerosect {
 
@@ -88,6 +90,16 @@ SweepRequest request_from_json(const nlohmann::json& j);
 nlohmann::json point_json(const SweepPoint& p);
 SweepPoint point_from_json(const nlohmann::json& j);
 
+// The journal of a sweep (io/journal.hpp): kind "sweep", this program's
+// journal format and the request as identity.
+JournalHead sweep_journal_head(const SweepRequest& r);
+// The finished points read back from a journal opened with that head.
+// Throws InputError naming the journal and the line of a record that is not
+// a point of this sweep.
+std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepRequest& r);
+// Points this request (this shard) computes.
+std::size_t sweep_point_count(const SweepRequest& r);
+
 struct SweepSummary {
   std::optional<double> onset_up;         // first periodic value going up (axis 1)
   std::optional<double> disappearance_down;  // last periodic value going down
@@ -106,7 +118,12 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
 
 // Joins the files of the shards 1/N..N/N of one sweep into the file the
 // unsharded sweep writes (same request, every point once). Throws
-// InputError when the files are not shards of one sweep or one is missing.
-void merge_sweep_files(const std::vector<std::string>& inputs, const std::string& output);
+// InputError when the files are not shards of one sweep or one is missing;
+// Cancelled (nothing written) when `cancel` is set before the map is written.
+void merge_sweep_files(const std::vector<std::string>& inputs, const std::string& output,
+                       const std::atomic<bool>* cancel = nullptr);
+// Summaries of a merge.
+nlohmann::json merge_json(const std::vector<std::string>& inputs, const std::string& output);
+std::string merge_text(const std::vector<std::string>& inputs, const std::string& output);
 
 }  // namespace aerosect

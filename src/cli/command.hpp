@@ -1,0 +1,84 @@
+#pragma once
+// The command-line driver's shared pieces. Each command lives in its own
+// file (src/cli/<command>.cpp) as one function that declares the command's
+// options on the application and returns how to run it once parsed:
+//
+//   Command add_flutter_command(CLI::App& app);   // src/cli/flutter.cpp
+//
+// main.cpp lists the commands, parses, runs the chosen one and turns the
+// engine's typed errors into messages and exit codes. A new command is a new
+// file, one declaration below and one line in main.cpp's list.
+//
+// Interruption: the first SIGINT or SIGTERM sets the cancel flag the engine
+// is handed (`cancel_flag()`); the engine stops at its next check and the
+// command returns `interrupted_status()` (128 + signal number: 130 for
+// SIGINT, 143 for SIGTERM) after saying on stderr what is kept. A second
+// signal ends the program at once (the signal's default action).
+
+#include <atomic>
+#include <functional>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <CLI/CLI.hpp>
+
+namespace aerosect::cli {
+
+struct Command {
+  CLI::App* app = nullptr;   // the subcommand (true once it was given)
+  std::function<int()> run;  // runs it; returns the exit status
+};
+
+Command add_check_command(CLI::App& app);
+Command add_simulate_command(CLI::App& app);
+Command add_flutter_command(CLI::App& app);
+Command add_gust_command(CLI::App& app);
+Command add_sweep_command(CLI::App& app);
+Command add_merge_command(CLI::App& app);
+Command add_study_command(CLI::App& app);
+Command add_orbits_command(CLI::App& app);
+
+// --- Signals -------------------------------------------------------------
+// Installs the SIGINT/SIGTERM handlers (once, from main).
+void install_signal_handlers();
+// The flag handed to the engine: set by the first signal, or by
+// request_stop() (e.g. a sweep whose journal cannot be written).
+std::atomic<bool>* cancel_flag();
+void request_stop();
+// The first signal received, 0 when none.
+int interrupted_signal();
+// 128 + interrupted_signal().
+int interrupted_status();
+// "SIGINT" / "SIGTERM".
+std::string signal_name(int signal);
+
+// --- Options every case command takes --------------------------------------
+struct CaseOptions {
+  std::string case_path;
+  std::vector<std::string> overrides;
+  bool json = false;
+};
+void add_case_options(CLI::App* cmd, CaseOptions& o);
+
+// --- Option values -----------------------------------------------------------
+// "FROM:TO:N": the three numbers, or nullopt when the text is not of that form.
+struct Range {
+  double from = 0, to = 0;
+  long n = 0;
+  // N evenly spaced values from FROM to TO (FROM alone when N = 1).
+  std::vector<double> values() const;
+};
+std::optional<Range> parse_range(const std::string& text);
+
+// Threads: `jobs` when positive, else every core.
+int jobs_or_all_cores(int jobs);
+
+// --- Output ------------------------------------------------------------------
+// Writes `s` to stdout as is.
+void print(const std::string& s);
+// Tells on stderr that the run was stopped by a signal and what is kept;
+// returns interrupted_status().
+int report_interrupted(const std::string& what_is_kept);
+
+}  // namespace aerosect::cli

@@ -1,0 +1,77 @@
+// aerosect flutter CASE [-o FILE]: linear flutter and divergence (state-space
+// and p-k) over the spring linearisations the case needs. Interrupted, it
+// writes nothing (an existing FILE is left as it was).
+
+#include <memory>
+#include <optional>
+
+#include "aerosect/analysis/flutter.hpp"
+#include "aerosect/analysis/flutter_report.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/case.hpp"
+#include "command.hpp"
+
+namespace aerosect::cli {
+
+namespace {
+
+struct FlutterCommandOptions : CaseOptions {
+  std::string output, speeds, method = "both";
+  std::optional<double> amplitude;
+};
+
+// "FROM:TO:N" -> N speeds from FROM to TO (m/s), ascending.
+std::vector<double> parse_speeds(const std::string& text) {
+  const auto r = parse_range(text);
+  if (!r || !(r->from >= 0) || !(r->to > r->from) || r->n < 2 || r->n > 100000)
+    throw InputError({"--speeds " + text, 0, 0}, "--speeds", text, "is not a valid speed range",
+                     "FROM:TO:N with 0 <= FROM < TO (m/s, true airspeed) and 2 <= N "
+                     "<= 100000, e.g. --speeds 10:120:221");
+  std::vector<double> s = r->values();
+  if (s.front() == 0.0) s.front() = 1e-6 * r->to;  // U = 0 has no reduced frequency
+  return s;
+}
+
+int run(const FlutterCommandOptions& o) {
+  const Case c = load_case(o.case_path, o.overrides);
+  FlutterOptions fo;
+  if (!o.speeds.empty()) fo.speeds = parse_speeds(o.speeds);
+  fo.state_space = o.method != "pk";
+  fo.pk = o.method != "state-space";
+  fo.amplitude = o.amplitude;
+  fo.cancel = cancel_flag();
+  FlutterReport r;
+  try {
+    r = flutter_analysis(c, fo);
+  } catch (const Cancelled&) {
+    return report_interrupted(o.output.empty() ? "nothing written"
+                                               : "nothing written (" + o.output + " left as it was)");
+  }
+  std::string written;
+  if (!o.output.empty()) {
+    write_flutter_file(o.output, c, r);
+    written = o.output;
+  }
+  print(o.json ? flutter_json(c, r, written).dump(2) + "\n" : flutter_text(c, r, written));
+  return 0;
+}
+
+}  // namespace
+
+Command add_flutter_command(CLI::App& app) {
+  auto o = std::make_shared<FlutterCommandOptions>();
+  CLI::App* cmd = app.add_subcommand(
+      "flutter", "linear flutter and divergence: state-space eigenvalues and p-k (exact Theodorsen)");
+  add_case_options(cmd, *o);
+  cmd->add_option("-o,--output", o->output, "HDF5 file for the V-g / V-f tables");
+  cmd->add_option("--speeds", o->speeds, "airspeeds FROM:TO:N in m/s (true airspeed)");
+  cmd->add_option("--method", o->method, "state-space, pk or both")
+      ->check(CLI::IsMember({"state-space", "pk", "both"}))
+      ->capture_default_str();
+  cmd->add_option("--amplitude", o->amplitude,
+                  "also linearise nonlinear springs by their describing function at this "
+                  "amplitude (degrees for pitch/flap springs, m for plunge)");
+  return {cmd, [o] { return run(*o); }};
+}
+
+}  // namespace aerosect::cli

@@ -1,0 +1,61 @@
+// aerosect gust CASE [-o FILE]: discrete-gust gradient sweep of the case's
+// one-minus-cosine gusts. Interrupted, it writes nothing (an existing FILE is
+// left as it was).
+
+#include <memory>
+
+#include "aerosect/analysis/gust_sweep.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/case.hpp"
+#include "command.hpp"
+
+namespace aerosect::cli {
+
+namespace {
+
+struct GustOptions : CaseOptions {
+  std::string output, gradients;
+};
+
+// "FROM:TO:N" in metres for gust gradients.
+std::vector<double> parse_gradients(const std::string& text) {
+  const auto r = parse_range(text);
+  if (!r || !(r->from > 0) || !(r->to >= r->from) || r->n < 1 || r->n > 10000)
+    throw InputError({"--gradients " + text, 0, 0}, "--gradients", text, "is not a valid gradient range",
+                     "FROM:TO:N with 0 < FROM <= TO (m) and 1 <= N <= 10000, e.g. "
+                     "--gradients 9.144:106.68:12");
+  return r->values();
+}
+
+int run(const GustOptions& o) {
+  const Case c = load_case(o.case_path, o.overrides);
+  const std::vector<double> g = o.gradients.empty() ? default_gradients() : parse_gradients(o.gradients);
+  GustSweep s;
+  try {
+    s = gust_gradient_sweep(c, g, cancel_flag());
+  } catch (const Cancelled&) {
+    return report_interrupted(o.output.empty() ? "nothing written"
+                                               : "nothing written (" + o.output + " left as it was)");
+  }
+  std::string written;
+  if (!o.output.empty()) {
+    write_gust_sweep_file(o.output, c, s);
+    written = o.output;
+  }
+  print(o.json ? gust_sweep_json(c, s, written).dump(2) + "\n" : gust_sweep_text(c, s, written));
+  return 0;
+}
+
+}  // namespace
+
+Command add_gust_command(CLI::App& app) {
+  auto o = std::make_shared<GustOptions>();
+  CLI::App* cmd = app.add_subcommand(
+      "gust", "discrete-gust gradient sweep of the case's one-minus-cosine gusts (peaks, critical H)");
+  add_case_options(cmd, *o);
+  cmd->add_option("-o,--output", o->output, "HDF5 file for the peaks against H");
+  cmd->add_option("--gradients", o->gradients, "gust gradients FROM:TO:N in m (default 12 over 9.144..106.68 m)");
+  return {cmd, [o] { return run(*o); }};
+}
+
+}  // namespace aerosect::cli

@@ -1,0 +1,104 @@
+// aerosect orbits CASE -o FILE: limit cycles solved by shooting and continued
+// in a case key. Interrupted, the orbits found so far are written to FILE
+// (root attribute complete = 0).
+
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <iostream>
+#include <memory>
+#include <optional>
+
+#include <fmt/format.h>
+#include <unistd.h>
+
+#include "aerosect/analysis/branch_report.hpp"
+#include "aerosect/analysis/continuation.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/case.hpp"
+#include "aerosect/units.hpp"
+#include "command.hpp"
+
+namespace aerosect::cli {
+
+namespace {
+
+struct OrbitsOptions : CaseOptions {
+  std::string output, key, start = "auto", watch;
+  std::optional<double> from, to, start_amplitude;
+  int points = 200;
+};
+
+int run(const OrbitsOptions& oo) {
+  const Case c = load_case(oo.case_path, oo.overrides);
+  BranchOptions bo;
+  bo.key = oo.key;
+  bo.from = oo.from;
+  bo.to = oo.to;
+  bo.max_points = oo.points;
+  if (oo.points < 2 || oo.points > 100000)
+    throw InputError({"--points", 0, 0}, "--points", std::to_string(oo.points), "is out of range", "2 to 100000 points");
+  bo.start = oo.start == "hopf"         ? BranchStart::kHopf
+             : oo.start == "march"      ? BranchStart::kMarch
+             : oo.start == "describing" ? BranchStart::kDescribing
+                                        : BranchStart::kAuto;
+  if (oo.start_amplitude) {
+    if (!(*oo.start_amplitude > 0) || !std::isfinite(*oo.start_amplitude))
+      throw InputError({"--start-amplitude", 0, 0}, "--start-amplitude", fmt::format("{}", *oo.start_amplitude),
+                       "is not a positive amplitude", "a positive number, degrees for pitch/flap, m for plunge");
+    bo.start_amplitude = *oo.start_amplitude;
+  }
+  if (!oo.watch.empty()) {
+    const int j = aerosect::dof_index(oo.watch);
+    if (j < 0 || j >= c.model.section.dof)
+      throw InputError({"--watch", 0, 0}, "--watch", oo.watch, "is not a DOF of this case",
+                       c.model.section.dof == 3 ? "plunge, pitch or flap" : "plunge or pitch");
+    bo.orbit.watched_dof = j;
+  }
+  if (oo.start_amplitude) {
+    const int w = bo.orbit.watched_dof >= 0 ? bo.orbit.watched_dof : orbit_watched_dof(AeroelasticModel(c.model), -1);
+    if (w != 0) bo.start_amplitude *= aerosect::kRadPerDeg;
+  }
+  const bool tty = isatty(2);
+  const auto t0 = std::chrono::steady_clock::now();
+  auto progress = [&](const BranchPoint& p, int n) {
+    if (!tty) return;
+    const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    std::fprintf(stderr, "\r  %d orbits, parameter %.6g, %s, %.1f s elapsed   ", n, p.parameter,
+                 p.orbit.stable ? "stable  " : "unstable", el);
+  };
+  const Branch b = continue_branch(c, bo, cancel_flag(), progress);
+  if (tty) std::fprintf(stderr, "\n");
+  write_branch_file(oo.output, c, b);
+  if (interrupted_signal() != 0)
+    return report_interrupted(fmt::format("the {} orbits found so far are kept in {} (complete = 0)", b.points.size(),
+                                          oo.output));
+  print(oo.json ? branch_json(c, b, oo.output).dump(2) + "\n" : branch_text(c, b, oo.output));
+  return 0;
+}
+
+}  // namespace
+
+Command add_orbits_command(CLI::App& app) {
+  auto o = std::make_shared<OrbitsOptions>();
+  CLI::App* cmd = app.add_subcommand("orbits",
+                                     "limit cycles solved by shooting and continued in a case key: stable and unstable "
+                                     "branches, Floquet multipliers, folds -> HDF5 branch file");
+  add_case_options(cmd, *o);
+  cmd->add_option("-o,--output", o->output, "HDF5 branch file")->required();
+  cmd->add_option("--key", o->key,
+                  "numeric case key to continue in (default flow.airspeed, or "
+                  "nondimensional.reduced_speed for a nondimensional case)");
+  cmd->add_option("--from", o->from, "parameter window start (default: a tenth of the case's value)");
+  cmd->add_option("--to", o->to, "parameter window end (default: four times the case's value)");
+  cmd->add_option("--start", o->start, "auto, hopf, march or describing")
+      ->check(CLI::IsMember({"auto", "hopf", "march", "describing"}))
+      ->capture_default_str();
+  cmd->add_option("--start-amplitude", o->start_amplitude,
+                  "hopf start: amplitude of the first orbit (degrees for pitch/flap, m for plunge)");
+  cmd->add_option("--points", o->points, "most orbits on the branch")->capture_default_str();
+  cmd->add_option("--watch", o->watch, "DOF whose maxima define the section (plunge, pitch, flap)");
+  return {cmd, [o] { return run(*o); }};
+}
+
+}  // namespace aerosect::cli

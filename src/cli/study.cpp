@@ -1,0 +1,101 @@
+// aerosect study CASE -o DIR: the whole clearance study into one directory,
+// then the figures (the plotting tool, plot_tool.hpp) and the HTML report.
+// Interrupted, the files finished so far are kept in DIR and summary.json
+// says which stages were done; report.html is not written.
+
+#include <chrono>
+#include <cstdio>
+#include <filesystem>
+#include <memory>
+
+#include "aerosect/analysis/study.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/case.hpp"
+#include "command.hpp"
+#include "plot_tool.hpp"
+
+namespace aerosect::cli {
+
+namespace {
+
+struct StudyCommandOptions : CaseOptions {
+  std::string directory, speeds;
+  int jobs = 0, points = 41;
+  bool no_plots = false;
+};
+
+// The figures of every HDF5 file of the study; notes say what is missing.
+// Returns false when interrupted.
+bool make_figures(const StudyResult& r, const std::string& dir, bool no_plots,
+                  const std::function<void(const std::string&)>& progress, std::vector<StudyFigure>& figures,
+                  std::vector<std::string>& notes) {
+  const std::string tool = plot_tool();
+  if (no_plots) {
+    notes.push_back("figures not made: --no-plots was given");
+    return true;
+  }
+  if (!std::filesystem::exists(tool)) {
+    notes.push_back("figures not made: the plotting tool " + tool + " was not found (set AEROSECT_PLOT to tools/plot)");
+    return true;
+  }
+  progress("figures (" + tool + ")");
+  for (const auto& h5 : r.hdf5_files) {
+    if (cancel_requested(cancel_flag())) return false;
+    const PlotRun p = run_plot_tool(tool, (std::filesystem::path(dir) / h5).string(), dir, cancel_flag());
+    if (p.cancelled) return false;
+    for (const auto& f : p.figures) figures.push_back({f, study_figure_caption(f)});
+    if (!p.ok) notes.push_back("figures of " + h5 + " not made: the plotting tool said: " + p.last_line);
+  }
+  return true;
+}
+
+int run(const StudyCommandOptions& o) {
+  const Case c = load_case(o.case_path, o.overrides);
+  StudyOptions so;
+  so.jobs = jobs_or_all_cores(o.jobs);
+  so.sweep_points = o.points;
+  if (!o.speeds.empty()) {
+    const auto r = parse_range(o.speeds);
+    if (!r || !(r->from > 0) || !(r->to > r->from) || r->n < 2 || r->n > 100000)
+      throw InputError({"--sweep-speeds " + o.speeds, 0, 0}, "--sweep-speeds", o.speeds, "is not a valid speed range",
+                       "FROM:TO:N with 0 < FROM < TO (m/s, true airspeed) and 2 <= N <= 100000, "
+                       "e.g. --sweep-speeds 10:90:41");
+    so.sweep_speeds = std::make_pair(r->from, r->to);
+    so.sweep_points = static_cast<int>(r->n);
+  }
+  const auto t0 = std::chrono::steady_clock::now();
+  auto progress = [&](const std::string& stage) {
+    const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    std::fprintf(stderr, "aerosect study [%6.1f s]: %s\n", el, stage.c_str());
+  };
+  const std::string kept = "the files finished so far are kept in " + o.directory +
+                           " (summary.json lists the stages done; no report.html was written)";
+  const StudyResult r = run_study(c, o.directory, so, cancel_flag(), progress);
+  if (!r.completed) return report_interrupted(kept);
+  std::vector<StudyFigure> figures;
+  std::vector<std::string> notes;
+  if (!make_figures(r, o.directory, o.no_plots, progress, figures, notes)) return report_interrupted(kept);
+  const std::string html = (std::filesystem::path(o.directory) / "report.html").string();
+  write_study_report(c, r, figures, notes, html);
+  print(o.json ? study_json(r, figures, notes, html).dump(2) + "\n" : study_text(c, r, notes, html));
+  return 0;
+}
+
+}  // namespace
+
+Command add_study_command(CLI::App& app) {
+  auto o = std::make_shared<StudyCommandOptions>();
+  CLI::App* cmd = app.add_subcommand(
+      "study", "the whole clearance study of a case: flutter, freeplay band, LCO sweep, design gusts, "
+               "HDF5 files, figures and an HTML report in one directory");
+  add_case_options(cmd, *o);
+  cmd->add_option("-o,--output", o->directory, "directory for the files and report.html")->required();
+  cmd->add_option("--jobs", o->jobs, "threads of the LCO sweep (default: all cores)");
+  cmd->add_option("--sweep-points", o->points, "airspeeds of the LCO sweep per direction")->capture_default_str();
+  cmd->add_option("--sweep-speeds", o->speeds,
+                  "LCO sweep airspeeds FROM:TO:N in m/s TAS (default: from the freeplay band and V_D)");
+  cmd->add_flag("--no-plots", o->no_plots, "skip the figures (the report says so)");
+  return {cmd, [o] { return run(*o); }};
+}
+
+}  // namespace aerosect::cli

@@ -1,0 +1,162 @@
+// aerosect sweep CASE --vary KEY=FROM:TO:N -o MAP: the LCO map. Every
+// finished point goes to the journal MAP.journal at once (io/journal.hpp);
+// interrupted, the journal keeps every finished point and the same command
+// continues from it. The journal is removed once MAP is written.
+
+#include <chrono>
+#include <cstdio>
+#include <iostream>
+#include <memory>
+#include <mutex>
+#include <sstream>
+
+#include <fmt/format.h>
+#include <unistd.h>
+
+#include "aerosect/analysis/sweep.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/case.hpp"
+#include "aerosect/io/journal.hpp"
+#include "command.hpp"
+
+namespace aerosect::cli {
+
+namespace {
+
+struct SweepCommandOptions : CaseOptions {
+  std::string output, direction = "both", restart = "continue", shard;
+  std::vector<std::string> vary;
+  int jobs = 0;
+  bool traces = false;
+};
+
+// "KEY=FROM:TO:N" for --vary.
+SweepAxis parse_vary(const std::string& text) {
+  const auto eq = text.find('=');
+  const auto r = eq != std::string::npos && eq > 0 ? parse_range(text.substr(eq + 1)) : std::nullopt;
+  if (!r || !(r->to > r->from) || r->n < 2 || r->n > 1000000)
+    throw InputError({"--vary " + text, 0, 0}, "--vary", text, "is not a valid sweep",
+                     "KEY=FROM:TO:N with a numeric case key, FROM < TO and N >= 2, e.g. "
+                     "--vary nondimensional.reduced_speed=1:7:61");
+  return {text.substr(0, eq), r->values()};
+}
+
+SweepRequest make_request(const SweepCommandOptions& o, const Case& c) {
+  SweepRequest req;
+  req.case_text = c.text;
+  req.case_path = c.path;
+  req.overrides = o.overrides;
+  if (o.vary.empty() || o.vary.size() > 2)
+    throw InputError({"--vary", 0, 0}, "--vary", "", "give one or two --vary options",
+                     "--vary KEY=FROM:TO:N [--vary KEY2=FROM:TO:N]");
+  for (const auto& v : o.vary) req.options.axes.push_back(parse_vary(v));
+  req.options.up = o.direction != "down";
+  req.options.down = o.direction != "up";
+  req.options.continuation = o.restart == "continue";
+  req.options.traces = o.traces;
+  req.options.jobs = jobs_or_all_cores(o.jobs);
+  if (!o.shard.empty()) {
+    int k = 0, n = 0;
+    char slash = 0;
+    std::istringstream in(o.shard);
+    in >> k >> slash >> n;
+    if (!in || slash != '/' || n < 1 || k < 1 || k > n || !(in >> std::ws).eof())
+      throw InputError({"--shard " + o.shard, 0, 0}, "--shard", o.shard, "is not a shard",
+                       "K/N with 1 <= K <= N, e.g. --shard 2/8");
+    req.options.shard_index = k;
+    req.options.shard_count = n;
+  }
+  return req;
+}
+
+// One progress line on a terminal: points done of the total, elapsed, ETA.
+class Progress {
+ public:
+  Progress(std::size_t resumed, std::size_t total) : resumed_(resumed), total_(total), tty_(isatty(2)) {}
+  void point_done(std::size_t finished) const {
+    if (!tty_) return;
+    const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0_).count();
+    const double eta = finished > resumed_ ? el / static_cast<double>(finished - resumed_) *
+                                                 static_cast<double>(total_ > finished ? total_ - finished : 0)
+                                           : 0.0;
+    std::fprintf(stderr, "\r  %zu/%zu points, %.1f s elapsed, ETA %.1f s   ", finished, total_, el, eta);
+  }
+  void end() const {
+    if (tty_) std::fprintf(stderr, "\n");
+  }
+
+ private:
+  std::size_t resumed_, total_;
+  bool tty_;
+  std::chrono::steady_clock::time_point t0_ = std::chrono::steady_clock::now();
+};
+
+int run(const SweepCommandOptions& o) {
+  const Case c = load_case(o.case_path, o.overrides);
+  const SweepRequest req = make_request(o, c);
+  Journal journal(o.output + ".journal", sweep_journal_head(req));
+  for (const auto& n : journal.notes()) std::cerr << "aerosect: " << n << "\n";
+  const std::vector<SweepPoint> done = points_from_journal(journal, req);
+  if (!done.empty())
+    std::cerr << "aerosect: resuming: " << done.size() << " finished points read from " << journal.path() << "\n";
+
+  std::mutex mu;
+  std::string journal_failure;  // why a point could not be journaled; the sweep stops then
+  std::size_t finished = done.size();
+  const Progress progress(done.size(), sweep_point_count(req));
+  auto on_point = [&](const SweepPoint& p) {
+    std::lock_guard<std::mutex> lock(mu);
+    if (!journal_failure.empty()) return;
+    try {
+      journal.append(point_json(p));
+    } catch (const OutputError& e) {
+      journal_failure = e.what();
+      request_stop();
+      return;
+    }
+    progress.point_done(++finished);
+  };
+  const std::vector<SweepPoint> pts = run_sweep(req, done, on_point, cancel_flag());
+  progress.end();
+  if (!journal_failure.empty())
+    throw OutputError(journal.path(), fmt::format("writing a finished point failed ({}); the {} points "
+                                                  "before it are kept there: make room and run the "
+                                                  "same command again to continue",
+                                                  journal_failure, finished));
+  if (interrupted_signal() != 0)
+    return report_interrupted(fmt::format("{} finished points kept in {} (run the same command again to continue)",
+                                          finished, journal.path()));
+  write_sweep_file(o.output, c, req, pts);
+  journal.remove();
+  if (o.json) {
+    nlohmann::json j = sweep_json(c, req, pts, o.output);
+    j["points_resumed"] = done.size();  // read from the journal, not recomputed
+    print(j.dump(2) + "\n");
+  } else {
+    print(sweep_text(c, req, pts, o.output));
+  }
+  return 0;
+}
+
+}  // namespace
+
+Command add_sweep_command(CLI::App& app) {
+  auto o = std::make_shared<SweepCommandOptions>();
+  CLI::App* cmd = app.add_subcommand(
+      "sweep", "LCO map: response class, amplitude and frequency against one or two case keys");
+  add_case_options(cmd, *o);
+  cmd->add_option("-o,--output", o->output, "HDF5 file for the map")->required();
+  cmd->add_option("--vary", o->vary, "KEY=FROM:TO:N (once or twice)")->required();
+  cmd->add_option("--direction", o->direction, "up, down or both")
+      ->check(CLI::IsMember({"up", "down", "both"}))
+      ->capture_default_str();
+  cmd->add_option("--restart", o->restart, "continue (each point from the previous point's final state) or fresh")
+      ->check(CLI::IsMember({"continue", "fresh"}))
+      ->capture_default_str();
+  cmd->add_option("--jobs", o->jobs, "threads (default: all cores)");
+  cmd->add_option("--shard", o->shard, "K/N: run the K-th of N deterministic parts");
+  cmd->add_flag("--traces", o->traces, "keep one settled cycle of every DOF per periodic point in the map");
+  return {cmd, [o] { return run(*o); }};
+}
+
+}  // namespace aerosect::cli

@@ -411,7 +411,7 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
 }
 
 void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
-                      const std::vector<SweepPoint>& points) {
+                      const std::vector<SweepPoint>& points, const std::atomic<bool>* cancel) {
   Hdf5Document doc(path);
   RunMetadata meta = case_metadata(c, "sweep");
   meta.text_attributes.push_back({"continuation", r.options.continuation ? "continue" : "fresh"});
@@ -512,6 +512,7 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
                                                             uncoupled_frequencies(c.model.section).pitch);
     FlutterOptions fo;
     fo.pk = false;
+    fo.cancel = cancel;
     const FlutterReport fr = flutter_analysis(c, fo);
     const char* names[4] = {"linear_flutter_value", "gap_closed_flutter_value", "gap_open_flutter_value",
                             "describing_function_flutter_value"};
@@ -657,7 +658,7 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
   for (auto& [key, p] : merged) points.push_back(std::move(p));
   const Case c = parse_case(r.case_text, r.case_path, r.overrides);
   stop_if_cancelled(cancel);
-  write_sweep_file(output, c, r, points);
+  write_sweep_file(output, c, r, points, cancel);
 }
 
 }  // namespace aerosect

@@ -113,8 +113,9 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
                           const std::string& output);
 std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
                        const std::string& output);
+// Throws Cancelled (nothing written) when `cancel` is set meanwhile.
 void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
-                      const std::vector<SweepPoint>& points);
+                      const std::vector<SweepPoint>& points, const std::atomic<bool>* cancel = nullptr);
 
 // Joins the files of the shards 1/N..N/N of one sweep into the file the
 // unsharded sweep writes (same request, every point once). Throws

@@ -58,7 +58,13 @@ std::string Schema::suggestion_for(const std::string& path, bool is_table) const
     std::size_t best_d = limit + 1;
     for (const auto& c : candidates) {
       if (same_table != (parent_of(c) == parent)) continue;
-      const std::size_t d = edit_distance(leaf, leaf_of(c));
+      // The edit distance is at least the length difference: a candidate
+      // that cannot beat the best so far is not measured (a 30 000-character
+      // key then costs nothing).
+      const std::string cand = leaf_of(c);
+      const std::size_t gap = leaf.size() > cand.size() ? leaf.size() - cand.size() : cand.size() - leaf.size();
+      if (gap >= best_d || gap >= leaf.size()) continue;
+      const std::size_t d = edit_distance(leaf, cand);
       // A candidate sharing nothing with the leaf ('x' -> 'cg') is no hint.
       if (d < best_d && d < leaf.size()) {
         best_d = d;

@@ -7,12 +7,6 @@
 
 namespace aerosect {
 
-namespace {
-// Messages show at most kShownKey characters of a key (room for three
-// alternatives "a | b | c"; an unknown key may be any length) and kShownValue
-// of a value or a command-line option.
-constexpr std::size_t kShownKey = 90, kShownValue = 60;
-
 // Bytes from a file or the command line, safe to show on a terminal: control
 // characters (NUL, ESC of an escape sequence, BEL, ..., DEL and the C1
 // controls U+0080..U+009F) and bytes that are not UTF-8 are shown as \xNN;
@@ -51,6 +45,12 @@ std::string printable(const std::string& s, bool keep_newlines = false) {
   }
   return out;
 }
+
+namespace {
+// Messages show at most kShownKey characters of a key (room for three
+// alternatives "a | b | c"; an unknown key may be any length) and kShownValue
+// of a value or a command-line option.
+constexpr std::size_t kShownKey = 90, kShownValue = 60;
 
 std::string shown(const std::string& raw, std::size_t limit = kShownValue) {
   const std::string s = printable(raw);

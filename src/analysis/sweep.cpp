@@ -91,6 +91,15 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
 
 }  // namespace
 
+void check_swept_values(const SweepRequest& r) {
+  for (const auto& ax : r.options.axes)
+    for (double v : ax.values) {
+      std::vector<std::string> o2 = r.overrides;
+      o2.push_back(fmt::format("{}={:.17g}", ax.key, v));
+      (void)parse_case(r.case_text, r.case_path, o2);
+    }
+}
+
 std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<SweepPoint>& done,
                                   const std::function<void(const SweepPoint&)>& on_point,
                                   const std::atomic<bool>* cancel) {
@@ -112,15 +121,7 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
 
   std::vector<std::vector<SweepPoint>> results(mine.size());
   // Validate the swept values once, up front (bad input is an error before any work).
-  {
-    std::vector<std::string> ov = r.overrides;
-    for (const auto& ax : o.axes)
-      for (double v : ax.values) {
-        std::vector<std::string> o2 = ov;
-        o2.push_back(fmt::format("{}={:.17g}", ax.key, v));
-        (void)parse_case(r.case_text, r.case_path, o2);
-      }
-  }
+  check_swept_values(r);
   std::exception_ptr failure;
 #pragma omp parallel for schedule(dynamic, 1) num_threads(std::max(1, o.jobs))
   for (std::size_t c = 0; c < mine.size(); ++c) {

@@ -23,6 +23,13 @@
 
 #include <CLI/CLI.hpp>
 
+namespace aerosect {
+// Bytes from the command line or a file, safe to show on a terminal (control
+// characters and bytes that are not UTF-8 as \xNN); error.cpp, where the
+// case reader's messages use it too.
+std::string printable(const std::string& s, bool keep_newlines = false);
+}  // namespace aerosect
+
 namespace aerosect::cli {
 
 struct Command {
@@ -40,7 +47,7 @@ Command add_study_command(CLI::App& app);
 Command add_orbits_command(CLI::App& app);
 
 // --- Signals -------------------------------------------------------------
-// Installs the SIGINT/SIGTERM handlers (once, from main).
+// Installs the SIGINT/SIGTERM handlers and ignores SIGXFSZ (once, from main).
 void install_signal_handlers();
 // The flag handed to the engine: set by the first signal, or by
 // request_stop() (e.g. a sweep whose journal cannot be written).
@@ -71,8 +78,28 @@ struct Range {
 };
 std::optional<Range> parse_range(const std::string& text);
 
-// Threads: `jobs` when positive, else every core.
-int jobs_or_all_cores(int jobs);
+// Threads: `jobs` when given, else every core. Given, it must be
+// 1 <= jobs <= max_jobs(), else InputError naming `option`.
+int jobs_or_all_cores(const std::optional<int>& jobs, const char* option = "--jobs");
+// The most threads a run may ask for: 256, or 4 per hardware thread on a
+// machine with more than 64.
+int max_jobs();
+
+// --- Checks of option values (before any work; InputError, exit 2) ----------
+// The longest path component of an output name, and the longest name: the
+// writers add suffixes (".part", ".lock", ".journal", ".incomplete") that
+// must still fit the system's limits (NAME_MAX 255, PATH_MAX 4096).
+inline constexpr std::size_t kMaxOutputComponent = 200;
+inline constexpr std::size_t kMaxOutputPath = 4000;
+// An output name given with `option` (-o): not empty, no component longer
+// than kMaxOutputComponent bytes, at most kMaxOutputPath bytes.
+void check_output_name(const std::string& option, const std::string& path);
+// `value` is a finite number in [lo, hi] (lo excluded when `open_lo`).
+void check_number(const std::string& option, double value, double lo, double hi, bool open_lo,
+                  const std::string& allowed);
+// A range option's values are distinct and increasing (the spacing is not
+// lost to rounding), e.g. 10:10.0000000000001:1000 is refused.
+bool distinct_values(const Range& r);
 
 // --- Output ------------------------------------------------------------------
 // Writes `s` to stdout as is.

@@ -7,6 +7,10 @@
 #include <sstream>
 #include <thread>
 
+#include <fmt/format.h>
+
+#include "aerosect/error.hpp"
+
 namespace aerosect::cli {
 
 namespace {
@@ -29,6 +33,10 @@ extern "C" void on_signal(int s) {
 void install_signal_handlers() {
   std::signal(SIGINT, on_signal);
   std::signal(SIGTERM, on_signal);
+  // A write past the file size limit (`ulimit -f`) then fails with EFBIG,
+  // which the writers report (exit 4, naming the file, no .part left),
+  // instead of the signal killing the process with nothing said.
+  std::signal(SIGXFSZ, SIG_IGN);
 }
 
 std::atomic<bool>* cancel_flag() { return &g_cancel; }
@@ -65,8 +73,49 @@ std::optional<Range> parse_range(const std::string& text) {
   return r;
 }
 
-int jobs_or_all_cores(int jobs) {
-  return jobs > 0 ? jobs : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+int max_jobs() { return static_cast<int>(std::max(256u, 4 * std::thread::hardware_concurrency())); }
+
+int jobs_or_all_cores(const std::optional<int>& jobs, const char* option) {
+  if (!jobs) return static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+  if (*jobs < 1 || *jobs > max_jobs())
+    throw InputError({option, 0, 0}, option, std::to_string(*jobs), "is not a thread count",
+                     fmt::format("1 <= N <= {} (leave it out for one thread per core: {})", max_jobs(),
+                                 std::max(1u, std::thread::hardware_concurrency())));
+  return *jobs;
+}
+
+void check_output_name(const std::string& option, const std::string& path) {
+  const std::string allowed = fmt::format(
+      "a file name, at most {} bytes per folder or file name and {} bytes in all", kMaxOutputComponent,
+      kMaxOutputPath);
+  if (path.empty()) throw InputError({option, 0, 0}, option, "\"\"", "is empty: no output named", allowed);
+  if (path.find('\0') != std::string::npos)
+    throw InputError({option, 0, 0}, option, path, "holds a NUL byte", allowed);
+  if (path.size() > kMaxOutputPath)
+    throw InputError({option, 0, 0}, option, path, fmt::format("is {} bytes long", path.size()), allowed);
+  std::size_t start = 0;
+  while (start <= path.size()) {
+    const std::size_t slash = std::min(path.find('/', start), path.size());
+    if (slash - start > kMaxOutputComponent)
+      throw InputError({option, 0, 0}, option, path,
+                       fmt::format("has a name of {} bytes ('{}...')", slash - start, path.substr(start, 20)),
+                       allowed);
+    start = slash + 1;
+  }
+}
+
+void check_number(const std::string& option, double value, double lo, double hi, bool open_lo,
+                  const std::string& allowed) {
+  if (!std::isfinite(value) || value < lo || (open_lo && value == lo) || value > hi)
+    throw InputError({option, 0, 0}, option, fmt::format("{}", value),
+                     std::isfinite(value) ? "is out of range" : "is not a finite number", allowed);
+}
+
+bool distinct_values(const Range& r) {
+  const std::vector<double> v = r.values();
+  for (std::size_t k = 1; k < v.size(); ++k)
+    if (!(v[k] > v[k - 1])) return false;
+  return true;
 }
 
 void print(const std::string& s) { std::fwrite(s.data(), 1, s.size(), stdout); }

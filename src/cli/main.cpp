@@ -2,8 +2,8 @@
 // command.hpp), parses, runs the chosen one and turns the engine's typed
 // errors into messages and exit codes:
 //   0 success; 1 internal error; 2 bad input; 3 numerical trouble;
-//   4 output could not be written; 128 + signal number when stopped by a
-//   signal: 130 for SIGINT (Ctrl-C), 143 for SIGTERM.
+//   4 output could not be written; 5 out of memory; 128 + signal number
+//   when stopped by a signal: 130 for SIGINT (Ctrl-C), 143 for SIGTERM.
 // The first SIGINT or SIGTERM stops the run cleanly, keeping what README.md
 // ("Exit status and interruption") says each command keeps; a second one
 // ends the program at once, as the signal's default action does.
@@ -11,6 +11,7 @@
 #include <cstdio>
 #include <cstdlib>
 #include <iostream>
+#include <new>
 #include <string>
 #include <vector>
 
@@ -18,6 +19,7 @@
 
 #include "aerosect/error.hpp"
 #include "aerosect/io/hdf5_writer.hpp"
+#include "aerosect/io/output_claim.hpp"
 #include "aerosect/version.hpp"
 #include "command.hpp"
 
@@ -25,7 +27,7 @@ namespace {
 
 // The heading of a bad-input message: options are named as such.
 std::string input_heading(const aerosect::InputError& e) {
-  return e.where().file.rfind("--", 0) == 0 ? "aerosect: error in the command line:\n"
+  return e.where().file.rfind("-", 0) == 0 ? "aerosect: error in the command line:\n"
                                             : "aerosect: error in the case:\n";
 }
 
@@ -45,6 +47,13 @@ int run_command(const std::vector<aerosect::cli::Command>& commands) {
   } catch (const aerosect::OutputError& e) {
     std::cerr << aerosect::wrapped(std::string("aerosect: ") + e.what()) << "\n";
     return 4;
+  } catch (const std::bad_alloc&) {
+    // Outputs are written under temporary names and renamed when complete:
+    // what was being written is dropped, earlier complete files stay.
+    std::cerr << aerosect::wrapped("aerosect: out of memory: the run needs more memory than this process may use "
+                                   "(see `ulimit -v` and the machine's free memory); nothing half-written is kept")
+              << "\n";
+    return 5;
   } catch (const std::exception& e) {
     std::cerr << aerosect::wrapped(std::string("aerosect: ") + e.what()) << "\n";
     return 1;
@@ -61,6 +70,12 @@ int main(int argc, char** argv) {
   CLI::App app{"aerosect: time-domain nonlinear aeroelastic simulation of a typical section"};
   app.set_version_flag("--version", std::string("aerosect ") + aerosect::kVersion);
   app.require_subcommand(1);
+  // Option errors found by the parser, headed like those found later.
+  app.failure_message([](const CLI::App*, const CLI::Error& e) {
+    return "aerosect: error in the command line:\n" +
+           aerosect::wrapped("  " + aerosect::printable(e.what()) + "\n  see aerosect --help or aerosect COMMAND --help") +
+           "\n";
+  });
   // One line per command, in the order `--help` lists them.
   const std::vector<cli::Command> commands = {
       cli::add_check_command(app), cli::add_simulate_command(app), cli::add_flutter_command(app),
@@ -76,6 +91,7 @@ int main(int argc, char** argv) {
   const int status = run_command(commands);
   // After an HDF5 failure its shutdown at exit may crash (hdf5_writer.hpp).
   if (aerosect::hdf5_shutdown_unsafe()) {
+    aerosect::release_output_claims();  // no static destructor runs after _Exit
     std::cout.flush();
     std::cerr.flush();
     std::fflush(nullptr);

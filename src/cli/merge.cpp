@@ -18,6 +18,7 @@ struct MergeOptions {
 };
 
 int run(const MergeOptions& o) {
+  check_output_name("-o", o.output);
   try {
     merge_sweep_files(o.inputs, o.output, cancel_flag());
   } catch (const Cancelled&) {

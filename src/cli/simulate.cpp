@@ -21,6 +21,7 @@ struct SimulateOptions : CaseOptions {
 };
 
 int run(const SimulateOptions& o) {
+  check_output_name("-o", o.output);
   const Case c = load_case(o.case_path, o.overrides);
   const AeroelasticModel model(c.model);
   Hdf5TimeHistoryWriter writer(o.output);

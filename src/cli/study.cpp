@@ -8,9 +8,13 @@
 #include <filesystem>
 #include <memory>
 
+#include <fmt/format.h>
+
 #include "aerosect/analysis/study.hpp"
+#include "aerosect/analysis/study_folder.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/case.hpp"
+#include "aerosect/io/output_claim.hpp"
 #include "command.hpp"
 #include "plot_tool.hpp"
 
@@ -18,9 +22,13 @@ namespace aerosect::cli {
 
 namespace {
 
+// Most airspeeds of the study's LCO sweep per direction (each is a run).
+constexpr int kMaxStudySweepPoints = 10000;
+
 struct StudyCommandOptions : CaseOptions {
   std::string directory, speeds;
-  int jobs = 0, points = 41;
+  std::optional<int> jobs;
+  int points = 41;
   bool no_plots = false;
 };
 
@@ -50,26 +58,49 @@ bool make_figures(const StudyResult& r, const std::string& dir, bool no_plots,
 }
 
 int run(const StudyCommandOptions& o) {
-  const Case c = load_case(o.case_path, o.overrides);
+  // Every option is checked before the case is read and any work is done.
+  check_output_name("-o", o.directory);
   StudyOptions so;
   so.jobs = jobs_or_all_cores(o.jobs);
+  if (o.points < 2 || o.points > kMaxStudySweepPoints)
+    throw InputError({"--sweep-points", 0, 0}, "--sweep-points", std::to_string(o.points), "is out of range",
+                     fmt::format("2 <= N <= {} airspeeds per direction", kMaxStudySweepPoints));
   so.sweep_points = o.points;
   if (!o.speeds.empty()) {
     const auto r = parse_range(o.speeds);
-    if (!r || !(r->from > 0) || !(r->to > r->from) || r->n < 2 || r->n > 100000)
+    if (!r || !(r->from > 0) || !(r->to > r->from) || !(r->to < 1000) || r->n < 2 || r->n > kMaxStudySweepPoints ||
+        !distinct_values(*r))
       throw InputError({"--sweep-speeds " + o.speeds, 0, 0}, "--sweep-speeds", o.speeds, "is not a valid speed range",
-                       "FROM:TO:N with 0 < FROM < TO (m/s, true airspeed) and 2 <= N <= 100000, "
-                       "e.g. --sweep-speeds 10:90:41");
+                       fmt::format("FROM:TO:N with 0 < FROM < TO < 1000 (m/s, true airspeed) and 2 <= N <= {} "
+                                   "distinct speeds, e.g. --sweep-speeds 10:90:41",
+                                   kMaxStudySweepPoints));
     so.sweep_speeds = std::make_pair(r->from, r->to);
     so.sweep_points = static_cast<int>(r->n);
   }
+  const Case c = load_case(o.case_path, o.overrides);
   const auto t0 = std::chrono::steady_clock::now();
   auto progress = [&](const std::string& stage) {
     const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     std::fprintf(stderr, "aerosect study [%6.1f s]: %s\n", el, stage.c_str());
   };
+  // One study per folder: the folder is this run's (a second study into it
+  // is refused before anything moves), and an earlier study's files are set
+  // aside before the first new file is written (study_folder.hpp).
+  std::string earlier;
+  {
+    std::error_code ec;
+    std::filesystem::create_directories(o.directory, ec);
+    if (std::filesystem::is_directory(o.directory, ec)) {
+      claim_output((std::filesystem::path(o.directory) / "summary.json").string());
+      earlier = set_aside_earlier_study(o.directory);
+      if (!earlier.empty())
+        std::fprintf(stderr, "aerosect study: the earlier complete study is kept in %s until this one completes\n",
+                     earlier.c_str());
+    }
+  }
   const std::string kept = "the files finished so far are kept in " + o.directory +
-                           " (summary.json lists the stages done; no report.html was written)";
+                           " (summary.json lists the stages done; no report.html was written)" +
+                           (earlier.empty() ? "" : "; the earlier complete study is kept whole in " + earlier);
   const StudyResult r = run_study(c, o.directory, so, cancel_flag(), progress);
   if (!r.completed) return report_interrupted(kept);
   std::vector<StudyFigure> figures;
@@ -77,6 +108,7 @@ int run(const StudyCommandOptions& o) {
   if (!make_figures(r, o.directory, o.no_plots, progress, figures, notes)) return report_interrupted(kept);
   const std::string html = (std::filesystem::path(o.directory) / "report.html").string();
   write_study_report(c, r, figures, notes, html);
+  remove_earlier_study(o.directory);
   print(o.json ? study_json(r, figures, notes, html).dump(2) + "\n" : study_text(c, r, notes, html));
   return 0;
 }

@@ -17,6 +17,7 @@
 #include "aerosect/error.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/io/journal.hpp"
+#include "aerosect/io/output_claim.hpp"
 #include "command.hpp"
 
 namespace aerosect::cli {
@@ -26,35 +27,50 @@ namespace {
 struct SweepCommandOptions : CaseOptions {
   std::string output, direction = "both", restart = "continue", shard;
   std::vector<std::string> vary;
-  int jobs = 0;
+  std::optional<int> jobs;
   bool traces = false;
 };
+
+// Most values per axis, and most points in one sweep (both directions, the
+// whole grid): each point is a run, and the map holds every point's rows.
+constexpr long kMaxAxisValues = 100000;
+constexpr long kMaxSweepPoints = 1000000;
 
 // "KEY=FROM:TO:N" for --vary.
 SweepAxis parse_vary(const std::string& text) {
   const auto eq = text.find('=');
   const auto r = eq != std::string::npos && eq > 0 ? parse_range(text.substr(eq + 1)) : std::nullopt;
-  if (!r || !(r->to > r->from) || r->n < 2 || r->n > 1000000)
+  if (!r || !(r->to > r->from) || r->n < 2 || r->n > kMaxAxisValues || !distinct_values(*r))
     throw InputError({"--vary " + text, 0, 0}, "--vary", text, "is not a valid sweep",
-                     "KEY=FROM:TO:N with a numeric case key, FROM < TO and N >= 2, e.g. "
-                     "--vary nondimensional.reduced_speed=1:7:61");
+                     fmt::format("KEY=FROM:TO:N with a numeric case key, finite FROM < TO and 2 <= N <= {} "
+                                 "distinct values, e.g. --vary nondimensional.reduced_speed=1:7:61",
+                                 kMaxAxisValues));
   return {text.substr(0, eq), r->values()};
 }
 
-SweepRequest make_request(const SweepCommandOptions& o, const Case& c) {
+// The request from the options alone (the case text comes later): every
+// option is checked here, before the case is read and any file is made.
+SweepRequest make_request(const SweepCommandOptions& o) {
+  check_output_name("-o", o.output);
   SweepRequest req;
-  req.case_text = c.text;
-  req.case_path = c.path;
   req.overrides = o.overrides;
   if (o.vary.empty() || o.vary.size() > 2)
     throw InputError({"--vary", 0, 0}, "--vary", "", "give one or two --vary options",
                      "--vary KEY=FROM:TO:N [--vary KEY2=FROM:TO:N]");
   for (const auto& v : o.vary) req.options.axes.push_back(parse_vary(v));
+  if (req.options.axes.size() == 2 && req.options.axes[0].key == req.options.axes[1].key)
+    throw InputError({"--vary " + o.vary[1], 0, 0}, "--vary", o.vary[1],
+                     "varies the same key as the first --vary", "two --vary options with different keys");
   req.options.up = o.direction != "down";
   req.options.down = o.direction != "up";
   req.options.continuation = o.restart == "continue";
   req.options.traces = o.traces;
   req.options.jobs = jobs_or_all_cores(o.jobs);
+  const long points = (o.direction == "both" ? 2 : 1) * static_cast<long>(req.options.axes[0].values.size()) *
+                      (req.options.axes.size() > 1 ? static_cast<long>(req.options.axes[1].values.size()) : 1);
+  if (points > kMaxSweepPoints)
+    throw InputError({"--vary", 0, 0}, "--vary", fmt::format("{} points", points), "is too large a sweep",
+                     fmt::format("at most {} points over both directions and the whole grid", kMaxSweepPoints));
   if (!o.shard.empty()) {
     int k = 0, n = 0;
     char slash = 0;
@@ -67,6 +83,23 @@ SweepRequest make_request(const SweepCommandOptions& o, const Case& c) {
     req.options.shard_count = n;
   }
   return req;
+}
+
+// The journal's head: the request, and a digest of each recorded gust's
+// samples as read (their files are not in the case text), so a sweep is not
+// resumed after a gust file changed. A case without recorded gusts has the
+// request alone (as journals written before the digests).
+JournalHead journal_head(const SweepRequest& req, const Case& c) {
+  JournalHead h = sweep_journal_head(req);
+  for (const auto& g : c.model.gusts.profiles()) {
+    if (g.shape != GustShape::kRecorded) continue;
+    std::string bytes;
+    for (const auto* v : {&g.record_time, &g.record_velocity})
+      bytes.append(reinterpret_cast<const char*>(v->data()), v->size() * sizeof(double));
+    h.identity["recorded_gusts"].push_back(
+        {{"label", g.label}, {"samples", g.record_time.size()}, {"fnv1a64", fnv1a64_hex(bytes)}});
+  }
+  return h;
 }
 
 // One progress line on a terminal: points done of the total, elapsed, ETA.
@@ -92,9 +125,18 @@ class Progress {
 };
 
 int run(const SweepCommandOptions& o) {
+  SweepRequest req = make_request(o);
   const Case c = load_case(o.case_path, o.overrides);
-  const SweepRequest req = make_request(o, c);
-  Journal journal(o.output + ".journal", sweep_journal_head(req));
+  req.case_text = c.text;
+  req.case_path = c.path;
+  // Every swept value is checked before the journal is made: a refused
+  // sweep leaves no journal behind to refuse the corrected command.
+  check_swept_values(req);
+  // The map and its journal are this run's from the start (a second run
+  // with the same -o is refused before it touches the journal).
+  claim_output(o.output);
+  claim_output(o.output + ".journal");
+  Journal journal(o.output + ".journal", journal_head(req, c));
   for (const auto& n : journal.notes()) std::cerr << "aerosect: " << n << "\n";
   const std::vector<SweepPoint> done = points_from_journal(journal, req);
   if (!done.empty())

@@ -542,12 +542,31 @@ void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
     in.relative_tolerance = *v;
   }
   if (auto v = sim.number("absolute_tolerance")) {
-    sim.require(*v > 0 && *v <= 1, "absolute_tolerance", "is outside the useful range",
-                "0 < absolute_tolerance <= 1 (in the state's SI units)");
+    // Below 1e-16 the step control chases round-off: a state that starts at
+    // exactly zero asks for steps of 1e-70 s, and the run collapses or crawls.
+    sim.require(*v >= 1e-16 && *v <= 1, "absolute_tolerance", "is outside the useful range",
+                "1e-16 <= absolute_tolerance <= 1 (in the state's SI units)");
     in.absolute_tolerance = *v;
   }
   in.max_step = nonnegative_or(sim, "max_step", 0.0, "seconds, 0 for no limit");
   in.initial_step = nonnegative_or(sim, "initial_step", 0.0, "seconds, 0 for automatic");
+  // Steps the integrator can take: at most 1e7 steps per run from max_step
+  // (a smaller one would run for hours or collapse into round-off of the
+  // time), and a first step well above the round-off of t near 0 (the
+  // integrator stops at a step below 16 eps times the shortest period).
+  const double min_max_step = s.duration * 1e-7;
+  if (in.max_step > 0 && in.max_step < min_max_step)
+    sim.fail("max_step", "is too small to finish the run (more than 1e7 steps)",
+             fmt::format("0 (no limit) or max_step >= duration / 1e7 = {:.3g} s", min_max_step));
+  {
+    const auto w = uncoupled_frequencies(c.model.section);
+    const double shortest = 2 * pi / std::max({w.plunge, w.pitch, w.flap});
+    const double min_initial_step = 1e-12 * shortest;
+    if (std::isfinite(min_initial_step) && in.initial_step > 0 && in.initial_step < min_initial_step)
+      sim.fail("initial_step", "is below what double precision can step",
+               fmt::format("0 (automatic) or initial_step >= 1e-12 x the shortest uncoupled period = {:.3g} s",
+                           min_initial_step));
+  }
 
   if (auto held = sim.strings("hold")) {
     for (const auto& h : *held) {

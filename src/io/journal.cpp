@@ -4,6 +4,7 @@
 #include <cerrno>
 #include <cstring>
 #include <filesystem>
+#include <optional>
 
 #include <fmt/format.h>
 
@@ -15,8 +16,10 @@ namespace fs = std::filesystem;
 
 namespace {
 
+constexpr const char* kLineCheck = "fnv1a64";
+
 nlohmann::json head_json(const JournalHead& h) {
-  return {{"aerosect_journal", h.kind}, {"format", h.format}, {"identity", h.identity}};
+  return {{"aerosect_journal", h.kind}, {"format", h.format}, {"identity", h.identity}, {"line_check", kLineCheck}};
 }
 
 std::string formats_text(const JournalHead& h) {
@@ -29,13 +32,22 @@ std::string formats_text(const JournalHead& h) {
   return t;
 }
 
-// Checks the head line against what this run expects; returns its format.
-int check_head(const std::string& path, const std::string& line, const JournalHead& want) {
+struct HeadRead {
+  int format = 0;
+  bool line_check = false;
+  bool same_identity = true;
+  std::string differences;  // the identity's top-level fields that differ
+};
+
+// Reads the head line against what this run expects (kind and format; the
+// identity is compared, the caller decides).
+HeadRead read_head(const std::string& path, const std::string& line, const JournalHead& want) {
   const nlohmann::json head = nlohmann::json::parse(line, nullptr, false);
   const std::string restart = "the same command as the interrupted run, or remove the journal / choose another -o";
   if (head.is_discarded() || !head.is_object())
     throw InputError({path, 1, 0}, "", "", "the first line is not a journal head (not a JSON object)", restart);
-  int format = 1;
+  HeadRead h;
+  h.format = 1;
   nlohmann::json identity = head;
   if (head.contains("aerosect_journal")) {
     const auto& k = head["aerosect_journal"];
@@ -46,23 +58,103 @@ int check_head(const std::string& path, const std::string& line, const JournalHe
     if (!f.is_number_integer())
       throw InputError({path, 1, 0}, "format", f.dump().substr(0, 60), "is not a journal format number",
                        "format " + formats_text(want));
-    format = f.get<int>();
+    h.format = f.get<int>();
     identity = head.contains("identity") ? head["identity"] : nlohmann::json();
+    if (head.contains("line_check")) {
+      const auto& c = head["line_check"];
+      if (!c.is_string() || c.get<std::string>() != kLineCheck)
+        throw InputError({path, 1, 0}, "line_check", c.dump().substr(0, 60), "is not a line check this aerosect knows",
+                         std::string("\"") + kLineCheck + "\" (or remove the journal to start again)");
+      h.line_check = true;
+    }
   }
-  const bool readable = format == want.format ||
-                        std::find(want.readable.begin(), want.readable.end(), format) != want.readable.end();
+  const bool readable = h.format == want.format ||
+                        std::find(want.readable.begin(), want.readable.end(), h.format) != want.readable.end();
   if (!readable)
-    throw InputError({path, 1, 0}, "format", std::to_string(format),
+    throw InputError({path, 1, 0}, "format", std::to_string(h.format),
                      "was written in a journal format this aerosect cannot read back",
                      fmt::format("format {} (finish the sweep with the aerosect that wrote the journal, or "
                                  "remove it to start again)",
                                  formats_text(want)));
-  if (identity != want.identity)
-    throw InputError({path, 1, 0}, "", "", "this journal belongs to a different sweep", restart);
-  return format;
+  if (identity != want.identity) {
+    h.same_identity = false;
+    if (identity.is_object() && want.identity.is_object()) {
+      std::vector<std::string> keys;
+      for (const auto& [k, v] : want.identity.items())
+        if (!identity.contains(k) || identity[k] != v) keys.push_back(k);
+      for (const auto& [k, v] : identity.items())
+        if (!want.identity.contains(k)) keys.push_back(k);
+      for (const auto& k : keys) h.differences += (h.differences.empty() ? "" : ", ") + k;
+    }
+  }
+  return h;
+}
+
+// One line of `in` into `line` (without its '\n'), reading at most
+// `max_bytes` of it (the rest of a longer line is skipped).
+enum class LineRead { kEnd, kComplete, kCut, kTooLong };
+LineRead read_line(std::istream& in, std::string& line, std::size_t max_bytes, std::uintmax_t& bytes) {
+  line.clear();
+  std::streambuf* sb = in.rdbuf();
+  bool any = false, too_long = false;
+  for (;;) {
+    const int c = sb->sbumpc();
+    if (c == std::char_traits<char>::eof()) return !any ? LineRead::kEnd : LineRead::kCut;
+    any = true;
+    ++bytes;
+    if (c == '\n') return too_long ? LineRead::kTooLong : LineRead::kComplete;
+    if (line.size() < max_bytes)
+      line.push_back(static_cast<char>(c));
+    else
+      too_long = true;
+  }
+}
+
+// A record's line: its JSON object with the digest of that JSON text as a
+// last member, {...,"line_check":"0123456789abcdef"}: the line stays one
+// JSON object, and the record's own text is the line without that member.
+constexpr std::string_view kCheckMember = "\"line_check\":\"";
+constexpr std::size_t kDigestDigits = 16;
+
+std::string record_line(const std::string& record_text) {
+  const std::string digest = fnv1a64_hex(record_text);
+  const std::string_view body = std::string_view(record_text).substr(0, record_text.size() - 1);  // without '}'
+  return std::string(body) + (body.size() > 1 ? "," : "") + std::string(kCheckMember) + digest + "\"}";
+}
+
+// The JSON of a record line, or nullopt when the line is damaged.
+std::optional<nlohmann::json> record_of(const std::string& line, bool line_check) {
+  std::string text = line;
+  if (line_check) {
+    const std::size_t tail = kCheckMember.size() + kDigestDigits + 2;  // member, digest, "}
+    if (line.size() < tail + 1 || line.compare(line.size() - 2, 2, "\"}") != 0) return std::nullopt;
+    const std::size_t member = line.size() - tail;
+    if (line.compare(member, kCheckMember.size(), kCheckMember) != 0) return std::nullopt;
+    const std::string digest = line.substr(member + kCheckMember.size(), kDigestDigits);
+    const char before = line[member - 1];
+    if (before == ',')
+      text = line.substr(0, member - 1) + "}";
+    else if (before == '{' && member == 1)
+      text = "{}";
+    else
+      return std::nullopt;
+    if (fnv1a64_hex(text) != digest) return std::nullopt;
+  }
+  nlohmann::json j = nlohmann::json::parse(text, nullptr, false);
+  if (j.is_discarded()) return std::nullopt;
+  return j;
 }
 
 }  // namespace
+
+std::string fnv1a64_hex(std::string_view bytes) {
+  std::uint64_t h = 14695981039346656037ull;
+  for (const char c : bytes) {
+    h ^= static_cast<unsigned char>(c);
+    h *= 1099511628211ull;
+  }
+  return fmt::format("{:016x}", h);
+}
 
 Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
   std::error_code ec;
@@ -77,28 +169,55 @@ Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
     if (!in) throw OutputError(path_, fmt::format("cannot read the journal: {}", std::strerror(errno)));
     std::string line;
     int number = 0;
-    auto complete_line = [&] { return std::getline(in, line) && !in.eof(); };
-    if (complete_line()) {
+    std::uintmax_t bytes = 0;
+    LineRead got = read_line(in, line, kMaxJournalLine, bytes);
+    if (got == LineRead::kComplete || got == LineRead::kTooLong) {
       ++number;
-      format_read_ = check_head(path_, line, head);
+      if (got == LineRead::kTooLong)
+        throw InputError({path_, 1, 0}, "", "", "the first line is not a journal head (too long)",
+                         "the same command as the interrupted run, or remove the journal / choose another -o");
+      const HeadRead h = read_head(path_, line, head);
+      format_read_ = h.format;
+      line_check_ = h.line_check;
       has_head = true;
-      good_end = static_cast<std::uintmax_t>(in.tellg());
+      good_end = bytes;
       std::vector<int> damaged;
-      while (complete_line()) {
+      std::size_t complete_lines = 0;
+      while ((got = read_line(in, line, kMaxJournalLine, bytes)) == LineRead::kComplete ||
+             got == LineRead::kTooLong) {
         ++number;
-        good_end = static_cast<std::uintmax_t>(in.tellg());
-        nlohmann::json j = nlohmann::json::parse(line, nullptr, false);
-        if (j.is_discarded())
+        ++complete_lines;
+        good_end = bytes;
+        std::optional<nlohmann::json> j;
+        if (got == LineRead::kComplete && h.same_identity) j = record_of(line, line_check_);
+        if (j)
+          records_.push_back({number, std::move(*j)});
+        else if (h.same_identity)
           damaged.push_back(number);
-        else
-          records_.push_back({number, std::move(j)});
       }
+      if (!h.same_identity) {
+        if (complete_lines > 0 || got == LineRead::kCut)
+          throw InputError({path_, 1, 0}, "", "",
+                           h.differences.empty()
+                               ? std::string("this journal belongs to a different sweep")
+                               : "this journal belongs to a different sweep (its " + h.differences +
+                                     " differ from this run's)",
+                           "the same command and inputs as the interrupted run, or remove the journal / choose "
+                           "another -o");
+        // Nothing finished is in it: start it again for this run.
+        notes_.push_back(fmt::format("{}: held no finished point of another sweep; started again for this one",
+                                     path_));
+        has_head = false;
+        good_end = 0;
+      }
+      damaged_ = damaged.size();
       if (!damaged.empty()) {
         std::string lines;
         for (std::size_t q = 0; q < damaged.size() && q < 10; ++q) lines += (q ? ", " : "") + std::to_string(damaged[q]);
         if (damaged.size() > 10) lines += ", ...";
-        notes_.push_back(fmt::format("{}: {} damaged line(s) skipped (line {}); their points are computed again",
-                                     path_, damaged.size(), lines));
+        notes_.push_back(fmt::format("{}: {} damaged line(s) skipped (line {}); the {} intact points are kept and "
+                                     "the damaged ones computed again",
+                                     path_, damaged.size(), lines, records_.size()));
       }
     }
     in.close();
@@ -110,7 +229,10 @@ Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
                                    path_, size - good_end));
     }
   }
-  if (!has_head) format_read_ = head.format;
+  if (!has_head) {
+    format_read_ = head.format;
+    line_check_ = true;
+  }
   out_.open(path_, has_head ? std::ios::binary | std::ios::app : std::ios::binary | std::ios::trunc);
   if (!out_)
     throw OutputError(path_, fmt::format("cannot open the sweep journal for writing: {}", std::strerror(errno)));
@@ -124,7 +246,11 @@ Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
 }
 
 void Journal::append(const nlohmann::json& record) {
-  const std::string text = record.dump() + "\n";
+  // Invalid UTF-8 in a string (a message quoting a file) is replaced, not thrown.
+  AEROSECT_CHECK(record.is_object());
+  std::string text = record.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
+  if (line_check_) text = record_line(text);
+  text += "\n";
   std::lock_guard<std::mutex> lock(mutex_);
   errno = 0;
   out_.write(text.data(), static_cast<std::streamsize>(text.size()));

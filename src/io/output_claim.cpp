@@ -39,7 +39,10 @@ class Registry {
   }
   void claim(const std::string& target);
 
-  ~Registry() {
+  ~Registry() { release(); }
+
+  void release() {
+    const std::lock_guard<std::mutex> lock(mutex_);
     for (auto& [path, fd] : claims_) {
       // Removed while still locked, so no other run can hold a lock on the
       // inode that disappears (a run that opened it meanwhile re-checks the
@@ -47,6 +50,7 @@ class Registry {
       ::unlink(path.c_str());
       ::close(fd);
     }
+    claims_.clear();
   }
 
  private:
@@ -120,6 +124,8 @@ void register_input(const std::string& path) {
   struct stat st {};
   if (::stat(path.c_str(), &st) == 0) Registry::instance().add_input({st.st_dev, st.st_ino});
 }
+
+void release_output_claims() { Registry::instance().release(); }
 
 void claim_output(const std::string& target) {
   if (target.empty()) throw OutputError(target, "no file name given");

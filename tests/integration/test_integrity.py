@@ -13,9 +13,10 @@
   line naming the file, for simulate, flutter -o, gust -o, sweep and merge.
   The tests run as root in CI, where permissions do not stop writes: the
   places are a path under a regular file (/etc/passwd/x.h5) and a missing
-  directory; a full disk is imitated by the file size limit (RLIMIT_FSIZE,
-  SIGXFSZ ignored so that writes fail with EFBIG), which the free-space check
-  cannot see coming.
+  directory; a full disk is imitated by the file size limit (RLIMIT_FSIZE;
+  the program itself ignores SIGXFSZ so that writes fail with EFBIG: the
+  child starts with the signal's default action, as from a shell), which the
+  free-space check cannot see coming.
 """
 import hashlib
 import json
@@ -54,7 +55,8 @@ def run(*args, limit=None):
     pre = None
     if limit is not None:
         def pre():
-            signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+            # SIGXFSZ stays at its default action (subprocess restores it in
+            # the child): the program must ignore it itself.
             resource.setrlimit(resource.RLIMIT_FSIZE, (limit, limit))
     return subprocess.run([BIN, *args], capture_output=True, text=True, timeout=300, preexec_fn=pre)
 

@@ -74,9 +74,14 @@ struct SweepRequest {
   SweepOptions options;
 };
 
+// Throws InputError when a swept value is rejected by the case reader
+// (each axis value as an override of the case); a caller checks this before
+// it makes any file for the sweep.
+void check_swept_values(const SweepRequest& r);
+
 // Runs every chain; returns all points (done ones included), sorted by
 // (direction, j, i). Throws InputError when a swept value is rejected by the
-// case reader.
+// case reader (check_swept_values).
 std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<SweepPoint>& done,
                                   const std::function<void(const SweepPoint&)>& on_point,
                                   const std::atomic<bool>* cancel = nullptr);

@@ -6,30 +6,49 @@
 // flight; the same command run again reads the records back and continues.
 //
 // File layout (text, UTF-8, '\n' line ends):
-//   line 1:  {"aerosect_journal": KIND, "format": F, "identity": {...}}
-//   line 2+: one record per line, in the order they were appended.
+//   line 1:  {"aerosect_journal": KIND, "format": F, "identity": {...},
+//             "line_check": "fnv1a64"}
+//   line 2+: one record (a JSON object) per line, in the order appended,
+//            with a last member "line_check": the 16 hex digits of
+//            fnv1a64_hex of the record's JSON text without that member
+//            (a journal whose head has no "line_check", as written before
+//            the check existed, has bare records and is read as such).
 // Format history: 1 = the head line was the identity object itself (aerosect
 // up to 0.1.0); 2 = the head above. The records of a kind keep their layout
 // within a format; a reader lists the formats it can read, and a journal of
 // any other format, or of another kind or identity, is refused with an
 // InputError naming the file.
 //
-// Reading back: a record counts when its line ends in a newline and parses
-// as JSON. A run killed while writing leaves at most one cut line at the
-// end; it is cut off (the file shortened) before new records are appended. A
-// complete line in the middle that does not parse (damage) is skipped, kept
-// in the file, and reported in `notes()`: the records after it are kept.
-// Only regular files are read (a FIFO or a device is refused).
+// Reading back: a record counts when its line ends in a newline, its digest
+// matches and it parses as JSON. A run killed while writing leaves at most
+// one cut line at the end; it is cut off (the file shortened) before new
+// records are appended. A complete line anywhere after the head that fails
+// (damage: a changed byte, a lost newline joining two lines, a line longer
+// than kMaxJournalLine) is skipped, kept in the file, counted and reported
+// in `notes()`: the records before and after it are kept.
+// The identity is compared as a whole; a journal of another identity is
+// refused naming the identity's fields that differ, unless it holds no
+// record at all (nothing would be lost): it is then started again, with a
+// note. Only regular files are read (a FIFO or a device is refused).
 
 #include <cstdint>
 #include <fstream>
 #include <mutex>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include <nlohmann/json.hpp>
 
 namespace aerosect {
+
+// The longest record line read back; a longer line counts as damaged.
+inline constexpr std::size_t kMaxJournalLine = 64u << 20;  // 64 MiB
+
+// FNV-1a 64-bit digest of `bytes` as 16 lower-case hex digits: the
+// journal's line check, and a fingerprint of an input's contents for an
+// identity (not a cryptographic hash).
+std::string fnv1a64_hex(std::string_view bytes);
 
 struct JournalRecord {
   int line = 0;  // 1-based line in the journal file
@@ -55,12 +74,15 @@ class Journal {
   // The records read back on opening (resume), in file order.
   const std::vector<JournalRecord>& records() const { return records_; }
   // Lines for the user about what reading back found: a cut last line
-  // dropped, damaged lines skipped. Empty for a clean or new journal.
+  // dropped, damaged lines skipped, a record-less journal of another
+  // identity started again. Empty for a clean or new journal.
   const std::vector<std::string>& notes() const { return notes_; }
   // The format of the journal as read (the head's format when new).
   int format_read() const { return format_read_; }
+  // Complete lines after the head skipped as damaged on opening.
+  std::size_t damaged_lines() const { return damaged_; }
 
-  // Appends one record and flushes it. Thread-safe. Throws OutputError
+  // Appends one record (a JSON object) and flushes it. Thread-safe. Throws OutputError
   // naming the journal when it cannot be written (e.g. no room).
   void append(const nlohmann::json& record);
   // Records appended since opening, plus those read back.
@@ -76,6 +98,8 @@ class Journal {
   std::vector<JournalRecord> records_;
   std::vector<std::string> notes_;
   int format_read_ = 0;
+  std::size_t damaged_ = 0;
+  bool line_check_ = true;  // records are written with their digest
   mutable std::mutex mutex_;
   std::ofstream out_;
   std::size_t appended_ = 0;

@@ -33,4 +33,8 @@ void register_input(const std::string& path);
 // Claims `target` for this process as described above; throws OutputError.
 void claim_output(const std::string& target);
 
+// Releases every claim now (lock files removed), for a process that ends
+// without running static destructors (std::_Exit after an HDF5 failure).
+void release_output_claims();
+
 }  // namespace aerosect

@@ -545,7 +545,8 @@ void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
     // Below 1e-16 the step control chases round-off: a state that starts at
     // exactly zero asks for steps of 1e-70 s, and the run collapses or crawls.
     sim.require(*v >= 1e-16 && *v <= 1, "absolute_tolerance", "is outside the useful range",
-                "1e-16 <= absolute_tolerance <= 1 (in the state's SI units)");
+                "0 < absolute_tolerance <= 1 and >= 1e-16 (in the state's SI units; smaller ones chase "
+                "round-off)");
     in.absolute_tolerance = *v;
   }
   in.max_step = nonnegative_or(sim, "max_step", 0.0, "seconds, 0 for no limit");

@@ -35,12 +35,10 @@ std::string formats_text(const JournalHead& h) {
 struct HeadRead {
   int format = 0;
   bool line_check = false;
-  bool same_identity = true;
-  std::string differences;  // the identity's top-level fields that differ
 };
 
-// Reads the head line against what this run expects (kind and format; the
-// identity is compared, the caller decides).
+// Checks the head line against what this run expects (kind, format and
+// identity; a different identity is refused naming the fields that differ).
 HeadRead read_head(const std::string& path, const std::string& line, const JournalHead& want) {
   const nlohmann::json head = nlohmann::json::parse(line, nullptr, false);
   const std::string restart = "the same command as the interrupted run, or remove the journal / choose another -o";
@@ -77,15 +75,19 @@ HeadRead read_head(const std::string& path, const std::string& line, const Journ
                                  "remove it to start again)",
                                  formats_text(want)));
   if (identity != want.identity) {
-    h.same_identity = false;
+    std::string differences;
     if (identity.is_object() && want.identity.is_object()) {
-      std::vector<std::string> keys;
       for (const auto& [k, v] : want.identity.items())
-        if (!identity.contains(k) || identity[k] != v) keys.push_back(k);
+        if (!identity.contains(k) || identity[k] != v) differences += (differences.empty() ? "" : ", ") + k;
       for (const auto& [k, v] : identity.items())
-        if (!want.identity.contains(k)) keys.push_back(k);
-      for (const auto& k : keys) h.differences += (h.differences.empty() ? "" : ", ") + k;
+        if (!want.identity.contains(k)) differences += (differences.empty() ? "" : ", ") + k;
     }
+    throw InputError({path, 1, 0}, "", "",
+                     differences.empty() ? std::string("this journal belongs to a different sweep")
+                                         : "this journal belongs to a different sweep (its " + differences +
+                                               " differ from this run's)",
+                     "the same command and inputs as the interrupted run, or remove the journal / choose "
+                     "another -o");
   }
   return h;
 }
@@ -182,33 +184,16 @@ Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
       has_head = true;
       good_end = bytes;
       std::vector<int> damaged;
-      std::size_t complete_lines = 0;
       while ((got = read_line(in, line, kMaxJournalLine, bytes)) == LineRead::kComplete ||
              got == LineRead::kTooLong) {
         ++number;
-        ++complete_lines;
         good_end = bytes;
         std::optional<nlohmann::json> j;
-        if (got == LineRead::kComplete && h.same_identity) j = record_of(line, line_check_);
+        if (got == LineRead::kComplete) j = record_of(line, line_check_);
         if (j)
           records_.push_back({number, std::move(*j)});
-        else if (h.same_identity)
+        else
           damaged.push_back(number);
-      }
-      if (!h.same_identity) {
-        if (complete_lines > 0 || got == LineRead::kCut)
-          throw InputError({path_, 1, 0}, "", "",
-                           h.differences.empty()
-                               ? std::string("this journal belongs to a different sweep")
-                               : "this journal belongs to a different sweep (its " + h.differences +
-                                     " differ from this run's)",
-                           "the same command and inputs as the interrupted run, or remove the journal / choose "
-                           "another -o");
-        // Nothing finished is in it: start it again for this run.
-        notes_.push_back(fmt::format("{}: held no finished point of another sweep; started again for this one",
-                                     path_));
-        has_head = false;
-        good_end = 0;
       }
       damaged_ = damaged.size();
       if (!damaged.empty()) {

@@ -3,8 +3,6 @@
 
 - A sweep refused for a bad swept value leaves no journal, lock or map, and
   the corrected command then runs (it is not refused as "a different sweep").
-- A journal holding only the head of another sweep (nothing finished) is
-  started again for this one.
 - Damaged lines anywhere after the head (one byte changed in the first point,
   garbage with a NUL in the middle, two lines joined by a lost newline, a
   bare `{}`, every point line) are skipped, counted and reported on stderr;
@@ -107,15 +105,6 @@ with tempfile.TemporaryDirectory() as tmp:
     check("bad swept value: no journal, lock or map left", not left, left)
     r = run(["sweep", DEMO, "--vary", "flow.airspeed=20:60:3", "-o", bad, "--set", "simulation.duration=0.5"])
     check("corrected command runs", r and r.returncode == 0, r and r.stderr)
-
-    # ------------------------------------- a record-less journal of another sweep
-    other = os.path.join(tmp, "other.h5")
-    with open(other + ".journal", "w") as f:
-        f.write('{"aerosect_journal": "sweep", "format": 2, "identity": {"case_text": "another"}, '
-                '"line_check": "fnv1a64"}\n')
-    r = run(["sweep", DEMO, "--vary", "flow.airspeed=20:60:3", "-o", other, "--set", "simulation.duration=0.5"])
-    check("head-only journal of another sweep: started again", r and r.returncode == 0 and
-          "started again" in r.stderr, r and r.stderr)
 
     # ---------------------------------------------------------- damaged lines
     args = ["sweep", DEMO, "--vary", "flow.airspeed=20:60:8", "--direction", "up", "--jobs", "1", "--json",

@@ -27,9 +27,8 @@
 // than kMaxJournalLine) is skipped, kept in the file, counted and reported
 // in `notes()`: the records before and after it are kept.
 // The identity is compared as a whole; a journal of another identity is
-// refused naming the identity's fields that differ, unless it holds no
-// record at all (nothing would be lost): it is then started again, with a
-// note. Only regular files are read (a FIFO or a device is refused).
+// refused naming the identity's fields that differ. Only regular files are
+// read (a FIFO or a device is refused).
 
 #include <cstdint>
 #include <fstream>
@@ -74,8 +73,7 @@ class Journal {
   // The records read back on opening (resume), in file order.
   const std::vector<JournalRecord>& records() const { return records_; }
   // Lines for the user about what reading back found: a cut last line
-  // dropped, damaged lines skipped, a record-less journal of another
-  // identity started again. Empty for a clean or new journal.
+  // dropped, damaged lines skipped. Empty for a clean or new journal.
   const std::vector<std::string>& notes() const { return notes_; }
   // The format of the journal as read (the head's format when new).
   int format_read() const { return format_read_; }

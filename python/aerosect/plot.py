@@ -831,22 +831,13 @@ def flight_condition(f):
 
 def initial_conditions_note(f):
     """A warning when the case starts away from rest: the sweep's peaks then
-    hold the release transient too. Read from the case text in the file;
-    None when it starts at rest or the text cannot be read."""
-    import tomllib
-
-    text = text_attribute(f, "case_text", "")
-    try:
-        initial = tomllib.loads(text).get("initial", {})
-    except (tomllib.TOMLDecodeError, AttributeError):
+    hold the release transient too. Read from the file's `initial_state`
+    attribute ("rest", or the displacements and velocities that are not
+    zero); None when it starts at rest or the file does not say."""
+    state = text_attribute(f, "initial_state", "rest")
+    if not state or state == "rest":
         return None
-    if "initial." in text.split("# command-line overrides", 1)[-1] and "# command-line overrides" in text:
-        return None  # overridden on the command line: the file cannot tell
-    moved = [k for k, v in initial.items()
-             if isinstance(v, (int, float)) and not isinstance(v, bool) and v != 0]
-    if not moved:
-        return None
-    return ("The case starts away from rest ([initial] " + ", ".join(moved) + "): "
+    return ("The case starts away from rest (initial " + state + "): "
             "the peaks include the release transient, not only the gust response.")
 
 

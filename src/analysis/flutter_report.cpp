@@ -427,32 +427,51 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
       doc.number_attribute(g, "divergence_speed", m.divergence.found ? m.divergence.speed : nan);
     }
   }
-  if (r.lco.available) {
-    const bool angle = r.lco.spring != kPlunge;
-    std::vector<double> a, u, f, st, keq, br, idx;
-    for (const auto& pt : r.lco.points) {
-      idx.push_back(static_cast<double>(idx.size()));
-      br.push_back(pt.branch);
-      a.push_back(pt.amplitude);
-      u.push_back(pt.speed);
-      f.push_back(pt.frequency / (2 * pi));
-      st.push_back(pt.stable ? 1.0 : 0.0);
-      keq.push_back(pt.equivalent_stiffness);
-    }
-    doc.axis("lco_prediction_point", idx, "1", "point of the describing-function curves");
-    const std::vector<std::string> dims = {"lco_prediction_point"};
-    doc.dataset("lco_prediction/amplitude", dims, a, angle ? "rad" : "m",
-                std::string("describing-function LCO amplitude of the ") + dof_name(r.lco.spring));
-    doc.dataset("lco_prediction/branch", dims, br, "1",
-                "neutral speed of the equivalent linear system counted from below (0 lowest)");
-    doc.dataset("lco_prediction/speed", dims, u, "m s-1", "airspeed of the predicted LCO");
-    doc.dataset("lco_prediction/frequency", dims, f, "Hz", "frequency of the predicted LCO");
-    doc.dataset("lco_prediction/stable", dims, st, "1", "1 for a stable LCO branch, 0 unstable");
-    doc.dataset("lco_prediction/equivalent_stiffness", dims, keq,
-                angle ? "N m rad-1 m-1" : "N m-1 m-1", "describing-function stiffness N(A)");
-    doc.text_attribute("lco_prediction", "spring", dof_name(r.lco.spring));
-  }
+  if (r.lco.available) write_lco_prediction(doc, r.lco);
   doc.commit();
+}
+
+void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double value_per_speed,
+                          const std::string& swept_key) {
+  const bool angle = lco.spring != kPlunge;
+  using P = LcoPredictionPoint;
+  auto field = [](std::string name, std::string units, std::string long_name, std::function<double(const P&)> get) {
+    Field<P> f;
+    f.name = "lco_prediction/" + name;
+    f.units = std::move(units);
+    f.long_name = std::move(long_name);
+    f.get = [get](const P& p, std::size_t) { return get(p); };
+    f.set = [](P&, std::size_t, double) {};
+    return f;
+  };
+  // The layout of a describing-function LCO point: each field once.
+  Layout<P> layout;
+  if (!swept_key.empty())
+    layout.push_back(field("value", "1", "swept value (" + swept_key + ") of the predicted LCO",
+                           [value_per_speed](const P& p) { return p.speed * value_per_speed; }));
+  layout.push_back(field("amplitude", angle ? "rad" : "m",
+                         std::string("describing-function LCO amplitude of the ") + dof_name(lco.spring),
+                         [](const P& p) { return p.amplitude; }));
+  layout.push_back(field("branch", "1", "neutral speed of the equivalent linear system counted from below (0 lowest)",
+                         [](const P& p) { return static_cast<double>(p.branch); }));
+  layout.push_back(field("speed", "m s-1", "airspeed of the predicted LCO", [](const P& p) { return p.speed; }));
+  layout.push_back(field("frequency", "Hz", "frequency of the predicted LCO",
+                         [](const P& p) { return p.frequency / (2 * pi); }));
+  layout.push_back(field("stable", "1", "1 for a stable LCO branch, 0 unstable",
+                         [](const P& p) { return p.stable ? 1.0 : 0.0; }));
+  layout.push_back(field("equivalent_stiffness", angle ? "N m rad-1 m-1" : "N m-1 m-1",
+                         "describing-function stiffness N(A)", [](const P& p) { return p.equivalent_stiffness; }));
+  std::vector<double> idx(lco.points.size());
+  for (std::size_t q = 0; q < idx.size(); ++q) idx[q] = static_cast<double>(q);
+  sink.axis("lco_prediction_point", idx, "1", "point of the describing-function curves");
+  const P* first = lco.points.data();
+  write_layout<P>(sink, layout, {"lco_prediction_point"}, lco.points.size(), lco.points,
+                  [first](const P& p) { return static_cast<std::size_t>(&p - first); });
+  sink.text_attribute("lco_prediction", "spring", dof_name(lco.spring));
+}
+
+std::string flutter_group(Linearisation l, const std::string& method) {
+  return group_name(l) + "/" + method_group(method);
 }
 
 }  // namespace aerosect

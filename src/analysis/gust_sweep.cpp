@@ -130,9 +130,31 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
   return t;
 }
 
+namespace {
+
+// The root attribute `initial_state`: "rest", or the initial displacements
+// and velocities that are not zero, in SI units ("pitch 0.0349066 rad,
+// plunge_rate 0.1 m s-1"). The plot's note that the peaks include the
+// release transient reads it.
+std::string initial_state_text(const SimulationSettings& s) {
+  std::string t;
+  auto add = [&t](const std::string& name, double v, const std::string& units) {
+    if (v != 0.0) t += fmt::format("{}{} {:.6g} {}", t.empty() ? "" : ", ", name, v, units);
+  };
+  for (Eigen::Index k = 0; k < s.initial_displacement.size() && k < kMaxDof; ++k)
+    add(kDofNames[k], s.initial_displacement(k), kDofUnits[k]);
+  for (Eigen::Index k = 0; k < s.initial_velocity.size() && k < kMaxDof; ++k)
+    add(std::string(kDofNames[k]) + "_rate", s.initial_velocity(k), std::string(kDofUnits[k]) + " s-1");
+  return t.empty() ? "rest" : t;
+}
+
+}  // namespace
+
 void write_gust_sweep_file(const std::string& path, const Case& c, const GustSweep& s) {
   Hdf5Document doc(path);
-  doc.metadata(case_metadata(c, "gust-sweep"));
+  RunMetadata meta = case_metadata(c, "gust-sweep");
+  meta.text_attributes.push_back({"initial_state", initial_state_text(c.simulation)});
+  doc.metadata(meta);
   std::vector<double> H, U;
   for (const auto& p : s.points) {
     H.push_back(p.gradient);

@@ -203,12 +203,10 @@ void check_stage(Study& s) {
 
 // Rows of the flutter speeds of one linearisation, both methods.
 void flutter_rows(Study& s, Linearisation l, const std::string& label, const std::string& id) {
-  const char* lin_group[4] = {"nominal", "gap_closed", "gap_open", "describing_function"};
   for (const char* method : {"state-space", "p-k"}) {
     const MethodResult* m = method_of(s.flutter, l, method);
     if (!m) continue;
-    const std::string g = fmt::format("/{}/{}", lin_group[static_cast<int>(l)],
-                                      std::string(method) == "p-k" ? "pk" : "state_space");
+    const std::string g = "/" + flutter_group(l, method);
     const std::string mid = std::string(method) == "p-k" ? "pk" : "state_space";
     if (m->flutter.found) {
       s.rows.add(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method), m->flutter.speed,
@@ -277,6 +275,7 @@ void flutter_stage(Study& s) {
 // What the LCO sweep stage hands the rows and the LCO history stage.
 struct LcoSweepRun {
   std::vector<SweepPoint> points;
+  SweepTables tables;  // the map's layout: the rows cite its fields
   double per = 1;  // swept value per m/s TAS
   std::string key;
 };
@@ -348,8 +347,10 @@ LcoSweepRun lco_sweep_stage(Study& s, int nl) {
   s.say(fmt::format("LCO sweep: {} speeds {:.4g}..{:.4g} m/s TAS, up and down", n, lo, hi));
   const Case sweep_case = parse_case(req.case_text, req.case_path, req.overrides);
   run.points = run_sweep(req, {}, {}, s.cancel);
+  run.tables = sweep_tables(req, sweep_case.model.section.dof);
   stop_if_cancelled(s.cancel);  // an interrupted sweep's points are not a map
-  write_sweep_file(s.path("sweep.h5"), sweep_case, req, run.points);
+  const std::optional<FlutterReport> overlay = sweep_overlay(sweep_case, req, s.cancel);
+  write_sweep_file(s.path("sweep.h5"), sweep_case, req, run.points, overlay ? &*overlay : nullptr);
   s.R.hdf5_files.push_back("sweep.h5");
   s.part("lco-sweep", true,
          fmt::format("{} speeds from {:.4g} to {:.4g} m/s TAS, up and down with continuation; runs of up "
@@ -364,26 +365,27 @@ void lco_sweep_rows(Study& s, const LcoSweepRun& run) {
   const std::vector<SweepPoint>& pts = run.points;
   const double per = run.per;
   const SweepSummary sm = summarize(pts);
+  const std::string& cls = run.tables.field("response_class").name;
   const std::string key_note = s.si ? "" : fmt::format(" (U* = value x {:.4g} m/s)", s.flutter.reference_speed);
   if (sm.onset_up)
     s.rows.add("lco_onset_up", "LCO onset, sweeping up", *sm.onset_up / per, "m/s TAS",
-               "sweep.h5: first response_class = 1 at direction 0" + key_note,
+               "sweep.h5: first " + cls + " = 1 at direction 0" + key_note,
                fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*sm.onset_up / per, s.rho)));
   else
-    s.rows.text("lco_onset_up", "LCO onset, sweeping up", "no LCO found", "sweep.h5: response_class");
+    s.rows.text("lco_onset_up", "LCO onset, sweeping up", "no LCO found", "sweep.h5: " + cls);
   if (sm.disappearance_down)
     s.rows.add("lco_persists_down", "LCO persists, sweeping down, to", *sm.disappearance_down / per, "m/s TAS",
-               "sweep.h5: lowest response_class = 1 at direction 1" + key_note,
+               "sweep.h5: lowest " + cls + " = 1 at direction 1" + key_note,
                fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*sm.disappearance_down / per, s.rho)));
   else
-    s.rows.text("lco_persists_down", "LCO persists, sweeping down, to", "no LCO found", "sweep.h5: response_class");
+    s.rows.text("lco_persists_down", "LCO persists, sweeping down, to", "no LCO found", "sweep.h5: " + cls);
   if (sm.onset_up && sm.disappearance_down && *sm.disappearance_down < *sm.onset_up)
     s.rows.text("hysteresis", "Hysteresis band",
                 fmt::format("{} .. {} m/s TAS", sig4(*sm.disappearance_down / per), sig4(*sm.onset_up / per)),
-                "sweep.h5: response_class, both directions");
+                "sweep.h5: " + cls + ", both directions");
   else
     s.rows.text("hysteresis", "Hysteresis band", "none seen at this speed spacing",
-                "sweep.h5: response_class, both directions");
+                "sweep.h5: " + cls + ", both directions");
   // Where any LCO was found, either direction.
   std::optional<double> first, last;
   for (const auto& p : pts)
@@ -393,10 +395,10 @@ void lco_sweep_rows(Study& s, const LcoSweepRun& run) {
     }
   if (first)
     s.rows.text("lco_range", "LCO found between (either direction)",
-                fmt::format("{} .. {} m/s TAS", sig4(*first / per), sig4(*last / per)), "sweep.h5: response_class = 1",
+                fmt::format("{} .. {} m/s TAS", sig4(*first / per), sig4(*last / per)), "sweep.h5: " + cls + " = 1",
                 s.vd_tas && *first / per <= *s.vd_tas ? "inside the envelope (at or below V_D)" : "");
   else
-    s.rows.text("lco_range", "LCO found between (either direction)", "no LCO in the sweep", "sweep.h5: response_class");
+    s.rows.text("lco_range", "LCO found between (either direction)", "no LCO in the sweep", "sweep.h5: " + cls);
 }
 
 // The largest LCO inside the envelope (at or below V_D), or nullptr.
@@ -412,27 +414,24 @@ const SweepPoint* largest_lco(const Study& s, const LcoSweepRun& run) {
 }
 
 // Rows of the largest LCO: amplitudes, RMS, distortion, hinge-spring moment.
-void largest_lco_rows(Study& s, const SweepPoint& worst, const std::string& where, double per) {
+void largest_lco_rows(Study& s, const SweepPoint& worst, const SweepTables& t, const std::string& where, double per) {
   const Case& c = s.c;
   const int w = worst.lco.watched_dof;
   const bool angle = w != kPlunge;
   const double a = worst.lco.dof[static_cast<std::size_t>(w)].amplitude;
   s.rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDofNames[w]), angle ? a * kDegPerRad : a,
              angle ? "deg" : "m",
-             fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]{}", kDofNames[w], worst.direction, worst.i,
-                         angle ? " (rad in the file)" : ""),
+             "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_amplitude", worst) + (angle ? " (rad in the file)" : ""),
              fmt::format("at {:.4g} m/s TAS sweeping {}, {:.4g} Hz", worst.value1 / per,
                          worst.direction == 0 ? "up" : "down", worst.lco.frequency));
   if (worst.cycle.samples > 0) {
     const DofHarmonics& h = worst.cycle.dof[static_cast<std::size_t>(w)];
     s.rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDofNames[w]), angle ? h.rms * kDegPerRad : h.rms,
                angle ? "deg" : "m",
-               fmt::format("sweep.h5: {}_rms[direction {}, value_1 index {}]{}", kDofNames[w], worst.direction, worst.i,
-                           angle ? " (rad in the file)" : ""));
+               "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_rms", worst) + (angle ? " (rad in the file)" : ""));
     s.rows.add("lco_largest_thd", fmt::format("  {} total harmonic distortion at that LCO", kDofNames[w]), 100 * h.thd,
                "%",
-               fmt::format("sweep.h5: {}_thd[direction {}, value_1 index {}] x 100", kDofNames[w], worst.direction,
-                           worst.i),
+               "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_thd", worst) + " x 100",
                "harmonics above the first, against the first");
   }
   for (int k = 0; k < c.model.section.dof; ++k) {
@@ -440,8 +439,7 @@ void largest_lco_rows(Study& s, const SweepPoint& worst, const std::string& wher
     const double ak = worst.lco.dof[static_cast<std::size_t>(k)].amplitude;
     s.rows.add(fmt::format("lco_largest_{}", kDofNames[k]), fmt::format("  {} amplitude at that LCO", kDofNames[k]),
                k == kPlunge ? ak : ak * kDegPerRad, k == kPlunge ? "m" : "deg",
-               fmt::format("sweep.h5: {}_amplitude[direction {}, value_1 index {}]", kDofNames[k], worst.direction,
-                           worst.i));
+               "sweep.h5: " + t.cite(std::string(kDofNames[k]) + "_amplitude", worst));
   }
   if (c.model.section.dof == 3) {
     const SpringLaw& law = c.model.springs[kFlap];
@@ -498,11 +496,11 @@ void lco_stages(Study& s) {
                                      : std::string("over the sweep (no V_D given)");
   const SweepPoint* worst = largest_lco(s, run);
   if (!worst) {
-    s.rows.text("lco_largest", "Largest LCO " + where, "no LCO", "sweep.h5: response_class");
+    s.rows.text("lco_largest", "Largest LCO " + where, "no LCO", "sweep.h5: " + run.tables.field("response_class").name);
     s.part("lco-history", false, "skipped: no LCO " + where);
     return;
   }
-  largest_lco_rows(s, *worst, where, run.per);
+  largest_lco_rows(s, *worst, run.tables, where, run.per);
   if (worst->lco.frequency > 0) lco_history_stage(s, *worst, where, run);
 }
 

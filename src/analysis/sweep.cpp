@@ -5,11 +5,13 @@
 #include <limits>
 #include <map>
 #include <numbers>
+#include <set>
 #include <tuple>
 
 #include <fmt/format.h>
 
 #include "aerosect/analysis/flutter.hpp"
+#include "aerosect/analysis/flutter_report.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/error.hpp"
@@ -23,9 +25,19 @@ namespace {
 
 using Key = std::tuple<int, int, int>;  // direction, j, i
 
+
+
 struct Chain {
   int direction, j;
 };
+
+// Every spring region index inside its law's regions 0..n (n breakpoints):
+// a state read back from a journal is used only then.
+bool valid_regions(const Case& c, const std::vector<int>& regions) {
+  for (std::size_t k = 0; k < regions.size() && k < c.model.springs.size(); ++k)
+    if (regions[k] < 0 || regions[k] > static_cast<int>(c.model.springs[k].breakpoints().size())) return false;
+  return true;
+}
 
 // Runs one point; nullopt when `cancel` stopped it (an unfinished point is
 // neither reported nor kept: a resumed sweep runs it again).
@@ -48,7 +60,8 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
   const bool carry = o.continuation && previous && previous->ok &&
                      previous->lco.response != ResponseClass::kDivergent &&
                      static_cast<int>(previous->final_state.size()) == model.state_size() &&
-                     static_cast<int>(previous->final_regions.size()) == model.n_dof();
+                     static_cast<int>(previous->final_regions.size()) == model.n_dof() &&
+                     valid_regions(c, previous->final_regions);
   if (carry) {
     run.x = previous->final_state;
     run.regions = previous->final_regions;
@@ -175,6 +188,39 @@ nlohmann::json request_json(const SweepRequest& r) {
   return id;
 }
 
+SweepRequest request_from_json(const nlohmann::json& j, const SourceLocation& where) {
+  try {
+    SweepRequest r = request_from_json(j);
+    const SweepOptions& o = r.options;
+    auto bad = [&](const std::string& key, const std::string& value, const std::string& allowed) {
+      return InputError(where, key, value, "is not a valid value of the sweep request", allowed);
+    };
+    if (o.axes.empty() || o.axes.size() > 2)
+      throw bad("axes", std::to_string(o.axes.size()) + " axes", "one or two axes");
+    if (!o.up && !o.down) throw bad("up", "false", "up or down (or both) true");
+    long points = (o.up ? 1 : 0) + (o.down ? 1 : 0);  // as the command counts them
+    for (const auto& ax : o.axes) {
+      if (ax.values.size() < 2 || ax.values.size() > static_cast<std::size_t>(kMaxAxisValues))
+        throw bad("axes", std::to_string(ax.values.size()) + " values of " + ax.key,
+                  fmt::format("2 to {} values per axis", kMaxAxisValues));
+      points *= static_cast<long>(ax.values.size());
+    }
+    if (points > kMaxSweepPoints)
+      throw bad("axes", fmt::format("{} points", points),
+                fmt::format("at most {} points over both directions and the whole grid", kMaxSweepPoints));
+    if (o.shard_count < 1 || o.shard_index < 1 || o.shard_index > o.shard_count)
+      throw bad("shard", fmt::format("{}/{}", o.shard_index, o.shard_count), "K/N with 1 <= K <= N");
+    if (o.cycle.samples < 2 || o.cycle.samples > 1 << 16)
+      throw bad("cycle_samples", std::to_string(o.cycle.samples), "2 to 65536");
+    if (o.cycle.harmonics < 1 || 2 * o.cycle.harmonics > o.cycle.samples)
+      throw bad("harmonics", std::to_string(o.cycle.harmonics), "1 to cycle_samples / 2");
+    return r;
+  } catch (const nlohmann::json::exception& e) {
+    throw InputError(where, "", "", std::string("the sweep request cannot be read: ") + e.what(),
+                     "the request aerosect sweep wrote");
+  }
+}
+
 SweepRequest request_from_json(const nlohmann::json& j) {
   SweepRequest r;
   r.case_text = j.at("case_text");
@@ -192,6 +238,7 @@ SweepRequest request_from_json(const nlohmann::json& j) {
   return r;
 }
 
+// The --json summary form of a point (keys in README.md, "JSON output").
 nlohmann::json point_json(const SweepPoint& p) {
   nlohmann::json j;
   j["direction"] = p.direction;
@@ -233,70 +280,28 @@ nlohmann::json point_json(const SweepPoint& p) {
   return j;
 }
 
-SweepPoint point_from_json(const nlohmann::json& j) {
-  SweepPoint p;
-  p.direction = j.at("direction");
-  p.i = j.at("i");
-  p.j = j.at("j");
-  p.value1 = j.at("value1");
-  p.value2 = j.at("value2");
-  p.ok = j.at("ok");
-  p.error = j.at("error");
-  p.lco.response = static_cast<ResponseClass>(j.at("class_code").get<int>());
-  p.lco.watched_dof = j.at("watched_dof");
-  p.lco.cycles = j.at("cycles");
-  p.lco.frequency = j.at("frequency_hz");
-  p.lco.spread = j.at("spread");
-  p.lco.stopped_early = j.at("stopped_early");
-  for (int k = 0; k < 3; ++k) {
-    const auto& d = j.at("dof").at(static_cast<std::size_t>(k));
-    p.lco.dof[k] = {d.at(0), d.at(1), d.at(2)};
-  }
-  if (j.contains("cycle") && !j.at("cycle").is_null()) {
-    const auto& cj = j.at("cycle");
-    p.cycle.samples = cj.at("samples");
-    p.cycle.period = cj.at("period_s");
-    for (int k = 0; k < 3; ++k) {
-      const auto& d = cj.at("dof").at(static_cast<std::size_t>(k));
-      DofHarmonics& h = p.cycle.dof[k];
-      h.mean = d.at("mean");
-      h.rms = d.at("rms");
-      h.rms_about_mean = d.at("rms_about_mean");
-      h.harmonics = d.at("harmonics").get<std::vector<double>>();
-      h.thd = d.at("thd");
-    }
-    if (cj.contains("trace"))
-      for (int k = 0; k < 3; ++k)
-        p.cycle.trace[k] = cj.at("trace").at(static_cast<std::size_t>(k)).get<std::vector<double>>();
-  }
-  p.end_time = j.at("end_time");
-  p.steps = j.at("steps");
-  p.switches = j.at("switches");
-  p.final_state = j.at("final_state").get<std::vector<double>>();
-  p.final_regions = j.at("final_regions").get<std::vector<int>>();
-  return p;
-}
-
 JournalHead sweep_journal_head(const SweepRequest& r) {
   JournalHead h;
   h.kind = "sweep";
-  h.format = 2;
-  h.readable = {1};  // format 1 had the request as the head line; the point records are the same
+  // 3: point records generated from the layout (point_record). Older formats
+  // are refused with journal.cpp's message: 1 had the request as the head
+  // line, 1 and 2 the point records in the --json form.
+  h.format = 3;
   h.identity = request_json(r);
   return h;
 }
 
-std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepRequest& r) {
-  (void)r;
+std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepRequest& r,
+                                            const SweepTables& t) {
   std::vector<SweepPoint> done;
+  std::set<Key> seen;
   for (const auto& rec : journal.records()) {
-    try {
-      done.push_back(point_from_json(rec.value));
-    } catch (const nlohmann::json::exception& e) {
+    SweepPoint p = point_from_record(rec.value, r, t, {journal.path(), rec.line, 0});
+    if (!seen.insert({p.direction, p.j, p.i}).second)
       throw InputError({journal.path(), rec.line, 0}, "", "",
-                       std::string("is not a sweep point record: ") + e.what(),
-                       "the lines aerosect sweep wrote (remove the journal to start the sweep again)");
-    }
+                       fmt::format("holds the point (direction {}, i {}, j {}) a second time", p.direction, p.i, p.j),
+                       "each point once (remove the journal to start the sweep again)");
+    done.push_back(std::move(p));
   }
   return done;
 }
@@ -341,6 +346,7 @@ SweepSummary summarize(const std::vector<SweepPoint>& points, int jj) {
     }
   return s;
 }
+
 
 nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
                           const std::string& output) {
@@ -411,15 +417,238 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   return t;
 }
 
-void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
-                      const std::vector<SweepPoint>& points, const std::atomic<bool>* cancel) {
-  Hdf5Document doc(path);
+
+// ---------------------------------------------------------------------------
+// The layout of a sweep point: every field once. The HDF5 tables, the journal
+// records and the merge of shard files are generated from it.
+
+namespace {
+
+Field<SweepPoint> scalar(std::string name, std::string units, std::string long_name,
+                         std::function<double(const SweepPoint&)> get, std::function<void(SweepPoint&, double)> set,
+                         std::string allowed = {}, std::function<bool(double)> valid = {}) {
+  Field<SweepPoint> f;
+  f.name = std::move(name);
+  f.units = std::move(units);
+  f.long_name = std::move(long_name);
+  f.get = [get](const SweepPoint& p, std::size_t) { return get(p); };
+  f.set = [set](SweepPoint& p, std::size_t, double v) { set(p, v); };
+  f.allowed = std::move(allowed);
+  f.valid = std::move(valid);
+  return f;
+}
+
+// A double member `m` of the part `of(point)` of a sweep point.
+template <class Of, class S>
+Field<SweepPoint> member(std::string name, std::string units, std::string long_name, Of of, double S::*m) {
+  return scalar(
+      std::move(name), std::move(units), std::move(long_name), [of, m](const SweepPoint& p) { return of(p).*m; },
+      [of, m](SweepPoint& p, double v) { of(p).*m = v; });
+}
+
+// A list of `width` values along `axis`: the vector `of(point)`.
+template <class Of>
+Field<SweepPoint> list(std::string name, std::string units, std::string long_name, std::string axis,
+                       std::size_t width, Of of) {
+  Field<SweepPoint> f;
+  f.name = std::move(name);
+  f.units = std::move(units);
+  f.long_name = std::move(long_name);
+  f.width = width;
+  f.axis = std::move(axis);
+  f.get = [of](const SweepPoint& p, std::size_t q) { return of(p).at(q); };
+  f.set = [of, width](SweepPoint& p, std::size_t q, double v) {
+    std::vector<double>& a = of(p);
+    if (a.size() != width) a.assign(width, 0.0);
+    a.at(q) = v;
+  };
+  return f;
+}
+
+bool is_count(double v) { return v >= 0 && v <= 9.0e15 && v == std::floor(v); }
+
+}  // namespace
+
+SweepTables sweep_tables(const SweepRequest& r, int ndof) {
+  AEROSECT_CHECK(ndof >= 2 && ndof <= 3);
+  SweepTables t;
+  const SweepOptions& o = r.options;
+  t.ndof = ndof;
+  t.n1 = o.axes.empty() ? 0 : o.axes[0].values.size();
+  t.n2 = o.axes.size() > 1 ? o.axes[1].values.size() : 1;
+  t.harmonics = static_cast<std::size_t>(o.cycle.harmonics);
+  t.samples = static_cast<std::size_t>(o.cycle.samples);
+  t.traces = o.traces;
+  auto& P = t.point;
+  P.push_back(scalar(
+      "response_class", "1", "0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed (NaN: not run)",
+      [](const SweepPoint& p) { return p.ok ? static_cast<double>(p.lco.response) : 4.0; },
+      [](SweepPoint& p, double v) {
+        p.ok = v != 4.0;
+        p.lco.response = p.ok ? static_cast<ResponseClass>(static_cast<int>(v)) : ResponseClass::kNonPeriodic;
+      },
+      "0, 1, 2, 3 or 4", [](double v) { return v == 0 || v == 1 || v == 2 || v == 3 || v == 4; }));
+  P.push_back(scalar("frequency", "Hz", "LCO frequency", [](const SweepPoint& p) { return p.lco.frequency; },
+                     [](SweepPoint& p, double v) { p.lco.frequency = v; }));
+  P.push_back(scalar(
+      "cycles", "1", "complete cycles of the watched DOF", [](const SweepPoint& p) { return static_cast<double>(p.lco.cycles); },
+      [](SweepPoint& p, double v) { p.lco.cycles = static_cast<int>(v); }, "a count 0..2^31-1",
+      [](double v) { return is_count(v) && v < 2147483648.0; }));
+  P.push_back(scalar("spread", "1", "relative spread of the cycle amplitude over the last cycles",
+                     [](const SweepPoint& p) { return p.lco.spread; }, [](SweepPoint& p, double v) { p.lco.spread = v; }));
+  P.push_back(scalar("end_time", "s", "time the run ended", [](const SweepPoint& p) { return p.end_time; },
+                     [](SweepPoint& p, double v) { p.end_time = v; }));
+  P.push_back(scalar(
+      "switches", "1", "spring switching points crossed", [](const SweepPoint& p) { return static_cast<double>(p.switches); },
+      [](SweepPoint& p, double v) { p.switches = static_cast<std::int64_t>(v); }, "a count", is_count));
+  for (int k = 0; k < ndof; ++k) {
+    const std::string u = kDofUnits[k], n = kDofNames[k];
+    const auto peaks = [k](auto& p) -> auto& { return p.lco.dof[k]; };
+    P.push_back(member(n + "_amplitude", u, n + " half peak-to-peak amplitude over the last cycles", peaks,
+                       &DofCycle::amplitude));
+    P.push_back(member(n + "_max", u, n + " largest value", peaks, &DofCycle::max));
+    P.push_back(member(n + "_min", u, n + " smallest value", peaks, &DofCycle::min));
+  }
+  // Content of the settled cycle (periodic points; NaN elsewhere).
+  auto& C = t.cycle;
+  auto has_cycle = [](const SweepPoint& p) { return p.cycle.samples > 0; };
+  for (int k = 0; k < ndof; ++k) {
+    const std::string u = kDofUnits[k], n = kDofNames[k];
+    const auto content = [k](auto& p) -> auto& { return p.cycle.dof[k]; };
+    C.push_back(member(n + "_mean", u, n + " mean over one settled LCO period", content, &DofHarmonics::mean));
+    C.push_back(member(n + "_rms", u, n + " RMS about zero over one settled LCO period", content, &DofHarmonics::rms));
+    C.push_back(member(n + "_rms_about_mean", u, n + " RMS about the mean over one settled LCO period", content,
+                       &DofHarmonics::rms_about_mean));
+    C.push_back(list(n + "_harmonics", u, n + " amplitude of harmonic k of the LCO (one-period DFT)", "harmonic",
+                     t.harmonics, [k](auto& p) -> auto& { return p.cycle.dof[k].harmonics; }));
+    C.push_back(member(n + "_thd", "1", n + " total harmonic distortion relative to the fundamental", content,
+                       &DofHarmonics::thd));
+    if (t.traces)
+      C.push_back(list(n + "_cycle", u, n + " over one settled LCO period from the phase origin", "cycle_phase",
+                       t.samples, [k](auto& p) -> auto& { return p.cycle.trace[k]; }));
+  }
+  for (auto& f : C) f.present = has_cycle;
+  return t;
+}
+
+const Field<SweepPoint>& SweepTables::field(std::string_view name) const {
+  for (const auto* layout : {&point, &cycle})
+    for (const auto& f : *layout)
+      if (f.name == name) return f;
+  throw InternalError(__FILE__, __LINE__, fmt::format("no field '{}' in the sweep point layout", name));
+}
+
+std::string SweepTables::cite(std::string_view name, const SweepPoint& p) const {
+  std::string t = fmt::format("{}[direction {}, value_1 index {}", field(name).name, p.direction, p.i);
+  if (n2 > 1) t += fmt::format(", value_2 index {}", p.j);
+  return t + "]";
+}
+
+std::size_t SweepTables::cell(const SweepPoint& p) const {
+  return (static_cast<std::size_t>(p.direction) * n1 + static_cast<std::size_t>(p.i)) * n2 +
+         static_cast<std::size_t>(p.j);
+}
+
+nlohmann::json point_record(const SweepPoint& p, const SweepTables& t) {
+  nlohmann::json j;
+  j["direction"] = p.direction;
+  j["i"] = p.i;
+  j["j"] = p.j;
+  j["error"] = p.error;
+  j["watched_dof"] = p.lco.watched_dof;
+  j["stopped_early"] = p.lco.stopped_early;
+  j["steps"] = p.steps;
+  // A failed point's table class is 4; the detector's class before the
+  // failure is kept for the summaries (the --json `class`).
+  if (!p.ok) j["class_before_failure"] = static_cast<int>(p.lco.response);
+  layout_to_json(j, t.point, p);
+  layout_to_json(j, t.cycle, p);
+  if (p.cycle.samples > 0) j["cycle_period"] = json_number(p.cycle.period);
+  j["final_state"] = nlohmann::json::array();
+  for (double x : p.final_state) j["final_state"].push_back(json_number(x));
+  j["final_regions"] = p.final_regions;
+  return j;
+}
+
+SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, const SweepTables& t,
+                             const SourceLocation& where) {
+  const std::string written = "the lines aerosect sweep wrote (remove the journal to start the sweep again)";
+  auto fail = [&](const std::string& key, const nlohmann::json& value, const std::string& problem,
+                  const std::string& allowed) { return InputError(where, key, value.dump().substr(0, 60), problem, allowed); };
+  if (!j.is_object()) throw fail("", j, "is not a sweep point record", written);
+  auto field = [&](const char* key) -> const nlohmann::json& {
+    const auto it = j.find(key);
+    if (it == j.end()) throw fail(key, nullptr, "is missing", written);
+    return *it;
+  };
+  auto integer = [&](const char* key, std::int64_t lo, std::int64_t hi) -> std::int64_t {
+    const nlohmann::json& v = field(key);
+    if (!v.is_number_integer() || (v.is_number_unsigned() && v.get<std::uint64_t>() > static_cast<std::uint64_t>(hi)) ||
+        v.get<std::int64_t>() < lo || v.get<std::int64_t>() > hi)
+      throw fail(key, v, "is out of range", fmt::format("an integer from {} to {}", lo, hi));
+    return v.get<std::int64_t>();
+  };
+  SweepPoint p;
+  p.direction = static_cast<int>(integer("direction", 0, 1));
+  p.i = static_cast<int>(integer("i", 0, static_cast<std::int64_t>(t.n1) - 1));
+  p.j = static_cast<int>(integer("j", 0, static_cast<std::int64_t>(t.n2) - 1));
+  if ((p.direction == 0 && !r.options.up) || (p.direction == 1 && !r.options.down))
+    throw fail("direction", p.direction, "is a direction this sweep does not run", r.options.up ? "0 (up)" : "1 (down)");
+  p.value1 = r.options.axes[0].values[static_cast<std::size_t>(p.i)];
+  p.value2 = r.options.axes.size() > 1 ? r.options.axes[1].values[static_cast<std::size_t>(p.j)] : 0.0;
+  p.lco.watched_dof = static_cast<int>(integer("watched_dof", 0, t.ndof - 1));
+  p.steps = integer("steps", 0, std::numeric_limits<std::int64_t>::max());
+  if (const nlohmann::json& e = field("error"); e.is_string())
+    p.error = e.get<std::string>();
+  else
+    throw fail("error", e, "is not text", "a JSON string (empty when the point ran)");
+  if (const nlohmann::json& e = field("stopped_early"); e.is_boolean())
+    p.lco.stopped_early = e.get<bool>();
+  else
+    throw fail("stopped_early", e, "is not true or false", "true or false");
+  layout_from_json(j, t.point, p, where, written);
+  if (!p.ok && j.contains("class_before_failure"))
+    p.lco.response = static_cast<ResponseClass>(integer("class_before_failure", 0, 3));
+  // A settled cycle is recorded for periodic points only: its fields are all
+  // there or none is.
+  if (!t.cycle.empty() && j.contains(t.cycle.front().name)) {
+    layout_from_json(j, t.cycle, p, where, written);
+    p.cycle.samples = static_cast<int>(t.samples);
+    const nlohmann::json& cp = field("cycle_period");
+    const std::optional<double> period = number_from_json(cp);
+    if (!period || !(*period > 0)) throw fail("cycle_period", cp, "is not a period", "a positive number of seconds");
+    p.cycle.period = *period;
+  }
+  // The run's final state, for continuation to the next point: one value
+  // per state of the model and one spring region per DOF (run_point uses it
+  // only when the sizes and regions fit the model).
+  const nlohmann::json& xs = field("final_state");
+  if (!xs.is_array() || xs.size() > kMaxStateSize)
+    throw fail("final_state", xs, "is not the run's state vector", fmt::format("a list of at most {} numbers", kMaxStateSize));
+  for (const auto& x : xs) {
+    const std::optional<double> v = number_from_json(x);
+    if (!v) throw fail("final_state", x, "is not a number", "a list of numbers");
+    p.final_state.push_back(*v);
+  }
+  const nlohmann::json& rs = field("final_regions");
+  if (!rs.is_array() || rs.size() > static_cast<std::size_t>(t.ndof))
+    throw fail("final_regions", rs, "is not one spring region per DOF", fmt::format("a list of at most {} integers", t.ndof));
+  for (const auto& x : rs) {
+    if (!x.is_number_integer() || x.get<std::int64_t>() < 0 || x.get<std::int64_t>() > 1000000)
+      throw fail("final_regions", x, "is not a spring region", "an integer from 0 to the law's number of breakpoints");
+    p.final_regions.push_back(x.get<int>());
+  }
+  return p;
+}
+
+// Writes the map's tables, axes and attributes (the layout of sweep.hpp).
+void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& points,
+                        const FlutterReport* overlay) {
   RunMetadata meta = case_metadata(c, "sweep");
   meta.text_attributes.push_back({"continuation", r.options.continuation ? "continue" : "fresh"});
   doc.metadata(meta);
   const auto& o = r.options;
-  const std::size_t n1 = o.axes[0].values.size();
-  const std::size_t n2 = o.axes.size() > 1 ? o.axes[1].values.size() : 1;
+  const SweepTables t = sweep_tables(r, c.model.section.dof);
   const std::vector<std::int32_t> dirs = {0, 1};
   doc.integer_axis("direction", dirs, "sweep direction: 0 up (ascending), 1 down");
   doc.text_attribute("direction", "names", "up,down");
@@ -431,118 +660,58 @@ void write_sweep_file(const std::string& path, const Case& c, const SweepRequest
     doc.text_attribute("value_2", "key", o.axes[1].key);
     dims.push_back("value_2");
   }
-  const double nan = std::numeric_limits<double>::quiet_NaN();
-  const std::size_t N = 2 * n1 * n2;
-  auto at = [&](const SweepPoint& p) {
-    return (static_cast<std::size_t>(p.direction) * n1 + static_cast<std::size_t>(p.i)) * n2 +
-           static_cast<std::size_t>(p.j);
-  };
-  auto table = [&](const std::string& name, auto&& f, const std::string& units, const std::string& ln) {
-    std::vector<double> v(N, nan);
-    for (const auto& p : points) v[at(p)] = f(p);
-    doc.dataset(name, dims, v, units, ln);
-  };
-  table("response_class", [](const SweepPoint& p) { return p.ok ? static_cast<double>(p.lco.response) : 4.0; },
-        "1", "0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed (NaN: not run)");
-  table("frequency", [](const SweepPoint& p) { return p.lco.frequency; }, "Hz", "LCO frequency");
-  table("cycles", [](const SweepPoint& p) { return static_cast<double>(p.lco.cycles); }, "1",
-        "complete cycles of the watched DOF");
-  table("spread", [](const SweepPoint& p) { return p.lco.spread; }, "1",
-        "relative spread of the cycle amplitude over the last cycles");
-  table("end_time", [](const SweepPoint& p) { return p.end_time; }, "s", "time the run ended");
-  table("switches", [](const SweepPoint& p) { return static_cast<double>(p.switches); }, "1",
-        "spring switching points crossed");
-  for (int k = 0; k < c.model.section.dof; ++k) {
-    const std::string u = k == kPlunge ? "m" : "rad";
-    const std::string n = kDofNames[k];
-    table(n + "_amplitude", [k](const SweepPoint& p) { return p.lco.dof[k].amplitude; }, u,
-          n + " half peak-to-peak amplitude over the last cycles");
-    table(n + "_max", [k](const SweepPoint& p) { return p.lco.dof[k].max; }, u, n + " largest value");
-    table(n + "_min", [k](const SweepPoint& p) { return p.lco.dof[k].min; }, u, n + " smallest value");
-  }
-  // Content of the settled cycle (periodic points; NaN elsewhere).
-  const int nh = o.cycle.harmonics, ns = o.cycle.samples;
-  auto cycle_table = [&](const std::string& name, const std::string& axis, int width, auto&& f,
-                         const std::string& units, const std::string& ln) {
-    std::vector<double> v(N * static_cast<std::size_t>(width), nan);
-    for (const auto& p : points)
-      if (p.cycle.samples > 0)
-        for (int q = 0; q < width; ++q) v[at(p) * static_cast<std::size_t>(width) + q] = f(p, q);
-    std::vector<std::string> d = dims;
-    if (!axis.empty()) d.push_back(axis);
-    doc.dataset(name, d, v, units, ln);
-  };
-  std::vector<std::int32_t> harmonic(static_cast<std::size_t>(nh));
-  for (int q = 0; q < nh; ++q) harmonic[static_cast<std::size_t>(q)] = q + 1;
+  const std::size_t cells = 2 * t.n1 * t.n2;
+  const auto cell = [&t](const SweepPoint& p) { return t.cell(p); };
+  write_layout<SweepPoint>(doc, t.point, dims, cells, points, cell);
+  std::vector<std::int32_t> harmonic(t.harmonics);
+  for (std::size_t q = 0; q < t.harmonics; ++q) harmonic[q] = static_cast<std::int32_t>(q + 1);
   doc.integer_axis("harmonic", harmonic, "harmonic number k of the LCO frequency");
   if (o.traces) {
-    std::vector<double> phase(static_cast<std::size_t>(ns));
-    for (int q = 0; q < ns; ++q) phase[static_cast<std::size_t>(q)] = static_cast<double>(q) / ns;
+    std::vector<double> phase(t.samples);
+    for (std::size_t q = 0; q < t.samples; ++q) phase[q] = static_cast<double>(q) / static_cast<double>(t.samples);
     doc.axis("cycle_phase", phase, "1",
              "time since the phase origin (the watched DOF's largest sample) over the LCO period");
   }
-  for (int k = 0; k < c.model.section.dof; ++k) {
-    const std::string u = k == kPlunge ? "m" : "rad";
-    const std::string n = kDofNames[k];
-    cycle_table(n + "_mean", "", 1, [k](const SweepPoint& p, int) { return p.cycle.dof[k].mean; }, u,
-                n + " mean over one settled LCO period");
-    cycle_table(n + "_rms", "", 1, [k](const SweepPoint& p, int) { return p.cycle.dof[k].rms; }, u,
-                n + " RMS about zero over one settled LCO period");
-    cycle_table(n + "_rms_about_mean", "", 1,
-                [k](const SweepPoint& p, int) { return p.cycle.dof[k].rms_about_mean; }, u,
-                n + " RMS about the mean over one settled LCO period");
-    cycle_table(n + "_harmonics", "harmonic", nh,
-                [k](const SweepPoint& p, int q) { return p.cycle.dof[k].harmonics[static_cast<std::size_t>(q)]; },
-                u, n + " amplitude of harmonic k of the LCO (one-period DFT)");
-    cycle_table(n + "_thd", "", 1, [k](const SweepPoint& p, int) { return p.cycle.dof[k].thd; }, "1",
-                n + " total harmonic distortion relative to the fundamental");
-    if (o.traces)
-      cycle_table(n + "_cycle", "cycle_phase", ns,
-                  [k](const SweepPoint& p, int q) { return p.cycle.trace[k][static_cast<std::size_t>(q)]; }, u,
-                  n + " over one settled LCO period from the phase origin");
-  }
-  doc.integer_attribute("", "cycle_samples", ns);
-  if (!points.empty())
-    doc.text_attribute("", "watched_dof", kDofNames[points.front().lco.watched_dof]);
+  write_layout<SweepPoint>(doc, t.cycle, dims, cells, points, cell);
+  doc.integer_attribute("", "cycle_samples", o.cycle.samples);
+  if (!points.empty()) doc.text_attribute("", "watched_dof", kDofNames[points.front().lco.watched_dof]);
   // Linear flutter speeds and the describing-function LCO curve, in the
-  // units of the swept key, for the bifurcation plot's overlay (when the
-  // first key is the airspeed or the reduced speed).
-  const std::string& key = o.axes[0].key;
-  if (key == "flow.airspeed" || key == "nondimensional.reduced_speed") {
-    const double per = key == "flow.airspeed" ? 1.0 : 1.0 / (c.model.section.semichord *
-                                                            uncoupled_frequencies(c.model.section).pitch);
-    FlutterOptions fo;
-    fo.pk = false;
-    fo.cancel = cancel;
-    const FlutterReport fr = flutter_analysis(c, fo);
+  // units of the swept key, for the bifurcation plot's overlay.
+  if (overlay) {
+    const std::string& key = o.axes[0].key;
+    const double per = sweep_value_per_speed(c, key);
+    const FlutterReport& fr = *overlay;
     const char* names[4] = {"linear_flutter_value", "gap_closed_flutter_value", "gap_open_flutter_value",
                             "describing_function_flutter_value"};
     for (const auto& lr : fr.results) {
       const Crossing& x = lr.methods.front().flutter;
       if (x.found) doc.number_attribute("", names[static_cast<int>(lr.linearisation)], x.speed * per);
     }
-    if (fr.lco.available) {
-      std::vector<double> v, a, st, br;
-      for (const auto& pt : fr.lco.points) {
-        br.push_back(pt.branch);
-        v.push_back(pt.speed * per);
-        a.push_back(pt.amplitude);
-        st.push_back(pt.stable ? 1.0 : 0.0);
-      }
-      std::vector<double> idx(v.size());
-      for (std::size_t q = 0; q < idx.size(); ++q) idx[q] = static_cast<double>(q);
-      doc.axis("lco_prediction_point", idx, "1", "point of the describing-function curve");
-      const std::vector<std::string> pd = {"lco_prediction_point"};
-      doc.dataset("lco_prediction/value", pd, v, "1", "swept value (" + key + ") of the predicted LCO");
-      doc.dataset("lco_prediction/amplitude", pd, a, fr.lco.spring == kPlunge ? "m" : "rad",
-                  std::string("predicted LCO amplitude of the ") + kDofNames[fr.lco.spring]);
-      doc.dataset("lco_prediction/stable", pd, st, "1", "1 stable branch, 0 unstable");
-      doc.dataset("lco_prediction/branch", pd, br, "1",
-                  "neutral speed of the equivalent linear system counted from below (0 lowest)");
-    }
+    if (fr.lco.available) write_lco_prediction(doc, fr.lco, per, key);
   }
   // Everything needed to merge shards into the file an unsharded run writes.
   doc.text_attribute("", "sweep_request", request_json(r).dump());
+}
+
+double sweep_value_per_speed(const Case& c, const std::string& key) {
+  if (key == "flow.airspeed") return 1.0;
+  if (key == "nondimensional.reduced_speed")
+    return 1.0 / (c.model.section.semichord * uncoupled_frequencies(c.model.section).pitch);
+  return 0.0;
+}
+
+std::optional<FlutterReport> sweep_overlay(const Case& c, const SweepRequest& r, const std::atomic<bool>* cancel) {
+  if (sweep_value_per_speed(c, r.options.axes[0].key) == 0.0) return std::nullopt;
+  FlutterOptions fo;
+  fo.pk = false;
+  fo.cancel = cancel;
+  return flutter_analysis(c, fo);
+}
+
+void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
+                      const std::vector<SweepPoint>& points, const FlutterReport* overlay) {
+  Hdf5Document doc(path);
+  write_sweep_tables(doc, c, r, points, overlay);
   doc.commit();
 }
 
@@ -558,6 +727,67 @@ std::string merge_text(const std::vector<std::string>& inputs, const std::string
   return fmt::format("merged {} shard files into {}\n", inputs.size(), output);
 }
 
+namespace {
+
+// The points a shard file holds: every cell whose response_class is not NaN,
+// each table read through the layout and checked against the request.
+void read_shard_points(const std::string& path, const SweepRequest& r, const SweepTables& t,
+                       std::map<Key, SweepPoint>& merged) {
+  const std::size_t cells = 2 * t.n1 * t.n2;
+  const std::string watched = read_text_attribute(path, "watched_dof");
+  int w = -1;
+  for (int k = 0; k < t.ndof; ++k)
+    if (watched == kDofNames[k]) w = k;
+  if (w < 0)
+    throw InputError({path, 0, 0}, "watched_dof", watched.substr(0, 60), "is not a DOF of the sweep's case",
+                     t.ndof == 3 ? "plunge, pitch or flap" : "plunge or pitch");
+  auto read = [&](const Field<SweepPoint>& f) { return read_double_dataset(path, f.name, cells * f.width); };
+  const std::vector<double> cls = read(t.point.front());
+  std::vector<SweepPoint*> at(cells, nullptr);
+  std::vector<SweepPoint> points;
+  points.reserve(cells);
+  for (int dir = 0; dir < 2; ++dir)
+    for (std::size_t i = 0; i < t.n1; ++i)
+      for (std::size_t j = 0; j < t.n2; ++j) {
+        SweepPoint p;
+        p.direction = dir;
+        p.i = static_cast<int>(i);
+        p.j = static_cast<int>(j);
+        if (std::isnan(cls[t.cell(p)])) continue;
+        p.value1 = r.options.axes[0].values[i];
+        p.value2 = t.n2 > 1 ? r.options.axes[1].values[j] : 0.0;
+        p.lco.watched_dof = w;
+        points.push_back(p);
+      }
+  for (auto& p : points) at[t.cell(p)] = &p;
+  auto fill = [&](const Layout<SweepPoint>& layout, bool cycle) {
+    std::vector<double> first;
+    for (const auto& f : layout) {
+      const std::vector<double> v = read(f);
+      if (cycle && first.empty()) first = v;
+      for (std::size_t c = 0; c < cells; ++c) {
+        SweepPoint* p = at[c];
+        if (!p || (cycle && std::isnan(first[c]))) continue;
+        for (std::size_t q = 0; q < f.width; ++q) {
+          const double x = v[c * f.width + q];
+          if (f.valid && !f.valid(x))
+            throw InputError({path, 0, 0}, f.name, fmt::format("{}", x), "is out of range in this shard", f.allowed);
+          f.set(*p, q, x);
+        }
+        if (cycle) {
+          p->cycle.samples = static_cast<int>(t.samples);
+          p->cycle.period = 1.0 / p->lco.frequency;
+        }
+      }
+    }
+  };
+  fill(t.point, false);
+  fill(t.cycle, true);
+  for (auto& p : points) merged[{p.direction, p.j, p.i}] = std::move(p);
+}
+
+}  // namespace
+
 void merge_sweep_files(const std::vector<std::string>& inputs, const std::string& output,
                        const std::atomic<bool>* cancel) {
   std::optional<nlohmann::json> request;
@@ -567,9 +797,10 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
   for (const auto& path : inputs) {
     stop_if_cancelled(cancel);
     nlohmann::json req = nlohmann::json::parse(read_text_attribute(path, "sweep_request"), nullptr, false);
-    if (req.is_discarded())
+    if (req.is_discarded() || !req.is_object())
       throw InputError({path, 0, 0}, "", "", "is not an aerosect sweep file", "files written by aerosect sweep");
-    const int k = req.at("shard").at(0), n = req.at("shard").at(1);
+    const SweepRequest shard = request_from_json(req, {path, 0, 0});
+    const int k = shard.options.shard_index, n = shard.options.shard_count;
     req["shard"] = {1, 1};
     if (request && *request != req)
       throw InputError({path, 0, 0}, "", "", "is a shard of a different sweep than " + inputs.front(),
@@ -582,73 +813,8 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
     request = req;
     count = n;
     shards.push_back(k);
-    // Points of this shard: the entries its tables hold (NaN: not run here).
-    const SweepRequest r = request_from_json(req);
-    const std::size_t n1 = r.options.axes[0].values.size();
-    const std::size_t n2 = r.options.axes.size() > 1 ? r.options.axes[1].values.size() : 1;
-    auto table = [&](const std::string& name) { return read_double_dataset(path, name); };
-    const auto cls = table("response_class");
-    const auto freq = table("frequency"), cyc = table("cycles"), spr = table("spread");
-    const auto end = table("end_time"), sw = table("switches");
-    const std::string watched = read_text_attribute(path, "watched_dof");
-    const int w = dof_index(watched) >= 0 ? dof_index(watched) : kPitch;
-    const int ndof = static_cast<int>(parse_case(r.case_text, r.case_path, r.overrides).model.section.dof);
-    std::vector<std::vector<double>> amp(3), mx(3), mn(3);
-    for (int d = 0; d < ndof; ++d) {
-      amp[d] = table(std::string(kDofNames[d]) + "_amplitude");
-      mx[d] = table(std::string(kDofNames[d]) + "_max");
-      mn[d] = table(std::string(kDofNames[d]) + "_min");
-    }
-    const std::size_t nh = static_cast<std::size_t>(r.options.cycle.harmonics);
-    const std::size_t ns = static_cast<std::size_t>(r.options.cycle.samples);
-    std::vector<std::vector<double>> cmean(3), crms(3), crms0(3), cthd(3), charm(3), ctrace(3);
-    for (int d = 0; d < ndof; ++d) {
-      const std::string n = kDofNames[d];
-      cmean[d] = table(n + "_mean");
-      crms[d] = table(n + "_rms");
-      crms0[d] = table(n + "_rms_about_mean");
-      cthd[d] = table(n + "_thd");
-      charm[d] = table(n + "_harmonics");
-      if (r.options.traces) ctrace[d] = table(n + "_cycle");
-    }
-    for (int dir = 0; dir < 2; ++dir)
-      for (std::size_t i = 0; i < n1; ++i)
-        for (std::size_t j = 0; j < n2; ++j) {
-          const std::size_t at = (static_cast<std::size_t>(dir) * n1 + i) * n2 + j;
-          if (std::isnan(cls[at])) continue;
-          SweepPoint p;
-          p.direction = dir;
-          p.i = static_cast<int>(i);
-          p.j = static_cast<int>(j);
-          p.value1 = r.options.axes[0].values[i];
-          p.value2 = n2 > 1 ? r.options.axes[1].values[j] : 0.0;
-          p.ok = cls[at] != 4.0;
-          p.lco.response = p.ok ? static_cast<ResponseClass>(static_cast<int>(cls[at])) : ResponseClass::kNonPeriodic;
-          p.lco.watched_dof = w;
-          p.lco.frequency = freq[at];
-          p.lco.cycles = static_cast<int>(cyc[at]);
-          p.lco.spread = spr[at];
-          p.end_time = end[at];
-          p.switches = static_cast<std::int64_t>(sw[at]);
-          for (int d = 0; d < ndof; ++d) p.lco.dof[d] = {amp[d][at], mx[d][at], mn[d][at]};
-          if (!std::isnan(cmean[0][at])) {
-            p.cycle.samples = static_cast<int>(ns);
-            p.cycle.period = 1.0 / p.lco.frequency;
-            for (int d = 0; d < ndof; ++d) {
-              DofHarmonics& h = p.cycle.dof[d];
-              h.mean = cmean[d][at];
-              h.rms = crms[d][at];
-              h.rms_about_mean = crms0[d][at];
-              h.thd = cthd[d][at];
-              h.harmonics.assign(charm[d].begin() + static_cast<long>(at * nh),
-                                 charm[d].begin() + static_cast<long>((at + 1) * nh));
-              if (r.options.traces)
-                p.cycle.trace[d].assign(ctrace[d].begin() + static_cast<long>(at * ns),
-                                        ctrace[d].begin() + static_cast<long>((at + 1) * ns));
-            }
-          }
-          merged[{dir, p.j, p.i}] = p;
-        }
+    const int ndof = parse_case(shard.case_text, shard.case_path, shard.overrides).model.section.dof;
+    read_shard_points(path, shard, sweep_tables(shard, ndof), merged);
   }
   if (!request || static_cast<int>(shards.size()) != count)
     throw InputError({inputs.empty() ? "" : inputs.front(), 0, 0}, "", "",
@@ -658,8 +824,9 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
   std::vector<SweepPoint> points;
   for (auto& [key, p] : merged) points.push_back(std::move(p));
   const Case c = parse_case(r.case_text, r.case_path, r.overrides);
+  const std::optional<FlutterReport> overlay = sweep_overlay(c, r, cancel);
   stop_if_cancelled(cancel);
-  write_sweep_file(output, c, r, points, cancel);
+  write_sweep_file(output, c, r, points, overlay ? &*overlay : nullptr);
 }
 
 }  // namespace aerosect

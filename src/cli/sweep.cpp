@@ -31,11 +31,6 @@ struct SweepCommandOptions : CaseOptions {
   bool traces = false;
 };
 
-// Most values per axis, and most points in one sweep (both directions, the
-// whole grid): each point is a run, and the map holds every point's rows.
-constexpr long kMaxAxisValues = 100000;
-constexpr long kMaxSweepPoints = 1000000;
-
 // "KEY=FROM:TO:N" for --vary.
 SweepAxis parse_vary(const std::string& text) {
   const auto eq = text.find('=');
@@ -138,7 +133,8 @@ int run(const SweepCommandOptions& o) {
   claim_output(o.output + ".journal");
   Journal journal(o.output + ".journal", journal_head(req, c));
   for (const auto& n : journal.notes()) std::cerr << "aerosect: " << n << "\n";
-  const std::vector<SweepPoint> done = points_from_journal(journal, req);
+  const SweepTables tables = sweep_tables(req, c.model.section.dof);
+  const std::vector<SweepPoint> done = points_from_journal(journal, req, tables);
   if (!done.empty())
     std::cerr << "aerosect: resuming: " << done.size() << " finished points read from " << journal.path() << "\n";
 
@@ -150,7 +146,7 @@ int run(const SweepCommandOptions& o) {
     std::lock_guard<std::mutex> lock(mu);
     if (!journal_failure.empty()) return;
     try {
-      journal.append(point_json(p));
+      journal.append(point_record(p, tables));
     } catch (const OutputError& e) {
       journal_failure = e.what();
       request_stop();
@@ -165,10 +161,16 @@ int run(const SweepCommandOptions& o) {
                                                   "before it are kept there: make room and run the "
                                                   "same command again to continue",
                                                   journal_failure, finished));
-  if (interrupted_signal() != 0)
-    return report_interrupted(fmt::format("{} finished points kept in {} (run the same command again to continue)",
-                                          finished, journal.path()));
-  write_sweep_file(o.output, c, req, pts);
+  const std::string kept = fmt::format("{} finished points kept in {} (run the same command again to continue)",
+                                      finished, journal.path());
+  if (interrupted_signal() != 0) return report_interrupted(kept);
+  std::optional<FlutterReport> overlay;
+  try {
+    overlay = sweep_overlay(c, req, cancel_flag());
+  } catch (const Cancelled&) {
+    return report_interrupted(kept);
+  }
+  write_sweep_file(o.output, c, req, pts, overlay ? &*overlay : nullptr);
   journal.remove();
   if (o.json) {
     nlohmann::json j = sweep_json(c, req, pts, o.output);

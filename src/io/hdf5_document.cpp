@@ -419,7 +419,8 @@ std::string read_text_attribute(const std::string& path, const std::string& name
   }
 }
 
-std::vector<double> read_double_dataset(const std::string& path, const std::string& name) {
+std::vector<double> read_double_dataset(const std::string& path, const std::string& name,
+                                        std::size_t expected) {
   H5::Exception::dontPrint();
   try {
     const H5::H5File f(path, H5F_ACC_RDONLY);
@@ -428,6 +429,10 @@ std::vector<double> read_double_dataset(const std::string& path, const std::stri
                        "a file written by the aerosect command that makes it");
     const H5::DataSet d = f.openDataSet(name);
     const hssize_t n = d.getSpace().getSimpleExtentNpoints();
+    if (n < 0 || static_cast<std::size_t>(n) != expected)
+      throw InputError({path, 0, 0}, name, fmt::format("{} values", n),
+                       fmt::format("holds {} values where the file's request declares {}", n, expected),
+                       "the tables aerosect wrote for that request");
     std::vector<double> v(static_cast<std::size_t>(n));
     if (n > 0) d.read(v.data(), H5::PredType::NATIVE_DOUBLE);
     return v;

@@ -135,6 +135,25 @@ def check_main_and_wrapper(work):
     assert result.stdout.split() == in_process, (result.stdout, in_process)
 
 
+def check_initial_state_note(work):
+    """The gust-sweep figure's note that the peaks hold the release transient
+    comes from the file's initial_state attribute, also when the initial
+    state was set on the command line (common practice, no source)."""
+    demo = os.path.join(SOURCE, "cases", "demo_aileron.toml")
+    at_rest, moved = os.path.join(work, "gust_rest.h5"), os.path.join(work, "gust_moved.h5")
+    run("gust", demo, "--gradients", "9.144:106.68:2", "--set", "initial.pitch_deg=0",
+        "--set", "initial.flap_deg=0", "-o", at_rest)
+    run("gust", demo, "--gradients", "9.144:106.68:2", "--set", "initial.flap_deg=0", "-o", moved)
+    with h5py.File(at_rest, "r") as f:
+        assert plot.text_attribute(f, "initial_state") == "rest", plot.text_attribute(f, "initial_state")
+        assert plot.initial_conditions_note(f) is None
+    with h5py.File(moved, "r") as f:
+        state = plot.text_attribute(f, "initial_state")
+        assert state == "pitch 0.0174533 rad", state  # the demo's 1 degree, in rad
+        note = plot.initial_conditions_note(f)
+        assert note is not None and "pitch 0.0174533 rad" in note, note
+
+
 def main():
     checks = Checks()
     with tempfile.TemporaryDirectory(prefix="aerosect-plot-module-") as work:
@@ -147,6 +166,7 @@ def main():
         checks.run("plot_file plots every figure of the file's kind", check_plot_file, work)
         checks.run("other files are refused", check_refusals, work)
         checks.run("main and the tools/plot wrapper agree", check_main_and_wrapper, work)
+        checks.run("the initial-state note comes from the file's attribute", check_initial_state_note, work)
     return checks.summary()
 
 

@@ -4,9 +4,12 @@
 #include <atomic>
 #include <cmath>
 #include <numbers>
+#include <limits>
 #include <mutex>
 
 #include "aerosect/analysis/sweep.hpp"
+#include "aerosect/error.hpp"
+#include "aerosect/io/journal.hpp"
 #include "helpers.hpp"
 
 using namespace aerosect;
@@ -55,8 +58,10 @@ TEST_CASE("A resumed sweep recomputes nothing it already has", "[sweep]") {
   const SweepRequest r = request(8, 1);
   const auto full = run_sweep(r, {}, {});
   std::vector<SweepPoint> done;
+  const SweepTables t = sweep_tables(r, 2);
   for (const auto& p : full)
-    if (p.i < 4 && p.direction == 0) done.push_back(point_from_json(point_json(p)));  // via the journal form
+    if (p.i < 4 && p.direction == 0)
+      done.push_back(point_from_record(point_record(p, t), r, t, {"journal", 1, 0}));  // via the journal form
   std::mutex mu;
   int computed = 0;
   const auto resumed = run_sweep(r, done, [&](const SweepPoint& p) {
@@ -173,4 +178,126 @@ TEST_CASE("A periodic point carries one sampled settled cycle", "[sweep]") {
                Catch::Matchers::WithinRel(h.rms * h.rms, 1e-12));
     if (d == p.lco.watched_dof) CHECK(t[0] == hi);  // phase origin at the watched DOF's largest sample
   }
+}
+
+TEST_CASE("A journal record that is not a point of the sweep is refused, naming the journal and line", "[sweep]") {
+  // Common practice, no source: every number, size and index read from a
+  // file is checked against what was written before use; a hostile or
+  // damaged record gives InputError, never a crash or a read past an end.
+  const SweepRequest r = request(4, 1);
+  const SweepTables t = sweep_tables(r, 2);
+  const auto pts = run_sweep(r, {}, {});
+  const SweepPoint* periodic = nullptr;
+  for (const auto& p : pts)
+    if (p.cycle.samples > 0) periodic = &p;
+  REQUIRE(periodic != nullptr);
+  const nlohmann::json good = point_record(*periodic, t);
+  const SourceLocation where{"map.h5.journal", 7, 0};
+  // Round trip first: the record reads back as the point.
+  const SweepPoint back = point_from_record(good, r, t, where);
+  CHECK(back.cycle.dof[kPitch].harmonics == periodic->cycle.dof[kPitch].harmonics);
+  CHECK(back.final_regions == periodic->final_regions);
+
+  auto refused = [&](const nlohmann::json& j, const std::string& key) {
+    try {
+      (void)point_from_record(j, r, t, where);
+    } catch (const InputError& e) {
+      CHECK(e.where().file == "map.h5.journal");
+      CHECK(e.where().line == 7);
+      CHECK(e.key() == key);
+      return true;
+    }
+    return false;
+  };
+  nlohmann::json j = good;
+  j["watched_dof"] = 7;  // out-of-range DOF index
+  CHECK(refused(j, "watched_dof"));
+  j = good;
+  j["pitch_harmonics"] = nlohmann::json::array();  // empty harmonics
+  CHECK(refused(j, "pitch_harmonics"));
+  j = good;
+  j["i"] = 4;  // past the axis
+  CHECK(refused(j, "i"));
+  j = good;
+  j["i"] = -1;
+  CHECK(refused(j, "i"));
+  j = good;
+  j["response_class"] = 99;  // no such class
+  CHECK(refused(j, "response_class"));
+  j = good;
+  j["pitch_cycle"] = nlohmann::json::array({1.0, 2.0});  // short trace
+  CHECK(refused(j, "pitch_cycle"));
+  j = good;
+  j.erase("frequency");
+  CHECK(refused(j, "frequency"));
+  j = good;
+  j["direction"] = "up";
+  CHECK(refused(j, "direction"));
+  CHECK(refused(nlohmann::json::object(), "direction"));  // a line "{}"
+  CHECK(refused(nlohmann::json::array({1, 2}), ""));
+}
+
+TEST_CASE("A sweep request read from a file is checked before use", "[sweep]") {
+  // Common practice, no source: a request declaring absurd sizes is refused
+  // before anything is allocated for it.
+  const SweepRequest r = request(4, 1);
+  nlohmann::json j = request_json(r);
+  const SourceLocation where{"part1.h5", 0, 0};
+  CHECK_NOTHROW(request_from_json(j, where));
+  nlohmann::json bad = j;
+  bad["shard"] = {3, 2};
+  CHECK_THROWS_AS(request_from_json(bad, where), InputError);
+  bad = j;
+  bad["harmonics"] = 0;
+  CHECK_THROWS_AS(request_from_json(bad, where), InputError);
+  bad = j;
+  bad["cycle_samples"] = 2000000000;
+  CHECK_THROWS_AS(request_from_json(bad, where), InputError);
+  bad = j;
+  bad["axes"] = "none";
+  CHECK_THROWS_AS(request_from_json(bad, where), InputError);
+}
+
+TEST_CASE("Every point of a sweep reads back from its journal record unchanged", "[sweep]") {
+  // Common practice, no source: the journal form of a point (generated from
+  // the layout) loses nothing the map or the --json summary shows, so a
+  // resumed sweep writes what an uninterrupted one writes. Non-finite
+  // numbers are written as text and read back exactly.
+  const SweepRequest r = request(6, 1);
+  const SweepTables t = sweep_tables(r, 2);
+  auto pts = run_sweep(r, {}, {});
+  REQUIRE(!pts.empty());
+  pts.front().lco.spread = std::numeric_limits<double>::infinity();
+  pts.front().lco.frequency = std::numeric_limits<double>::quiet_NaN();
+  int periodic = 0;
+  for (const auto& p : pts) {
+    const nlohmann::json line = nlohmann::json::parse(point_record(p, t).dump());  // through the text
+    const SweepPoint back = point_from_record(line, r, t, {"map.h5.journal", 2, 0});
+    CHECK(point_json(back).dump() == point_json(p).dump());
+    CHECK(back.value1 == p.value1);
+    CHECK(back.final_state == p.final_state);
+    CHECK(back.final_regions == p.final_regions);
+    CHECK(std::isinf(back.lco.spread) == std::isinf(p.lco.spread));
+    for (int d = 0; d < 2; ++d) CHECK(back.cycle.trace[d] == p.cycle.trace[d]);
+    periodic += p.cycle.samples > 0;
+  }
+  CHECK(periodic > 0);  // the settled-cycle fields were exercised
+}
+
+TEST_CASE("The sweep layout names each field once and gives its units", "[sweep]") {
+  // Common practice, no source (CF conventions: every variable has units and
+  // a long_name).
+  const SweepTables t = sweep_tables(request(4, 1), 3);
+  std::vector<std::string> names;
+  for (const auto* layout : {&t.point, &t.cycle})
+    for (const auto& f : *layout) {
+      CHECK(!f.units.empty());
+      CHECK(!f.long_name.empty());
+      names.push_back(f.name);
+    }
+  std::sort(names.begin(), names.end());
+  CHECK(std::adjacent_find(names.begin(), names.end()) == names.end());
+  CHECK(t.field("flap_harmonics").width == 5);
+  CHECK(t.cite("pitch_amplitude", SweepPoint{}) == "pitch_amplitude[direction 0, value_1 index 0]");
+  CHECK_THROWS_AS(t.field("no_such_table"), InternalError);
 }

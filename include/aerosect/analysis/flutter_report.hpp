@@ -10,6 +10,7 @@
 
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/io/case.hpp"
+#include "aerosect/io/table_layout.hpp"
 
 namespace aerosect {
 
@@ -37,5 +38,16 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
 std::string flutter_text(const Case& c, const FlutterReport& r, const std::string& output);
 // Writes the sweep tables and crossings; throws OutputError.
 void write_flutter_file(const std::string& path, const Case& c, const FlutterReport& r);
+
+// The group of one method's tables in the flutter file, e.g.
+// "nominal/state_space", "gap_open/pk" (README.md, "Output files").
+std::string flutter_group(Linearisation l, const std::string& method);
+
+// The describing-function LCO curve as the group /lco_prediction over the
+// axis lco_prediction_point (one writer for the flutter file and the sweep
+// map). With a `swept_key`, also lco_prediction/value: the airspeed in the
+// units of that key (value_per_speed per m/s TAS).
+void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double value_per_speed = 1.0,
+                          const std::string& swept_key = {});
 
 }  // namespace aerosect

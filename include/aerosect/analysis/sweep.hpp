@@ -27,13 +27,17 @@
 #include <functional>
 #include <optional>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include <nlohmann/json.hpp>
 
+#include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/lco.hpp"
+#include "aerosect/error.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/io/journal.hpp"
+#include "aerosect/io/table_layout.hpp"
 
 namespace aerosect {
 
@@ -86,22 +90,64 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
                                   const std::function<void(const SweepPoint&)>& on_point,
                                   const std::atomic<bool>* cancel = nullptr);
 
-// The request as JSON (the journal's first line, the file's sweep_request
-// attribute) and back.
+// Most values per axis, and most points in one sweep (both directions, the
+// whole grid): each point is a run, and the map holds every point's rows.
+// The command refuses larger sweeps; a request read from a file asking for
+// more is refused before anything is allocated for it.
+inline constexpr long kMaxAxisValues = 100000;
+inline constexpr long kMaxSweepPoints = 1000000;
+// Longest final state a journal record may hold (a model's state vector is
+// far shorter: 2 or 3 DOFs with their aerodynamic lag states).
+inline constexpr std::size_t kMaxStateSize = 4096;
+
+// The request as JSON (the journal's identity, the file's sweep_request
+// attribute) and back. The second form checks every count and index of a
+// request read from a file and throws InputError at `where`.
 nlohmann::json request_json(const SweepRequest& r);
 SweepRequest request_from_json(const nlohmann::json& j);
+SweepRequest request_from_json(const nlohmann::json& j, const SourceLocation& where);
 
-// JSON record of a point (the journal line) and back.
+// The --json summary record of a point (keys in README.md, "JSON output").
 nlohmann::json point_json(const SweepPoint& p);
-SweepPoint point_from_json(const nlohmann::json& j);
+
+// The layout of a sweep's point records (table_layout.hpp): `point` holds the
+// fields of every point, `cycle` those of a settled cycle (periodic points;
+// NaN elsewhere). Each field once, with name, units and long_name: the HDF5
+// tables, the journal records and the merge are generated from it.
+struct SweepTables {
+  int ndof = 2;
+  std::size_t n1 = 0, n2 = 1;         // values of axis 1 and 2 (1 without a second axis)
+  std::size_t harmonics = 0, samples = 0;
+  bool traces = false;
+  Layout<SweepPoint> point, cycle;
+  // Index of a point's cell in the (direction, value_1, value_2) grid.
+  std::size_t cell(const SweepPoint& p) const;
+  // The field named `name` (InternalError when the layout has none): the
+  // study's provenance rows name the map's tables through it.
+  const Field<SweepPoint>& field(std::string_view name) const;
+  // "name[direction d, value_1 index i]" (", value_2 index j" with a second
+  // axis): where a point's value of that field is in the map.
+  std::string cite(std::string_view name, const SweepPoint& p) const;
+};
+SweepTables sweep_tables(const SweepRequest& r, int ndof);
+
+// A point as a journal record (the layout's fields by name, plus the run's
+// final state for continuation) and back. The reader checks every index,
+// count and list length against the request and the layout and throws
+// InputError at `where` (the journal and line) for a record that is not a
+// point of this sweep.
+nlohmann::json point_record(const SweepPoint& p, const SweepTables& t);
+SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, const SweepTables& t,
+                             const SourceLocation& where);
 
 // The journal of a sweep (io/journal.hpp): kind "sweep", this program's
 // journal format and the request as identity.
 JournalHead sweep_journal_head(const SweepRequest& r);
 // The finished points read back from a journal opened with that head.
 // Throws InputError naming the journal and the line of a record that is not
-// a point of this sweep.
-std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepRequest& r);
+// a point of this sweep (or holds a point twice).
+std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepRequest& r,
+                                            const SweepTables& t);
 // Points this request (this shard) computes.
 std::size_t sweep_point_count(const SweepRequest& r);
 
@@ -118,9 +164,22 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
                           const std::string& output);
 std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
                        const std::string& output);
-// Throws Cancelled (nothing written) when `cancel` is set meanwhile.
+// Swept value per m/s TAS of the first key (1 for flow.airspeed, 1/(b w_a)
+// for nondimensional.reduced_speed), 0 for any other key.
+double sweep_value_per_speed(const Case& c, const std::string& key);
+// The linear flutter analysis (state-space) of the map's overlay, when the
+// first key is the airspeed or the reduced speed; nullopt otherwise. Throws
+// Cancelled when `cancel` is set.
+std::optional<FlutterReport> sweep_overlay(const Case& c, const SweepRequest& r,
+                                           const std::atomic<bool>* cancel = nullptr);
+// The map (layout in README.md, "LCO sweeps") into a sink, and into an HDF5
+// file. `overlay` (from sweep_overlay, or nullptr) adds the flutter speeds
+// and the describing-function curve in the units of the swept key; the
+// writer runs no analysis.
+void write_sweep_tables(TableSink& sink, const Case& c, const SweepRequest& r,
+                        const std::vector<SweepPoint>& points, const FlutterReport* overlay);
 void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
-                      const std::vector<SweepPoint>& points, const std::atomic<bool>* cancel = nullptr);
+                      const std::vector<SweepPoint>& points, const FlutterReport* overlay);
 
 // Joins the files of the shards 1/N..N/N of one sweep into the file the
 // unsharded sweep writes (same request, every point once). Throws

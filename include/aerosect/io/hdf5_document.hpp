@@ -28,38 +28,39 @@
 #include <vector>
 
 #include "aerosect/integrate/sink.hpp"
+#include "aerosect/io/table_layout.hpp"
 
 namespace aerosect {
 
-class Hdf5Document {
+class Hdf5Document : public TableSink {
  public:
   explicit Hdf5Document(std::string path);
-  ~Hdf5Document();
+  ~Hdf5Document() override;
   Hdf5Document(const Hdf5Document&) = delete;
   Hdf5Document& operator=(const Hdf5Document&) = delete;
 
   // Root attributes (Conventions, title, aerosect_file_kind and the text
   // attributes) and the /parameters/<group>/<name> scalars.
-  void metadata(const RunMetadata& meta);
+  void metadata(const RunMetadata& meta) override;
 
   // A 1-D coordinate variable at the root that is a dimension scale.
   void axis(const std::string& name, std::span<const double> values, const std::string& units,
-            const std::string& long_name);
+            const std::string& long_name) override;
   void integer_axis(const std::string& name, std::span<const std::int32_t> values,
-                    const std::string& long_name);
+                    const std::string& long_name) override;
 
   // A double dataset at `path` ("group/sub/name"; groups created as needed)
   // over the named axes; data.size() must equal the product of their lengths.
   void dataset(const std::string& path, const std::vector<std::string>& dims,
                std::span<const double> data, const std::string& units,
-               const std::string& long_name);
+               const std::string& long_name) override;
 
   // Attributes on the root ("" or "/"), a group or a dataset (created as a
   // group when nothing is at that path yet).
   void text_attribute(const std::string& object, const std::string& name,
-                      const std::string& value);
-  void number_attribute(const std::string& object, const std::string& name, double value);
-  void integer_attribute(const std::string& object, const std::string& name, std::int64_t value);
+                      const std::string& value) override;
+  void number_attribute(const std::string& object, const std::string& name, double value) override;
+  void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) override;
 
   // Close and rename onto the target path. Throws OutputError.
   void commit();
@@ -77,7 +78,10 @@ class Hdf5Document {
 // files). Throws InputError naming the file when it or the attribute is
 // missing.
 std::string read_text_attribute(const std::string& path, const std::string& name);
-// A double dataset, flattened row-major; InputError when missing.
-std::vector<double> read_double_dataset(const std::string& path, const std::string& name);
+// A double dataset, flattened row-major; InputError when missing, or when it
+// holds other than `expected` values (checked before anything is read: a
+// file never decides how much is allocated).
+std::vector<double> read_double_dataset(const std::string& path, const std::string& name,
+                                        std::size_t expected);
 
 }  // namespace aerosect

@@ -14,7 +14,8 @@
 //            (a journal whose head has no "line_check", as written before
 //            the check existed, has bare records and is read as such).
 // Format history: 1 = the head line was the identity object itself (aerosect
-// up to 0.1.0); 2 = the head above. The records of a kind keep their layout
+// up to 0.1.0); 2 = the head above; 3 = the head above, the sweep's point
+// records generated from its layout table (io/table_layout.hpp). The records of a kind keep their layout
 // within a format; a reader lists the formats it can read, and a journal of
 // any other format, or of another kind or identity, is refused with an
 // InputError naming the file.

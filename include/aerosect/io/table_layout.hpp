@@ -1,0 +1,199 @@
+#pragma once
+// One layout table per result type: each field of a record once, with its
+// name, units, long_name and accessors, from which every writer and reader
+// of that record is generated (the HDF5 tables, the journal lines, the
+// merge of shard files, provenance strings). A writer writes through a
+// TableSink it is handed (Hdf5Document in files, MemoryTables in tests).
+//
+// Records sit on a grid of cells (e.g. direction x value_1 x value_2 of a
+// sweep): a field of width W is a dataset over the grid's dimensions plus,
+// when W > 1, one more dimension `axis` of length W (harmonics, samples of a
+// cycle); row-major, the last dimension fastest. Cells without a record, and
+// records for which the field is absent (`present` false), hold NaN.
+
+#include <cmath>
+#include <cstddef>
+#include <cstdint>
+#include <functional>
+#include <limits>
+#include <map>
+#include <optional>
+#include <span>
+#include <string>
+#include <vector>
+
+#include <fmt/format.h>
+#include <nlohmann/json.hpp>
+
+#include "aerosect/error.hpp"
+#include "aerosect/integrate/sink.hpp"
+
+namespace aerosect {
+
+// Where the tables of a result go. Hdf5Document is one; MemoryTables keeps
+// them for tests.
+class TableSink {
+ public:
+  virtual ~TableSink() = default;
+  virtual void metadata(const RunMetadata& meta) = 0;
+  virtual void axis(const std::string& name, std::span<const double> values, const std::string& units,
+                    const std::string& long_name) = 0;
+  virtual void integer_axis(const std::string& name, std::span<const std::int32_t> values,
+                            const std::string& long_name) = 0;
+  virtual void dataset(const std::string& path, const std::vector<std::string>& dims,
+                       std::span<const double> data, const std::string& units, const std::string& long_name) = 0;
+  virtual void text_attribute(const std::string& object, const std::string& name, const std::string& value) = 0;
+  virtual void number_attribute(const std::string& object, const std::string& name, double value) = 0;
+  virtual void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) = 0;
+};
+
+// Tables in memory (tests): datasets by path with their units and long_name.
+class MemoryTables : public TableSink {
+ public:
+  struct Table {
+    std::vector<std::string> dims;
+    std::vector<double> data;
+    std::string units, long_name;
+  };
+  std::map<std::string, Table> tables;
+  std::map<std::string, std::string> text;  // "object@name"
+  std::map<std::string, double> numbers;    // "object@name"
+
+  void metadata(const RunMetadata&) override {}
+  void axis(const std::string& name, std::span<const double> values, const std::string& units,
+            const std::string& long_name) override {
+    tables[name] = {{name}, {values.begin(), values.end()}, units, long_name};
+  }
+  void integer_axis(const std::string& name, std::span<const std::int32_t> values,
+                    const std::string& long_name) override {
+    tables[name] = {{name}, {values.begin(), values.end()}, "1", long_name};
+  }
+  void dataset(const std::string& path, const std::vector<std::string>& dims, std::span<const double> data,
+               const std::string& units, const std::string& long_name) override {
+    tables[path] = {dims, {data.begin(), data.end()}, units, long_name};
+  }
+  void text_attribute(const std::string& object, const std::string& name, const std::string& value) override {
+    text[object + "@" + name] = value;
+  }
+  void number_attribute(const std::string& object, const std::string& name, double value) override {
+    numbers[object + "@" + name] = value;
+  }
+  void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) override {
+    numbers[object + "@" + name] = static_cast<double>(value);
+  }
+};
+
+// One field of a record type T.
+template <class T>
+struct Field {
+  std::string name;       // dataset name, journal key
+  std::string units;      // UDUNITS ("1" for a pure number)
+  std::string long_name;
+  std::size_t width = 1;  // values per record
+  std::string axis;       // the extra dimension when width > 1
+  std::function<double(const T&, std::size_t)> get;     // value q of the record
+  std::function<void(T&, std::size_t, double)> set;     // inverse of get
+  std::function<bool(const T&)> present = {};           // empty: always present
+  // Values a reader accepts (empty: any number, NaN included) and the words
+  // for them in a refusal.
+  std::function<bool(double)> valid = {};
+  std::string allowed = {};
+};
+template <class T>
+using Layout = std::vector<Field<T>>;
+
+// A field is a list (width > 1, or an extra dimension) rather than one number.
+template <class T>
+bool is_list(const Field<T>& f) {
+  return f.width > 1 || !f.axis.empty();
+}
+
+// Writes every field of `layout` as a dataset over `dims` (the grid, `cells`
+// cells) from `records`, placed by `cell_of`.
+template <class T>
+void write_layout(TableSink& sink, const Layout<T>& layout, const std::vector<std::string>& dims,
+                  std::size_t cells, const std::vector<T>& records,
+                  const std::function<std::size_t(const T&)>& cell_of) {
+  for (const Field<T>& f : layout) {
+    std::vector<double> v(cells * f.width, std::numeric_limits<double>::quiet_NaN());
+    for (const T& r : records) {
+      if (f.present && !f.present(r)) continue;
+      const std::size_t at = cell_of(r) * f.width;
+      for (std::size_t q = 0; q < f.width; ++q) v[at + q] = f.get(r, q);
+    }
+    std::vector<std::string> d = dims;
+    if (is_list(f)) d.push_back(f.axis);
+    sink.dataset(f.name, d, v, f.units, f.long_name);
+  }
+}
+
+// One number in JSON: itself when finite, else the text "nan", "inf" or
+// "-inf" (JSON has no such numbers; the text reads back exactly).
+inline nlohmann::json json_number(double v) {
+  if (std::isfinite(v)) return v;
+  return std::isnan(v) ? "nan" : v > 0 ? "inf" : "-inf";
+}
+// The inverse of json_number (null also reads as NaN); nullopt for anything else.
+inline std::optional<double> number_from_json(const nlohmann::json& v) {
+  if (v.is_number()) return v.get<double>();
+  if (v.is_null() || v == "nan") return std::numeric_limits<double>::quiet_NaN();
+  if (v == "inf") return std::numeric_limits<double>::infinity();
+  if (v == "-inf") return -std::numeric_limits<double>::infinity();
+  return std::nullopt;
+}
+
+// The record's present fields into the JSON object `j` by name (the journal
+// form): a number, or a list of `width` numbers (json_number).
+template <class T>
+void layout_to_json(nlohmann::json& j, const Layout<T>& layout, const T& record) {
+  const auto number = json_number;
+  for (const Field<T>& f : layout) {
+    if (f.present && !f.present(record)) continue;
+    if (!is_list(f)) {
+      j[f.name] = number(f.get(record, 0));
+      continue;
+    }
+    nlohmann::json a = nlohmann::json::array();
+    for (std::size_t q = 0; q < f.width; ++q) a.push_back(number(f.get(record, q)));
+    j[f.name] = std::move(a);
+  }
+}
+
+// The layout's fields of `record` from the JSON object `j` (the inverse of
+// layout_to_json). Every field must be there, be a number (json_number), or
+// a list of exactly `width` of them, and pass its `valid`; anything else is
+// an InputError at `where` naming the field, the value (cut to 60
+// characters) and what is allowed. Nothing is allocated or indexed from a
+// count the JSON declares: the sizes come from the layout.
+template <class T>
+void layout_from_json(const nlohmann::json& j, const Layout<T>& layout, T& record, const SourceLocation& where,
+                      const std::string& allowed) {
+  auto cut = [](const nlohmann::json& v) { return v.dump().substr(0, 60); };
+  for (const Field<T>& f : layout) {
+    const auto it = j.find(f.name);
+    if (it == j.end()) throw InputError(where, f.name, "", "is missing", allowed);
+    const nlohmann::json& v = *it;
+    const bool list = is_list(f);
+    if (list && (!v.is_array() || v.size() != f.width))
+      throw InputError(where, f.name, cut(v), fmt::format("is not a list of {} numbers", f.width),
+                       fmt::format("{} numbers or nulls, one per {} (as the request asks)", f.width, f.axis));
+    for (std::size_t q = 0; q < f.width; ++q) {
+      const nlohmann::json& e = list ? v[q] : v;
+      const std::optional<double> n = number_from_json(e);
+      if (!n) throw InputError(where, f.name, cut(v), "is not a number", "a number, \"nan\", \"inf\" or \"-inf\"");
+      const double x = *n;
+      if (f.valid && !f.valid(x)) throw InputError(where, f.name, cut(v), "is out of range", f.allowed);
+      f.set(record, q, x);
+    }
+  }
+}
+
+// The dataset paths a layout writes, for "this file holds ..." checks.
+template <class T>
+std::vector<std::string> layout_names(const Layout<T>& layout) {
+  std::vector<std::string> n;
+  for (const auto& f : layout) n.push_back(f.name);
+  return n;
+}
+
+}  // namespace aerosect

@@ -68,7 +68,11 @@ HeadRead read_head(const std::string& path, const std::string& line, const Journ
   }
   const bool readable = h.format == want.format ||
                         std::find(want.readable.begin(), want.readable.end(), h.format) != want.readable.end();
-  if (!readable)
+  // A format-1 head is the identity itself: a line that is not this work's
+  // identity is another work's journal (or not a journal), refused as such
+  // below whatever its format.
+  const bool foreign = h.format == 1 && identity != want.identity;
+  if (!readable && !foreign)
     throw InputError({path, 1, 0}, "format", std::to_string(h.format),
                      "was written in a journal format this aerosect cannot read back",
                      fmt::format("format {} (finish the sweep with the aerosect that wrote the journal, or "

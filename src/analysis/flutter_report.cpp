@@ -29,7 +29,6 @@ std::string group_name(Linearisation l) {
     if (ch == '-') ch = '_';
   return s;
 }
-std::string method_group(const std::string& m) { return m == "p-k" ? "pk" : "state_space"; }
 
 const MethodResult* find_method(const LinearisationResult& lr, const std::string& name) {
   for (const auto& m : lr.methods)
@@ -390,7 +389,7 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
       doc.text_attribute(lg, "mode_names", lnames);
     }
     for (const auto& m : lr.methods) {
-      const std::string g = lg + "/" + method_group(m.method);
+      const std::string g = lg + "/" + flutter_method_group(m.method);
       const std::size_t ns = m.sweep.speeds.size();
       std::vector<double> f(ns * n), z(ns * n), re(ns * n), im(ns * n), kr(ns * n), lag(ns * n);
       for (std::size_t i = 0; i < ns; ++i) {
@@ -470,8 +469,10 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
   sink.text_attribute("lco_prediction", "spring", dof_name(lco.spring));
 }
 
+std::string flutter_method_group(const std::string& method) { return method == "p-k" ? "pk" : "state_space"; }
+
 std::string flutter_group(Linearisation l, const std::string& method) {
-  return group_name(l) + "/" + method_group(method);
+  return group_name(l) + "/" + flutter_method_group(method);
 }
 
 }  // namespace aerosect

@@ -207,7 +207,7 @@ void flutter_rows(Study& s, Linearisation l, const std::string& label, const std
     const MethodResult* m = method_of(s.flutter, l, method);
     if (!m) continue;
     const std::string g = "/" + flutter_group(l, method);
-    const std::string mid = std::string(method) == "p-k" ? "pk" : "state_space";
+    const std::string mid = flutter_method_group(method);
     if (m->flutter.found) {
       s.rows.add(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method), m->flutter.speed,
                  "m/s TAS", "flutter.h5: " + g + "@flutter_speed",
@@ -257,12 +257,13 @@ void flutter_stage(Study& s) {
                  fmt::format("Margin of the lowest instability ({}, {}) over 1.15 V_D", fm.critical_kind,
                              fm.critical_method),
                  100 * fm.margin, "%",
-                 fmt::format("flutter.h5: /nominal/{} (EAS = TAS sqrt(rho/{}))",
-                             fm.critical_method == "p-k" ? "pk" : "state_space", kSeaLevelDensity),
+                 fmt::format("flutter.h5: /{} (EAS = TAS sqrt(rho/{}))",
+                             flutter_group(Linearisation::kNominal, fm.critical_method), kSeaLevelDensity),
                  fm.cleared ? "cleared (linear model, nominal springs)" : "NOT cleared");
     else
       s.rows.text("margin", "Margin over 1.15 V_D", "no instability in the analysed range",
-                  "flutter.h5: /nominal/state_space", "cleared (linear model, nominal springs)");
+                  "flutter.h5: /" + flutter_group(Linearisation::kNominal, "state-space"),
+                  "cleared (linear model, nominal springs)");
   } else {
     s.rows.text("margin", "Margin over 1.15 V_D", "not assessed", "", "the case gives no envelope.dive_speed_eas");
   }

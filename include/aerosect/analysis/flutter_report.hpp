@@ -42,6 +42,8 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
 // The group of one method's tables in the flutter file, e.g.
 // "nominal/state_space", "gap_open/pk" (README.md, "Output files").
 std::string flutter_group(Linearisation l, const std::string& method);
+// The group of a method ("state-space" -> "state_space", "p-k" -> "pk").
+std::string flutter_method_group(const std::string& method);
 
 // The describing-function LCO curve as the group /lco_prediction over the
 // axis lco_prediction_point (one writer for the flutter file and the sweep

@@ -1,6 +1,7 @@
 #include "aerosect/analysis/gust_sweep.hpp"
 
 #include <cmath>
+#include <functional>
 
 #include <fmt/format.h>
 
@@ -150,35 +151,51 @@ std::string initial_state_text(const SimulationSettings& s) {
 
 }  // namespace
 
-void write_gust_sweep_file(const std::string& path, const Case& c, const GustSweep& s) {
-  Hdf5Document doc(path);
+Layout<GustSweepPoint> gust_sweep_layout(const GustSweepPoint& first) {
+  auto field = [](std::string name, std::string units, std::string long_name,
+                  std::function<double(const GustSweepPoint&)> get) {
+    Field<GustSweepPoint> f;
+    f.name = std::move(name);
+    f.units = std::move(units);
+    f.long_name = std::move(long_name);
+    f.get = [get](const GustSweepPoint& p, std::size_t) { return get(p); };
+    f.set = [](GustSweepPoint&, std::size_t, double) {};  // written only
+    return f;
+  };
+  Layout<GustSweepPoint> layout;
+  layout.push_back(field("design_velocity", "m s-1", "peak velocity of the first one-minus-cosine gust (true airspeed)",
+                         [](const GustSweepPoint& p) { return p.design_velocity; }));
+  const std::vector<Extreme>& channels = first.summary.extremes;
+  for (std::size_t k = 0; k < channels.size(); ++k) {
+    const std::string& ch = channels[k].channel;
+    layout.push_back(field("peaks/" + ch + "_max", channels[k].units, "largest " + ch,
+                           [k](const GustSweepPoint& p) { return p.summary.extremes.at(k).max; }));
+    layout.push_back(field("peaks/" + ch + "_min", channels[k].units, "smallest " + ch,
+                           [k](const GustSweepPoint& p) { return p.summary.extremes.at(k).min; }));
+  }
+  return layout;
+}
+
+void write_gust_sweep_tables(TableSink& doc, const Case& c, const GustSweep& s) {
   RunMetadata meta = case_metadata(c, "gust-sweep");
   meta.text_attributes.push_back({"initial_state", initial_state_text(c.simulation)});
   doc.metadata(meta);
-  std::vector<double> H, U;
-  for (const auto& p : s.points) {
-    H.push_back(p.gradient);
-    U.push_back(p.design_velocity);
-  }
+  std::vector<double> H;
+  for (const auto& p : s.points) H.push_back(p.gradient);
   doc.axis("gradient", H, "m", "gust gradient distance H (half the gust length)");
-  doc.dataset("design_velocity", {"gradient"}, U, "m s-1",
-              "peak velocity of the first one-minus-cosine gust (true airspeed)");
-  if (!s.points.empty()) {
-    for (std::size_t k = 0; k < s.points.front().summary.extremes.size(); ++k) {
-      const Extreme& e0 = s.points.front().summary.extremes[k];
-      std::vector<double> mx, mn;
-      for (const auto& p : s.points) {
-        mx.push_back(p.summary.extremes[k].max);
-        mn.push_back(p.summary.extremes[k].min);
-      }
-      doc.dataset("peaks/" + e0.channel + "_max", {"gradient"}, mx, e0.units, "largest " + e0.channel);
-      doc.dataset("peaks/" + e0.channel + "_min", {"gradient"}, mn, e0.units, "smallest " + e0.channel);
-    }
-  }
+  const GustSweepPoint* first = s.points.data();
+  write_layout<GustSweepPoint>(doc, gust_sweep_layout(s.points.empty() ? GustSweepPoint{} : s.points.front()),
+                               {"gradient"}, s.points.size(), s.points,
+                               [first](const GustSweepPoint& p) { return static_cast<std::size_t>(&p - first); });
   for (const auto& cr : s.critical) {
     doc.number_attribute("peaks", "critical_gradient_" + cr.channel, cr.gradient);
     doc.number_attribute("peaks", "critical_value_" + cr.channel, cr.value);
   }
+}
+
+void write_gust_sweep_file(const std::string& path, const Case& c, const GustSweep& s) {
+  Hdf5Document doc(path);
+  write_gust_sweep_tables(doc, c, s);
   doc.commit();
 }
 

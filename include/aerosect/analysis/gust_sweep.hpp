@@ -13,6 +13,7 @@
 
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/io/case.hpp"
+#include "aerosect/io/table_layout.hpp"
 
 namespace aerosect {
 
@@ -42,6 +43,13 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
 
 nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::string& output);
 std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string& output);
+// The layout of a gust-sweep point (io/table_layout.hpp), over the axis
+// `gradient`: design_velocity and, per channel of `first` (every point of a
+// sweep has the same channels), peaks/<channel>_max and peaks/<channel>_min.
+Layout<GustSweepPoint> gust_sweep_layout(const GustSweepPoint& first);
+// The file (layout in README.md, "Gust gradient sweeps") into a sink, and
+// into an HDF5 file.
+void write_gust_sweep_tables(TableSink& sink, const Case& c, const GustSweep& s);
 void write_gust_sweep_file(const std::string& path, const Case& c, const GustSweep& s);
 
 }  // namespace aerosect

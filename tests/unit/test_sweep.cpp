@@ -301,3 +301,29 @@ TEST_CASE("The sweep layout names each field once and gives its units", "[sweep]
   CHECK(t.cite("pitch_amplitude", SweepPoint{}) == "pitch_amplitude[direction 0, value_1 index 0]");
   CHECK_THROWS_AS(t.field("no_such_table"), InternalError);
 }
+
+TEST_CASE("The map's tables are the layout's fields, written through the sink handed over", "[sweep]") {
+  // Common practice, no source (CF conventions: units and long_name on every
+  // variable): every field of the layout is one table over (direction,
+  // value_1) with the layout's units, each point's value in its cell; with
+  // no flutter overlay handed over the writer adds none (it runs no
+  // analysis itself).
+  const SweepRequest r = request(4, 1);
+  const auto pts = run_sweep(r, {}, {});
+  const Case c = parse_case(r.case_text, r.case_path, r.overrides);
+  MemoryTables m;
+  write_sweep_tables(m, c, r, pts, nullptr);
+  const SweepTables t = sweep_tables(r, 2);
+  for (const auto* layout : {&t.point, &t.cycle})
+    for (const auto& f : *layout) {
+      REQUIRE(m.tables.count(f.name) == 1);
+      const auto& table = m.tables.at(f.name);
+      CHECK(table.units == f.units);
+      CHECK(table.long_name == f.long_name);
+      CHECK(table.data.size() == 2 * 4 * f.width);
+    }
+  for (const auto& p : pts)
+    CHECK(m.tables.at("pitch_amplitude").data[t.cell(p)] == p.lco.dof[kPitch].amplitude);
+  CHECK(m.tables.count("lco_prediction/value") == 0);
+  CHECK(m.numbers.count("@linear_flutter_value") == 0);
+}

@@ -554,6 +554,8 @@ nlohmann::json point_record(const SweepPoint& p, const SweepTables& t) {
   j["direction"] = p.direction;
   j["i"] = p.i;
   j["j"] = p.j;
+  j["value1"] = json_number(p.value1);  // the axis values at i and j, checked on reading
+  j["value2"] = json_number(p.value2);
   j["error"] = p.error;
   j["watched_dof"] = p.lco.watched_dof;
   j["stopped_early"] = p.lco.stopped_early;
@@ -596,6 +598,12 @@ SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, con
     throw fail("direction", p.direction, "is a direction this sweep does not run", r.options.up ? "0 (up)" : "1 (down)");
   p.value1 = r.options.axes[0].values[static_cast<std::size_t>(p.i)];
   p.value2 = r.options.axes.size() > 1 ? r.options.axes[1].values[static_cast<std::size_t>(p.j)] : 0.0;
+  for (const auto& [key, want] : {std::pair<const char*, double>{"value1", p.value1}, {"value2", p.value2}}) {
+    const nlohmann::json& v = field(key);
+    const std::optional<double> x = number_from_json(v);
+    if (!x || *x != want)
+      throw fail(key, v, "is not the request's axis value at this point's index", fmt::format("{:.17g}", want));
+  }
   p.lco.watched_dof = static_cast<int>(integer("watched_dof", 0, t.ndof - 1));
   p.steps = integer("steps", 0, std::numeric_limits<std::int64_t>::max());
   if (const nlohmann::json& e = field("error"); e.is_string())

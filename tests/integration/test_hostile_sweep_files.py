@@ -51,7 +51,8 @@ def refused(name, r, path, *words):
 def record_from_map(f, d, i):
     """A journal record (format 3) of the point (direction d, i) built from
     the map's own tables: the fields by their dataset names."""
-    rec = {"direction": d, "i": i, "j": 0, "error": "", "watched_dof": 1,
+    rec = {"direction": d, "i": i, "j": 0, "value1": float(f["value_1"][i]), "value2": 0.0,
+           "error": "", "watched_dof": 1,
            "stopped_early": False, "steps": 10}
     for name, obj in f.items():
         if not isinstance(obj, h5py.Dataset) or obj.ndim < 2 or name.startswith("lco_prediction"):
@@ -102,6 +103,7 @@ with tempfile.TemporaryDirectory() as tmp:
         "empty harmonics array": (dict(good, **dict(cycle, pitch_harmonics=[])), "pitch_harmonics"),
         "harmonics array too long": (dict(good, **dict(cycle, pitch_harmonics=[0.0] * (nh + 1))), "pitch_harmonics"),
         "index past the axis": (dict(good, i=n1), "i"),
+        "value not the axis value at its index": (dict(good, value1=good["value1"] + 1.0), "value1"),
         "huge index": (dict(good, i=2**62), "i"),
         "unknown class": (dict(good, response_class=99), "response_class"),
         "fractional class": (dict(good, response_class=1.5), "response_class"),

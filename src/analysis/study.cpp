@@ -95,7 +95,7 @@ bool has_one_minus_cosine(const Case& c) {
 
 bool has_turbulence(const Case& c) {
   for (const auto& p : c.model.gusts.profiles())
-    if (p.label.find("turbulence") != std::string::npos) return true;
+    if (p.turbulence) return true;
   return false;
 }
 

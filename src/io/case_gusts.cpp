@@ -206,6 +206,7 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
       p.record_velocity = rec;
       p.record_time.resize(n);
       for (std::size_t k = 0; k < n; ++k) p.record_time[k] = static_cast<double>(k) * dt;
+      p.turbulence = spec;
       p.label = fmt::format("{} turbulence sigma = {:.3g} m/s, L = {:.4g} m, seed {}", to_string(spec.model),
                             spec.intensity, spec.scale_length, spec.seed);
     } else if (recorded) {

@@ -318,4 +318,17 @@ TEST_CASE("Continuous turbulence in a case: seeded, reproducible, of the given i
   const double rms = std::sqrt(ss / static_cast<double>(w.size()));
   INFO("gust velocity RMS " << rms << " m/s for sigma 1.5");
   CHECK(rms == Approx(1.5).epsilon(0.15));
+  // The case keeps the specification as typed data, not only as a label.
+  const Case typed = make(7);
+  const GustProfile& p = typed.model.gusts.profiles().front();
+  REQUIRE(p.turbulence.has_value());
+  CHECK(p.turbulence->model == TurbulenceModel::kDryden);
+  CHECK(p.turbulence->intensity == 1.5);
+  CHECK(p.turbulence->scale_length == 24.0);
+  CHECK(p.turbulence->seed == 7u);
+  // A deterministic gust is not turbulence, whatever its label says.
+  const Case d = test::case_from(kFree + "[simulation]\nduration = 1.0\n"
+                                         "[[gust]]\nshape = \"sharp-edged\"\namplitude = 1.0\n"
+                                         "label = \"turbulence-like step\"\n");
+  CHECK_FALSE(d.model.gusts.profiles().front().turbulence.has_value());
 }

@@ -29,11 +29,13 @@
 // the stored segment's formulas (like the spring regions) while the
 // integrator steps exactly onto every switch time.
 
+#include <optional>
 #include <span>
 #include <string>
 #include <vector>
 
 #include "aerosect/model/aerodynamics.hpp"
+#include "aerosect/model/turbulence.hpp"
 
 namespace aerosect {
 
@@ -56,6 +58,9 @@ struct GustProfile {
   bool regulation_sized = false;        // 1-cos sized by cs25_design_gust_velocity
   double eas_to_tas = 1;                // sqrt(rho0 / rho), for re-sizing
   std::string label;      // for reports, e.g. "1-cos H = 30 m"
+  // Set for continuous turbulence: the specification the record (shape
+  // kRecorded, record_time/record_velocity) was generated from.
+  std::optional<TurbulenceSpec> turbulence;
 };
 
 class GustField {

@@ -7,11 +7,7 @@
 
 namespace aerosect {
 
-// Bytes from a file or the command line, safe to show on a terminal: control
-// characters (NUL, ESC of an escape sequence, BEL, ..., DEL and the C1
-// controls U+0080..U+009F) and bytes that are not UTF-8 are shown as \xNN;
-// printable UTF-8 text is kept as it is.
-std::string printable(const std::string& s, bool keep_newlines = false) {
+std::string printable(const std::string& s, bool keep_newlines) {
   std::string out;
   out.reserve(s.size());
   auto escape = [&out](unsigned char c) { out += fmt::format("\\x{:02X}", c); };

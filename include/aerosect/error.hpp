@@ -100,6 +100,13 @@ inline void stop_if_cancelled(const std::atomic<bool>* cancel) {
 // than the limit stays whole). For showing messages on a terminal.
 std::string wrapped(const std::string& text, std::size_t width = 100);
 
+// Bytes from a file or the command line, safe to show on a terminal: control
+// characters (NUL, ESC, BEL, ..., DEL, the C1 controls U+0080..U+009F) and
+// bytes that are not UTF-8 as \xNN; printable UTF-8 text kept as it is
+// (newlines too when `keep_newlines`). Every message quoting outside bytes
+// goes through it.
+std::string printable(const std::string& s, bool keep_newlines = false);
+
 #define AEROSECT_CHECK(cond)                                         \
   do {                                                               \
     if (!(cond)) throw ::aerosect::InternalError(__FILE__, __LINE__, #cond); \

@@ -23,13 +23,6 @@
 
 #include <CLI/CLI.hpp>
 
-namespace aerosect {
-// Bytes from the command line or a file, safe to show on a terminal (control
-// characters and bytes that are not UTF-8 as \xNN); error.cpp, where the
-// case reader's messages use it too.
-std::string printable(const std::string& s, bool keep_newlines = false);
-}  // namespace aerosect
-
 namespace aerosect::cli {
 
 struct Command {

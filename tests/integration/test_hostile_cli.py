@@ -9,6 +9,10 @@ The corpus is the table CORPUS below: (command, extra arguments, the name
 the message must hold). The case file's digest is compared after every run
 (a run must never write over its input). The closing line counts the inputs
 tried, crashes, hangs and damaged files per command.
+
+Source of the expectations: the program's own documented contract (README
+"Limits", "Exit status and interruption"); no outside value is checked here
+(common practice, no source).
 """
 import hashlib
 import os

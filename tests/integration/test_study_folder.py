@@ -14,6 +14,10 @@ an earlier one (study_folder.hpp):
 - a study over an interrupted one: the interrupted one's files are removed,
   nothing complete is lost.
 The closing line counts the interruptions tried and the mixed folders found.
+
+Source of the expectations: the program's own documented contract (README
+"Exit status and interruption"); no outside value is checked here
+(common practice, no source).
 """
 import glob
 import hashlib

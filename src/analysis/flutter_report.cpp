@@ -1,8 +1,10 @@
 #include "aerosect/analysis/flutter_report.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 #include <numbers>
+#include <stdexcept>
 
 #include <fmt/format.h>
 
@@ -350,6 +352,11 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
 
 void write_flutter_file(const std::string& path, const Case& c, const FlutterReport& r) {
   Hdf5Document doc(path);
+  write_flutter_tables(doc, c, r);
+  doc.commit();
+}
+
+void write_flutter_tables(TableSink& doc, const Case& c, const FlutterReport& r) {
   RunMetadata meta = case_metadata(c, "flutter");
   doc.metadata(meta);
   doc.number_attribute("", "reference_speed", r.reference_speed);
@@ -360,10 +367,7 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
     doc.number_attribute("", "clearance_speed_tas",
                          1.15 * true_airspeed(*r.dive_speed_eas, r.density));
   }
-  if (r.results.empty() || r.results.front().methods.empty()) {
-    doc.commit();
-    return;
-  }
+  if (r.results.empty() || r.results.front().methods.empty()) return;
   const std::vector<double>& speeds = r.results.front().methods.front().sweep.speeds;
   doc.axis("speed", speeds, "m s-1", "true airspeed");
   std::vector<double> reduced(speeds.size());
@@ -391,43 +395,22 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
     for (const auto& m : lr.methods) {
       const std::string g = lg + "/" + flutter_method_group(m.method);
       const std::size_t ns = m.sweep.speeds.size();
-      std::vector<double> f(ns * n), z(ns * n), re(ns * n), im(ns * n), kr(ns * n), lag(ns * n);
-      for (std::size_t i = 0; i < ns; ++i) {
-        for (int j = 0; j < n; ++j) {
-          const Root& root = m.sweep.roots[i][static_cast<std::size_t>(j)];
-          const std::size_t at = i * n + j;
-          f[at] = root.frequency / (2 * pi);
-          z[at] = root.damping_ratio;
-          re[at] = root.eigenvalue.real();
-          im[at] = root.eigenvalue.imag();
-          kr[at] = root.reduced_frequency;
-          lag[at] = root.aerodynamic_lag ? 1.0 : 0.0;
-        }
-      }
-      const std::vector<std::string> dims = {"speed", "mode"};
-      doc.dataset(g + "/frequency", dims, f, "Hz", "modal frequency |Im lambda| / 2 pi");
-      doc.dataset(g + "/damping_ratio", dims, z, "1",
-                  "modal damping ratio -Re lambda / |lambda| (negative: unstable)");
-      doc.dataset(g + "/eigenvalue_real", dims, re, "s-1", "real part of the eigenvalue");
-      doc.dataset(g + "/eigenvalue_imag", dims, im, "s-1", "imaginary part of the eigenvalue");
-      doc.dataset(g + "/reduced_frequency", dims, kr, "1", "reduced frequency omega b / U");
-      doc.dataset(g + "/aerodynamic_lag", dims, lag, "1",
-                  "1 where the tracked root is an aerodynamic lag root, not a structural one");
+      std::vector<Root> roots;  // row-major over (speed, mode)
+      roots.reserve(ns * static_cast<std::size_t>(n));
+      for (const auto& at_speed : m.sweep.roots) roots.insert(roots.end(), at_speed.begin(), at_speed.end());
+      const Root* first = roots.data();
+      write_layout<Root>(doc, flutter_root_layout(), {"speed", "mode"}, roots.size(), roots,
+                         [first](const Root& root) { return static_cast<std::size_t>(&root - first); }, g + "/");
       doc.text_attribute(g, "aerodynamics", aero_label(c, m.method));
-      const double nan = std::numeric_limits<double>::quiet_NaN();
-      doc.integer_attribute(g, "flutter_found", m.flutter.found ? 1 : 0);
-      doc.number_attribute(g, "flutter_speed", m.flutter.found ? m.flutter.speed : nan);
-      doc.number_attribute(g, "flutter_frequency",
-                           m.flutter.found ? m.flutter.frequency / (2 * pi) : nan);
-      doc.number_attribute(g, "flutter_reduced_frequency",
-                           m.flutter.found ? m.flutter.reduced_frequency : nan);
-      doc.integer_attribute(g, "flutter_mode", m.flutter.found ? m.flutter.mode + 1 : 0);
-      doc.integer_attribute(g, "divergence_found", m.divergence.found ? 1 : 0);
-      doc.number_attribute(g, "divergence_speed", m.divergence.found ? m.divergence.speed : nan);
+      for (const MethodAttribute& a : flutter_method_attributes()) {
+        if (a.integer)
+          doc.integer_attribute(g, a.name, static_cast<std::int64_t>(a.get(m)));
+        else
+          doc.number_attribute(g, a.name, a.get(m));
+      }
     }
   }
   if (r.lco.available) write_lco_prediction(doc, r.lco);
-  doc.commit();
 }
 
 void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double value_per_speed,
@@ -470,6 +453,67 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
 }
 
 std::string flutter_method_group(const std::string& method) { return method == "p-k" ? "pk" : "state_space"; }
+
+const Layout<Root>& flutter_root_layout() {
+  static const Layout<Root> layout = [] {
+    auto field = [](std::string name, std::string units, std::string long_name,
+                    std::function<double(const Root&)> get) {
+      Field<Root> f;
+      f.name = std::move(name);
+      f.units = std::move(units);
+      f.long_name = std::move(long_name);
+      f.get = [get](const Root& r, std::size_t) { return get(r); };
+      f.set = [](Root&, std::size_t, double) {};  // not read back (no journal of flutter results)
+      return f;
+    };
+    Layout<Root> l;
+    l.push_back(field("frequency", "Hz", "modal frequency |Im lambda| / 2 pi",
+                      [](const Root& r) { return r.frequency / (2 * pi); }));
+    l.push_back(field("damping_ratio", "1", "modal damping ratio -Re lambda / |lambda| (negative: unstable)",
+                      [](const Root& r) { return r.damping_ratio; }));
+    l.push_back(field("eigenvalue_real", "s-1", "real part of the eigenvalue",
+                      [](const Root& r) { return r.eigenvalue.real(); }));
+    l.push_back(field("eigenvalue_imag", "s-1", "imaginary part of the eigenvalue",
+                      [](const Root& r) { return r.eigenvalue.imag(); }));
+    l.push_back(field("reduced_frequency", "1", "reduced frequency omega b / U",
+                      [](const Root& r) { return r.reduced_frequency; }));
+    l.push_back(field("aerodynamic_lag", "1",
+                      "1 where the tracked root is an aerodynamic lag root, not a structural one",
+                      [](const Root& r) { return r.aerodynamic_lag ? 1.0 : 0.0; }));
+    return l;
+  }();
+  return layout;
+}
+
+const std::vector<MethodAttribute>& flutter_method_attributes() {
+  static const std::vector<MethodAttribute> attributes = [] {
+    const double nan = std::numeric_limits<double>::quiet_NaN();
+    std::vector<MethodAttribute> a;
+    a.push_back({"flutter_found", "1", "1 when a flutter crossing was found in the speed range", true,
+                 [](const MethodResult& m) { return m.flutter.found ? 1.0 : 0.0; }});
+    a.push_back({"flutter_speed", "m s-1", "flutter speed (true airspeed)", false,
+                 [nan](const MethodResult& m) { return m.flutter.found ? m.flutter.speed : nan; }});
+    a.push_back({"flutter_frequency", "Hz", "flutter frequency", false,
+                 [nan](const MethodResult& m) { return m.flutter.found ? m.flutter.frequency / (2 * pi) : nan; }});
+    a.push_back({"flutter_reduced_frequency", "1", "reduced frequency omega b / U at flutter", false,
+                 [nan](const MethodResult& m) { return m.flutter.found ? m.flutter.reduced_frequency : nan; }});
+    a.push_back({"flutter_mode", "1", "the fluttering mode, numbered as the mode axis (0: none)", true,
+                 [](const MethodResult& m) { return m.flutter.found ? m.flutter.mode + 1.0 : 0.0; }});
+    a.push_back({"divergence_found", "1", "1 when a divergence crossing was found in the speed range", true,
+                 [](const MethodResult& m) { return m.divergence.found ? 1.0 : 0.0; }});
+    a.push_back({"divergence_speed", "m s-1", "divergence speed (true airspeed)", false,
+                 [nan](const MethodResult& m) { return m.divergence.found ? m.divergence.speed : nan; }});
+    return a;
+  }();
+  return attributes;
+}
+
+std::string flutter_source(Linearisation l, const std::string& method, const std::string& attribute) {
+  const auto& a = flutter_method_attributes();
+  if (std::none_of(a.begin(), a.end(), [&](const MethodAttribute& x) { return x.name == attribute; }))
+    throw std::logic_error("flutter_source: the flutter file holds no attribute " + attribute);
+  return "flutter.h5: /" + flutter_group(l, method) + "@" + attribute;
+}
 
 std::string flutter_group(Linearisation l, const std::string& method) {
   return group_name(l) + "/" + flutter_method_group(method);

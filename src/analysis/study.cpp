@@ -206,17 +206,16 @@ void flutter_rows(Study& s, Linearisation l, const std::string& label, const std
   for (const char* method : {"state-space", "p-k"}) {
     const MethodResult* m = method_of(s.flutter, l, method);
     if (!m) continue;
-    const std::string g = "/" + flutter_group(l, method);
     const std::string mid = flutter_method_group(method);
     if (m->flutter.found) {
       s.rows.add(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method), m->flutter.speed,
-                 "m/s TAS", "flutter.h5: " + g + "@flutter_speed",
+                 "m/s TAS", flutter_source(l, method, "flutter_speed"),
                  fmt::format("{:.4g} m/s EAS, {:.4g} Hz", equivalent_airspeed(m->flutter.speed, s.rho),
                              m->flutter.frequency / (2 * std::numbers::pi)));
     } else {
       s.rows.text(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method),
                   fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
-                  "flutter.h5: " + g + "@flutter_found");
+                  flutter_source(l, method, "flutter_found"));
     }
   }
 }
@@ -241,12 +240,12 @@ void flutter_stage(Study& s) {
   if (const MethodResult* m = method_of(fr, Linearisation::kNominal, "state-space")) {
     if (m->divergence.found)
       s.rows.add("divergence", "Divergence speed (state-space)", m->divergence.speed, "m/s TAS",
-                 "flutter.h5: /nominal/state_space@divergence_speed",
+                 flutter_source(Linearisation::kNominal, "state-space", "divergence_speed"),
                  fmt::format("{:.4g} m/s EAS", equivalent_airspeed(m->divergence.speed, s.rho)));
     else
       s.rows.text("divergence", "Divergence speed (state-space)",
                   fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
-                  "flutter.h5: /nominal/state_space@divergence_found");
+                  flutter_source(Linearisation::kNominal, "state-space", "divergence_found"));
   }
   const FlutterMargin fm = flutter_margin(fr);
   if (fm.available) {

@@ -7,6 +7,7 @@
 #include <fmt/format.h>
 
 #include "aerosect/analysis/flutter.hpp"
+#include "aerosect/analysis/flutter_report.hpp"
 #include "aerosect/analysis/modes.hpp"
 #include "aerosect/analysis/pk.hpp"
 #include "aerosect/analysis/simulate.hpp"
@@ -245,4 +246,46 @@ TEST_CASE("Flap freeplay: gap-open and gap-closed flutter speeds bound the LCO b
     else
       CHECK(late > early);
   }
+}
+
+TEST_CASE("The flutter file's tables are the layout's fields, written through the sink handed over",
+          "[flutter]") {
+  // Common practice, no source (CF conventions: units and long_name on every
+  // variable): each root field is one table over (speed, mode) per method
+  // group with the layout's units, each tracked root's value in its cell;
+  // each crossing fact is an attribute of the method's group; the study's
+  // provenance strings name only attributes the file holds.
+  const Case c = test::case_from(test::benchmark_2dof("[simulation]\nduration = 1.0\n"));
+  const FlutterReport r = flutter_analysis(c, options(0.05, 10.0, 40));
+  MemoryTables m;
+  write_flutter_tables(m, c, r);
+  const std::size_t nm = r.mode_names.size();
+  for (const char* name : {"state-space", "p-k"}) {
+    const MethodResult& mr = method(r, 0, name);
+    const std::string g = flutter_group(Linearisation::kNominal, name);
+    const std::size_t ns = mr.sweep.speeds.size();
+    for (const auto& f : flutter_root_layout()) {
+      REQUIRE(m.tables.count(g + "/" + f.name) == 1);
+      const auto& table = m.tables.at(g + "/" + f.name);
+      CHECK(table.units == f.units);
+      CHECK(table.long_name == f.long_name);
+      CHECK(table.dims == std::vector<std::string>{"speed", "mode"});
+      REQUIRE(table.data.size() == ns * nm);
+      for (std::size_t i = 0; i < ns; i += 7)
+        for (std::size_t j = 0; j < nm; ++j) CHECK(table.data[i * nm + j] == f.get(mr.sweep.roots[i][j], 0));
+    }
+    CHECK(m.tables.at(g + "/damping_ratio").data[nm + 1] == mr.sweep.roots[1][1].damping_ratio);
+    for (const auto& a : flutter_method_attributes()) {
+      REQUIRE(m.numbers.count(g + "@" + a.name) == 1);
+      const double v = m.numbers.at(g + "@" + a.name);
+      if (std::isnan(a.get(mr)))
+        CHECK(std::isnan(v));
+      else
+        CHECK(v == a.get(mr));
+    }
+    REQUIRE(mr.flutter.found);
+    CHECK(m.numbers.at(g + "@flutter_speed") == mr.flutter.speed);
+    CHECK(flutter_source(Linearisation::kNominal, name, "flutter_speed") == "flutter.h5: /" + g + "@flutter_speed");
+  }
+  CHECK_THROWS_AS(flutter_source(Linearisation::kNominal, "p-k", "no_such_fact"), std::logic_error);
 }

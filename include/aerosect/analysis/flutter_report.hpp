@@ -3,8 +3,10 @@
 // in README.md, "JSON output") and the HDF5 file (layout in README.md,
 // "Output files"), all from one FlutterReport.
 
+#include <functional>
 #include <optional>
 #include <string>
+#include <vector>
 
 #include <nlohmann/json.hpp>
 
@@ -38,12 +40,33 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
 std::string flutter_text(const Case& c, const FlutterReport& r, const std::string& output);
 // Writes the sweep tables and crossings; throws OutputError.
 void write_flutter_file(const std::string& path, const Case& c, const FlutterReport& r);
+// The same tables through any sink (write_flutter_file hands it the file).
+void write_flutter_tables(TableSink& sink, const Case& c, const FlutterReport& r);
 
 // The group of one method's tables in the flutter file, e.g.
 // "nominal/state_space", "gap_open/pk" (README.md, "Output files").
 std::string flutter_group(Linearisation l, const std::string& method);
 // The group of a method ("state-space" -> "state_space", "p-k" -> "pk").
 std::string flutter_method_group(const std::string& method);
+
+// The layout of one method's result in the flutter file, each field once
+// (the writer, and the study's provenance strings, come from these tables):
+//  - per tracked root, a dataset over (speed, mode) in the method's group;
+//  - per crossing fact, a number attribute of the method's group (integer
+//    ones are flags and counts; NaN where the crossing was not found).
+const Layout<Root>& flutter_root_layout();
+struct MethodAttribute {
+  std::string name;
+  std::string units;      // UDUNITS ("1" for a pure number or a flag)
+  std::string long_name;
+  bool integer = false;   // written as an integer attribute
+  std::function<double(const MethodResult&)> get;
+};
+const std::vector<MethodAttribute>& flutter_method_attributes();
+// "flutter.h5: /<group>@<attribute>", the source of a reported number; the
+// attribute must be one of flutter_method_attributes() (std::logic_error
+// otherwise: a study row naming a number the file does not hold).
+std::string flutter_source(Linearisation l, const std::string& method, const std::string& attribute);
 
 // The describing-function LCO curve as the group /lco_prediction over the
 // axis lco_prediction_point (one writer for the flutter file and the sweep

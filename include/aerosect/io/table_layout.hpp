@@ -110,10 +110,12 @@ bool is_list(const Field<T>& f) {
 
 // Writes every field of `layout` as a dataset over `dims` (the grid, `cells`
 // cells) from `records`, placed by `cell_of`.
+// Each dataset's path is `prefix` + the field's name (prefix "group/" puts
+// the tables in a group).
 template <class T>
 void write_layout(TableSink& sink, const Layout<T>& layout, const std::vector<std::string>& dims,
                   std::size_t cells, const std::vector<T>& records,
-                  const std::function<std::size_t(const T&)>& cell_of) {
+                  const std::function<std::size_t(const T&)>& cell_of, const std::string& prefix = {}) {
   for (const Field<T>& f : layout) {
     std::vector<double> v(cells * f.width, std::numeric_limits<double>::quiet_NaN());
     for (const T& r : records) {
@@ -123,7 +125,7 @@ void write_layout(TableSink& sink, const Layout<T>& layout, const std::vector<st
     }
     std::vector<std::string> d = dims;
     if (is_list(f)) d.push_back(f.axis);
-    sink.dataset(f.name, d, v, f.units, f.long_name);
+    sink.dataset(prefix + f.name, d, v, f.units, f.long_name);
   }
 }
 

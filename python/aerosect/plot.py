@@ -587,38 +587,33 @@ CLASS_STYLE = {  # response_class code -> (label, colour)
 }
 DIVERGENT, FAILED = 3, 4
 
-# Swept case keys (src/io/case.cpp) -> axis label with units; keys not
-# listed are labelled by their suffix (_deg, _hz, ...) or shown as they are.
-KEY_LABELS = {
-    "flow.airspeed": "true airspeed [m/s]",
-    "flow.density": "air density [kg m$^{-3}$]",
-    "flow.altitude": "altitude (ISA) [m]",
-    "nondimensional.reduced_speed": r"reduced speed $U/(b\,\omega_\alpha)$ [1]",
-    "nondimensional.mass_ratio": r"mass ratio $\mu$ [1]",
-    "envelope.dive_speed_eas": "dive speed V_D [m/s EAS]",
+# Swept case keys -> the quantity's name on an axis; the units are the
+# file's own (the `units` of the value_1 axis, from the case-file
+# reference); keys not listed are shown as they are.
+KEY_NAMES = {
+    "flow.airspeed": "true airspeed",
+    "flow.density": "air density",
+    "flow.altitude": "altitude (ISA)",
+    "nondimensional.reduced_speed": r"reduced speed $U/(b\,\omega_\alpha)$",
+    "nondimensional.mass_ratio": r"mass ratio $\mu$",
+    "envelope.dive_speed_eas": "dive speed V_D (EAS)",
 }
-KEY_SUFFIX_UNITS = (("_deg_s", "deg/s"), ("_deg", "deg"), ("_hz", "Hz"),
-                    ("_ratio", "1"), ("_semichords", "semichords"))
 
 
-def key_label(key):
-    if key in KEY_LABELS:
-        return KEY_LABELS[key]
-    for suffix, units in KEY_SUFFIX_UNITS:
-        if key.endswith(suffix):
-            return f"{key} [{units}]"
-    if key.startswith("nondimensional."):
-        return f"{key} [1]"
-    return key
+def key_label(key, units=""):
+    """Axis label of a swept key: its name and the units the file gives."""
+    name = KEY_NAMES.get(key, key)
+    return f"{name} [{pretty_units(units)}]" if units else name
 
 
 def sweep_tables(f):
-    """(key, values, watched, amplitude [dir, n1(, n2)] in display units,
+    """(key, key units, values, watched, amplitude [dir, n1(, n2)] in display units,
     class table, display unit, factor) of a sweep file."""
     for name in ("value_1", "response_class"):
         if name not in f:
             raise PlotError(f"sweep file without '{name}'")
     key = text_attribute(f["value_1"], "key", "value")
+    key_units = text_attribute(f["value_1"], "units", "")
     values = np.asarray(f["value_1"][()], dtype=float)
     watched = text_attribute(f, "watched_dof", "pitch")
     if f"{watched}_amplitude" not in f:
@@ -629,7 +624,7 @@ def sweep_tables(f):
         raise PlotError(f"'{watched}_amplitude' is {amplitude.shape} and 'response_class' "
                         f"{classes.shape}, not (direction, value_1[, value_2]) = (2, {values.size}...)")
     factor, unit = (1000.0, "mm") if watched == "plunge" else (180.0 / math.pi, "deg")
-    return key, values, watched, amplitude * factor, classes, unit, factor
+    return key, key_units, values, watched, amplitude * factor, classes, unit, factor
 
 
 def amplitude_top(amplitude, classes, prediction=None):
@@ -689,7 +684,7 @@ def plot_sweep(f, stem, outdir):
     Two keys: one colour per second-key value (at most six, evenly picked)."""
     from matplotlib.lines import Line2D
 
-    key, values, watched, amplitude, classes, unit, factor = sweep_tables(f)
+    key, key_units, values, watched, amplitude, classes, unit, factor = sweep_tables(f)
     two_keys = amplitude.ndim == 3
     prediction = None
     if not two_keys and "lco_prediction" in f:
@@ -748,6 +743,8 @@ def plot_sweep(f, stem, outdir):
         note = None
     else:
         key_2 = text_attribute(f["value_2"], "key", "value 2") if "value_2" in f else "value 2"
+        units_2 = text_attribute(f["value_2"], "units", "") if "value_2" in f else ""
+        units_2 = "" if units_2 in ("", "1") else " " + units_2
         values_2 = (np.asarray(f["value_2"][()], dtype=float) if "value_2" in f
                     else np.arange(amplitude.shape[2], dtype=float))
         n2 = amplitude.shape[2]
@@ -763,7 +760,7 @@ def plot_sweep(f, stem, outdir):
                         marker=marker, ms=5 if filled else 7,
                         mfc=colour if filled else "none", mec=colour, zorder=4)
                 mark_divergent(ax, values, cls == DIVERGENT, colour, filled, top)
-            entries.append((Line2D([], [], color=colour, lw=2), f"{key_2} = {values_2[j]:.4g}"))
+            entries.append((Line2D([], [], color=colour, lw=2), f"{key_2} = {values_2[j]:.4g}{units_2}"))
         if np.any(classes == DIVERGENT):
             entries.append((Line2D([], [], marker="^", color="0.3", ls="none", ms=7),
                             "divergent (off scale, at the top)"))
@@ -779,9 +776,9 @@ def plot_sweep(f, stem, outdir):
     ax.set_xlim(values.min() - 0.03 * np.ptp(values), values.max() + 0.03 * np.ptp(values))
     if not two_keys:
         entries += flutter_lines(f, ax)
-    ax.set_xlabel(key_label(key))
+    ax.set_xlabel(key_label(key, key_units))
     ax.set_ylabel(f"{watched} LCO amplitude [{unit}]\n(half peak-to-peak)")
-    ax.set_title(figure_title(f) + "\nLCO amplitude against " + key_label(key).split(" [")[0],
+    ax.set_title(figure_title(f) + "\nLCO amplitude against " + key_label(key),
                  fontsize="medium")
     ax.grid(True, alpha=0.4)
     ax.legend([h for h, _ in entries], [t for _, t in entries], loc="upper center",

@@ -429,7 +429,8 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
   // The layout of a describing-function LCO point: each field once.
   Layout<P> layout;
   if (!swept_key.empty())
-    layout.push_back(field("value", "1", "swept value (" + swept_key + ") of the predicted LCO",
+    layout.push_back(field("value", case_key_units(swept_key).empty() ? "1" : case_key_units(swept_key),
+                           "swept value (" + swept_key + ") of the predicted LCO",
                            [value_per_speed](const P& p) { return p.speed * value_per_speed; }));
   layout.push_back(field("amplitude", angle ? "rad" : "m",
                          std::string("describing-function LCO amplitude of the ") + dof_name(lco.spring),

@@ -649,6 +649,15 @@ SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, con
   return p;
 }
 
+// A swept key's units (a key of a list value, or one the schema does not
+// know, has none to give: "1").
+namespace {
+std::string axis_units(const std::string& key) {
+  const std::string u = case_key_units(key);
+  return u.empty() ? "1" : u;
+}
+}  // namespace
+
 // Writes the map's tables, axes and attributes (the layout of sweep.hpp).
 void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& points,
                         const FlutterReport* overlay) {
@@ -660,11 +669,11 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
   const std::vector<std::int32_t> dirs = {0, 1};
   doc.integer_axis("direction", dirs, "sweep direction: 0 up (ascending), 1 down");
   doc.text_attribute("direction", "names", "up,down");
-  doc.axis("value_1", o.axes[0].values, "1", "swept value of " + o.axes[0].key);
+  doc.axis("value_1", o.axes[0].values, axis_units(o.axes[0].key), "swept value of " + o.axes[0].key);
   doc.text_attribute("value_1", "key", o.axes[0].key);
   std::vector<std::string> dims = {"direction", "value_1"};
   if (o.axes.size() > 1) {
-    doc.axis("value_2", o.axes[1].values, "1", "swept value of " + o.axes[1].key);
+    doc.axis("value_2", o.axes[1].values, axis_units(o.axes[1].key), "swept value of " + o.axes[1].key);
     doc.text_attribute("value_2", "key", o.axes[1].key);
     dims.push_back("value_2");
   }

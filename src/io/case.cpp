@@ -723,6 +723,124 @@ std::string read_file(const std::string& path) {
 
 const std::vector<std::string>& known_case_keys() { return case_schema().keys(); }
 
+std::string case_key_units(const std::string& key) {
+  // Units of the keys of the README's reference tables, each once. Keys
+  // absent here are text (or choices): "".
+  static const std::map<std::string, std::string, std::less<>> units = {
+      {"section.semichord", "m"},
+      {"section.mass", "kg m-1"},
+      {"section.elastic_axis", "1"},
+      {"section.cg", "1"},
+      {"section.cg_offset", "1"},
+      {"section.static_unbalance", "kg m m-1"},
+      {"section.pitch_inertia", "kg m2 m-1"},
+      {"section.pitch_inertia_cg", "kg m2 m-1"},
+      {"section.radius_of_gyration", "1"},
+      {"section.plunge_stiffness", "N m-1 m-1"},
+      {"section.plunge_frequency_hz", "Hz"},
+      {"section.pitch_stiffness", "N m rad-1 m-1"},
+      {"section.pitch_frequency_hz", "Hz"},
+      {"section.plunge_damping_ratio", "1"},
+      {"section.pitch_damping_ratio", "1"},
+      {"flap.hinge", "1"},
+      {"flap.static_unbalance", "kg m m-1"},
+      {"flap.mass", "kg m-1"},
+      {"flap.cg_offset", "1"},
+      {"flap.inertia", "kg m2 m-1"},
+      {"flap.inertia_cg", "kg m2 m-1"},
+      {"flap.stiffness", "N m rad-1 m-1"},
+      {"flap.frequency_hz", "Hz"},
+      {"flap.damping_ratio", "1"},
+      {"flow.airspeed", "m s-1"},
+      {"flow.density", "kg m-3"},
+      {"flow.altitude", "m"},
+      {"nondimensional.mass_ratio", "1"},
+      {"nondimensional.elastic_axis", "1"},
+      {"nondimensional.cg_offset", "1"},
+      {"nondimensional.radius_of_gyration", "1"},
+      {"nondimensional.frequency_ratio", "1"},
+      {"nondimensional.plunge_damping_ratio", "1"},
+      {"nondimensional.pitch_damping_ratio", "1"},
+      {"nondimensional.reduced_speed", "1"},
+      {"nondimensional.hinge", "1"},
+      {"nondimensional.flap_cg_offset", "1"},
+      {"nondimensional.flap_radius_of_gyration", "1"},
+      {"nondimensional.flap_frequency_ratio", "1"},
+      {"nondimensional.flap_damping_ratio", "1"},
+      {"nondimensional.reference.semichord", "m"},
+      {"nondimensional.reference.pitch_frequency_hz", "Hz"},
+      {"nondimensional.reference.density", "kg m-3"},
+      {"aerodynamics.wagner_coefficients", "1"},
+      {"aerodynamics.wagner_exponents", "1"},  // per semichord travelled
+      {"aerodynamics.kussner_coefficients", "1"},
+      {"aerodynamics.kussner_exponents", "1"},
+      {"initial.plunge", "m"},
+      {"initial.plunge_semichords", "1"},
+      {"initial.pitch_deg", "degree"},
+      {"initial.flap_deg", "degree"},
+      {"initial.plunge_rate", "m s-1"},
+      {"initial.pitch_rate_deg_s", "degree s-1"},
+      {"initial.flap_rate_deg_s", "degree s-1"},
+      {"initial.lag_states", "1"},
+      {"simulation.duration", "s"},
+      {"simulation.duration_semichords", "1"},
+      {"simulation.sample_rate", "Hz"},
+      {"simulation.sample_interval", "s"},
+      {"simulation.sample_interval_semichords", "1"},
+      {"simulation.relative_tolerance", "1"},
+      {"simulation.absolute_tolerance", "1"},
+      {"simulation.max_step", "s"},
+      {"simulation.initial_step", "s"},
+      {"envelope.dive_speed_eas", "m s-1"},
+      {"gust.start", "s"},
+      {"gust.start_semichords", "1"},
+      {"gust.start_distance", "m"},
+      {"gust.amplitude", "m s-1"},
+      {"gust.amplitude_eas", "m s-1"},
+      {"gust.gradient", "m"},
+      {"gust.altitude", "m"},
+      {"gust.landing_weight_ratio", "1"},
+      {"gust.zero_fuel_weight_ratio", "1"},
+      {"gust.max_operating_altitude", "m"},
+      {"gust.frequency_hz", "Hz"},
+      {"gust.reduced_frequency", "1"},
+      {"gust.cycles", "1"},
+      {"gust.scale", "1"},
+      {"gust.intensity", "m s-1"},
+      {"gust.scale_length", "m"},
+      {"gust.seed", "1"},
+      {"gust.sample_interval", "s"},
+  };
+  std::string k = key;
+  // gust.<index>.<key> -> gust.<key>
+  if (k.rfind("gust.", 0) == 0) {
+    const std::size_t dot = k.find('.', 5);
+    if (dot != std::string::npos && dot > 5 &&
+        std::all_of(k.begin() + 5, k.begin() + static_cast<std::ptrdiff_t>(dot),
+                    [](char ch) { return ch >= '0' && ch <= '9'; }))
+      k = "gust" + k.substr(dot);
+  }
+  if (auto it = units.find(k); it != units.end()) return it->second;
+  // springs.<dof>.<key>: lengths in m (plunge) or degrees (_deg), stiffness
+  // per the DOF, coefficients per displacement unit.
+  if (k.rfind("springs.", 0) == 0) {
+    const std::size_t dot = k.find('.', 8);
+    if (dot == std::string::npos) return "";
+    const std::string dof = k.substr(8, dot - 8), name = k.substr(dot + 1);
+    const bool plunge = dof == "plunge";
+    if (dof != "plunge" && dof != "pitch" && dof != "flap") return "";
+    if (name.size() > 4 && name.compare(name.size() - 4, 4, "_deg") == 0) return plunge ? "" : "degree";
+    if (plunge && (name == "half_gap" || name == "total_gap" || name == "gap_below" || name == "gap_above" ||
+                   name == "offset" || name == "half_width" || name == "displacements"))
+      return "m";
+    if (name == "inner_stiffness") return plunge ? "N m-1 m-1" : "N m rad-1 m-1";
+    if (name == "cubic_coefficient") return plunge ? "m-2" : "rad-2";
+    if (name == "coefficients") return "1";  // c_n in units of displacement^(1-n): a list, see README
+    if (name == "forces") return plunge ? "N m-1" : "N m m-1";
+  }
+  return "";
+}
+
 std::string Case::text_as_run() const {
   std::string s = text;
   if (!overrides.empty()) {

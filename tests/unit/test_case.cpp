@@ -4,6 +4,7 @@
 // limits they enforce cite their source where they have one.
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <fstream>
 #include <numbers>
@@ -925,4 +926,29 @@ TEST_CASE("Messages show values as written and fit one screen", "[case][errors]"
   CHECK(wrapped("a b", 100) == "a b");
   CHECK(wrapped(std::string(60, 'x') + " " + std::string(60, 'y'), 100) ==
         std::string(60, 'x') + "\n    " + std::string(60, 'y'));
+}
+
+TEST_CASE("Every numeric case key has its units (README.md, case-file reference)", "[case]") {
+  // The units of the README's reference tables (UDUNITS spelling: common
+  // practice, no source); text keys and choices have none.
+  const std::vector<std::string> text_keys = {
+      "title", "description", "aerodynamics.model", "aerodynamics.wagner", "aerodynamics.kussner",
+      "simulation.every_step", "simulation.stepper", "simulation.hold", "gust.shape", "gust.design",
+      "gust.speed_condition", "gust.label", "gust.file", "gust.base", "gust.base_dataset",
+      "gust.velocity_dataset", "gust.model", "gust.severity"};
+  for (const std::string& key : known_case_keys()) {
+    const bool text = std::find(text_keys.begin(), text_keys.end(), key) != text_keys.end() ||
+                      key.ends_with(".law");
+    INFO(key);
+    CHECK(case_key_units(key).empty() == text);
+  }
+  CHECK(case_key_units("flow.airspeed") == "m s-1");
+  CHECK(case_key_units("section.pitch_stiffness") == "N m rad-1 m-1");
+  CHECK(case_key_units("springs.pitch.half_gap_deg") == "degree");
+  CHECK(case_key_units("springs.plunge.half_gap") == "m");
+  CHECK(case_key_units("springs.flap.inner_stiffness") == "N m rad-1 m-1");
+  CHECK(case_key_units("springs.plunge.cubic_coefficient") == "m-2");
+  CHECK(case_key_units("gust.2.amplitude") == "m s-1");
+  CHECK(case_key_units("nondimensional.reduced_speed") == "1");
+  CHECK(case_key_units("no.such_key").empty());
 }

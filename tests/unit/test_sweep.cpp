@@ -10,6 +10,7 @@
 #include "aerosect/analysis/sweep.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/journal.hpp"
+#include "aerosect/io/text_file.hpp"
 #include "helpers.hpp"
 
 using namespace aerosect;
@@ -326,4 +327,14 @@ TEST_CASE("The map's tables are the layout's fields, written through the sink ha
     CHECK(m.tables.at("pitch_amplitude").data[t.cell(p)] == p.lco.dof[kPitch].amplitude);
   CHECK(m.tables.count("lco_prediction/value") == 0);
   CHECK(m.numbers.count("@linear_flutter_value") == 0);
+  // The swept axis carries the key's units (a reduced speed is a pure number).
+  CHECK(m.tables.at("value_1").units == "1");
+  SweepRequest airspeed = r;
+  airspeed.case_text = read_file_bytes(AEROSECT_SOURCE_DIR "/cases/demo_aileron.toml");
+  airspeed.options.axes = {SweepAxis{"flow.airspeed", {20.0, 30.0}}, SweepAxis{"springs.flap.half_gap_deg", {0.5, 1.0}}};
+  const Case ca = parse_case(airspeed.case_text, airspeed.case_path, airspeed.overrides);
+  MemoryTables ma;
+  write_sweep_tables(ma, ca, airspeed, {}, nullptr);
+  CHECK(ma.tables.at("value_1").units == "m s-1");
+  CHECK(ma.tables.at("value_2").units == "degree");
 }

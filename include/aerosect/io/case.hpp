@@ -61,5 +61,11 @@ Case parse_case(const std::string& text, const std::string& path,
 
 // Every key a case file may hold, as dotted paths (for suggestions and docs).
 const std::vector<std::string>& known_case_keys();
+// The units of a numeric case key as a UDUNITS string (README.md, "Case
+// file reference"): "m s-1" for flow.airspeed, "1" for a pure number or a
+// length in semichords, "degree" for an angle key (..._deg); "" for a text
+// key (title, law, shape, ...) or a key the schema does not know. A key of
+// a [[gust]] entry may carry its entry's index (gust.2.amplitude).
+std::string case_key_units(const std::string& key);
 
 }  // namespace aerosect

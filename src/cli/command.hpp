@@ -19,9 +19,12 @@
 #include <functional>
 #include <optional>
 #include <string>
+#include <type_traits>
 #include <vector>
 
 #include <CLI/CLI.hpp>
+
+#include "aerosect/error.hpp"
 
 namespace aerosect::cli {
 
@@ -100,5 +103,22 @@ void print(const std::string& s);
 // Tells on stderr that the run was stopped by a signal and what is kept;
 // returns interrupted_status().
 int report_interrupted(const std::string& what_is_kept);
+
+// The tail of a one-result command (flutter, gust): runs `analyse`; on a
+// signal (Cancelled) reports that nothing was written; else writes the
+// result to `output` when one is given (`write(output, result)`) and prints
+// `summary(result, written)`, `written` being the output or "".
+template <class Analyse, class Write, class Summary>
+int analyse_write_print(const std::string& output, Analyse analyse, Write write, Summary summary) {
+  std::invoke_result_t<Analyse> result;
+  try {
+    result = analyse();
+  } catch (const Cancelled&) {
+    return report_interrupted(output.empty() ? "nothing written" : "nothing written (" + output + " left as it was)");
+  }
+  if (!output.empty()) write(output, result);
+  print(summary(result, output));
+  return 0;
+}
 
 }  // namespace aerosect::cli

@@ -47,20 +47,12 @@ int run(const FlutterCommandOptions& o) {
   fo.pk = o.method != "state-space";
   fo.amplitude = o.amplitude;
   fo.cancel = cancel_flag();
-  FlutterReport r;
-  try {
-    r = flutter_analysis(c, fo);
-  } catch (const Cancelled&) {
-    return report_interrupted(o.output.empty() ? "nothing written"
-                                               : "nothing written (" + o.output + " left as it was)");
-  }
-  std::string written;
-  if (!o.output.empty()) {
-    write_flutter_file(o.output, c, r);
-    written = o.output;
-  }
-  print(o.json ? flutter_json(c, r, written).dump(2) + "\n" : flutter_text(c, r, written));
-  return 0;
+  return analyse_write_print(
+      o.output, [&] { return flutter_analysis(c, fo); },
+      [&](const std::string& path, const FlutterReport& r) { write_flutter_file(path, c, r); },
+      [&](const FlutterReport& r, const std::string& written) {
+        return o.json ? flutter_json(c, r, written).dump(2) + "\n" : flutter_text(c, r, written);
+      });
 }
 
 }  // namespace

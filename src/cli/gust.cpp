@@ -36,20 +36,12 @@ int run(const GustOptions& o) {
   if (o.output_option->count() > 0) check_output_name("-o", o.output);
   const std::vector<double> g = o.gradients.empty() ? default_gradients() : parse_gradients(o.gradients);
   const Case c = load_case(o.case_path, o.overrides);
-  GustSweep s;
-  try {
-    s = gust_gradient_sweep(c, g, cancel_flag());
-  } catch (const Cancelled&) {
-    return report_interrupted(o.output.empty() ? "nothing written"
-                                               : "nothing written (" + o.output + " left as it was)");
-  }
-  std::string written;
-  if (!o.output.empty()) {
-    write_gust_sweep_file(o.output, c, s);
-    written = o.output;
-  }
-  print(o.json ? gust_sweep_json(c, s, written).dump(2) + "\n" : gust_sweep_text(c, s, written));
-  return 0;
+  return analyse_write_print(
+      o.output, [&] { return gust_gradient_sweep(c, g, cancel_flag()); },
+      [&](const std::string& path, const GustSweep& s) { write_gust_sweep_file(path, c, s); },
+      [&](const GustSweep& s, const std::string& written) {
+        return o.json ? gust_sweep_json(c, s, written).dump(2) + "\n" : gust_sweep_text(c, s, written);
+      });
 }
 
 }  // namespace

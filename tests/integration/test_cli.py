@@ -5,6 +5,7 @@ import os
 import subprocess
 import sys
 import tempfile
+from files import same_files
 
 BIN, SRC = sys.argv[1], sys.argv[2]
 DEMO = os.path.join(SRC, "cases", "demo_aileron.toml")
@@ -22,30 +23,6 @@ def check(name, cond, detail=""):
 
 def run(*args):
     return subprocess.run([BIN, *args], capture_output=True, text=True, timeout=300)
-
-
-def same_files(p, q):
-    """Every dataset (values, NaN equal to NaN) and every attribute equal."""
-    import h5py
-    import numpy as np
-    same = True
-    with h5py.File(p) as a, h5py.File(q) as b:
-        names = []
-        a.visit(names.append)
-        bnames = []
-        b.visit(bnames.append)
-        same &= sorted(names) == sorted(bnames)
-        for n in names:
-            if isinstance(a[n], h5py.Dataset):
-                x, y = a[n][()], b[n][()]
-                same &= np.array_equal(x, y, equal_nan=True) if np.asarray(x).dtype.kind == "f" else np.array_equal(x, y)
-                for key in a[n].attrs:
-                    if key in ("DIMENSION_LIST", "REFERENCE_LIST"):
-                        continue  # object references differ between files
-                    same &= key in b[n].attrs and str(a[n].attrs[key]) == str(b[n].attrs[key])
-        for key in a.attrs:
-            same &= key in b.attrs and str(a.attrs[key]) == str(b.attrs[key])
-    return same
 
 
 FREEPLAY = """\
@@ -134,7 +111,7 @@ with tempfile.TemporaryDirectory() as tmp:
     merged = os.path.join(tmp, "merged.h5")
     r = run("merge", *parts, "-o", merged)
     check("merge exit", r.returncode == 0, r.stderr)
-    check("merged equals unsharded", same_files(sw, merged), "")
+    check("merged equals unsharded", *same_files(sw, merged))
     # --traces: one settled cycle per periodic point (2-DOF freeplay LCOs);
     # --jobs 1 equals --jobs 2, shards merged equal the unsharded file
     fcase = os.path.join(tmp, "freeplay.toml")
@@ -152,7 +129,7 @@ with tempfile.TemporaryDirectory() as tmp:
         and "trace" not in p["cycle"] for p in per), per[:1])
     r = run("sweep", fcase, *vary, "-o", t2, "--jobs", "2")
     check("traces sweep jobs 2 exit", r.returncode == 0, r.stderr)
-    check("traces: --jobs 1 file equals --jobs 2 file", same_files(t1, t2))
+    check("traces: --jobs 1 file equals --jobs 2 file", *same_files(t1, t2))
     tparts = []
     for k in (1, 2):
         part = os.path.join(tmp, f"tpart{k}.h5")
@@ -162,7 +139,7 @@ with tempfile.TemporaryDirectory() as tmp:
     tm = os.path.join(tmp, "tmerged.h5")
     r = run("merge", *tparts, "-o", tm)
     check("traces merge exit", r.returncode == 0, r.stderr)
-    check("traces: merged equals unsharded", same_files(t1, tm))
+    check("traces: merged equals unsharded", *same_files(t1, tm))
     with h5py.File(t1) as f:
         d = f["pitch_cycle"]
         dims = [f[d.dims[i][0].name].name for i in range(3)] if all(len(d.dims[i]) for i in range(3)) else []

@@ -14,12 +14,12 @@ Source of the expectations: the program's own documented contract (README
 "Limits", "Exit status and interruption"); no outside value is checked here
 (common practice, no source).
 """
-import hashlib
 import os
 import re
 import subprocess
 import sys
 import tempfile
+from files import digest
 
 BIN, SRC = os.path.abspath(sys.argv[1]), os.path.abspath(sys.argv[2])
 DEMO = os.path.join(SRC, "cases", "demo_aileron.toml")
@@ -149,11 +149,6 @@ def check(name, cond, detail=""):
     else:
         failed += 1
         print(f"FAIL {name}: {detail}")
-
-
-def digest(path):
-    with open(path, "rb") as f:
-        return hashlib.sha256(f.read()).hexdigest()
 
 
 def snapshot(folder):

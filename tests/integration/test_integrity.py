@@ -18,7 +18,6 @@
   child starts with the signal's default action, as from a shell), which the
   free-space check cannot see coming.
 """
-import hashlib
 import json
 import os
 import resource
@@ -30,6 +29,7 @@ import time
 
 import h5py
 import numpy as np
+from files import digest, same_files
 
 BIN, SRC = sys.argv[1], sys.argv[2]
 DEMO = os.path.join(SRC, "cases", "demo_aileron.toml")
@@ -59,32 +59,6 @@ def run(*args, limit=None):
             # the child): the program must ignore it itself.
             resource.setrlimit(resource.RLIMIT_FSIZE, (limit, limit))
     return subprocess.run([BIN, *args], capture_output=True, text=True, timeout=300, preexec_fn=pre)
-
-
-def digest(path):
-    with open(path, "rb") as f:
-        return hashlib.sha256(f.read()).hexdigest()
-
-
-def same_files(a_path, b_path):
-    """Every dataset (NaN-aware) and every root attribute equal."""
-    with h5py.File(a_path) as a, h5py.File(b_path) as b:
-        names_a, names_b = [], []
-        a.visit(names_a.append)
-        b.visit(names_b.append)
-        if names_a != names_b:
-            return False, f"objects differ: {set(names_a) ^ set(names_b)}"
-        for n in names_a:
-            if isinstance(a[n], h5py.Dataset):
-                x, y = a[n][()], b[n][()]
-                eq = (np.array_equal(x, y, equal_nan=True) if np.asarray(x).dtype.kind == "f"
-                      else np.array_equal(x, y))
-                if not eq:
-                    return False, f"dataset {n} differs"
-        for k in a.attrs:
-            if k not in b.attrs or str(a.attrs[k]) != str(b.attrs[k]):
-                return False, f"attribute {k} differs"
-    return True, ""
 
 
 def journal_lines(path):

@@ -25,7 +25,6 @@ fail (the workload is too short to say anything), never pass.
 Common practice, no source: a long batch job must stop on request and
 leave no damaged files.
 """
-import hashlib
 import json
 import os
 import signal
@@ -34,6 +33,7 @@ import subprocess
 import sys
 import tempfile
 import time
+from files import digest
 
 BIN, SRC = sys.argv[1], sys.argv[2]
 DEMO = os.path.join(SRC, "cases", "demo_aileron.toml")
@@ -48,11 +48,6 @@ def check(name, cond, detail=""):
     else:
         failed += 1
         print(f"FAIL {name}: {detail}")
-
-
-def digest(path):
-    with open(path, "rb") as f:
-        return hashlib.sha256(f.read()).hexdigest()
 
 
 def handlers_installed(pid):

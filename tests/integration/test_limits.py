@@ -15,13 +15,13 @@
 The closing lines count the runs tried, crashes, hangs and damaged files.
 """
 import glob
-import hashlib
 import os
 import shlex
 import shutil
 import subprocess
 import sys
 import tempfile
+from files import digest
 
 BIN, SRC = os.path.abspath(sys.argv[1]), os.path.abspath(sys.argv[2])
 DEMO = os.path.join(SRC, "cases", "demo_aileron.toml")
@@ -54,11 +54,6 @@ def shell(limits, args, cwd, timeout=600):
 def leftovers(folder):
     return [p for p in glob.glob(os.path.join(folder, "**", "*"), recursive=True)
             if ".part" in os.path.basename(p) or p.endswith(".lock")]
-
-
-def digest(path):
-    with open(path, "rb") as f:
-        return hashlib.sha256(f.read()).hexdigest()
 
 
 # Light workloads, each writing well over the limits below.

@@ -20,6 +20,7 @@ namespace aerosect {
 
 inline constexpr double kRadPerDeg = std::numbers::pi / 180.0;  // rad per degree
 inline constexpr double kDegPerRad = 180.0 / std::numbers::pi;  // degrees per rad
+inline constexpr double kMetresPerFoot = 0.3048;                // international foot (exact)
 
 inline constexpr int kMaxDof = 3;
 // Dataset, key and table names of each DOF ("plunge", "pitch", "flap").

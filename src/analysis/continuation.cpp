@@ -146,7 +146,7 @@ class Context {
   std::map<double, std::shared_ptr<const AeroelasticModel>> cache_;
 };
 
-struct Layout {
+struct UnknownsLayout {
   std::vector<int> act;  // active state components
   int m = 0;             // act.size(); unknowns m + 2 (T at m, lambda at m + 1)
   int vw_index = -1;     // watched velocity in act
@@ -155,8 +155,8 @@ struct Layout {
   Eigen::VectorXd W;     // state weights (full state)
 };
 
-Layout make_layout(const AeroelasticModel& model, int watched) {
-  Layout l;
+UnknownsLayout make_layout(const AeroelasticModel& model, int watched) {
+  UnknownsLayout l;
   const StateLayout& L = model.layout();
   l.watched = watched;
   for (int i = 0; i < L.size; ++i) {
@@ -173,7 +173,7 @@ Layout make_layout(const AeroelasticModel& model, int watched) {
   return l;
 }
 
-Eigen::VectorXd to_vector(const Layout& l, const Unknowns& y) {
+Eigen::VectorXd to_vector(const UnknownsLayout& l, const Unknowns& y) {
   Eigen::VectorXd v(l.m + 2);
   for (int a = 0; a < l.m; ++a) v(a) = y.x[static_cast<std::size_t>(l.act[a])];
   v(l.m) = y.T;
@@ -192,7 +192,7 @@ struct Corrected {
 };
 
 // Newton on r = 0, g = 0 and c . y = value.
-Corrected correct(Context& ctx, const Layout& l, Unknowns y, const Eigen::VectorXd& c, double value,
+Corrected correct(Context& ctx, const UnknownsLayout& l, Unknowns y, const Eigen::VectorXd& c, double value,
                   int max_iterations) {
   Corrected out;
   const OrbitSettings& s = ctx.settings();
@@ -329,7 +329,7 @@ struct Trace {
 };
 
 // Continues from a converged start along +t0 until a stop condition.
-Trace run_direction(Context& ctx, const Layout& l, const Corrected& start, Eigen::VectorXd t,
+Trace run_direction(Context& ctx, const UnknownsLayout& l, const Corrected& start, Eigen::VectorXd t,
                     const Eigen::VectorXd& S, const Window& win, const BranchOptions& o,
                     double max_amplitude, double min_amplitude, int budget,
                     const std::function<void(const BranchPoint&)>& accepted) {
@@ -542,7 +542,7 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
                      "a case with a freeplay, bilinear, cubic, polynomial or table spring law");
   const int w = orbit_watched_dof(base, o.orbit.watched_dof);
   br.watched_dof = w;
-  const Layout l = make_layout(base, w);
+  const UnknownsLayout l = make_layout(base, w);
   AEROSECT_CHECK(l.vw_index >= 0 && l.w_index >= 0);
   const double b = c.model.section.semichord;
   const double max_amp = o.max_amplitude > 0 ? o.max_amplitude : (w == kPlunge ? 10.0 * b : 1.0);

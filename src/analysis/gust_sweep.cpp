@@ -15,7 +15,7 @@ namespace aerosect {
 
 std::vector<double> default_gradients() {
   std::vector<double> g;
-  const double lo = 30 * 0.3048, hi = 350 * 0.3048;
+  const double lo = 30 * kMetresPerFoot, hi = 350 * kMetresPerFoot;
   for (int i = 0; i < 12; ++i) g.push_back(lo + (hi - lo) * i / 11);
   return g;
 }

@@ -127,7 +127,7 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
         for (const char* k : {"amplitude", "amplitude_eas"})
           if (g.has(k)) g.fail(k, "conflicts with design = \"cs-25\" (which sizes the gust)",
                                "either an amplitude or design = \"cs-25\" with its inputs");
-        g.require(H >= 30 * 0.3048 - 1e-9 && H <= 350 * 0.3048 + 1e-9, "gradient",
+        g.require(H >= 30 * kMetresPerFoot - 1e-9 && H <= 350 * kMetresPerFoot + 1e-9, "gradient",
                   "is outside the rule's range", "9.144 m <= H <= 106.68 m (30 to 350 ft)");
         RegulationGustInputs in;
         in.gradient = H;

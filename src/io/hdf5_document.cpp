@@ -88,8 +88,11 @@ std::string join(const std::vector<std::string>& parts, std::size_t count) {
   return path;
 }
 
+}  // namespace
+
 // The open document. Hdf5Document is its handle; this class holds the
-// state and does the work.
+// state and does the work. (Not in the anonymous namespace: it is the base
+// of Hdf5Document::File.)
 class Document {
  public:
   Document(std::string path, std::string temporary_path)
@@ -338,7 +341,6 @@ class Document {
   std::string failure_;  // why the document was abandoned; empty while usable
 };
 
-}  // namespace
 }  // namespace hdf5_detail
 
 // ---------------------------------------------------------------------------

@@ -6,6 +6,7 @@
 #include <numbers>
 
 #include "aerosect/error.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
@@ -106,19 +107,18 @@ double GustField::velocity(double t, int segment) const {
 }
 
 namespace {
-constexpr double kFt = 0.3048;  // m per ft (exact)
 }
 
 double cs25_reference_gust_velocity(double h) {
-  const double h15 = 15000 * kFt, h60 = 60000 * kFt;
-  const double u0 = 56 * kFt, u15 = 44 * kFt, u60 = 20.86 * kFt;
+  const double h15 = 15000 * kMetresPerFoot, h60 = 60000 * kMetresPerFoot;
+  const double u0 = 56 * kMetresPerFoot, u15 = 44 * kMetresPerFoot, u60 = 20.86 * kMetresPerFoot;
   if (h <= h15) return u0 + (u15 - u0) * std::max(h, 0.0) / h15;
   return u15 + (u60 - u15) * (std::min(h, h60) - h15) / (h60 - h15);
 }
 
 double cs25_flight_profile_alleviation(const RegulationGustInputs& in) {
   const double zmo = in.max_operating_altitude;
-  const double fgz = 1.0 - zmo / (250000 * kFt);
+  const double fgz = 1.0 - zmo / (250000 * kMetresPerFoot);
   const double fgm = std::sqrt(in.zero_fuel_weight_ratio * std::tan(pi * in.landing_weight_ratio / 4));
   const double fg0 = 0.5 * (fgz + fgm);
   if (zmo <= 0 || in.altitude >= zmo) return in.altitude >= zmo ? 1.0 : fg0;
@@ -127,7 +127,8 @@ double cs25_flight_profile_alleviation(const RegulationGustInputs& in) {
 
 double cs25_design_gust_velocity(const RegulationGustInputs& in) {
   const double uref = cs25_reference_gust_velocity(in.altitude) * (in.at_dive_speed ? 0.5 : 1.0);
-  return uref * cs25_flight_profile_alleviation(in) * std::pow(in.gradient / (350 * kFt), 1.0 / 6.0);
+  return uref * cs25_flight_profile_alleviation(in) *
+         std::pow(in.gradient / (350 * kMetresPerFoot), 1.0 / 6.0);
 }
 
 }  // namespace aerosect

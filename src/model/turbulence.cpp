@@ -10,6 +10,7 @@
 #include <unsupported/Eigen/MatrixFunctions>
 
 #include "aerosect/error.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
@@ -34,7 +35,6 @@ const char* to_string(TurbulenceSeverity s) {
 
 namespace {
 
-constexpr double kFt = 0.3048;             // m per ft (exact)
 constexpr double kKnot = 1852.0 / 3600.0;  // m/s per kt (exact)
 constexpr double kNoiseIntensity = pi;     // q: E[n(t) n(t+tau)] = q delta(tau)
 
@@ -335,11 +335,11 @@ double turbulence_filter_psd(const TurbulenceSpec& s, double omega) {
 
 double mil8785c_scale_length(TurbulenceModel m, double altitude_m) {
   AEROSECT_CHECK(std::isfinite(altitude_m) && altitude_m > 0);
-  const double h_ft = altitude_m / kFt;
+  const double h_ft = altitude_m / kMetresPerFoot;
   const double high_ft = m == TurbulenceModel::kDryden ? 1750.0 : 2500.0;
   if (h_ft <= 1000.0) return altitude_m;  // low altitude: L_w = h
-  if (h_ft >= 2000.0) return high_ft * kFt;
-  return (1000.0 + (high_ft - 1000.0) * (h_ft - 1000.0) / 1000.0) * kFt;
+  if (h_ft >= 2000.0) return high_ft * kMetresPerFoot;
+  return (1000.0 + (high_ft - 1000.0) * (h_ft - 1000.0) / 1000.0) * kMetresPerFoot;
 }
 
 namespace {
@@ -364,7 +364,7 @@ double chart_intensity(TurbulenceSeverity s, double h_ft) {
   std::size_t i = 1;
   while (i + 1 < kChartAltitudeFt.size() && h_ft > kChartAltitudeFt[i]) ++i;
   const double h0 = kChartAltitudeFt[i - 1], h1 = kChartAltitudeFt[i];
-  return (row[i - 1] + (row[i] - row[i - 1]) * (h_ft - h0) / (h1 - h0)) * kFt;
+  return (row[i - 1] + (row[i] - row[i - 1]) * (h_ft - h0) / (h1 - h0)) * kMetresPerFoot;
 }
 
 double wind_at_20ft(TurbulenceSeverity s) {  // W20, m/s
@@ -380,7 +380,7 @@ double wind_at_20ft(TurbulenceSeverity s) {  // W20, m/s
 
 double mil8785c_intensity(TurbulenceSeverity s, double altitude_m) {
   AEROSECT_CHECK(std::isfinite(altitude_m) && altitude_m > 0);
-  const double h_ft = altitude_m / kFt;
+  const double h_ft = altitude_m / kMetresPerFoot;
   AEROSECT_CHECK(h_ft <= kChartAltitudeFt.back());
   const double low = 0.1 * wind_at_20ft(s);  // sigma_w = 0.1 W20
   if (h_ft <= 1000.0) return low;

@@ -15,11 +15,6 @@ using namespace aerosect;
 using std::numbers::pi;
 
 namespace {
-std::vector<double> grid(double from, double to, int n) {
-  std::vector<double> s(n);
-  for (int i = 0; i < n; ++i) s[i] = from + (to - from) * i / (n - 1);
-  return s;
-}
 
 // Late-time LCO amplitude (half peak-to-peak of pitch over the last fifth).
 double late_amplitude(const Case& c) {
@@ -70,7 +65,7 @@ TEST_CASE("Describing-function LCO prediction against simulation", "[df]") {
   // agree with the simulated amplitude within 5 %.
   const Case c = cubic_case(1.1 * kFlutterJones);
   const double ref = c.nondimensional.reference.semichord * c.nondimensional.reference.pitch_frequency;
-  const LcoPrediction p = describing_function_lco(c, grid(0.05, 12.0, 240), 60);
+  const LcoPrediction p = describing_function_lco(c, test::grid(0.05, 12.0, 240), 60);
   REQUIRE(p.available);
   CHECK(p.spring == kPitch);
   for (const auto& pt : p.points) {
@@ -100,7 +95,7 @@ TEST_CASE("Freeplay prediction joins the gap-open and gap-closed flutter speeds"
   // section 3). Benchmark section, pitch freeplay of half-gap 0.5 deg.
   const Case c = test::case_from(test::benchmark_2dof(
       "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n[simulation]\nduration = 1\n"));
-  const std::vector<double> speeds = grid(0.02, 10.0, 250);
+  const std::vector<double> speeds = test::grid(0.02, 10.0, 250);
   FlutterOptions o;
   o.speeds = speeds;
   o.pk = false;
@@ -127,7 +122,7 @@ TEST_CASE("Freeplay LCO below the gap-open flutter speed, predicted and simulate
   // speed, and the simulation (exact switching) finds it there.
   const std::string fp = "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n";
   const Case c = test::case_from(test::benchmark_2dof(fp + "[simulation]\nduration = 1\n"));
-  const std::vector<double> speeds = grid(0.02, 10.0, 250);
+  const std::vector<double> speeds = test::grid(0.02, 10.0, 250);
   FlutterOptions o;
   o.speeds = speeds;
   o.pk = false;

@@ -28,12 +28,6 @@ std::string textbook(const std::string& extra = "") {
       std::sqrt(6.0 / 25.0), extra);
 }
 
-std::vector<double> grid(double from, double to, int n) {
-  std::vector<double> s(n);
-  for (int i = 0; i < n; ++i) s[i] = from + (to - from) * i / (n - 1);
-  return s;
-}
-
 const MethodResult& method(const FlutterReport& r, std::size_t lin, const std::string& name) {
   for (const auto& m : r.results.at(lin).methods)
     if (m.method == name) return m;
@@ -52,7 +46,7 @@ double window_peak(const std::vector<double>& x, double a, double b) {
 
 FlutterOptions options(double from, double to, int n) {
   FlutterOptions o;
-  o.speeds = grid(from, to, n);
+  o.speeds = test::grid(from, to, n);
   return o;
 }
 }  // namespace
@@ -115,7 +109,7 @@ TEST_CASE("Modes are tracked continuously through the sweep", "[flutter]") {
   // sort-order tracking would jump at the frequency coalescence.
   const Case c = test::case_from(textbook());
   const RootSweep sw = state_space_sweep(c.model, nominal_spring_stiffness(c.model.section),
-                                              grid(0.01, 2.6, 260));
+                                              test::grid(0.01, 2.6, 260));
   for (std::size_t i = 1; i < sw.speeds.size(); ++i) {
     for (std::size_t j = 0; j < 2; ++j) {
       const double step = std::abs(sw.roots[i][j].eigenvalue - sw.roots[i - 1][j].eigenvalue);
@@ -182,7 +176,7 @@ TEST_CASE("3-DOF: state-space and p-k agree to the Wagner approximation's error"
   pr.section = c.model.section;
   pr.density = c.model.flow.density;
   pr.aerodynamics = PkAerodynamics::kWagnerApproximation;
-  const RootSweep sw = pk_sweep(pr, grid(0.02, 8.0, 200));
+  const RootSweep sw = pk_sweep(pr, test::grid(0.02, 8.0, 200));
   const Crossing x = pk_flutter(pr, sw, 1e-10);
   REQUIRE(x.found);
   CHECK(x.speed == Approx(ss.flutter.speed).epsilon(1e-7));

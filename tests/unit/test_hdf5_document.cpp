@@ -21,6 +21,7 @@
 #include <vector>
 
 #include "aerosect/error.hpp"
+#include "hdf5_helpers.hpp"
 #include "aerosect/io/hdf5_document.hpp"
 
 namespace fs = std::filesystem;
@@ -28,28 +29,16 @@ using aerosect::Hdf5Document;
 using aerosect::OutputError;
 using aerosect::RunMetadata;
 
+using aerosect::test::TempDir;
+using aerosect::test::text_attribute;
+using aerosect::test::numeric_attribute;
+using aerosect::test::dims_of;
+using aerosect::test::read_all;
+using aerosect::test::open_hdf5_objects;
+
 namespace {
 
-class TempDir {
- public:
-  TempDir() {
-    static std::atomic<int> counter{0};
-    path_ = fs::temp_directory_path() /
-            ("aerosect_doc_" + std::to_string(::getpid()) + "_" + std::to_string(counter++));
-    fs::remove_all(path_);
-    fs::create_directories(path_);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path_, ec);
-  }
-  std::string file(const std::string& name) const { return (path_ / name).string(); }
-
- private:
-  fs::path path_;
-};
-
-RunMetadata test_metadata() {
+RunMetadata document_metadata() {
   RunMetadata meta;
   meta.file_kind = "flutter";
   meta.title = "document test";
@@ -78,7 +67,7 @@ std::vector<double> speed_mode_values() {
 
 // The layout of a small flutter file, without committing it.
 void write_layout(Hdf5Document& doc) {
-  doc.metadata(test_metadata());
+  doc.metadata(document_metadata());
   doc.axis("speed", kSpeeds, "m s-1", "true airspeed");
   doc.integer_axis("mode", kModes, "mode number");
   doc.text_attribute("mode", "mode_names", "plunge,pitch,flap");
@@ -103,45 +92,6 @@ std::string write_document(const TempDir& dir, const std::string& name = "flutte
   write_layout(doc);
   doc.commit();
   return path;
-}
-
-std::string text_attribute(const H5::H5Object& object, const std::string& name) {
-  H5::Attribute a = object.openAttribute(name);
-  std::string value;
-  a.read(a.getStrType(), value);
-  while (!value.empty() && value.back() == '\0') value.pop_back();
-  return value;
-}
-
-template <typename T>
-T numeric_attribute(const H5::H5Object& object, const std::string& name,
-                    const H5::PredType& memory_type) {
-  T value{};
-  object.openAttribute(name).read(memory_type, &value);
-  return value;
-}
-
-std::vector<hsize_t> dims_of(const H5::DataSet& d) {
-  H5::DataSpace space = d.getSpace();
-  std::vector<hsize_t> dims(static_cast<std::size_t>(space.getSimpleExtentNdims()));
-  space.getSimpleExtentDims(dims.data());
-  return dims;
-}
-
-std::vector<double> read_all(const H5::DataSet& d) {
-  hsize_t n = 1;
-  for (auto k : dims_of(d)) n *= k;
-  std::vector<double> values(n);
-  if (n > 0) d.read(values.data(), H5::PredType::NATIVE_DOUBLE);
-  return values;
-}
-
-// HDF5 H5F docs (H5Fget_obj_count): open files, datasets, groups and
-// attributes of every file (datatypes left out: the C++ API keeps its
-// predefined types open).
-ssize_t open_hdf5_objects() {
-  return H5Fget_obj_count(static_cast<hid_t>(H5F_OBJ_ALL),
-                          H5F_OBJ_FILE | H5F_OBJ_DATASET | H5F_OBJ_GROUP | H5F_OBJ_ATTR);
 }
 
 // Runs `call` and returns the OutputError it throws (fails when it throws
@@ -571,12 +521,12 @@ TEST_CASE("HDF5 document: requests that do not fit throw OutputError and change 
   doc.number_attribute("nominal/state_space", "flutter_speed", 41.5);
   refused([&] { doc.number_attribute("nominal/state_space", "flutter_speed", 40.0); },
           "already written");
-  RunMetadata clash = test_metadata();
+  RunMetadata clash = document_metadata();
   clash.text_attributes.push_back({"title", "again"});
   refused([&] { doc.metadata(clash); }, "root attribute 'title' is empty, reserved or given twice");
   doc.text_attribute("", "caution", "written before the metadata");
-  refused([&] { doc.metadata(test_metadata()); }, "root attribute 'caution' already written");
-  RunMetadata meta = test_metadata();
+  refused([&] { doc.metadata(document_metadata()); }, "root attribute 'caution' already written");
+  RunMetadata meta = document_metadata();
   meta.text_attributes.erase(meta.text_attributes.begin());  // without the caution
   doc.metadata(meta);
   refused([&] { doc.metadata(meta); }, "the metadata was already written");

@@ -18,6 +18,7 @@
 #include <vector>
 
 #include "aerosect/error.hpp"
+#include "hdf5_helpers.hpp"
 #include "aerosect/io/hdf5_writer.hpp"
 
 namespace fs = std::filesystem;
@@ -28,26 +29,14 @@ using aerosect::OutputError;
 using aerosect::RunMetadata;
 using aerosect::RunOutcome;
 
+using aerosect::test::TempDir;
+using aerosect::test::text_attribute;
+using aerosect::test::numeric_attribute;
+using aerosect::test::dims_of;
+using aerosect::test::read_all;
+using aerosect::test::open_hdf5_objects;
+
 namespace {
-
-class TempDir {
- public:
-  TempDir() {
-    static std::atomic<int> counter{0};
-    path_ = fs::temp_directory_path() /
-            ("aerosect_h5_" + std::to_string(::getpid()) + "_" + std::to_string(counter++));
-    fs::remove_all(path_);
-    fs::create_directories(path_);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path_, ec);
-  }
-  std::string file(const std::string& name) const { return (path_ / name).string(); }
-
- private:
-  fs::path path_;
-};
 
 const Channel kTime{"time", "s", "time since the start of the run", 1, {}, ""};
 
@@ -61,7 +50,7 @@ std::vector<Channel> test_channels() {
 }
 constexpr int kRowWidth = 5;
 
-RunMetadata test_metadata() {
+RunMetadata writer_metadata() {
   RunMetadata meta;
   meta.file_kind = "simulation";
   meta.title = "writer test";
@@ -91,37 +80,6 @@ RunOutcome completed(std::int64_t samples) {
   return {true, "completed", samples, {{"steps", 321.0}, {"rhs_evaluations", 2000.0}}};
 }
 
-std::string text_attribute(const H5::H5Object& object, const std::string& name) {
-  H5::Attribute a = object.openAttribute(name);
-  std::string value;
-  a.read(a.getStrType(), value);
-  while (!value.empty() && value.back() == '\0') value.pop_back();
-  return value;
-}
-
-template <typename T>
-T numeric_attribute(const H5::H5Object& object, const std::string& name,
-                    const H5::PredType& memory_type) {
-  T value{};
-  object.openAttribute(name).read(memory_type, &value);
-  return value;
-}
-
-std::vector<hsize_t> dims_of(const H5::DataSet& d) {
-  H5::DataSpace space = d.getSpace();
-  std::vector<hsize_t> dims(static_cast<std::size_t>(space.getSimpleExtentNdims()));
-  space.getSimpleExtentDims(dims.data());
-  return dims;
-}
-
-std::vector<double> read_all(const H5::DataSet& d) {
-  hsize_t n = 1;
-  for (auto k : dims_of(d)) n *= k;
-  std::vector<double> values(n);
-  if (n > 0) d.read(values.data(), H5::PredType::NATIVE_DOUBLE);
-  return values;
-}
-
 void check_values(const std::string& path, std::size_t rows) {
   H5::H5File file(path, H5F_ACC_RDONLY);
   const auto time = read_all(file.openDataSet("time"));
@@ -142,18 +100,10 @@ void check_values(const std::string& path, std::size_t rows) {
   }
 }
 
-// HDF5 H5F docs (H5Fget_obj_count): open files, datasets, groups and
-// attributes of every file. Datatypes are left out: the C++ API keeps its
-// predefined types open for the life of the program.
-ssize_t open_hdf5_objects() {
-  return H5Fget_obj_count(static_cast<hid_t>(H5F_OBJ_ALL),
-                          H5F_OBJ_FILE | H5F_OBJ_DATASET | H5F_OBJ_GROUP | H5F_OBJ_ATTR);
-}
-
 std::string write_complete_run(const TempDir& dir, std::size_t rows, Hdf5WriterOptions options) {
   const std::string path = dir.file("run.h5");
   Hdf5TimeHistoryWriter w(path, options);
-  w.begin(kTime, test_channels(), test_metadata());
+  w.begin(kTime, test_channels(), writer_metadata());
   write_rows(w, rows);
   w.finish(completed(static_cast<std::int64_t>(rows)));
   REQUIRE(w.final_path() == path);
@@ -187,7 +137,7 @@ TEST_CASE("HDF5 writer: NaN values are stored as NaN", "[hdf5_writer]") {
   const std::string path = dir.file("nan.h5");
   {
     Hdf5TimeHistoryWriter w(path, {4, 4});
-    w.begin(kTime, test_channels(), test_metadata());
+    w.begin(kTime, test_channels(), writer_metadata());
     const double nan = std::numeric_limits<double>::quiet_NaN();
     for (std::size_t i = 0; i < 6; ++i) {
       std::vector<double> row{1.0, nan, nan, 2.0, std::numeric_limits<double>::infinity()};
@@ -359,7 +309,7 @@ TEST_CASE("HDF5 writer: a 2-D channel without an axis name gets its own axis", "
   const std::string path = dir.file("axis.h5");
   {
     Hdf5TimeHistoryWriter w(path);
-    w.begin(kTime, {{"forces", "N m-1", "forces", 3, {"x", "y", "z"}, ""}}, test_metadata());
+    w.begin(kTime, {{"forces", "N m-1", "forces", 3, {"x", "y", "z"}, ""}}, writer_metadata());
     const std::vector<double> row{1, 2, 3};
     w.append(0.0, row);
     w.finish(completed(1));
@@ -401,7 +351,7 @@ TEST_CASE("HDF5 writer: temporary file and final renames", "[hdf5_writer]") {
 
   SECTION("the data goes to path.part until finish()") {
     Hdf5TimeHistoryWriter w(path, {4, 4});
-    w.begin(kTime, test_channels(), test_metadata());
+    w.begin(kTime, test_channels(), writer_metadata());
     write_rows(w, 9);
     REQUIRE(w.temporary_path() == path + ".part");
     REQUIRE(fs::exists(path + ".part"));
@@ -431,7 +381,7 @@ TEST_CASE("HDF5 writer: temporary file and final renames", "[hdf5_writer]") {
   SECTION("an incomplete run never replaces a complete result") {
     { std::ofstream(path) << "complete result"; }
     Hdf5TimeHistoryWriter w(path, {4, 4});
-    w.begin(kTime, test_channels(), test_metadata());
+    w.begin(kTime, test_channels(), writer_metadata());
     write_rows(w, 6);
     w.finish({false, "numerical-error: state is NaN", 6, {{"steps", 17.0}}});
     const std::string incomplete = dir.file("run.incomplete.h5");
@@ -453,7 +403,7 @@ TEST_CASE("HDF5 writer: temporary file and final renames", "[hdf5_writer]") {
   SECTION("destroying the writer before finish() removes the temporary file") {
     {
       Hdf5TimeHistoryWriter w(path, {4, 4});
-      w.begin(kTime, test_channels(), test_metadata());
+      w.begin(kTime, test_channels(), writer_metadata());
       write_rows(w, 9);
       REQUIRE(fs::exists(path + ".part"));
     }
@@ -474,7 +424,7 @@ TEST_CASE("HDF5 writer: unwritable places throw OutputError", "[hdf5_writer]") {
     const std::string path = plain_file + "/run.h5";
     Hdf5TimeHistoryWriter w(path);
     try {
-      w.begin(kTime, test_channels(), test_metadata());
+      w.begin(kTime, test_channels(), writer_metadata());
       FAIL("begin() did not throw");
     } catch (const OutputError& e) {
       // POSIX open(2): ENOTDIR when a path component is not a directory.
@@ -491,7 +441,7 @@ TEST_CASE("HDF5 writer: unwritable places throw OutputError", "[hdf5_writer]") {
   SECTION("a directory that does not exist") {
     const std::string path = dir.file("missing/run.h5");
     Hdf5TimeHistoryWriter w(path);
-    REQUIRE_THROWS_AS(w.begin(kTime, test_channels(), test_metadata()), OutputError);
+    REQUIRE_THROWS_AS(w.begin(kTime, test_channels(), writer_metadata()), OutputError);
     REQUIRE_FALSE(fs::exists(dir.file("missing")));
   }
 
@@ -499,6 +449,6 @@ TEST_CASE("HDF5 writer: unwritable places throw OutputError", "[hdf5_writer]") {
     const std::string path = dir.file("result_dir");
     fs::create_directory(path);
     Hdf5TimeHistoryWriter w(path);
-    REQUIRE_THROWS_AS(w.begin(kTime, test_channels(), test_metadata()), OutputError);
+    REQUIRE_THROWS_AS(w.begin(kTime, test_channels(), writer_metadata()), OutputError);
   }
 }

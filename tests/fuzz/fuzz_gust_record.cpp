@@ -13,8 +13,6 @@
 #include <fstream>
 #include <string>
 
-#include <unistd.h>
-
 #include "aerosect/error.hpp"
 #include "aerosect/io/gust_record.hpp"
 #include "fuzz_check.hpp"
@@ -22,11 +20,9 @@
 namespace {
 const std::string& scratch_path() {
 #ifdef AEROSECT_FUZZ_GUST_HDF5
-  static const std::string p = (std::filesystem::temp_directory_path() /
-                                ("aerosect_fuzz_gust_" + std::to_string(::getpid()) + ".h5")).string();
+  static const std::string p = aerosect::fuzz::scratch_file("_gust.h5");
 #else
-  static const std::string p = (std::filesystem::temp_directory_path() /
-                                ("aerosect_fuzz_gust_" + std::to_string(::getpid()) + ".csv")).string();
+  static const std::string p = aerosect::fuzz::scratch_file("_gust.csv");
 #endif
   return p;
 }

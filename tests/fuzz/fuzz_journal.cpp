@@ -19,14 +19,11 @@
 #include <cstddef>
 #include <cstdint>
 #include <cstdlib>
-#include <filesystem>
 #include <fstream>
 #include <optional>
 #include <set>
 #include <string>
 #include <tuple>
-
-#include <unistd.h>
 
 #include <nlohmann/json.hpp>
 
@@ -39,8 +36,7 @@
 namespace {
 
 const std::string& scratch_path() {
-  static const std::string p = (std::filesystem::temp_directory_path() /
-                                ("aerosect_fuzz_" + std::to_string(::getpid()) + ".h5.journal")).string();
+  static const std::string p = aerosect::fuzz::scratch_file(".h5.journal");
   return p;
 }
 

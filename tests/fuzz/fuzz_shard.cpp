@@ -16,23 +16,13 @@
 #include <fstream>
 #include <string>
 
-#include <unistd.h>
-
 #include "aerosect/analysis/sweep.hpp"
 #include "aerosect/error.hpp"
 #include "fuzz_check.hpp"
 
-namespace {
-
-std::string scratch(const std::string& suffix) {
-  return (std::filesystem::temp_directory_path() / ("aerosect_fuzz_shard_" + std::to_string(::getpid()) + suffix))
-      .string();
-}
-
-}  // namespace
-
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
-  static const std::string input = scratch(".h5"), output = scratch("_merged.h5");
+  static const std::string input = aerosect::fuzz::scratch_file("_shard.h5"),
+                           output = aerosect::fuzz::scratch_file("_merged.h5");
   {
     std::ofstream out(input, std::ios::binary | std::ios::trunc);
     out.write(reinterpret_cast<const char*>(data), static_cast<std::streamsize>(size));

@@ -171,6 +171,13 @@ Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
     if (!fs::is_regular_file(status))
       throw InputError({path_, 0, 0}, "", "", "the sweep journal is not a regular file",
                        "a regular file written by aerosect, or no file (choose another -o)");
+    const std::uintmax_t file_bytes = fs::file_size(path_, ec);
+    if (!ec && file_bytes > kMaxJournalBytes)
+      throw InputError({path_, 0, 0}, "", "",
+                       fmt::format("the sweep journal is {} bytes, more than a journal may hold ({} bytes, {} GiB)",
+                                   file_bytes, kMaxJournalBytes, kMaxJournalBytes >> 30),
+                       "a journal written by aerosect sweep (a sweep of the largest size writes about a third of "
+                       "that), or remove it / choose another -o to start the sweep again");
     std::ifstream in(path_, std::ios::binary);
     if (!in) throw OutputError(path_, fmt::format("cannot read the journal: {}", std::strerror(errno)));
     std::string line;

@@ -7,18 +7,12 @@
 #include <cstddef>
 #include <cstdint>
 #include <cstdlib>
-#include <cstdio>
 #include <string>
 
 #include "aerosect/error.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/model/system.hpp"
-
-namespace {
-// One screen (the rule of tests/integration/test_bad_input.py): at most 25
-// lines after wrapping at 100 columns; 2500 characters bounds their size.
-constexpr std::size_t kMaxMessage = 2500;
-}  // namespace
+#include "fuzz_check.hpp"
 
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
   const std::string text(reinterpret_cast<const char*>(data), size);
@@ -27,14 +21,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
     const aerosect::AeroelasticModel model(c.model);
     if (model.state_size() <= 0) std::abort();
   } catch (const aerosect::InputError& e) {
-    const std::string screen = aerosect::wrapped(e.what());
-    std::size_t lines = 1;
-    for (char ch : screen) lines += ch == '\n';
-    if (screen.size() > kMaxMessage || lines > 25) {
-      std::fprintf(stderr, "message longer than one screen (%zu characters, %zu lines):\n%s\n",
-                   screen.size(), lines, screen.c_str());
-      std::abort();
-    }
+    aerosect::fuzz::check_one_screen(e);
   }
   return 0;
 }

@@ -8,27 +8,21 @@
 // increasing base, equal lengths) is a finding.
 #include <cstddef>
 #include <cstdint>
-#include <cstdio>
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>
 #include <string>
 
-#include <unistd.h>
-
 #include "aerosect/error.hpp"
 #include "aerosect/io/gust_record.hpp"
+#include "fuzz_check.hpp"
 
 namespace {
-constexpr std::size_t kMaxMessage = 2500;  // one screen, as in fuzz_case.cpp
-
 const std::string& scratch_path() {
 #ifdef AEROSECT_FUZZ_GUST_HDF5
-  static const std::string p = (std::filesystem::temp_directory_path() /
-                                ("aerosect_fuzz_gust_" + std::to_string(::getpid()) + ".h5")).string();
+  static const std::string p = aerosect::fuzz::scratch_file("_gust.h5");
 #else
-  static const std::string p = (std::filesystem::temp_directory_path() /
-                                ("aerosect_fuzz_gust_" + std::to_string(::getpid()) + ".csv")).string();
+  static const std::string p = aerosect::fuzz::scratch_file("_gust.csv");
 #endif
   return p;
 }
@@ -47,14 +41,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
     for (std::size_t i = 1; i < r.base.size(); ++i)
       if (!(r.base[i] > r.base[i - 1])) std::abort();
   } catch (const aerosect::InputError& e) {
-    const std::string screen = aerosect::wrapped(e.what());
-    std::size_t lines = 1;
-    for (char ch : screen) lines += ch == '\n';
-    if (screen.size() > kMaxMessage || lines > 25) {
-      std::fprintf(stderr, "message longer than one screen (%zu characters, %zu lines):\n%s\n",
-                   screen.size(), lines, screen.c_str());
-      std::abort();
-    }
+    aerosect::fuzz::check_one_screen(e);
   }
   return 0;
 }

@@ -126,6 +126,16 @@ with tempfile.TemporaryDirectory() as tmp:
     r = with_journal(good)
     refused("journal of format 2", r, journal, "format")
     head["format"] = 3
+    # A journal larger than its cap (32 GiB, README "Limits") is refused
+    # before any of it is read, with its size and the cap, and kept: a sparse
+    # file (truncate), so the check stays fast.
+    cap = 32 << 30
+    with open(journal, "w") as out:
+        out.write(json.dumps(head) + "\n")
+    os.truncate(journal, cap + 1)
+    r = run("sweep", DEMO, *SWEEP, "-o", mp)
+    refused("journal beyond the cap", r, journal, str(cap + 1), str(cap))
+    check("journal beyond the cap: journal kept", os.path.getsize(journal) == cap + 1)
     os.remove(journal)
 
     # --- shards ---------------------------------------------------------------

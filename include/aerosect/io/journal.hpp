@@ -28,8 +28,9 @@
 // than kMaxJournalLine) is skipped, kept in the file, counted and reported
 // in `notes()`: the records before and after it are kept.
 // The identity is compared as a whole; a journal of another identity is
-// refused naming the identity's fields that differ. Only regular files are
-// read (a FIFO or a device is refused).
+// refused naming the identity's fields that differ. Only regular files of at
+// most kMaxJournalBytes are read (a FIFO, a device or a larger file is
+// refused).
 
 #include <cstdint>
 #include <fstream>
@@ -44,6 +45,13 @@ namespace aerosect {
 
 // The longest record line read back; a longer line counts as damaged.
 inline constexpr std::size_t kMaxJournalLine = 64u << 20;  // 64 MiB
+// The largest journal read back; a larger file is refused (InputError naming
+// the file, its size and this cap) before any of it is read. A sweep's point
+// record is about 1.3 kB (2 DOFs) to 1.8 kB (3 DOFs), 10.3 kB with --traces
+// (3 DOFs, 128 samples per cycle): a journal of the largest sweep
+// (kMaxSweepPoints, 1 000 000 points) with traces is about 10.3 GB, a third
+// of the cap.
+inline constexpr std::uintmax_t kMaxJournalBytes = std::uintmax_t{32} << 30;  // 32 GiB
 
 // FNV-1a 64-bit digest of `bytes` as 16 lower-case hex digits: the
 // journal's line check, and a fingerprint of an input's contents for an

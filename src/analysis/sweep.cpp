@@ -50,10 +50,10 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
   p.j = j;
   p.value1 = o.axes[0].values[static_cast<std::size_t>(i)];
   p.value2 = o.axes.size() > 1 ? o.axes[1].values[static_cast<std::size_t>(j)] : 0.0;
-  std::vector<std::string> ov = r.overrides;
+  std::vector<std::string> ov;
   ov.push_back(fmt::format("{}={:.17g}", o.axes[0].key, p.value1));
   if (o.axes.size() > 1) ov.push_back(fmt::format("{}={:.17g}", o.axes[1].key, p.value2));
-  const Case c = parse_case(r.case_text, r.case_path, ov);
+  const Case c = sweep_point_case(r, ov);
   const AeroelasticModel model(c.model);
   RunState run;
   // A divergent or failed point's final state is no start for the next.
@@ -104,7 +104,39 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
 
 }  // namespace
 
+Case sweep_point_case(const SweepRequest& r, const std::vector<std::string>& point_overrides) {
+  std::vector<std::string> ov = r.overrides;
+  ov.insert(ov.end(), point_overrides.begin(), point_overrides.end());
+  Case c = parse_case(r.case_text, r.case_path, ov);
+  if (!r.options.with_gusts) c.model.gusts = GustField();
+  return c;
+}
+
+std::string sweep_gust_note(const Case& c, const SweepRequest& r) {
+  const std::size_t n = c.model.gusts.profiles().size();
+  if (n == 0) return "none in the case";
+  if (r.options.with_gusts) return fmt::format("included (the case's {} [[gust]] table{})", n, n == 1 ? "" : "s");
+  return fmt::format("left out (the case's {} [[gust]] table{} not run; --with-gusts runs them)", n,
+                     n == 1 ? " is" : "s are");
+}
+
+namespace {
+bool is_gust_key(const std::string& key) { return key.rfind("gust.", 0) == 0; }
+}  // namespace
+
 void check_swept_values(const SweepRequest& r) {
+  if (!r.options.with_gusts) {
+    for (const auto& ax : r.options.axes)
+      if (is_gust_key(ax.key))
+        throw InputError({"--vary " + ax.key, 0, 0}, "--vary", ax.key,
+                         "varies a [[gust]] key, but the sweep leaves the case's gusts out",
+                         "--with-gusts to run the gusts at every point, or a key outside [[gust]]");
+    for (const auto& o : r.overrides)
+      if (is_gust_key(o.substr(0, o.find('='))))
+        throw InputError({"--set " + o, 0, 0}, "--set", o,
+                         "sets a [[gust]] key, but the sweep leaves the case's gusts out",
+                         "--with-gusts to run the gusts at every point, or no --set of a [[gust]] key");
+  }
   for (const auto& ax : r.options.axes)
     for (double v : ax.values) {
       std::vector<std::string> o2 = r.overrides;
@@ -183,6 +215,7 @@ nlohmann::json request_json(const SweepRequest& r) {
   id["continuation"] = r.options.continuation;
   id["shard"] = {r.options.shard_index, r.options.shard_count};
   id["traces"] = r.options.traces;
+  id["with_gusts"] = r.options.with_gusts;
   id["cycle_samples"] = r.options.cycle.samples;
   id["harmonics"] = r.options.cycle.harmonics;
   return id;
@@ -233,6 +266,7 @@ SweepRequest request_from_json(const nlohmann::json& j) {
   r.options.shard_index = j.at("shard").at(0);
   r.options.shard_count = j.at("shard").at(1);
   r.options.traces = j.value("traces", false);
+  r.options.with_gusts = j.value("with_gusts", false);
   r.options.cycle.samples = j.value("cycle_samples", CycleSettings{}.samples);
   r.options.cycle.harmonics = j.value("harmonics", CycleSettings{}.harmonics);
   return r;
@@ -356,6 +390,8 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
     j["vary"].push_back({{"key", ax.key}, {"from", ax.values.front()}, {"to", ax.values.back()},
                          {"count", ax.values.size()}});
   j["continuation"] = r.options.continuation;
+  j["gusts_included"] = r.options.with_gusts && !c.model.gusts.empty();
+  j["gusts"] = sweep_gust_note(c, r);
   j["points_computed"] = p.size();
   const SweepSummary s = summarize(p);
   auto opt = [](const std::optional<double>& v) { return v ? nlohmann::json(*v) : nlohmann::json(nullptr); };
@@ -385,8 +421,9 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   for (const auto& ax : r.options.axes)
     t += fmt::format("  {} from {:.6g} to {:.6g} ({} values)\n", ax.key, ax.values.front(),
                      ax.values.back(), ax.values.size());
-  t += fmt::format("  {}; {} points\n\n", r.options.continuation ? "continuation" : "fresh starts",
+  t += fmt::format("  {}; {} points\n", r.options.continuation ? "continuation" : "fresh starts",
                    p.size());
+  t += fmt::format("  gusts: {}\n\n", sweep_gust_note(c, r));
   t += fmt::format("  {:>4} {:>14} {:>13} {:>12} {:>10} {:>7}\n", "dir", r.options.axes[0].key, "class",
                    "amplitude", "freq Hz", "cycles");
   for (const auto& q : p) {
@@ -654,6 +691,7 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
                         const FlutterReport* overlay) {
   RunMetadata meta = case_metadata(c, "sweep");
   meta.text_attributes.push_back({"continuation", r.options.continuation ? "continue" : "fresh"});
+  meta.text_attributes.push_back({"gusts", sweep_gust_note(c, r)});
   doc.metadata(meta);
   const auto& o = r.options;
   const SweepTables t = sweep_tables(r, c.model.section.dof);
@@ -821,7 +859,7 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
     request = req;
     count = n;
     shards.push_back(k);
-    const int ndof = parse_case(shard.case_text, shard.case_path, shard.overrides).model.section.dof;
+    const int ndof = sweep_point_case(shard).model.section.dof;
     read_shard_points(path, shard, sweep_tables(shard, ndof), merged);
   }
   if (!request || static_cast<int>(shards.size()) != count)

@@ -327,3 +327,27 @@ TEST_CASE("The map's tables are the layout's fields, written through the sink ha
   CHECK(m.tables.count("lco_prediction/value") == 0);
   CHECK(m.numbers.count("@linear_flutter_value") == 0);
 }
+
+TEST_CASE("A sweep leaves the case's gusts out unless asked", "[sweep][gust]") {
+  // Common practice, no source: a gust response is no limit cycle
+  // (README, "LCO sweeps"). With a strong sharp-edged gust the default
+  // sweep's points equal those of the same case without the gust; with
+  // with_gusts they differ. Gust keys of a sweep without gusts are refused.
+  SweepRequest plain = request(3, 1);
+  SweepRequest gusty = plain;
+  gusty.case_text += "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\nstart_semichords = 20\n";
+  const auto a = run_sweep(plain, {}, {});
+  const auto b = run_sweep(gusty, {}, {});
+  REQUIRE(a.size() == b.size());
+  for (std::size_t k = 0; k < a.size(); ++k) CHECK(a[k].final_state == b[k].final_state);
+  CHECK(sweep_gust_note(parse_case(gusty.case_text, "g.toml"), gusty).rfind("left out", 0) == 0);
+  gusty.options.with_gusts = true;
+  const auto g = run_sweep(gusty, {}, {});
+  REQUIRE(g.size() == a.size());
+  CHECK(g[0].final_state.size() > a[0].final_state.size());  // the Küssner lag states ride along
+  gusty.options.with_gusts = false;
+  gusty.overrides = {"gust.1.amplitude=2"};
+  CHECK_THROWS_AS(check_swept_values(gusty), InputError);
+  gusty.options.with_gusts = true;
+  CHECK_NOTHROW(check_swept_values(gusty));
+}

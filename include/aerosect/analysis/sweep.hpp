@@ -55,6 +55,10 @@ struct SweepOptions {
   LcoSettings lco;
   CycleSettings cycle;
   bool traces = false;  // keep the sampled settled cycle of each periodic point
+  // The case's [[gust]] entries are left out unless asked: a gust response
+  // is no limit cycle, and a map point is a property of the section at that
+  // value, not of one encounter. With gusts, every point runs them.
+  bool with_gusts = false;
 };
 
 struct SweepPoint {
@@ -79,9 +83,21 @@ struct SweepRequest {
 };
 
 // Throws InputError when a swept value is rejected by the case reader
-// (each axis value as an override of the case); a caller checks this before
-// it makes any file for the sweep.
+// (each axis value as an override of the case), or when a swept key or an
+// override sets a [[gust]] entry of a sweep that leaves the gusts out
+// (it would change nothing); a caller checks this before it makes any file
+// for the sweep.
 void check_swept_values(const SweepRequest& r);
+
+// The case of one sweep point: the request's case with its overrides and
+// `point_overrides` (the swept values), without its gusts unless the
+// request asks for them.
+Case sweep_point_case(const SweepRequest& r, const std::vector<std::string>& point_overrides = {});
+
+// What the sweep did with the case's gusts, in words (the text summary, the
+// JSON and the map's `gusts` attribute): "none in the case", "included"
+// or "left out (...)".
+std::string sweep_gust_note(const Case& c, const SweepRequest& r);
 
 // Runs every chain; returns all points (done ones included), sorted by
 // (direction, j, i). Throws InputError when a swept value is rejected by the

@@ -396,6 +396,10 @@ void lco_sweep_rows(Study& s, const LcoSweepRun& run) {
   else
     s.rows.text("hysteresis", "Hysteresis band", "none seen at this speed spacing",
                 "sweep.h5: " + cls + ", both directions");
+  if (const std::size_t n = unsettled_points(pts); n > 0)
+    s.rows.text("lco_unsettled", "Sweep points that did not settle", fmt::format("{} (class unsettled: not an answer)", n),
+                "sweep.h5: " + cls + " = 5",
+                fmt::format("runs extended to {:g} times their length without settling", kSweepRunCap));
   // Where any LCO was found, either direction.
   std::optional<double> first, last;
   for (const auto& p : pts)

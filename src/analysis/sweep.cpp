@@ -72,13 +72,19 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
   }
   LcoTracker tracker(model, o.lco);
   try {
-    const IntegrationResult res =
-        integrate(model, run, c.simulation.duration, c.simulation.integrator,
-                  OutputSchedule::none(),
-                  {{}, [&tracker](int dof, double t, const std::vector<double>& x) {
-                     return tracker.on_peak(dof, t, x);
-                   }, cancel});
-    if (res.reason == StopReason::kCancelled) return std::nullopt;
+    // The case's run length, then more of it while the motion has not
+    // settled (no class decided, not stationary), up to the cap.
+    const double segment = c.simulation.duration;
+    const double cap = kSweepRunCap * segment;
+    for (double end = segment;; end = std::min(cap, end + segment)) {
+      const IntegrationResult res =
+          integrate(model, run, end, c.simulation.integrator, OutputSchedule::none(),
+                    {{}, [&tracker](int dof, double t, const std::vector<double>& x) {
+                       return tracker.on_peak(dof, t, x);
+                     }, cancel});
+      if (res.reason == StopReason::kCancelled) return std::nullopt;
+      if (tracker.decided() || tracker.stationary() || end >= cap) break;
+    }
     p.lco = tracker.result();
     // A settled cycle: one more period, sampled, for RMS and harmonics.
     if (p.lco.response == ResponseClass::kPeriodic && p.lco.frequency > 0) {
@@ -284,6 +290,8 @@ nlohmann::json point_json(const SweepPoint& p) {
   j["error"] = p.error;
   j["class"] = to_string(p.lco.response);
   j["class_code"] = static_cast<int>(p.lco.response);
+  j["decay_reason"] = p.lco.response == ResponseClass::kDecayed ? nlohmann::json(to_string(p.lco.decay_reason))
+                                                                : nlohmann::json(nullptr);
   j["watched_dof"] = p.lco.watched_dof;
   j["cycles"] = p.lco.cycles;
   j["frequency_hz"] = p.lco.frequency;
@@ -317,10 +325,12 @@ nlohmann::json point_json(const SweepPoint& p) {
 JournalHead sweep_journal_head(const SweepRequest& r) {
   JournalHead h;
   h.kind = "sweep";
-  // 3: point records generated from the layout (point_record). Older formats
-  // are refused with journal.cpp's message: 1 had the request as the head
-  // line, 1 and 2 the point records in the --json form.
-  h.format = 3;
+  // 3: point records generated from the layout (point_record); 4: the class
+  // unsettled (5), decay_reason, the orbit refinement's fields and the
+  // request's with_gusts. Older formats are refused with journal.cpp's
+  // message: 1 had the request as the head line, 1 and 2 the point records
+  // in the --json form, 3 no refinement and another meaning of the classes.
+  h.format = 4;
   h.identity = request_json(r);
   return h;
 }
@@ -382,6 +392,19 @@ SweepSummary summarize(const std::vector<SweepPoint>& points, int jj) {
 }
 
 
+std::size_t unsettled_points(const std::vector<SweepPoint>& points) {
+  return static_cast<std::size_t>(std::count_if(points.begin(), points.end(), [](const SweepPoint& q) {
+    return q.ok && q.lco.response == ResponseClass::kUnsettled;
+  }));
+}
+
+std::string unsettled_warning(const Case& c, std::size_t n) {
+  return fmt::format("{} point{} did not settle within {:g} times the case's run length ({:.4g} s): class "
+                     "'unsettled', their amplitudes are not an answer (the motion was still growing or dying "
+                     "out); run them longer with --set simulation.duration=...",
+                     n, n == 1 ? "" : "s", kSweepRunCap, kSweepRunCap * c.simulation.duration);
+}
+
 nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
                           const std::string& output) {
   nlohmann::json j = report_header(c, "sweep");
@@ -403,6 +426,11 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
     j["hysteresis_band"] = nullptr;
   j["largest_amplitude"] = opt(s.largest_amplitude);
   j["largest_amplitude_at"] = s.largest_amplitude ? nlohmann::json(s.largest_at) : nlohmann::json(nullptr);
+  j["run_cap_factor"] = kSweepRunCap;
+  const std::size_t unsettled = unsettled_points(p);
+  j["unsettled_points"] = unsettled;
+  j["warnings"] = nlohmann::json::array();
+  if (unsettled > 0) j["warnings"].push_back(unsettled_warning(c, unsettled));
   j["points"] = nlohmann::json::array();
   for (const auto& q : p) {
     nlohmann::json pj = point_json(q);
@@ -447,6 +475,8 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   if (s.largest_amplitude)
     t += fmt::format("  largest LCO amplitude of the {}: {:.5g} at {:.6g}\n",
                      kDofNames[p.front().lco.watched_dof], *s.largest_amplitude, s.largest_at);
+  if (const std::size_t unsettled = unsettled_points(p); unsettled > 0)
+    t += "\n  warning: " + unsettled_warning(c, unsettled) + "\n";
   if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
   t += "\n";
   t += kSafetyCaution;
@@ -518,13 +548,19 @@ SweepTables sweep_tables(const SweepRequest& r, int ndof) {
   t.traces = o.traces;
   auto& P = t.point;
   P.push_back(scalar(
-      "response_class", "1", "0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed (NaN: not run)",
+      "response_class", "1",
+      "0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed, 5 unsettled (NaN: not run)",
       [](const SweepPoint& p) { return p.ok ? static_cast<double>(p.lco.response) : 4.0; },
       [](SweepPoint& p, double v) {
         p.ok = v != 4.0;
-        p.lco.response = p.ok ? static_cast<ResponseClass>(static_cast<int>(v)) : ResponseClass::kNonPeriodic;
+        p.lco.response = p.ok ? static_cast<ResponseClass>(static_cast<int>(v)) : ResponseClass::kUnsettled;
       },
-      "0, 1, 2, 3 or 4", [](double v) { return v == 0 || v == 1 || v == 2 || v == 3 || v == 4; }));
+      "0, 1, 2, 3, 4 or 5", [](double v) { return v == 0 || v == 1 || v == 2 || v == 3 || v == 4 || v == 5; }));
+  P.push_back(scalar(
+      "decay_reason", "1", "why a decayed point is decayed: 1 to rest, 2 into the gap (0: not decayed)",
+      [](const SweepPoint& p) { return static_cast<double>(p.lco.decay_reason); },
+      [](SweepPoint& p, double v) { p.lco.decay_reason = static_cast<DecayReason>(static_cast<int>(v)); }, "0, 1 or 2",
+      [](double v) { return v == 0 || v == 1 || v == 2; }));
   P.push_back(scalar("frequency", "Hz", "LCO frequency", [](const SweepPoint& p) { return p.lco.frequency; },
                      [](SweepPoint& p, double v) { p.lco.frequency = v; }));
   P.push_back(scalar(
@@ -600,6 +636,7 @@ nlohmann::json point_record(const SweepPoint& p, const SweepTables& t) {
   // A failed point's table class is 4; the detector's class before the
   // failure is kept for the summaries (the --json `class`).
   if (!p.ok) j["class_before_failure"] = static_cast<int>(p.lco.response);
+
   layout_to_json(j, t.point, p);
   layout_to_json(j, t.cycle, p);
   if (p.cycle.samples > 0) j["cycle_period"] = json_number(p.cycle.period);
@@ -652,8 +689,12 @@ SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, con
   else
     throw fail("stopped_early", e, "is not true or false", "true or false");
   layout_from_json(j, t.point, p, where, written);
-  if (!p.ok && j.contains("class_before_failure"))
-    p.lco.response = static_cast<ResponseClass>(integer("class_before_failure", 0, 3));
+  if (!p.ok && j.contains("class_before_failure")) {
+    const auto before = integer("class_before_failure", 0, 5);
+    if (before == 4) throw fail("class_before_failure", before, "is not a detector's class", "0, 1, 2, 3 or 5");
+    p.lco.response = static_cast<ResponseClass>(before);
+  }
+
   // A settled cycle is recorded for periodic points only: its fields are all
   // there or none is.
   if (!t.cycle.empty() && j.contains(t.cycle.front().name)) {

@@ -92,7 +92,10 @@ TEST_CASE("Sweep classes: decay at low speed, LCO with freeplay, divergence past
                                        "duration_semichords = 3000\n");
   lin.options.axes[0].values = {2.0, 4.0, 6.0};
   lin.options.down = false;
-  for (const auto& p : run_sweep(lin, {}, {})) CHECK(p.lco.response == ResponseClass::kDecayed);
+  for (const auto& p : run_sweep(lin, {}, {})) {
+    CHECK(p.lco.response == ResponseClass::kDecayed);
+    CHECK(p.lco.decay_reason == DecayReason::kToRest);  // a linear section has no gap
+  }
   SweepRequest fp = request(3, 1);
   fp.options.axes[0].values = {4.0, 5.0, 7.0};
   fp.options.down = false;
@@ -350,4 +353,59 @@ TEST_CASE("A sweep leaves the case's gusts out unless asked", "[sweep][gust]") {
   CHECK_THROWS_AS(check_swept_values(gusty), InputError);
   gusty.options.with_gusts = true;
   CHECK_NOTHROW(check_swept_values(gusty));
+}
+
+TEST_CASE("A run that has not settled is extended, then classed unsettled, never decayed", "[sweep]") {
+  // Hopf normal form (Kuznetsov, Elements of Applied Bifurcation Theory,
+  // ch. 3): just above the linear flutter speed U*_L = 6.2851 (Lee, Price &
+  // Wong 1999) a hardening cubic pitch spring holds a small stable cycle and
+  // the approach to it is slow (the cycle's multiplier tends to 1 at the
+  // Hopf point). At U* = 6.3 a 1-degree start has not settled within 10 x
+  // 100 semichords (the cap, kSweepRunCap): class unsettled, with the run
+  // extended to the cap and the warning counted; with a 3000-semichord run
+  // the same point settles on its LCO (periodic).
+  SweepRequest r = request(2, 1);
+  r.case_text = test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"cubic\"\ncubic_coefficient = 3.0\n[initial]\npitch_deg = 1.0\n"
+      "[simulation]\nduration_semichords = 100\n");
+  r.options.axes[0].values = {6.3, 6.35};
+  r.options.down = false;
+  r.options.continuation = false;
+  const auto pts = run_sweep(r, {}, {});
+  const Case c = parse_case(r.case_text, "u.toml", {"nondimensional.reduced_speed=6.3"});
+  for (const auto& p : pts) {
+    CHECK(p.lco.response == ResponseClass::kUnsettled);
+    CHECK(p.end_time == Approx(kSweepRunCap * c.simulation.duration).epsilon(0.05));
+  }
+  CHECK(unsettled_points(pts) == 2);
+  CHECK(sweep_json(c, r, pts, "")["unsettled_points"] == 2);
+  CHECK(sweep_json(c, r, pts, "")["warnings"].size() == 1);
+  CHECK(sweep_text(c, r, pts, "").find("warning: 2 points did not settle") != std::string::npos);
+  r.case_text = test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"cubic\"\ncubic_coefficient = 3.0\n[initial]\npitch_deg = 1.0\n"
+      "[simulation]\nduration_semichords = 3000\n");
+  for (const auto& p : run_sweep(r, {}, {})) CHECK(p.lco.response == ResponseClass::kPeriodic);
+}
+
+TEST_CASE("Stationary motion: a trend is not stationary, scatter about a level is", "[lco]") {
+  // Common practice, no source: the stationarity test of lco.hpp (window
+  // means within three standard errors) on synthetic peak sequences fed to
+  // the tracker: a sawtooth-modulated cycle about a fixed level is
+  // stationary, an exponentially growing one is not.
+  const Case c = test::case_from(test::benchmark_2dof("[simulation]\nduration_semichords = 10\n", 7.0));
+  const AeroelasticModel model(c.model);
+  auto feed = [&](auto amplitude_of) {
+    LcoTracker t(model, {});
+    std::vector<double> x(static_cast<std::size_t>(model.state_size()), 0.0);
+    const int at = model.layout().displacement + kPitch;
+    for (int n = 0; n < 60; ++n) {
+      x[static_cast<std::size_t>(at)] = amplitude_of(n);
+      t.on_peak(kPitch, 2.0 * n, x);
+      x[static_cast<std::size_t>(at)] = -amplitude_of(n);
+      t.on_peak(kPitch, 2.0 * n + 1.0, x);
+    }
+    return t.stationary();
+  };
+  CHECK(feed([](int n) { return 0.01 * (1.0 + 0.3 * ((n * 7) % 5 - 2) / 2.0); }));
+  CHECK_FALSE(feed([](int n) { return 0.01 * std::exp(0.02 * n); }));
 }

@@ -167,6 +167,15 @@ std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepR
 // Points this request (this shard) computes.
 std::size_t sweep_point_count(const SweepRequest& r);
 
+// A point's run: the case's run length, extended by that length at a time
+// while the motion has not settled (no class decided and not stationary,
+// lco.hpp), up to kSweepRunCap times it; still unsettled then, the point is
+// classed unsettled and the summaries warn.
+inline constexpr double kSweepRunCap = 10.0;
+// Unsettled points (ok ones classed unsettled), and the warning about them.
+std::size_t unsettled_points(const std::vector<SweepPoint>& points);
+std::string unsettled_warning(const Case& c, std::size_t n);
+
 struct SweepSummary {
   std::optional<double> onset_up;         // first periodic value going up (axis 1)
   std::optional<double> disappearance_down;  // last periodic value going down

@@ -139,6 +139,7 @@ ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>&
     }
     if (settled) {
       lag_ = lag;
+      periodic_state_ = x;
       decided_ = ResponseClass::kPeriodic;
       decided_flag_ = true;
       return ObserverAction::kStop;

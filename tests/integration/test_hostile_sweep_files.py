@@ -52,7 +52,7 @@ def record_from_map(f, d, i):
     """A journal record (format 4) of the point (direction d, i) built from
     the map's own tables: the fields by their dataset names."""
     rec = {"direction": d, "i": i, "j": 0, "value1": float(f["value_1"][i]), "value2": 0.0,
-           "error": "", "watched_dof": 1,
+           "error": "", "refinement_failure": "", "watched_dof": 1,
            "stopped_early": False, "steps": 10}
     for name, obj in f.items():
         if not isinstance(obj, h5py.Dataset) or obj.ndim < 2 or name.startswith("lco_prediction"):

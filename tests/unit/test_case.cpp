@@ -927,7 +927,7 @@ TEST_CASE("Messages show values as written and fit one screen", "[case][errors]"
         std::string(60, 'x') + "\n    " + std::string(60, 'y'));
 }
 
-TEST_CASE("--set reaches every [[gust]] table by its number", "[case][gust]") {
+TEST_CASE("Overrides reach every gust table by its number (gust.K.KEY)", "[case][gust]") {
   // Common practice, no source: the documented override syntax gust.K.KEY
   // (README, "[[gust]]"), K counted from 1 in file order.
   const std::string gusts = kSection + kFlow + kSim +

@@ -7,6 +7,7 @@
 #include <limits>
 #include <mutex>
 
+#include "aerosect/analysis/orbit.hpp"
 #include "aerosect/analysis/sweep.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/journal.hpp"
@@ -408,4 +409,57 @@ TEST_CASE("Stationary motion: a trend is not stationary, scatter about a level i
   };
   CHECK(feed([](int n) { return 0.01 * (1.0 + 0.3 * ((n * 7) % 5 - 2) / 2.0); }));
   CHECK_FALSE(feed([](int n) { return 0.01 * std::exp(0.02 * n); }));
+}
+
+TEST_CASE("A periodic point is refined to its orbit: the orbit solver's and a long march's amplitude", "[sweep][orbit]") {
+  // Periodic orbits by shooting (Seydel, Practical Bifurcation and
+  // Stability Analysis); a stable cycle is the limit of a long time march.
+  // Benchmark section with pitch freeplay (Lee, Price & Wong 1999) at
+  // U* = 4 and 5: the sweep's refined point (chord iterations, rtol 1e-10,
+  // residual 1e-8) must equal
+  //  - solve_orbit with its own defaults (full Newton, rtol 1e-12, residual
+  //    1e-10) from the same seed, to 1e-8 relative in amplitude and period;
+  //  - a time march from the case's 2-degree start at rtol 1e-12 (atol
+  //    1e-15) until successive cycles agree to 1e-11 (the LCO detector with
+  //    that tolerance; at least 300 cycles, far past the transient, the
+  //    orbit's multipliers being well inside the unit circle), to 1e-7
+  //    relative: the march's cycles agree to 1e-11 but its peaks are located
+  //    on the dense output to about the integrator's tolerance.
+  SweepRequest r = request(2, 1);
+  r.options.axes[0].values = {4.0, 5.0};
+  r.options.down = false;
+  r.options.continuation = false;
+  r.options.traces = false;
+  const auto pts = run_sweep(r, {}, {});
+  for (const auto& p : pts) {
+    INFO("U* = " << p.value1);
+    REQUIRE(p.lco.response == ResponseClass::kPeriodic);
+    REQUIRE(p.refined);
+    CHECK(p.refinement_failure.empty());
+    CHECK(p.orbit_residual <= 1e-8);
+    CHECK(p.floquet_multiplier < 1.0);
+    const Case c = parse_case(r.case_text, r.case_path, {fmt::format("nondimensional.reduced_speed={}", p.value1)});
+    const AeroelasticModel model(c.model);
+    // The orbit solver from the point's state on its section.
+    const Orbit o = solve_orbit(model, {p.final_state, 1.0 / p.lco.frequency});
+    REQUIRE(o.converged);
+    CHECK(p.lco.dof[kPitch].amplitude == Approx(o.dof[kPitch].amplitude).epsilon(1e-8));
+    CHECK(1.0 / p.lco.frequency == Approx(o.period).epsilon(1e-8));
+    CHECK(p.floquet_multiplier == Approx(o.largest_nontrivial).epsilon(1e-3));
+    // A long march.
+    LcoSettings ls;
+    ls.tolerance = 1e-11;
+    ls.min_cycles = 300;
+    LcoTracker tracker(model, ls);
+    RunState run;
+    run.x = model.initial_state(c.simulation.initial_displacement, c.simulation.initial_velocity,
+                                c.simulation.steady_lag_states);
+    run.regions = model.regions_of(run.x.data());
+    integrate(model, run, 400.0 * o.period, {StepperKind::kDopri5, 1e-12, 1e-15, 0.0, 0.0}, OutputSchedule::none(),
+              {{}, [&tracker](int dof, double t, const std::vector<double>& x) { return tracker.on_peak(dof, t, x); }});
+    const LcoResult march = tracker.result();
+    REQUIRE(march.response == ResponseClass::kPeriodic);
+    CHECK(p.lco.dof[kPitch].amplitude == Approx(march.dof[kPitch].amplitude).epsilon(1e-7));
+    CHECK(p.lco.frequency == Approx(march.frequency).epsilon(1e-7));
+  }
 }

@@ -149,6 +149,10 @@ class LcoTracker {
   // there), or the motion is stationary (non-periodic): no longer run helps.
   bool decided() const { return decided_flag_; }
   bool stationary() const;
+  // The state at the maximum of the watched DOF where a periodic cycle was
+  // recognised (empty otherwise): a point on the cycle, the seed of its
+  // refinement to the periodic orbit.
+  const std::vector<double>& periodic_state() const { return periodic_state_; }
 
  private:
   struct Extremum {
@@ -167,6 +171,7 @@ class LcoTracker {
   ResponseClass decided_ = ResponseClass::kUnsettled;
   DecayReason decay_reason_ = DecayReason::kNone;
   bool decided_flag_ = false;
+  std::vector<double> periodic_state_;
 };
 
 }  // namespace aerosect

@@ -584,6 +584,7 @@ CLASS_STYLE = {  # response_class code -> (label, colour)
     2: ("non-periodic", "C1"),
     3: ("divergent", "C3"),
     4: ("failed", "k"),
+    5: ("unsettled (run too short: not an answer)", "C4"),
 }
 DIVERGENT, FAILED = 3, 4
 

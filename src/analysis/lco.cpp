@@ -17,6 +17,16 @@ const char* to_string(ResponseClass c) {
     case ResponseClass::kPeriodic: return "periodic";
     case ResponseClass::kNonPeriodic: return "non-periodic";
     case ResponseClass::kDivergent: return "divergent";
+    case ResponseClass::kUnsettled: return "unsettled";
+  }
+  return "?";
+}
+
+const char* to_string(DecayReason r) {
+  switch (r) {
+    case DecayReason::kNone: return "";
+    case DecayReason::kToRest: return "to rest (amplitude below the floor, rest stable)";
+    case DecayReason::kIntoGap: return "into the gap (extrema inside the gap, amplitude shrinking, rest stable)";
   }
   return "?";
 }
@@ -91,6 +101,7 @@ ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>&
   // Decay to rest (not when rest in the gap is unstable: see above).
   if (amplitude_.back() < s_.decay_floor && !rest_unstable_) {
     decided_ = ResponseClass::kDecayed;
+    decay_reason_ = DecayReason::kToRest;
     decided_flag_ = true;
     return ObserverAction::kStop;
   }
@@ -106,6 +117,7 @@ ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>&
       inside = inside && e[i].x > gap_lo_ && e[i].x < gap_hi_;
     if (inside && shrinking && !rest_unstable_) {
       decided_ = ResponseClass::kDecayed;
+      decay_reason_ = DecayReason::kIntoGap;
       decided_flag_ = true;
       return ObserverAction::kStop;
     }
@@ -127,6 +139,7 @@ ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>&
     }
     if (settled) {
       lag_ = lag;
+      periodic_state_ = x;
       decided_ = ResponseClass::kPeriodic;
       decided_flag_ = true;
       return ObserverAction::kStop;
@@ -135,16 +148,38 @@ ObserverAction LcoTracker::on_peak(int dof, double t, const std::vector<double>&
   return ObserverAction::kContinue;
 }
 
+bool LcoTracker::stationary() const {
+  const std::size_t w = static_cast<std::size_t>(std::max(2, s_.stationary_window));
+  const std::size_t k = amplitude_.size();
+  if (k < 2 * w) return false;
+  // Mean and variance of the cycle amplitudes of one window.
+  auto stats = [&](std::size_t from) {
+    double mean = 0, var = 0;
+    for (std::size_t i = from; i < from + w; ++i) mean += amplitude_[i];
+    mean /= static_cast<double>(w);
+    for (std::size_t i = from; i < from + w; ++i) var += (amplitude_[i] - mean) * (amplitude_[i] - mean);
+    return std::pair{mean, var / static_cast<double>(w - 1)};
+  };
+  const auto [ma, va] = stats(k - 2 * w);
+  const auto [mb, vb] = stats(k - w);
+  const double ref = std::max(ma, mb);
+  if (!(ref > 0)) return false;
+  // No drift of the mean beyond the windows' own scatter (three standard
+  // errors of the difference) or the tolerance: a growing, dying or
+  // converging motion drifts by more than its within-window scatter.
+  return std::abs(ma - mb) <= std::max(s_.stationary_tolerance * ref, 3.0 * std::sqrt((va + vb) / static_cast<double>(w)));
+}
+
 LcoResult LcoTracker::result() const {
   LcoResult r;
   r.watched_dof = watch_;
   r.cycles = static_cast<int>(amplitude_.size());
   r.stopped_early = decided_flag_;
-  r.response = decided_flag_ ? decided_ : ResponseClass::kNonPeriodic;
-  if (!decided_flag_ && amplitude_.size() >= 2 &&
-      amplitude_.back() < 1e-3 * amplitude_.front() && amplitude_.back() < amplitude_[amplitude_.size() - 2])
-    r.response = ResponseClass::kDecayed;  // still decaying at the end of the run
-  if (!decided_flag_ && amplitude_.empty()) r.response = ResponseClass::kDecayed;  // no oscillation
+  // Undecided: non-periodic only when the motion is stationary; a motion
+  // still growing or dying out is unsettled (never "decayed" without one of
+  // the verified reasons above).
+  r.response = decided_flag_ ? decided_ : stationary() ? ResponseClass::kNonPeriodic : ResponseClass::kUnsettled;
+  r.decay_reason = decided_flag_ ? decay_reason_ : DecayReason::kNone;
   const std::size_t k = amplitude_.size();
   if (k == 0) return r;
   const std::size_t window =

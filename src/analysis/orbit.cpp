@@ -196,6 +196,7 @@ void describe_orbit(const AeroelasticModel& model, Orbit& o, const Flow& flow,
   run.regions = model.regions_of(o.x0.data());
   const SettledCycle cycle = sample_settled_cycle(model, run, T, settings.integrator, settings.cycle, w);
   o.content = cycle.dof;
+  o.trace = cycle.trace;
 }
 
 Orbit solve_orbit(const AeroelasticModel& model, const OrbitSeed& seed,
@@ -222,10 +223,14 @@ Orbit solve_orbit(const AeroelasticModel& model, const OrbitSeed& seed,
     return o;
   }
   std::vector<double> f(static_cast<std::size_t>(L.size));
+  Eigen::FullPivLU<Eigen::MatrixXd> chord_lu;  // the first iterate's Newton matrix (chord)
+  Eigen::MatrixXd chord_monodromy;
   for (int it = 0; it <= settings.max_iterations; ++it) {
     Flow flow;
+    const bool with_monodromy = !settings.chord || it == 0;
     try {
-      flow = orbit_flow(model, x0, T, settings.integrator, true, cancel);
+      flow = orbit_flow(model, x0, T, settings.integrator, with_monodromy, cancel);
+      if (!with_monodromy) flow.monodromy = chord_monodromy;
     } catch (const NumericalError& e) {
       o.failure = fmt::format("the flow over one period failed at Newton iteration {}: {}", it, e.what());
       return o;
@@ -265,18 +270,23 @@ Orbit solve_orbit(const AeroelasticModel& model, const OrbitSeed& seed,
       return o;
     }
     if (it == settings.max_iterations) break;
-    // Newton step on the bordered system.
-    model.rhs(flow.x.data(), f.data(), T, flow.regions);
-    Eigen::MatrixXd J = Eigen::MatrixXd::Zero(m + 1, m + 1);
+    // Newton step on the bordered system (chord: the first iterate's matrix).
     Eigen::VectorXd rhs(m + 1);
-    for (int a = 0; a < m; ++a) {
-      for (int b = 0; b < m; ++b) J(a, b) = flow.monodromy(act[a], act[b]) - (a == b ? 1.0 : 0.0);
-      J(a, m) = f[static_cast<std::size_t>(act[a])];
+    for (int a = 0; a < m; ++a)
       rhs(a) = -(flow.x[static_cast<std::size_t>(act[a])] - x0[static_cast<std::size_t>(act[a])]);
-    }
-    J(m, vw_index) = 1.0;
     rhs(m) = -x0[static_cast<std::size_t>(vw)];
-    const Eigen::VectorXd d = J.fullPivLu().solve(rhs);
+    if (with_monodromy) {
+      model.rhs(flow.x.data(), f.data(), T, flow.regions);
+      Eigen::MatrixXd J = Eigen::MatrixXd::Zero(m + 1, m + 1);
+      for (int a = 0; a < m; ++a) {
+        for (int b = 0; b < m; ++b) J(a, b) = flow.monodromy(act[a], act[b]) - (a == b ? 1.0 : 0.0);
+        J(a, m) = f[static_cast<std::size_t>(act[a])];
+      }
+      J(m, vw_index) = 1.0;
+      chord_lu.compute(J);
+      if (settings.chord) chord_monodromy = flow.monodromy;
+    }
+    const Eigen::VectorXd d = chord_lu.solve(rhs);
     if (!d.allFinite()) {
       o.failure = "singular Newton system (a multiplier at +1 other than the trivial one: a fold "
                   "or branch point at fixed parameter)";

@@ -46,6 +46,15 @@ struct Derivation {
   double disturbance = 0;              // m or rad
 };
 
+// The case's overrides for a derived run: without those of [[gust]] keys
+// when the derivation removes the gusts (their tables are gone).
+std::vector<std::string> derived_overrides(const Case& c, const Derivation& d) {
+  std::vector<std::string> ov;
+  for (const auto& o : c.overrides)
+    if (!d.remove_gusts || o.rfind("gust.", 0) != 0) ov.push_back(o);
+  return ov;
+}
+
 std::string derived_case_text(const Case& c, const Derivation& d) {
   toml::table root = toml::parse(std::string_view(c.text), std::string_view(c.path));
   if (d.remove_gusts) root.erase("gust");
@@ -339,7 +348,7 @@ LcoSweepRun lco_sweep_stage(Study& s, int nl) {
   SweepRequest req;
   req.case_text = derived_case_text(c, dv);
   req.case_path = c.path + " (LCO sweep)";
-  req.overrides = c.overrides;
+  req.overrides = derived_overrides(c, dv);
   req.options.axes = {axis};
   req.options.up = req.options.down = true;
   req.options.continuation = true;
@@ -386,6 +395,10 @@ void lco_sweep_rows(Study& s, const LcoSweepRun& run) {
   else
     s.rows.text("hysteresis", "Hysteresis band", "none seen at this speed spacing",
                 "sweep.h5: " + cls + ", both directions");
+  if (const std::size_t n = unsettled_points(pts); n > 0)
+    s.rows.text("lco_unsettled", "Sweep points that did not settle", fmt::format("{} (class unsettled: not an answer)", n),
+                "sweep.h5: " + cls + " = 5",
+                fmt::format("runs extended to {:g} times their length without settling", kSweepRunCap));
   // Where any LCO was found, either direction.
   std::optional<double> first, last;
   for (const auto& p : pts)
@@ -459,7 +472,7 @@ void lco_history_stage(Study& s, const SweepPoint& worst, const std::string& whe
   Derivation hv;
   hv.duration = 10 * period;
   hv.sample_interval = period / 200;
-  std::vector<std::string> ov = c.overrides;
+  std::vector<std::string> ov = derived_overrides(c, hv);
   ov.push_back(fmt::format("{}={:.17g}", run.key, worst.value1));
   const Case hc = parse_case(derived_case_text(c, hv), c.path + " (largest LCO)", ov);
   const AeroelasticModel hm(hc.model);

@@ -12,6 +12,7 @@
 
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/flutter_report.hpp"
+#include "aerosect/analysis/orbit.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/error.hpp"
@@ -39,6 +40,58 @@ bool valid_regions(const Case& c, const std::vector<int>& regions) {
   return true;
 }
 
+// Refinement: the orbit's flows at rtol 1e-10 (atol 1e-13) and chord
+// iterations (orbit.hpp) to a scaled residual of 1e-8; refined figures are
+// then accurate to about 1e-8 relative, four orders beyond the detector's
+// 1e-4.
+constexpr double kRefineRtol = 1e-10, kRefineAtol = 1e-13, kRefineTolerance = 1e-8;
+// Chord iterations (orbit.hpp) from a settled cycle: each gains about four
+// digits, so a seed that needs more is no settled cycle.
+constexpr int kRefineIterations = 8;
+
+// The periodic orbit of a point the detector found periodic (sweep.hpp):
+// nullopt, with p.refinement_failure set, when it is not accepted.
+std::optional<Orbit> refine_point(const AeroelasticModel& model, const LcoTracker& tracker, SweepPoint& p,
+                                  const SweepOptions& o, const std::atomic<bool>* cancel) {
+  OrbitSettings os;
+  os.integrator.relative_tolerance = kRefineRtol;
+  os.integrator.absolute_tolerance = kRefineAtol;
+  os.tolerance = kRefineTolerance;
+  os.chord = true;
+  os.max_iterations = kRefineIterations;
+  os.watched_dof = p.lco.watched_dof;
+  os.cycle = o.cycle;
+  OrbitSeed seed{tracker.periodic_state(), 1.0 / p.lco.frequency};
+  if (static_cast<int>(seed.x0.size()) != model.state_size()) {
+    p.refinement_failure = "no state on the cycle was recorded";
+    return std::nullopt;
+  }
+  seed.x0[static_cast<std::size_t>(model.layout().velocity + p.lco.watched_dof)] = 0.0;
+  Orbit orbit = solve_orbit(model, seed, os, cancel);
+  p.orbit_residual = orbit.residual;
+  if (!orbit.converged) {
+    p.refinement_failure = "Newton shooting did not converge: " + orbit.failure;
+    return std::nullopt;
+  }
+  p.floquet_multiplier = orbit.largest_nontrivial;
+  const int w = p.lco.watched_dof;
+  const double a_march = p.lco.dof[static_cast<std::size_t>(w)].amplitude;
+  const double a_orbit = orbit.dof[static_cast<std::size_t>(w)].amplitude;
+  if (!orbit.stable) {
+    p.refinement_failure = fmt::format("the orbit found is unstable (largest multiplier modulus {:.6g}): "
+                                       "not the cycle the run settled on", orbit.largest_nontrivial);
+    return std::nullopt;
+  }
+  if (std::abs(orbit.period * p.lco.frequency - 1.0) > 0.05 || std::abs(a_orbit - a_march) > 0.1 * a_march) {
+    p.refinement_failure = fmt::format("the orbit found (period {:.6g} s, amplitude {:.6g}) is not the marched "
+                                       "cycle (period {:.6g} s, amplitude {:.6g})",
+                                       orbit.period, a_orbit, 1.0 / p.lco.frequency, a_march);
+    return std::nullopt;
+  }
+  p.refined = true;
+  return orbit;
+}
+
 // Runs one point; nullopt when `cancel` stopped it (an unfinished point is
 // neither reported nor kept: a resumed sweep runs it again).
 std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
@@ -50,10 +103,10 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
   p.j = j;
   p.value1 = o.axes[0].values[static_cast<std::size_t>(i)];
   p.value2 = o.axes.size() > 1 ? o.axes[1].values[static_cast<std::size_t>(j)] : 0.0;
-  std::vector<std::string> ov = r.overrides;
+  std::vector<std::string> ov;
   ov.push_back(fmt::format("{}={:.17g}", o.axes[0].key, p.value1));
   if (o.axes.size() > 1) ov.push_back(fmt::format("{}={:.17g}", o.axes[1].key, p.value2));
-  const Case c = parse_case(r.case_text, r.case_path, ov);
+  const Case c = sweep_point_case(r, ov);
   const AeroelasticModel model(c.model);
   RunState run;
   // A divergent or failed point's final state is no start for the next.
@@ -72,18 +125,40 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
   }
   LcoTracker tracker(model, o.lco);
   try {
-    const IntegrationResult res =
-        integrate(model, run, c.simulation.duration, c.simulation.integrator,
-                  OutputSchedule::none(),
-                  {{}, [&tracker](int dof, double t, const std::vector<double>& x) {
-                     return tracker.on_peak(dof, t, x);
-                   }, cancel});
-    if (res.reason == StopReason::kCancelled) return std::nullopt;
+    // The case's run length, then more of it while the motion has not
+    // settled (no class decided, not stationary), up to the cap.
+    const double segment = c.simulation.duration;
+    const double cap = kSweepRunCap * segment;
+    for (double end = segment;; end = std::min(cap, end + segment)) {
+      const IntegrationResult res =
+          integrate(model, run, end, c.simulation.integrator, OutputSchedule::none(),
+                    {{}, [&tracker](int dof, double t, const std::vector<double>& x) {
+                       return tracker.on_peak(dof, t, x);
+                     }, cancel});
+      if (res.reason == StopReason::kCancelled) return std::nullopt;
+      if (tracker.decided() || tracker.stationary() || end >= cap) break;
+    }
     p.lco = tracker.result();
-    // A settled cycle: one more period, sampled, for RMS and harmonics.
     if (p.lco.response == ResponseClass::kPeriodic && p.lco.frequency > 0) {
-      p.cycle = sample_settled_cycle(model, run, 1.0 / p.lco.frequency, c.simulation.integrator,
-                                     o.cycle, p.lco.watched_dof);
+      std::optional<Orbit> orbit;
+      if (o.refine) orbit = refine_point(model, tracker, p, o, cancel);
+      if (orbit) {
+        // The converged orbit's figures; the next point starts on it.
+        p.lco.frequency = orbit->frequency();
+        p.lco.peaks_per_period = orbit->peaks_per_period;
+        p.lco.dof = orbit->dof;
+        p.cycle.period = orbit->period;
+        p.cycle.samples = o.cycle.samples;
+        p.cycle.dof = orbit->content;
+        p.cycle.trace = orbit->trace;
+        run.x = orbit->x0;
+        run.regions = model.regions_of(run.x.data());
+      } else {
+        if (cancel && cancel->load()) return std::nullopt;
+        // The marched cycle: one more period, sampled, for RMS and harmonics.
+        p.cycle = sample_settled_cycle(model, run, 1.0 / p.lco.frequency, c.simulation.integrator,
+                                       o.cycle, p.lco.watched_dof);
+      }
       if (!o.traces)
         for (auto& t : p.cycle.trace) t.clear();
     }
@@ -104,7 +179,39 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
 
 }  // namespace
 
+Case sweep_point_case(const SweepRequest& r, const std::vector<std::string>& point_overrides) {
+  std::vector<std::string> ov = r.overrides;
+  ov.insert(ov.end(), point_overrides.begin(), point_overrides.end());
+  Case c = parse_case(r.case_text, r.case_path, ov);
+  if (!r.options.with_gusts) c.model.gusts = GustField();
+  return c;
+}
+
+std::string sweep_gust_note(const Case& c, const SweepRequest& r) {
+  const std::size_t n = c.model.gusts.profiles().size();
+  if (n == 0) return "none in the case";
+  if (r.options.with_gusts) return fmt::format("included (the case's {} [[gust]] table{})", n, n == 1 ? "" : "s");
+  return fmt::format("left out (the case's {} [[gust]] table{} not run; --with-gusts runs them)", n,
+                     n == 1 ? " is" : "s are");
+}
+
+namespace {
+bool is_gust_key(const std::string& key) { return key.rfind("gust.", 0) == 0; }
+}  // namespace
+
 void check_swept_values(const SweepRequest& r) {
+  if (!r.options.with_gusts) {
+    for (const auto& ax : r.options.axes)
+      if (is_gust_key(ax.key))
+        throw InputError({"--vary " + ax.key, 0, 0}, "--vary", ax.key,
+                         "varies a [[gust]] key, but the sweep leaves the case's gusts out",
+                         "--with-gusts to run the gusts at every point, or a key outside [[gust]]");
+    for (const auto& o : r.overrides)
+      if (is_gust_key(o.substr(0, o.find('='))))
+        throw InputError({"--set " + o, 0, 0}, "--set", o,
+                         "sets a [[gust]] key, but the sweep leaves the case's gusts out",
+                         "--with-gusts to run the gusts at every point, or no --set of a [[gust]] key");
+  }
   for (const auto& ax : r.options.axes)
     for (double v : ax.values) {
       std::vector<std::string> o2 = r.overrides;
@@ -183,6 +290,7 @@ nlohmann::json request_json(const SweepRequest& r) {
   id["continuation"] = r.options.continuation;
   id["shard"] = {r.options.shard_index, r.options.shard_count};
   id["traces"] = r.options.traces;
+  id["with_gusts"] = r.options.with_gusts;
   id["cycle_samples"] = r.options.cycle.samples;
   id["harmonics"] = r.options.cycle.harmonics;
   return id;
@@ -233,6 +341,7 @@ SweepRequest request_from_json(const nlohmann::json& j) {
   r.options.shard_index = j.at("shard").at(0);
   r.options.shard_count = j.at("shard").at(1);
   r.options.traces = j.value("traces", false);
+  r.options.with_gusts = j.value("with_gusts", false);
   r.options.cycle.samples = j.value("cycle_samples", CycleSettings{}.samples);
   r.options.cycle.harmonics = j.value("harmonics", CycleSettings{}.harmonics);
   return r;
@@ -250,11 +359,17 @@ nlohmann::json point_json(const SweepPoint& p) {
   j["error"] = p.error;
   j["class"] = to_string(p.lco.response);
   j["class_code"] = static_cast<int>(p.lco.response);
+  j["decay_reason"] = p.lco.response == ResponseClass::kDecayed ? nlohmann::json(to_string(p.lco.decay_reason))
+                                                                : nlohmann::json(nullptr);
   j["watched_dof"] = p.lco.watched_dof;
   j["cycles"] = p.lco.cycles;
   j["frequency_hz"] = p.lco.frequency;
   j["spread"] = p.lco.spread;
   j["stopped_early"] = p.lco.stopped_early;
+  j["refined"] = p.refined;
+  j["orbit_residual"] = json_number(p.orbit_residual);
+  j["floquet_multiplier"] = json_number(p.floquet_multiplier);
+  j["refinement_failure"] = p.refinement_failure.empty() ? nlohmann::json(nullptr) : nlohmann::json(p.refinement_failure);
   for (int k = 0; k < 3; ++k)
     j["dof"].push_back({p.lco.dof[k].amplitude, p.lco.dof[k].max, p.lco.dof[k].min});
   if (p.cycle.samples > 0) {
@@ -283,10 +398,12 @@ nlohmann::json point_json(const SweepPoint& p) {
 JournalHead sweep_journal_head(const SweepRequest& r) {
   JournalHead h;
   h.kind = "sweep";
-  // 3: point records generated from the layout (point_record). Older formats
-  // are refused with journal.cpp's message: 1 had the request as the head
-  // line, 1 and 2 the point records in the --json form.
-  h.format = 3;
+  // 3: point records generated from the layout (point_record); 4: the class
+  // unsettled (5), decay_reason, the orbit refinement's fields and the
+  // request's with_gusts. Older formats are refused with journal.cpp's
+  // message: 1 had the request as the head line, 1 and 2 the point records
+  // in the --json form, 3 no refinement and another meaning of the classes.
+  h.format = 4;
   h.identity = request_json(r);
   return h;
 }
@@ -348,6 +465,31 @@ SweepSummary summarize(const std::vector<SweepPoint>& points, int jj) {
 }
 
 
+std::size_t unsettled_points(const std::vector<SweepPoint>& points) {
+  return static_cast<std::size_t>(std::count_if(points.begin(), points.end(), [](const SweepPoint& q) {
+    return q.ok && q.lco.response == ResponseClass::kUnsettled;
+  }));
+}
+
+std::string unsettled_warning(const Case& c, std::size_t n) {
+  return fmt::format("{} point{} did not settle within {:g} times the case's run length ({:.4g} s): class "
+                     "'unsettled', their amplitudes are not an answer (the motion was still growing or dying "
+                     "out); run them longer with --set simulation.duration=...",
+                     n, n == 1 ? "" : "s", kSweepRunCap, kSweepRunCap * c.simulation.duration);
+}
+
+std::size_t unrefined_points(const std::vector<SweepPoint>& points) {
+  return static_cast<std::size_t>(std::count_if(points.begin(), points.end(), [](const SweepPoint& q) {
+    return q.ok && q.lco.response == ResponseClass::kPeriodic && !q.refined;
+  }));
+}
+
+std::string unrefined_warning(std::size_t n) {
+  return fmt::format("{} periodic point{} could not be refined to the periodic orbit (refinement_failure in "
+                     "the JSON says why): amplitudes and frequency of the time-marched cycle, settled to 1e-4",
+                     n, n == 1 ? "" : "s");
+}
+
 nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
                           const std::string& output) {
   nlohmann::json j = report_header(c, "sweep");
@@ -356,6 +498,8 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
     j["vary"].push_back({{"key", ax.key}, {"from", ax.values.front()}, {"to", ax.values.back()},
                          {"count", ax.values.size()}});
   j["continuation"] = r.options.continuation;
+  j["gusts_included"] = r.options.with_gusts && !c.model.gusts.empty();
+  j["gusts"] = sweep_gust_note(c, r);
   j["points_computed"] = p.size();
   const SweepSummary s = summarize(p);
   auto opt = [](const std::optional<double>& v) { return v ? nlohmann::json(*v) : nlohmann::json(nullptr); };
@@ -367,6 +511,13 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
     j["hysteresis_band"] = nullptr;
   j["largest_amplitude"] = opt(s.largest_amplitude);
   j["largest_amplitude_at"] = s.largest_amplitude ? nlohmann::json(s.largest_at) : nlohmann::json(nullptr);
+  j["run_cap_factor"] = kSweepRunCap;
+  const std::size_t unsettled = unsettled_points(p);
+  j["unsettled_points"] = unsettled;
+  j["warnings"] = nlohmann::json::array();
+  if (unsettled > 0) j["warnings"].push_back(unsettled_warning(c, unsettled));
+  j["unrefined_points"] = unrefined_points(p);
+  if (unrefined_points(p) > 0) j["warnings"].push_back(unrefined_warning(unrefined_points(p)));
   j["points"] = nlohmann::json::array();
   for (const auto& q : p) {
     nlohmann::json pj = point_json(q);
@@ -385,8 +536,9 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   for (const auto& ax : r.options.axes)
     t += fmt::format("  {} from {:.6g} to {:.6g} ({} values)\n", ax.key, ax.values.front(),
                      ax.values.back(), ax.values.size());
-  t += fmt::format("  {}; {} points\n\n", r.options.continuation ? "continuation" : "fresh starts",
+  t += fmt::format("  {}; {} points\n", r.options.continuation ? "continuation" : "fresh starts",
                    p.size());
+  t += fmt::format("  gusts: {}\n\n", sweep_gust_note(c, r));
   t += fmt::format("  {:>4} {:>14} {:>13} {:>12} {:>10} {:>7}\n", "dir", r.options.axes[0].key, "class",
                    "amplitude", "freq Hz", "cycles");
   for (const auto& q : p) {
@@ -394,7 +546,10 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
     const bool angle = w != kPlunge;
     t += fmt::format("  {:>4} {:>14.6g} {:>13} {:>9.5g} {:<2} {:>10.4g} {:>7}{}\n",
                      q.direction == 0 ? "up" : "down", q.value1,
-                     q.ok ? to_string(q.lco.response) : "failed",
+                     !q.ok ? std::string("failed")
+                     : q.lco.response == ResponseClass::kPeriodic && !q.refined
+                         ? std::string("periodic*")
+                         : std::string(to_string(q.lco.response)),
                      q.lco.dof[static_cast<std::size_t>(w)].amplitude * (angle ? kDegPerRad : 1.0),
                      angle ? "°" : "m", q.lco.frequency, q.lco.cycles,
                      q.ok ? "" : "  " + q.error.substr(0, 60));
@@ -410,6 +565,10 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   if (s.largest_amplitude)
     t += fmt::format("  largest LCO amplitude of the {}: {:.5g} at {:.6g}\n",
                      kDofNames[p.front().lco.watched_dof], *s.largest_amplitude, s.largest_at);
+  if (const std::size_t unsettled = unsettled_points(p); unsettled > 0)
+    t += "\n  warning: " + unsettled_warning(c, unsettled) + "\n";
+  if (const std::size_t n = unrefined_points(p); n > 0)
+    t += "\n  * " + unrefined_warning(n) + "\n";
   if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
   t += "\n";
   t += kSafetyCaution;
@@ -481,13 +640,30 @@ SweepTables sweep_tables(const SweepRequest& r, int ndof) {
   t.traces = o.traces;
   auto& P = t.point;
   P.push_back(scalar(
-      "response_class", "1", "0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed (NaN: not run)",
+      "response_class", "1",
+      "0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed, 5 unsettled (NaN: not run)",
       [](const SweepPoint& p) { return p.ok ? static_cast<double>(p.lco.response) : 4.0; },
       [](SweepPoint& p, double v) {
         p.ok = v != 4.0;
-        p.lco.response = p.ok ? static_cast<ResponseClass>(static_cast<int>(v)) : ResponseClass::kNonPeriodic;
+        p.lco.response = p.ok ? static_cast<ResponseClass>(static_cast<int>(v)) : ResponseClass::kUnsettled;
       },
-      "0, 1, 2, 3 or 4", [](double v) { return v == 0 || v == 1 || v == 2 || v == 3 || v == 4; }));
+      "0, 1, 2, 3, 4 or 5", [](double v) { return v == 0 || v == 1 || v == 2 || v == 3 || v == 4 || v == 5; }));
+  P.push_back(scalar(
+      "decay_reason", "1", "why a decayed point is decayed: 1 to rest, 2 into the gap (0: not decayed)",
+      [](const SweepPoint& p) { return static_cast<double>(p.lco.decay_reason); },
+      [](SweepPoint& p, double v) { p.lco.decay_reason = static_cast<DecayReason>(static_cast<int>(v)); }, "0, 1 or 2",
+      [](double v) { return v == 0 || v == 1 || v == 2; }));
+  P.push_back(scalar(
+      "refined", "1", "1: periodic point refined to its periodic orbit (figures of the converged orbit); 0: not",
+      [](const SweepPoint& p) { return p.refined ? 1.0 : 0.0; }, [](SweepPoint& p, double v) { p.refined = v == 1.0; },
+      "0 or 1", [](double v) { return v == 0 || v == 1; }));
+  P.push_back(scalar("orbit_residual", "1", "scaled Newton residual of the periodic orbit (NaN: not tried)",
+                     [](const SweepPoint& p) { return p.orbit_residual; },
+                     [](SweepPoint& p, double v) { p.orbit_residual = v; }));
+  P.push_back(scalar("floquet_multiplier", "1",
+                     "largest modulus of the orbit's non-trivial Floquet multipliers (NaN: no converged orbit)",
+                     [](const SweepPoint& p) { return p.floquet_multiplier; },
+                     [](SweepPoint& p, double v) { p.floquet_multiplier = v; }));
   P.push_back(scalar("frequency", "Hz", "LCO frequency", [](const SweepPoint& p) { return p.lco.frequency; },
                      [](SweepPoint& p, double v) { p.lco.frequency = v; }));
   P.push_back(scalar(
@@ -557,12 +733,14 @@ nlohmann::json point_record(const SweepPoint& p, const SweepTables& t) {
   j["value1"] = json_number(p.value1);  // the axis values at i and j, checked on reading
   j["value2"] = json_number(p.value2);
   j["error"] = p.error;
+  j["refinement_failure"] = p.refinement_failure;
   j["watched_dof"] = p.lco.watched_dof;
   j["stopped_early"] = p.lco.stopped_early;
   j["steps"] = p.steps;
   // A failed point's table class is 4; the detector's class before the
   // failure is kept for the summaries (the --json `class`).
   if (!p.ok) j["class_before_failure"] = static_cast<int>(p.lco.response);
+
   layout_to_json(j, t.point, p);
   layout_to_json(j, t.cycle, p);
   if (p.cycle.samples > 0) j["cycle_period"] = json_number(p.cycle.period);
@@ -610,13 +788,21 @@ SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, con
     p.error = e.get<std::string>();
   else
     throw fail("error", e, "is not text", "a JSON string (empty when the point ran)");
+  if (const nlohmann::json& e = field("refinement_failure"); e.is_string())
+    p.refinement_failure = e.get<std::string>();
+  else
+    throw fail("refinement_failure", e, "is not text", "a JSON string (empty when refined or not periodic)");
   if (const nlohmann::json& e = field("stopped_early"); e.is_boolean())
     p.lco.stopped_early = e.get<bool>();
   else
     throw fail("stopped_early", e, "is not true or false", "true or false");
   layout_from_json(j, t.point, p, where, written);
-  if (!p.ok && j.contains("class_before_failure"))
-    p.lco.response = static_cast<ResponseClass>(integer("class_before_failure", 0, 3));
+  if (!p.ok && j.contains("class_before_failure")) {
+    const auto before = integer("class_before_failure", 0, 5);
+    if (before == 4) throw fail("class_before_failure", before, "is not a detector's class", "0, 1, 2, 3 or 5");
+    p.lco.response = static_cast<ResponseClass>(before);
+  }
+
   // A settled cycle is recorded for periodic points only: its fields are all
   // there or none is.
   if (!t.cycle.empty() && j.contains(t.cycle.front().name)) {
@@ -663,6 +849,7 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
                         const FlutterReport* overlay) {
   RunMetadata meta = case_metadata(c, "sweep");
   meta.text_attributes.push_back({"continuation", r.options.continuation ? "continue" : "fresh"});
+  meta.text_attributes.push_back({"gusts", sweep_gust_note(c, r)});
   doc.metadata(meta);
   const auto& o = r.options;
   const SweepTables t = sweep_tables(r, c.model.section.dof);
@@ -830,7 +1017,7 @@ void merge_sweep_files(const std::vector<std::string>& inputs, const std::string
     request = req;
     count = n;
     shards.push_back(k);
-    const int ndof = parse_case(shard.case_text, shard.case_path, shard.overrides).model.section.dof;
+    const int ndof = sweep_point_case(shard).model.section.dof;
     read_shard_points(path, shard, sweep_tables(shard, ndof), merged);
   }
   if (!request || static_cast<int>(shards.size()) != count)

@@ -29,6 +29,7 @@ struct SweepCommandOptions : CaseOptions {
   std::vector<std::string> vary;
   std::optional<int> jobs;
   bool traces = false;
+  bool with_gusts = false;
 };
 
 // "KEY=FROM:TO:N" for --vary.
@@ -60,6 +61,7 @@ SweepRequest make_request(const SweepCommandOptions& o) {
   req.options.down = o.direction != "up";
   req.options.continuation = o.restart == "continue";
   req.options.traces = o.traces;
+  req.options.with_gusts = o.with_gusts;
   req.options.jobs = jobs_or_all_cores(o.jobs);
   const long points = (o.direction == "both" ? 2 : 1) * static_cast<long>(req.options.axes[0].values.size()) *
                       (req.options.axes.size() > 1 ? static_cast<long>(req.options.axes[1].values.size()) : 1);
@@ -199,6 +201,8 @@ Command add_sweep_command(CLI::App& app) {
       ->capture_default_str();
   cmd->add_option("--jobs", o->jobs, "threads (default: all cores)");
   cmd->add_option("--shard", o->shard, "K/N: run the K-th of N deterministic parts");
+  cmd->add_flag("--with-gusts", o->with_gusts,
+                "run the case's [[gust]] tables at every point (left out by default: a gust response is no LCO)");
   cmd->add_flag("--traces", o->traces, "keep one settled cycle of every DOF per periodic point in the map");
   return {cmd, [o] { return run(*o); }};
 }

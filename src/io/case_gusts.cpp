@@ -93,8 +93,9 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
   const double U = c.model.flow.airspeed, b = c.model.section.semichord;
   const double rho = c.model.flow.density;
   std::vector<GustProfile> profiles;
+  int entry = 0;
   for (const auto& e : *node->as_array()) {
-    const Table g(ctx, e.as_table(), "gust");
+    const Table g(ctx, e.as_table(), "gust", fmt::format("gust.{}", ++entry));
     GustProfile p;
     const std::string shape = g.choice(
         "shape", {"sharp-edged", "one-minus-cosine", "sinusoidal", "recorded", "turbulence"}, "");

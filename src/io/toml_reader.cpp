@@ -20,6 +20,17 @@ std::string parent_of(const std::string& path) {
   return p == std::string::npos ? std::string() : path.substr(0, p);
 }
 
+// An override's value as TOML in a table {v = value}; a bare word is a string.
+toml::table override_value(const std::string& value) {
+  try {
+    return toml::parse(std::string_view("v = " + value));
+  } catch (const toml::parse_error&) {
+    toml::table t;
+    t.insert("v", value);
+    return t;
+  }
+}
+
 }  // namespace
 
 Schema::Schema(std::vector<std::string> keys, std::vector<std::string> array_tables,
@@ -128,7 +139,7 @@ std::size_t edit_distance(std::string_view a, std::string_view b) {
 // Table: typed reads at a source position.
 
 SourceLocation Table::where(std::string_view key) const {
-  const std::string kp = key_path(key);
+  const std::string kp = override_path_.empty() ? std::string(key) : override_path_ + "." + std::string(key);
   if (auto it = ctx_.overrides.find(kp); it != ctx_.overrides.end())
     return {"--set " + it->second, 0, 0};
   if (const toml::node* n = node(key)) {
@@ -308,6 +319,48 @@ void apply_override(toml::table& root, const std::string& text, const Schema& sc
   };
   const std::string key = trim(text.substr(0, eq));
   const std::string value = trim(text.substr(eq + 1));
+  // An entry of an array of tables: ARRAY.K.KEY (K from 1).
+  for (const auto& array : schema.array_tables()) {
+    if (key.rfind(array + ".", 0) != 0) continue;
+    const std::string rest = key.substr(array.size() + 1);
+    const auto dot = rest.find('.');
+    const std::string index = rest.substr(0, dot);
+    const bool numbered = !index.empty() && index.find_first_not_of("0123456789") == std::string::npos;
+    toml::node* n = root.get(array);
+    const std::size_t count = n && n->is_array_of_tables() ? n->as_array()->size() : 0;
+    const std::string entries =
+        count == 0 ? fmt::format("none: the {} has no [[{}]] table", schema.document(), array)
+        : count == 1 ? fmt::format("{}.1.KEY (the {} has one [[{}]] table)", array, schema.document(), array)
+                     : fmt::format("{0}.1.KEY to {0}.{1}.KEY (the {2} has {1} [[{0}]] tables, numbered from 1 "
+                                   "in file order)", array, count, schema.document());
+    if (!numbered) {
+      if (schema.is_known_key(key))
+        throw InputError({"--set " + text, 0, 0}, key, value,
+                         fmt::format("does not say which [[{}]] table it sets", array),
+                         "the table's number before the key: " + entries);
+      break;  // an unknown key: the "did you mean" below
+    }
+    const std::string leaf = dot == std::string::npos ? std::string() : rest.substr(dot + 1);
+    if (leaf.empty() || leaf.find('.') != std::string::npos || !schema.is_known_key(array + "." + leaf)) {
+      std::string hint = leaf.empty() ? std::string() : schema.suggestion_for(array + "." + leaf);
+      if (hint.rfind(array + ".", 0) != 0) hint.clear();
+      throw InputError({"--set " + text, 0, 0}, key, value,
+                       hint.empty() ? fmt::format("is not a key of a [[{}]] table", array)
+                                    : fmt::format("is not a key of a [[{}]] table (did you mean '{}.{}.{}'?)",
+                                                  array, array, index, hint.substr(array.size() + 1)),
+                       schema.reference());
+    }
+    const unsigned long k = index.size() > 6 ? 0 : std::stoul(index);
+    if (k < 1 || k > count)
+      throw InputError({"--set " + text, 0, 0}, key, value,
+                       fmt::format("names [[{}]] table {}, which the {} does not have", array, index,
+                                   schema.document()),
+                       entries);
+    const toml::table parsed = override_value(value);
+    n->as_array()->get(k - 1)->as_table()->insert_or_assign(leaf, *parsed.get("v"));
+    ctx.overrides[key] = text;
+    return;
+  }
   if (schema.is_known_table(key)) {
     const auto& keys = schema.keys();
     const auto first = std::find_if(keys.begin(), keys.end(), [&](const std::string& k) {
@@ -322,14 +375,7 @@ void apply_override(toml::table& root, const std::string& text, const Schema& sc
                      hint.empty() ? "unknown key" : fmt::format("unknown key (did you mean '{}'?)", hint),
                      schema.reference());
   }
-  // Parse the value as TOML; a bare word is a string.
-  toml::table parsed;
-  try {
-    parsed = toml::parse(std::string_view("v = " + value));
-  } catch (const toml::parse_error&) {
-    parsed = toml::table{};
-    parsed.insert("v", value);
-  }
+  const toml::table parsed = override_value(value);
   // Walk/create the tables on the path.
   toml::table* t = &root;
   std::size_t start = 0;

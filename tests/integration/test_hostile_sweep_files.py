@@ -49,10 +49,10 @@ def refused(name, r, path, *words):
 
 
 def record_from_map(f, d, i):
-    """A journal record (format 3) of the point (direction d, i) built from
+    """A journal record (format 4) of the point (direction d, i) built from
     the map's own tables: the fields by their dataset names."""
     rec = {"direction": d, "i": i, "j": 0, "value1": float(f["value_1"][i]), "value2": 0.0,
-           "error": "", "watched_dof": 1,
+           "error": "", "refinement_failure": "", "watched_dof": 1,
            "stopped_early": False, "steps": 10}
     for name, obj in f.items():
         if not isinstance(obj, h5py.Dataset) or obj.ndim < 2 or name.startswith("lco_prediction"):
@@ -76,7 +76,7 @@ with tempfile.TemporaryDirectory() as tmp:
         good = record_from_map(f, 0, 0)
         n1 = f["value_1"].shape[0]
         nh = f["harmonic"].shape[0]
-    head = {"aerosect_journal": "sweep", "format": 3, "identity": request}
+    head = {"aerosect_journal": "sweep", "format": 4, "identity": request}
     journal = mp + ".journal"
 
     def with_journal(*records, raw=None):
@@ -107,6 +107,7 @@ with tempfile.TemporaryDirectory() as tmp:
         "huge index": (dict(good, i=2**62), "i"),
         "unknown class": (dict(good, response_class=99), "response_class"),
         "fractional class": (dict(good, response_class=1.5), "response_class"),
+        "unknown decay reason": (dict(good, decay_reason=3), "decay_reason"),
         "missing table field": ({k: v for k, v in good.items() if k != "frequency"}, "frequency"),
         "text where a number is": (dict(good, frequency="fast"), "frequency"),
         "state longer than any model": (dict(good, final_state=[0.0] * 5000), "final_state"),
@@ -122,10 +123,11 @@ with tempfile.TemporaryDirectory() as tmp:
     r = with_journal(good, dict(good))
     refused("journal, a point twice", r, journal, journal + ":3:", "second time")
     # An older journal format is refused with the format named.
-    head["format"] = 2
-    r = with_journal(good)
-    refused("journal of format 2", r, journal, "format")
-    head["format"] = 3
+    for old in (2, 3):
+        head["format"] = old
+        r = with_journal(good)
+        refused(f"journal of format {old}", r, journal, "format")
+    head["format"] = 4
     # A journal larger than its cap (32 GiB, README "Limits") is refused
     # before any of it is read, with its size and the cap, and kept: a sparse
     # file (truncate), so the check stays fast.

@@ -182,7 +182,7 @@ with tempfile.TemporaryDirectory() as tmp:
         check(f"{name}: journal ends with a complete line", data.endswith(b"\n"))
         head = json.loads(lines[0])
         check(f"{name}: journal head names its kind and format",
-              head.get("aerosect_journal") == "sweep" and head.get("format") == 3, lines[0][:200])
+              head.get("aerosect_journal") == "sweep" and head.get("format") == 4, lines[0][:200])
         kept = len(lines) - 2
         check(f"{name}: finished points kept", kept >= 2 and f"{kept} finished points kept" in err, (kept, err))
 

@@ -952,3 +952,39 @@ TEST_CASE("Every numeric case key has its units (README.md, case-file reference)
   CHECK(case_key_units("nondimensional.reduced_speed") == "1");
   CHECK(case_key_units("no.such_key").empty());
 }
+
+TEST_CASE("Overrides reach every gust table by its number (gust.K.KEY)", "[case][gust]") {
+  // Common practice, no source: the documented override syntax gust.K.KEY
+  // (README, "[[gust]]"), K counted from 1 in file order.
+  const std::string gusts = kSection + kFlow + kSim +
+                            "[[gust]]\nshape = \"sharp-edged\"\namplitude = 1.0\n"
+                            "[[gust]]\nshape = \"sinusoidal\"\namplitude = 2.0\nfrequency_hz = 3.0\n";
+  const Case c = parse_case(gusts, "g.toml", {"gust.2.amplitude=4.5", "gust.1.start=0.25"});
+  REQUIRE(c.model.gusts.profiles().size() == 2);
+  CHECK(c.model.gusts.profiles()[0].amplitude == 1.0);
+  CHECK(c.model.gusts.profiles()[0].start == 0.25);
+  CHECK(c.model.gusts.profiles()[1].amplitude == 4.5);
+  // A value refused by the reader is located at the override that set it.
+  {
+    const InputError e = error_of(gusts, {"gust.2.amplitude=500"});
+    CHECK(e.key() == "gust.amplitude");
+    CHECK(e.where().file == "--set gust.2.amplitude=500");
+  }
+  // A table the case does not have: the message names the tables it has.
+  {
+    const InputError e = error_of(gusts, {"gust.3.amplitude=1"});
+    CHECK(e.key() == "gust.3.amplitude");
+    CHECK_THAT(std::string(e.what()), Contains("names [[gust]] table 3, which the case file does not have"));
+    CHECK_THAT(std::string(e.what()), Contains("gust.1.KEY to gust.2.KEY"));
+  }
+  {
+    const InputError e = error_of(kSection + kFlow + kSim, {"gust.1.amplitude=1"});
+    CHECK_THAT(std::string(e.what()), Contains("the case file has no [[gust]] table"));
+  }
+  CHECK_THAT(std::string(error_of(gusts, {"gust.0.amplitude=1"}).what()), Contains("does not have"));
+  // No number: which table is meant is not said.
+  CHECK_THAT(std::string(error_of(gusts, {"gust.amplitude=1"}).what()),
+             Contains("does not say which [[gust]] table it sets"));
+  // A key no [[gust]] table has, with a hint.
+  CHECK_THAT(std::string(error_of(gusts, {"gust.1.amplitud=1"}).what()), Contains("did you mean 'gust.1.amplitude'"));
+}

@@ -7,6 +7,7 @@
 #include <limits>
 #include <mutex>
 
+#include "aerosect/analysis/orbit.hpp"
 #include "aerosect/analysis/sweep.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/journal.hpp"
@@ -93,7 +94,10 @@ TEST_CASE("Sweep classes: decay at low speed, LCO with freeplay, divergence past
                                        "duration_semichords = 3000\n");
   lin.options.axes[0].values = {2.0, 4.0, 6.0};
   lin.options.down = false;
-  for (const auto& p : run_sweep(lin, {}, {})) CHECK(p.lco.response == ResponseClass::kDecayed);
+  for (const auto& p : run_sweep(lin, {}, {})) {
+    CHECK(p.lco.response == ResponseClass::kDecayed);
+    CHECK(p.lco.decay_reason == DecayReason::kToRest);  // a linear section has no gap
+  }
   SweepRequest fp = request(3, 1);
   fp.options.axes[0].values = {4.0, 5.0, 7.0};
   fp.options.down = false;
@@ -337,4 +341,136 @@ TEST_CASE("The map's tables are the layout's fields, written through the sink ha
   write_sweep_tables(ma, ca, airspeed, {}, nullptr);
   CHECK(ma.tables.at("value_1").units == "m s-1");
   CHECK(ma.tables.at("value_2").units == "degree");
+}
+
+TEST_CASE("A sweep leaves the case's gusts out unless asked", "[sweep][gust]") {
+  // Common practice, no source: a gust response is no limit cycle
+  // (README, "LCO sweeps"). With a strong sharp-edged gust the default
+  // sweep's points equal those of the same case without the gust; with
+  // with_gusts they differ. Gust keys of a sweep without gusts are refused.
+  SweepRequest plain = request(3, 1);
+  SweepRequest gusty = plain;
+  gusty.case_text += "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\nstart_semichords = 20\n";
+  const auto a = run_sweep(plain, {}, {});
+  const auto b = run_sweep(gusty, {}, {});
+  REQUIRE(a.size() == b.size());
+  for (std::size_t k = 0; k < a.size(); ++k) CHECK(a[k].final_state == b[k].final_state);
+  CHECK(sweep_gust_note(parse_case(gusty.case_text, "g.toml"), gusty).rfind("left out", 0) == 0);
+  gusty.options.with_gusts = true;
+  const auto g = run_sweep(gusty, {}, {});
+  REQUIRE(g.size() == a.size());
+  CHECK(g[0].final_state.size() > a[0].final_state.size());  // the Küssner lag states ride along
+  gusty.options.with_gusts = false;
+  gusty.overrides = {"gust.1.amplitude=2"};
+  CHECK_THROWS_AS(check_swept_values(gusty), InputError);
+  gusty.options.with_gusts = true;
+  CHECK_NOTHROW(check_swept_values(gusty));
+}
+
+TEST_CASE("A run that has not settled is extended, then classed unsettled, never decayed", "[sweep]") {
+  // Hopf normal form (Kuznetsov, Elements of Applied Bifurcation Theory,
+  // ch. 3): just above the linear flutter speed U*_L = 6.2851 (Lee, Price &
+  // Wong 1999) a hardening cubic pitch spring holds a small stable cycle and
+  // the approach to it is slow (the cycle's multiplier tends to 1 at the
+  // Hopf point). At U* = 6.3 a 1-degree start has not settled within 10 x
+  // 100 semichords (the cap, kSweepRunCap): class unsettled, with the run
+  // extended to the cap and the warning counted; with a 3000-semichord run
+  // the same point settles on its LCO (periodic).
+  SweepRequest r = request(2, 1);
+  r.case_text = test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"cubic\"\ncubic_coefficient = 3.0\n[initial]\npitch_deg = 1.0\n"
+      "[simulation]\nduration_semichords = 100\n");
+  r.options.axes[0].values = {6.3, 6.35};
+  r.options.down = false;
+  r.options.continuation = false;
+  const auto pts = run_sweep(r, {}, {});
+  const Case c = parse_case(r.case_text, "u.toml", {"nondimensional.reduced_speed=6.3"});
+  for (const auto& p : pts) {
+    CHECK(p.lco.response == ResponseClass::kUnsettled);
+    CHECK(p.end_time == Approx(kSweepRunCap * c.simulation.duration).epsilon(0.05));
+  }
+  CHECK(unsettled_points(pts) == 2);
+  CHECK(sweep_json(c, r, pts, "")["unsettled_points"] == 2);
+  CHECK(sweep_json(c, r, pts, "")["warnings"].size() == 1);
+  CHECK(sweep_text(c, r, pts, "").find("warning: 2 points did not settle") != std::string::npos);
+  r.case_text = test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"cubic\"\ncubic_coefficient = 3.0\n[initial]\npitch_deg = 1.0\n"
+      "[simulation]\nduration_semichords = 3000\n");
+  for (const auto& p : run_sweep(r, {}, {})) CHECK(p.lco.response == ResponseClass::kPeriodic);
+}
+
+TEST_CASE("Stationary motion: a trend is not stationary, scatter about a level is", "[lco]") {
+  // Common practice, no source: the stationarity test of lco.hpp (window
+  // means within three standard errors) on synthetic peak sequences fed to
+  // the tracker: a sawtooth-modulated cycle about a fixed level is
+  // stationary, an exponentially growing one is not.
+  const Case c = test::case_from(test::benchmark_2dof("[simulation]\nduration_semichords = 10\n", 7.0));
+  const AeroelasticModel model(c.model);
+  auto feed = [&](auto amplitude_of) {
+    LcoTracker t(model, {});
+    std::vector<double> x(static_cast<std::size_t>(model.state_size()), 0.0);
+    const int at = model.layout().displacement + kPitch;
+    for (int n = 0; n < 60; ++n) {
+      x[static_cast<std::size_t>(at)] = amplitude_of(n);
+      t.on_peak(kPitch, 2.0 * n, x);
+      x[static_cast<std::size_t>(at)] = -amplitude_of(n);
+      t.on_peak(kPitch, 2.0 * n + 1.0, x);
+    }
+    return t.stationary();
+  };
+  CHECK(feed([](int n) { return 0.01 * (1.0 + 0.3 * ((n * 7) % 5 - 2) / 2.0); }));
+  CHECK_FALSE(feed([](int n) { return 0.01 * std::exp(0.02 * n); }));
+}
+
+TEST_CASE("A periodic point is refined to its orbit: the orbit solver's and a long march's amplitude", "[sweep][orbit]") {
+  // Periodic orbits by shooting (Seydel, Practical Bifurcation and
+  // Stability Analysis); a stable cycle is the limit of a long time march.
+  // Benchmark section with pitch freeplay (Lee, Price & Wong 1999) at
+  // U* = 4 and 5: the sweep's refined point (chord iterations, rtol 1e-10,
+  // residual 1e-8) must equal
+  //  - solve_orbit with its own defaults (full Newton, rtol 1e-12, residual
+  //    1e-10) from the same seed, to 1e-8 relative in amplitude and period;
+  //  - a time march from the case's 2-degree start at rtol 1e-12 (atol
+  //    1e-15) until successive cycles agree to 1e-11 (the LCO detector with
+  //    that tolerance; at least 300 cycles, far past the transient, the
+  //    orbit's multipliers being well inside the unit circle), to 1e-7
+  //    relative: the march's cycles agree to 1e-11 but its peaks are located
+  //    on the dense output to about the integrator's tolerance.
+  SweepRequest r = request(2, 1);
+  r.options.axes[0].values = {4.0, 5.0};
+  r.options.down = false;
+  r.options.continuation = false;
+  r.options.traces = false;
+  const auto pts = run_sweep(r, {}, {});
+  for (const auto& p : pts) {
+    INFO("U* = " << p.value1);
+    REQUIRE(p.lco.response == ResponseClass::kPeriodic);
+    REQUIRE(p.refined);
+    CHECK(p.refinement_failure.empty());
+    CHECK(p.orbit_residual <= 1e-8);
+    CHECK(p.floquet_multiplier < 1.0);
+    const Case c = parse_case(r.case_text, r.case_path, {fmt::format("nondimensional.reduced_speed={}", p.value1)});
+    const AeroelasticModel model(c.model);
+    // The orbit solver from the point's state on its section.
+    const Orbit o = solve_orbit(model, {p.final_state, 1.0 / p.lco.frequency});
+    REQUIRE(o.converged);
+    CHECK(p.lco.dof[kPitch].amplitude == Approx(o.dof[kPitch].amplitude).epsilon(1e-8));
+    CHECK(1.0 / p.lco.frequency == Approx(o.period).epsilon(1e-8));
+    CHECK(p.floquet_multiplier == Approx(o.largest_nontrivial).epsilon(1e-3));
+    // A long march.
+    LcoSettings ls;
+    ls.tolerance = 1e-11;
+    ls.min_cycles = 300;
+    LcoTracker tracker(model, ls);
+    RunState run;
+    run.x = model.initial_state(c.simulation.initial_displacement, c.simulation.initial_velocity,
+                                c.simulation.steady_lag_states);
+    run.regions = model.regions_of(run.x.data());
+    integrate(model, run, 400.0 * o.period, {StepperKind::kDopri5, 1e-12, 1e-15, 0.0, 0.0}, OutputSchedule::none(),
+              {{}, [&tracker](int dof, double t, const std::vector<double>& x) { return tracker.on_peak(dof, t, x); }});
+    const LcoResult march = tracker.result();
+    REQUIRE(march.response == ResponseClass::kPeriodic);
+    CHECK(p.lco.dof[kPitch].amplitude == Approx(march.dof[kPitch].amplitude).epsilon(1e-7));
+    CHECK(p.lco.frequency == Approx(march.frequency).epsilon(1e-7));
+  }
 }

@@ -12,12 +12,30 @@
 //                 run stops there (stationary LCO). A cycle whose period holds
 //                 p maxima of different heights (p <= 4) is found as the same
 //                 repetition with lag p;
-//   decayed       A below `decay_floor` (to rest), or the watched DOF stays
-//                 inside its spring's gap with A shrinking (into the gap);
+//   decayed       only for one of two verified reasons, both with rest
+//                 (every gap open) a stable equilibrium of the linearised
+//                 model, so that a small motion dies out: "to rest", A
+//                 below `decay_floor`; "into the gap", the watched DOF's
+//                 extrema inside its spring's gap (where the model is that
+//                 stable linear one) over the last 2 x `settle_cycles`
+//                 half-cycles with A shrinking over the last
+//                 `settle_cycles` cycles;
 //   divergent     |pitch| or |flap| beyond `divergence_angle`, or |plunge|
 //                 beyond `divergence_plunge` semichords: the run stops;
-//   non-periodic  none of these by the end of the run (quasi-periodic or
-//                 chaotic): the spread of A over the last cycles is given.
+//   non-periodic  none of these, but the motion is stationary (quasi-
+//                 periodic or chaotic): at least 2 W cycles (W =
+//                 `stationary_window`), and the mean cycle amplitude of the
+//                 last W cycles differs from that of the W before by no more
+//                 than three standard errors of the difference,
+//                 3 sqrt((s1^2 + s2^2)/W) with s1, s2 the windows' sample
+//                 standard deviations, or `stationary_tolerance` of the mean
+//                 (a growing, dying or converging motion drifts by more than
+//                 its scatter within a window): the spread of A over the
+//                 last cycles is given;
+//   unsettled     none of these by the end of the run: the motion is still
+//                 growing or dying out, or the run is too short to tell.
+//                 A caller extends such a run (the sweep does, up to its
+//                 cap) rather than report it as an answer.
 // Per DOF, over the last settled cycles: half peak-to-peak amplitude, the
 // largest and smallest value (asymmetric cycles), in m or rad.
 //
@@ -54,7 +72,11 @@
 
 namespace aerosect {
 
-enum class ResponseClass { kDecayed = 0, kPeriodic = 1, kNonPeriodic = 2, kDivergent = 3 };
+// Codes as in the sweep map's response_class (4 there is a failed point).
+enum class ResponseClass { kDecayed = 0, kPeriodic = 1, kNonPeriodic = 2, kDivergent = 3, kUnsettled = 5 };
+// Why a run was classed decayed (see above).
+enum class DecayReason { kNone = 0, kToRest = 1, kIntoGap = 2 };
+const char* to_string(DecayReason r);
 const char* to_string(ResponseClass c);
 
 struct LcoSettings {
@@ -65,6 +87,8 @@ struct LcoSettings {
   double divergence_angle = 1.0;    // rad (57 deg): beyond the theory's small angles
   double divergence_plunge = 10.0;  // semichords
   int watch_dof = -1;               // -1: the first nonlinear spring's DOF, else pitch
+  int stationary_window = 20;       // W, cycles (non-periodic)
+  double stationary_tolerance = 1e-3;
 };
 
 struct DofCycle {
@@ -73,7 +97,8 @@ struct DofCycle {
 };
 
 struct LcoResult {
-  ResponseClass response = ResponseClass::kNonPeriodic;
+  ResponseClass response = ResponseClass::kUnsettled;
+  DecayReason decay_reason = DecayReason::kNone;  // when decayed
   int watched_dof = kPitch;
   int cycles = 0;           // complete cycles of the watched DOF
   double frequency = 0;     // Hz (periodic and non-periodic)
@@ -120,6 +145,14 @@ class LcoTracker {
   ObserverAction on_peak(int dof, double t, const std::vector<double>& x);
   // Class and cycle figures once the run has ended (after end-of-run or a stop).
   LcoResult result() const;
+  // The class is decided (periodic, decayed, divergent: the run stopped
+  // there), or the motion is stationary (non-periodic): no longer run helps.
+  bool decided() const { return decided_flag_; }
+  bool stationary() const;
+  // The state at the maximum of the watched DOF where a periodic cycle was
+  // recognised (empty otherwise): a point on the cycle, the seed of its
+  // refinement to the periodic orbit.
+  const std::vector<double>& periodic_state() const { return periodic_state_; }
 
  private:
   struct Extremum {
@@ -135,8 +168,10 @@ class LcoTracker {
   std::vector<double> amplitude_, period_, cycle_end_;  // per complete cycle
   static constexpr int kMaxLag = 4;
   int lag_ = 1;  // maxima per period of a settled cycle
-  ResponseClass decided_ = ResponseClass::kNonPeriodic;
+  ResponseClass decided_ = ResponseClass::kUnsettled;
+  DecayReason decay_reason_ = DecayReason::kNone;
   bool decided_flag_ = false;
+  std::vector<double> periodic_state_;
 };
 
 }  // namespace aerosect

@@ -68,6 +68,13 @@ struct OrbitSettings {
   int watched_dof = -1;       // -1: the first nonlinear spring's DOF, else pitch
   double grazing_threshold = 1e-7;  // grazing_margin below this: grazing
   CycleSettings cycle;        // samples and harmonics of the content
+  // Chord iteration: the monodromy is integrated at the first iterate only
+  // and its Newton matrix reused; later iterates integrate the state alone
+  // (several times cheaper). Converges linearly, by about the seed's
+  // relative distance per iteration, so it suits seeds close to the orbit
+  // (a settled time-marched cycle); the multipliers are then those of the
+  // seed's monodromy (as accurate as the seed is close).
+  bool chord = false;
 };
 
 // A starting guess: a state near the section and a period guess.
@@ -90,6 +97,7 @@ struct Orbit {
   std::int64_t switches = 0;  // spring switches per period
   std::array<DofCycle, 3> dof{};          // amplitude, max, min (m or rad)
   std::array<DofHarmonics, 3> content{};  // mean, RMS, harmonics (m or rad)
+  std::array<std::vector<double>, 3> trace;  // the N samples of one period per DOF (lco.hpp)
   Eigen::MatrixXd monodromy;              // Phi(T), state_size square
   std::vector<std::complex<double>> multipliers;  // all, by decreasing modulus
   double trivial_multiplier_error = 0;    // min |mu - 1|

@@ -16,15 +16,28 @@
 // continuing the chain. When `cancel` turns true the points in flight stop
 // and are dropped (neither reported nor returned) and no new point starts.
 //
-// A periodic point's run goes on for one more LCO period, sampled at
-// `cycle.samples` instants (sample_settled_cycle in lco.hpp): per DOF mean,
-// RMS (about zero and about the mean), harmonic amplitudes 1..K and THD;
-// with `traces` the sampled cycle itself is kept too. The point's final
-// state (the next point's start under continuation) is the state after
-// that period.
+// A periodic point is refined to its periodic orbit (orbit.hpp: shooting
+// by chord iterations, flows at rtol 1e-10, to a scaled residual of 1e-8,
+// seeded with the state at the maximum of the watched DOF where the
+// detector recognised the cycle, and its period): the point's frequency,
+// per-DOF amplitude, max and min are the converged orbit's, its residual
+// and largest non-trivial Floquet multiplier (of the monodromy at the
+// detected cycle, the chord's matrix: as accurate as the detected cycle,
+// about 1e-4) are kept, and
+// its cycle content (per DOF mean, RMS about zero and about the mean,
+// harmonic amplitudes 1..K and THD; with `traces` the sampled cycle) is one
+// period of the orbit sampled at `cycle.samples` instants (lco.hpp). The
+// refinement is accepted only when Newton converges, the orbit is stable
+// (the march settled on it) and its period and watched amplitude are within
+// 5 % and 10 % of the marched cycle's; otherwise the point keeps the
+// marched figures, `refined` is false and `refinement_failure` says why,
+// and its run goes on for one more period, sampled as above. The point's
+// final state (the next point's start under continuation) is the orbit's
+// state on its section, or the state after that marched period.
 
 #include <atomic>
 #include <functional>
+#include <limits>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -55,6 +68,11 @@ struct SweepOptions {
   LcoSettings lco;
   CycleSettings cycle;
   bool traces = false;  // keep the sampled settled cycle of each periodic point
+  // The case's [[gust]] entries are left out unless asked: a gust response
+  // is no limit cycle, and a map point is a property of the section at that
+  // value, not of one encounter. With gusts, every point runs them.
+  bool with_gusts = false;
+  bool refine = true;  // refine periodic points to their orbit (above)
 };
 
 struct SweepPoint {
@@ -66,6 +84,11 @@ struct SweepPoint {
   LcoResult lco;
   SettledCycle cycle;  // periodic points only (cycle.samples == 0 otherwise);
                        // traces empty unless SweepOptions::traces
+  // Refinement to the periodic orbit (periodic points; see above).
+  bool refined = false;
+  double orbit_residual = std::numeric_limits<double>::quiet_NaN();      // scaled Newton residual
+  double floquet_multiplier = std::numeric_limits<double>::quiet_NaN();  // largest non-trivial |mu|
+  std::string refinement_failure;  // why not refined, for a periodic point
   double end_time = 0;
   std::int64_t steps = 0, switches = 0;
   std::vector<double> final_state;
@@ -79,9 +102,21 @@ struct SweepRequest {
 };
 
 // Throws InputError when a swept value is rejected by the case reader
-// (each axis value as an override of the case); a caller checks this before
-// it makes any file for the sweep.
+// (each axis value as an override of the case), or when a swept key or an
+// override sets a [[gust]] entry of a sweep that leaves the gusts out
+// (it would change nothing); a caller checks this before it makes any file
+// for the sweep.
 void check_swept_values(const SweepRequest& r);
+
+// The case of one sweep point: the request's case with its overrides and
+// `point_overrides` (the swept values), without its gusts unless the
+// request asks for them.
+Case sweep_point_case(const SweepRequest& r, const std::vector<std::string>& point_overrides = {});
+
+// What the sweep did with the case's gusts, in words (the text summary, the
+// JSON and the map's `gusts` attribute): "none in the case", "included"
+// or "left out (...)".
+std::string sweep_gust_note(const Case& c, const SweepRequest& r);
 
 // Runs every chain; returns all points (done ones included), sorted by
 // (direction, j, i). Throws InputError when a swept value is rejected by the
@@ -150,6 +185,18 @@ std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepR
                                             const SweepTables& t);
 // Points this request (this shard) computes.
 std::size_t sweep_point_count(const SweepRequest& r);
+
+// A point's run: the case's run length, extended by that length at a time
+// while the motion has not settled (no class decided and not stationary,
+// lco.hpp), up to kSweepRunCap times it; still unsettled then, the point is
+// classed unsettled and the summaries warn.
+inline constexpr double kSweepRunCap = 10.0;
+// Unsettled points (ok ones classed unsettled), and the warning about them.
+std::size_t unsettled_points(const std::vector<SweepPoint>& points);
+std::string unsettled_warning(const Case& c, std::size_t n);
+// Periodic points not refined to their orbit, and the note about them.
+std::size_t unrefined_points(const std::vector<SweepPoint>& points);
+std::string unrefined_warning(std::size_t n);
 
 struct SweepSummary {
   std::optional<double> onset_up;         // first periodic value going up (axis 1)

@@ -35,6 +35,7 @@ class Schema {
          std::string override_example, std::string document);
 
   const std::vector<std::string>& keys() const { return keys_; }
+  const std::vector<std::string>& array_tables() const { return array_tables_; }
   bool is_known_table(const std::string& path) const;
   bool is_known_key(const std::string& path) const;
   bool is_array_table(const std::string& path) const;
@@ -68,7 +69,12 @@ struct Context {
 class Table {
  public:
   Table(const Context& ctx, const toml::table* t, std::string path)
-      : ctx_(ctx), t_(t), path_(std::move(path)) {}
+      : ctx_(ctx), t_(t), path_(std::move(path)), override_path_(path_) {}
+  // An entry of an array of tables ([[gust]] number k): keys are named by
+  // `path` ("gust.amplitude") in messages, overrides by `override_path`
+  // ("gust.2", as `--set gust.2.amplitude=...` gives them).
+  Table(const Context& ctx, const toml::table* t, std::string path, std::string override_path)
+      : ctx_(ctx), t_(t), path_(std::move(path)), override_path_(std::move(override_path)) {}
 
   bool present() const { return t_ != nullptr; }
   const std::string& path() const { return path_; }
@@ -113,6 +119,7 @@ class Table {
   const Context& ctx_;
   const toml::table* t_;
   std::string path_;
+  std::string override_path_;
 };
 
 // Checked reads shared by the schemas.
@@ -122,7 +129,11 @@ double nonnegative_or(const Table& t, std::string_view key, double def, const st
 // The document, or an InputError at the syntax error ("not valid TOML: ...").
 toml::table parse_document(std::string_view text, const std::string& path);
 // Applies one "key=value" override (the value read as TOML; a bare word is a
-// string) and records it in ctx. Unknown keys and tables are errors.
+// string) and records it in ctx. Unknown keys and tables are errors. A key
+// of an entry of an array of tables is reached by the entry's number,
+// counted from 1 in file order: `gust.2.amplitude` is the `amplitude` of the
+// second [[gust]] table; an entry the document does not have is an error
+// naming the entries it has.
 void apply_override(toml::table& root, const std::string& text, const Schema& schema, Context& ctx);
 // Throws InputError at the first key of `t` (under `prefix`) the schema does
 // not know, with a "did you mean".

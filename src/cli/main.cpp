@@ -25,10 +25,12 @@
 
 namespace {
 
-// The heading of a bad-input message: options are named as such.
+// The heading of a bad-input message: options are named as such; any
+// other input is a file (a case, a recorded gust, a sweep journal, a shard),
+// which the message's first line names.
 std::string input_heading(const aerosect::InputError& e) {
   return e.where().file.rfind("-", 0) == 0 ? "aerosect: error in the command line:\n"
-                                            : "aerosect: error in the case:\n";
+                                            : "aerosect: error in an input file:\n";
 }
 
 int run_command(const std::vector<aerosect::cli::Command>& commands) {

@@ -44,6 +44,8 @@ def refused(name, r, path, *words):
     check(f"{name}: names {os.path.basename(path)}", path in r.stderr, r.stderr)
     for w in words:
         check(f"{name}: says '{w}'", w in r.stderr, r.stderr)
+    check(f"{name}: headed as an input-file error (not as the case's)",
+          "error in an input file" in r.stderr and "error in the case" not in r.stderr, r.stderr[:300])
     check(f"{name}: no internal error", "internal" not in r.stderr.lower()
           and "terminate" not in r.stderr, r.stderr)
 

@@ -20,8 +20,10 @@ std::vector<double> default_gradients() {
   return g;
 }
 
+const char* to_string(GustStart s) { return s == GustStart::kRest ? "rest" : "case-initial"; }
+
 GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients,
-                              const std::atomic<bool>* cancel) {
+                              const std::atomic<bool>* cancel, GustStart start) {
   std::vector<GustProfile> base = c.model.gusts.profiles();
   bool any = false;
   for (const auto& p : base) any |= p.shape == GustShape::kOneMinusCosine;
@@ -30,6 +32,7 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
                      "a gradient sweep needs at least one [[gust]] with shape = \"one-minus-cosine\"",
                      "a [[gust]] table with shape = \"one-minus-cosine\" and a gradient or design");
   GustSweep out;
+  out.start = start;
   for (double H : gradients) {
     AEROSECT_CHECK(H > 0);
     stop_if_cancelled(cancel);
@@ -47,6 +50,11 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
       if (first < 0) first = p.amplitude;
     }
     run.model.gusts = GustField(profiles, c.model.flow.airspeed);
+    if (start == GustStart::kRest) {
+      run.simulation.initial_displacement.setZero();
+      run.simulation.initial_velocity.setZero();
+      run.simulation.steady_lag_states = false;
+    }
     // Long enough to pass through the longest gust and a little after.
     run.simulation.duration = std::max(c.simulation.duration, run.model.gusts.end_time() * 1.5);
     const AeroelasticModel model(run.model);
@@ -82,10 +90,21 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
   return out;
 }
 
+namespace {
+// What the peaks contain, said with every report.
+std::string start_note(GustStart s) {
+  return s == GustStart::kRest
+             ? "runs start from rest: every peak is the gust's own (--keep-initial starts from the case's [initial])"
+             : "runs start from the case's [initial] conditions: peaks include the release transient";
+}
+}  // namespace
+
 nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::string& output) {
   nlohmann::json j = report_header(c, "gust");
   j["output"] = output;
   j["gust_convention"] = "gust velocity positive up at the leading edge; 1-cos profiles";
+  j["start"] = to_string(s.start);
+  j["start_note"] = start_note(s.start);
   j["points"] = nlohmann::json::array();
   for (const auto& p : s.points) {
     nlohmann::json pj;
@@ -105,7 +124,8 @@ nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::str
 std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string& output) {
   std::string t = fmt::format("aerosect {} gust gradient sweep: {}\n", kVersion, c.path);
   if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
-  t += "  one-minus-cosine gusts, velocity positive up at the leading edge\n\n";
+  t += "  one-minus-cosine gusts, velocity positive up at the leading edge\n";
+  t += fmt::format("  {}\n\n", start_note(s.start));
   t += fmt::format("  {:>8} {:>9} {:>12} {:>12} {:>12} {:>11} {:>11}\n", "H m", "U_ds m/s",
                    "lift N/m", "M_a N m/m", "M_b N m/m", "pitch deg", "flap deg");
   auto peak = [](const SimulationSummary& sm, const std::string& ch) {
@@ -172,13 +192,18 @@ Layout<GustSweepPoint> gust_sweep_layout(const GustSweepPoint& first) {
                            [k](const GustSweepPoint& p) { return p.summary.extremes.at(k).max; }));
     layout.push_back(field("peaks/" + ch + "_min", channels[k].units, "smallest " + ch,
                            [k](const GustSweepPoint& p) { return p.summary.extremes.at(k).min; }));
+    layout.push_back(field("peaks/" + ch + "_time_of_max", "s", "time of the largest " + ch,
+                           [k](const GustSweepPoint& p) { return p.summary.extremes.at(k).time_of_max; }));
+    layout.push_back(field("peaks/" + ch + "_time_of_min", "s", "time of the smallest " + ch,
+                           [k](const GustSweepPoint& p) { return p.summary.extremes.at(k).time_of_min; }));
   }
   return layout;
 }
 
 void write_gust_sweep_tables(TableSink& doc, const Case& c, const GustSweep& s) {
   RunMetadata meta = case_metadata(c, "gust-sweep");
-  meta.text_attributes.push_back({"initial_state", initial_state_text(c.simulation)});
+  meta.text_attributes.push_back(
+      {"initial_state", s.start == GustStart::kRest ? std::string("rest") : initial_state_text(c.simulation)});
   doc.metadata(meta);
   std::vector<double> H;
   for (const auto& p : s.points) H.push_back(p.gradient);

@@ -227,6 +227,25 @@ with tempfile.TemporaryDirectory() as tmp:
     check("unwritable output exit 4", r.returncode == 4, (r.returncode, r.stderr))
     r = run("frobnicate")
     check("unknown command", r.returncode == 2, r.returncode)
+    # gust: every run from rest unless --keep-initial, said in the JSON; the
+    # file holds each peak's time (README, "Discrete-gust gradient sweep").
+    gust_h5 = os.path.join(tmp, "gust.h5")
+    r = run("gust", DEMO, "--gradients", "20:20:1", "--json", "-o", gust_h5)
+    check("gust exit", r.returncode == 0, r.stderr)
+    if r.returncode == 0:
+        j = json.loads(r.stdout)
+        check("gust from rest by default", j["start"] == "rest" and "from rest" in j["start_note"], j.get("start"))
+        import h5py
+        with h5py.File(gust_h5) as f:
+            units = (f["peaks/pitch_time_of_max"].attrs.get("units", b"")
+                     if "peaks/pitch_time_of_max" in f else b"")
+            units = units.decode() if isinstance(units, bytes) else str(units)
+            check("gust file: times of the peaks in s", units == "s", list(f["peaks"].keys())[:6])
+            check("gust file: initial_state rest", str(f.attrs["initial_state"]) in ("rest", "b'rest'"),
+                  f.attrs["initial_state"])
+    r = run("gust", DEMO, "--gradients", "20:20:1", "--json", "--keep-initial")
+    check("gust --keep-initial", r.returncode == 0 and json.loads(r.stdout)["start"] == "case-initial",
+          r.stderr[-300:])
 
 print(f"{passed} passed, {failed} failed")
 sys.exit(1 if failed else 0)

@@ -256,6 +256,43 @@ TEST_CASE("Gradient sweep re-sizes regulation gusts and names the critical gradi
   }
 }
 
+TEST_CASE("Gradient sweep starts from rest unless asked: peaks are the gust's own", "[gust]") {
+  // Common practice, no source (a linear section at rest stays at rest until
+  // the gust front arrives; superposition of a linear system's responses):
+  // a section released from 2 degrees of pitch with a gust arriving at
+  // 0.3 s (20 m/s, below the divergence speed 32.7 m/s). From rest, every peak comes after the gust arrives, and the
+  // gust sweep's peaks equal a simulation of the same gust from rest. From
+  // the case's initial conditions, the pitch-rate peak is the release
+  // transient's, before the gust.
+  const std::string text =
+      "[section]\nsemichord = 0.5\nmass = 10.0\nelastic_axis = -0.2\ncg_offset = 0.1\n"
+      "radius_of_gyration = 0.5\nplunge_frequency_hz = 2.0\npitch_frequency_hz = 5.0\n"
+      "pitch_damping_ratio = 0.02\n[flow]\naltitude = 0.0\nairspeed = 20.0\n[simulation]\nduration = 1.0\n"
+      "[initial]\npitch_deg = 2.0\n"
+      "[[gust]]\nshape = \"one-minus-cosine\"\namplitude = 0.1\ngradient = 10.0\nstart = 0.3\n";
+  const Case c = test::case_from(text);
+  const GustSweep rest = gust_gradient_sweep(c, {10.0});
+  CHECK(rest.start == GustStart::kRest);
+  REQUIRE(rest.points.size() == 1);
+  for (const auto& e : rest.points[0].summary.extremes) {
+    INFO(e.channel);
+    if (e.max > 0) CHECK(e.time_of_max >= 0.3);
+    if (e.min < 0) CHECK(e.time_of_min >= 0.3);
+  }
+  const Case at_rest = test::case_from(text, {"initial.pitch_deg=0.0"});
+  const GustSweep same = gust_gradient_sweep(at_rest, {10.0});
+  for (std::size_t k = 0; k < same.points[0].summary.extremes.size(); ++k) {
+    CHECK(rest.points[0].summary.extremes[k].max == same.points[0].summary.extremes[k].max);
+    CHECK(rest.points[0].summary.extremes[k].min == same.points[0].summary.extremes[k].min);
+  }
+  const GustSweep released = gust_gradient_sweep(c, {10.0}, nullptr, GustStart::kCaseInitial);
+  CHECK(released.start == GustStart::kCaseInitial);
+  bool early = false;
+  for (const auto& e : released.points[0].summary.extremes)
+    if (e.channel == "pitch_velocity") early = std::min(e.time_of_max, e.time_of_min) < 0.3;
+  CHECK(early);
+}
+
 TEST_CASE("Gust keys are validated", "[gust][case][errors]") {
   // Common practice, no source: this project's messages.
   auto expect = [](const std::string& text, const std::string& key, const std::string& part) {

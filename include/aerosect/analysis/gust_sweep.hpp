@@ -23,7 +23,14 @@ struct GustSweepPoint {
   SimulationSummary summary;   // extremes of every channel
 };
 
+// Where each run of the sweep starts. From rest (the default) every peak
+// is the gust's own; from the case's [initial] conditions the release
+// transient adds to it, and its peaks may come before the gust arrives.
+enum class GustStart { kRest, kCaseInitial };
+const char* to_string(GustStart s);  // "rest", "case-initial"
+
 struct GustSweep {
+  GustStart start = GustStart::kRest;
   std::vector<GustSweepPoint> points;
   // Per channel: the gradient giving the largest |value| and that value (signed).
   struct Critical {
@@ -39,7 +46,7 @@ std::vector<double> default_gradients();
 // Throws InputError (key "gust") when the case has no one-minus-cosine gust,
 // Cancelled when `cancel` is set during the sweep (the run in flight stops).
 GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients,
-                              const std::atomic<bool>* cancel = nullptr);
+                              const std::atomic<bool>* cancel = nullptr, GustStart start = GustStart::kRest);
 
 nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::string& output);
 std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string& output);

@@ -216,7 +216,15 @@ void check_swept_values(const SweepRequest& r) {
     for (double v : ax.values) {
       std::vector<std::string> o2 = r.overrides;
       o2.push_back(fmt::format("{}={:.17g}", ax.key, v));
-      (void)parse_case(r.case_text, r.case_path, o2);
+      try {
+        (void)parse_case(r.case_text, r.case_path, o2);
+      } catch (const InputError& e) {
+        // The swept value is applied as an override: name the option that
+        // gave it, not a --set the user never wrote.
+        if (e.where().file != "--set " + o2.back()) throw;
+        throw InputError({fmt::format("--vary {}={:.17g}", ax.key, v), 0, 0}, e.key(), e.value(), e.problem(),
+                         e.allowed());
+      }
     }
 }
 

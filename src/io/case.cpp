@@ -172,6 +172,16 @@ double chord_position(const Table& t, std::string_view key) {
   return v;
 }
 
+// Of two keys of `t` whose values clash, the one a message blames: the one
+// given by a --set override when only one is, else the one on the later
+// line (the last written is the likeliest edit); `first` on a tie.
+std::string_view blamed_of(const Table& t, std::string_view first, std::string_view second) {
+  const SourceLocation a = t.where(first), b = t.where(second);
+  const bool a_set = a.file.rfind("--", 0) == 0, b_set = b.file.rfind("--", 0) == 0;
+  if (a_set != b_set) return b_set ? second : first;
+  return b.line > a.line ? second : first;
+}
+
 // A quantity derived from inputs must be a finite number (and positive when
 // `positive`): each input may be finite while their product overflows double
 // precision (mass = 1e308 kg/m gives an infinite stiffness) or a square
@@ -249,10 +259,12 @@ void read_si(const Table& sec, const Table& flap, const Table& flow, Case& c) {
   const double I_cg = s.pitch_inertia - m * x_alpha_b * x_alpha_b;
   if (!(I_cg > 1e-12 * s.pitch_inertia)) {
     const double r2 = s.pitch_inertia / (m * b * b), x2 = x_alpha_b * x_alpha_b / (b * b);
-    sec.fail(inertia_key,
-             fmt::format("is physically impossible with the given CG: r_alpha^2 = {:.6g} <= "
+    const std::string_view key = blamed_of(sec, inertia_key, cg_key);
+    const std::string_view other = key == inertia_key ? cg_key : inertia_key;
+    sec.fail(key,
+             fmt::format("is physically impossible with '{}': r_alpha^2 = {:.6g} <= "
                          "x_alpha^2 = {:.6g} (the inertia about the CG would be {:.6g} kg m^2/m)",
-                         r2, x2, I_cg),
+                         sec.key_path(other), r2, x2, I_cg),
              "an inertia about the elastic axis larger than m (x_alpha b)^2 (r_alpha^2 > x_alpha^2)");
   }
 
@@ -359,11 +371,14 @@ void read_nondimensional(const Table& nd, Case& c) {
   n.elastic_axis = chord_position(nd, "elastic_axis");
   n.cg_offset = nd.required_number("cg_offset", "x_alpha, semichords aft of the elastic axis");
   n.radius_of_gyration = positive(nd, "radius_of_gyration", "r_alpha, semichords");
-  nd.require(n.radius_of_gyration * n.radius_of_gyration > n.cg_offset * n.cg_offset,
-             "radius_of_gyration",
-             fmt::format("is physically impossible: r_alpha^2 = {:.6g} <= x_alpha^2 = {:.6g}",
-                         n.radius_of_gyration * n.radius_of_gyration, n.cg_offset * n.cg_offset),
-             "r_alpha > |x_alpha| (positive inertia about the CG)");
+  if (!(n.radius_of_gyration * n.radius_of_gyration > n.cg_offset * n.cg_offset)) {
+    const std::string_view key = blamed_of(nd, "radius_of_gyration", "cg_offset");
+    nd.fail(key,
+            fmt::format("is physically impossible with '{}': r_alpha^2 = {:.6g} <= x_alpha^2 = {:.6g}",
+                        nd.key_path(key == "cg_offset" ? "radius_of_gyration" : "cg_offset"),
+                        n.radius_of_gyration * n.radius_of_gyration, n.cg_offset * n.cg_offset),
+            "r_alpha > |x_alpha| (positive inertia about the CG)");
+  }
   n.frequency_ratio = nd.required_number("frequency_ratio", "omega_h / omega_alpha >= 0");
   nd.require(n.frequency_ratio >= 0, "frequency_ratio", "must not be negative",
              "omega_h / omega_alpha >= 0");
@@ -874,10 +889,15 @@ Case parse_case(const std::string& text, const std::string& path,
   const bool si = sec.present() || flap.present() || flow.present();
   if (si && nd.present()) {
     const Table& first = sec.present() ? sec : (flap.present() ? flap : flow);
+    // A table without a line in the file was made by a --set override.
+    const SourceLocation w = first.where_table();
+    const std::string at = w.line > 0 ? fmt::format("at line {}", w.line)
+                           : w.file.rfind("--", 0) == 0 ? "given by " + w.file
+                                                        : "given by a --set override";
     throw InputError(nd.where_table(), "nondimensional", "",
-                     fmt::format("conflicts with [{}] at line {}: a case gives the section in one "
+                     fmt::format("conflicts with [{}] {}: a case gives the section in one "
                                  "form only",
-                                 first.path(), first.where_table().line),
+                                 first.path(), at),
                      "either [section] + [flow] (+ [flap]) in SI units, or [nondimensional]");
   }
   if (!si && !nd.present()) {

@@ -1,6 +1,7 @@
 #include "aerosect/io/toml_reader.hpp"
 
 #include <algorithm>
+#include <limits>
 #include <cmath>
 #include <sstream>
 
@@ -66,18 +67,22 @@ std::string Schema::suggestion_for(const std::string& path, bool is_table) const
   const std::size_t limit = std::max<std::size_t>(2, leaf.size() / 3);
   for (bool same_table : {true, false}) {
     std::string best;
-    std::size_t best_d = limit + 1;
+    std::size_t best_d = std::numeric_limits<std::size_t>::max();
     for (const auto& c : candidates) {
       if (same_table != (parent_of(c) == parent)) continue;
+      const std::string cand = leaf_of(c);
+      // In the same table a key holding the leaf whole ('speed' in
+      // 'airspeed') is a hint at any distance; otherwise at most `limit`.
+      const bool part = same_table && leaf.size() >= 4 && cand.find(leaf) != std::string::npos;
+      const std::size_t allowed = part ? cand.size() : limit;
       // The edit distance is at least the length difference: a candidate
       // that cannot beat the best so far is not measured (a 30 000-character
       // key then costs nothing).
-      const std::string cand = leaf_of(c);
       const std::size_t gap = leaf.size() > cand.size() ? leaf.size() - cand.size() : cand.size() - leaf.size();
-      if (gap >= best_d || gap >= leaf.size()) continue;
+      if (gap >= best_d || gap > allowed || (!part && gap >= leaf.size())) continue;
       const std::size_t d = edit_distance(leaf, cand);
       // A candidate sharing nothing with the leaf ('x' -> 'cg') is no hint.
-      if (d < best_d && d < leaf.size()) {
+      if (d < best_d && d <= allowed && (part || d < leaf.size())) {
         best_d = d;
         best = c;
       }

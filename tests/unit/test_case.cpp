@@ -988,3 +988,23 @@ TEST_CASE("Overrides reach every gust table by its number (gust.K.KEY)", "[case]
   // A key no [[gust]] table has, with a hint.
   CHECK_THAT(std::string(error_of(gusts, {"gust.1.amplitud=1"}).what()), Contains("did you mean 'gust.1.amplitude'"));
 }
+
+TEST_CASE("A clash of two keys blames the one given last or by --set", "[case][errors]") {
+  // This project's messages (common practice, no source): r_alpha > |x_alpha|
+  // (theory sheet, section 1) involves two keys; the message names the one
+  // the user changed (a --set override, else the later line) and the other.
+  const std::string nd = test::benchmark_2dof("[simulation]\nduration = 1.0\n");
+  const InputError a = error_of(nd, {"nondimensional.cg_offset=0.6"});
+  CHECK(a.key() == "nondimensional.cg_offset");
+  CHECK(a.where().file == "--set nondimensional.cg_offset=0.6");
+  CHECK_THAT(std::string(a.what()), Contains("with 'nondimensional.radius_of_gyration'"));
+  const InputError b = error_of(nd, {"nondimensional.radius_of_gyration=0.2"});
+  CHECK(b.key() == "nondimensional.radius_of_gyration");
+  CHECK_THAT(std::string(b.what()), Contains("with 'nondimensional.cg_offset'"));
+  // --vary's values are checked as overrides but named as --vary (sweep.cpp);
+  // a [flow] table made by --set in a nondimensional case is said to be so.
+  const InputError c = error_of(nd, {"flow.airspeed=30"});
+  CHECK_THAT(std::string(c.what()), Contains("conflicts with [flow] given by a --set override"));
+  // A key holding the typed leaf whole is suggested in its own table.
+  CHECK_THAT(std::string(error_of(nd, {"flow.speed=30"}).what()), Contains("did you mean 'flow.airspeed'"));
+}

@@ -474,3 +474,17 @@ TEST_CASE("A periodic point is refined to its orbit: the orbit solver's and a lo
     CHECK(p.lco.frequency == Approx(march.frequency).epsilon(1e-7));
   }
 }
+
+TEST_CASE("A bad swept key is named as the --vary that gave it", "[sweep][errors]") {
+  // This project's messages (common practice, no source): the swept values
+  // are applied as overrides, but the message names the --vary option.
+  SweepRequest r = request(3, 1);
+  r.options.axes = {SweepAxis{"nondimensional.reduced_sped", {1.0, 2.0}}};
+  try {
+    check_swept_values(r);
+    FAIL("no error");
+  } catch (const InputError& e) {
+    CHECK(e.where().file == "--vary nondimensional.reduced_sped=1");
+    CHECK_THAT(std::string(e.what()), Catch::Matchers::Contains("did you mean 'nondimensional.reduced_speed'"));
+  }
+}

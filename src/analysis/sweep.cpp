@@ -411,7 +411,7 @@ JournalHead sweep_journal_head(const SweepRequest& r) {
   // request's with_gusts. Older formats are refused with journal.cpp's
   // message: 1 had the request as the head line, 1 and 2 the point records
   // in the --json form, 3 no refinement and another meaning of the classes.
-  h.format = 4;
+  h.format = kSweepJournalFormat;
   h.identity = request_json(r);
   return h;
 }

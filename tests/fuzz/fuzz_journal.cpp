@@ -79,8 +79,11 @@ void check_points(const std::vector<aerosect::SweepPoint>& points, const Sweep& 
     if (p.value1 != o.axes[0].values[static_cast<std::size_t>(p.i)]) std::abort();
     if (o.axes.size() > 1 && p.value2 != o.axes[1].values[static_cast<std::size_t>(p.j)]) std::abort();
     if (p.lco.watched_dof < 0 || p.lco.watched_dof >= s.ndof) std::abort();
-    const int cls = static_cast<int>(p.lco.response);
-    if (cls < 0 || cls > 3) std::abort();
+    using aerosect::ResponseClass;
+    const ResponseClass cls = p.lco.response;
+    if (cls != ResponseClass::kDecayed && cls != ResponseClass::kPeriodic && cls != ResponseClass::kNonPeriodic &&
+        cls != ResponseClass::kDivergent && cls != ResponseClass::kUnsettled)
+      std::abort();
     if (p.final_state.size() > aerosect::kMaxStateSize || p.final_regions.size() > static_cast<std::size_t>(s.ndof))
       std::abort();
     if (p.cycle.samples != 0 && static_cast<std::size_t>(p.cycle.samples) != t.samples) std::abort();
@@ -108,7 +111,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
     } else {
       aerosect::JournalHead head;
       head.kind = "sweep";
-      head.format = 3;
+      head.format = aerosect::kSweepJournalFormat;
       head.identity = {{"fuzz", "not the journal's sweep"}};
       const aerosect::Journal journal(path, head);
     }

@@ -106,6 +106,10 @@ struct SweepRequest {
 // override sets a [[gust]] entry of a sweep that leaves the gusts out
 // (it would change nothing); a caller checks this before it makes any file
 // for the sweep.
+// The sweep journal's format (io/journal.hpp): raised whenever a record's
+// fields change (4: refined orbits, decay reasons, the unsettled class).
+inline constexpr int kSweepJournalFormat = 4;
+
 void check_swept_values(const SweepRequest& r);
 
 // The case of one sweep point: the request's case with its overrides and

@@ -126,24 +126,42 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
   if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
   t += "  one-minus-cosine gusts, velocity positive up at the leading edge\n";
   t += fmt::format("  {}\n\n", start_note(s.start));
-  t += fmt::format("  {:>8} {:>9} {:>12} {:>12} {:>12} {:>11} {:>11}\n", "H m", "U_ds m/s",
-                   "lift N/m", "M_a N m/m", "M_b N m/m", "pitch deg", "flap deg");
-  auto peak = [](const SimulationSummary& sm, const std::string& ch) {
-    for (const auto& e : sm.extremes)
-      if (e.channel == ch) return std::abs(e.max) > std::abs(e.min) ? e.max : e.min;
-    return std::nan("");
+  // One units vocabulary with the files (UDUNITS); angles shown in degrees
+  // in the table and the critical lines alike; the flap columns only for a
+  // 3-DOF section.
+  auto shown = [](double v, const std::string& units) -> std::pair<double, std::string> {
+    if (units.rfind("rad", 0) == 0) return {v * kDegPerRad, "degree" + units.substr(3)};
+    return {v, units};
   };
+  auto extreme = [](const SimulationSummary& sm, const std::string& ch) -> const Extreme* {
+    for (const auto& e : sm.extremes)
+      if (e.channel == ch) return &e;
+    return nullptr;
+  };
+  std::vector<std::string> columns = {"lift", "pitching_moment", "hinge_moment", "pitch", "flap"};
+  if (c.model.section.dof < 3) columns = {"lift", "pitching_moment", "pitch"};
+  const SimulationSummary* first = s.points.empty() ? nullptr : &s.points.front().summary;
+  std::string head = fmt::format("  {:>8} {:>11}", "H m", "U_ds m s-1");
+  for (const auto& ch : columns) {
+    const Extreme* e = first ? extreme(*first, ch) : nullptr;
+    head += fmt::format(" {:>22}", ch + " " + (e ? shown(0, e->units).second : std::string("?")));
+  }
+  t += head + "\n";
   for (const auto& p : s.points) {
-    t += fmt::format("  {:>8.4g} {:>9.4g} {:>12.5g} {:>12.5g} {:>12.5g} {:>11.4g} {:>11.4g}\n",
-                     p.gradient, p.design_velocity, peak(p.summary, "lift"),
-                     peak(p.summary, "pitching_moment"), peak(p.summary, "hinge_moment"),
-                     peak(p.summary, "pitch") * kDegPerRad,
-                     peak(p.summary, "flap") * kDegPerRad);
+    std::string row = fmt::format("  {:>8.4g} {:>11.4g}", p.gradient, p.design_velocity);
+    for (const auto& ch : columns) {
+      const Extreme* e = extreme(p.summary, ch);
+      const double v = e ? (std::abs(e->max) > std::abs(e->min) ? e->max : e->min) : std::nan("");
+      row += fmt::format(" {:>22.6g}", e ? shown(v, e->units).first : v);
+    }
+    t += row + "\n";
   }
   t += "\n  critical gradient (largest magnitude):\n";
-  for (const auto& cr : s.critical)
-    t += fmt::format("    {:<18} H = {:<8.4g} m  peak {:.6g} {} at t = {:.4g} s\n", cr.channel,
-                     cr.gradient, cr.value, cr.units, cr.time);
+  for (const auto& cr : s.critical) {
+    const auto [v, units] = shown(cr.value, cr.units);
+    t += fmt::format("    {:<24} H = {:<8.4g} m  peak {:.6g} {} at t = {:.4g} s\n", cr.channel, cr.gradient, v, units,
+                     cr.time);
+  }
   if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
   t += "\n";
   t += kSafetyCaution;

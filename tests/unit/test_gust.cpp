@@ -285,6 +285,15 @@ TEST_CASE("Gradient sweep starts from rest unless asked: peaks are the gust's ow
     CHECK(rest.points[0].summary.extremes[k].max == same.points[0].summary.extremes[k].max);
     CHECK(rest.points[0].summary.extremes[k].min == same.points[0].summary.extremes[k].min);
   }
+  // The text of a 2-DOF sweep: no flap columns (no NaN), angles in degrees
+  // in the table and the critical lines, the files' units vocabulary.
+  const std::string report = gust_sweep_text(c, rest, "");
+  CHECK(report.find("nan") == std::string::npos);
+  CHECK(report.find("hinge_moment") == std::string::npos);
+  CHECK(report.find("pitch degree") != std::string::npos);
+  CHECK(report.find("N m m-1") != std::string::npos);
+  CHECK(report.find(" rad") == std::string::npos);
+  CHECK(report.find("from rest") != std::string::npos);
   const GustSweep released = gust_gradient_sweep(c, {10.0}, nullptr, GustStart::kCaseInitial);
   CHECK(released.start == GustStart::kCaseInitial);
   bool early = false;

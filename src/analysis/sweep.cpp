@@ -197,6 +197,13 @@ std::string sweep_gust_note(const Case& c, const SweepRequest& r) {
 
 namespace {
 bool is_gust_key(const std::string& key) { return key.rfind("gust.", 0) == 0; }
+
+// A swept key's units (a key of a list value, or one the schema does not
+// know, has none to give: "1").
+std::string axis_units(const std::string& key) {
+  const std::string u = case_key_units(key);
+  return u.empty() ? "1" : u;
+}
 }  // namespace
 
 void check_swept_values(const SweepRequest& r) {
@@ -547,32 +554,48 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   t += fmt::format("  {}; {} points\n", r.options.continuation ? "continuation" : "fresh starts",
                    p.size());
   t += fmt::format("  gusts: {}\n\n", sweep_gust_note(c, r));
-  t += fmt::format("  {:>4} {:>14} {:>13} {:>12} {:>10} {:>7}\n", "dir", r.options.axes[0].key, "class",
-                   "amplitude", "freq Hz", "cycles");
+  // Every swept key is a column, headed with its units (case_key_units);
+  // amplitudes in degree or m, as said on each row.
+  const bool two = r.options.axes.size() > 1;
+  const std::string u1 = axis_units(r.options.axes[0].key);
+  const std::string u2 = two ? axis_units(r.options.axes[1].key) : std::string();
+  auto with_units = [](const std::string& key, const std::string& u) { return u == "1" ? key : key + " " + u; };
+  const std::string h1 = with_units(r.options.axes[0].key, u1);
+  const std::string h2 = two ? with_units(r.options.axes[1].key, u2) : std::string();
+  const std::size_t w1 = std::max<std::size_t>(14, h1.size()), w2 = std::max<std::size_t>(14, h2.size());
+  t += fmt::format("  {:>4} {:>{}}", "dir", h1, w1);
+  if (two) t += fmt::format(" {:>{}}", h2, w2);
+  t += fmt::format(" {:>13} {:>16} {:>10} {:>7}\n", "class", "amplitude", "freq Hz", "cycles");
   for (const auto& q : p) {
     const int w = q.lco.watched_dof;
     const bool angle = w != kPlunge;
-    t += fmt::format("  {:>4} {:>14.6g} {:>13} {:>9.5g} {:<2} {:>10.4g} {:>7}{}\n",
-                     q.direction == 0 ? "up" : "down", q.value1,
+    t += fmt::format("  {:>4} {:>{}.6g}", q.direction == 0 ? "up" : "down", q.value1, w1);
+    if (two) t += fmt::format(" {:>{}.6g}", q.value2, w2);
+    t += fmt::format(" {:>13} {:>9.5g} {:<6} {:>10.4g} {:>7}{}\n",
                      !q.ok ? std::string("failed")
                      : q.lco.response == ResponseClass::kPeriodic && !q.refined
                          ? std::string("periodic*")
                          : std::string(to_string(q.lco.response)),
                      q.lco.dof[static_cast<std::size_t>(w)].amplitude * (angle ? kDegPerRad : 1.0),
-                     angle ? "°" : "m", q.lco.frequency, q.lco.cycles,
+                     angle ? "degree" : "m", q.lco.frequency, q.lco.cycles,
                      q.ok ? "" : "  " + q.error.substr(0, 60));
   }
   const SweepSummary s = summarize(p);
   t += "\n";
-  t += s.onset_up ? fmt::format("  LCO onset going up: {:.6g}\n", *s.onset_up) : "  no LCO going up\n";
+  const std::string at_units = u1 == "1" ? "" : " " + u1;
+  t += s.onset_up ? fmt::format("  LCO onset going up: {:.6g}{}\n", *s.onset_up, at_units) : "  no LCO going up\n";
   if (r.options.down)
-    t += s.disappearance_down ? fmt::format("  LCO persists going down to: {:.6g}\n", *s.disappearance_down)
-                              : "  no LCO going down\n";
+    t += s.disappearance_down
+             ? fmt::format("  LCO persists going down to: {:.6g}{}\n", *s.disappearance_down, at_units)
+             : "  no LCO going down\n";
   if (s.onset_up && s.disappearance_down && *s.disappearance_down < *s.onset_up)
-    t += fmt::format("  hysteresis band: {:.6g} .. {:.6g}\n", *s.disappearance_down, *s.onset_up);
-  if (s.largest_amplitude)
-    t += fmt::format("  largest LCO amplitude of the {}: {:.5g} at {:.6g}\n",
-                     kDofNames[p.front().lco.watched_dof], *s.largest_amplitude, s.largest_at);
+    t += fmt::format("  hysteresis band: {:.6g} .. {:.6g}{}\n", *s.disappearance_down, *s.onset_up, at_units);
+  if (s.largest_amplitude) {
+    const int w = p.front().lco.watched_dof;
+    t += fmt::format("  largest LCO amplitude of the {}: {:.5g} {} at {:.6g}{}\n", kDofNames[w],
+                     *s.largest_amplitude * (w != kPlunge ? kDegPerRad : 1.0), w != kPlunge ? "degree" : "m",
+                     s.largest_at, at_units);
+  }
   if (const std::size_t unsettled = unsettled_points(p); unsettled > 0)
     t += "\n  warning: " + unsettled_warning(c, unsettled) + "\n";
   if (const std::size_t n = unrefined_points(p); n > 0)
@@ -842,15 +865,6 @@ SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, con
   }
   return p;
 }
-
-// A swept key's units (a key of a list value, or one the schema does not
-// know, has none to give: "1").
-namespace {
-std::string axis_units(const std::string& key) {
-  const std::string u = case_key_units(key);
-  return u.empty() ? "1" : u;
-}
-}  // namespace
 
 // Writes the map's tables, axes and attributes (the layout of sweep.hpp).
 void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& points,

@@ -57,8 +57,8 @@ with tempfile.TemporaryDirectory() as tmp:
     out = os.path.join(tmp, "demo_map.h5")
     r = run("sweep", DEMO, "--vary", "flow.airspeed=20:25:3", "-o", out, "--jobs", "2")
     check("demo sweep runs", r.returncode == 0, r.stderr)
-    check("text: LCO onset going up at 20", "LCO onset going up: 20\n" in r.stdout, r.stdout)
-    check("text: LCO persists going down to 20", "LCO persists going down to: 20\n" in r.stdout, r.stdout)
+    check("text: LCO onset going up at 20", "LCO onset going up: 20 m s-1\n" in r.stdout, r.stdout)
+    check("text: LCO persists going down to 20", "LCO persists going down to: 20 m s-1\n" in r.stdout, r.stdout)
     check("text: the gust left out", "gusts: left out" in r.stdout, r.stdout)
     check("text: no 'no LCO'", "no LCO" not in r.stdout, r.stdout)
     with h5py.File(out) as f:

@@ -488,3 +488,19 @@ TEST_CASE("A bad swept key is named as the --vary that gave it", "[sweep][errors
     CHECK_THAT(std::string(e.what()), Catch::Matchers::Contains("did you mean 'nondimensional.reduced_speed'"));
   }
 }
+
+TEST_CASE("The sweep text names every swept key with its units", "[sweep]") {
+  // This project's report (common practice, no source): a two-key table has a
+  // column per key, headed with the key's units; amplitudes and onset values
+  // state their units (degree for an angle, the key's units for a value).
+  SweepRequest r = request(2, 1);
+  r.options.axes.push_back(SweepAxis{"springs.pitch.half_gap_deg", {0.5, 1.0}});
+  const auto pts = run_sweep(r, {}, {});
+  const Case c = parse_case(r.case_text, r.case_path, r.overrides);
+  const std::string text = sweep_text(c, r, pts, "");
+  CHECK_THAT(text, Catch::Matchers::Contains("springs.pitch.half_gap_deg degree"));
+  CHECK_THAT(text, Catch::Matchers::Contains("nondimensional.reduced_speed"));
+  CHECK(text.find("nan") == std::string::npos);
+  if (text.find("largest LCO amplitude") != std::string::npos)
+    CHECK_THAT(text, Catch::Matchers::Contains(" degree at "));
+}

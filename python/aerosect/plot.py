@@ -479,7 +479,7 @@ def plot_vg(f, stem, outdir, speed, reference, labels):
         labels_at_top.append((speed.min(), "no flutter or divergence in the sweep", "black"))
     label_speeds(ax_g, labels_at_top)
 
-    ax_g.set_ylabel("damping ratio [1]")
+    ax_g.set_ylabel("damping ratio [1]\n(negative: unstable)")
     ax_f.set_ylabel("frequency [Hz]")
     ax_f.set_xlabel("true airspeed [m/s]")
     ax_f.set_ylim(bottom=0.0)
@@ -548,7 +548,7 @@ def plot_vg_gaps(f, stem, outdir, speed, reference, labels):
     label_speeds(ax, marks, first_row=1 if band is not None else 0)
 
     ax.set_xlabel("true airspeed [m/s]")
-    ax.set_ylabel("damping ratio [1]")
+    ax.set_ylabel("damping ratio [1]\n(negative: unstable)")
     ax.grid(True, linewidth=0.4, alpha=0.6)
     add_reduced_speed_axis(ax, reference)
 

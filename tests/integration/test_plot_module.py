@@ -78,6 +78,17 @@ def check_figure_functions(work):
         path = plot.plot_phase_portraits(f, "run", work)
         assert path == os.path.join(work, "run_phase.png"), path
         check_png(path)
+    # The V-g axes say which sign of damping is unstable (common practice, no
+    # source: a reader must not have to guess the convention): every figure
+    # is handed to save(), which records the damping axes' labels here.
+    ylabels = []
+    real_save = plot.save
+
+    def recording_save(fig, path):
+        ylabels.extend(ax.get_ylabel() for ax in fig.axes)
+        return real_save(fig, path)
+
+    plot.save = recording_save
     with h5py.File(flut, "r") as f:
         speed, reference, labels = plot.flutter_axes(f)
         path = plot.plot_vg(f, "flutter", work, speed, reference, labels)
@@ -86,6 +97,9 @@ def check_figure_functions(work):
         path = plot.plot_vg_gaps(f, "flutter", work, speed, reference, labels)
         assert path == os.path.join(work, "flutter_vg_gaps.png"), path
         check_png(path)
+    plot.save = real_save
+    damping = [y for y in ylabels if y.startswith("damping ratio")]
+    assert len(damping) == 2 and all("negative: unstable" in y for y in damping), ylabels
 
 
 def check_plot_file(work):

@@ -147,6 +147,47 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
   nd("reference_pitch_frequency", n.reference.pitch_frequency, "rad s-1",
      "reference frequency omega_alpha");
   nd("reference_density", n.reference.density, "kg m-3", "reference density rho");
+
+  // The nonlinear springs and the gusts as numbers too, not only inside
+  // case_text: per spring its law (root attribute spring_law_<dof>), its
+  // breakpoints and the stiffness of each region; per gust its shape (root
+  // attribute gust_<k>_shape) and the numbers its shape uses, the amplitude
+  // being the sized U_ds for a regulation gust.
+  for (int j = 0; j < s.dof && j < kMaxDof; ++j) {
+    const SpringLaw& law = c.model.springs[static_cast<std::size_t>(j)];
+    if (law.kind() == "linear") continue;
+    const std::string dof = kDofNames[j];
+    const bool angle = is_angle_dof(j);
+    m.text_attributes.push_back({"spring_law_" + dof, law.kind()});
+    const auto bp = law.breakpoints();
+    for (std::size_t k = 0; k < bp.size(); ++k)
+      m.parameters.push_back({"springs", fmt::format("{}_breakpoint_{}", dof, k + 1), bp[k], angle ? "rad" : "m",
+                              fmt::format("{} spring ({}): breakpoint {}, from below", dof, law.kind(), k + 1)});
+    const auto sl = law.slopes();
+    for (std::size_t k = 0; k < sl.size(); ++k)
+      m.parameters.push_back({"springs", fmt::format("{}_stiffness_{}", dof, k + 1), sl[k],
+                              angle ? "N m rad-1 m-1" : "N m-1 m-1",
+                              fmt::format("{} spring ({}): stiffness of region {}, from below", dof, law.kind(), k + 1)});
+  }
+  const auto& gusts = c.model.gusts.profiles();
+  for (std::size_t i = 0; i < gusts.size(); ++i) {
+    const GustProfile& g = gusts[i];
+    const std::string id = fmt::format("gust_{}", i + 1);
+    m.text_attributes.push_back({id + "_shape", to_string(g.shape)});
+    auto gp = [&](const char* name, double v, const char* units, const std::string& ln) {
+      m.parameters.push_back({"gusts", id + "_" + name, v, units, fmt::format("[[gust]] {}: {}", i + 1, ln)});
+    };
+    gp("start", g.start, "s", "time the gust front reaches the leading edge");
+    if (g.shape != GustShape::kRecorded)
+      gp("amplitude", g.amplitude, "m s-1",
+         g.regulation_sized ? "design gust velocity U_ds as sized (true airspeed)"
+                            : "step height, 1-cos peak or sine amplitude (true airspeed)");
+    if (g.shape == GustShape::kOneMinusCosine) gp("gradient", g.gradient, "m", "gust gradient H");
+    if (g.shape == GustShape::kSinusoidal) {
+      gp("frequency", g.frequency, "rad s-1", "circular frequency");
+      gp("cycles", g.cycles, "1", "duration in periods (0: to the end)");
+    }
+  }
   return m;
 }
 

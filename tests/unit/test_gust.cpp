@@ -234,6 +234,19 @@ TEST_CASE("Gradient sweep re-sizes regulation gusts and names the critical gradi
       "[flow]\naltitude = 3000.0\nairspeed = 60.0\n[simulation]\nduration = 0.5\n"
       "[[gust]]\nshape = \"one-minus-cosine\"\ndesign = \"cs-25\"\ngradient = 30.0\n"
       "landing_weight_ratio = 0.9\nzero_fuel_weight_ratio = 0.8\nmax_operating_altitude = 12500.0\n");
+  // The files keep the sized U_ds as a number, not only inside the case text.
+  {
+    const RunMetadata meta = case_metadata(c, "gust-sweep");
+    const RegulationGustInputs in{3000.0, 30.0, 0.9, 0.8, 12500.0, false};
+    bool found = false;
+    for (const auto& p : meta.parameters)
+      if (p.group == "gusts" && p.name == "gust_1_amplitude") {
+        found = true;
+        CHECK(p.value == Approx(cs25_design_gust_velocity(in) * std::sqrt(1.225 / c.model.flow.density)).epsilon(1e-12));
+        CHECK(p.units == "m s-1");
+      }
+    CHECK(found);
+  }
   const std::vector<double> H = {9.144, 30.0, 106.68};
   const GustSweep s = gust_gradient_sweep(c, H);
   REQUIRE(s.points.size() == 3);

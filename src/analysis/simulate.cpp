@@ -164,10 +164,25 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
       m.parameters.push_back({"springs", fmt::format("{}_breakpoint_{}", dof, k + 1), bp[k], angle ? "rad" : "m",
                               fmt::format("{} spring ({}): breakpoint {}, from below", dof, law.kind(), k + 1)});
     const auto sl = law.slopes();
-    for (std::size_t k = 0; k < sl.size(); ++k)
+    const auto ic = law.intercepts();
+    for (std::size_t k = 0; k < sl.size(); ++k) {
       m.parameters.push_back({"springs", fmt::format("{}_stiffness_{}", dof, k + 1), sl[k],
                               angle ? "N m rad-1 m-1" : "N m-1 m-1",
                               fmt::format("{} spring ({}): stiffness of region {}, from below", dof, law.kind(), k + 1)});
+      if (k < ic.size())
+        m.parameters.push_back({"springs", fmt::format("{}_intercept_{}", dof, k + 1), ic[k], angle ? "N m m-1" : "N m-1",
+                                fmt::format("{} spring ({}): force at zero displacement of region {}'s line "
+                                            "f = stiffness x + intercept",
+                                            dof, law.kind(), k + 1)});
+    }
+    // Polynomial laws: f = k x + sum_n c_n x^n, c_n of x^2, x^3, ...
+    const auto poly = law.polynomial_terms();
+    for (std::size_t k = 0; k < poly.size(); ++k) {
+      const std::size_t power = k + 2;
+      m.parameters.push_back({"springs", fmt::format("{}_force_x{}", dof, power), poly[k],
+                              angle ? fmt::format("N m rad-{} m-1", power) : fmt::format("N m-{} m-1", power),
+                              fmt::format("{} spring ({}): coefficient of x^{} in the force", dof, law.kind(), power)});
+    }
   }
   const auto& gusts = c.model.gusts.profiles();
   for (std::size_t i = 0; i < gusts.size(); ++i) {

@@ -174,3 +174,31 @@ TEST_CASE("The demo case runs to completion", "[simulate]") {
   CHECK(sink.outcome().completed);
   for (double v : sink.column("hinge_moment")) CHECK(std::isfinite(v));
 }
+
+TEST_CASE("Result files keep the nonlinear spring as numbers", "[simulate]") {
+  // The cubic law f = k (x + beta x^3) (README, "[springs.*]"; common
+  // practice, no source) is kept as its stiffness k and the coefficient
+  // k beta of x^3; a freeplay law as its breakpoints and the stiffness and
+  // intercept of each region (the force is continuous at the breakpoints).
+  const Case cubic = test::case_from(test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"cubic\"\ncubic_coefficient = 300.0\n[simulation]\nduration = 1.0\n"));
+  auto value = [](const RunMetadata& m, const std::string& name) {
+    for (const auto& p : m.parameters)
+      if (p.group == "springs" && p.name == name) return p.value;
+    FAIL("no parameter " << name);
+    return 0.0;
+  };
+  const RunMetadata mc = case_metadata(cubic, "simulation");
+  const double k = cubic.model.section.pitch_stiffness;
+  CHECK(value(mc, "pitch_stiffness_1") == Approx(k).epsilon(1e-14));
+  CHECK(value(mc, "pitch_force_x3") == Approx(300.0 * k).epsilon(1e-14));
+  const Case fp = test::case_from(test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n[simulation]\nduration = 1.0\n"));
+  const RunMetadata mf = case_metadata(fp, "simulation");
+  const double gap = 0.5 * std::numbers::pi / 180;
+  CHECK(value(mf, "pitch_breakpoint_1") == Approx(-gap).epsilon(1e-14));
+  CHECK(value(mf, "pitch_breakpoint_2") == Approx(gap).epsilon(1e-14));
+  CHECK(value(mf, "pitch_stiffness_2") == 0.0);
+  // Continuity at the upper breakpoint: k (gap) + intercept_3 = 0.
+  CHECK(value(mf, "pitch_stiffness_3") * gap + value(mf, "pitch_intercept_3") == Approx(0.0).margin(1e-9 * k));
+}

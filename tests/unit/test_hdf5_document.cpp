@@ -29,12 +29,7 @@ using aerosect::Hdf5Document;
 using aerosect::OutputError;
 using aerosect::RunMetadata;
 
-using aerosect::test::TempDir;
-using aerosect::test::text_attribute;
-using aerosect::test::numeric_attribute;
-using aerosect::test::dims_of;
-using aerosect::test::read_all;
-using aerosect::test::open_hdf5_objects;
+using namespace aerosect::test;  // TempDir and the HDF5 readers (hdf5_helpers.hpp)
 
 namespace {
 

@@ -417,14 +417,9 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
                           const std::string& swept_key) {
   const bool angle = lco.spring != kPlunge;
   using P = LcoPredictionPoint;
-  auto field = [](std::string name, std::string units, std::string long_name, std::function<double(const P&)> get) {
-    Field<P> f;
-    f.name = "lco_prediction/" + name;
-    f.units = std::move(units);
-    f.long_name = std::move(long_name);
-    f.get = [get](const P& p, std::size_t) { return get(p); };
-    f.set = [](P&, std::size_t, double) {};
-    return f;
+  auto field = [](const std::string& name, std::string units, std::string long_name,
+                  std::function<double(const P&)> get) {
+    return written_field<P>("lco_prediction/" + name, std::move(units), std::move(long_name), std::move(get));
   };
   // The layout of a describing-function LCO point: each field once.
   Layout<P> layout;
@@ -457,16 +452,8 @@ std::string flutter_method_group(const std::string& method) { return method == "
 
 const Layout<Root>& flutter_root_layout() {
   static const Layout<Root> layout = [] {
-    auto field = [](std::string name, std::string units, std::string long_name,
-                    std::function<double(const Root&)> get) {
-      Field<Root> f;
-      f.name = std::move(name);
-      f.units = std::move(units);
-      f.long_name = std::move(long_name);
-      f.get = [get](const Root& r, std::size_t) { return get(r); };
-      f.set = [](Root&, std::size_t, double) {};  // not read back (no journal of flutter results)
-      return f;
-    };
+    // Not read back: there is no journal of flutter results.
+    const auto field = written_field<Root>;
     Layout<Root> l;
     l.push_back(field("frequency", "Hz", "modal frequency |Im lambda| / 2 pi",
                       [](const Root& r) { return r.frequency / (2 * pi); }));

@@ -190,16 +190,7 @@ std::string initial_state_text(const SimulationSettings& s) {
 }  // namespace
 
 Layout<GustSweepPoint> gust_sweep_layout(const GustSweepPoint& first) {
-  auto field = [](std::string name, std::string units, std::string long_name,
-                  std::function<double(const GustSweepPoint&)> get) {
-    Field<GustSweepPoint> f;
-    f.name = std::move(name);
-    f.units = std::move(units);
-    f.long_name = std::move(long_name);
-    f.get = [get](const GustSweepPoint& p, std::size_t) { return get(p); };
-    f.set = [](GustSweepPoint&, std::size_t, double) {};  // written only
-    return f;
-  };
+  const auto field = written_field<GustSweepPoint>;
   Layout<GustSweepPoint> layout;
   layout.push_back(field("design_velocity", "m s-1", "peak velocity of the first one-minus-cosine gust (true airspeed)",
                          [](const GustSweepPoint& p) { return p.design_velocity; }));

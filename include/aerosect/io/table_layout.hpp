@@ -102,6 +102,20 @@ struct Field {
 template <class T>
 using Layout = std::vector<Field<T>>;
 
+// A field that is written only (no journal reads it back): one number per
+// record from `get`; `set` does nothing.
+template <class T>
+Field<T> written_field(std::string name, std::string units, std::string long_name,
+                       std::function<double(const T&)> get) {
+  Field<T> f;
+  f.name = std::move(name);
+  f.units = std::move(units);
+  f.long_name = std::move(long_name);
+  f.get = [get = std::move(get)](const T& r, std::size_t) { return get(r); };
+  f.set = [](T&, std::size_t, double) {};
+  return f;
+}
+
 // A field is a list (width > 1, or an extra dimension) rather than one number.
 template <class T>
 bool is_list(const Field<T>& f) {

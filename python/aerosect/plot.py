@@ -7,7 +7,7 @@ As a library: plot_file(path, outdir) plots every figure of a file and
 returns the paths written; each figure also has its own function taking the
 open h5py.File, the stem of the output names and the output directory, and
 returning the path it wrote (plot_time_histories, plot_phase_portraits,
-plot_vg, plot_vg_gaps, plot_sweep, plot_gust_sweep). PlotError says why a
+plot_vg, plot_vg_gaps, plot_sweep, plot_branch, plot_gust_sweep). PlotError says why a
 file cannot be plotted. Everything a figure shows is read from the file
 itself (datasets and attributes).
 
@@ -44,6 +44,15 @@ For a `sweep` file (aerosect sweep -o) it writes:
                       flutter speeds; two keys: one curve per value of the
                       second key (at most six, evenly picked). Divergent
                       runs sit on the top edge (their amplitude is off scale).
+For an `orbit_branch` file (aerosect orbits -o, the study's branch.h5) it writes:
+  <stem>_branch.png   the branch's limit cycles: amplitude of the watched DOF
+                      against the continuation key, stable orbits solid and
+                      unstable cycles dashed, folds, period doublings, torus
+                      and branch points and grazing ends marked, V_D and
+                      1.15 V_D marked (airspeed key), and the periodic runs
+                      of the sweep file named by `overlay_sweep_file` drawn
+                      over it (other runs are not LCOs and are not drawn).
+                      A file of one orbit (lco_orbit.h5) gets no figure.
 For a `gust-sweep` file (aerosect gust -o) it writes:
   <stem>_gust_peaks.png  largest and smallest value of plunge, pitch, flap
                       (left) and lift, pitching and hinge moment (right)
@@ -977,11 +986,166 @@ def plot_gust_sweep(f, stem, outdir):
     return [save(fig, os.path.join(outdir, f"{stem}_gust_peaks.png"))]
 
 
+# --- orbit branch (continued limit cycles) ---------------------------------
+
+BIFURCATION_STYLE = {  # bifurcation_kind code -> (label, marker, colour)
+    1: ("fold", "D", "C3"),
+    2: ("period doubling", "v", "C1"),
+    3: ("torus (Neimark-Sacker)", "s", "C4"),
+    4: ("branch point", "X", "C5"),
+    5: ("grazing (branch end)", "o", "0.3"),
+}
+PERIODIC = 1  # response_class of a periodic sweep run
+
+
+def overlay_sweep(f, path, watched, factor):
+    """(value, amplitude in display units, direction) of the periodic runs of
+    the sweep file the branch file names, or (None, reason)."""
+    name = text_attribute(f, "overlay_sweep_file")
+    if not name:
+        return None, None
+    full = os.path.join(os.path.dirname(os.path.abspath(path)), name)
+    if not os.path.exists(full):
+        return None, f"sweep file {name} not found beside the branch file"
+    with h5py.File(full, "r") as g:
+        _, _, values, sw_watched, amplitude, classes, _, sw_factor = sweep_tables(g)
+    if amplitude.ndim != 2:
+        return None, f"{name} sweeps two keys: its points are not drawn"
+    if sw_watched != watched:
+        return None, f"{name} watches {sw_watched}, the branch {watched}: its points are not drawn"
+    points = []
+    for d in (0, 1):
+        sel = classes[d] == PERIODIC
+        points.append((values[sel], amplitude[d][sel] / sw_factor * factor))
+    return points, None
+
+
+def plot_branch(f, stem, outdir):
+    """Bifurcation diagram of an orbit branch: amplitude of the watched DOF
+    against the continuation key, stable orbits solid and unstable dashed,
+    bifurcations marked (folds, period doubling, torus, branch points,
+    grazing ends), V_D and 1.15 V_D marked when the key is the airspeed,
+    and the periodic runs of the sweep file it names (overlay_sweep_file)
+    drawn over it (decayed and other runs are not LCOs and are not drawn)."""
+    from matplotlib.lines import Line2D
+
+    for name in ("parameter", "stable"):
+        if name not in f:
+            raise PlotError(f"branch file without '{name}' (no orbit was found: "
+                            f"{text_attribute(f, 'stop_reason', 'no reason recorded')})")
+    key = text_attribute(f, "parameter_key", "parameter")
+    key_units = text_attribute(f["parameter"], "units", "")
+    key_units = "" if key_units == "1" else key_units
+    watched = text_attribute(f, "watched_dof", "pitch")
+    if f"{watched}_amplitude" not in f:
+        raise PlotError(f"branch file without '{watched}_amplitude'")
+    x = np.asarray(f["parameter"][()], dtype=float)
+    if x.size < 2:
+        return []  # one orbit (the study's lco_orbit.h5) has no diagram
+    stable = np.asarray(f["stable"][()], dtype=float) > 0.5
+    factor, unit = (1000.0, "mm") if watched == "plunge" else (180.0 / math.pi, "deg")
+    a = np.asarray(f[f"{watched}_amplitude"][()], dtype=float) * factor
+
+    overlay, note = overlay_sweep(f, f.filename, watched, factor)
+    clearance = clearance_speeds(f) if key == "flow.airspeed" else None
+    low, high = float(np.min(x)), float(np.max(x))
+    pad = 0.04 * max(high - low, 1e-12 * max(abs(high), 1.0))
+    full = (low - pad, high + pad)
+    if clearance is not None:
+        full = (min(full[0], clearance[0]), max(full[1], 1.03 * clearance[1]))
+    # When the marks stretch the axis so that the branch fills less than
+    # 40 % of it, a second panel below shows the branch alone.
+    zoom = (high - low) < 0.4 * (full[1] - full[0])
+    fig, axes = plt.subplots(2 if zoom else 1, 1, figsize=(WIDTH_IN, 9.0 if zoom else 6.0),
+                             layout="constrained", squeeze=False)
+    axes = axes[:, 0]
+
+    def draw(ax, marks=True):
+        entries = []
+        # Runs of one stability, each drawn through the first point of the
+        # next run so that the curve is unbroken where the stability changes.
+        start = 0
+        for i in range(1, len(x) + 1):
+            if i == len(x) or stable[i] != stable[start]:
+                end = min(i + 1, len(x))
+                ax.plot(x[start:end], a[start:end], "-" if stable[start] else "--", color="C0",
+                        lw=1.8, zorder=3)
+                start = i
+        entries.append((Line2D([], [], color="C0", lw=1.8), "stable LCO (converged orbit)"))
+        if not stable.all():
+            entries.append((Line2D([], [], color="C0", lw=1.8, ls="--"), "unstable cycle"))
+        if "bifurcation_kind" in f:
+            kinds = np.asarray(f["bifurcation_kind"][()], dtype=float)
+            bx = np.asarray(f["bifurcation_parameter"][()], dtype=float)
+            ba = np.asarray(f["bifurcation_amplitude"][()], dtype=float) * factor
+            for code, (label, marker, colour) in BIFURCATION_STYLE.items():
+                sel = kinds == code
+                if np.any(sel):
+                    ax.plot(bx[sel], ba[sel], marker, ms=8, color=colour, mec="black", mew=0.6,
+                            ls="none", zorder=5)
+                    entries.append((Line2D([], [], marker=marker, color=colour, mec="black",
+                                           ls="none", ms=8), label))
+        if overlay is not None:
+            for (vx, va), marker, filled, text in zip(overlay, ("o", "s"), (True, False),
+                                                      ("sweep up, periodic runs",
+                                                       "sweep down, periodic runs")):
+                if vx.size:
+                    colour = "0.45" if filled else "none"
+                    ax.plot(vx, va, marker, ms=6 if filled else 9, mfc=colour, mec="0.45",
+                            ls="none", zorder=4)
+                    entries.append((Line2D([], [], marker=marker, ms=7, mfc=colour, mec="0.45",
+                                           ls="none"), text))
+        if clearance is not None and marks:
+            dive, required = clearance
+            ax.axvline(dive, color="0.3", ls=":", lw=1.2, zorder=1)
+            mark_clearance([ax], clearance, ax, at_top=True)
+            ax.annotate(r"$V_D$", xy=(dive, 1.0), xycoords=("data", "axes fraction"),
+                        xytext=(-3, -3), textcoords="offset points", ha="right", va="top",
+                        fontsize="small", color="0.2")
+            entries.append((Line2D([], [], color="0.3", ls=":"), f"V_D {dive:.4g} m/s TAS"))
+            entries.append((Line2D([], [], color="0.3", ls="-."),
+                            f"1.15 V_D {required:.4g} m/s TAS"))
+        ax.set_xlabel(key_label(key, key_units))
+        ax.set_ylabel(f"{watched} LCO amplitude [{unit}]\n(half peak-to-peak)")
+        ax.grid(True, alpha=0.4)
+        return entries
+
+    entries = draw(axes[0])
+    axes[0].set_xlim(*full)
+    axes[0].set_ylim(bottom=0, top=1.15 * max(float(np.nanmax(a)), 1e-300))
+    axes[0].set_title(figure_title(f) + "\nlimit cycles against " + key_label(key) +
+                      " (converged orbits, Floquet stability)", fontsize="medium")
+    if zoom:
+        # V_D and 1.15 V_D lie outside the enlarged branch (their labels
+        # would stretch the layout): marked in the upper panel only.
+        draw(axes[1], marks=clearance is not None and low - pad <= clearance[0] <= high + pad)
+        axes[1].set_xlim(low - pad, high + pad)
+        span = float(np.nanmax(a) - np.nanmin(a))
+        margin = 0.08 * span if span > 0 else 0.05 * float(np.nanmax(a))
+        axes[1].set_ylim(float(np.nanmin(a)) - margin, float(np.nanmax(a)) + margin)
+        axes[1].set_title("the branch enlarged", fontsize="small")
+    # Under the axes, kept clear by the layout: the legend, then the small
+    # print (a note on the overlay and the file's caution).
+    height = fig.get_size_inches()[1]
+    lines = textwrap.wrap(" ".join(t for t in (note, text_attribute(f, "caution", "")) if t), 140)
+    print_in = 0.06 + 0.13 * len(lines) if lines else 0.0
+    legend_in = 0.2 * math.ceil(len(entries) / 3) + 0.1
+    bottom = (print_in + legend_in) / height
+    fig.get_layout_engine().set(rect=(0, bottom, 1, 1 - bottom))
+    fig.legend([h for h, _ in entries], [t for _, t in entries], loc="lower center",
+               bbox_to_anchor=(0.5, print_in / height), ncol=3, fontsize="small", frameon=False)
+    if lines:
+        fig.text(0.01, 0.005, "\n".join(lines), fontsize="x-small", color="0.35", ha="left",
+                 va="bottom")
+    return [save(fig, os.path.join(outdir, f"{stem}_branch.png"))]
+
+
 PLOTTERS = {
     "simulation": plot_simulation,
     "flutter": plot_flutter,
     "sweep": plot_sweep,
     "gust-sweep": plot_gust_sweep,
+    "orbit_branch": plot_branch,
 }
 
 

@@ -24,7 +24,7 @@ nlohmann::json num(double v) { return std::isfinite(v) ? nlohmann::json(v) : nlo
 
 }  // namespace
 
-void write_branch_file(const std::string& path, const Case& c, const Branch& b) {
+void write_branch_file(const std::string& path, const Case& c, const Branch& b, const std::string& sweep_file) {
   Hdf5Document doc(path);
   RunMetadata meta = case_metadata(c, "orbit_branch");
   meta.text_attributes.push_back({"parameter_key", b.key});
@@ -32,7 +32,14 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b) 
   meta.text_attributes.push_back({"start_detail", b.start_detail});
   meta.text_attributes.push_back({"stop_reason", b.stop_reason});
   meta.text_attributes.push_back({"watched_dof", kDofNames[b.watched_dof]});
+  if (!sweep_file.empty()) meta.text_attributes.push_back({"overlay_sweep_file", sweep_file});
   doc.metadata(meta);
+  // The envelope, for the figure's V_D and 1.15 V_D marks (as in a flutter file).
+  doc.number_attribute("", "density", c.model.flow.density);
+  if (c.dive_speed_eas) {
+    doc.number_attribute("", "dive_speed_eas", *c.dive_speed_eas);
+    doc.number_attribute("", "clearance_speed_tas", 1.15 * true_airspeed(*c.dive_speed_eas, c.model.flow.density));
+  }
   doc.integer_attribute("", "complete", complete(b) ? 1 : 0);
   if (b.hopf_parameter) doc.number_attribute("", "hopf_parameter", *b.hopf_parameter);
   const std::size_t N = b.points.size();
@@ -47,7 +54,8 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b) 
       for (std::size_t i = 0; i < N; ++i) v[i] = f(b.points[i]);
       doc.dataset(name, {"point"}, v, units, ln);
     };
-    table("parameter", [](const BranchPoint& p) { return p.parameter; }, "1",
+    const std::string key_units = case_key_units(b.key).empty() ? "1" : case_key_units(b.key);
+    table("parameter", [](const BranchPoint& p) { return p.parameter; }, key_units,
           "value of the continuation key " + b.key + " (case-file units)");
     table("airspeed", [](const BranchPoint& p) { return p.airspeed; }, "m s-1", "true airspeed");
     table("arclength", [](const BranchPoint& p) { return p.arclength; }, "1", "scaled arclength from the first point");
@@ -83,6 +91,10 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b) 
       table(n + "_max", [j](const BranchPoint& p) { return p.orbit.dof[j].max; }, u, n + " largest value");
       table(n + "_min", [j](const BranchPoint& p) { return p.orbit.dof[j].min; }, u, n + " smallest value");
       table(n + "_mean", [j](const BranchPoint& p) { return p.orbit.content[j].mean; }, u, n + " mean over one period");
+      table(n + "_rms", [j](const BranchPoint& p) { return p.orbit.content[j].rms; }, u,
+            n + " root mean square over one period");
+      table(n + "_thd", [j](const BranchPoint& p) { return p.orbit.content[j].thd; }, "1",
+            n + " total harmonic distortion: harmonics 2..K against the first (RMS ratio)");
       if (nh > 0) {
         std::vector<double> v(N * static_cast<std::size_t>(nh));
         for (std::size_t i = 0; i < N; ++i)
@@ -133,7 +145,8 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b) 
     };
     table("bifurcation_kind", [](const Bifurcation& f) { return static_cast<double>(f.kind); }, "1",
           "1 fold, 2 period doubling, 3 torus (Neimark-Sacker), 4 branch point, 5 grazing (branch end)");
-    table("bifurcation_parameter", [](const Bifurcation& f) { return f.parameter; }, "1",
+    const std::string key_units = case_key_units(b.key).empty() ? "1" : case_key_units(b.key);
+    table("bifurcation_parameter", [](const Bifurcation& f) { return f.parameter; }, key_units,
           "located value of the continuation key");
     table("bifurcation_amplitude", [](const Bifurcation& f) { return f.amplitude; },
           dof_units(b.watched_dof), "watched DOF amplitude there (interpolated)");

@@ -425,7 +425,9 @@ std::pair<double, double> oscillatory_growth(const AeroelasticModel& m) {
   return {g, w};
 }
 
-bool smooth_laws(const ModelDescription& d) {
+}  // namespace
+
+bool smooth_spring_laws(const ModelDescription& d) {
   bool any = false;
   for (int j = 0; j < d.section.dof; ++j) {
     const SpringLaw& s = d.springs[static_cast<std::size_t>(j)];
@@ -435,8 +437,6 @@ bool smooth_laws(const ModelDescription& d) {
   }
   return any;
 }
-
-}  // namespace
 
 std::vector<Bifurcation> locate_bifurcations(const std::vector<BranchPoint>& pts, int w) {
   std::vector<Bifurcation> out;
@@ -548,7 +548,7 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
   const double max_amp = o.max_amplitude > 0 ? o.max_amplitude : (w == kPlunge ? 10.0 * b : 1.0);
 
   BranchStart start = o.start;
-  if (start == BranchStart::kAuto) start = smooth_laws(c.model) ? BranchStart::kHopf : BranchStart::kMarch;
+  if (start == BranchStart::kAuto) start = smooth_spring_laws(c.model) ? BranchStart::kHopf : BranchStart::kMarch;
 
   // ---- The first orbit and its tangent direction.
   Corrected first;
@@ -562,10 +562,14 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
     return correct(ctx, l, y, cvec, lambda, o.orbit.max_iterations);
   };
   if (start == BranchStart::kMarch) {
-    const auto m_ptr = ctx.model(fam.value);
+    const double lambda0 = o.march_parameter.value_or(fam.value);
+    const auto m_ptr = ctx.model(lambda0);
     const AeroelasticModel& m = *m_ptr;
-    const auto x0 = m.initial_state(c.simulation.initial_displacement, c.simulation.initial_velocity,
-                                    c.simulation.steady_lag_states);
+    const auto x0 = o.march_state.empty()
+                        ? m.initial_state(c.simulation.initial_displacement, c.simulation.initial_velocity,
+                                          c.simulation.steady_lag_states)
+                        : o.march_state;
+    AEROSECT_CHECK(x0.size() == static_cast<std::size_t>(m.state_size()));
     const double pitch_period = 2 * std::numbers::pi / pitch_frequency(c.model.section);
     const double duration = std::max(c.simulation.duration, 400.0 * pitch_period);
     const auto seed = seed_from_time_march(m, x0, duration, c.simulation.integrator, w, cancel);
@@ -575,14 +579,14 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
         br.stop_reason = br.cancelled ? "cancelled"
                                       : fmt::format("the case marched in time for {:.6g} s does not "
                                                     "settle on a periodic cycle at {} = {:.9g}",
-                                                    duration, fam.key, fam.value);
+                                                    duration, fam.key, lambda0);
         return br;
       }
       start = BranchStart::kDescribing;
     } else {
       br.start_detail = fmt::format("time-marched cycle at {} = {:.9g} (period {:.6g} s)", fam.key,
-                                    fam.value, seed->period);
-      first = fixed_lambda(*seed, fam.value);
+                                    lambda0, seed->period);
+      first = fixed_lambda(*seed, lambda0);
       r0(l.m + 1) = 1.0;
     }
   }

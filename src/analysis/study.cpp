@@ -10,6 +10,8 @@
 #include <fmt/format.h>
 #include <toml++/toml.h>
 
+#include "aerosect/analysis/branch_report.hpp"
+#include "aerosect/analysis/continuation.hpp"
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/flutter_report.hpp"
 #include "aerosect/analysis/gust_sweep.hpp"
@@ -493,6 +495,371 @@ void lco_history_stage(Study& s, const SweepPoint& worst, const std::string& whe
                  std::max(std::abs(e.max), std::abs(e.min)), "N m/m", "lco.h5: hinge_moment (largest |sample|)");
 }
 
+// ---------------------------------------------------------------------------
+// The LCO branch: converged orbits continued in airspeed (continuation.hpp),
+// stable and unstable, with folds; the largest stable LCO inside the
+// envelope solved as an orbit at the branch's maximum (or at V_D).
+
+struct LcoBranchRun {
+  Branch branch;
+  std::string case_label;         // the derived case (gusts removed)
+  std::optional<Orbit> largest;   // largest stable LCO inside the envelope
+  double largest_parameter = 0;   // its key value
+  double largest_airspeed = 0;    // m/s TAS
+  std::string largest_how;        // "maximum of the branch", "at V_D", "branch point"
+};
+
+// Contiguous runs of points of one stability along the branch.
+struct StabilitySegment {
+  bool stable = false;
+  std::size_t first = 0, last = 0;  // point indices, inclusive
+};
+std::vector<StabilitySegment> stability_segments(const Branch& b) {
+  std::vector<StabilitySegment> out;
+  for (std::size_t i = 0; i < b.points.size(); ++i) {
+    const bool st = b.points[i].orbit.stable;
+    if (out.empty() || out.back().stable != st)
+      out.push_back({st, i, i});
+    else
+      out.back().last = i;
+  }
+  return out;
+}
+
+std::pair<double, double> airspeed_range(const Branch& b, const StabilitySegment& g) {
+  double lo = std::numeric_limits<double>::infinity(), hi = -lo;
+  for (std::size_t i = g.first; i <= g.last; ++i) {
+    lo = std::min(lo, b.points[i].airspeed);
+    hi = std::max(hi, b.points[i].airspeed);
+  }
+  return {lo, hi};
+}
+
+// The hysteresis band of one fold: from the fold to the far end of the
+// unstable run of orbits on its small-amplitude side (where that branch of
+// unstable cycles meets the rest state: a Hopf point, or a grazing end of
+// a freeplay branch). Inside the band a stable LCO and an unstable cycle
+// (the threshold a disturbance must pass to start the LCO) coexist.
+struct FoldBand {
+  double fold_speed = 0, end_speed = 0;  // m/s TAS
+  double amp_lo = 0, amp_hi = 0;         // unstable cycle amplitudes over the band (watched DOF)
+  std::size_t unstable_points = 0;
+  bool reaches_rest = false;  // the unstable run ends the branch (at a Hopf or grazing point)
+};
+std::optional<FoldBand> fold_band(const Branch& b, const Bifurcation& fold, double speed_per_parameter) {
+  const auto n = static_cast<int>(b.points.size());
+  if (fold.after < 0 || fold.after + 1 >= n) return std::nullopt;
+  const int w = b.watched_dof;
+  const auto amp = [&](int i) { return b.points[static_cast<std::size_t>(i)].orbit.dof[w].amplitude; };
+  const int step = amp(fold.after) <= amp(fold.after + 1) ? -1 : 1;
+  int i = step < 0 ? fold.after : fold.after + 1;
+  FoldBand band;
+  band.fold_speed = fold.parameter * speed_per_parameter;
+  band.amp_lo = band.amp_hi = fold.amplitude;
+  band.end_speed = band.fold_speed;
+  for (; i >= 0 && i < n && !b.points[static_cast<std::size_t>(i)].orbit.stable; i += step) {
+    band.end_speed = b.points[static_cast<std::size_t>(i)].airspeed;
+    band.amp_lo = std::min(band.amp_lo, amp(i));
+    band.amp_hi = std::max(band.amp_hi, amp(i));
+    ++band.unstable_points;
+  }
+  if (band.unstable_points == 0) return std::nullopt;
+  band.reaches_rest = i < 0 || i >= n;
+  if (i < 0 && b.hopf_parameter && b.start == BranchStart::kHopf) {
+    // The first orbit is the small one beside the Hopf point: the band
+    // ends at the Hopf point, where the unstable cycle shrinks to rest.
+    band.end_speed = *b.hopf_parameter * speed_per_parameter;
+    band.amp_lo = 0;
+  }
+  return band;
+}
+
+// The orbit at lambda from the branch point nearest in lambda (nullopt
+// when Newton fails there).
+std::optional<Orbit> orbit_at(const ParameterFamily& fam, const Branch& b, std::size_t seed_point, double lambda,
+                              const OrbitSettings& settings, const std::atomic<bool>* cancel) {
+  const AeroelasticModel m(fam.model_at(lambda));
+  const Orbit& near = b.points[seed_point].orbit;
+  Orbit o = solve_orbit(m, OrbitSeed{near.x0, near.period}, settings, cancel);
+  if (!o.converged || o.grazing) return std::nullopt;
+  return o;
+}
+
+// The largest stable LCO at or below V_D: the largest stable point of the
+// branch, refined to the maximum of amplitude against lambda by parabolic
+// interpolation through it and its stable neighbours (each new lambda a
+// solved orbit), or solved at V_D when the amplitude still grows there.
+void largest_on_branch(const Study& s, const ParameterFamily& fam, double per, double limit, LcoBranchRun& r) {
+  const Branch& b = r.branch;
+  const int w = b.watched_dof;
+  const auto inside = [&](double v) { return v <= limit * (1 + 1e-12); };
+  std::optional<std::size_t> k;
+  for (std::size_t i = 0; i < b.points.size(); ++i) {
+    const BranchPoint& p = b.points[i];
+    if (!p.orbit.stable || !inside(p.airspeed)) continue;
+    if (!k || p.orbit.dof[w].amplitude > b.points[*k].orbit.dof[w].amplitude) k = i;
+  }
+  if (!k) return;
+  OrbitSettings os;
+  os.watched_dof = w;
+  r.largest = b.points[*k].orbit;
+  r.largest_parameter = b.points[*k].parameter;
+  r.largest_airspeed = b.points[*k].airspeed;
+  r.largest_how = "largest stable orbit on the branch";
+  const auto stable_in = [&](std::size_t i) { return b.points[i].orbit.stable; };
+  const bool has_lo = *k > 0 && stable_in(*k - 1), has_hi = *k + 1 < b.points.size() && stable_in(*k + 1);
+  // Beyond the limit (V_D, else the sweep's end) with a larger amplitude:
+  // the largest inside is at the limit.
+  for (int d : {-1, 1}) {
+    const bool has = d < 0 ? has_lo : has_hi;
+    if (!has) continue;
+    const BranchPoint& q = b.points[static_cast<std::size_t>(static_cast<long>(*k) + d)];
+    if (!inside(q.airspeed) && q.orbit.dof[w].amplitude > r.largest->dof[w].amplitude) {
+      const double lvd = limit * per;
+      if (auto o = orbit_at(fam, b, *k, lvd, os, s.cancel); o && o->stable) {
+        r.largest = *o;
+        r.largest_parameter = lvd;
+        r.largest_airspeed = limit;
+        r.largest_how = s.vd_tas ? "at V_D (the stable amplitude still grows there)"
+                                 : "at the end of the sweep range (the stable amplitude still grows there)";
+      }
+      return;
+    }
+  }
+  if (!has_lo || !has_hi) return;  // at the end of a stable run: the point itself
+  // (lambda, A) samples around the maximum; parabolic steps.
+  std::vector<std::pair<double, double>> pts;
+  for (long i = static_cast<long>(*k) - 1; i <= static_cast<long>(*k) + 1; ++i)
+    pts.emplace_back(b.points[static_cast<std::size_t>(i)].parameter,
+                     b.points[static_cast<std::size_t>(i)].orbit.dof[w].amplitude);
+  for (int it = 0; it < 6; ++it) {
+    std::sort(pts.begin(), pts.end());
+    const auto best = std::max_element(pts.begin(), pts.end(),
+                                       [](const auto& a, const auto& c) { return a.second < c.second; });
+    if (best == pts.begin() || best + 1 == pts.end()) break;
+    const auto [la, aa] = *(best - 1);
+    const auto [lb, ab] = *best;
+    const auto [lc, ac] = *(best + 1);
+    const double num = (lb - la) * (lb - la) * (ab - ac) - (lb - lc) * (lb - lc) * (ab - aa);
+    const double den = (lb - la) * (ab - ac) - (lb - lc) * (ab - aa);
+    if (!(std::abs(den) > 0)) break;
+    double ls = lb - 0.5 * num / den;
+    ls = std::clamp(ls, la, lc);
+    ls = std::min(ls, limit * per);
+    if (std::abs(ls - lb) <= 1e-9 * std::max(1.0, std::abs(lb))) break;
+    auto o = orbit_at(fam, b, *k, ls, os, s.cancel);
+    stop_if_cancelled(s.cancel);
+    if (!o || !o->stable) break;
+    pts.emplace_back(ls, o->dof[w].amplitude);
+    if (o->dof[w].amplitude > r.largest->dof[w].amplitude) {
+      r.largest = *o;
+      r.largest_parameter = ls;
+      r.largest_airspeed = ls / per;
+      r.largest_how = "maximum of the branch (parabolic search over solved orbits)";
+    }
+    // Keep the three points around the new maximum.
+    std::sort(pts.begin(), pts.end());
+    while (pts.size() > 3) {
+      const auto bi = std::max_element(pts.begin(), pts.end(),
+                                       [](const auto& a, const auto& c) { return a.second < c.second; }) -
+                      pts.begin();
+      if (bi <= 1) pts.pop_back();
+      else pts.erase(pts.begin());
+    }
+  }
+}
+
+// The branch of limit cycles through the sweep's largest LCO (or from the
+// case's own start), written to branch.h5; its rows.
+LcoBranchRun lco_branch_stage(Study& s, const LcoSweepRun& run, const std::pair<double, double>& speeds) {
+  const Case& c = s.c;
+  LcoBranchRun r;
+  Derivation bv;  // gusts removed: an orbit needs an autonomous system
+  const Case bc = parse_case(derived_case_text(c, bv), c.path + " (LCO branch)", derived_overrides(c, bv));
+  BranchOptions bo;
+  bo.key = run.key;
+  // Past the sweep's end and 1.15 V_D, so that the largest LCO up to
+  // either is inside the branch.
+  double hi = 1.05 * speeds.second;
+  if (s.vd_tas) hi = std::max(hi, 1.05 * 1.15 * *s.vd_tas);
+  bo.from = speeds.first * run.per;
+  bo.to = hi * run.per;
+  bo.max_points = 400;
+  bo.max_step = 0.02;  // a smooth curve for the figure (scaled arclength)
+  // A settled periodic sweep point seeds the branch (the largest one);
+  // without one the continuation chooses its own start.
+  const SweepPoint* seed = nullptr;
+  for (const auto& p : run.points)
+    if (p.ok && p.lco.response == ResponseClass::kPeriodic && !p.final_state.empty() &&
+        (!seed || p.lco.dof[static_cast<std::size_t>(p.lco.watched_dof)].amplitude >
+                      seed->lco.dof[static_cast<std::size_t>(seed->lco.watched_dof)].amplitude))
+      seed = &p;
+  if (seed && !smooth_spring_laws(bc.model)) {
+    bo.start = BranchStart::kMarch;
+    bo.march_parameter = seed->value1;
+    bo.march_state = seed->final_state;
+    bo.orbit.watched_dof = seed->lco.watched_dof;
+  }
+  s.say(fmt::format("LCO branch: orbits continued in {} from {:.4g} to {:.4g} m/s TAS", run.key, speeds.first, hi));
+  r.branch = continue_branch(bc, bo, s.cancel);
+  stop_if_cancelled(s.cancel);
+  const Branch& b = r.branch;
+  write_branch_file(s.path("branch.h5"), bc, b, "sweep.h5");
+  s.R.hdf5_files.push_back("branch.h5");
+  s.part("lco-branch", !b.points.empty(),
+         fmt::format("{} converged orbits continued in {} ({}); {}", b.points.size(), b.key, b.start_detail,
+                     b.stop_reason),
+         {"branch.h5"});
+  const int w = b.watched_dof;
+  const bool angle = w != kPlunge;
+  const double ascale = angle ? kDegPerRad : 1.0;
+  const std::string aunit = angle ? "deg" : "m";
+  const std::string amp_name = std::string(kDofNames[w]) + "_amplitude";
+  if (b.points.empty()) {
+    s.rows.text("lco_branch", "LCO branch (converged orbits)", "none", "branch.h5@stop_reason", b.stop_reason);
+    return r;
+  }
+  s.rows.text("lco_branch", "LCO branch (converged orbits, stable and unstable)",
+              fmt::format("{} orbits, {} .. {} m/s TAS", b.points.size(),
+                          sig4(airspeed_range(b, {false, 0, b.points.size() - 1}).first),
+                          sig4(airspeed_range(b, {false, 0, b.points.size() - 1}).second)),
+              "branch.h5: airspeed", b.start_detail);
+  const auto segs = stability_segments(b);
+  std::string stable_txt, unstable_txt;
+  for (const auto& g : segs) {
+    const auto [lo, hi2] = airspeed_range(b, g);
+    std::string& t = g.stable ? stable_txt : unstable_txt;
+    t += fmt::format("{}{} .. {}", t.empty() ? "" : "; ", sig4(lo), sig4(hi2));
+  }
+  s.rows.text("lco_branch_stable", "  stable LCOs on the branch between",
+              stable_txt.empty() ? "none" : stable_txt + " m/s TAS", "branch.h5: airspeed where stable = 1");
+  s.rows.text("lco_branch_unstable", "  unstable cycles on the branch between",
+              unstable_txt.empty() ? "none" : unstable_txt + " m/s TAS", "branch.h5: airspeed where stable = 0");
+  const double per_speed = 1.0 / run.per;
+  int nfold = 0, nband = 0;
+  for (const auto& bf : b.bifurcations) {
+    const double v = bf.parameter * per_speed;
+    if (bf.kind == BifurcationKind::kFold) {
+      ++nfold;
+      s.rows.add(fmt::format("lco_fold_{}", nfold), fmt::format("  fold of the LCO branch ({})", nfold), v, "m/s TAS",
+                 "branch.h5: fold of parameter between two points (cubic Hermite in arclength)",
+                 fmt::format("{} amplitude {:.4g} {}; {:.4g} m/s EAS", kDofNames[w], bf.amplitude * ascale, aunit,
+                             equivalent_airspeed(v, s.rho)));
+      const auto band = fold_band(b, bf, per_speed);
+      if (!band) continue;
+      ++nband;
+      const double lo = std::min(band->fold_speed, band->end_speed), hi2 = std::max(band->fold_speed, band->end_speed);
+      s.rows.text(fmt::format("lco_hysteresis_fold_{}", nfold),
+                  fmt::format("Hysteresis band from fold ({}): {}", nfold,
+                              band->reaches_rest ? "rest or the LCO" : "the smaller or the larger LCO"),
+                  fmt::format("{} .. {} m/s TAS", sig4(lo), sig4(hi2)),
+                  "branch.h5: the fold and the unstable orbits (stable = 0) on its small-amplitude side");
+      s.rows.text(fmt::format("lco_trigger_fold_{}", nfold),
+                  "  disturbance that starts the larger LCO there (unstable cycle amplitude)",
+                  fmt::format("{} .. {} {}", sig4(band->amp_lo * ascale), sig4(band->amp_hi * ascale), aunit),
+                  "branch.h5: " + amp_name + " where stable = 0",
+                  "a disturbance larger than the unstable cycle grows into the larger LCO");
+    } else {
+      s.rows.text(fmt::format("lco_bifurcation_{}", &bf - b.bifurcations.data()),
+                  bf.kind == BifurcationKind::kGrazing
+                      ? std::string("  branch ends: the orbit grazes a spring breakpoint")
+                      : fmt::format("  {} bifurcation on the LCO branch", to_string(bf.kind)),
+                  fmt::format("{} m/s TAS", sig4(v)), "branch.h5: stable, largest_multiplier_modulus",
+                  fmt::format("{} amplitude {:.4g} {}", kDofNames[w], bf.amplitude * ascale, aunit));
+    }
+  }
+  if (nband == 0)
+    s.rows.text("lco_hysteresis_branch", "Hysteresis band from the folds",
+                nfold ? "none: no unstable cycles beside a fold" : "none: no fold on the branch",
+                "branch.h5: stable");
+  const ParameterFamily fam = parameter_family(bc, run.key);
+  largest_on_branch(s, fam, run.per, s.vd_tas.value_or(speeds.second), r);
+  return r;
+}
+
+// The largest stable LCO of the branch as a one-orbit file (lco_orbit.h5,
+// the branch file's layout) and its rows.
+void largest_orbit_rows(Study& s, const LcoBranchRun& r, const std::string& where) {
+  const Case& c = s.c;
+  const Orbit& o = *r.largest;
+  Branch one;
+  one.key = r.branch.key;
+  one.start = r.branch.start;
+  one.start_detail = "the largest stable LCO " + where + " of branch.h5: " + r.largest_how;
+  one.watched_dof = r.branch.watched_dof;
+  one.stop_reason = "one orbit";
+  BranchPoint p;
+  p.parameter = r.largest_parameter;
+  p.airspeed = r.largest_airspeed;
+  p.orbit = o;
+  one.points.push_back(p);
+  Derivation bv;
+  const Case bc = parse_case(derived_case_text(c, bv), c.path + " (largest LCO orbit)", derived_overrides(c, bv));
+  write_branch_file(s.path("lco_orbit.h5"), bc, one);
+  s.R.hdf5_files.push_back("lco_orbit.h5");
+  const int w = o.watched_dof;
+  const bool angle = w != kPlunge;
+  const auto shown = [](int k, double v) { return k == kPlunge ? v : v * kDegPerRad; };
+  const auto unit = [](int k) { return std::string(k == kPlunge ? "m" : "deg"); };
+  const auto in_file = [](int k) { return std::string(k == kPlunge ? "" : " (rad in the file)"); };
+  const std::string n = kDofNames[w];
+  s.rows.add("lco_largest", fmt::format("Largest stable LCO {}: {} amplitude", where, n),
+             shown(w, o.dof[w].amplitude), unit(w), "lco_orbit.h5: " + n + "_amplitude[0]" + in_file(w),
+             fmt::format("converged orbit at {:.4g} m/s TAS, {}; {:.4g} Hz, residual {:.1e}", r.largest_airspeed,
+                         r.largest_how, o.frequency(), o.residual));
+  s.rows.add("lco_largest_multiplier", "  largest non-trivial Floquet multiplier |mu| of that LCO",
+             o.largest_nontrivial, "1", "lco_orbit.h5: largest_multiplier_modulus[0]",
+             fmt::format("below 1: stable; trivial multiplier within {:.1e} of 1", o.trivial_multiplier_error));
+  s.rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", n), shown(w, o.content[w].rms), unit(w),
+             "lco_orbit.h5: " + n + "_rms[0]" + in_file(w));
+  s.rows.add("lco_largest_thd", fmt::format("  {} total harmonic distortion at that LCO", n), 100 * o.content[w].thd,
+             "%", "lco_orbit.h5: " + n + "_thd[0] x 100", "harmonics above the first, against the first");
+  for (int k = 0; k < c.model.section.dof; ++k) {
+    if (k == w) continue;
+    s.rows.add(fmt::format("lco_largest_{}", kDofNames[k]), fmt::format("  {} amplitude at that LCO", kDofNames[k]),
+               shown(k, o.dof[k].amplitude), unit(k),
+               fmt::format("lco_orbit.h5: {}_amplitude[0]{}", kDofNames[k], in_file(k)));
+  }
+  if (c.model.section.dof == 3) {
+    const SpringLaw& law = c.model.springs[kFlap];
+    const double fmax = law.force(o.dof[kFlap].max, law.region_of(o.dof[kFlap].max));
+    const double fmin = law.force(o.dof[kFlap].min, law.region_of(o.dof[kFlap].min));
+    s.rows.add("lco_hinge_spring_moment", "  hinge-spring (control circuit) moment at that LCO, largest |value|",
+               std::max(std::abs(fmax), std::abs(fmin)), "N m m-1",
+               "flap spring law at lco_orbit.h5: flap_max[0] / flap_min[0]");
+  }
+  (void)angle;
+}
+
+// Time history of the largest LCO, from the converged orbit's state.
+void lco_orbit_history_stage(Study& s, const LcoBranchRun& r, const std::string& where, const std::string& key) {
+  const Case& c = s.c;
+  const Orbit& o = *r.largest;
+  s.say(fmt::format("LCO time history at {:.4g} m/s TAS", r.largest_airspeed));
+  Derivation hv;
+  hv.duration = 10 * o.period;
+  hv.sample_interval = o.period / 200;
+  std::vector<std::string> ov = derived_overrides(c, hv);
+  ov.push_back(fmt::format("{}={:.17g}", key, r.largest_parameter));
+  const Case hc = parse_case(derived_case_text(c, hv), c.path + " (largest LCO)", ov);
+  const AeroelasticModel hm(hc.model);
+  RunState start;
+  start.x = o.x0;
+  start.regions = hm.regions_of(o.x0.data());
+  Hdf5TimeHistoryWriter writer(s.path("lco.h5"));
+  const SimulationSummary hs = simulate(hc, hm, writer, s.cancel, &start);
+  stop_if_cancelled(s.cancel);
+  s.R.hdf5_files.push_back("lco.h5");
+  s.part("lco-history", hs.completed,
+         fmt::format("10 periods of the largest stable LCO {} ({:.4g} m/s TAS), started on the converged orbit",
+                     where, r.largest_airspeed),
+         {"lco.h5"});
+  for (const auto& e : hs.extremes)
+    if (e.channel == "hinge_moment")
+      s.rows.add("lco_hinge_moment", "  aerodynamic hinge moment at that LCO, largest |value|",
+                 std::max(std::abs(e.max), std::abs(e.min)), "N m m-1", "lco.h5: hinge_moment (largest |sample|)");
+}
+
 // The LCO sweep, its rows and the history of its largest LCO.
 void lco_stages(Study& s) {
   const int nl = nonlinear_dof(s.c);
@@ -503,11 +870,29 @@ void lco_stages(Study& s) {
     s.rows.text("lco", "Limit-cycle oscillation", "not studied", "", "no nonlinear spring in the case");
     return;
   }
+  const auto speeds = lco_sweep_range(s);
   const LcoSweepRun run = lco_sweep_stage(s, nl);
   lco_sweep_rows(s, run);
   const std::string where = s.vd_tas ? fmt::format("at or below V_D ({:.4g} m/s TAS)", *s.vd_tas)
                                      : std::string("over the sweep (no V_D given)");
   const SweepPoint* worst = largest_lco(s, run);
+  LcoBranchRun br = lco_branch_stage(s, run, speeds);
+  // The branch's largest stable LCO is the answer unless the sweep found a
+  // larger one (on another branch than the one continued).
+  if (br.largest && worst) {
+    const auto w = static_cast<std::size_t>(worst->lco.watched_dof);
+    if (worst->lco.watched_dof != br.largest->watched_dof ||
+        worst->lco.dof[w].amplitude > br.largest->dof[w].amplitude * (1 + 1e-3)) {
+      s.rows.text("lco_largest_source", "Largest LCO taken from", "the sweep", "sweep.h5",
+                  "the sweep found a larger LCO than any stable orbit on the continued branch: another branch exists");
+      br.largest.reset();
+    }
+  }
+  if (br.largest) {
+    largest_orbit_rows(s, br, where);
+    lco_orbit_history_stage(s, br, where, run.key);
+    return;
+  }
   if (!worst) {
     s.rows.text("lco_largest", "Largest LCO " + where, "no LCO", "sweep.h5: " + run.tables.field("response_class").name);
     s.part("lco-history", false, "skipped: no LCO " + where);

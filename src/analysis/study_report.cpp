@@ -82,11 +82,17 @@ std::string study_figure_caption(const std::string& png_name) {
       {"sweep_bifurcation", "Bifurcation diagram: LCO amplitude against airspeed, sweeping up and "
                             "down (continuation), with the describing-function prediction and the "
                             "linear flutter speeds; where the two directions differ is hysteresis."},
+      {"branch_branch", "Limit cycles solved as periodic orbits and continued in airspeed: stable "
+                        "orbits solid, unstable cycles dashed (the disturbance that starts the LCO), "
+                        "folds and other bifurcations marked, V_D and 1.15 V_D marked, and the LCO "
+                        "sweep's periodic runs drawn over the branch (decayed runs are not LCOs and "
+                        "are not drawn)."},
       {"gust_gust_peaks", "Design gust gradient sweep: peak responses against the gust gradient distance H "
                     "(one-minus-cosine gusts sized per CS-25.341(a) when the case asks for it)."},
       {"response_time", "Response to the case as given: time histories with the gust velocity on top."},
       {"response_phase", "Phase portraits of the response to the case as given."},
-      {"lco_time", "Time history of the largest LCO inside the envelope (settled cycle)."},
+      {"lco_time", "Time history of the largest stable LCO inside the envelope, started on its "
+                   "converged orbit."},
       {"lco_phase", "Phase portraits of the largest LCO inside the envelope."},
   };
   for (const auto& k : known)

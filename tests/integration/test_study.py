@@ -92,6 +92,117 @@ def sweep_expectations(path, vd_tas):
     return out
 
 
+def orbit_expectations(path):
+    """The largest-LCO rows from the one-orbit file lco_orbit.h5."""
+    out = {}
+    with h5py.File(path, "r") as f:
+        watched = f.attrs["watched_dof"]
+        watched = watched.decode() if isinstance(watched, bytes) else str(watched)
+        scale = {d: (1 if d == "plunge" else DEG) for d in ("plunge", "pitch", "flap")}
+        out["lco_largest"] = f[f"{watched}_amplitude"][0] * scale[watched]
+        out["lco_largest_rms"] = f[f"{watched}_rms"][0] * scale[watched]
+        out["lco_largest_thd"] = f[f"{watched}_thd"][0] * 100
+        out["lco_largest_multiplier"] = f["largest_multiplier_modulus"][0]
+        for d in ("plunge", "pitch", "flap"):
+            if d != watched and f"{d}_amplitude" in f:
+                out[f"lco_largest_{d}"] = f[f"{d}_amplitude"][0] * scale[d]
+        out["_flap_extremes"] = (f["flap_max"][0], f["flap_min"][0])
+    return out
+
+
+def fold_expectations(path):
+    """lco_fold_<k>: the folds of branch.h5 in file order (an SI case: the
+    parameter is the airspeed in m/s)."""
+    with h5py.File(path, "r") as f:
+        if "bifurcation_kind" not in f:
+            return {}
+        kinds = f["bifurcation_kind"][:]
+        values = f["bifurcation_parameter"][:]
+    folds = [v for k, v in zip(kinds, values) if k == 1]
+    return {f"lco_fold_{i + 1}": v for i, v in enumerate(folds)}
+
+
+def branch_amplitude_at(speed, amplitude, stable, v):
+    """The stable branch's amplitudes at airspeed v (linear interpolation on
+    every stable stretch of the branch that spans v)."""
+    found = []
+    for i in range(len(speed) - 1):
+        if stable[i] and stable[i + 1]:
+            lo, hi = sorted((speed[i], speed[i + 1]))
+            if lo <= v <= hi and hi > lo:
+                t = (v - speed[i]) / (speed[i + 1] - speed[i])
+                found.append(amplitude[i] + t * (amplitude[i + 1] - amplitude[i]))
+    return found
+
+
+def check_branch(out, rows, vd_tas, checks):
+    """The branch against the sweep's independent time marches, and the
+    Floquet accuracy check on every orbit."""
+    def branch_and_sweep_agree():
+        with h5py.File(os.path.join(out, "branch.h5"), "r") as f:
+            watched = f.attrs["watched_dof"]
+            watched = watched.decode() if isinstance(watched, bytes) else str(watched)
+            speed = f["airspeed"][:]
+            amp = f[f"{watched}_amplitude"][:]
+            stable = f["stable"][:] > 0.5
+            trivial = f["trivial_multiplier_error"][:]
+            residual = f["residual"][:]
+        # Floquet theory: one multiplier is exactly 1 along the flow
+        # (Kuznetsov, "Elements of Applied Bifurcation Theory"): the issue's 1e-8.
+        assert np.all(trivial < 1e-8), trivial.max()
+        assert np.all(residual < 1e-9), residual.max()
+        with h5py.File(os.path.join(out, "sweep.h5"), "r") as f:
+            v = f["value_1"][:]
+            rc = f["response_class"][:]
+            sw_amp = f[f"{watched}_amplitude"][:]
+        compared = 0
+        for d in (0, 1):
+            for i in range(len(v)):
+                if rc[d, i] != 1:
+                    continue
+                on_branch = branch_amplitude_at(speed, amp, stable, v[i])
+                assert on_branch, f"periodic sweep run at {v[i]} m/s where the branch has no stable orbit"
+                # The sweep's runs are time marches refined to orbits; the
+                # branch between its points is a chord of a curve: 2e-3
+                # relative covers the chord error at the study's step
+                # (common practice, no source).
+                err = min(abs(a - sw_amp[d, i]) for a in on_branch) / sw_amp[d, i]
+                assert err < 2e-3, (v[i], sw_amp[d, i], on_branch)
+                compared += 1
+        assert compared > 0
+    checks.run("every periodic sweep run lies on the stable branch; every orbit's trivial multiplier is 1",
+               branch_and_sweep_agree)
+
+    def largest_is_the_maximum():
+        with h5py.File(os.path.join(out, "lco_orbit.h5"), "r") as f:
+            watched = f.attrs["watched_dof"]
+            watched = watched.decode() if isinstance(watched, bytes) else str(watched)
+            a = f[f"{watched}_amplitude"][0]
+            mu = f["largest_multiplier_modulus"][0]
+            trivial = f["trivial_multiplier_error"][0]
+            v_orbit = f["airspeed"][0]
+        with h5py.File(os.path.join(out, "branch.h5"), "r") as f:
+            speed = f["airspeed"][:]
+            amp = f[f"{watched}_amplitude"][:]
+            stable = f["stable"][:] > 0.5
+        inside = stable & (speed <= vd_tas)
+        # Refined to the maximum: at least every stable orbit of the branch
+        # inside the envelope, and stable (|mu| < 1, Floquet theory).
+        assert a >= amp[inside].max() * (1 - 1e-12), (a, amp[inside].max())
+        assert mu < 1 and trivial < 1e-8 and v_orbit <= vd_tas, (mu, trivial, v_orbit)
+    checks.run("the largest stable LCO is the branch's maximum inside the envelope, stable", largest_is_the_maximum)
+
+    def bands_are_named():
+        assert "lco_branch" in rows and "lco_branch_stable" in rows and "lco_branch_unstable" in rows
+        bands = [k for k in rows if k.startswith("lco_hysteresis_fold_")]
+        assert bands or "lco_hysteresis_branch" in rows
+        for k in bands:
+            lo, hi = (float(x) for x in re.findall(r"\d+(?:\.\d+)?(?:e[-+]?\d+)?", rows[k]["value"])[:2])
+            fold = rows["lco_fold_" + k.rsplit("_", 1)[1]]["number"]
+            assert math.isclose(min(lo, hi), float(f"{min(fold, lo):.4g}"), rel_tol=1e-3), (k, lo, hi, fold)
+    checks.run("the branch's ranges, folds and hysteresis bands are in the summary", bands_are_named)
+
+
 def check_demo(exe, src, work, checks):
     out = os.path.join(work, "demo")
     case = os.path.join(src, "cases", "demo_aileron.toml")
@@ -104,7 +215,8 @@ def check_demo(exe, src, work, checks):
                 assert f.attrs["aerosect_file_kind"] is not None, name
         for name in ("report.html", "summary.json", "case.toml", "check.json"):
             assert os.path.getsize(os.path.join(out, name)) > 0, name
-        assert set(summary["hdf5_files"]) >= {"flutter.h5", "sweep.h5", "gust.h5", "response.h5", "lco.h5"}
+        assert set(summary["hdf5_files"]) >= {"flutter.h5", "sweep.h5", "branch.h5", "lco_orbit.h5", "gust.h5",
+                                              "response.h5", "lco.h5"}
         assert len(summary["figures"]) >= 8, summary["figures"]
         for p in summary["figures"]:
             assert os.path.getsize(p) > 10000, p
@@ -130,7 +242,16 @@ def check_demo(exe, src, work, checks):
     vd_tas = vd / math.sqrt(rho / 1.225)
     sw = sweep_expectations(os.path.join(out, "sweep.h5"), vd_tas)
     flap_extremes = sw.pop("_flap_extremes", None)
+    sweep_largest = sw.get("lco_largest")
+    if rows["lco_largest"]["source"].startswith("lco_orbit.h5"):
+        # The largest stable LCO is the converged orbit of lco_orbit.h5.
+        for k in [k for k in sw if k.startswith("lco_largest")]:
+            del sw[k]
+        orbit = orbit_expectations(os.path.join(out, "lco_orbit.h5"))
+        flap_extremes = orbit.pop("_flap_extremes")
+        expected.update(orbit)
     expected.update(sw)
+    expected.update(fold_expectations(os.path.join(out, "branch.h5")))
     with h5py.File(os.path.join(out, "lco.h5"), "r") as f:
         expected["lco_hinge_moment"] = float(np.max(np.abs(f["hinge_moment"][:])))
     with h5py.File(os.path.join(out, "gust.h5"), "r") as f:
@@ -139,6 +260,14 @@ def check_demo(exe, src, work, checks):
             key = f"critical_value_{ch}"
             if key in peaks:
                 expected[f"gust_peak_{ch}"] = float(peaks[key]) * (DEG if ch in ("pitch", "flap") else 1)
+
+    check_branch(out, rows, vd_tas, checks)
+    def at_least_the_sweep():
+        # The sweep's periodic runs are orbits of the same section at fixed
+        # speeds: none can exceed the branch's maximum inside the envelope.
+        assert sweep_largest is not None and expected["lco_largest"] >= sweep_largest * (1 - 1e-9), \
+            (expected["lco_largest"], sweep_largest)
+    checks.run("the converged largest LCO is at least the sweep's largest periodic run", at_least_the_sweep)
 
     def numbers_match_files():
         missing = [k for k in expected if k not in rows]
@@ -185,7 +314,8 @@ def check_demo(exe, src, work, checks):
                 assert float(cells[1]) == float(f"{row['number']:.4g}"), (cells[1], row["number"])
         needed = ["linear_flutter_state_space", "linear_flutter_pk", "divergence", "clearance_speed",
                   "margin", "gap_open_flutter_state_space", "gap_closed_flutter_state_space",
-                  "lco_onset_up", "lco_persists_down", "hysteresis", "lco_largest",
+                  "lco_onset_up", "lco_persists_down", "hysteresis", "lco_branch", "lco_fold_1",
+                  "lco_largest", "lco_largest_multiplier",
                   "lco_hinge_moment", "lco_hinge_spring_moment", "gust_peak_lift", "gust_peak_flap"]
         assert not [k for k in needed if k not in rows], [k for k in needed if k not in rows]
     checks.run("summary table shows every row with its value", table_rows)

@@ -33,7 +33,7 @@ BIN, SRC = os.path.abspath(sys.argv[1]), os.path.abspath(sys.argv[2])
 DEMO = os.path.join(SRC, "cases", "demo_aileron.toml")
 QUICK = ["--no-plots", "--jobs", "2", "--sweep-points", "4", "--set", "simulation.duration=2"]
 A_MARK, B_MARK = "simulation.max_step=0.002", "simulation.max_step=0.001"
-STAGES = ["check", "flutter", "LCO sweep", "LCO time history", "design gust", "response"]
+STAGES = ["check", "flutter", "LCO sweep", "LCO branch", "LCO time history", "design gust", "response"]
 passed = failed = 0
 tried = mixed = 0
 

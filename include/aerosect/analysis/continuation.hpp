@@ -43,7 +43,8 @@
 //              branch runs to larger amplitudes (smooth laws: cubic,
 //              polynomial);
 //   march      the case marched in time from its initial state at its own
-//              lambda (at the case's own tolerances: it only seeds Newton)
+//              lambda, or from BranchOptions::march_state at march_parameter
+//              (at the case's own tolerances: it only seeds Newton)
 //              until the LCO tracker sees a periodic cycle (lco.hpp);
 //              the branch runs both ways from there;
 //   describing the describing-function prediction (describing_function.hpp)
@@ -94,6 +95,11 @@ struct BranchOptions {
   double max_step = 0.25;
   int max_corrector_iterations = 10;
   double max_amplitude = 0;        // watched DOF, m or rad; 0: 1 rad, 10 semichords for plunge
+  // march start: the march begins from `march_state` (full state, SI) at
+  // lambda = `march_parameter` (e.g. a settled sweep point's final state);
+  // unset: from the case's initial state at its own value.
+  std::optional<double> march_parameter;
+  std::vector<double> march_state;
   OrbitSettings orbit;
 };
 
@@ -128,6 +134,10 @@ struct Branch {
   std::string stop_reason;                 // why each end of the branch ended
   bool cancelled = false;
 };
+
+// True when the model has a nonlinear spring and every nonlinear spring is
+// smooth (cubic, polynomial: no breakpoints); the auto start is then hopf.
+bool smooth_spring_laws(const ModelDescription& d);
 
 // Called after every accepted point with the number of points so far (for
 // progress output).

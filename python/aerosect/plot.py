@@ -41,7 +41,7 @@ For a `sweep` file (aerosect sweep -o) it writes:
                       swept key (axis label with units), sweep up filled and
                       down open; one key: coloured by response class, with
                       the describing-function LCO curve and the linear
-                      flutter speeds; two keys: one curve per value of the
+                      flutter speeds (decayed runs at zero: no LCO); two keys: one curve per value of the
                       second key (at most six, evenly picked). Divergent
                       runs sit on the top edge (their amplitude is off scale).
 For an `orbit_branch` file (aerosect orbits -o, the study's branch.h5) it writes:
@@ -595,7 +595,7 @@ CLASS_STYLE = {  # response_class code -> (label, colour)
     4: ("failed", "k"),
     5: ("unsettled (run too short: not an answer)", "C4"),
 }
-DIVERGENT, FAILED = 3, 4
+DECAYED, DIVERGENT, FAILED = 0, 3, 4
 
 # Swept case keys -> the quantity's name on an axis; the units are the
 # file's own (the `units` of the value_1 axis, from the case-file
@@ -704,14 +704,17 @@ def plot_sweep(f, stem, outdir):
                       np.asarray(g["stable"][()], dtype=float),
                       np.asarray(g["branch"][()], dtype=float) if "branch" in g
                       else np.zeros(len(g["value"])))
-    top = amplitude_top(amplitude, classes, None if prediction is None else prediction[1])
+    top = amplitude_top(np.where(classes == DECAYED, 0.0, amplitude), classes,
+                        None if prediction is None else prediction[1])
 
     fig, ax = plt.subplots(figsize=(WIDTH_IN, 6.0), layout="constrained")
     entries = []
     directions = (("up", "o", "-", True), ("down", "s", "--", False))
     if not two_keys:
         for d, (name, marker, style, filled) in enumerate(directions):
-            amp, cls = amplitude[d], classes[d]
+            # A decayed run has no LCO: drawn at zero, not at the amplitude
+            # its motion had when the run ended.
+            amp, cls = np.where(classes[d] == DECAYED, 0.0, amplitude[d]), classes[d]
             if not np.any(np.isfinite(cls)):
                 continue
             kept = np.where((cls != DIVERGENT) & (cls != FAILED), amp, np.nan)
@@ -727,7 +730,8 @@ def plot_sweep(f, stem, outdir):
         for code in present:
             label, colour = CLASS_STYLE[code]
             shape = "^" if code == DIVERGENT else "o"
-            text = "divergent (off scale, at the top)" if code == DIVERGENT else label
+            text = ("divergent (off scale, at the top)" if code == DIVERGENT
+                    else "decayed (no LCO: drawn at zero)" if code == DECAYED else label)
             entries.append((Line2D([], [], marker=shape, color=colour, ls="none", ms=7), text))
         if prediction is not None:
             v, a, stable, branch = prediction
@@ -762,7 +766,8 @@ def plot_sweep(f, stem, outdir):
         colours = plt.get_cmap("viridis")(np.linspace(0.0, 0.85, len(picked)))
         for colour, j in zip(colours, picked):
             for d, (name, marker, style, filled) in enumerate(directions):
-                amp, cls = amplitude[d, :, j], classes[d, :, j]
+                cls = classes[d, :, j]
+                amp = np.where(cls == DECAYED, 0.0, amplitude[d, :, j])
                 if not np.any(np.isfinite(cls)):
                     continue
                 ok = (cls != DIVERGENT) & (cls != FAILED)
@@ -776,7 +781,7 @@ def plot_sweep(f, stem, outdir):
                             "divergent (off scale, at the top)"))
         shown = "" if len(picked) == n2 else f"; {len(picked)} of the {n2} values of {key_2} shown"
         note = ("Two-key sweep: markers are every run's amplitude whatever its class "
-                f"(decayed runs near zero){shown}. The describing-function curve and the "
+                f"(decayed runs at zero: no LCO){shown}. The describing-function curve and the "
                 "flutter speeds are for the case as given, so they are not drawn.")
     entries.append((Line2D([], [], color="0.3", marker="o", ls="-", ms=6), "sweep up (filled)"))
     entries.append((Line2D([], [], color="0.3", marker="s", ls="--", mfc="none", ms=8),

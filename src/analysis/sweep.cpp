@@ -378,7 +378,10 @@ nlohmann::json point_json(const SweepPoint& p) {
                                                                 : nlohmann::json(nullptr);
   j["watched_dof"] = p.lco.watched_dof;
   j["cycles"] = p.lco.cycles;
-  j["frequency_hz"] = p.lco.frequency;
+  // A decayed run has no LCO: no frequency (the HDF5 file keeps the dying
+  // motion's, documented as such).
+  j["frequency_hz"] = p.lco.response == ResponseClass::kDecayed ? nlohmann::json(nullptr)
+                                                                : json_number(p.lco.frequency);
   j["spread"] = p.lco.spread;
   j["stopped_early"] = p.lco.stopped_early;
   j["refined"] = p.refined;
@@ -571,13 +574,17 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
     const bool angle = w != kPlunge;
     t += fmt::format("  {:>4} {:>{}.6g}", q.direction == 0 ? "up" : "down", q.value1, w1);
     if (two) t += fmt::format(" {:>{}.6g}", q.value2, w2);
-    t += fmt::format(" {:>13} {:>9.5g} {:<6} {:>10.4g} {:>7}{}\n",
+    // A decayed run has no LCO: no amplitude or frequency is shown for it.
+    const bool decayed = q.ok && q.lco.response == ResponseClass::kDecayed;
+    const std::string amp =
+        decayed ? "-" : fmt::format("{:.5g}", q.lco.dof[static_cast<std::size_t>(w)].amplitude * (angle ? kDegPerRad : 1.0));
+    t += fmt::format(" {:>13} {:>9} {:<6} {:>10} {:>7}{}\n",
                      !q.ok ? std::string("failed")
                      : q.lco.response == ResponseClass::kPeriodic && !q.refined
                          ? std::string("periodic*")
                          : std::string(to_string(q.lco.response)),
-                     q.lco.dof[static_cast<std::size_t>(w)].amplitude * (angle ? kDegPerRad : 1.0),
-                     angle ? "degree" : "m", q.lco.frequency, q.lco.cycles,
+                     amp, decayed ? "" : angle ? "degree" : "m",
+                     decayed ? std::string("-") : fmt::format("{:.4g}", q.lco.frequency), q.lco.cycles,
                      q.ok ? "" : "  " + q.error.substr(0, 60));
   }
   const SweepSummary s = summarize(p);
@@ -695,7 +702,10 @@ SweepTables sweep_tables(const SweepRequest& r, int ndof) {
                      "largest modulus of the orbit's non-trivial Floquet multipliers (NaN: no converged orbit)",
                      [](const SweepPoint& p) { return p.floquet_multiplier; },
                      [](SweepPoint& p, double v) { p.floquet_multiplier = v; }));
-  P.push_back(scalar("frequency", "Hz", "LCO frequency", [](const SweepPoint& p) { return p.lco.frequency; },
+  P.push_back(scalar("frequency", "Hz",
+                     "frequency of the last cycles of the watched DOF: the LCO frequency where response_class = 1; "
+                     "for a decayed run the frequency of the dying motion, not an LCO",
+                     [](const SweepPoint& p) { return p.lco.frequency; },
                      [](SweepPoint& p, double v) { p.lco.frequency = v; }));
   P.push_back(scalar(
       "cycles", "1", "complete cycles of the watched DOF", [](const SweepPoint& p) { return static_cast<double>(p.lco.cycles); },

@@ -341,3 +341,59 @@ TEST_CASE("Flap-freeplay branch of the demo: describing function and time marchi
   CHECK(below < gap);
   CHECK_THAT(above, WithinRel(ps->orbit.dof[kFlap].max, 1e-6));
 }
+
+TEST_CASE("A cycle with two unequal maxima per period is solved over its full period", "[orbit]") {
+  // Pitch freeplay (half gap 0.5 deg) of the 2-DOF benchmark section at
+  // U* = 4: the settled cycle has two unequal pitch maxima per period (the
+  // scipy peer of tests/integration/test_peer_scipy.py finds the same). The
+  // shooting unknown T is the full period (both maxima), so:
+  //  - the orbit converges with peaks_per_period = 2 and its trivial
+  //    multiplier within 1e-8 of 1 (Floquet theory, Kuznetsov, Elements of
+  //    Applied Bifurcation Theory: Phi f = f along the flow);
+  //  - solved from a seed at either of its two maxima it is the same cycle
+  //    (equal period, amplitude, max and min to 1e-9: the tolerance is the
+  //    Newton tolerance 1e-10 with margin), with x0 at the seed's maximum;
+  //  - half the period is not a period: the flow over T/2 from x0 misses
+  //    x0 by far more than the residual (common practice, no source).
+  const Case c = benchmark_with("[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n", 4.0);
+  const AeroelasticModel model(c.model);
+  const Orbit o = solve_orbit(model, marched_seed(model, c));
+  INFO(o.failure);
+  REQUIRE(o.converged);
+  CAPTURE(o.period, o.peaks_per_period, o.dof[kPitch].amplitude, o.largest_nontrivial, o.residual);
+  REQUIRE(o.peaks_per_period == 2);
+  CHECK(o.trivial_multiplier_error < 1e-8);
+  // The other maximum of the cycle: the state at the second maximum of the
+  // watched DOF inside the period.
+  const StateLayout& L = model.layout();
+  RunState run;
+  run.x = o.x0;
+  run.regions = model.regions_of(run.x.data());
+  std::vector<std::vector<double>> maxima;
+  integrate(model, run, 0.999 * o.period, OrbitSettings{}.integrator, OutputSchedule::none(),
+            {{}, [&](int dof, double, const std::vector<double>& x) {
+              if (dof != kPitch) return ObserverAction::kContinue;
+              std::vector<double> dx(x.size());
+              model.rhs(x.data(), dx.data(), 0.0, model.regions_of(x.data()), 0);
+              if (dx[L.velocity + kPitch] < 0) maxima.push_back(x);  // a maximum: pitch acceleration < 0
+              return ObserverAction::kContinue;
+            }});
+  REQUIRE(maxima.size() == 1);  // the second maximum (the first is x0 at t = 0)
+  CHECK(std::abs(maxima[0][L.displacement + kPitch] - o.x0[L.displacement + kPitch]) >
+        1e-3 * o.dof[kPitch].amplitude);
+  const Orbit o2 = solve_orbit(model, OrbitSeed{maxima[0], o.period});
+  INFO(o2.failure);
+  REQUIRE(o2.converged);
+  CHECK(o2.peaks_per_period == 2);
+  CHECK_THAT(o2.period, WithinRel(o.period, 1e-9));
+  CHECK_THAT(o2.dof[kPitch].amplitude, WithinRel(o.dof[kPitch].amplitude, 1e-9));
+  CHECK_THAT(o2.dof[kPitch].max, WithinRel(o.dof[kPitch].max, 1e-9));
+  CHECK_THAT(o2.dof[kPitch].min, WithinRel(o.dof[kPitch].min, 1e-9));
+  CHECK_THAT(o2.x0[L.displacement + kPitch], WithinRel(maxima[0][L.displacement + kPitch], 1e-6));
+  // Half the period is not a period.
+  const Flow half = orbit_flow(model, o.x0, 0.5 * o.period, OrbitSettings{}.integrator, false);
+  const Eigen::VectorXd W = state_weights(model);
+  double miss = 0;
+  for (int i = 0; i < L.size; ++i) miss = std::max(miss, std::abs(W(i) * (half.x[i] - o.x0[i])));
+  CHECK(miss / o.dof[kPitch].amplitude > 1e-3);
+}

@@ -22,24 +22,6 @@ int orbit_watched_dof(const AeroelasticModel& model, int requested) {
   return kPitch;
 }
 
-Eigen::VectorXd state_weights(const AeroelasticModel& model) {
-  const StateLayout& L = model.layout();
-  const auto& d = model.description();
-  const double b = d.section.semichord;
-  double w_ref = uncoupled_frequencies(d.section).pitch;
-  if (!(w_ref > 0) || !std::isfinite(w_ref)) w_ref = 1.0;
-  Eigen::VectorXd w = Eigen::VectorXd::Ones(L.size);
-  for (int j = 0; j < L.n_dof; ++j) {
-    const double dj = j == kPlunge ? 1.0 / b : 1.0;
-    w(L.displacement + j) = dj;
-    w(L.velocity + j) = dj / w_ref;
-  }
-  const double lag_scale = std::max(d.flow.airspeed, b * w_ref);
-  for (int i = 0; i < L.n_wagner; ++i) w(L.wagner + i) = 1.0 / lag_scale;
-  for (int i = 0; i < L.n_gust; ++i) w(L.gust + i) = 1.0 / lag_scale;
-  return w;
-}
-
 namespace {
 
 // Components of the state that are unknowns: all but a held DOF's

@@ -11,6 +11,7 @@
 #include <fmt/format.h>
 
 #include "aerosect/error.hpp"
+#include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/units.hpp"
 
 namespace aerosect {
@@ -22,6 +23,7 @@ const char* to_string(StepperKind k) {
   switch (k) {
     case StepperKind::kDopri5: return "dopri5";
     case StepperKind::kBulirschStoer: return "bulirsch-stoer";
+    case StepperKind::kExact: return "exact";
   }
   return "?";
 }
@@ -629,6 +631,9 @@ IntegrationResult integrate(const AeroelasticModel& model, RunState& run, double
   if (run.regions.empty()) run.regions = model.regions_of(run.x.data());
   const double atol = settings.absolute_tolerance, rtol = settings.relative_tolerance;
   switch (settings.stepper) {
+    case StepperKind::kExact:
+      if (exact_propagation_eligible(model)) return integrate_exact(model, run, t_end, schedule, observers);
+      [[fallthrough]];  // not eligible: Dormand-Prince at the given tolerances
     case StepperKind::kDopri5: {
       auto stepper = odeint::make_dense_output(atol, rtol, settings.max_step,
                                                odeint::runge_kutta_dopri5<State>());

@@ -62,7 +62,9 @@ namespace aerosect {
 
 struct OrbitSettings {
   // Tight tolerances: the orbit is as accurate as the flow it is built on.
-  IntegratorSettings integrator{StepperKind::kDopri5, 1e-12, 1e-15, 0.0, 0.0};
+  // Exact propagation where the model allows it (integrate/exact_flow.hpp),
+  // else Dormand-Prince at these tolerances.
+  IntegratorSettings integrator{StepperKind::kExact, 1e-12, 1e-15, 0.0, 0.0};
   double tolerance = 1e-10;   // on the scaled residual |W r|_inf / A_w
   int max_iterations = 25;
   int watched_dof = -1;       // -1: the first nonlinear spring's DOF, else pitch
@@ -109,8 +111,8 @@ struct Orbit {
 // Watched DOF: `requested` when >= 0, else the first nonlinear spring's, else pitch.
 int orbit_watched_dof(const AeroelasticModel& model, int requested);
 
-// Per-component weights of the scaled norms (see above).
-Eigen::VectorXd state_weights(const AeroelasticModel& model);
+// Per-component weights of the scaled norms (see above): state_weights()
+// of model/system.hpp.
 
 // The flow over one period from x0, with the monodromy when asked (the
 // variational equations integrated with the state, integrator.hpp).

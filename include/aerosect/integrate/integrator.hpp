@@ -68,7 +68,10 @@
 
 namespace aerosect {
 
-enum class StepperKind { kDopri5, kBulirschStoer };
+// kExact: exact propagation (exact_flow.hpp) when the model is eligible (no
+// gust input, continuous piecewise-linear springs); otherwise Dormand-Prince
+// 5(4) at the given tolerances, which then still apply.
+enum class StepperKind { kDopri5, kBulirschStoer, kExact };
 const char* to_string(StepperKind k);
 
 struct IntegratorSettings {

@@ -168,4 +168,12 @@ class AeroelasticModel {
   std::vector<double> g_velocity_rows_;  // per nonlinear spring, its G_ column's velocity rows
 };
 
+// Per-component weights that make a state's components comparable
+// (radians-like): plunge per semichord, velocities per b omega_alpha or
+// omega_alpha (omega_alpha the uncoupled pitch frequency, 1 rad/s when it is
+// zero), lag states per the larger of the airspeed and b omega_alpha. Used
+// by the scaled norms of the orbit solver and the scaling of the exact
+// propagator (integrate/exact_flow.hpp).
+Eigen::VectorXd state_weights(const AeroelasticModel& model);
+
 }  // namespace aerosect

@@ -1,0 +1,343 @@
+#include "aerosect/integrate/exact_flow.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <map>
+
+#include <fmt/format.h>
+
+#include "aerosect/error.hpp"
+#include "aerosect/units.hpp"
+
+namespace aerosect {
+
+bool exact_propagation_eligible(const AeroelasticModel& model, std::string* why) {
+  const auto say = [why](std::string s) {
+    if (why) *why = std::move(s);
+    return false;
+  };
+  const ModelDescription& d = model.description();
+  if (!d.gusts.empty()) return say("the case has a gust input (the system is not autonomous)");
+  for (int j : model.nonlinear_springs()) {
+    const SpringLaw& law = d.springs[static_cast<std::size_t>(j)];
+    if (!law.is_piecewise_linear())
+      return say(fmt::format("the {} spring law ({}) is not piecewise linear", dof_name(j), law.kind()));
+    for (int i = 0; i < static_cast<int>(law.breakpoints().size()); ++i)
+      if (law.force_jump(i) != 0)
+        return say(fmt::format("the {} spring's force jumps at its breakpoint {}", dof_name(j), i + 1));
+  }
+  return true;
+}
+
+namespace {
+
+using Vec = Eigen::VectorXd;
+using Mat = Eigen::MatrixXd;
+
+// One spring configuration: the scaled augmented matrix and its step.
+struct Region {
+  Mat M;      // (n+1) square: [[W A W^-1, W c], [0, 0]]
+  double h;   // step, s: ||h M||_inf <= 1/2 (infinite when M = 0)
+  Mat E;      // exp(h M) (when h is finite)
+};
+
+// exp(tau M) v by its Taylor series (||tau M|| <= 1/2: terms fall by 2 or
+// more each, 1e-17 relative after about 20).
+Vec expv(const Mat& M, const Vec& v, double tau) {
+  Vec sum = v, term = v;
+  for (int k = 1; k < 40; ++k) {
+    term = (tau / k) * (M * term);
+    sum += term;
+    if (term.lpNorm<Eigen::Infinity>() <= 1e-18 * sum.lpNorm<Eigen::Infinity>()) break;
+  }
+  return sum;
+}
+
+Mat expm(const Mat& M, double tau) {
+  Mat sum = Mat::Identity(M.rows(), M.cols()), term = sum;
+  for (int k = 1; k < 40; ++k) {
+    term = (tau / k) * (M * term);
+    sum += term;
+    if (term.lpNorm<Eigen::Infinity>() <= 1e-18 * sum.lpNorm<Eigen::Infinity>()) break;
+  }
+  return sum;
+}
+
+// A witness in scaled coordinates: g(z) = a . z + b (a spring DOF's
+// distance past a breakpoint, or a velocity).
+struct Witness {
+  bool spring = true;  // else a velocity zero (peak)
+  int dof = 0;
+  int next = 0;        // region entered (spring)
+  Vec a;               // row of the linear form over the augmented z
+  double b = 0;
+};
+
+class ExactRun {
+ public:
+  ExactRun(const AeroelasticModel& model, RunState& run, double t_end, const OutputSchedule& schedule,
+           const RunObservers& obs)
+      : model_(model), L_(model.layout()), n_(model.state_size()), run_(run), t_end_(t_end),
+        schedule_(schedule), obs_(obs), W_(state_weights(model)) {}
+
+  IntegrationResult operator()() {
+    const double t0 = run_.time;
+    Vec z(n_ + 1);
+    for (int i = 0; i < n_; ++i) z(i) = W_(i) * run_.x[static_cast<std::size_t>(i)];
+    z(n_) = 1.0;
+    Mat phi;  // scaled monodromy W Phi W^-1
+    if (run_.track_monodromy) {
+      const Eigen::Map<const Mat> p(run_.monodromy.data(), n_, n_);
+      phi = W_.asDiagonal() * p * W_.cwiseInverse().asDiagonal();
+    }
+    bool stop = false;
+    if (schedule_.any() && schedule_.include_start) stop |= sample(z, run_.time);
+    std::int64_t next_sample = 1;
+    const Region* R = &region(z);
+    std::vector<Witness> ws = witnesses(*R);
+    int quick_switches = 0;
+    while (run_.time < t_end_ && !stop) {
+      if (obs_.cancel && obs_.cancel->load()) return finish(z, phi, StopReason::kCancelled);
+      const double h = std::min(R->h, t_end_ - run_.time);
+      const bool full = h == R->h;
+      const Vec zb = full ? Vec(R->E * z) : expv(R->M, z, h);
+      // The first switch inside (0, h].
+      double te = std::numeric_limits<double>::infinity();
+      const Witness* event = nullptr;
+      for (const Witness& w : ws)
+        if (w.spring)
+          if (const double tz = first_zero(*R, w, z, zb, h); tz < te) {
+            te = tz;
+            event = &w;
+          }
+      const double span = event ? te : h;
+      // Peaks and samples inside (0, span], in time order.
+      if (obs_.peak) stop |= report_peaks(*R, ws, z, span);
+      if (schedule_.interval > 0 && !schedule_.every_step) {
+        for (;;) {
+          const double ts = t0 + static_cast<double>(next_sample) * schedule_.interval;
+          if (ts > run_.time + span * (1 + 1e-14) || ts > t_end_ * (1 + 1e-15)) break;
+          stop |= sample(expv(R->M, z, std::max(0.0, ts - run_.time)), ts);
+          ++next_sample;
+        }
+      }
+      // Advance.
+      if (event) {
+        const Vec ze = expv(R->M, z, te);
+        if (run_.track_monodromy) phi = expm(R->M, te).topLeftCorner(n_, n_) * phi;
+        z = ze;
+        run_.time += te;
+        run_.regions[static_cast<std::size_t>(event->dof)] = event->next;
+        ++run_.switches;
+        quick_switches = te < 1e-12 * std::max(1.0, std::abs(run_.time)) ? quick_switches + 1 : 0;
+        if (quick_switches > 50)
+          throw NumericalError(run_.time, fmt::format("{} switches of the {} spring without the time advancing "
+                                                      "(a trajectory held on its breakpoint)",
+                                                      quick_switches, dof_name(event->dof)));
+        R = &region(z);
+        ws = witnesses(*R);
+      } else {
+        if (run_.track_monodromy)
+          phi = (full ? R->E : expm(R->M, h)).topLeftCorner(n_, n_) * phi;
+        z = zb;
+        run_.time = full ? run_.time + h : t_end_;
+      }
+      ++run_.steps;
+      if (!z.allFinite())
+        throw NumericalError(run_.time, "the exact solution left the range of double precision (unbounded growth)");
+      if (schedule_.every_step) stop |= sample(z, run_.time);
+    }
+    return finish(z, phi, stop ? StopReason::kObserver : StopReason::kEndTime);
+  }
+
+ private:
+  // Region of the current spring regions, built from the model's Jacobian
+  // and right-hand side at the present state (constant in the region).
+  const Region& region(const Vec& z) {
+    auto it = cache_.find(run_.regions);
+    if (it != cache_.end()) return it->second;
+    std::vector<double> x(static_cast<std::size_t>(n_)), f(static_cast<std::size_t>(n_));
+    for (int i = 0; i < n_; ++i) x[static_cast<std::size_t>(i)] = z(i) / W_(i);
+    Mat J(n_, n_);
+    model_.jacobian(x.data(), run_.time, run_.regions, 0, J);
+    model_.rhs(x.data(), f.data(), run_.time, run_.regions, 0);
+    Region r;
+    r.M = Mat::Zero(n_ + 1, n_ + 1);
+    for (int i = 0; i < n_; ++i) {
+      double c = f[static_cast<std::size_t>(i)];
+      for (int k = 0; k < n_; ++k) {
+        r.M(i, k) = W_(i) * J(i, k) / W_(k);
+        c -= J(i, k) * x[static_cast<std::size_t>(k)];
+      }
+      r.M(i, n_) = W_(i) * c;
+    }
+    const double norm = r.M.cwiseAbs().rowwise().sum().maxCoeff();
+    r.h = norm > 0 ? 0.5 / norm : std::numeric_limits<double>::infinity();
+    if (std::isfinite(r.h)) r.E = expm(r.M, r.h);
+    return cache_.emplace(run_.regions, std::move(r)).first->second;
+  }
+
+  // Spring boundaries of the present regions (g >= 0 past the breakpoint)
+  // and, when peaks are watched, the velocity of every moving DOF.
+  std::vector<Witness> witnesses(const Region&) const {
+    std::vector<Witness> out;
+    for (int j : model_.nonlinear_springs()) {
+      const auto bp = model_.description().springs[static_cast<std::size_t>(j)].breakpoints();
+      const int r = run_.regions[static_cast<std::size_t>(j)];
+      const int q = L_.displacement + j;
+      for (int side : {-1, 1}) {
+        const int b = side < 0 ? r - 1 : r;
+        if (b < 0 || b >= static_cast<int>(bp.size())) continue;
+        Witness w;
+        w.dof = j;
+        w.next = side < 0 ? r - 1 : r + 1;
+        w.a = Vec::Zero(n_ + 1);
+        w.a(q) = side / W_(q);  // side (x_q - breakpoint)
+        w.b = -side * bp[static_cast<std::size_t>(b)];
+        out.push_back(std::move(w));
+      }
+    }
+    if (obs_.peak)
+      for (int j = 0; j < L_.n_dof; ++j) {
+        if (model_.description().held[static_cast<std::size_t>(j)]) continue;
+        Witness w;
+        w.spring = false;
+        w.dof = j;
+        w.a = Vec::Zero(n_ + 1);
+        w.a(L_.velocity + j) = 1.0 / W_(L_.velocity + j);
+        out.push_back(std::move(w));
+      }
+    return out;
+  }
+
+  double g(const Region& R, const Witness& w, const Vec& z, double tau) const {
+    return w.a.dot(expv(R.M, z, tau)) + w.b;
+  }
+  double dg(const Region& R, const Witness& w, const Vec& z, double tau) const {
+    return w.a.dot(R.M * expv(R.M, z, tau));
+  }
+
+  // A zero of f in [lo, hi] where f(lo) and f(hi) differ in sign:
+  // Newton's method with the exact derivative, kept inside the bracket
+  // (bisection when a Newton step leaves it).
+  template <class F, class D>
+  double root(F&& f, D&& df, double lo, double hi, double flo) const {
+    const double tol = 1e-13 * std::max(1.0, std::abs(run_.time));
+    double t = 0.5 * (lo + hi);
+    for (int it = 0; it < 100 && hi - lo > tol; ++it) {
+      const double ft = f(t);
+      if (ft == 0) return t;
+      if ((ft < 0) == (flo < 0)) lo = t; else hi = t;
+      const double d = df(t);
+      double next = d != 0 ? t - ft / d : 0.5 * (lo + hi);
+      if (!(next > lo && next < hi)) next = 0.5 * (lo + hi);
+      if (std::abs(next - t) < 0.25 * tol) return next;
+      t = next;
+    }
+    return 0.5 * (lo + hi);
+  }
+
+  // The first time in (0, h] where the spring witness reaches zero from
+  // below (infinite when it does not): a sign change over the step, or an
+  // interior maximum of g at or above zero.
+  double first_zero(const Region& R, const Witness& w, const Vec& z, const Vec& zb, double h) const {
+    const double ga = w.a.dot(z) + w.b, gb = w.a.dot(zb) + w.b;
+    auto f = [&](double t) { return g(R, w, z, t); };
+    auto df = [&](double t) { return dg(R, w, z, t); };
+    const double da = w.a.dot(R.M * z), db = w.a.dot(R.M * zb);
+    if (!(ga < 0)) {
+      // On the breakpoint to round-off: the region was just entered through
+      // it (g falling). It comes back to it inside the step only past a
+      // minimum of g (a trajectory that turns back at once: grazing).
+      if (!(da < 0 && db > 0 && gb >= 0)) return std::numeric_limits<double>::infinity();
+      auto d2 = [&](double t) { return w.a.dot(R.M * (R.M * expv(R.M, z, t))); };
+      const double tm = root(df, d2, 0.0, h, da);
+      const double gm = f(tm);
+      if (!(gm < 0)) return std::numeric_limits<double>::infinity();
+      return root(f, df, tm, h, gm);
+    }
+    if (gb >= 0) return root(f, df, 0.0, h, ga);
+    if (!(da > 0 && db < 0)) return std::numeric_limits<double>::infinity();
+    // The maximum inside: a zero of g'.
+    auto d2 = [&](double t) { return w.a.dot(R.M * (R.M * expv(R.M, z, t))); };
+    const double tm = root(df, d2, 0.0, h, da);
+    const double gm = f(tm);
+    if (gm < 0) return std::numeric_limits<double>::infinity();
+    return root(f, df, 0.0, tm, ga);
+  }
+
+  // Velocity zeros in (0, span], reported in time order.
+  bool report_peaks(const Region& R, const std::vector<Witness>& ws, const Vec& z, double span) {
+    std::vector<std::pair<double, int>> found;
+    for (const Witness& w : ws) {
+      if (w.spring) continue;
+      auto f = [&](double t) { return g(R, w, z, t); };
+      auto df = [&](double t) { return dg(R, w, z, t); };
+      const Vec zb = expv(R.M, z, span);
+      const double va = w.a.dot(z), vb = w.a.dot(zb);
+      const double da = w.a.dot(R.M * z), db = w.a.dot(R.M * zb);
+      // Split at an interior extremum of the velocity (at most one per
+      // step: ||h M|| <= 1/2), then look for a sign change in each part.
+      std::vector<std::pair<double, double>> parts{{0.0, span}};
+      if (da * db < 0) {
+        auto d2 = [&](double t) { return w.a.dot(R.M * (R.M * expv(R.M, z, t))); };
+        const double tm = root(df, d2, 0.0, span, da);
+        parts = {{0.0, tm}, {tm, span}};
+      }
+      for (const auto& [lo, hi] : parts) {
+        const double fl = lo == 0 ? va : f(lo), fh = hi == span ? vb : f(hi);
+        if ((fl * fh < 0) || (fh == 0 && fl != 0)) found.emplace_back(fh == 0 ? hi : root(f, df, lo, hi, fl), w.dof);
+      }
+    }
+    std::sort(found.begin(), found.end());
+    bool stop = false;
+    std::vector<double> x(static_cast<std::size_t>(n_));
+    for (const auto& [t, dof] : found) {
+      const Vec zt = expv(R.M, z, t);
+      for (int i = 0; i < n_; ++i) x[static_cast<std::size_t>(i)] = zt(i) / W_(i);
+      if (obs_.peak(dof, run_.time + t, x) == ObserverAction::kStop) stop = true;
+    }
+    return stop;
+  }
+
+  bool sample(const Vec& z, double t) {
+    ++run_.samples;
+    if (!obs_.sample) return false;
+    std::vector<double> x(static_cast<std::size_t>(n_));
+    for (int i = 0; i < n_; ++i) x[static_cast<std::size_t>(i)] = z(i) / W_(i);
+    return obs_.sample(t, x) == ObserverAction::kStop;
+  }
+
+  IntegrationResult finish(const Vec& z, const Mat& phi, StopReason reason) {
+    for (int i = 0; i < n_; ++i) run_.x[static_cast<std::size_t>(i)] = z(i) / W_(i);
+    if (run_.track_monodromy) {
+      const Mat p = W_.cwiseInverse().asDiagonal() * phi * W_.asDiagonal();
+      std::copy(p.data(), p.data() + p.size(), run_.monodromy.begin());
+    }
+    return {reason, run_.time};
+  }
+
+  const AeroelasticModel& model_;
+  const StateLayout& L_;
+  const int n_;
+  RunState& run_;
+  const double t_end_;
+  const OutputSchedule& schedule_;
+  const RunObservers& obs_;
+  const Vec W_;
+  std::map<std::vector<int>, Region> cache_;
+};
+
+}  // namespace
+
+IntegrationResult integrate_exact(const AeroelasticModel& model, RunState& run, double t_end,
+                                  const OutputSchedule& schedule, const RunObservers& observers) {
+  AEROSECT_CHECK(exact_propagation_eligible(model));
+  AEROSECT_CHECK(static_cast<int>(run.x.size()) == model.state_size());
+  AEROSECT_CHECK(!run.track_monodromy || run.monodromy.size() == run.x.size() * run.x.size());
+  if (run.regions.empty()) run.regions = model.regions_of(run.x.data());
+  return ExactRun(model, run, t_end, schedule, observers)();
+}
+
+}  // namespace aerosect

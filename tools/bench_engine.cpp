@@ -92,6 +92,26 @@ int orbits_bench(const char* path, int points) {
   j["branch_seconds"] = branch_s;
   j["branch_orbits"] = b.points.size();
   j["stop_reason"] = b.stop_reason;
+  // The same branch traced with short steps, to at most `points` orbits (the
+  // goal's 100-point branch, stable and unstable parts): its time, and the
+  // time-marched start alone (a branch of one orbit) to take out of it.
+  {
+    aerosect::BranchOptions d = o;
+    d.max_step = 0.004;
+    d.initial_step = 0.004;
+    const auto t1 = clock::now();
+    const aerosect::Branch bd = aerosect::continue_branch(c, d);
+    j["dense_branch_seconds"] = std::chrono::duration<double>(clock::now() - t1).count();
+    j["dense_branch_orbits"] = bd.points.size();
+    std::size_t unstable = 0;
+    for (const auto& p : bd.points) unstable += p.orbit.stable ? 0 : 1;
+    j["dense_branch_unstable_orbits"] = unstable;
+    aerosect::BranchOptions one = o;
+    one.max_points = 1;
+    const auto t2 = clock::now();
+    (void)aerosect::continue_branch(c, one);
+    j["start_seconds"] = std::chrono::duration<double>(clock::now() - t2).count();
+  }
   if (!b.points.empty()) {
     const aerosect::BranchPoint& p = b.points[b.points.size() / 2];
     const aerosect::ParameterFamily fam = aerosect::parameter_family(c, "");

@@ -102,18 +102,26 @@ class ExactRun {
       const double h = std::min(R->h, t_end_ - run_.time);
       const bool full = h == R->h;
       const Vec zb = full ? Vec(R->E * z) : expv(R->M, z, h);
+      const Vec Mz = R->M * z, Mzb = R->M * zb;  // the witnesses' derivatives at the ends
       // The first switch inside (0, h].
       double te = std::numeric_limits<double>::infinity();
       const Witness* event = nullptr;
       for (const Witness& w : ws)
         if (w.spring)
-          if (const double tz = first_zero(*R, w, z, zb, h); tz < te) {
+          if (const double tz = first_zero(*R, w, z, zb, Mz, Mzb, h); tz < te) {
             te = tz;
             event = &w;
           }
       const double span = event ? te : h;
       // Peaks and samples inside (0, span], in time order.
-      if (obs_.peak) stop |= report_peaks(*R, ws, z, span);
+      if (obs_.peak) {
+        if (event) {
+          const Vec zs = expv(R->M, z, span);
+          stop |= report_peaks(*R, ws, z, Mz, zs, R->M * zs, span);
+        } else {
+          stop |= report_peaks(*R, ws, z, Mz, zb, Mzb, span);
+        }
+      }
       if (schedule_.interval > 0 && !schedule_.every_step) {
         for (;;) {
           const double ts = t0 + static_cast<double>(next_sample) * schedule_.interval;
@@ -241,11 +249,13 @@ class ExactRun {
   // The first time in (0, h] where the spring witness reaches zero from
   // below (infinite when it does not): a sign change over the step, or an
   // interior maximum of g at or above zero.
-  double first_zero(const Region& R, const Witness& w, const Vec& z, const Vec& zb, double h) const {
+  double first_zero(const Region& R, const Witness& w, const Vec& z, const Vec& zb, const Vec& Mz, const Vec& Mzb,
+                    double h) const {
     const double ga = w.a.dot(z) + w.b, gb = w.a.dot(zb) + w.b;
+    const double da = w.a.dot(Mz), db = w.a.dot(Mzb);
+    if (ga < 0 && gb < 0 && !(da > 0 && db < 0)) return std::numeric_limits<double>::infinity();  // the usual step
     auto f = [&](double t) { return g(R, w, z, t); };
     auto df = [&](double t) { return dg(R, w, z, t); };
-    const double da = w.a.dot(R.M * z), db = w.a.dot(R.M * zb);
     if (!(ga < 0)) {
       // On the breakpoint to round-off: the region was just entered through
       // it (g falling). It comes back to it inside the step only past a
@@ -268,15 +278,16 @@ class ExactRun {
   }
 
   // Velocity zeros in (0, span], reported in time order.
-  bool report_peaks(const Region& R, const std::vector<Witness>& ws, const Vec& z, double span) {
+  bool report_peaks(const Region& R, const std::vector<Witness>& ws, const Vec& z, const Vec& Mz, const Vec& zb,
+                    const Vec& Mzb, double span) {
     std::vector<std::pair<double, int>> found;
     for (const Witness& w : ws) {
       if (w.spring) continue;
+      const double va = w.a.dot(z), vb = w.a.dot(zb);
+      const double da = w.a.dot(Mz), db = w.a.dot(Mzb);
+      if (va * vb > 0 && da * db >= 0) continue;  // the usual step: no zero, no extremum
       auto f = [&](double t) { return g(R, w, z, t); };
       auto df = [&](double t) { return dg(R, w, z, t); };
-      const Vec zb = expv(R.M, z, span);
-      const double va = w.a.dot(z), vb = w.a.dot(zb);
-      const double da = w.a.dot(R.M * z), db = w.a.dot(R.M * zb);
       // Split at an interior extremum of the velocity (at most one per
       // step: ||h M|| <= 1/2), then look for a sign change in each part.
       std::vector<std::pair<double, double>> parts{{0.0, span}};

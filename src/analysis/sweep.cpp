@@ -16,6 +16,7 @@
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/error.hpp"
+#include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/io/hdf5_document.hpp"
 #include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
@@ -57,7 +58,12 @@ std::optional<Orbit> refine_point(const AeroelasticModel& model, const LcoTracke
   os.integrator.relative_tolerance = kRefineRtol;
   os.integrator.absolute_tolerance = kRefineAtol;
   os.tolerance = kRefineTolerance;
-  os.chord = true;
+  // With exact propagation the monodromy costs little: full Newton, so the
+  // Floquet multipliers are the converged orbit's (the chord iteration's
+  // are its seed's); else chord iterations.
+  const bool exact = exact_propagation_eligible(model);
+  os.chord = !exact;
+  if (exact) os.tolerance = 1e-10;
   os.max_iterations = kRefineIterations;
   os.watched_dof = p.lco.watched_dof;
   os.cycle = o.cycle;

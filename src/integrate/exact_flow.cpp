@@ -13,14 +13,18 @@
 namespace aerosect {
 
 bool exact_propagation_eligible(const AeroelasticModel& model, std::string* why) {
+  return exact_propagation_eligible(model.description(), why);
+}
+
+bool exact_propagation_eligible(const ModelDescription& d, std::string* why) {
   const auto say = [why](std::string s) {
     if (why) *why = std::move(s);
     return false;
   };
-  const ModelDescription& d = model.description();
   if (!d.gusts.empty()) return say("the case has a gust input (the system is not autonomous)");
-  for (int j : model.nonlinear_springs()) {
+  for (int j = 0; j < d.section.dof; ++j) {
     const SpringLaw& law = d.springs[static_cast<std::size_t>(j)];
+    if (law.is_linear()) continue;
     if (!law.is_piecewise_linear())
       return say(fmt::format("the {} spring law ({}) is not piecewise linear", dof_name(j), law.kind()));
     for (int i = 0; i < static_cast<int>(law.breakpoints().size()); ++i)

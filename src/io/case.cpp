@@ -1,4 +1,7 @@
 #include "aerosect/io/case.hpp"
+
+#include "aerosect/integrate/exact_flow.hpp"
+#include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/io/text_file.hpp"
 
 #include "case_gusts.hpp"
@@ -549,8 +552,13 @@ void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
   }
 
   IntegratorSettings& in = s.integrator;
-  const std::string st = sim.choice("stepper", {"dopri5", "bulirsch-stoer"}, "dopri5");
-  in.stepper = st == "dopri5" ? StepperKind::kDopri5 : StepperKind::kBulirschStoer;
+  // auto: exact propagation where the case allows it, else Dormand-Prince
+  // (integrator.hpp, StepperKind::kExact); "exact" insists (checked once the
+  // gusts are read, in parse_case).
+  const std::string st = sim.choice("stepper", {"auto", "exact", "dopri5", "bulirsch-stoer"}, "auto");
+  in.stepper = st == "dopri5"           ? StepperKind::kDopri5
+               : st == "bulirsch-stoer" ? StepperKind::kBulirschStoer
+                                        : StepperKind::kExact;
   if (auto v = sim.number("relative_tolerance")) {
     sim.require(*v >= 1e-15 && *v <= 0.1, "relative_tolerance", "is outside the useful range",
                 "1e-15 <= relative_tolerance <= 0.1");
@@ -937,6 +945,13 @@ Case parse_case(const std::string& text, const std::string& path,
   }
   read_initial_and_simulation(top.sub("initial"), top.sub("simulation"), c);
   read_gusts(root, ctx, top.sub("aerodynamics"), c);
+  if (const Table sim = top.sub("simulation"); sim.string("stepper") == std::optional<std::string>("exact")) {
+    std::string why;
+    if (!exact_propagation_eligible(c.model, &why))
+      sim.fail("stepper", "cannot be exact for this case: " + why,
+               "\"exact\" for a case without gusts whose nonlinear springs are continuous and piecewise linear "
+               "(freeplay, bilinear, table); \"auto\", \"dopri5\" or \"bulirsch-stoer\" otherwise");
+  }
   return c;
 }
 

@@ -8,6 +8,7 @@
 
 #include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/integrate/integrator.hpp"
+#include "aerosect/error.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/units.hpp"
 #include "helpers.hpp"
@@ -168,4 +169,21 @@ TEST_CASE("Exact propagation agrees with Dormand-Prince at tight tolerance on th
   }
   CAPTURE(dt);
   CHECK(dt < 1e-9);
+}
+
+TEST_CASE("stepper = \"exact\" on a case that cannot be propagated exactly is refused, naming why", "[exact][case]") {
+  // The demo has a one-minus-cosine gust: not autonomous. "auto" falls back
+  // to Dormand-Prince; "exact" is an input error naming the key and the gust.
+  const std::string demo = std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml";
+  CHECK(load_case(demo).simulation.integrator.stepper == StepperKind::kExact);  // auto
+  try {
+    (void)load_case(demo, {"simulation.stepper=exact"});
+    FAIL("no error");
+  } catch (const InputError& e) {
+    const std::string m = e.what();
+    CAPTURE(m);
+    CHECK(m.find("stepper") != std::string::npos);
+    CHECK(m.find("gust") != std::string::npos);
+  }
+  CHECK_NOTHROW(load_case(demo, {"simulation.stepper=dopri5"}));
 }

@@ -45,6 +45,7 @@ namespace aerosect {
 
 // True when the model can be propagated exactly (see above); else false and
 // `why` (when given) says what prevents it.
+bool exact_propagation_eligible(const ModelDescription& model, std::string* why = nullptr);
 bool exact_propagation_eligible(const AeroelasticModel& model, std::string* why = nullptr);
 
 // integrate() for an eligible model (same contract: run.time/run.x hold the

@@ -1,7 +1,5 @@
 #include "aerosect/io/case.hpp"
 
-#include "aerosect/integrate/exact_flow.hpp"
-#include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/io/text_file.hpp"
 
 #include "case_gusts.hpp"
@@ -23,6 +21,7 @@
 #include <toml++/toml.h>
 
 #include "aerosect/error.hpp"
+#include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/model/atmosphere.hpp"
 #include "aerosect/io/toml_reader.hpp"
 #include "aerosect/model/gust.hpp"

@@ -13,6 +13,11 @@
 namespace aerosect {
 
 bool exact_propagation_eligible(const AeroelasticModel& model, std::string* why) {
+  if (model.state_size() + 1 > 32) {  // kMaxAugmented below
+    if (why) *why = fmt::format("the state ({} components) is longer than the exact propagator's capacity",
+                                model.state_size());
+    return false;
+  }
   return exact_propagation_eligible(model.description(), why);
 }
 
@@ -36,14 +41,19 @@ bool exact_propagation_eligible(const ModelDescription& d, std::string* why) {
 
 namespace {
 
-using Vec = Eigen::VectorXd;
-using Mat = Eigen::MatrixXd;
+// At most kMaxAugmented rows (the largest state, 3 DOFs with 8 Wagner and 8
+// Kussner lag states, is 23 long): fixed-capacity storage, no heap traffic.
+constexpr int kMaxAugmented = 32;
+using Vec = Eigen::Matrix<double, Eigen::Dynamic, 1, 0, kMaxAugmented, 1>;
+using Mat = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, 0, kMaxAugmented, kMaxAugmented>;
 
 // One spring configuration: the scaled augmented matrix and its step.
 struct Region {
   Mat M;      // (n+1) square: [[W A W^-1, W c], [0, 0]]
   double h;   // step, s: ||h M||_inf <= 1/2 (infinite when M = 0)
   Mat E;      // exp(h M) (when h is finite)
+  double sample_dt = 0;  // exp(sample_dt M), once asked for (samples closer than h)
+  Mat Es;
 };
 
 // exp(tau M) v by its Taylor series (||tau M|| <= 1/2: terms fall by 2 or
@@ -87,10 +97,12 @@ class ExactRun {
 
   IntegrationResult operator()() {
     const double t0 = run_.time;
-    Vec z(n_ + 1);
+    const bool fixed_rate = schedule_.interval > 0 && !schedule_.every_step;
+    const double dt_s = schedule_.interval;
+    Vec z(n_ + 1), zb(n_ + 1), Mz(n_ + 1), Mzb(n_ + 1);
     for (int i = 0; i < n_; ++i) z(i) = W_(i) * run_.x[static_cast<std::size_t>(i)];
     z(n_) = 1.0;
-    Mat phi;  // scaled monodromy W Phi W^-1
+    Mat phi, phi_next;  // scaled monodromy W Phi W^-1
     if (run_.track_monodromy) {
       const Eigen::Map<const Mat> p(run_.monodromy.data(), n_, n_);
       phi = W_.asDiagonal() * p * W_.cwiseInverse().asDiagonal();
@@ -98,15 +110,25 @@ class ExactRun {
     bool stop = false;
     if (schedule_.any() && schedule_.include_start) stop |= sample(z, run_.time);
     std::int64_t next_sample = 1;
-    const Region* R = &region(z);
+    Region* R = &region(z);
     std::vector<Witness> ws = witnesses(*R);
     int quick_switches = 0;
     while (run_.time < t_end_ && !stop) {
       if (obs_.cancel && obs_.cancel->load()) return finish(z, phi, StopReason::kCancelled);
-      const double h = std::min(R->h, t_end_ - run_.time);
-      const bool full = h == R->h;
-      const Vec zb = full ? Vec(R->E * z) : expv(R->M, z, h);
-      const Vec Mz = R->M * z, Mzb = R->M * zb;  // the witnesses' derivatives at the ends
+      // The step: the region's, ending on the next sample time when that
+      // comes first (then, between samples, the precomputed propagator of
+      // one sample interval).
+      double h = std::min(R->h, t_end_ - run_.time);
+      const Mat* E = h == R->h ? &R->E : nullptr;
+      const double ts = fixed_rate ? t0 + static_cast<double>(next_sample) * dt_s : 0.0;
+      const bool lands = fixed_rate && ts <= t_end_ * (1 + 1e-15) && ts - run_.time <= h * (1 + 1e-12);
+      if (lands) {
+        h = std::max(0.0, ts - run_.time);
+        E = std::abs(h - dt_s) <= 1e-9 * dt_s ? &sample_propagator(*R, dt_s) : nullptr;
+      }
+      if (E) zb.noalias() = *E * z; else zb = expv(R->M, z, h);
+      Mz.noalias() = R->M * z;  // the witnesses' derivatives at the ends
+      Mzb.noalias() = R->M * zb;
       // The first switch inside (0, h].
       double te = std::numeric_limits<double>::infinity();
       const Witness* event = nullptr;
@@ -116,29 +138,22 @@ class ExactRun {
             te = tz;
             event = &w;
           }
-      const double span = event ? te : h;
-      // Peaks and samples inside (0, span], in time order.
+      // Peaks inside (0, the switch or the step's end], in time order.
       if (obs_.peak) {
         if (event) {
-          const Vec zs = expv(R->M, z, span);
-          stop |= report_peaks(*R, ws, z, Mz, zs, R->M * zs, span);
+          const Vec zs = expv(R->M, z, te);
+          stop |= report_peaks(*R, ws, z, Mz, zs, R->M * zs, te);
         } else {
-          stop |= report_peaks(*R, ws, z, Mz, zb, Mzb, span);
-        }
-      }
-      if (schedule_.interval > 0 && !schedule_.every_step) {
-        for (;;) {
-          const double ts = t0 + static_cast<double>(next_sample) * schedule_.interval;
-          if (ts > run_.time + span * (1 + 1e-14) || ts > t_end_ * (1 + 1e-15)) break;
-          stop |= sample(expv(R->M, z, std::max(0.0, ts - run_.time)), ts);
-          ++next_sample;
+          stop |= report_peaks(*R, ws, z, Mz, zb, Mzb, h);
         }
       }
       // Advance.
       if (event) {
-        const Vec ze = expv(R->M, z, te);
-        if (run_.track_monodromy) phi = expm(R->M, te).topLeftCorner(n_, n_) * phi;
-        z = ze;
+        if (run_.track_monodromy) {
+          phi_next.noalias() = expm(R->M, te).topLeftCorner(n_, n_) * phi;
+          phi.swap(phi_next);
+        }
+        z = expv(R->M, z, te);
         run_.time += te;
         run_.regions[static_cast<std::size_t>(event->dof)] = event->next;
         ++run_.switches;
@@ -150,10 +165,17 @@ class ExactRun {
         R = &region(z);
         ws = witnesses(*R);
       } else {
-        if (run_.track_monodromy)
-          phi = (full ? R->E : expm(R->M, h)).topLeftCorner(n_, n_) * phi;
-        z = zb;
-        run_.time = full ? run_.time + h : t_end_;
+        if (run_.track_monodromy) {
+          if (E) phi_next.noalias() = E->topLeftCorner(n_, n_) * phi;
+          else phi_next.noalias() = expm(R->M, h).topLeftCorner(n_, n_) * phi;
+          phi.swap(phi_next);
+        }
+        z.swap(zb);
+        run_.time = lands ? ts : h == R->h ? run_.time + h : t_end_;
+        if (lands) {
+          stop |= sample(z, ts);
+          ++next_sample;
+        }
       }
       ++run_.steps;
       if (!z.allFinite())
@@ -166,7 +188,16 @@ class ExactRun {
  private:
   // Region of the current spring regions, built from the model's Jacobian
   // and right-hand side at the present state (constant in the region).
-  const Region& region(const Vec& z) {
+  // exp(dt M) of the region (dt: the sample interval, at most its step).
+  const Mat& sample_propagator(Region& r, double dt) {
+    if (r.sample_dt != dt) {
+      r.Es = expm(r.M, dt);
+      r.sample_dt = dt;
+    }
+    return r.Es;
+  }
+
+  Region& region(const Vec& z) {
     auto it = cache_.find(run_.regions);
     if (it != cache_.end()) return it->second;
     std::vector<double> x(static_cast<std::size_t>(n_)), f(static_cast<std::size_t>(n_));
@@ -319,9 +350,9 @@ class ExactRun {
   bool sample(const Vec& z, double t) {
     ++run_.samples;
     if (!obs_.sample) return false;
-    std::vector<double> x(static_cast<std::size_t>(n_));
-    for (int i = 0; i < n_; ++i) x[static_cast<std::size_t>(i)] = z(i) / W_(i);
-    return obs_.sample(t, x) == ObserverAction::kStop;
+    x_.resize(static_cast<std::size_t>(n_));
+    for (int i = 0; i < n_; ++i) x_[static_cast<std::size_t>(i)] = z(i) / W_(i);
+    return obs_.sample(t, x_) == ObserverAction::kStop;
   }
 
   IntegrationResult finish(const Vec& z, const Mat& phi, StopReason reason) {
@@ -342,6 +373,7 @@ class ExactRun {
   const RunObservers& obs_;
   const Vec W_;
   std::map<std::vector<int>, Region> cache_;
+  std::vector<double> x_;  // a sample's state, unscaled
 };
 
 }  // namespace

@@ -88,11 +88,13 @@ class Scanner {
     // is kept once. Only the margin ranking's rejected candidates count as
     // divergence of the equivalent system (a rank shift of the frequency
     // ranking is no physical event).
+    std::vector<Eigen::VectorXcd> ev(speeds_.size());
+    for (std::size_t q = 0; q < speeds_.size(); ++q) ev[q] = eigenvalues(L.N, speeds_[q]);
     for (const bool by_frequency : {false, true}) {
       std::vector<std::vector<Ranked>> ranks(speeds_.size());
       std::size_t pairs = 0;
       for (std::size_t q = 0; q < speeds_.size(); ++q) {
-        ranks[q] = ranked(eigenvalues(L.N, speeds_[q]), by_frequency, false);
+        ranks[q] = ranked(ev[q], by_frequency, false);
         pairs = std::max(pairs, ranks[q].size());
       }
       for (std::size_t q = 1; q < speeds_.size(); ++q) {
@@ -238,7 +240,11 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
                                    "prediction here is for a single nonlinearity)";
     return p;
   }
-  AEROSECT_CHECK(speeds.size() >= 2 && count >= 2);
+  AEROSECT_CHECK(count >= 2);
+  if (speeds.size() < 2) {
+    p.reason = "fewer than two speeds to search for neutral points";
+    return p;
+  }
   const int j = nonlinear.front();
   const SpringLaw& law = c.model.springs[j];
   p.spring = j;

@@ -99,7 +99,8 @@ struct LcoPrediction {
   std::vector<EquivalentDivergence> equivalent_divergence;
 };
 
-// `speeds` is the flutter sweep grid (m/s, ascending; at least 2); `count`
+// `speeds` is the flutter sweep grid (m/s, ascending; with fewer than two
+// the prediction is not available); `count`
 // the base number of amplitudes (see above). A set `cancel` stops it
 // between amplitudes (throws Cancelled).
 LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& speeds,

@@ -45,6 +45,16 @@ Case cubic_case(double reduced_speed, double duration = 20000) {
 }
 
 constexpr double kFlutterJones = 6.2851;  // U*_L, Lee, Price & Wong 1999
+
+// State-space flutter of every linearisation (no p-k, no LCO curve);
+// results 1 and 2 are gap closed and gap open for a gap law.
+FlutterReport state_space_only(const Case& c, const std::vector<double>& speeds) {
+  FlutterOptions o;
+  o.speeds = speeds;
+  o.pk = false;
+  o.lco_prediction = false;
+  return flutter_analysis(c, o);
+}
 }  // namespace
 
 TEST_CASE("Cubic hardening pitch spring: supercritical LCO above U*_L only", "[df]") {
@@ -100,10 +110,7 @@ TEST_CASE("Freeplay prediction joins the gap-open and gap-closed flutter speeds"
   const Case c = test::case_from(test::benchmark_2dof(
       "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n[simulation]\nduration = 1\n"));
   const std::vector<double> speeds = test::grid(0.02, 10.0, 250);
-  FlutterOptions o;
-  o.speeds = speeds;
-  o.pk = false;
-  const FlutterReport r = flutter_analysis(c, o);
+  const FlutterReport r = state_space_only(c, speeds);
   const Crossing& closed = r.results.at(1).methods.at(0).flutter;
   const Crossing& open = r.results.at(2).methods.at(0).flutter;
   REQUIRE(closed.found);
@@ -128,10 +135,7 @@ TEST_CASE("Freeplay LCO below the gap-open flutter speed, predicted and simulate
   const std::string fp = "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n";
   const Case c = test::case_from(test::benchmark_2dof(fp + "[simulation]\nduration = 1\n"));
   const std::vector<double> speeds = test::grid(0.02, 10.0, 250);
-  FlutterOptions o;
-  o.speeds = speeds;
-  o.pk = false;
-  const double U_open = flutter_analysis(c, o).results.at(2).methods.at(0).flutter.speed;
+  const double U_open = state_space_only(c, speeds).results.at(2).methods.at(0).flutter.speed;
   const LcoPrediction p = describing_function_lco(c, speeds, 80);
   double lowest = 1e300;
   for (const auto& pt : p.points)
@@ -203,11 +207,7 @@ TEST_CASE("A pair turning real is divergence of the equivalent system, not an LC
       {"nondimensional.elastic_axis=-0.3"});
   const double ref = c.model.section.semichord * uncoupled_frequencies(c.model.section).pitch;
   const std::vector<double> speeds = test::grid(0.5 * ref, 12.0 * ref, 116);
-  FlutterOptions o;
-  o.speeds = speeds;
-  o.pk = false;
-  o.lco_prediction = false;
-  const FlutterReport r = flutter_analysis(c, o);
+  const FlutterReport r = state_space_only(c, speeds);
   const Crossing& closed = r.results.at(1).methods.at(0).flutter;
   const Crossing& open = r.results.at(2).methods.at(0).flutter;
   REQUIRE(closed.found);

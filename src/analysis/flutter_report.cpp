@@ -140,13 +140,34 @@ std::string lco_prediction_text(const LcoPrediction& p) {
                      b.count, first.amplitude * unit, au, first.speed,
                      b.closed ? "closed curve" : to_string(b.start), last.amplitude * unit, au, last.speed,
                      b.closed ? "closed curve" : to_string(b.end));
-    const auto ranges = stable_speed_ranges(p, b);
-    if (ranges.empty()) t += "    unstable throughout\n";
-    for (const auto& [a, z] : ranges) {
-      t += fmt::format("    stable from {:.5g} to {:.5g} m/s\n", a, z);
-      lo = std::min(lo, a);
-      hi = std::max(hi, z);
+    // Each stable run: its lowest and highest speed, the amplitude there
+    // and why the range ends there.
+    auto why = [&](std::size_t i, std::size_t r0, std::size_t r1) -> std::string {
+      const std::size_t last_index = b.first + b.count - 1;
+      if (i == b.first && !b.closed) return to_string(b.start);
+      if (i == last_index && !b.closed) return to_string(b.end);
+      if (i == r0 || i == r1) return "turns unstable";
+      return "the curve turns back in speed";
+    };
+    bool any = false;
+    for (std::size_t r0 = b.first; r0 < b.first + b.count; ++r0) {
+      if (!p.points[r0].stable) continue;
+      std::size_t r1 = r0;
+      while (r1 + 1 < b.first + b.count && p.points[r1 + 1].stable) ++r1;
+      std::size_t a = r0, z = r0;
+      for (std::size_t i = r0; i <= r1; ++i) {
+        if (p.points[i].speed < p.points[a].speed) a = i;
+        if (p.points[i].speed > p.points[z].speed) z = i;
+      }
+      t += fmt::format("    stable from {:.5g} m/s ({:.5g} {}; {}) to {:.5g} m/s ({:.5g} {}; {})\n",
+                       p.points[a].speed, p.points[a].amplitude * unit, au, why(a, r0, r1), p.points[z].speed,
+                       p.points[z].amplitude * unit, au, why(z, r0, r1));
+      lo = std::min(lo, p.points[a].speed);
+      hi = std::max(hi, p.points[z].speed);
+      any = true;
+      r0 = r1;
     }
+    if (!any) t += "    unstable throughout\n";
   }
   if (!p.equivalent_divergence.empty()) {
     double a0 = std::numeric_limits<double>::infinity(), a1 = 0;
@@ -159,7 +180,12 @@ std::string lco_prediction_text(const LcoPrediction& p) {
                      "of the equivalent system)\n",
                      p.equivalent_divergence.size(), a0 * unit, a1 * unit, au);
   }
-  if (std::isfinite(lo)) t += fmt::format("  stable LCO predicted from {:.5g} to {:.5g} m/s\n", lo, hi);
+  if (std::isfinite(lo))
+    t += fmt::format("  stable LCO predicted between {:.5g} and {:.5g} m/s (on the branches above, not "
+                     "throughout)\n",
+                     lo, hi);
+  else
+    t += "  no stable LCO predicted\n";
   t += fmt::format("  amplitudes searched up to {:.5g} {} (the physical amplitude limit)\n",
                    p.amplitude_limit * unit, au);
   return t;

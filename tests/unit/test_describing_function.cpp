@@ -347,4 +347,16 @@ TEST_CASE("The LCO table shows every branch and every stable/unstable segment", 
     rows += shown;
   }
   CHECK(rows < p.points.size());  // long branches are thinned
+  // One summary line per stable run, saying where it ends and why; each
+  // branch line gives both end reasons.
+  std::size_t runs = 0, lines = 0;
+  for (const LcoBranch& br : p.branches) {
+    runs += stable_speed_ranges(p, br).size();
+    CHECK(text.find(fmt::format("({}) .. ", to_string(br.start))) != std::string::npos);
+    CHECK(text.find(fmt::format("({})\n", to_string(br.end))) != std::string::npos);
+  }
+  for (std::size_t at = text.find("    stable from "); at != std::string::npos; at = text.find("    stable from ", at + 1))
+    ++lines;
+  CHECK(runs > 0);
+  CHECK(lines == runs);
 }

@@ -686,6 +686,27 @@ def flutter_lines(f, ax):
     return entries
 
 
+def prediction_segments(value, amplitude, stable, branch):
+    """The describing-function curves as lines: [(x, y, stable)], one per
+    run of equal stability along each branch. A branch is one connected
+    curve whose points the file lists in order along it, so each run is
+    drawn as listed (never re-sorted: a branch may turn back in amplitude)
+    and shares its last point with the next run, so the curve stays
+    continuous through a change of stability."""
+    value, amplitude = np.asarray(value, dtype=float), np.asarray(amplitude, dtype=float)
+    stable, branch = np.asarray(stable, dtype=float) > 0.5, np.asarray(branch, dtype=float)
+    segments = []
+    for b in np.unique(branch):
+        sel = np.nonzero(branch == b)[0]
+        start = 0
+        for i in range(1, len(sel) + 1):
+            if i == len(sel) or stable[sel[i]] != stable[sel[start]]:
+                run = sel[start:min(i + 1, len(sel))]
+                segments.append((value[run], amplitude[run], bool(stable[sel[start]])))
+                start = i
+    return segments
+
+
 def plot_sweep(f, stem, outdir):
     """Bifurcation diagram: LCO amplitude of the watched DOF against the
     first swept value, sweep up (filled markers, solid line) and down (open
@@ -734,23 +755,8 @@ def plot_sweep(f, stem, outdir):
                     else "decayed (no LCO: drawn at zero)" if code == DECAYED else label)
             entries.append((Line2D([], [], marker=shape, color=colour, ls="none", ms=7), text))
         if prediction is not None:
-            v, a, stable, branch = prediction
-            span = max(float(np.nanmax(values) - np.nanmin(values)), 1e-300)
-            for b in np.unique(branch):
-                # One line per branch (neutral speed counted from below), points
-                # in amplitude order; broken where the speed jumps by more than
-                # 5 % of the axis (the branch changed identity between two
-                # amplitudes, e.g. an instability band closed).
-                sel = branch == b
-                vb, ab, sb = v[sel], a[sel], stable[sel]
-                order = np.argsort(ab, kind="stable")
-                vb, ab, sb = vb[order], ab[order], sb[order]
-                jump = np.abs(np.diff(vb)) > 0.05 * span
-                for keep, style in ((sb > 0.5, "-"), (sb < 0.5, "--")):
-                    xs, ys = np.where(keep, vb, np.nan), np.where(keep, ab, np.nan)
-                    xs = np.insert(xs, np.nonzero(jump)[0] + 1, np.nan)
-                    ys = np.insert(ys, np.nonzero(jump)[0] + 1, np.nan)
-                    ax.plot(xs, ys, style, color="black", lw=1.4, zorder=3)
+            for xs, ys, is_stable in prediction_segments(*prediction):
+                ax.plot(xs, ys, "-" if is_stable else "--", color="black", lw=1.4, zorder=3)
             entries.append((Line2D([], [], color="black", lw=1.4), "describing function, stable"))
             entries.append((Line2D([], [], color="black", lw=1.4, ls="--"),
                             "describing function, unstable"))

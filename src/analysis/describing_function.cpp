@@ -2,43 +2,227 @@
 
 #include <algorithm>
 #include <cmath>
+#include <complex>
+#include <limits>
+#include <optional>
+#include <tuple>
 
 #include <Eigen/Eigenvalues>
 #include <boost/math/tools/roots.hpp>
-#include <complex>
-#include <limits>
 
 #include "aerosect/analysis/flutter.hpp"
-#include "aerosect/analysis/pk.hpp"
 #include "aerosect/analysis/root_tracking.hpp"
 #include "aerosect/error.hpp"
 
 namespace aerosect {
 
+const char* to_string(BranchEnd e) {
+  switch (e) {
+    case BranchEnd::kGapEdge: return "gap edge";
+    case BranchEnd::kLinearLimit: return "small-amplitude (linear) limit";
+    case BranchEnd::kBranchEnds: return "branch ends";
+    case BranchEnd::kSpeedRange: return "speed range ends";
+    case BranchEnd::kAmplitudeLimit: return "physical amplitude limit";
+  }
+  return "?";
+}
+
+std::vector<std::pair<double, double>> stable_speed_ranges(const LcoPrediction& p, const LcoBranch& b) {
+  std::vector<std::pair<double, double>> out;
+  bool open = false;
+  for (std::size_t i = b.first; i < b.first + b.count; ++i) {
+    const LcoPredictionPoint& q = p.points[i];
+    if (!q.stable) {
+      open = false;
+      continue;
+    }
+    if (!open) out.emplace_back(q.speed, q.speed);
+    open = true;
+    out.back().first = std::min(out.back().first, q.speed);
+    out.back().second = std::max(out.back().second, q.speed);
+  }
+  return out;
+}
+
 namespace {
 
-// The oscillatory root (|Im| > 0: flutter, not the real divergence or lag
-// roots) with the largest growth margin (root_tracking.hpp), and its
-// frequency, rad/s.
-Root oscillatory_root(const AeroelasticModel& model, const DofVector& k, double U) {
-  Eigen::EigenSolver<Eigen::MatrixXd> es(model.state_matrix_at(U, k), false);
-  Root best;
-  best.eigenvalue = {-std::numeric_limits<double>::infinity(), 0.0};
-  best.spectral_radius = es.eigenvalues().cwiseAbs().maxCoeff();
-  for (Eigen::Index i = 0; i < es.eigenvalues().size(); ++i) {
-    const std::complex<double> l = es.eigenvalues()(i);
-    if (std::abs(l.imag()) > 1e-8 * std::max(1.0, std::abs(l)) &&
-        growth_margin(l, best.spectral_radius) > growth_margin(best)) {
-      best.eigenvalue = l;
-      best.frequency = std::abs(l.imag());
+using cd = std::complex<double>;
+
+// One neutral point of the equivalent system at one amplitude.
+struct Neutral {
+  double speed = 0;      // m/s
+  cd eigenvalue;         // the neutral pair's eigenvalue (Im > 0), 1/s
+  int direction = 0;     // +1: the pair turns growing as U rises; -1: decaying
+  bool stable = false;   // amplitude-perturbation criterion (header)
+};
+
+// The neutral points at one amplitude A = amplitude(t).
+struct Level {
+  double t = 0, A = 0, N = 0;
+  bool valid = false;            // N(A) > 0
+  std::vector<Neutral> neutral;  // ascending speed
+};
+
+class Scanner {
+ public:
+  Scanner(const AeroelasticModel& model, const SpringLaw& law, int j, DofVector k,
+          const std::vector<double>& speeds, double min_frequency,
+          std::vector<EquivalentDivergence>& divergence)
+      : model_(model), law_(law), j_(j), k_(std::move(k)), speeds_(speeds),
+        min_frequency_(min_frequency), divergence_(divergence) {}
+
+  Level scan(double t, double A) const {
+    Level L;
+    L.t = t;
+    L.A = A;
+    L.N = law_.describing_function(A);
+    L.valid = L.N > 0 && std::isfinite(L.N);
+    if (!L.valid) return L;
+    // Two rankings of the oscillatory pairs at each grid speed: by growth
+    // margin (the r-th largest: order statistics of continuous functions
+    // are continuous while no pair turns real) and by frequency (the r-th
+    // lowest pair's margin: continuous while frequencies stay apart, and it
+    // sees one pair turning growing and another decaying within one speed
+    // interval, which the margin ranking misses). A sign change of any
+    // ranked value brackets a candidate neutral point; a point found twice
+    // is kept once. Only the margin ranking's rejected candidates count as
+    // divergence of the equivalent system (a rank shift of the frequency
+    // ranking is no physical event).
+    std::vector<Eigen::VectorXcd> ev(speeds_.size());
+    for (std::size_t q = 0; q < speeds_.size(); ++q) ev[q] = eigenvalues(L.N, speeds_[q]);
+    for (const bool by_frequency : {false, true}) {
+      std::vector<std::vector<Ranked>> ranks(speeds_.size());
+      std::size_t pairs = 0;
+      for (std::size_t q = 0; q < speeds_.size(); ++q) {
+        ranks[q] = ranked(ev[q], by_frequency, false);
+        pairs = std::max(pairs, ranks[q].size());
+      }
+      for (std::size_t q = 1; q < speeds_.size(); ++q) {
+        for (std::size_t r = 0; r < pairs; ++r) {
+          const double g0 = at(ranks[q - 1], r).value, g1 = at(ranks[q], r).value;
+          if ((g0 < 0) == (g1 < 0)) continue;
+          auto n = refine(L.N, speeds_[q - 1], speeds_[q], r, by_frequency, g1 > g0 ? 1 : -1, A);
+          if (!n) continue;
+          const bool known = std::any_of(L.neutral.begin(), L.neutral.end(), [&](const Neutral& m) {
+            return std::abs(m.speed - n->speed) <= 1e-7 * n->speed &&
+                   std::abs(m.eigenvalue - n->eigenvalue) <= 1e-5 * std::abs(n->eigenvalue);
+          });
+          if (known) continue;
+          n->stable = stable(*n, A);
+          L.neutral.push_back(*n);
+        }
+      }
     }
+    std::sort(L.neutral.begin(), L.neutral.end(),
+              [](const Neutral& a, const Neutral& b) { return a.speed < b.speed; });
+    return L;
   }
-  return best;
+
+ private:
+  struct Ranked {
+    double value = 0;  // growth margin or Re lambda, 1/s
+    cd eigenvalue;
+  };
+
+  Eigen::VectorXcd eigenvalues(double N, double U) const {
+    DofVector k = k_;
+    k(j_) = N;
+    return Eigen::EigenSolver<Eigen::MatrixXd>(model_.state_matrix_at(U, k), false).eigenvalues();
+  }
+
+  // The oscillatory pairs (Im > 0, above the round-off level of a real
+  // root), ranked by growth margin (descending) or by frequency
+  // (ascending); the value is the growth margin, or Re lambda with
+  // `by_real`. A rank beyond the last reads as -spectral radius (at()).
+  std::vector<Ranked> ranked(const Eigen::VectorXcd& ev, bool by_frequency, bool by_real) const {
+    const double rho = ev.size() ? ev.cwiseAbs().maxCoeff() : 0.0;
+    std::vector<Ranked> v;
+    for (Eigen::Index i = 0; i < ev.size(); ++i) {
+      const cd l = ev(i);
+      if (l.imag() > 1e-8 * std::max(1.0, std::abs(l))) v.push_back({by_real ? l.real() : growth_margin(l, rho), l});
+    }
+    std::sort(v.begin(), v.end(), [&](const Ranked& a, const Ranked& b) {
+      if (by_frequency) return a.eigenvalue.imag() < b.eigenvalue.imag();
+      return growth_margin(a.eigenvalue, rho) > growth_margin(b.eigenvalue, rho);
+    });
+    v.push_back({-std::max(rho, 1.0), cd(0, 0)});  // sentinel: "no such pair"
+    return v;
+  }
+  static const Ranked& at(const std::vector<Ranked>& v, std::size_t r) { return r < v.size() ? v[r] : v.back(); }
+
+  // Refine a sign change of the r-th ranked pair in [Ua, Ub] to its zero
+  // (TOMS 748): on Re lambda itself when it changes sign there (the neutral
+  // point, where the flutter methods meet), else on the growth margin.
+  // Accepted only when the function is continuous there (|value| at both
+  // ends of the final bracket below 1e-6 |lambda|: a jump is a pair turning
+  // real, i.e. static divergence of the equivalent system) and the pair's
+  // frequency is clearly above zero.
+  std::optional<Neutral> refine(double N, double Ua, double Ub, std::size_t r, bool by_frequency,
+                                int direction, double A) const {
+    auto value = [&](double U, bool by_real) { return at(ranked(eigenvalues(N, U), by_frequency, by_real), r); };
+    const double ra = value(Ua, true).value, rb = value(Ub, true).value;
+    const bool by_real = (ra < 0) != (rb < 0);
+    const double fa = by_real ? ra : value(Ua, false).value, fb = by_real ? rb : value(Ub, false).value;
+    boost::uintmax_t iterations = 100;
+    const auto root = boost::math::tools::toms748_solve([&](double U) { return value(U, by_real).value; },
+                                                        Ua, Ub, fa, fb,
+                                                        boost::math::tools::eps_tolerance<double>(40),
+                                                        iterations);
+    const double U = 0.5 * (root.first + root.second);
+    const cd l = value(U, by_real).eigenvalue;
+    const double scale = std::max(std::abs(l), 1e-300);
+    const bool continuous = std::abs(value(root.first, by_real).value) <= 1e-6 * scale &&
+                            std::abs(value(root.second, by_real).value) <= 1e-6 * scale;
+    if (!continuous || !(l.imag() >= min_frequency_)) {
+      if (!by_frequency) divergence_.push_back({A, U});
+      return std::nullopt;
+    }
+    Neutral n;
+    n.speed = U;
+    n.eigenvalue = l;
+    n.direction = direction;
+    return n;
+  }
+
+  // Amplitude-perturbation stability (header).
+  bool stable(const Neutral& n, double A) const {
+    auto nearest = [&](const Eigen::VectorXcd& ev, cd to) {
+      Eigen::Index best = 0;
+      for (Eigen::Index i = 1; i < ev.size(); ++i)
+        if (std::abs(ev(i) - to) < std::abs(ev(best) - to)) best = i;
+      return best;
+    };
+    const Eigen::VectorXcd up = eigenvalues(law_.describing_function(A * (1 + 1e-3)), n.speed);
+    const Eigen::VectorXcd down = eigenvalues(law_.describing_function(A * (1 - 1e-3)), n.speed);
+    const double dsigma = up(nearest(up, n.eigenvalue)).real() - down(nearest(down, n.eigenvalue)).real();
+    if (!(dsigma < 0)) return false;
+    // No other root of the equivalent system may grow.
+    const Eigen::VectorXcd ev = eigenvalues(law_.describing_function(A), n.speed);
+    const Eigen::Index a = nearest(ev, n.eigenvalue), b = nearest(ev, std::conj(n.eigenvalue));
+    const double rho = ev.cwiseAbs().maxCoeff();
+    for (Eigen::Index i = 0; i < ev.size(); ++i)
+      if (i != a && i != b && growing(ev(i), rho)) return false;
+    return true;
+  }
+
+  const AeroelasticModel& model_;
+  const SpringLaw& law_;
+  int j_;
+  DofVector k_;
+  const std::vector<double>& speeds_;
+  double min_frequency_;
+  std::vector<EquivalentDivergence>& divergence_;
+};
+
+bool same_frequency(const Neutral& a, const Neutral& b, double tolerance) {
+  const double x = a.eigenvalue.imag(), y = b.eigenvalue.imag();
+  return std::abs(x - y) <= tolerance * std::max(x, y);
 }
 
-double largest_growth(const AeroelasticModel& model, const DofVector& k, double U) {
-  return growth_margin(oscillatory_root(model, k, U));
-}
+// A node of the branch graph: neutral point q of level i.
+struct Node {
+  std::size_t level = 0, index = 0;
+};
 
 }  // namespace
 
@@ -56,79 +240,265 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
                                    "prediction here is for a single nonlinearity)";
     return p;
   }
+  AEROSECT_CHECK(count >= 2);
+  if (speeds.size() < 2) {
+    p.reason = "fewer than two speeds to search for neutral points";
+    return p;
+  }
   const int j = nonlinear.front();
   const SpringLaw& law = c.model.springs[j];
   p.spring = j;
+  p.amplitude_limit = j == kPlunge ? 10 * s.semichord : 1.0;
 
   // Amplitude scale: the largest breakpoint distance, or where the
   // polynomial terms match the linear one.
   double scale = 0;
   for (double b : law.breakpoints()) scale = std::max(scale, std::abs(b));
-  if (scale == 0) {
+  const bool gap = scale > 0;
+  if (!gap) {
     const double k = law.nominal_stiffness();
-    // |N(A) - k| = k at A = scale: found by doubling.
+    // |N(A) - k| = 1e-3 k near A = a: found by doubling.
     double a = 1e-6;
     while (a < 1e3 && std::abs(law.describing_function(a) - k) < 1e-3 * std::abs(k)) a *= 2;
-    scale = a * 30;  // N has changed by ~0.1 % at a; cover well past it
+    scale = a * 30;  // cover well past it
   }
-  // With a gap, N(A) changes fastest just past the breakpoint: space
-  // A = scale (1 + s) with s geometric from 1e-4 to 100; otherwise A itself.
-  const bool gap = !law.breakpoints().empty();
-  auto amplitude = [&](int i) {
-    const double f = static_cast<double>(i) / (count - 1);
-    return gap ? scale * (1 + 1e-4 * std::pow(1e6, f)) : scale * 1e-3 * std::pow(1e3, f);
+  // The amplitude as a function of the grid parameter t: with a gap,
+  // A = d (1 + 10^t), t from -4 (N changes fastest just past the
+  // breakpoint); otherwise A = scale 10^t, t from -3 (shifted down when
+  // the scale exceeds the physical limit). t_max: the physical limit.
+  const double A_max = p.amplitude_limit;
+  double t_lo, t_hi, t_max;
+  if (gap) {
+    if (scale * (1 + 1e-4) >= A_max) {
+      p.reason = "the gap is wider than the physical amplitude limit";
+      return p;
+    }
+    t_lo = -4, t_hi = 2, t_max = std::log10(A_max / scale - 1);
+  } else {
+    t_hi = std::min(0.0, std::log10(A_max / scale));
+    t_lo = t_hi - 3, t_max = std::log10(A_max / scale);
+  }
+  auto amplitude = [&](double t) {
+    if (t >= t_max) return A_max;
+    return gap ? scale * (1 + std::pow(10.0, t)) : scale * std::pow(10.0, t);
   };
+  const double dt = (t_hi - t_lo) / (count - 1);
 
   const AeroelasticModel model = stability_model(c.model);
   DofVector k(n);
   for (int i = 0; i < n; ++i) k(i) = c.model.springs[i].nominal_stiffness();
-  // Every neutral speed of each equivalent linear system: the speeds where
-  // the largest oscillatory growth rate changes sign on the grid, refined by
-  // TOMS 748. Branch b is the b-th crossing from below at that amplitude.
-  std::vector<LcoPredictionPoint> all;
-  for (int i = 0; i < count; ++i) {
+  // "Clearly oscillatory": 1e-3 x the largest uncoupled frequency
+  // (frequency_floor is 1e-6 x that).
+  const Scanner scanner(model, law, j, k, speeds, 1e3 * frequency_floor(s), p.equivalent_divergence);
+  auto scan = [&](double t) {
     stop_if_cancelled(cancel);
-    const double A = amplitude(i);
-    const double N = law.describing_function(A);
-    if (!(N >= 0)) continue;
-    k(j) = N;
-    auto g = [&](double U) { return largest_growth(model, k, U); };
-    int branch = 0;
-    double g0 = g(speeds.front());
-    for (std::size_t q = 1; q < speeds.size(); ++q) {
-      const double g1 = g(speeds[q]);
-      if ((g0 < 0) != (g1 < 0) && std::isfinite(g0) && std::isfinite(g1)) {
-        // The growth criterion picks the interval; the neutral point
-        // Re lambda = 0 inside it is the LCO speed (the margin's own zero
-        // when Re lambda does not change sign there: round-off level).
-        auto re = [&](double U) { return oscillatory_root(model, k, U).eigenvalue.real(); };
-        const double r0 = re(speeds[q - 1]), r1 = re(speeds[q]);
-        const bool neutral = (r0 < 0) != (r1 < 0);
-        boost::uintmax_t iterations = 100;
-        const auto root = boost::math::tools::toms748_solve(
-            [&](double U) { return neutral ? re(U) : g(U); }, speeds[q - 1], speeds[q],
-            neutral ? r0 : g0, neutral ? r1 : g1, boost::math::tools::eps_tolerance<double>(40),
-            iterations);
-        LcoPredictionPoint pt;
-        pt.amplitude = A;
-        pt.equivalent_stiffness = N;
-        pt.speed = 0.5 * (root.first + root.second);
-        pt.frequency = oscillatory_root(model, k, pt.speed).frequency;
-        pt.branch = branch++;
-        DofVector kp = k, km = k;
-        kp(j) = law.describing_function(A * (1 + 1e-3));
-        km(j) = law.describing_function(A * (1 - 1e-3));
-        pt.stable = largest_growth(model, kp, pt.speed) < 0 && largest_growth(model, km, pt.speed) > 0;
-        all.push_back(pt);
+    return scanner.scan(std::min(t, t_max), amplitude(t));
+  };
+
+  // Base grid, then extended with the same spacing while anything is still
+  // neutral at the largest amplitude, up to the physical limit.
+  std::vector<Level> levels;
+  for (int i = 0; i < count; ++i) {
+    const double t = t_lo + i * dt;
+    if (t >= t_max) break;
+    levels.push_back(scan(t));
+  }
+  while (levels.back().valid && !levels.back().neutral.empty() && levels.back().t < t_max) {
+    const double t = levels.back().t + dt;
+    levels.push_back(scan(t > t_max - 1e-9 * dt ? t_max : t));
+  }
+
+  // Refinement: halve an interval where the curves are not resolved (the
+  // number of neutral points changes, a neutral speed moves by more than 1 %
+  // of the speed range, a point's stability changes), down to dt / 1024.
+  const double span = speeds.back() - speeds.front();
+  auto resolved = [&](const Level& a, const Level& b) {
+    if (a.valid != b.valid || a.neutral.size() != b.neutral.size()) return false;
+    for (std::size_t q = 0; q < a.neutral.size(); ++q) {
+      const Neutral &x = a.neutral[q], &y = b.neutral[q];
+      if (std::abs(x.speed - y.speed) > 0.01 * span || x.stable != y.stable || x.direction != y.direction)
+        return false;
+    }
+    return true;
+  };
+  const std::size_t cap = 12 * static_cast<std::size_t>(count) + levels.size();
+  for (int pass = 0; pass < 10 && levels.size() < cap; ++pass) {
+    std::vector<Level> next;
+    bool inserted = false;
+    for (std::size_t i = 0; i < levels.size(); ++i) {
+      // (next.back() is level i - 1, already moved.)
+      if (i > 0 && !resolved(next.back(), levels[i]) && levels[i].t - next.back().t > dt / 1500 &&
+          levels.size() + next.size() - i < cap) {
+        next.push_back(scan(0.5 * (next.back().t + levels[i].t)));
+        inserted = true;
       }
-      g0 = g1;
+      next.push_back(std::move(levels[i]));
+    }
+    levels = std::move(next);
+    if (!inserted) break;
+  }
+
+  // Link neutral points of neighbouring amplitudes into curves: the same
+  // direction (a crossing cannot change direction except through a fold,
+  // where it meets its partner), a frequency within 20 % and the nearest
+  // speed, within 10 % of the speed range. Ends left open on the same side
+  // of one amplitude, next to each other in speed (within 5 % of the range),
+  // of opposite direction and the same frequency (within 5 %: the same
+  // pair) are a fold: joined.
+  const std::size_t L = levels.size();
+  std::vector<std::vector<int>> up(L), down(L), fold(L), fold_side(L);
+  for (std::size_t i = 0; i < L; ++i) {
+    up[i].assign(levels[i].neutral.size(), -1);
+    down[i].assign(levels[i].neutral.size(), -1);
+    fold[i].assign(levels[i].neutral.size(), -1);
+    fold_side[i].assign(levels[i].neutral.size(), 0);
+  }
+  for (std::size_t i = 0; i + 1 < L; ++i) {
+    const auto &a = levels[i].neutral, &b = levels[i + 1].neutral;
+    std::vector<std::tuple<double, std::size_t, std::size_t>> cand;
+    for (std::size_t x = 0; x < a.size(); ++x)
+      for (std::size_t y = 0; y < b.size(); ++y)
+        if (a[x].direction == b[y].direction && std::abs(a[x].speed - b[y].speed) <= 0.1 * span &&
+            same_frequency(a[x], b[y], 0.2))
+          cand.emplace_back(std::abs(a[x].speed - b[y].speed), x, y);
+    std::sort(cand.begin(), cand.end());
+    for (const auto& [d, x, y] : cand)
+      if (up[i][x] < 0 && down[i + 1][y] < 0) {
+        up[i][x] = static_cast<int>(y);
+        down[i + 1][y] = static_cast<int>(x);
+      }
+  }
+  for (std::size_t i = 0; i < L; ++i) {
+    const auto& a = levels[i].neutral;
+    for (const int side : {1, -1}) {  // a fold closing upward, then downward
+      // The grid's own ends are no folds: the smallest amplitude's lower
+      // side and the largest one's upper side are always open.
+      if ((side < 0 && i == 0) || (side > 0 && i + 1 == L)) continue;
+      const std::vector<int>& open = side > 0 ? up[i] : down[i];
+      for (std::size_t x = 0; x + 1 < a.size(); ++x) {
+        const std::size_t y = x + 1;
+        if (open[x] < 0 && open[y] < 0 && fold[i][x] < 0 && fold[i][y] < 0 &&
+            a[x].direction != a[y].direction && a[y].speed - a[x].speed <= 0.05 * span &&
+            same_frequency(a[x], a[y], 0.05)) {
+          fold[i][x] = static_cast<int>(y);
+          fold[i][y] = static_cast<int>(x);
+          fold_side[i][x] = fold_side[i][y] = side;
+        }
+      }
     }
   }
-  std::stable_sort(all.begin(), all.end(),
-                   [](const auto& a, const auto& b) { return a.branch < b.branch; });
-  p.points = std::move(all);
+
+  // Walk the curves. Each node has at most two links (up, down, fold; a
+  // fold uses the side left open). An end's reason comes from where it is.
+  auto end_reason = [&](const Node& nd, bool upward) {
+    const Level& lv = levels[nd.level];
+    const double U = lv.neutral[nd.index].speed;
+    if (!upward && nd.level == 0) return gap ? BranchEnd::kGapEdge : BranchEnd::kLinearLimit;
+    if (upward && nd.level + 1 == L && lv.t >= t_max) return BranchEnd::kAmplitudeLimit;
+    if (U <= speeds[1] || U >= speeds[speeds.size() - 2]) return BranchEnd::kSpeedRange;
+    return BranchEnd::kBranchEnds;
+  };
+  auto links = [&](const Node& nd) {
+    std::vector<Node> out;
+    if (up[nd.level][nd.index] >= 0) out.push_back({nd.level + 1, static_cast<std::size_t>(up[nd.level][nd.index])});
+    if (down[nd.level][nd.index] >= 0)
+      out.push_back({nd.level - 1, static_cast<std::size_t>(down[nd.level][nd.index])});
+    if (fold[nd.level][nd.index] >= 0) out.push_back({nd.level, static_cast<std::size_t>(fold[nd.level][nd.index])});
+    return out;
+  };
+  std::vector<std::vector<bool>> seen(L);
+  for (std::size_t i = 0; i < L; ++i) seen[i].assign(levels[i].neutral.size(), false);
+  struct Chain {
+    std::vector<Node> nodes;
+    BranchEnd start = BranchEnd::kBranchEnds, end = BranchEnd::kBranchEnds;
+    bool closed = false;
+  };
+  std::vector<Chain> chains;
+  auto walk = [&](Node from) {
+    Chain ch;
+    Node cur = from;
+    std::optional<Node> prev;
+    for (;;) {
+      seen[cur.level][cur.index] = true;
+      ch.nodes.push_back(cur);
+      std::optional<Node> step;
+      for (const Node& m : links(cur))
+        if (!(prev && m.level == prev->level && m.index == prev->index) && !seen[m.level][m.index]) step = m;
+      if (!step) break;
+      prev = cur;
+      cur = *step;
+    }
+    return ch;
+  };
+  // The open side of an end node (one link): away from its link; a fold
+  // made of two open upper ends leaves their lower sides open, and so on.
+  auto reason_of_end = [&](const Node& nd) {
+    if (up[nd.level][nd.index] >= 0) return end_reason(nd, false);
+    if (down[nd.level][nd.index] >= 0) return end_reason(nd, true);
+    return end_reason(nd, fold_side[nd.level][nd.index] < 0);
+  };
+  // Open chains from their ends; a lone point has both ends open.
+  for (std::size_t i = 0; i < L; ++i)
+    for (std::size_t q = 0; q < levels[i].neutral.size(); ++q) {
+      const Node nd{i, q};
+      if (seen[i][q] || links(nd).size() >= 2) continue;
+      Chain ch = walk(nd);
+      if (ch.nodes.size() == 1) {
+        ch.start = end_reason(nd, false);
+        ch.end = end_reason(nd, true);
+      } else {
+        ch.start = reason_of_end(ch.nodes.front());
+        ch.end = reason_of_end(ch.nodes.back());
+      }
+      chains.push_back(std::move(ch));
+    }
+  // Whatever is left lies on closed loops.
+  for (std::size_t i = 0; i < L; ++i)
+    for (std::size_t q = 0; q < levels[i].neutral.size(); ++q)
+      if (!seen[i][q]) {
+        Chain ch = walk({i, q});
+        ch.closed = true;
+        chains.push_back(std::move(ch));
+      }
+  // Orient each chain from its smaller-amplitude end; number the branches in
+  // ascending speed at that end.
+  auto point_of = [&](const Node& nd) { return levels[nd.level].neutral[nd.index]; };
+  for (Chain& ch : chains) {
+    const Node &f = ch.nodes.front(), &b = ch.nodes.back();
+    const double af = levels[f.level].A, ab = levels[b.level].A;
+    if (ab < af || (ab == af && point_of(b).speed < point_of(f).speed)) {
+      std::reverse(ch.nodes.begin(), ch.nodes.end());
+      std::swap(ch.start, ch.end);
+    }
+  }
+  std::stable_sort(chains.begin(), chains.end(), [&](const Chain& x, const Chain& y) {
+    return point_of(x.nodes.front()).speed < point_of(y.nodes.front()).speed;
+  });
+  for (const Chain& ch : chains) {
+    LcoBranch br;
+    br.first = p.points.size();
+    br.count = ch.nodes.size();
+    br.start = ch.start;
+    br.end = ch.end;
+    br.closed = ch.closed;
+    for (const Node& nd : ch.nodes) {
+      const Level& lv = levels[nd.level];
+      const Neutral& nu = lv.neutral[nd.index];
+      LcoPredictionPoint pt;
+      pt.amplitude = lv.A;
+      pt.equivalent_stiffness = lv.N;
+      pt.speed = nu.speed;
+      pt.frequency = nu.eigenvalue.imag();
+      pt.stable = nu.stable;
+      pt.branch = static_cast<int>(p.branches.size());
+      p.points.push_back(pt);
+    }
+    p.branches.push_back(br);
+  }
   p.available = !p.points.empty();
-  if (!p.available) p.reason = "no flutter crossing for any equivalent stiffness in the swept speeds";
+  if (!p.available)
+    p.reason = "no neutral oscillatory pair of the equivalent linear system for any amplitude in the swept "
+               "speeds";
   return p;
 }
 

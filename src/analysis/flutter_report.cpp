@@ -100,7 +100,96 @@ std::string speed_text(const Crossing& x, const FlutterReport& r) {
   return fmt::format("{:.6g} m/s (U/b w_a {:.5g})", x.speed, x.speed / r.reference_speed);
 }
 
+// The rows of one branch the text table prints: every point of a short
+// branch; of a long one both ends of every stable/unstable segment and an
+// evenly thinned interior (about 12 rows), so no segment vanishes.
+std::vector<std::size_t> printed_rows(const LcoPrediction& p, const LcoBranch& b) {
+  std::vector<std::size_t> rows;
+  const std::size_t every = b.count <= 24 ? 1 : (b.count + 11) / 12;
+  for (std::size_t q = 0; q < b.count; ++q) {
+    const std::size_t i = b.first + q;
+    const bool segment_end = q == 0 || q + 1 == b.count || p.points[i].stable != p.points[i - 1].stable ||
+                             p.points[i].stable != p.points[i + 1].stable;
+    if (segment_end || q % every == 0) rows.push_back(i);
+  }
+  return rows;
+}
+
 }  // namespace
+
+std::string lco_prediction_text(const LcoPrediction& p) {
+  const bool angle = p.spring != kPlunge;
+  const double unit = angle ? kDegPerRad : 1.0;
+  const char* au = angle ? "deg" : "m";
+  std::string t = fmt::format("\nDescribing-function LCO prediction ({} spring; near-harmonic, about zero):\n",
+                              dof_name(p.spring));
+  t += fmt::format("  {:>13} {:>12} {:>10} {:>6}  {}\n", angle ? "amplitude deg" : "amplitude m", "speed m/s",
+                   "freq Hz", "branch", "stable");
+  for (const LcoBranch& b : p.branches)
+    for (const std::size_t i : printed_rows(p, b)) {
+      const auto& pt = p.points[i];
+      t += fmt::format("  {:>13.5g} {:>12.5g} {:>10.4g} {:>6}  {}\n", pt.amplitude * unit, pt.speed,
+                       pt.frequency / (2 * pi), pt.branch, pt.stable ? "yes" : "no");
+    }
+  double lo = std::numeric_limits<double>::infinity(), hi = 0;
+  for (std::size_t k = 0; k < p.branches.size(); ++k) {
+    const LcoBranch& b = p.branches[k];
+    const auto& first = p.points[b.first];
+    const auto& last = p.points[b.first + b.count - 1];
+    t += fmt::format("  branch {}: {} points, {:.5g} {} at {:.5g} m/s ({}) .. {:.5g} {} at {:.5g} m/s ({})\n", k,
+                     b.count, first.amplitude * unit, au, first.speed,
+                     b.closed ? "closed curve" : to_string(b.start), last.amplitude * unit, au, last.speed,
+                     b.closed ? "closed curve" : to_string(b.end));
+    // Each stable run: its lowest and highest speed, the amplitude there
+    // and why the range ends there.
+    auto why = [&](std::size_t i, std::size_t r0, std::size_t r1) -> std::string {
+      const std::size_t last_index = b.first + b.count - 1;
+      if (i == b.first && !b.closed) return to_string(b.start);
+      if (i == last_index && !b.closed) return to_string(b.end);
+      if (i == r0 || i == r1) return "turns unstable";
+      return "the curve turns back in speed";
+    };
+    bool any = false;
+    for (std::size_t r0 = b.first; r0 < b.first + b.count; ++r0) {
+      if (!p.points[r0].stable) continue;
+      std::size_t r1 = r0;
+      while (r1 + 1 < b.first + b.count && p.points[r1 + 1].stable) ++r1;
+      std::size_t a = r0, z = r0;
+      for (std::size_t i = r0; i <= r1; ++i) {
+        if (p.points[i].speed < p.points[a].speed) a = i;
+        if (p.points[i].speed > p.points[z].speed) z = i;
+      }
+      t += fmt::format("    stable from {:.5g} m/s ({:.5g} {}; {}) to {:.5g} m/s ({:.5g} {}; {})\n",
+                       p.points[a].speed, p.points[a].amplitude * unit, au, why(a, r0, r1), p.points[z].speed,
+                       p.points[z].amplitude * unit, au, why(z, r0, r1));
+      lo = std::min(lo, p.points[a].speed);
+      hi = std::max(hi, p.points[z].speed);
+      any = true;
+      r0 = r1;
+    }
+    if (!any) t += "    unstable throughout\n";
+  }
+  if (!p.equivalent_divergence.empty()) {
+    double a0 = std::numeric_limits<double>::infinity(), a1 = 0;
+    for (const auto& d : p.equivalent_divergence) {
+      a0 = std::min(a0, d.amplitude);
+      a1 = std::max(a1, d.amplitude);
+    }
+    t += fmt::format("  not LCOs: at {} amplitudes from {:.5g} to {:.5g} {} the equivalent system's growth rate "
+                     "changes sign without a neutral oscillatory pair (a pair turns real: static divergence "
+                     "of the equivalent system)\n",
+                     p.equivalent_divergence.size(), a0 * unit, a1 * unit, au);
+  }
+  if (std::isfinite(lo))
+    t += fmt::format("  stable LCO predicted between {:.5g} and {:.5g} m/s (on the branches above, not "
+                     "throughout)\n",
+                     lo, hi);
+  else
+    t += "  no stable LCO predicted\n";
+  t += fmt::format("  amplitudes searched up to {:.5g} {} (the physical amplitude limit)\n",
+                   p.amplitude_limit * unit, au);
+  return t;
+}
 
 FlutterMargin flutter_margin(const FlutterReport& r) {
   FlutterMargin m;
@@ -201,19 +290,31 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
     lj["spring"] = dof_name(r.lco.spring);
     lj["amplitude_units"] = angle ? "deg" : "m";
     lj["note"] = "describing-function prediction: near-harmonic oscillation about zero assumed";
+    lj["amplitude_limit"] = r.lco.amplitude_limit * unit;
     double lo = std::numeric_limits<double>::infinity(), hi = 0;
     lj["points"] = nlohmann::json::array();
-    for (const auto& pt : r.lco.points) {
+    for (const auto& pt : r.lco.points)
       lj["points"].push_back({{"amplitude", pt.amplitude * unit},
                               {"speed_m_s", pt.speed},
                               {"frequency_hz", pt.frequency / (2 * pi)},
                               {"stable", pt.stable},
                               {"branch", pt.branch}});
-      if (pt.stable) {
-        lo = std::min(lo, pt.speed);
-        hi = std::max(hi, pt.speed);
+    lj["branches"] = nlohmann::json::array();
+    for (const LcoBranch& b : r.lco.branches) {
+      nlohmann::json bj;
+      bj["points"] = b.count;
+      bj["closed"] = b.closed;
+      bj["start"] = b.closed ? nlohmann::json(nullptr) : nlohmann::json(to_string(b.start));
+      bj["end"] = b.closed ? nlohmann::json(nullptr) : nlohmann::json(to_string(b.end));
+      bj["stable_speed_ranges_m_s"] = nlohmann::json::array();
+      for (const auto& [a, z] : stable_speed_ranges(r.lco, b)) {
+        bj["stable_speed_ranges_m_s"].push_back({a, z});
+        lo = std::min(lo, a);
+        hi = std::max(hi, z);
       }
+      lj["branches"].push_back(bj);
     }
+    lj["equivalent_divergence_count"] = r.lco.equivalent_divergence.size();
     lj["stable_speed_range_m_s"] =
         std::isfinite(lo) ? nlohmann::json::array({lo, hi}) : nlohmann::json(nullptr);
     j["lco_prediction"] = lj;
@@ -303,28 +404,7 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
     t += fmt::format("  gap open {}  ..  gap closed {}\n", a ? speed_text(a->flutter, r) : "-",
                      b ? speed_text(b->flutter, r) : "-");
   }
-  if (r.lco.available) {
-    const bool angle = r.lco.spring != kPlunge;
-    const double unit = angle ? kDegPerRad : 1.0;
-    t += fmt::format("\nDescribing-function LCO prediction ({} spring; near-harmonic, about zero):\n",
-                     dof_name(r.lco.spring));
-    t += fmt::format("  {:>12} {:>12} {:>10}  {}\n", angle ? "amplitude deg" : "amplitude m",
-                     "speed m/s", "freq Hz", "branch");
-    const std::size_t n = r.lco.points.size(), every = std::max<std::size_t>(1, n / 12);
-    double lo = std::numeric_limits<double>::infinity(), hi = 0;
-    for (std::size_t i = 0; i < n; ++i) {
-      const auto& pt = r.lco.points[i];
-      if (pt.stable) {
-        lo = std::min(lo, pt.speed);
-        hi = std::max(hi, pt.speed);
-      }
-      if (i % every != 0 && i + 1 != n) continue;
-      t += fmt::format("  {:>12.5g} {:>12.5g} {:>10.4g}  {}\n", pt.amplitude * unit, pt.speed,
-                       pt.frequency / (2 * pi), pt.stable ? "stable" : "unstable");
-    }
-    if (std::isfinite(lo))
-      t += fmt::format("  stable LCO predicted from {:.5g} to {:.5g} m/s\n", lo, hi);
-  }
+  if (r.lco.available) t += lco_prediction_text(r.lco);
   const FlutterMargin fm = flutter_margin(r);
   if (fm.available) {
     t += fmt::format("\nMargin (CS-25.629(b) / 14 CFR 25.629(b)): V_D = {:.5g} m/s EAS, 1.15 V_D = "
@@ -430,7 +510,7 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
   layout.push_back(field("amplitude", angle ? "rad" : "m",
                          std::string("describing-function LCO amplitude of the ") + dof_name(lco.spring),
                          [](const P& p) { return p.amplitude; }));
-  layout.push_back(field("branch", "1", "neutral speed of the equivalent linear system counted from below (0 lowest)",
+  layout.push_back(field("branch", "1", "connected curve of neutral points, numbered in ascending speed at its smallest amplitude",
                          [](const P& p) { return static_cast<double>(p.branch); }));
   layout.push_back(field("speed", "m s-1", "airspeed of the predicted LCO", [](const P& p) { return p.speed; }));
   layout.push_back(field("frequency", "Hz", "frequency of the predicted LCO",
@@ -446,6 +526,16 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
   write_layout<P>(sink, layout, {"lco_prediction_point"}, lco.points.size(), lco.points,
                   [first](const P& p) { return static_cast<std::size_t>(&p - first); });
   sink.text_attribute("lco_prediction", "spring", dof_name(lco.spring));
+  // Why each branch ends at its smaller- and larger-amplitude end, by branch
+  // number, comma-separated (describing_function.hpp, BranchEnd).
+  std::string start, end;
+  for (const LcoBranch& b : lco.branches) {
+    start += std::string(start.empty() ? "" : ",") + (b.closed ? "closed curve" : to_string(b.start));
+    end += std::string(end.empty() ? "" : ",") + (b.closed ? "closed curve" : to_string(b.end));
+  }
+  sink.text_attribute("lco_prediction", "branch_start", start);
+  sink.text_attribute("lco_prediction", "branch_end", end);
+  sink.number_attribute("lco_prediction", "amplitude_limit", lco.amplitude_limit);
 }
 
 std::string flutter_method_group(const std::string& method) { return method == "p-k" ? "pk" : "state_space"; }

@@ -26,6 +26,7 @@ from test_plot_flutter import Checks  # noqa: E402
 AEROSECT, SOURCE = sys.argv[1], sys.argv[2]
 sys.path.insert(0, os.path.join(SOURCE, "python"))
 import h5py  # noqa: E402
+import numpy as np  # noqa: E402
 
 from aerosect import plot  # noqa: E402
 
@@ -175,6 +176,43 @@ def check_initial_state_note(work):
         assert note is not None and "pitch 0.0174533 rad" in note, note
 
 
+def check_prediction_segments(work):
+    """The describing-function curves of a sweep file: each branch one
+    continuous line in the file's order along it, solid where stable and
+    dashed where not, the runs joined at a change of stability, no point
+    left out (common practice, no source)."""
+    path = os.path.join(work, "sweep.h5")
+    run("sweep", os.path.join(work, "case.toml"), "--vary", "nondimensional.reduced_speed=4:6:2",
+        "--set", "simulation.duration_semichords=100", "--jobs", "1", "-o", path)
+    with h5py.File(path, "r") as f:
+        g = f["lco_prediction"]
+        value, amplitude = g["value"][()], g["amplitude"][()]
+        stable, branch = g["stable"][()], g["branch"][()]
+        ends = plot.text_attribute(g, "branch_end", "")
+        for png in plot.plot_sweep(f, "sweep", work):
+            check_png(png)
+    assert len(ends.split(",")) == len(set(branch)), (ends, set(branch))
+    segments = plot.prediction_segments(value, amplitude, stable, branch)
+    assert any(s for _, _, s in segments), "no stable segment"
+    covered = 0
+    for b in sorted(set(branch)):
+        sel = branch == b
+        runs = [(x, y, s) for x, y, s in segments if len(x) and any(
+            np.array_equal(x, value[sel][i:i + len(x)]) for i in range(sel.sum() - len(x) + 1))]
+        # Runs of one branch, in order, each starting on the previous one's last point.
+        joined = np.concatenate([runs[0][0]] + [x[1:] for x, _, _ in runs[1:]])
+        assert np.array_equal(joined, value[sel]), f"branch {b}: the runs do not follow the file order"
+        for (_, _, s0), (_, _, s1) in zip(runs, runs[1:]):
+            assert s0 != s1, f"branch {b}: two neighbouring runs of the same stability"
+        covered += sel.sum()
+        # Continuous to plotting accuracy: no step along the branch larger
+        # than 5 % of the prediction's speed range.
+        span = np.ptp(value) or 1.0
+        steps = np.abs(np.diff(value[sel]))
+        assert steps.size == 0 or steps.max() <= 0.05 * span, f"branch {b}: a step of {steps.max()}"
+    assert covered == len(value)
+
+
 def main():
     checks = Checks()
     with tempfile.TemporaryDirectory(prefix="aerosect-plot-module-") as work:
@@ -188,6 +226,7 @@ def main():
         checks.run("other files are refused", check_refusals, work)
         checks.run("main and the tools/plot wrapper agree", check_main_and_wrapper, work)
         checks.run("the initial-state note comes from the file's attribute", check_initial_state_note, work)
+        checks.run("describing-function curves: one continuous line per branch", check_prediction_segments, work)
     return checks.summary()
 
 

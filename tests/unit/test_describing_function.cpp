@@ -6,8 +6,12 @@
 
 #include <fmt/format.h>
 
+#include <Eigen/Eigenvalues>
+
 #include "aerosect/analysis/describing_function.hpp"
 #include "aerosect/analysis/flutter.hpp"
+#include "aerosect/analysis/flutter_report.hpp"
+#include "aerosect/analysis/orbit.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "helpers.hpp"
 
@@ -41,6 +45,16 @@ Case cubic_case(double reduced_speed, double duration = 20000) {
 }
 
 constexpr double kFlutterJones = 6.2851;  // U*_L, Lee, Price & Wong 1999
+
+// State-space flutter of every linearisation (no p-k, no LCO curve);
+// results 1 and 2 are gap closed and gap open for a gap law.
+FlutterReport state_space_only(const Case& c, const std::vector<double>& speeds) {
+  FlutterOptions o;
+  o.speeds = speeds;
+  o.pk = false;
+  o.lco_prediction = false;
+  return flutter_analysis(c, o);
+}
 }  // namespace
 
 TEST_CASE("Cubic hardening pitch spring: supercritical LCO above U*_L only", "[df]") {
@@ -96,10 +110,7 @@ TEST_CASE("Freeplay prediction joins the gap-open and gap-closed flutter speeds"
   const Case c = test::case_from(test::benchmark_2dof(
       "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n[simulation]\nduration = 1\n"));
   const std::vector<double> speeds = test::grid(0.02, 10.0, 250);
-  FlutterOptions o;
-  o.speeds = speeds;
-  o.pk = false;
-  const FlutterReport r = flutter_analysis(c, o);
+  const FlutterReport r = state_space_only(c, speeds);
   const Crossing& closed = r.results.at(1).methods.at(0).flutter;
   const Crossing& open = r.results.at(2).methods.at(0).flutter;
   REQUIRE(closed.found);
@@ -109,7 +120,8 @@ TEST_CASE("Freeplay prediction joins the gap-open and gap-closed flutter speeds"
   LcoPrediction p = all;  // the lowest neutral speed at each amplitude
   std::erase_if(p.points, [](const LcoPredictionPoint& q) { return q.branch != 0; });
   CHECK(p.points.front().speed == Approx(open.speed).epsilon(1e-3));
-  // At A = 101 half-gaps N/k = 0.987: within 1 % of the gap-closed speed.
+  // At the physical amplitude limit, 1 rad = 115 half-gaps, N/k = 0.989:
+  // within 1 % of the gap-closed speed.
   CHECK(p.points.back().speed == Approx(closed.speed).epsilon(0.01));
   for (const auto& pt : p.points) CHECK(pt.speed <= closed.speed * (1 + 1e-6));
 }
@@ -123,10 +135,7 @@ TEST_CASE("Freeplay LCO below the gap-open flutter speed, predicted and simulate
   const std::string fp = "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n";
   const Case c = test::case_from(test::benchmark_2dof(fp + "[simulation]\nduration = 1\n"));
   const std::vector<double> speeds = test::grid(0.02, 10.0, 250);
-  FlutterOptions o;
-  o.speeds = speeds;
-  o.pk = false;
-  const double U_open = flutter_analysis(c, o).results.at(2).methods.at(0).flutter.speed;
+  const double U_open = state_space_only(c, speeds).results.at(2).methods.at(0).flutter.speed;
   const LcoPrediction p = describing_function_lco(c, speeds, 80);
   double lowest = 1e300;
   for (const auto& pt : p.points)
@@ -149,23 +158,28 @@ TEST_CASE("Every neutral speed counts: an instability band that closes bounds th
   // only the lowest. The demo scenario (invented data, used here only as a
   // section whose gap-open instability restabilises) has aileron freeplay
   // with a gap-open flutter band of about 11.5..30 m/s and gap-closed flutter
-  // at 94 m/s. Counting only the lowest neutral speed joined the band to the
-  // 94 m/s flutter and predicted a stable LCO at 50 m/s, where the simulation
-  // (exact switching, 3 deg aileron start, no gust) dies out completely.
+  // at 94 m/s. The band's two neutral speeds close on each other as the
+  // amplitude grows: one curve that leaves the gap edge at 11.5 m/s and
+  // returns to it at 30 m/s. Joining the band to the 94 m/s flutter
+  // predicted a stable LCO at 50 m/s, where the simulation (exact switching,
+  // 3 deg aileron start, no gust) dies out completely.
   const Case demo = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml");
   const LcoPrediction p = describing_function_lco(demo, default_speeds(demo), 60);
   REQUIRE(p.available);
-  int closing = 0;
-  for (const auto& pt : p.points) {
-    if (pt.branch == 1) {
-      ++closing;
-      CHECK(pt.speed > 15.0);
-      CHECK(pt.speed < 40.0);
-    }
-    // No stable small-amplitude LCO predicted between the band and 90 m/s.
-    if (pt.stable && pt.amplitude < 2 * 0.5 * pi / 180) CHECK((pt.speed < 40.0 || pt.speed > 90.0));
+  REQUIRE(p.branches.size() >= 2);
+  const LcoBranch& band = p.branches.front();
+  CHECK(band.start == BranchEnd::kGapEdge);
+  CHECK(band.end == BranchEnd::kGapEdge);
+  CHECK(band.count > 10);
+  CHECK(p.points[band.first].speed == Approx(11.5).epsilon(0.02));
+  CHECK(p.points[band.first + band.count - 1].speed == Approx(29.8).epsilon(0.02));
+  for (std::size_t i = band.first; i < band.first + band.count; ++i) {
+    CHECK(p.points[i].speed > 11.0);
+    CHECK(p.points[i].speed < 31.0);
   }
-  CHECK(closing > 5);
+  // No stable small-amplitude LCO predicted between the band and 90 m/s.
+  for (const auto& pt : p.points)
+    if (pt.stable && pt.amplitude < 2 * 0.5 * pi / 180) CHECK((pt.speed < 40.0 || pt.speed > 90.0));
   std::string text = demo.text;
   text = text.substr(0, text.find("[[gust]]"));
   const Case quiet = test::case_from(text + "", {"flow.airspeed=50", "simulation.duration=40",
@@ -177,4 +191,172 @@ TEST_CASE("Every neutral speed counts: an instability band that closes bounds th
   const auto from = beta.begin() + static_cast<long>(0.8 * beta.size());
   const auto [lo, hi] = std::minmax_element(from, beta.end());
   CHECK(0.5 * (*hi - *lo) < 1e-6);
+}
+
+TEST_CASE("A pair turning real is divergence of the equivalent system, not an LCO", "[df]") {
+  // The benchmark section with the elastic axis moved aft of the quarter
+  // chord (a_h = -0.3) and pitch freeplay: the equivalent system diverges
+  // statically. Thin-aerofoil divergence closed form (theory sheet section
+  // 4): U_D / (b w_a) = r_a sqrt(mu (N / k) / (1 + 2 a)), 7.906 at N = k.
+  // Above flutter the growing pair of the equivalent system meets the real
+  // axis and splits into two real positive eigenvalues before U_D: the
+  // growth rate of the oscillatory roots jumps there without any neutral
+  // pair. That jump was reported as an unstable LCO branch at ~1e-7 Hz.
+  const Case c = test::case_from(test::benchmark_2dof(
+      "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n[simulation]\nduration = 1\n", 5.0),
+      {"nondimensional.elastic_axis=-0.3"});
+  const double ref = c.model.section.semichord * uncoupled_frequencies(c.model.section).pitch;
+  const std::vector<double> speeds = test::grid(0.5 * ref, 12.0 * ref, 116);
+  const FlutterReport r = state_space_only(c, speeds);
+  const Crossing& closed = r.results.at(1).methods.at(0).flutter;
+  const Crossing& open = r.results.at(2).methods.at(0).flutter;
+  REQUIRE(closed.found);
+  REQUIRE(open.found);
+  CHECK(r.results.at(1).methods.at(0).divergence.speed / ref == Approx(0.5 * std::sqrt(100 / 0.4)).epsilon(1e-3));
+
+  const LcoPrediction p = describing_function_lco(c, speeds, 80);
+  REQUIRE(p.available);
+  // One curve: from the gap edge at the gap-open flutter speed to the
+  // physical amplitude limit, near the gap-closed flutter speed (N -> k).
+  REQUIRE(p.branches.size() == 1);
+  CHECK(p.branches[0].start == BranchEnd::kGapEdge);
+  CHECK(p.branches[0].end == BranchEnd::kAmplitudeLimit);
+  CHECK(p.points.front().speed == Approx(open.speed).epsilon(1e-3));
+  CHECK(p.points.back().speed == Approx(closed.speed).epsilon(0.01));
+  const double w_h = uncoupled_frequencies(c.model.section).plunge;
+  for (const auto& pt : p.points) {
+    // Every point is a neutral oscillatory pair of its equivalent system.
+    CHECK(pt.frequency > 0.5 * w_h);
+    DofVector k(2);
+    k << c.model.springs[kPlunge].nominal_stiffness(), pt.equivalent_stiffness;
+    const Eigen::VectorXcd ev =
+        Eigen::EigenSolver<Eigen::MatrixXd>(stability_model(c.model).state_matrix_at(pt.speed, k), false).eigenvalues();
+    double nearest = 1e300;
+    for (Eigen::Index i = 0; i < ev.size(); ++i)
+      nearest = std::min(nearest, std::abs(ev(i) - std::complex<double>(0, pt.frequency)));
+    CHECK(nearest < 1e-6 * pt.frequency);
+  }
+  // The jumps are counted apart: on one side of each, the equivalent system
+  // has two real positive eigenvalues (the pair that turned real).
+  REQUIRE(!p.equivalent_divergence.empty());
+  for (const auto& d : p.equivalent_divergence) {
+    DofVector k(2);
+    k << c.model.springs[kPlunge].nominal_stiffness(), c.model.springs[kPitch].describing_function(d.amplitude);
+    int real_positive = 0;
+    for (double side : {1 - 1e-6, 1 + 1e-6}) {
+      const Eigen::VectorXcd ev =
+          Eigen::EigenSolver<Eigen::MatrixXd>(stability_model(c.model).state_matrix_at(d.speed * side, k), false)
+              .eigenvalues();
+      int n = 0;
+      for (Eigen::Index i = 0; i < ev.size(); ++i)
+        if (ev(i).real() > 0 && std::abs(ev(i).imag()) <= 1e-6 * std::abs(ev(i))) ++n;
+      real_positive = std::max(real_positive, n);
+    }
+    CAPTURE(d.amplitude, d.speed / ref);
+    CHECK(real_positive >= 2);
+  }
+}
+
+TEST_CASE("A stable branch continues to large amplitude: 34 degrees against the shooting orbit", "[df]") {
+  // Hardening cubic M = k (alpha + 5 alpha^3) on the benchmark section
+  // (the coefficient is ours: large enough that a 0.6 rad LCO lies near
+  // three times the linear flutter speed). The amplitude grid used to stop
+  // at 30 x the amplitude where N(A) had changed by 0.1 % (14 deg here), so
+  // the stable curve ended there; it must now go on until its neutral speed
+  // leaves the speed range.
+  const std::string cubic = "[springs.pitch]\nlaw = \"cubic\"\ncubic_coefficient = 5.0\n";
+  const Case c = test::case_from(test::benchmark_2dof(cubic + "[simulation]\nduration = 1\n", 5.0));
+  const double ref = c.model.section.semichord * uncoupled_frequencies(c.model.section).pitch;
+  const LcoPrediction p = describing_function_lco(c, test::grid(0.5 * ref, 30.0 * ref, 300), 60);
+  REQUIRE(p.available);
+  REQUIRE(p.branches.size() == 1);
+  CHECK(p.branches[0].start == BranchEnd::kLinearLimit);
+  const LcoPredictionPoint* at34 = nullptr;
+  for (const auto& pt : p.points) {
+    CHECK(pt.stable);  // supercritical: stable throughout (Lee, Price & Wong 1999, hardening)
+    if (!at34 || std::abs(pt.amplitude - 0.6) < std::abs(at34->amplitude - 0.6)) at34 = &pt;
+  }
+  REQUIRE(at34);
+  REQUIRE(at34->amplitude == Approx(0.6).epsilon(0.05));
+  // The periodic orbit at that speed, by shooting from the describing
+  // function's harmonic guess (orbit.hpp).
+  const Case at = test::case_from(test::benchmark_2dof(cubic + "[simulation]\nduration = 1\n", at34->speed / ref));
+  const AeroelasticModel model(at.model);
+  DofVector k(2);
+  k << at.model.springs[kPlunge].nominal_stiffness(), at34->equivalent_stiffness;
+  const OrbitSeed guess = seed_from_harmonic(model, k, kPitch, at34->amplitude, at34->frequency);
+  const auto marched = seed_from_time_march(model, guess.x0, 400 * guess.period, OrbitSettings{}.integrator, kPitch);
+  REQUIRE(marched);
+  const Orbit o = solve_orbit(model, *marched);
+  INFO(o.failure);
+  REQUIRE(o.converged);
+  CHECK(o.stable);
+  const double a = o.dof[kPitch].amplitude;
+  const auto& h = o.content[kPitch].harmonics;
+  CAPTURE(at34->speed / ref, at34->amplitude, a, at34->frequency, 2 * pi / o.period, h[0], h[1], h[2]);
+  // Tolerance: the describing function keeps the first harmonic only, so
+  // its error is of the order of the harmonic content it drops (Gelb &
+  // Vander Velde 1968, the filtering hypothesis; recalled from memory):
+  // here the converged orbit's own third-harmonic ratio h3/h1 (about 0.19
+  // at this amplitude), measured on the orbit, not on the prediction.
+  const double distortion = h[2] / h[0];
+  CHECK(distortion < 0.3);  // still a near-harmonic cycle
+  CHECK(at34->amplitude == Approx(a).epsilon(distortion));
+  // The describing function's speed at the orbit's amplitude.
+  double u_df = -1;
+  for (std::size_t i = 1; i < p.points.size(); ++i) {
+    const auto &lo = p.points[i - 1], &hi = p.points[i];
+    if ((lo.amplitude - a) * (hi.amplitude - a) <= 0)
+      u_df = lo.speed + (hi.speed - lo.speed) * (a - lo.amplitude) / (hi.amplitude - lo.amplitude);
+  }
+  REQUIRE(u_df > 0);
+  CAPTURE(u_df / ref);
+  CHECK(u_df == Approx(at34->speed).epsilon(distortion));
+  CHECK(at34->frequency == Approx(2 * pi / o.period).epsilon(distortion));
+}
+
+TEST_CASE("The LCO table shows every branch and every stable/unstable segment", "[df]") {
+  // Common practice, no source: a printed table must not drop a branch or a
+  // change of stability. The regression 3-DOF section with flap freeplay
+  // has several branches, some of a few dozen points beside long ones; the
+  // table used to print every n/12-th point of the whole list.
+  const Case c = load_case(std::string(AEROSECT_SOURCE_DIR) + "/tests/regression/cases/flap_freeplay_3dof.toml");
+  const double ref = c.model.section.semichord * uncoupled_frequencies(c.model.section).pitch;
+  const LcoPrediction p = describing_function_lco(c, test::grid(0.5 * ref, 10.0 * ref, 96), 80);
+  REQUIRE(p.branches.size() >= 3);
+  const std::string text = lco_prediction_text(p);
+  INFO(text);
+  auto row = [&](const LcoPredictionPoint& pt) {
+    return fmt::format("  {:>13.5g} {:>12.5g} {:>10.4g} {:>6}  {}\n", pt.amplitude * 180 / pi, pt.speed,
+                       pt.frequency / (2 * pi), pt.branch, pt.stable ? "yes" : "no");
+  };
+  std::size_t rows = 0;
+  for (std::size_t b = 0; b < p.branches.size(); ++b) {
+    const LcoBranch& br = p.branches[b];
+    std::size_t shown = 0;
+    CHECK(text.find(fmt::format("  branch {}: {} points", b, br.count)) != std::string::npos);
+    for (std::size_t i = br.first; i < br.first + br.count; ++i) {
+      const bool segment_end = i == br.first || i + 1 == br.first + br.count ||
+                               p.points[i].stable != p.points[i - 1].stable ||
+                               p.points[i].stable != p.points[i + 1].stable;
+      const bool printed = text.find(row(p.points[i])) != std::string::npos;
+      if (segment_end) CHECK(printed);
+      shown += printed;
+    }
+    if (br.count <= 24) CHECK(shown == br.count);
+    rows += shown;
+  }
+  CHECK(rows < p.points.size());  // long branches are thinned
+  // One summary line per stable run, saying where it ends and why; each
+  // branch line gives both end reasons.
+  std::size_t runs = 0, lines = 0;
+  for (const LcoBranch& br : p.branches) {
+    runs += stable_speed_ranges(p, br).size();
+    CHECK(text.find(fmt::format("({}) .. ", to_string(br.start))) != std::string::npos);
+    CHECK(text.find(fmt::format("({})\n", to_string(br.end))) != std::string::npos);
+  }
+  for (std::size_t at = text.find("    stable from "); at != std::string::npos; at = text.find("    stable from ", at + 1))
+    ++lines;
+  CHECK(runs > 0);
+  CHECK(lines == runs);
 }

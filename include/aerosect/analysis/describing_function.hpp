@@ -4,15 +4,47 @@
 // spring j.
 //
 // For an amplitude A of x_j = A sin(omega t) the spring is replaced by its
-// equivalent stiffness N(A) (spring.hpp); an LCO of amplitude A can exist
-// at every airspeed where the linear system with k_j = N(A) is on a
-// flutter boundary (the largest real part of its oscillatory eigenvalues
-// changes sign), at that flutter frequency: the lowest such speed is branch
-// 0, the next branch 1 (where an instability band closes again), and so on.
-// Sweeping A traces the curves, with every branch of a fold. A branch point
-// is stable when a slightly larger amplitude makes the equivalent system
-// stable and a slightly smaller one unstable (the largest real part of the
-// state-matrix eigenvalues at U_LCO, with k_j = N(A(1 +- 1e-3))).
+// equivalent stiffness N(A) (spring.hpp). An LCO of amplitude A can exist
+// at every airspeed U where the linear system with k_j = N(A) has a neutral
+// oscillatory eigenvalue pair: a complex pair whose real part passes
+// continuously through zero (a Hopf crossing) at a frequency clearly above
+// zero (at least 1e-3 x the largest uncoupled in-vacuo frequency). A sign
+// change of the growth rate that is not such a crossing -- a pair that turns
+// real on the right of the imaginary axis, a real root through zero -- is a
+// static divergence of the equivalent system, not an LCO: it is counted in
+// `equivalent_divergence`, never reported as a point.
+//
+// Branches. The neutral points form curves in the (A, U) plane; a branch is
+// one connected curve, followed through a fold in amplitude (an instability
+// band that closes: its two neutral speeds meet) and numbered from 0 in
+// ascending speed at its smallest amplitude. Each branch end says why it
+// ends (BranchEnd).
+//
+// Amplitude grid. `count` amplitudes spaced geometrically over the range
+// where N(A) changes (just past a gap: A = d (1 + s), s from 1e-4 to 100,
+// d the largest breakpoint distance; a polynomial law: A from 1e-3 to 1 x
+// thirty times the amplitude where N has changed by 0.1 %), then extended with the
+// same spacing while any branch still has a neutral point at the largest
+// amplitude, up to the physical amplitude limit (1 rad for pitch and flap,
+// 10 semichords for plunge: beyond these the small-angle, thin-aerofoil
+// model itself no longer holds; a design choice, common practice, no
+// source). Between neighbouring amplitudes the grid is halved (down to
+// 1/1024 of the base spacing) where the number of neutral points changes,
+// where a neutral speed moves by more than 1 % of the speed range, or
+// where the stability of a point changes, so that a curve is continuous to
+// plotting accuracy and no segment falls between two grid amplitudes.
+//
+// Stability (the amplitude-perturbation criterion of the describing-
+// function method, Gelb & Vander Velde 1968, ch. on limit-cycle stability;
+// recalled from memory): at fixed U, a point is stable when a larger
+// amplitude damps the critical pair and a smaller one drives it, i.e.
+// d(Re lambda)/dA < 0 for the neutral pair, evaluated by central
+// difference at A (1 +- 1e-3), AND no other root of the equivalent system
+// (real roots included) grows at (A, U). Along a branch this is the sign of
+// dU_neutral/dA times the sign of d(Re lambda)/dU: a crossing that
+// destabilises with speed is stable where its neutral speed rises with
+// amplitude.
+//
 // The prediction assumes a near-harmonic oscillation about x = 0: for an
 // offset or asymmetric gap the bias is ignored (say so when reporting).
 
@@ -30,22 +62,52 @@ struct LcoPredictionPoint {
   double speed = 0;                 // m/s (true airspeed)
   double frequency = 0;             // rad/s
   bool stable = false;
-  // Which neutral speed of the equivalent linear system this is, counted
-  // from below (0: the lowest; an instability band [0, 1] closes again at 1).
-  int branch = 0;
+  int branch = 0;                   // connected curve, numbered as LcoPrediction::branches
+};
+
+// Why a branch ends, at either end.
+enum class BranchEnd {
+  kGapEdge,         // smallest amplitude of a gap law: A -> the breakpoint (N -> gap-open value)
+  kLinearLimit,     // smallest amplitude of a polynomial law: N -> the linear stiffness
+  kBranchEnds,      // no neutral point beyond: the pair turns real, or N leaves the positive range
+  kSpeedRange,      // the neutral speed leaves the swept speed range
+  kAmplitudeLimit,  // the physical amplitude limit (1 rad; plunge 10 semichords)
+};
+const char* to_string(BranchEnd e);
+
+struct LcoBranch {
+  std::size_t first = 0, count = 0;  // its points: points[first, first + count), along the curve
+  BranchEnd start = BranchEnd::kBranchEnds;  // end at points[first] (the smaller-amplitude end)
+  BranchEnd end = BranchEnd::kBranchEnds;    // end at points[first + count - 1]
+  bool closed = false;                       // a closed loop (no ends)
+};
+
+// A growth-rate sign change of the equivalent system that is no neutral
+// oscillatory pair (a static divergence of the equivalent system).
+struct EquivalentDivergence {
+  double amplitude = 0;  // m or rad
+  double speed = 0;      // m/s, where the growth rate jumps
 };
 
 struct LcoPrediction {
   bool available = false;
   std::string reason;   // why not, when not available
   int spring = -1;      // DOF of the nonlinear spring
-  std::vector<LcoPredictionPoint> points;  // by branch, then ascending amplitude
+  double amplitude_limit = 0;  // physical amplitude limit used, m or rad
+  std::vector<LcoPredictionPoint> points;  // by branch, then along the branch
+  std::vector<LcoBranch> branches;
+  std::vector<EquivalentDivergence> equivalent_divergence;
 };
 
-// `speeds` is the flutter sweep grid (m/s, ascending); `count` amplitudes
-// are spaced geometrically over the range where N(A) changes. A set
-// `cancel` stops it between amplitudes (throws Cancelled).
+// `speeds` is the flutter sweep grid (m/s, ascending; with fewer than two
+// the prediction is not available); `count`
+// the base number of amplitudes (see above). A set `cancel` stops it
+// between amplitudes (throws Cancelled).
 LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& speeds,
                                       int count = 80, const std::atomic<bool>* cancel = nullptr);
+
+// Stable speed ranges of one branch: each run of consecutive stable points
+// as (lowest speed, highest speed), m/s, in the order along the branch.
+std::vector<std::pair<double, double>> stable_speed_ranges(const LcoPrediction& p, const LcoBranch& b);
 
 }  // namespace aerosect

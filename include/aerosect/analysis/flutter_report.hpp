@@ -38,6 +38,12 @@ FlutterMargin flutter_margin(const FlutterReport& r);
 
 nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::string& output);
 std::string flutter_text(const Case& c, const FlutterReport& r, const std::string& output);
+// The describing-function part of flutter_text: a table with a branch
+// number and a stable column (every point of a short branch; of a long one
+// the ends of every stable/unstable segment and an evenly thinned
+// interior), then per branch where it starts and ends and why, and its
+// stable speed ranges.
+std::string lco_prediction_text(const LcoPrediction& p);
 // Writes the sweep tables and crossings; throws OutputError.
 void write_flutter_file(const std::string& path, const Case& c, const FlutterReport& r);
 // The same tables through any sink (write_flutter_file hands it the file).

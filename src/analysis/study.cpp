@@ -302,8 +302,8 @@ std::pair<double, double> lco_sweep_range(const Study& s) {
   double lo = std::numeric_limits<double>::infinity(), hi = 0;
   if (open && open->flutter.found) lo = open->flutter.speed;
   if (fr.lco.available)
-    for (const auto& p : fr.lco.points)
-      if (p.speed > 0) lo = std::min(lo, p.speed);
+    for (const auto& p : fr.lco.points)  // stable predictions: where a time march can find an LCO
+      if (p.speed > 0 && p.stable) lo = std::min(lo, p.speed);
   if (nominal && nominal->flutter.found) {
     if (!fr.has_gap) lo = std::min(lo, nominal->flutter.speed);
     hi = fr.has_gap ? 0.98 * nominal->flutter.speed : 1.3 * nominal->flutter.speed;

@@ -86,6 +86,7 @@ struct Witness {
   int next = 0;        // region entered (spring)
   Vec a;               // row of the linear form over the augmented z
   double b = 0;
+  Vec aM, aMM;         // M^T a and (M^T)^2 a: the rows of g' and g''
 };
 
 class ExactRun {
@@ -99,7 +100,7 @@ class ExactRun {
     const double t0 = run_.time;
     const bool fixed_rate = schedule_.interval > 0 && !schedule_.every_step;
     const double dt_s = schedule_.interval;
-    Vec z(n_ + 1), zb(n_ + 1), Mz(n_ + 1), Mzb(n_ + 1);
+    Vec z(n_ + 1), zb(n_ + 1);
     for (int i = 0; i < n_; ++i) z(i) = W_(i) * run_.x[static_cast<std::size_t>(i)];
     z(n_) = 1.0;
     Mat phi, phi_next;  // scaled monodromy W Phi W^-1
@@ -127,25 +128,19 @@ class ExactRun {
         E = std::abs(h - dt_s) <= 1e-9 * dt_s ? &sample_propagator(*R, dt_s) : nullptr;
       }
       if (E) zb.noalias() = *E * z; else zb = expv(R->M, z, h);
-      Mz.noalias() = R->M * z;  // the witnesses' derivatives at the ends
-      Mzb.noalias() = R->M * zb;
       // The first switch inside (0, h].
       double te = std::numeric_limits<double>::infinity();
       const Witness* event = nullptr;
       for (const Witness& w : ws)
         if (w.spring)
-          if (const double tz = first_zero(*R, w, z, zb, Mz, Mzb, h); tz < te) {
+          if (const double tz = first_zero(*R, w, z, zb, h); tz < te) {
             te = tz;
             event = &w;
           }
       // Peaks inside (0, the switch or the step's end], in time order.
       if (obs_.peak) {
-        if (event) {
-          const Vec zs = expv(R->M, z, te);
-          stop |= report_peaks(*R, ws, z, Mz, zs, R->M * zs, te);
-        } else {
-          stop |= report_peaks(*R, ws, z, Mz, zb, Mzb, h);
-        }
+        if (event) stop |= report_peaks(*R, ws, z, expv(R->M, z, te), te);
+        else stop |= report_peaks(*R, ws, z, zb, h);
       }
       // Advance.
       if (event) {
@@ -221,9 +216,14 @@ class ExactRun {
     return cache_.emplace(run_.regions, std::move(r)).first->second;
   }
 
+  static void rows(const Region& R, Witness& w) {
+    w.aM = R.M.transpose() * w.a;
+    w.aMM = R.M.transpose() * w.aM;
+  }
+
   // Spring boundaries of the present regions (g >= 0 past the breakpoint)
   // and, when peaks are watched, the velocity of every moving DOF.
-  std::vector<Witness> witnesses(const Region&) const {
+  std::vector<Witness> witnesses(const Region& R) const {
     std::vector<Witness> out;
     for (int j : model_.nonlinear_springs()) {
       const auto bp = model_.description().springs[static_cast<std::size_t>(j)].breakpoints();
@@ -238,6 +238,7 @@ class ExactRun {
         w.a = Vec::Zero(n_ + 1);
         w.a(q) = side / W_(q);  // side (x_q - breakpoint)
         w.b = -side * bp[static_cast<std::size_t>(b)];
+        rows(R, w);
         out.push_back(std::move(w));
       }
     }
@@ -249,30 +250,34 @@ class ExactRun {
         w.dof = j;
         w.a = Vec::Zero(n_ + 1);
         w.a(L_.velocity + j) = 1.0 / W_(L_.velocity + j);
+        rows(R, w);
         out.push_back(std::move(w));
       }
     return out;
   }
 
-  double g(const Region& R, const Witness& w, const Vec& z, double tau) const {
-    return w.a.dot(expv(R.M, z, tau)) + w.b;
-  }
-  double dg(const Region& R, const Witness& w, const Vec& z, double tau) const {
-    return w.a.dot(R.M * expv(R.M, z, tau));
+  // The witness g = a . z(tau) + b and its first two derivatives
+  // (a M . z, a M M . z, the rows precomputed), from one Taylor series.
+  struct Value {
+    double g, dg, d2g;
+  };
+  Value at(const Region& R, const Witness& w, const Vec& z, double tau) const {
+    const Vec zt = expv(R.M, z, tau);
+    return {w.a.dot(zt) + w.b, w.aM.dot(zt), w.aMM.dot(zt)};
   }
 
-  // A zero of f in [lo, hi] where f(lo) and f(hi) differ in sign:
-  // Newton's method with the exact derivative, kept inside the bracket
-  // (bisection when a Newton step leaves it).
-  template <class F, class D>
-  double root(F&& f, D&& df, double lo, double hi, double flo) const {
+  // A zero in [lo, hi] of a function whose values at the ends differ in
+  // sign: Newton's method with the exact derivative from the secant point,
+  // kept inside the bracket (bisection when a step leaves it).
+  template <class FD>
+  double root(FD&& fd, double lo, double hi, double flo, double fhi) const {
     const double tol = 1e-13 * std::max(1.0, std::abs(run_.time));
-    double t = 0.5 * (lo + hi);
+    double t = flo != fhi ? lo - flo * (hi - lo) / (fhi - flo) : 0.5 * (lo + hi);
+    if (!(t > lo && t < hi)) t = 0.5 * (lo + hi);
     for (int it = 0; it < 100 && hi - lo > tol; ++it) {
-      const double ft = f(t);
+      const auto [ft, d] = fd(t);
       if (ft == 0) return t;
       if ((ft < 0) == (flo < 0)) lo = t; else hi = t;
-      const double d = df(t);
       double next = d != 0 ? t - ft / d : 0.5 * (lo + hi);
       if (!(next > lo && next < hi)) next = 0.5 * (lo + hi);
       if (std::abs(next - t) < 0.25 * tol) return next;
@@ -280,69 +285,67 @@ class ExactRun {
     }
     return 0.5 * (lo + hi);
   }
+  double zero_of_g(const Region& R, const Witness& w, const Vec& z, double lo, double hi, double glo,
+                   double ghi) const {
+    return root([&](double t) { const Value v = at(R, w, z, t); return std::pair{v.g, v.dg}; }, lo, hi, glo, ghi);
+  }
+  double zero_of_dg(const Region& R, const Witness& w, const Vec& z, double lo, double hi, double dlo,
+                    double dhi) const {
+    return root([&](double t) { const Value v = at(R, w, z, t); return std::pair{v.dg, v.d2g}; }, lo, hi, dlo, dhi);
+  }
 
   // The first time in (0, h] where the spring witness reaches zero from
   // below (infinite when it does not): a sign change over the step, or an
-  // interior maximum of g at or above zero.
-  double first_zero(const Region& R, const Witness& w, const Vec& z, const Vec& zb, const Vec& Mz, const Vec& Mzb,
-                    double h) const {
+  // interior maximum of g at or above zero. (||h M|| <= 1/2: g' changes
+  // sign at most once inside a step.)
+  double first_zero(const Region& R, const Witness& w, const Vec& z, const Vec& zb, double h) const {
+    constexpr double kNone = std::numeric_limits<double>::infinity();
     const double ga = w.a.dot(z) + w.b, gb = w.a.dot(zb) + w.b;
-    const double da = w.a.dot(Mz), db = w.a.dot(Mzb);
-    if (ga < 0 && gb < 0 && !(da > 0 && db < 0)) return std::numeric_limits<double>::infinity();  // the usual step
-    auto f = [&](double t) { return g(R, w, z, t); };
-    auto df = [&](double t) { return dg(R, w, z, t); };
+    const double da = w.aM.dot(z), db = w.aM.dot(zb);
+    if (ga < 0 && gb < 0 && !(da > 0 && db < 0)) return kNone;  // the usual step
     if (!(ga < 0)) {
       // On the breakpoint to round-off: the region was just entered through
       // it (g falling). It comes back to it inside the step only past a
       // minimum of g (a trajectory that turns back at once: grazing).
-      if (!(da < 0 && db > 0 && gb >= 0)) return std::numeric_limits<double>::infinity();
-      auto d2 = [&](double t) { return w.a.dot(R.M * (R.M * expv(R.M, z, t))); };
-      const double tm = root(df, d2, 0.0, h, da);
-      const double gm = f(tm);
-      if (!(gm < 0)) return std::numeric_limits<double>::infinity();
-      return root(f, df, tm, h, gm);
+      if (!(da < 0 && db > 0 && gb >= 0)) return kNone;
+      const double tm = zero_of_dg(R, w, z, 0.0, h, da, db);
+      const double gm = at(R, w, z, tm).g;
+      return gm < 0 ? zero_of_g(R, w, z, tm, h, gm, gb) : kNone;
     }
-    if (gb >= 0) return root(f, df, 0.0, h, ga);
-    if (!(da > 0 && db < 0)) return std::numeric_limits<double>::infinity();
-    // The maximum inside: a zero of g'.
-    auto d2 = [&](double t) { return w.a.dot(R.M * (R.M * expv(R.M, z, t))); };
-    const double tm = root(df, d2, 0.0, h, da);
-    const double gm = f(tm);
-    if (gm < 0) return std::numeric_limits<double>::infinity();
-    return root(f, df, 0.0, tm, ga);
+    if (gb >= 0) return zero_of_g(R, w, z, 0.0, h, ga, gb);
+    // The maximum inside (da > 0 > db): past zero, the first crossing is before it.
+    const double tm = zero_of_dg(R, w, z, 0.0, h, da, db);
+    const double gm = at(R, w, z, tm).g;
+    return gm >= 0 ? zero_of_g(R, w, z, 0.0, tm, ga, gm) : kNone;
   }
 
   // Velocity zeros in (0, span], reported in time order.
-  bool report_peaks(const Region& R, const std::vector<Witness>& ws, const Vec& z, const Vec& Mz, const Vec& zb,
-                    const Vec& Mzb, double span) {
-    std::vector<std::pair<double, int>> found;
+  bool report_peaks(const Region& R, const std::vector<Witness>& ws, const Vec& z, const Vec& zb, double span) {
+    found_.clear();
     for (const Witness& w : ws) {
       if (w.spring) continue;
       const double va = w.a.dot(z), vb = w.a.dot(zb);
-      const double da = w.a.dot(Mz), db = w.a.dot(Mzb);
-      if (va * vb > 0 && da * db >= 0) continue;  // the usual step: no zero, no extremum
-      auto f = [&](double t) { return g(R, w, z, t); };
-      auto df = [&](double t) { return dg(R, w, z, t); };
-      // Split at an interior extremum of the velocity (at most one per
-      // step: ||h M|| <= 1/2), then look for a sign change in each part.
-      std::vector<std::pair<double, double>> parts{{0.0, span}};
-      if (da * db < 0) {
-        auto d2 = [&](double t) { return w.a.dot(R.M * (R.M * expv(R.M, z, t))); };
-        const double tm = root(df, d2, 0.0, span, da);
-        parts = {{0.0, tm}, {tm, span}};
+      if (va * vb < 0 || (vb == 0 && va != 0)) {  // one zero (g' turns at most once in a step)
+        found_.emplace_back(vb == 0 ? span : zero_of_g(R, w, z, 0.0, span, va, vb), w.dof);
+        continue;
       }
-      for (const auto& [lo, hi] : parts) {
-        const double fl = lo == 0 ? va : f(lo), fh = hi == span ? vb : f(hi);
-        if ((fl * fh < 0) || (fh == 0 && fl != 0)) found.emplace_back(fh == 0 ? hi : root(f, df, lo, hi, fl), w.dof);
+      const double da = w.aM.dot(z), db = w.aM.dot(zb);
+      if (!(da * db < 0)) continue;  // monotone, same sign: none
+      // An extremum of the velocity inside: two zeros when it crosses.
+      const double tm = zero_of_dg(R, w, z, 0.0, span, da, db);
+      const double vm = at(R, w, z, tm).g;
+      if (va * vm < 0 || (vm == 0 && va != 0)) {
+        found_.emplace_back(vm == 0 ? tm : zero_of_g(R, w, z, 0.0, tm, va, vm), w.dof);
+        if (vm != 0) found_.emplace_back(zero_of_g(R, w, z, tm, span, vm, vb), w.dof);
       }
     }
-    std::sort(found.begin(), found.end());
+    std::sort(found_.begin(), found_.end());
     bool stop = false;
-    std::vector<double> x(static_cast<std::size_t>(n_));
-    for (const auto& [t, dof] : found) {
+    x_.resize(static_cast<std::size_t>(n_));
+    for (const auto& [t, dof] : found_) {
       const Vec zt = expv(R.M, z, t);
-      for (int i = 0; i < n_; ++i) x[static_cast<std::size_t>(i)] = zt(i) / W_(i);
-      if (obs_.peak(dof, run_.time + t, x) == ObserverAction::kStop) stop = true;
+      for (int i = 0; i < n_; ++i) x_[static_cast<std::size_t>(i)] = zt(i) / W_(i);
+      if (obs_.peak(dof, run_.time + t, x_) == ObserverAction::kStop) stop = true;
     }
     return stop;
   }
@@ -374,6 +377,7 @@ class ExactRun {
   const Vec W_;
   std::map<std::vector<int>, Region> cache_;
   std::vector<double> x_;  // a sample's state, unscaled
+  std::vector<std::pair<double, int>> found_;  // a step's peaks (time, DOF)
 };
 
 }  // namespace

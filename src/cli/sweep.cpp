@@ -5,6 +5,7 @@
 
 #include <chrono>
 #include <cstdio>
+#include <future>
 #include <iostream>
 #include <memory>
 #include <mutex>
@@ -156,6 +157,12 @@ int run(const SweepCommandOptions& o) {
     }
     progress.point_done(++finished);
   };
+  // The overlay (linear flutter speeds, describing-function curve) does not
+  // depend on the points: with two or more jobs it is computed beside them
+  // (the last points leave cores idle), else after them.
+  std::future<std::optional<FlutterReport>> overlay_future =
+      std::async(req.options.jobs >= 2 ? std::launch::async : std::launch::deferred,
+                 [&] { return sweep_overlay(c, req, cancel_flag()); });
   const std::vector<SweepPoint> pts = run_sweep(req, done, on_point, cancel_flag());
   progress.end();
   if (!journal_failure.empty())
@@ -168,7 +175,7 @@ int run(const SweepCommandOptions& o) {
   if (interrupted_signal() != 0) return report_interrupted(kept);
   std::optional<FlutterReport> overlay;
   try {
-    overlay = sweep_overlay(c, req, cancel_flag());
+    overlay = overlay_future.get();
   } catch (const Cancelled&) {
     return report_interrupted(kept);
   }

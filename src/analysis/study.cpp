@@ -2,8 +2,8 @@
 
 #include <algorithm>
 #include <cmath>
+#include <exception>
 #include <filesystem>
-#include <future>
 #include <limits>
 #include <numbers>
 #include <sstream>
@@ -358,14 +358,20 @@ LcoSweepRun lco_sweep_stage(Study& s, int nl) {
   req.options.jobs = std::max(1, s.o.jobs);
   s.say(fmt::format("LCO sweep: {} speeds {:.4g}..{:.4g} m/s TAS, up and down", n, lo, hi));
   const Case sweep_case = parse_case(req.case_text, req.case_path, req.overrides);
-  // The overlay does not depend on the points: beside them with two jobs.
-  std::future<std::optional<FlutterReport>> overlay_future =
-      std::async(req.options.jobs >= 2 ? std::launch::async : std::launch::deferred,
-                 [&] { return sweep_overlay(sweep_case, req, s.cancel); });
-  run.points = run_sweep(req, {}, {}, s.cancel);
+  // The overlay does not depend on the points: one more work item of the
+  // sweep's threads.
+  std::optional<FlutterReport> overlay;
+  std::exception_ptr overlay_failure;
+  run.points = run_sweep(req, {}, {}, s.cancel, [&] {
+    try {
+      overlay = sweep_overlay(sweep_case, req, s.cancel);
+    } catch (...) {
+      overlay_failure = std::current_exception();
+    }
+  });
   run.tables = sweep_tables(req, sweep_case.model.section.dof);
-  const std::optional<FlutterReport> overlay = overlay_future.get();
   stop_if_cancelled(s.cancel);  // an interrupted sweep's points are not a map
+  if (overlay_failure) std::rethrow_exception(overlay_failure);
   write_sweep_file(s.path("sweep.h5"), sweep_case, req, run.points, overlay ? &*overlay : nullptr);
   s.R.hdf5_files.push_back("sweep.h5");
   s.part("lco-sweep", true,

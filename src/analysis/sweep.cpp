@@ -243,7 +243,7 @@ void check_swept_values(const SweepRequest& r) {
 
 std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<SweepPoint>& done,
                                   const std::function<void(const SweepPoint&)>& on_point,
-                                  const std::atomic<bool>* cancel) {
+                                  const std::atomic<bool>* cancel, const std::function<void()>& beside) {
   const SweepOptions& o = r.options;
   AEROSECT_CHECK(!o.axes.empty() && o.axes.size() <= 2);
   const int n1 = static_cast<int>(o.axes[0].values.size());
@@ -264,8 +264,15 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
   // Validate the swept values once, up front (bad input is an error before any work).
   check_swept_values(r);
   std::exception_ptr failure;
+  // Work item 0 is `beside` (when given), then one per chain.
+  const std::size_t first = beside ? 1 : 0;
 #pragma omp parallel for schedule(dynamic, 1) num_threads(std::max(1, o.jobs))
-  for (std::size_t c = 0; c < mine.size(); ++c) {
+  for (std::size_t item = 0; item < mine.size() + first; ++item) {
+    if (item < first) {
+      beside();
+      continue;
+    }
+    const std::size_t c = item - first;
     try {
       const Chain ch = mine[c];
       const SweepPoint* previous = nullptr;

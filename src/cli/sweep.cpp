@@ -5,7 +5,7 @@
 
 #include <chrono>
 #include <cstdio>
-#include <future>
+#include <exception>
 #include <iostream>
 #include <memory>
 #include <mutex>
@@ -158,12 +158,16 @@ int run(const SweepCommandOptions& o) {
     progress.point_done(++finished);
   };
   // The overlay (linear flutter speeds, describing-function curve) does not
-  // depend on the points: with two or more jobs it is computed beside them
-  // (the last points leave cores idle), else after them.
-  std::future<std::optional<FlutterReport>> overlay_future =
-      std::async(req.options.jobs >= 2 ? std::launch::async : std::launch::deferred,
-                 [&] { return sweep_overlay(c, req, cancel_flag()); });
-  const std::vector<SweepPoint> pts = run_sweep(req, done, on_point, cancel_flag());
+  // depend on the points: one more work item of the sweep's threads.
+  std::optional<FlutterReport> overlay;
+  std::exception_ptr overlay_failure;
+  const std::vector<SweepPoint> pts = run_sweep(req, done, on_point, cancel_flag(), [&] {
+    try {
+      overlay = sweep_overlay(c, req, cancel_flag());
+    } catch (...) {
+      overlay_failure = std::current_exception();
+    }
+  });
   progress.end();
   if (!journal_failure.empty())
     throw OutputError(journal.path(), fmt::format("writing a finished point failed ({}); the {} points "
@@ -173,9 +177,8 @@ int run(const SweepCommandOptions& o) {
   const std::string kept = fmt::format("{} finished points kept in {} (run the same command again to continue)",
                                       finished, journal.path());
   if (interrupted_signal() != 0) return report_interrupted(kept);
-  std::optional<FlutterReport> overlay;
   try {
-    overlay = overlay_future.get();
+    if (overlay_failure) std::rethrow_exception(overlay_failure);
   } catch (const Cancelled&) {
     return report_interrupted(kept);
   }

@@ -157,7 +157,8 @@ with tempfile.TemporaryDirectory() as tmp:
 
     # ------------------------------------------------------------------- sweep
     sweep_args = ["sweep", DEMO, "--vary", "flow.airspeed=20:60:10", "--jobs", "2",
-                  "--set", "simulation.duration=5", "--set", "simulation.max_step=1e-5"]
+                  "--set", "simulation.duration=5", "--set", "simulation.max_step=1e-5",
+                  "--set", "simulation.stepper=dopri5"]  # max_step slows adaptive steppers only
     for sig, want in SIGNALS:
         name = f"sweep {sig.name}"
         d = os.path.join(tmp, f"sweep_{sig.name}")
@@ -215,7 +216,8 @@ with tempfile.TemporaryDirectory() as tmp:
     # ------------------------------------------------------------------- study
     # An engine stage (the LCO sweep), then the figures stage with a plotting
     # tool that writes half a figure and waits.
-    study_args = ["--jobs", "2", "--sweep-points", "6", "--set", "simulation.max_step=1e-4"]
+    study_args = ["--jobs", "2", "--sweep-points", "6", "--set", "simulation.max_step=1e-4",
+                  "--set", "simulation.stepper=dopri5"]  # max_step slows adaptive steppers only
     for sig, want in SIGNALS:
         name = f"study (LCO sweep) {sig.name}"
         d = os.path.join(tmp, f"study_{sig.name}")

@@ -124,10 +124,13 @@ std::string sweep_gust_note(const Case& c, const SweepRequest& r);
 
 // Runs every chain; returns all points (done ones included), sorted by
 // (direction, j, i). Throws InputError when a swept value is rejected by the
-// case reader (check_swept_values).
+// case reader (check_swept_values). `beside`, when given, is one more work
+// item for the same `jobs` threads, taken first (e.g. the overlay, which
+// does not depend on the points); it must not throw.
 std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<SweepPoint>& done,
                                   const std::function<void(const SweepPoint&)>& on_point,
-                                  const std::atomic<bool>* cancel = nullptr);
+                                  const std::atomic<bool>* cancel = nullptr,
+                                  const std::function<void()>& beside = {});
 
 // Most values per axis, and most points in one sweep (both directions, the
 // whole grid): each point is a run, and the map holds every point's rows.

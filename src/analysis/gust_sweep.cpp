@@ -76,7 +76,9 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
       for (const auto& p : out.points) {
         const Extreme& e = p.summary.extremes[k];
         for (auto [v, t] : {std::pair{e.max, e.time_of_max}, std::pair{e.min, e.time_of_min}}) {
-          if (std::abs(v) > best) {
+          // Equal to round-off (an unsized gust's own peak is the same at
+          // every H): the first, shortest gradient stays critical.
+          if (std::abs(v) > best * (1 + 1e-12)) {
             best = std::abs(v);
             cr.gradient = p.gradient;
             cr.value = v;

@@ -1,8 +1,10 @@
 #include "aerosect/analysis/simulate.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 
+#include <boost/math/tools/minima.hpp>
 #include <fmt/format.h>
 
 #include "aerosect/error.hpp"
@@ -255,9 +257,11 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     run.regions = model.regions_of(run.x.data());
   }
 
-  auto observer = [&](double t, const std::vector<double>& x) {
-    model.rhs(x.data(), dxdt.data(), t, run.regions, run.input_segment);
-    const Loads l = model.loads(x.data(), dxdt.data(), t, run.input_segment);
+  // One output row from a state (the regions and input segment those of
+  // the state and time).
+  auto fill_row = [&](double t, const std::vector<double>& x, std::span<const int> regions, int segment) {
+    model.rhs(x.data(), dxdt.data(), t, regions, segment);
+    const Loads l = model.loads(x.data(), dxdt.data(), t, segment);
     int k = 0;
     row[k++] = U_over_b * t;
     for (int j = 0; j < L.n_dof; ++j) row[k++] = x[L.displacement + j];
@@ -272,21 +276,84 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     row[k++] = l.pitching_moment;
     if (L.n_dof == 3) row[k++] = l.hinge_moment;
     row[k++] = l.effective_downwash;
-    for (const auto& tr : tracked) {
-      Extreme& e = summary.extremes[tr.extreme];
-      const double v = row[tr.column];
-      if (v > e.max) { e.max = v; e.time_of_max = t; }
-      if (v < e.min) { e.min = v; e.time_of_min = t; }
+  };
+  // Extremes: the largest and smallest sample of each tracked channel, and
+  // the sample before it (where the search for the true extremum between
+  // the samples around it starts, after the run).
+  struct SampleState {
+    double t = 0;
+    std::vector<double> x;
+  };
+  std::vector<SampleState> from_max(tracked.size()), from_min(tracked.size());
+  SampleState previous;
+  bool have_previous = false;
+  auto observer = [&](double t, const std::vector<double>& x) {
+    fill_row(t, x, run.regions, run.input_segment);
+    for (std::size_t i = 0; i < tracked.size(); ++i) {
+      Extreme& e = summary.extremes[tracked[i].extreme];
+      const double v = row[tracked[i].column];
+      if (v > e.max) {
+        e.max = v;
+        e.time_of_max = t;
+        from_max[i] = have_previous ? previous : SampleState{t, x};
+      }
+      if (v < e.min) {
+        e.min = v;
+        e.time_of_min = t;
+        from_min[i] = have_previous ? previous : SampleState{t, x};
+      }
       e.rms += v * v;  // sum of squares until the end of the run
     }
+    previous.t = t;
+    previous.x = x;
+    have_previous = true;
     sink.append(t, row);
     return ObserverAction::kContinue;
+  };
+
+  // The true extremum of channel i near its extreme sample: the channel's
+  // value on the trajectory restarted from the sample before it (integrated
+  // at the case's settings), maximised by Brent's method (Boost.Math) over
+  // the two sample intervals around the extreme sample (one interval at
+  // either end of the run). Kept only when it exceeds the sample.
+  const double interval = set.output.every_step ? 0.0 : set.output.interval;
+  auto refine = [&](std::size_t i, const SampleState& from, double sign) {
+    Extreme& e = summary.extremes[tracked[i].extreme];
+    double& best = sign > 0 ? e.max : e.min;
+    double& at = sign > 0 ? e.time_of_max : e.time_of_min;
+    if (from.x.empty() || !(interval > 0)) return;
+    const double lo = from.t, hi = std::min(at + interval, run.time);
+    if (!(hi > lo)) return;
+    auto value = [&](double t) {
+      RunState r;
+      r.time = from.t;
+      r.x = from.x;
+      r.regions = model.regions_of(from.x.data());
+      r.input_segment = model.gusts().segment_of(from.t);
+      integrate(model, r, t, set.integrator, OutputSchedule::none());
+      fill_row(r.time, r.x, r.regions, r.input_segment);
+      return -sign * row[tracked[i].column];
+    };
+    const auto [t_best, v_best] =
+        boost::math::tools::brent_find_minima(value, lo, hi, std::numeric_limits<double>::digits / 2);
+    const double candidate = -sign * v_best;  // the channel's value there
+    if (sign * candidate > sign * best) {
+      best = candidate;
+      at = t_best;
+    }
   };
 
   RunOutcome outcome;
   auto fill_outcome = [&]() {
     for (auto& e : summary.extremes)
       e.rms = run.samples > 0 ? std::sqrt(e.rms / static_cast<double>(run.samples)) : 0.0;
+    for (const auto& e : summary.extremes)
+      if (std::isfinite(e.max) && std::isfinite(e.min)) {
+        outcome.numbers.push_back({e.channel + "_max", e.max});
+        outcome.numbers.push_back({e.channel + "_time_of_max", e.time_of_max});
+        outcome.numbers.push_back({e.channel + "_min", e.min});
+        outcome.numbers.push_back({e.channel + "_time_of_min", e.time_of_min});
+      }
     summary.end_time = run.time;
     summary.end_tau = U_over_b * run.time;
     summary.steps = run.steps;
@@ -296,10 +363,11 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     outcome.completed = summary.completed;
     outcome.status = summary.status;
     outcome.samples = run.samples;
-    outcome.numbers = {{"end_time", summary.end_time},
-                       {"steps", static_cast<double>(run.steps)},
-                       {"rhs_evaluations", static_cast<double>(run.rhs_evaluations)},
-                       {"switches", static_cast<double>(run.switches)}};
+    outcome.numbers.insert(outcome.numbers.begin(),
+                           {{"end_time", summary.end_time},
+                            {"steps", static_cast<double>(run.steps)},
+                            {"rhs_evaluations", static_cast<double>(run.rhs_evaluations)},
+                            {"switches", static_cast<double>(run.switches)}});
   };
   try {
     const IntegrationResult r =
@@ -308,6 +376,18 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     summary.status = r.reason == StopReason::kEndTime    ? "completed"
                      : r.reason == StopReason::kCancelled ? "cancelled"
                                                           : "stopped";
+    if (r.reason != StopReason::kCancelled)
+      for (std::size_t i = 0; i < tracked.size(); ++i) {
+        // A restart that fails numerically leaves the sample's extreme.
+        try {
+          refine(i, from_max[i], 1.0);
+        } catch (const NumericalError&) {
+        }
+        try {
+          refine(i, from_min[i], -1.0);
+        } catch (const NumericalError&) {
+        }
+      }
   } catch (const NumericalError& e) {
     summary.completed = false;
     summary.status = std::string("numerical-error: ") + e.what();

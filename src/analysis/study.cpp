@@ -503,7 +503,7 @@ void lco_history_stage(Study& s, const SweepPoint& worst, const std::string& whe
   for (const auto& e : hs.extremes)
     if (e.channel == "hinge_moment")
       s.rows.add("lco_hinge_moment", "  aerodynamic hinge moment at that LCO, largest |value|",
-                 std::max(std::abs(e.max), std::abs(e.min)), "N m/m", "lco.h5: hinge_moment (largest |sample|)");
+                 std::max(std::abs(e.max), std::abs(e.min)), "N m m-1", "lco.h5@hinge_moment_max, @hinge_moment_min (the trajectory's extremes)");
 }
 
 // ---------------------------------------------------------------------------
@@ -868,7 +868,7 @@ void lco_orbit_history_stage(Study& s, const LcoBranchRun& r, const std::string&
   for (const auto& e : hs.extremes)
     if (e.channel == "hinge_moment")
       s.rows.add("lco_hinge_moment", "  aerodynamic hinge moment at that LCO, largest |value|",
-                 std::max(std::abs(e.max), std::abs(e.min)), "N m m-1", "lco.h5: hinge_moment (largest |sample|)");
+                 std::max(std::abs(e.max), std::abs(e.min)), "N m m-1", "lco.h5@hinge_moment_max, @hinge_moment_min (the trajectory's extremes)");
 }
 
 // The LCO sweep, its rows and the history of its largest LCO.

@@ -39,7 +39,9 @@ bool exact_propagation_eligible(const ModelDescription& d, std::string* why) {
   return true;
 }
 
-namespace {
+// Named (not anonymous): the unity build compiles this file with
+// integrator.cpp, whose own Witness is in its anonymous namespace.
+namespace exact_detail {
 
 // At most kMaxAugmented rows (the largest state, 3 DOFs with 8 Wagner and 8
 // Kussner lag states, is 23 long): fixed-capacity storage, no heap traffic.
@@ -380,7 +382,7 @@ class ExactRun {
   std::vector<std::pair<double, int>> found_;  // a step's peaks (time, DOF)
 };
 
-}  // namespace
+}  // namespace exact_detail
 
 IntegrationResult integrate_exact(const AeroelasticModel& model, RunState& run, double t_end,
                                   const OutputSchedule& schedule, const RunObservers& observers) {
@@ -388,7 +390,7 @@ IntegrationResult integrate_exact(const AeroelasticModel& model, RunState& run, 
   AEROSECT_CHECK(static_cast<int>(run.x.size()) == model.state_size());
   AEROSECT_CHECK(!run.track_monodromy || run.monodromy.size() == run.x.size() * run.x.size());
   if (run.regions.empty()) run.regions = model.regions_of(run.x.data());
-  return ExactRun(model, run, t_end, schedule, observers)();
+  return exact_detail::ExactRun(model, run, t_end, schedule, observers)();
 }
 
 }  // namespace aerosect

@@ -2,8 +2,10 @@
 // Discrete-gust gradient sweep: the case's one-minus-cosine gusts are run
 // with each gust gradient H in turn (regulation-sized gusts re-sized by
 // CS-25.341(a) for every H), and the peak loads and excursions are
-// collected; the critical H of each quantity is the one with the largest
-// magnitude. Runs are independent (one model and run state each).
+// collected (the true extremes of each run, simulate.hpp); the critical H
+// of each quantity is the one with the largest magnitude (of magnitudes
+// equal to 1e-12, the shortest H). Runs are independent (one model and run
+// state each).
 
 #include <atomic>
 #include <string>

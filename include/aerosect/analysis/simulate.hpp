@@ -1,8 +1,9 @@
 #pragma once
 // Time response of a case to its initial conditions: integrates the model,
 // hands every sample (time; displacements, velocities, lag states, loads) to
-// a sink, and returns a summary of the run (extremes and their times,
-// integration counters). A numerical failure still finishes the sink (marked
+// a sink, and returns a summary of the run (true extremes and their times,
+// integration counters; the sink's outcome carries them as numbers
+// <channel>_max, _time_of_max, _min, _time_of_min). A numerical failure still finishes the sink (marked
 // incomplete) before the error propagates, so what was computed is kept.
 
 #include <atomic>
@@ -16,6 +17,12 @@
 
 namespace aerosect {
 
+// Largest and smallest value of a channel over the run: the true extrema
+// of the trajectory, not of the output samples. The largest (smallest)
+// sample is refined by Brent's method over the two sample intervals around
+// it, each value from the trajectory restarted at the sample before it
+// (at the case's integrator settings; every_step output: the samples are the
+// steps, not refined). Times in s.
 struct Extreme {
   std::string channel;  // e.g. "pitch"
   std::string units;

@@ -95,8 +95,9 @@ nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r,
   return j;
 }
 
-std::string speed_text(const Crossing& x, const FlutterReport& r) {
+std::string speed_text(const Crossing& x, const FlutterReport& r, const Presenter& pr) {
   if (!x.found) return "none in range";
+  if (pr.reduced) return fmt::format("U* {:.6g}", x.speed / r.reference_speed);
   return fmt::format("{:.6g} m/s (U/b w_a {:.5g})", x.speed, x.speed / r.reference_speed);
 }
 
@@ -117,28 +118,28 @@ std::vector<std::size_t> printed_rows(const LcoPrediction& p, const LcoBranch& b
 
 }  // namespace
 
-std::string lco_prediction_text(const LcoPrediction& p) {
+std::string lco_prediction_text(const LcoPrediction& p, const Presenter& pr) {
   const bool angle = p.spring != kPlunge;
   const double unit = angle ? kDegPerRad : 1.0;
   const char* au = angle ? "deg" : "m";
   std::string t = fmt::format("\nDescribing-function LCO prediction ({} spring; near-harmonic, about zero):\n",
                               dof_name(p.spring));
-  t += fmt::format("  {:>13} {:>12} {:>10} {:>6}  {}\n", angle ? "amplitude deg" : "amplitude m", "speed m/s",
-                   "freq Hz", "branch", "stable");
+  t += fmt::format("  {:>13} {:>12} {:>10} {:>6}  {}\n", angle ? "amplitude deg" : "amplitude m", pr.speed_heading(),
+                   pr.frequency_heading(), "branch", "stable");
   for (const LcoBranch& b : p.branches)
     for (const std::size_t i : printed_rows(p, b)) {
       const auto& pt = p.points[i];
-      t += fmt::format("  {:>13.5g} {:>12.5g} {:>10.4g} {:>6}  {}\n", pt.amplitude * unit, pt.speed,
-                       pt.frequency / (2 * pi), pt.branch, pt.stable ? "yes" : "no");
+      t += fmt::format("  {:>13.5g} {:>12.5g} {:>10.4g} {:>6}  {}\n", pt.amplitude * unit, pr.speed_value(pt.speed),
+                       pr.frequency_value(pt.frequency / (2 * pi)), pt.branch, pt.stable ? "yes" : "no");
     }
   double lo = std::numeric_limits<double>::infinity(), hi = 0;
   for (std::size_t k = 0; k < p.branches.size(); ++k) {
     const LcoBranch& b = p.branches[k];
     const auto& first = p.points[b.first];
     const auto& last = p.points[b.first + b.count - 1];
-    t += fmt::format("  branch {}: {} points, {:.5g} {} at {:.5g} m/s ({}) .. {:.5g} {} at {:.5g} m/s ({})\n", k,
-                     b.count, first.amplitude * unit, au, first.speed,
-                     b.closed ? "closed curve" : to_string(b.start), last.amplitude * unit, au, last.speed,
+    t += fmt::format("  branch {}: {} points, {:.5g} {} at {} ({}) .. {:.5g} {} at {} ({})\n", k,
+                     b.count, first.amplitude * unit, au, pr.speed(first.speed),
+                     b.closed ? "closed curve" : to_string(b.start), last.amplitude * unit, au, pr.speed(last.speed),
                      b.closed ? "closed curve" : to_string(b.end));
     // Each stable run: its lowest and highest speed, the amplitude there
     // and why the range ends there.
@@ -159,9 +160,9 @@ std::string lco_prediction_text(const LcoPrediction& p) {
         if (p.points[i].speed < p.points[a].speed) a = i;
         if (p.points[i].speed > p.points[z].speed) z = i;
       }
-      t += fmt::format("    stable from {:.5g} m/s ({:.5g} {}; {}) to {:.5g} m/s ({:.5g} {}; {})\n",
-                       p.points[a].speed, p.points[a].amplitude * unit, au, why(a, r0, r1), p.points[z].speed,
-                       p.points[z].amplitude * unit, au, why(z, r0, r1));
+      t += fmt::format("    stable from {} ({:.5g} {}; {}) to {} ({:.5g} {}; {})\n",
+                       pr.speed(p.points[a].speed), p.points[a].amplitude * unit, au, why(a, r0, r1),
+                       pr.speed(p.points[z].speed), p.points[z].amplitude * unit, au, why(z, r0, r1));
       lo = std::min(lo, p.points[a].speed);
       hi = std::max(hi, p.points[z].speed);
       any = true;
@@ -181,9 +182,9 @@ std::string lco_prediction_text(const LcoPrediction& p) {
                      p.equivalent_divergence.size(), a0 * unit, a1 * unit, au);
   }
   if (std::isfinite(lo))
-    t += fmt::format("  stable LCO predicted between {:.5g} and {:.5g} m/s (on the branches above, not "
+    t += fmt::format("  stable LCO predicted between {} and {} (on the branches above, not "
                      "throughout)\n",
-                     lo, hi);
+                     pr.speed(lo), pr.speed(hi));
   else
     t += "  no stable LCO predicted\n";
   t += fmt::format("  amplitudes searched up to {:.5g} {} (the physical amplitude limit)\n",
@@ -342,6 +343,7 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
 }
 
 std::string flutter_text(const Case& c, const FlutterReport& r, const std::string& output) {
+  const Presenter pr = presenter(c);
   std::string t;
   t += fmt::format("aerosect {} flutter: {}\n", kVersion, c.path);
   if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
@@ -351,8 +353,11 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
                    r.reference_frequency / (2 * pi));
   if (!r.results.empty() && !r.results.front().methods.empty()) {
     const auto& sp = r.results.front().methods.front().sweep.speeds;
-    t += fmt::format("  {} speeds from {:.4g} to {:.4g} m/s (true airspeed)\n", sp.size(),
-                     sp.front(), sp.back());
+    t += pr.reduced ? fmt::format("  {} speeds from U* {:.4g} to {:.4g} (U* = U / (b w_a); the file also "
+                                  "holds them in m/s at the reference scales above)\n",
+                                  sp.size(), pr.speed_value(sp.front()), pr.speed_value(sp.back()))
+                    : fmt::format("  {} speeds from {:.4g} to {:.4g} m/s (true airspeed)\n", sp.size(),
+                                  sp.front(), sp.back());
   }
   t += "  modes:";
   for (std::size_t i = 0; i < r.mode_names.size(); ++i)
@@ -373,8 +378,12 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
     }
     for (const auto& m : lr.methods) {
       t += fmt::format("  {:<12} ({})\n", m.method, aero_label(c, m.method));
-      t += fmt::format("    flutter     {}", speed_text(m.flutter, r));
-      if (m.flutter.found)
+      t += fmt::format("    flutter     {}", speed_text(m.flutter, r, pr));
+      if (m.flutter.found && pr.reduced)
+        t += fmt::format(", w/w_a {:.4f}, k = {:.4f}, tracked from mode {} ({})",
+                         m.flutter.frequency / r.reference_frequency, m.flutter.reduced_frequency,
+                         m.flutter.mode + 1, lr.mode_names[static_cast<std::size_t>(m.flutter.mode)]);
+      else if (m.flutter.found)
         t += fmt::format(", EAS {:.5g} m/s, {:.5g} Hz (w/w_a {:.4f}), k = {:.4f}, tracked from mode {} ({})",
                          equivalent_airspeed(m.flutter.speed, r.density),
                          m.flutter.frequency / (2 * pi),
@@ -385,7 +394,7 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
         t += fmt::format("                shape {} ({}-dominated)\n", shape_text(m.flutter.shape),
                          dof_name(dominant_dof(m.flutter.shape, structural_mass(c.model.section),
                                                c.model.section.semichord)));
-      t += fmt::format("    divergence  {}\n", speed_text(m.divergence, r));
+      t += fmt::format("    divergence  {}\n", speed_text(m.divergence, r, pr));
     }
     const MethodResult* ss = find_method(lr, "state-space");
     const MethodResult* pk = find_method(lr, "p-k");
@@ -401,10 +410,10 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
     const MethodResult* b = primary(*closed);
     t += "\nFreeplay: limit-cycle oscillation can exist between the gap-open and gap-closed "
          "flutter speeds:\n";
-    t += fmt::format("  gap open {}  ..  gap closed {}\n", a ? speed_text(a->flutter, r) : "-",
-                     b ? speed_text(b->flutter, r) : "-");
+    t += fmt::format("  gap open {}  ..  gap closed {}\n", a ? speed_text(a->flutter, r, pr) : "-",
+                     b ? speed_text(b->flutter, r, pr) : "-");
   }
-  if (r.lco.available) t += lco_prediction_text(r.lco);
+  if (r.lco.available) t += lco_prediction_text(r.lco, pr);
   const FlutterMargin fm = flutter_margin(r);
   if (fm.available) {
     t += fmt::format("\nMargin (CS-25.629(b) / 14 CFR 25.629(b)): V_D = {:.5g} m/s EAS, 1.15 V_D = "

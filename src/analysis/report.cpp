@@ -30,6 +30,31 @@ nlohmann::json parameters_json(const RunMetadata& m) {
 
 }  // namespace
 
+Presenter presenter(const Case& c) {
+  Presenter p;
+  p.reduced = c.input_form != "si";
+  p.omega_ref = uncoupled_frequencies(c.model.section).pitch;
+  if (!(p.omega_ref > 0)) p.omega_ref = 1;
+  p.length_ref = c.model.section.semichord;
+  p.speed_ref = p.length_ref * p.omega_ref;
+  return p;
+}
+
+std::string Presenter::speed(double u, const char* what) const {
+  if (reduced) return fmt::format("U* {:.5g}", u / speed_ref);
+  return fmt::format("{:.5g} m/s{}{}", u, *what ? " " : "", what);
+}
+
+std::string Presenter::frequency(double f_hz) const {
+  if (reduced) return fmt::format("w/w_a {:.4g}", frequency_value(f_hz));
+  return fmt::format("{:.4g} Hz", f_hz);
+}
+
+std::string Presenter::length(double m) const {
+  if (reduced) return fmt::format("{:.4g} semichords", m / length_ref);
+  return fmt::format("{:.4g} m", m);
+}
+
 nlohmann::json report_header(const Case& c, const char* command) {
   nlohmann::json j;
   j["command"] = command;

@@ -21,6 +21,7 @@
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/analysis/sweep.hpp"
 #include "aerosect/error.hpp"
+#include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/io/hdf5_writer.hpp"
 #include "aerosect/io/text_file.hpp"
 #include "aerosect/units.hpp"
@@ -179,6 +180,7 @@ struct Study {
     si = c.input_form == "si";
     rho = c.model.flow.density;
     if (c.dive_speed_eas) vd_tas = true_airspeed(*c.dive_speed_eas, rho);
+    pr = presenter(c);
   }
   const Case& c;
   const StudyOptions& o;
@@ -191,6 +193,25 @@ struct Study {
   std::optional<double> vd_tas;  // V_D, m/s TAS
   CheckReport check;             // from the check stage
   FlutterReport flutter;         // from the flutter stage
+  Presenter pr;                  // SI, or U* and w/w_a for a nondimensional case
+
+  // A speed (m/s TAS) as the report states it: "12.3 m/s TAS" or "U* 1.23".
+  std::string v(double u) const { return pr.reduced ? "U* " + sig4(u / pr.speed_ref) : sig4(u) + " m/s TAS"; }
+  std::string range(double a, double b) const {
+    return pr.reduced ? fmt::format("U* {} .. {}", sig4(a / pr.speed_ref), sig4(b / pr.speed_ref))
+                      : fmt::format("{} .. {} m/s TAS", sig4(a), sig4(b));
+  }
+  // Its EAS for a note (nothing for a nondimensional case).
+  std::string eas(double u) const { return pr.reduced ? "" : fmt::format("{:.4g} m/s EAS", equivalent_airspeed(u, rho)); }
+  // A row holding a speed: m/s TAS, or U* (the file's m/s over the
+  // reference speed b w_a) for a nondimensional case.
+  void speed_row(std::string id, std::string quantity, double u, std::string source, std::string note = {}) {
+    if (pr.reduced)
+      rows.add(std::move(id), std::move(quantity), u / pr.speed_ref, "U*",
+               source + " / (b w_a) = " + fmt::format("{:.6g}", pr.speed_ref) + " m/s", std::move(note));
+    else
+      rows.add(std::move(id), std::move(quantity), u, "m/s TAS", std::move(source), std::move(note));
+  }
 
   void say(const std::string& s) const {
     if (progress_) progress_(s);
@@ -220,14 +241,14 @@ void flutter_rows(Study& s, Linearisation l, const std::string& label, const std
     if (!m) continue;
     const std::string mid = flutter_method_group(method);
     if (m->flutter.found) {
-      s.rows.add(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method), m->flutter.speed,
-                 "m/s TAS", flutter_source(l, method, "flutter_speed"),
-                 fmt::format("{:.4g} m/s EAS, {:.4g} Hz", equivalent_airspeed(m->flutter.speed, s.rho),
-                             m->flutter.frequency / (2 * std::numbers::pi)));
+      s.speed_row(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method), m->flutter.speed,
+                  flutter_source(l, method, "flutter_speed"),
+                  s.pr.reduced ? s.pr.frequency(m->flutter.frequency / (2 * std::numbers::pi))
+                               : fmt::format("{}, {:.4g} Hz", s.eas(m->flutter.speed),
+                                             m->flutter.frequency / (2 * std::numbers::pi)));
     } else {
       s.rows.text(id + "_flutter_" + mid, fmt::format("{} flutter speed ({})", label, method),
-                  fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
-                  flutter_source(l, method, "flutter_found"));
+                  "none up to " + s.v(m->sweep.speeds.back()), flutter_source(l, method, "flutter_found"));
     }
   }
 }
@@ -244,19 +265,18 @@ void flutter_stage(Study& s) {
   std::string lins;
   for (const auto& lr : fr.results) lins += (lins.empty() ? "" : ", ") + std::string(to_string(lr.linearisation));
   s.part("flutter", true,
-         fmt::format("state-space and p-k over {} speeds up to {:.4g} m/s TAS; linearisations: {}",
+         fmt::format("state-space and p-k over {} speeds up to {}; linearisations: {}",
                      fr.results.front().methods.front().sweep.speeds.size(),
-                     fr.results.front().methods.front().sweep.speeds.back(), lins),
+                     s.v(fr.results.front().methods.front().sweep.speeds.back()), lins),
          {"flutter.h5"});
   flutter_rows(s, Linearisation::kNominal, "Linear", "linear");
   if (const MethodResult* m = method_of(fr, Linearisation::kNominal, "state-space")) {
     if (m->divergence.found)
-      s.rows.add("divergence", "Divergence speed (state-space)", m->divergence.speed, "m/s TAS",
-                 flutter_source(Linearisation::kNominal, "state-space", "divergence_speed"),
-                 fmt::format("{:.4g} m/s EAS", equivalent_airspeed(m->divergence.speed, s.rho)));
+      s.speed_row("divergence", "Divergence speed (state-space)", m->divergence.speed,
+                  flutter_source(Linearisation::kNominal, "state-space", "divergence_speed"), s.eas(m->divergence.speed));
     else
       s.rows.text("divergence", "Divergence speed (state-space)",
-                  fmt::format("none up to {:.4g} m/s TAS", m->sweep.speeds.back()),
+                  "none up to " + s.v(m->sweep.speeds.back()),
                   flutter_source(Linearisation::kNominal, "state-space", "divergence_found"));
   }
   const FlutterMargin fm = flutter_margin(fr);
@@ -356,7 +376,7 @@ LcoSweepRun lco_sweep_stage(Study& s, int nl) {
   req.options.up = req.options.down = true;
   req.options.continuation = true;
   req.options.jobs = std::max(1, s.o.jobs);
-  s.say(fmt::format("LCO sweep: {} speeds {:.4g}..{:.4g} m/s TAS, up and down", n, lo, hi));
+  s.say(fmt::format("LCO sweep: {} speeds {}, up and down", n, s.range(lo, hi)));
   const Case sweep_case = parse_case(req.case_text, req.case_path, req.overrides);
   // The overlay does not depend on the points: one more work item of the
   // sweep's threads.
@@ -375,9 +395,9 @@ LcoSweepRun lco_sweep_stage(Study& s, int nl) {
   write_sweep_file(s.path("sweep.h5"), sweep_case, req, run.points, overlay ? &*overlay : nullptr);
   s.R.hdf5_files.push_back("sweep.h5");
   s.part("lco-sweep", true,
-         fmt::format("{} speeds from {:.4g} to {:.4g} m/s TAS, up and down with continuation; runs of up "
+         fmt::format("{} speeds {}, up and down with continuation; runs of up "
                      "to {:.4g} s; {}; gusts removed",
-                     n, lo, hi, sweep_duration, disturbance_note),
+                     n, s.range(lo, hi), sweep_duration, disturbance_note),
          {"sweep.h5"});
   return run;
 }
@@ -390,20 +410,18 @@ void lco_sweep_rows(Study& s, const LcoSweepRun& run) {
   const std::string& cls = run.tables.field("response_class").name;
   const std::string key_note = s.si ? "" : fmt::format(" (U* = value x {:.4g} m/s)", s.flutter.reference_speed);
   if (sm.onset_up)
-    s.rows.add("lco_onset_up", "LCO onset, sweeping up", *sm.onset_up / per, "m/s TAS",
-               "sweep.h5: first " + cls + " = 1 at direction 0" + key_note,
-               fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*sm.onset_up / per, s.rho)));
+    s.speed_row("lco_onset_up", "LCO onset, sweeping up", *sm.onset_up / per,
+                "sweep.h5: first " + cls + " = 1 at direction 0" + key_note, s.eas(*sm.onset_up / per));
   else
     s.rows.text("lco_onset_up", "LCO onset, sweeping up", "no LCO found", "sweep.h5: " + cls);
   if (sm.disappearance_down)
-    s.rows.add("lco_persists_down", "LCO persists, sweeping down, to", *sm.disappearance_down / per, "m/s TAS",
-               "sweep.h5: lowest " + cls + " = 1 at direction 1" + key_note,
-               fmt::format("{:.4g} m/s EAS", equivalent_airspeed(*sm.disappearance_down / per, s.rho)));
+    s.speed_row("lco_persists_down", "LCO persists, sweeping down, to", *sm.disappearance_down / per,
+                "sweep.h5: lowest " + cls + " = 1 at direction 1" + key_note, s.eas(*sm.disappearance_down / per));
   else
     s.rows.text("lco_persists_down", "LCO persists, sweeping down, to", "no LCO found", "sweep.h5: " + cls);
   if (sm.onset_up && sm.disappearance_down && *sm.disappearance_down < *sm.onset_up)
     s.rows.text("hysteresis", "Hysteresis band",
-                fmt::format("{} .. {} m/s TAS", sig4(*sm.disappearance_down / per), sig4(*sm.onset_up / per)),
+                s.range(*sm.disappearance_down / per, *sm.onset_up / per),
                 "sweep.h5: " + cls + ", both directions");
   else
     s.rows.text("hysteresis", "Hysteresis band", "none seen at this speed spacing",
@@ -421,7 +439,7 @@ void lco_sweep_rows(Study& s, const LcoSweepRun& run) {
     }
   if (first)
     s.rows.text("lco_range", "LCO found between (either direction)",
-                fmt::format("{} .. {} m/s TAS", sig4(*first / per), sig4(*last / per)), "sweep.h5: " + cls + " = 1",
+                s.range(*first / per, *last / per), "sweep.h5: " + cls + " = 1",
                 s.vd_tas && *first / per <= *s.vd_tas ? "inside the envelope (at or below V_D)" : "");
   else
     s.rows.text("lco_range", "LCO found between (either direction)", "no LCO in the sweep", "sweep.h5: " + cls);
@@ -448,8 +466,8 @@ void largest_lco_rows(Study& s, const SweepPoint& worst, const SweepTables& t, c
   s.rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDofNames[w]), angle ? a * kDegPerRad : a,
              angle ? "deg" : "m",
              "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_amplitude", worst) + (angle ? " (rad in the file)" : ""),
-             fmt::format("at {:.4g} m/s TAS sweeping {}, {:.4g} Hz", worst.value1 / per,
-                         worst.direction == 0 ? "up" : "down", worst.lco.frequency));
+             fmt::format("at {} sweeping {}, {}", s.v(worst.value1 / per), worst.direction == 0 ? "up" : "down",
+                         s.pr.frequency(worst.lco.frequency)));
   if (worst.cycle.samples > 0) {
     const DofHarmonics& h = worst.cycle.dof[static_cast<std::size_t>(w)];
     s.rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDofNames[w]), angle ? h.rms * kDegPerRad : h.rms,
@@ -480,7 +498,7 @@ void largest_lco_rows(Study& s, const SweepPoint& worst, const SweepTables& t, c
 // Time history of the largest LCO, from the sweep point's final state.
 void lco_history_stage(Study& s, const SweepPoint& worst, const std::string& where, const LcoSweepRun& run) {
   const Case& c = s.c;
-  s.say(fmt::format("LCO time history at {:.4g} m/s TAS", worst.value1 / run.per));
+  s.say("LCO time history at " + s.v(worst.value1 / run.per));
   const double period = 1.0 / worst.lco.frequency;
   Derivation hv;
   hv.duration = 10 * period;
@@ -497,8 +515,8 @@ void lco_history_stage(Study& s, const SweepPoint& worst, const std::string& whe
   stop_if_cancelled(s.cancel);  // the partial run is lco.incomplete.h5
   s.R.hdf5_files.push_back("lco.h5");
   s.part("lco-history", hs.completed,
-         fmt::format("10 cycles of the largest LCO {} ({:.4g} m/s TAS), started from the sweep point's final state",
-                     where, worst.value1 / run.per),
+         fmt::format("10 cycles of the largest LCO {} ({}), started from the sweep point's final state", where,
+                     s.v(worst.value1 / run.per)),
          {"lco.h5"});
   for (const auto& e : hs.extremes)
     if (e.channel == "hinge_moment")
@@ -696,7 +714,9 @@ LcoBranchRun lco_branch_stage(Study& s, const LcoSweepRun& run, const std::pair<
   bo.from = speeds.first * run.per;
   bo.to = hi * run.per;
   bo.max_points = 400;
-  bo.max_step = 0.02;  // a smooth curve for the figure (scaled arclength)
+  // A smoother curve for the figure than the default step 0.25 (scaled
+  // arclength): short steps where orbits are cheap (exact propagation).
+  bo.max_step = exact_propagation_eligible(bc.model) ? 0.02 : 0.1;
   // A settled periodic sweep point seeds the branch (the largest one);
   // without one the continuation chooses its own start.
   const SweepPoint* seed = nullptr;
@@ -711,7 +731,7 @@ LcoBranchRun lco_branch_stage(Study& s, const LcoSweepRun& run, const std::pair<
     bo.march_state = seed->final_state;
     bo.orbit.watched_dof = seed->lco.watched_dof;
   }
-  s.say(fmt::format("LCO branch: orbits continued in {} from {:.4g} to {:.4g} m/s TAS", run.key, speeds.first, hi));
+  s.say(fmt::format("LCO branch: orbits continued in {} over {}", run.key, s.range(speeds.first, hi)));
   r.branch = continue_branch(bc, bo, s.cancel);
   stop_if_cancelled(s.cancel);
   const Branch& b = r.branch;
@@ -731,31 +751,31 @@ LcoBranchRun lco_branch_stage(Study& s, const LcoSweepRun& run, const std::pair<
     return r;
   }
   s.rows.text("lco_branch", "LCO branch (converged orbits, stable and unstable)",
-              fmt::format("{} orbits, {} .. {} m/s TAS", b.points.size(),
-                          sig4(airspeed_range(b, {false, 0, b.points.size() - 1}).first),
-                          sig4(airspeed_range(b, {false, 0, b.points.size() - 1}).second)),
+              fmt::format("{} orbits, {}", b.points.size(),
+                          s.range(airspeed_range(b, {false, 0, b.points.size() - 1}).first,
+                                  airspeed_range(b, {false, 0, b.points.size() - 1}).second)),
               "branch.h5: airspeed", b.start_detail);
   const auto segs = stability_segments(b);
   std::string stable_txt, unstable_txt;
   for (const auto& g : segs) {
     const auto [lo, hi2] = airspeed_range(b, g);
     std::string& t = g.stable ? stable_txt : unstable_txt;
-    t += fmt::format("{}{} .. {}", t.empty() ? "" : "; ", sig4(lo), sig4(hi2));
+    t += (t.empty() ? "" : "; ") + s.range(lo, hi2);
   }
   s.rows.text("lco_branch_stable", "  stable LCOs on the branch between",
-              stable_txt.empty() ? "none" : stable_txt + " m/s TAS", "branch.h5: airspeed where stable = 1");
+              stable_txt.empty() ? "none" : stable_txt, "branch.h5: airspeed where stable = 1");
   s.rows.text("lco_branch_unstable", "  unstable cycles on the branch between",
-              unstable_txt.empty() ? "none" : unstable_txt + " m/s TAS", "branch.h5: airspeed where stable = 0");
+              unstable_txt.empty() ? "none" : unstable_txt, "branch.h5: airspeed where stable = 0");
   const double per_speed = 1.0 / run.per;
   int nfold = 0, nband = 0;
   for (const auto& bf : b.bifurcations) {
     const double v = bf.parameter * per_speed;
     if (bf.kind == BifurcationKind::kFold) {
       ++nfold;
-      s.rows.add(fmt::format("lco_fold_{}", nfold), fmt::format("  fold of the LCO branch ({})", nfold), v, "m/s TAS",
-                 "branch.h5: fold of parameter between two points (cubic Hermite in arclength)",
-                 fmt::format("{} amplitude {:.4g} {}; {:.4g} m/s EAS", kDofNames[w], bf.amplitude * ascale, aunit,
-                             equivalent_airspeed(v, s.rho)));
+      s.speed_row(fmt::format("lco_fold_{}", nfold), fmt::format("  fold of the LCO branch ({})", nfold), v,
+                  "branch.h5: bifurcation_parameter of the fold (cubic Hermite in arclength)",
+                  fmt::format("{} amplitude {:.4g} {}{}{}", kDofNames[w], bf.amplitude * ascale, aunit,
+                              s.pr.reduced ? "" : "; ", s.eas(v)));
       const auto band = fold_band(b, bf, per_speed);
       if (!band) continue;
       ++nband;
@@ -763,8 +783,7 @@ LcoBranchRun lco_branch_stage(Study& s, const LcoSweepRun& run, const std::pair<
       s.rows.text(fmt::format("lco_hysteresis_fold_{}", nfold),
                   fmt::format("Hysteresis band from fold ({}): {}", nfold,
                               band->reaches_rest ? "rest or the LCO" : "the smaller or the larger LCO"),
-                  fmt::format("{} .. {} m/s TAS", sig4(lo), sig4(hi2)),
-                  "branch.h5: the fold and the unstable orbits (stable = 0) on its small-amplitude side");
+                  s.range(lo, hi2), "branch.h5: the fold and the unstable orbits (stable = 0) on its small-amplitude side");
       s.rows.text(fmt::format("lco_trigger_fold_{}", nfold),
                   "  disturbance that starts the larger LCO there (unstable cycle amplitude)",
                   fmt::format("{} .. {} {}", sig4(band->amp_lo * ascale), sig4(band->amp_hi * ascale), aunit),
@@ -775,7 +794,7 @@ LcoBranchRun lco_branch_stage(Study& s, const LcoSweepRun& run, const std::pair<
                   bf.kind == BifurcationKind::kGrazing
                       ? std::string("  branch ends: the orbit grazes a spring breakpoint")
                       : fmt::format("  {} bifurcation on the LCO branch", to_string(bf.kind)),
-                  fmt::format("{} m/s TAS", sig4(v)), "branch.h5: stable, largest_multiplier_modulus",
+                  s.v(v), "branch.h5: stable, largest_multiplier_modulus",
                   fmt::format("{} amplitude {:.4g} {}", kDofNames[w], bf.amplitude * ascale, aunit));
     }
   }
@@ -816,8 +835,8 @@ void largest_orbit_rows(Study& s, const LcoBranchRun& r, const std::string& wher
   const std::string n = kDofNames[w];
   s.rows.add("lco_largest", fmt::format("Largest stable LCO {}: {} amplitude", where, n),
              shown(w, o.dof[w].amplitude), unit(w), "lco_orbit.h5: " + n + "_amplitude[0]" + in_file(w),
-             fmt::format("converged orbit at {:.4g} m/s TAS, {}; {:.4g} Hz, residual {:.1e}", r.largest_airspeed,
-                         r.largest_how, o.frequency(), o.residual));
+             fmt::format("converged orbit at {}, {}; {}, residual {:.1e}", s.v(r.largest_airspeed), r.largest_how,
+                         s.pr.frequency(o.frequency()), o.residual));
   s.rows.add("lco_largest_multiplier", "  largest non-trivial Floquet multiplier |mu| of that LCO",
              o.largest_nontrivial, "1", "lco_orbit.h5: largest_multiplier_modulus[0]",
              fmt::format("below 1: stable; trivial multiplier within {:.1e} of 1", o.trivial_multiplier_error));
@@ -846,7 +865,7 @@ void largest_orbit_rows(Study& s, const LcoBranchRun& r, const std::string& wher
 void lco_orbit_history_stage(Study& s, const LcoBranchRun& r, const std::string& where, const std::string& key) {
   const Case& c = s.c;
   const Orbit& o = *r.largest;
-  s.say(fmt::format("LCO time history at {:.4g} m/s TAS", r.largest_airspeed));
+  s.say("LCO time history at " + s.v(r.largest_airspeed));
   Derivation hv;
   hv.duration = 10 * o.period;
   hv.sample_interval = o.period / 200;
@@ -862,8 +881,8 @@ void lco_orbit_history_stage(Study& s, const LcoBranchRun& r, const std::string&
   stop_if_cancelled(s.cancel);
   s.R.hdf5_files.push_back("lco.h5");
   s.part("lco-history", hs.completed,
-         fmt::format("10 periods of the largest stable LCO {} ({:.4g} m/s TAS), started on the converged orbit",
-                     where, r.largest_airspeed),
+         fmt::format("10 periods of the largest stable LCO {} ({}), started on the converged orbit", where,
+                     s.v(r.largest_airspeed)),
          {"lco.h5"});
   for (const auto& e : hs.extremes)
     if (e.channel == "hinge_moment")
@@ -884,7 +903,7 @@ void lco_stages(Study& s) {
   const auto speeds = lco_sweep_range(s);
   const LcoSweepRun run = lco_sweep_stage(s, nl);
   lco_sweep_rows(s, run);
-  const std::string where = s.vd_tas ? fmt::format("at or below V_D ({:.4g} m/s TAS)", *s.vd_tas)
+  const std::string where = s.vd_tas ? fmt::format("at or below V_D ({})", s.v(*s.vd_tas))
                                      : std::string("over the sweep (no V_D given)");
   const SweepPoint* worst = largest_lco(s, run);
   LcoBranchRun br = lco_branch_stage(s, run, speeds);
@@ -894,8 +913,12 @@ void lco_stages(Study& s) {
     const auto w = static_cast<std::size_t>(worst->lco.watched_dof);
     if (worst->lco.watched_dof != br.largest->watched_dof ||
         worst->lco.dof[w].amplitude > br.largest->dof[w].amplitude * (1 + 1e-3)) {
+      const bool budget = br.branch.stop_reason.find("budget") != std::string::npos;
       s.rows.text("lco_largest_source", "Largest LCO taken from", "the sweep", "sweep.h5",
-                  "the sweep found a larger LCO than any stable orbit on the continued branch: another branch exists");
+                  budget ? "the sweep found a larger LCO than any stable orbit on the continued branch, which "
+                           "ended at its point budget before reaching it"
+                         : "the sweep found a larger LCO than any stable orbit on the continued branch: "
+                           "another branch exists");
       br.largest.reset();
     }
   }

@@ -10,6 +10,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/io/table_layout.hpp"
@@ -43,7 +44,7 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
 // the ends of every stable/unstable segment and an evenly thinned
 // interior), then per branch where it starts and ends and why, and its
 // stable speed ranges.
-std::string lco_prediction_text(const LcoPrediction& p);
+std::string lco_prediction_text(const LcoPrediction& p, const Presenter& pr = {});
 // Writes the sweep tables and crossings; throws OutputError.
 void write_flutter_file(const std::string& path, const Case& c, const FlutterReport& r);
 // The same tables through any sink (write_flutter_file hands it the file).

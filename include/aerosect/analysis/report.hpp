@@ -3,6 +3,7 @@
 // "JSON output") and the human-readable text of the same content. The
 // engine builds them; the command-line driver only prints them.
 
+#include <numbers>
 #include <string>
 #include <vector>
 
@@ -21,6 +22,26 @@ extern const char* const kSafetyCaution;
 // command, aerosect_version, case, title, input_form, dof,
 // aerodynamic_model, overrides, caution.
 nlohmann::json report_header(const Case& c, const char* command);
+
+// How a text report states speeds, frequencies and lengths: in SI units for
+// an SI case; for a nondimensional case in the reduced quantities its
+// reader thinks in, U* = U / (b omega_alpha), omega / omega_alpha and
+// semichords (the result files keep both forms).
+struct Presenter {
+  bool reduced = false;
+  double speed_ref = 1;   // b omega_alpha, m/s
+  double omega_ref = 1;   // omega_alpha, rad/s
+  double length_ref = 1;  // b, m
+  // "6.2851 m/s" or "U* 6.2851" (`what`: e.g. "TAS" after m/s).
+  std::string speed(double u_m_s, const char* what = "") const;
+  std::string frequency(double f_hz) const;  // "0.08407 Hz" or "w/w_a 0.5282"
+  std::string length(double m) const;        // "2 m" or "2 semichords"
+  std::string speed_heading() const { return reduced ? "U*" : "speed m/s"; }
+  std::string frequency_heading() const { return reduced ? "w/w_a" : "freq Hz"; }
+  double speed_value(double u_m_s) const { return reduced ? u_m_s / speed_ref : u_m_s; }
+  double frequency_value(double f_hz) const { return reduced ? 2 * std::numbers::pi * f_hz / omega_ref : f_hz; }
+};
+Presenter presenter(const Case& c);
 
 struct CheckReport {
   std::vector<NaturalMode> modes;

@@ -143,14 +143,20 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
   std::vector<std::string> columns = {"lift", "pitching_moment", "hinge_moment", "pitch", "flap"};
   if (c.model.section.dof < 3) columns = {"lift", "pitching_moment", "pitch"};
   const SimulationSummary* first = s.points.empty() ? nullptr : &s.points.front().summary;
-  std::string head = fmt::format("  {:>8} {:>11}", "H m", "U_ds m s-1");
+  // A nondimensional case: H in semichords, U_ds over b w_a, times as tau
+  // (semichords travelled); loads stay in the files' units.
+  const Presenter pr = presenter(c);
+  const double b = c.model.section.semichord, U_over_b = c.model.flow.airspeed / b;
+  std::string head = pr.reduced ? fmt::format("  {:>8} {:>11}", "H/b", "U_ds/(b w_a)")
+                                : fmt::format("  {:>8} {:>11}", "H m", "U_ds m s-1");
   for (const auto& ch : columns) {
     const Extreme* e = first ? extreme(*first, ch) : nullptr;
     head += fmt::format(" {:>22}", ch + " " + (e ? shown(0, e->units).second : std::string("?")));
   }
   t += head + "\n";
   for (const auto& p : s.points) {
-    std::string row = fmt::format("  {:>8.4g} {:>11.4g}", p.gradient, p.design_velocity);
+    std::string row = pr.reduced ? fmt::format("  {:>8.4g} {:>11.4g}", p.gradient / b, pr.speed_value(p.design_velocity))
+                                 : fmt::format("  {:>8.4g} {:>11.4g}", p.gradient, p.design_velocity);
     for (const auto& ch : columns) {
       const Extreme* e = extreme(p.summary, ch);
       const double v = e ? (std::abs(e->max) > std::abs(e->min) ? e->max : e->min) : std::nan("");
@@ -161,8 +167,12 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
   t += "\n  critical gradient (largest magnitude):\n";
   for (const auto& cr : s.critical) {
     const auto [v, units] = shown(cr.value, cr.units);
-    t += fmt::format("    {:<24} H = {:<8.4g} m  peak {:.6g} {} at t = {:.4g} s\n", cr.channel, cr.gradient, v, units,
-                     cr.time);
+    if (pr.reduced)
+      t += fmt::format("    {:<24} H = {}  peak {:.6g} {} at tau = {:.4g}\n", cr.channel, pr.length(cr.gradient), v,
+                       units, U_over_b * cr.time);
+    else
+      t += fmt::format("    {:<24} H = {:<8.4g} m  peak {:.6g} {} at t = {:.4g} s\n", cr.channel, cr.gradient, v,
+                       units, cr.time);
   }
   if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
   t += "\n";

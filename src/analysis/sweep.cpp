@@ -357,6 +357,18 @@ SweepRequest request_from_json(const nlohmann::json& j, const SourceLocation& wh
   }
 }
 
+namespace {
+// An int of a request: an integer JSON number in int's range (a float or a
+// huge number is a type error, not a conversion).
+int request_int(const nlohmann::json& v, const char* key) {
+  if (!v.is_number_integer() || (v.is_number_unsigned() && v.get<std::uint64_t>() > std::uint64_t{1} << 31) ||
+      v.get<std::int64_t>() < std::numeric_limits<int>::min() || v.get<std::int64_t>() > std::numeric_limits<int>::max())
+    throw nlohmann::json::type_error::create(302, fmt::format("'{}' is not an integer in range: {}", key,
+                                                              v.dump().substr(0, 40)), &v);
+  return static_cast<int>(v.get<std::int64_t>());
+}
+}  // namespace
+
 SweepRequest request_from_json(const nlohmann::json& j) {
   SweepRequest r;
   r.case_text = j.at("case_text");
@@ -366,12 +378,13 @@ SweepRequest request_from_json(const nlohmann::json& j) {
   r.options.up = j.at("up");
   r.options.down = j.at("down");
   r.options.continuation = j.at("continuation");
-  r.options.shard_index = j.at("shard").at(0);
-  r.options.shard_count = j.at("shard").at(1);
+  r.options.shard_index = request_int(j.at("shard").at(0), "shard");
+  r.options.shard_count = request_int(j.at("shard").at(1), "shard");
   r.options.traces = j.value("traces", false);
   r.options.with_gusts = j.value("with_gusts", false);
-  r.options.cycle.samples = j.value("cycle_samples", CycleSettings{}.samples);
-  r.options.cycle.harmonics = j.value("harmonics", CycleSettings{}.harmonics);
+  r.options.cycle.samples =
+      j.contains("cycle_samples") ? request_int(j["cycle_samples"], "cycle_samples") : CycleSettings{}.samples;
+  r.options.cycle.harmonics = j.contains("harmonics") ? request_int(j["harmonics"], "harmonics") : CycleSettings{}.harmonics;
   return r;
 }
 

@@ -530,8 +530,8 @@ void lco_history_stage(Study& s, const SweepPoint& worst, const std::string& whe
 // envelope solved as an orbit at the branch's maximum (or at V_D).
 
 struct LcoBranchRun {
+  std::optional<Case> branch_case;  // the derived case the branch was traced on (gusts removed)
   Branch branch;
-  std::string case_label;         // the derived case (gusts removed)
   std::optional<Orbit> largest;   // largest stable LCO inside the envelope
   double largest_parameter = 0;   // its key value
   double largest_airspeed = 0;    // m/s TAS
@@ -704,7 +704,8 @@ LcoBranchRun lco_branch_stage(Study& s, const LcoSweepRun& run, const std::pair<
   const Case& c = s.c;
   LcoBranchRun r;
   Derivation bv;  // gusts removed: an orbit needs an autonomous system
-  const Case bc = parse_case(derived_case_text(c, bv), c.path + " (LCO branch)", derived_overrides(c, bv));
+  r.branch_case = parse_case(derived_case_text(c, bv), c.path + " (LCO branch)", derived_overrides(c, bv));
+  const Case& bc = *r.branch_case;
   BranchOptions bo;
   bo.key = run.key;
   // Past the sweep's end and 1.15 V_D, so that the largest LCO up to
@@ -823,12 +824,9 @@ void largest_orbit_rows(Study& s, const LcoBranchRun& r, const std::string& wher
   p.airspeed = r.largest_airspeed;
   p.orbit = o;
   one.points.push_back(p);
-  Derivation bv;
-  const Case bc = parse_case(derived_case_text(c, bv), c.path + " (largest LCO orbit)", derived_overrides(c, bv));
-  write_branch_file(s.path("lco_orbit.h5"), bc, one);
+  write_branch_file(s.path("lco_orbit.h5"), *r.branch_case, one);
   s.R.hdf5_files.push_back("lco_orbit.h5");
   const int w = o.watched_dof;
-  const bool angle = w != kPlunge;
   const auto shown = [](int k, double v) { return k == kPlunge ? v : v * kDegPerRad; };
   const auto unit = [](int k) { return std::string(k == kPlunge ? "m" : "deg"); };
   const auto in_file = [](int k) { return std::string(k == kPlunge ? "" : " (rad in the file)"); };
@@ -858,7 +856,6 @@ void largest_orbit_rows(Study& s, const LcoBranchRun& r, const std::string& wher
                std::max(std::abs(fmax), std::abs(fmin)), "N m m-1",
                "flap spring law at lco_orbit.h5: flap_max[0] / flap_min[0]");
   }
-  (void)angle;
 }
 
 // Time history of the largest LCO, from the converged orbit's state.

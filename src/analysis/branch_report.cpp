@@ -203,21 +203,27 @@ nlohmann::json branch_json(const Case& c, const Branch& b, const std::string& ou
 }
 
 std::string branch_text(const Case& c, const Branch& b, const std::string& output_path) {
-  const double deg = kDegPerRad;
+  // Amplitudes in degrees (pitch, flap), m or semichords (plunge);
+  // frequencies in Hz, or w/w_a for a nondimensional case (Presenter).
+  const Presenter pr = presenter(c);
   const int w = b.watched_dof;
-  const double unit = w == kPlunge ? 1.0 : deg;
-  const char* uname = w == kPlunge ? "m" : "deg";
+  const double unit = pr.displacement_value(w, 1.0);
+  const char* uname = pr.displacement_unit(w);
+  const std::string key_units = case_key_units(b.key);
   std::string t = fmt::format("aerosect orbits: {}\n", c.path);
   if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
-  t += fmt::format("  continuation in {}; start: {}\n", b.key, b.start_detail);
+  t += fmt::format("  continuation in {}{}; start: {}\n", b.key,
+                   key_units.empty() || key_units == "1" ? "" : " (" + key_units + ")", b.start_detail);
   if (b.hopf_parameter) t += fmt::format("  linear flutter (Hopf) point at {:.9g}\n", *b.hopf_parameter);
-  t += fmt::format("\n  {:>14} {:>14} {:>12} {:>10} {:>10} {:>9} {:>9}\n", b.key.substr(b.key.rfind('.') + 1),
-                   fmt::format("{} amp ({})", kDofNames[w], uname), "freq (Hz)", "stable", "max |mu|",
+  std::string key_head = b.key.substr(b.key.rfind('.') + 1);
+  if (!key_units.empty() && key_units != "1") key_head += " " + key_units;
+  t += fmt::format("\n  {:>16} {:>17} {:>12} {:>10} {:>10} {:>9} {:>9}\n", key_head,
+                   fmt::format("{} amp {}", kDofNames[w], uname), pr.frequency_heading(), "stable", "max |mu|",
                    "switches", "residual");
   for (const auto& p : b.points)
-    t += fmt::format("  {:>14.8g} {:>14.6g} {:>12.6g} {:>10} {:>10.6f} {:>9} {:>9.2g}\n", p.parameter,
-                     p.orbit.dof[w].amplitude * unit, p.orbit.frequency(), p.orbit.stable ? "yes" : "no",
-                     p.orbit.largest_nontrivial, p.orbit.switches, p.orbit.residual);
+    t += fmt::format("  {:>16.8g} {:>17.6g} {:>12.6g} {:>10} {:>10.6f} {:>9} {:>9.2g}\n", p.parameter,
+                     p.orbit.dof[w].amplitude * unit, pr.frequency_value(p.orbit.frequency()),
+                     p.orbit.stable ? "yes" : "no", p.orbit.largest_nontrivial, p.orbit.switches, p.orbit.residual);
   if (!b.bifurcations.empty()) t += "\n  bifurcations:\n";
   for (const auto& f : b.bifurcations)
     t += fmt::format("    {:<16} at {:.9g}, amplitude {:.6g} {}\n", to_string(f.kind), f.parameter,

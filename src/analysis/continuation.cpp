@@ -13,7 +13,9 @@
 #include <toml++/toml.h>
 
 #include "aerosect/analysis/describing_function.hpp"
+#include "aerosect/analysis/report.hpp"
 #include "aerosect/error.hpp"
+#include "aerosect/units.hpp"
 
 namespace aerosect {
 
@@ -584,8 +586,8 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
       }
       start = BranchStart::kDescribing;
     } else {
-      br.start_detail = fmt::format("time-marched cycle at {} = {:.9g} (period {:.6g} s)", fam.key,
-                                    lambda0, seed->period);
+      br.start_detail = fmt::format("time-marched cycle at {} = {:.9g} ({})", fam.key, lambda0,
+                                    presenter(c).frequency(1.0 / seed->period));
       first = fixed_lambda(*seed, lambda0);
       r0(l.m + 1) = 1.0;
     }
@@ -613,9 +615,10 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
     for (int j = 0; j < m.n_dof(); ++j) k(j) = c.model.springs[j].nominal_stiffness();
     k(p.spring) = best->equivalent_stiffness;
     const OrbitSeed seed = seed_from_harmonic(m, k, p.spring, best->amplitude, best->frequency);
-    br.start_detail = fmt::format("describing-function orbit at {} = {:.9g} ({} amplitude {:.6g} {})",
-                                  fam.key, lambda, p.spring == kPlunge ? "plunge" : p.spring == kPitch ? "pitch" : "flap",
-                                  best->amplitude, p.spring == kPlunge ? "m" : "rad");
+    const Presenter pr = presenter(c);
+    br.start_detail = fmt::format("describing-function orbit at {} = {:.9g} ({} amplitude {:.6g} {})", fam.key,
+                                  lambda, dof_name(p.spring), pr.displacement_value(p.spring, best->amplitude),
+                                  pr.displacement_unit(p.spring));
     first = fixed_lambda(seed, lambda);
     r0(l.m + 1) = 1.0;
   }
@@ -659,8 +662,10 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
     DofVector k(m.n_dof());
     for (int j = 0; j < m.n_dof(); ++j) k(j) = c.model.springs[j].nominal_stiffness();
     const OrbitSeed seed = seed_from_harmonic(m, k, w, a1, omega);
-    br.start_detail = fmt::format("Hopf point of the linear model at {} = {:.9g} (omega {:.6g} rad/s), "
-                                  "first orbit at amplitude {:.6g}", fam.key, *lh, omega, a1);
+    const Presenter pr = presenter(c);
+    br.start_detail = fmt::format("Hopf point of the linear model at {} = {:.9g} ({}), first orbit at {} "
+                                  "amplitude {:.6g} {}", fam.key, *lh, pr.frequency(omega / (2 * std::numbers::pi)),
+                                  dof_name(w), pr.displacement_value(w, a1), pr.displacement_unit(w));
     Unknowns y{seed.x0, seed.period, *lh};
     Eigen::VectorXd cvec = Eigen::VectorXd::Zero(l.m + 2);
     cvec(l.w_index) = 1.0;

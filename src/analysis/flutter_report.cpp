@@ -98,7 +98,7 @@ nlohmann::json crossing_json(const Crossing& x, const FlutterReport& r,
 std::string speed_text(const Crossing& x, const FlutterReport& r, const Presenter& pr) {
   if (!x.found) return "none in range";
   if (pr.reduced) return fmt::format("U* {:.6g}", x.speed / r.reference_speed);
-  return fmt::format("{:.6g} m/s (U/b w_a {:.5g})", x.speed, x.speed / r.reference_speed);
+  return fmt::format("{:.6g} m s-1 (U/b w_a {:.5g})", x.speed, x.speed / r.reference_speed);
 }
 
 // The rows of one branch the text table prints: every point of a short
@@ -119,12 +119,11 @@ std::vector<std::size_t> printed_rows(const LcoPrediction& p, const LcoBranch& b
 }  // namespace
 
 std::string lco_prediction_text(const LcoPrediction& p, const Presenter& pr) {
-  const bool angle = p.spring != kPlunge;
-  const double unit = angle ? kDegPerRad : 1.0;
-  const char* au = angle ? "deg" : "m";
+  const double unit = pr.displacement_value(p.spring, 1.0);
+  const char* au = pr.displacement_unit(p.spring);
   std::string t = fmt::format("\nDescribing-function LCO prediction ({} spring; near-harmonic, about zero):\n",
                               dof_name(p.spring));
-  t += fmt::format("  {:>13} {:>12} {:>10} {:>6}  {}\n", angle ? "amplitude deg" : "amplitude m", pr.speed_heading(),
+  t += fmt::format("  {:>13} {:>12} {:>10} {:>6}  {}\n", fmt::format("amplitude {}", au), pr.speed_heading(),
                    pr.frequency_heading(), "branch", "stable");
   for (const LcoBranch& b : p.branches)
     for (const std::size_t i : printed_rows(p, b)) {
@@ -289,7 +288,7 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
     const double unit = angle ? kDegPerRad : 1.0;
     nlohmann::json lj;
     lj["spring"] = dof_name(r.lco.spring);
-    lj["amplitude_units"] = angle ? "deg" : "m";
+    lj["amplitude_units"] = angle ? "degree" : "m";
     lj["note"] = "describing-function prediction: near-harmonic oscillation about zero assumed";
     lj["amplitude_limit"] = r.lco.amplitude_limit * unit;
     double lo = std::numeric_limits<double>::infinity(), hi = 0;
@@ -347,16 +346,16 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
   std::string t;
   t += fmt::format("aerosect {} flutter: {}\n", kVersion, c.path);
   if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
-  t += fmt::format("  {}-DOF; density {:.5g} kg/m^3; reference speed b w_a = {:.5g} m/s, "
+  t += fmt::format("  {}-DOF; density {:.5g} kg m-3; reference speed b w_a = {:.5g} m s-1, "
                    "w_a = {:.5g} Hz\n",
                    c.model.section.dof, r.density, r.reference_speed,
                    r.reference_frequency / (2 * pi));
   if (!r.results.empty() && !r.results.front().methods.empty()) {
     const auto& sp = r.results.front().methods.front().sweep.speeds;
     t += pr.reduced ? fmt::format("  {} speeds from U* {:.4g} to {:.4g} (U* = U / (b w_a); the file also "
-                                  "holds them in m/s at the reference scales above)\n",
+                                  "holds them in m s-1 at the reference scales above)\n",
                                   sp.size(), pr.speed_value(sp.front()), pr.speed_value(sp.back()))
-                    : fmt::format("  {} speeds from {:.4g} to {:.4g} m/s (true airspeed)\n", sp.size(),
+                    : fmt::format("  {} speeds from {:.4g} to {:.4g} m s-1 (true airspeed)\n", sp.size(),
                                   sp.front(), sp.back());
   }
   t += "  modes:";
@@ -366,9 +365,10 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
   for (const auto& lr : r.results) {
     t += fmt::format("\n{} springs", to_string(lr.linearisation));
     const char* dofs[3] = {"K_h", "K_a", "K_b"};
+    const char* units[3] = {"N m-1 m-1", "N m rad-1 m-1", "N m rad-1 m-1"};
     t += " (";
     for (int k = 0; k < lr.stiffness.size(); ++k)
-      t += fmt::format("{}{} = {:.5g}", k ? ", " : "", dofs[k], lr.stiffness(k));
+      t += fmt::format("{}{} = {:.5g} {}", k ? ", " : "", dofs[k], lr.stiffness(k), units[k]);
     t += ")\n";
     if (lr.mode_names != r.mode_names) {
       t += "  modes at these springs:";
@@ -384,7 +384,7 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
                          m.flutter.frequency / r.reference_frequency, m.flutter.reduced_frequency,
                          m.flutter.mode + 1, lr.mode_names[static_cast<std::size_t>(m.flutter.mode)]);
       else if (m.flutter.found)
-        t += fmt::format(", EAS {:.5g} m/s, {:.5g} Hz (w/w_a {:.4f}), k = {:.4f}, tracked from mode {} ({})",
+        t += fmt::format(", EAS {:.5g} m s-1, {:.5g} Hz (w/w_a {:.4f}), k = {:.4f}, tracked from mode {} ({})",
                          equivalent_airspeed(m.flutter.speed, r.density),
                          m.flutter.frequency / (2 * pi),
                          m.flutter.frequency / r.reference_frequency, m.flutter.reduced_frequency,
@@ -416,18 +416,18 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
   if (r.lco.available) t += lco_prediction_text(r.lco, pr);
   const FlutterMargin fm = flutter_margin(r);
   if (fm.available) {
-    t += fmt::format("\nMargin (CS-25.629(b) / 14 CFR 25.629(b)): V_D = {:.5g} m/s EAS, 1.15 V_D = "
-                     "{:.5g} m/s EAS\n",
+    t += fmt::format("\nMargin (CS-25.629(b) / 14 CFR 25.629(b)): V_D = {:.5g} m s-1 EAS, 1.15 V_D = "
+                     "{:.5g} m s-1 EAS\n",
                      fm.dive_speed_eas, fm.required_eas);
     if (fm.critical_kind == "none") {
       t += "  no flutter or divergence in the swept range\n";
     } else {
-      t += fmt::format("  lowest instability: {} ({}) at {:.5g} m/s EAS: margin {:+.1f} % -> {}\n",
+      t += fmt::format("  lowest instability: {} ({}) at {:.5g} m s-1 EAS: margin {:+.1f} % -> {}\n",
                        fm.critical_kind, fm.critical_method, fm.critical_eas, 100 * fm.margin,
                        fm.cleared ? "beyond 1.15 V_D" : "INSIDE 1.15 V_D");
     }
     if (fm.lco_onset_eas)
-      t += fmt::format("  freeplay LCO can start at the gap-open flutter speed ({}), {:.5g} m/s EAS ({})\n",
+      t += fmt::format("  freeplay LCO can start at the gap-open flutter speed ({}), {:.5g} m s-1 EAS ({})\n",
                        fm.lco_onset_method, *fm.lco_onset_eas,
                        *fm.lco_onset_eas >= fm.required_eas ? "beyond 1.15 V_D" : "INSIDE 1.15 V_D");
     t += fmt::format("  {}\n", kMarginCaution);

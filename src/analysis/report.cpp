@@ -42,7 +42,7 @@ Presenter presenter(const Case& c) {
 
 std::string Presenter::speed(double u, const char* what) const {
   if (reduced) return fmt::format("U* {:.5g}", u / speed_ref);
-  return fmt::format("{:.5g} m/s{}{}", u, *what ? " " : "", what);
+  return fmt::format("{:.5g} m s-1{}{}", u, *what ? " " : "", what);
 }
 
 std::string Presenter::frequency(double f_hz) const {
@@ -53,6 +53,21 @@ std::string Presenter::frequency(double f_hz) const {
 std::string Presenter::length(double m) const {
   if (reduced) return fmt::format("{:.4g} semichords", m / length_ref);
   return fmt::format("{:.4g} m", m);
+}
+
+double Presenter::displacement_value(int dof, double v) const {
+  if (is_angle_dof(dof)) return v * kDegPerRad;
+  return reduced ? v / length_ref : v;
+}
+
+const char* Presenter::displacement_unit(int dof) const {
+  if (is_angle_dof(dof)) return "degree";
+  return reduced ? "semichords" : "m";
+}
+
+const char* Presenter::file_unit_note(int dof) const {
+  if (is_angle_dof(dof)) return " (rad in the file)";
+  return reduced ? " (m in the file)" : "";
 }
 
 nlohmann::json report_header(const Case& c, const char* command) {
@@ -151,21 +166,21 @@ std::string check_text(const Case& c, const CheckReport& r) {
                    c.input_form == "si" ? "SI" : "nondimensional", to_string(c.model.aero.model));
   t += "SI parameters (per unit span)\n";
   t += fmt::format("  semichord b            {:>12} m\n", fmt_num(s.semichord));
-  t += fmt::format("  mass m                 {:>12} kg/m\n", fmt_num(s.mass));
+  t += fmt::format("  mass m                 {:>12} kg m-1\n", fmt_num(s.mass));
   t += fmt::format("  elastic axis a_h       {:>12} semichords from midchord\n", fmt_num(s.elastic_axis));
-  t += fmt::format("  static unbalance S_a   {:>12} kg m/m\n", fmt_num(s.static_unbalance));
-  t += fmt::format("  pitch inertia I_a      {:>12} kg m^2/m (about the elastic axis)\n", fmt_num(s.pitch_inertia));
-  t += fmt::format("  plunge stiffness K_h   {:>12} N/m/m\n", fmt_num(s.plunge_stiffness));
-  t += fmt::format("  pitch stiffness K_a    {:>12} N m/rad/m\n", fmt_num(s.pitch_stiffness));
+  t += fmt::format("  static unbalance S_a   {:>12} kg m m-1\n", fmt_num(s.static_unbalance));
+  t += fmt::format("  pitch inertia I_a      {:>12} kg m2 m-1 (about the elastic axis)\n", fmt_num(s.pitch_inertia));
+  t += fmt::format("  plunge stiffness K_h   {:>12} N m-1 m-1\n", fmt_num(s.plunge_stiffness));
+  t += fmt::format("  pitch stiffness K_a    {:>12} N m rad-1 m-1\n", fmt_num(s.pitch_stiffness));
   if (s.dof == 3) {
     t += fmt::format("  hinge c                {:>12} semichords from midchord\n", fmt_num(s.hinge));
-    t += fmt::format("  flap unbalance S_b     {:>12} kg m/m (about the hinge)\n", fmt_num(s.flap_static_unbalance));
-    t += fmt::format("  flap inertia I_b       {:>12} kg m^2/m (about the hinge)\n", fmt_num(s.flap_inertia));
-    t += fmt::format("  hinge stiffness K_b    {:>12} N m/rad/m\n", fmt_num(s.flap_stiffness));
+    t += fmt::format("  flap unbalance S_b     {:>12} kg m m-1 (about the hinge)\n", fmt_num(s.flap_static_unbalance));
+    t += fmt::format("  flap inertia I_b       {:>12} kg m2 m-1 (about the hinge)\n", fmt_num(s.flap_inertia));
+    t += fmt::format("  hinge stiffness K_b    {:>12} N m rad-1 m-1\n", fmt_num(s.flap_stiffness));
   }
-  t += fmt::format("  density rho            {:>12} kg/m^3{}\n", fmt_num(c.model.flow.density),
+  t += fmt::format("  density rho            {:>12} kg m-3{}\n", fmt_num(c.model.flow.density),
                    c.altitude ? fmt::format(" (ISA, {} m)", *c.altitude) : std::string());
-  t += fmt::format("  airspeed U             {:>12} m/s\n\n", fmt_num(c.model.flow.airspeed));
+  t += fmt::format("  airspeed U             {:>12} m s-1\n\n", fmt_num(c.model.flow.airspeed));
   t += "Nondimensional parameters\n";
   t += fmt::format("  mu {}  a_h {}  x_alpha {}  r_alpha {}  omega_bar {}  U* {}\n",
                    fmt_num(n.mass_ratio), fmt_num(n.elastic_axis), fmt_num(n.cg_offset),
@@ -189,7 +204,7 @@ std::string check_text(const Case& c, const CheckReport& r) {
   }
   t += "\nStatic divergence (quasi-steady circulatory lift)\n";
   if (r.divergence.exists) {
-    t += fmt::format("  U_D = {:.6g} m/s  (U_D / (b omega_alpha) = {:.6g}); case airspeed is {:.3g} of U_D\n",
+    t += fmt::format("  U_D = {:.6g} m s-1  (U_D / (b omega_alpha) = {:.6g}); case airspeed is {:.3g} of U_D\n",
                      r.divergence.speed, r.divergence.speed / (s.semichord * w.pitch),
                      c.model.flow.airspeed / r.divergence.speed);
   } else {

@@ -196,21 +196,21 @@ struct Study {
   Presenter pr;                  // SI, or U* and w/w_a for a nondimensional case
 
   // A speed (m/s TAS) as the report states it: "12.3 m/s TAS" or "U* 1.23".
-  std::string v(double u) const { return pr.reduced ? "U* " + sig4(u / pr.speed_ref) : sig4(u) + " m/s TAS"; }
+  std::string v(double u) const { return pr.reduced ? "U* " + sig4(u / pr.speed_ref) : sig4(u) + " m s-1 TAS"; }
   std::string range(double a, double b) const {
     return pr.reduced ? fmt::format("U* {} .. {}", sig4(a / pr.speed_ref), sig4(b / pr.speed_ref))
-                      : fmt::format("{} .. {} m/s TAS", sig4(a), sig4(b));
+                      : fmt::format("{} .. {} m s-1 TAS", sig4(a), sig4(b));
   }
   // Its EAS for a note (nothing for a nondimensional case).
-  std::string eas(double u) const { return pr.reduced ? "" : fmt::format("{:.4g} m/s EAS", equivalent_airspeed(u, rho)); }
+  std::string eas(double u) const { return pr.reduced ? "" : fmt::format("{:.4g} m s-1 EAS", equivalent_airspeed(u, rho)); }
   // A row holding a speed: m/s TAS, or U* (the file's m/s over the
   // reference speed b w_a) for a nondimensional case.
   void speed_row(std::string id, std::string quantity, double u, std::string source, std::string note = {}) {
     if (pr.reduced)
       rows.add(std::move(id), std::move(quantity), u / pr.speed_ref, "U*",
-               source + " / (b w_a) = " + fmt::format("{:.6g}", pr.speed_ref) + " m/s", std::move(note));
+               source + " / (b w_a) = " + fmt::format("{:.6g}", pr.speed_ref) + " m s-1", std::move(note));
     else
-      rows.add(std::move(id), std::move(quantity), u, "m/s TAS", std::move(source), std::move(note));
+      rows.add(std::move(id), std::move(quantity), u, "m s-1 TAS", std::move(source), std::move(note));
   }
 
   void say(const std::string& s) const {
@@ -281,8 +281,8 @@ void flutter_stage(Study& s) {
   }
   const FlutterMargin fm = flutter_margin(fr);
   if (fm.available) {
-    s.rows.add("clearance_speed", "Clearance speed 1.15 V_D", fm.required_eas, "m/s EAS",
-               "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m/s EAS", fm.dive_speed_eas));
+    s.rows.add("clearance_speed", "Clearance speed 1.15 V_D", fm.required_eas, "m s-1 EAS",
+               "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m s-1 EAS", fm.dive_speed_eas));
     if (std::isfinite(fm.margin))
       s.rows.add("margin",
                  fmt::format("Margin of the lowest instability ({}, {}) over 1.15 V_D", fm.critical_kind,
@@ -364,9 +364,9 @@ LcoSweepRun lco_sweep_stage(Study& s, int nl) {
     for (double b : bp) gap = std::max(gap, std::abs(b));
     dv.disturb_dof = nl;
     dv.disturbance = gap > 0 ? 4.0 * gap : (nl == kPlunge ? 0.1 * c.model.section.semichord : 2.0 * kRadPerDeg);
+    const Presenter pr = presenter(c);
     disturbance_note = fmt::format("the case starts at rest: {} displaced by {:.4g} {}", kDofNames[nl],
-                                   nl == kPlunge ? dv.disturbance : dv.disturbance * kDegPerRad,
-                                   nl == kPlunge ? "m" : "deg");
+                                   pr.displacement_value(nl, dv.disturbance), pr.displacement_unit(nl));
   }
   SweepRequest req;
   req.case_text = derived_case_text(c, dv);
@@ -408,7 +408,7 @@ void lco_sweep_rows(Study& s, const LcoSweepRun& run) {
   const double per = run.per;
   const SweepSummary sm = summarize(pts);
   const std::string& cls = run.tables.field("response_class").name;
-  const std::string key_note = s.si ? "" : fmt::format(" (U* = value x {:.4g} m/s)", s.flutter.reference_speed);
+  const std::string key_note = s.si ? "" : fmt::format(" (U* = value x {:.4g} m s-1)", s.flutter.reference_speed);
   if (sm.onset_up)
     s.speed_row("lco_onset_up", "LCO onset, sweeping up", *sm.onset_up / per,
                 "sweep.h5: first " + cls + " = 1 at direction 0" + key_note, s.eas(*sm.onset_up / per));
@@ -461,18 +461,17 @@ const SweepPoint* largest_lco(const Study& s, const LcoSweepRun& run) {
 void largest_lco_rows(Study& s, const SweepPoint& worst, const SweepTables& t, const std::string& where, double per) {
   const Case& c = s.c;
   const int w = worst.lco.watched_dof;
-  const bool angle = w != kPlunge;
   const double a = worst.lco.dof[static_cast<std::size_t>(w)].amplitude;
-  s.rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDofNames[w]), angle ? a * kDegPerRad : a,
-             angle ? "deg" : "m",
-             "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_amplitude", worst) + (angle ? " (rad in the file)" : ""),
+  s.rows.add("lco_largest", fmt::format("Largest LCO {}: {} amplitude", where, kDofNames[w]),
+             s.pr.displacement_value(w, a), s.pr.displacement_unit(w),
+             "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_amplitude", worst) + s.pr.file_unit_note(w),
              fmt::format("at {} sweeping {}, {}", s.v(worst.value1 / per), worst.direction == 0 ? "up" : "down",
                          s.pr.frequency(worst.lco.frequency)));
   if (worst.cycle.samples > 0) {
     const DofHarmonics& h = worst.cycle.dof[static_cast<std::size_t>(w)];
-    s.rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDofNames[w]), angle ? h.rms * kDegPerRad : h.rms,
-               angle ? "deg" : "m",
-               "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_rms", worst) + (angle ? " (rad in the file)" : ""));
+    s.rows.add("lco_largest_rms", fmt::format("  {} RMS at that LCO", kDofNames[w]),
+               s.pr.displacement_value(w, h.rms), s.pr.displacement_unit(w),
+               "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_rms", worst) + s.pr.file_unit_note(w));
     s.rows.add("lco_largest_thd", fmt::format("  {} total harmonic distortion at that LCO", kDofNames[w]), 100 * h.thd,
                "%",
                "sweep.h5: " + t.cite(std::string(kDofNames[w]) + "_thd", worst) + " x 100",
@@ -490,7 +489,7 @@ void largest_lco_rows(Study& s, const SweepPoint& worst, const SweepTables& t, c
     const double fmax = law.force(worst.lco.dof[kFlap].max, law.region_of(worst.lco.dof[kFlap].max));
     const double fmin = law.force(worst.lco.dof[kFlap].min, law.region_of(worst.lco.dof[kFlap].min));
     s.rows.add("lco_hinge_spring_moment", "  hinge-spring (control circuit) moment at that LCO, largest |value|",
-               std::max(std::abs(fmax), std::abs(fmin)), "N m/m",
+               std::max(std::abs(fmax), std::abs(fmin)), "N m m-1",
                "flap spring law at sweep.h5: flap_max / flap_min of that point");
   }
 }
@@ -743,9 +742,8 @@ LcoBranchRun lco_branch_stage(Study& s, const LcoSweepRun& run, const std::pair<
                      b.stop_reason),
          {"branch.h5"});
   const int w = b.watched_dof;
-  const bool angle = w != kPlunge;
-  const double ascale = angle ? kDegPerRad : 1.0;
-  const std::string aunit = angle ? "deg" : "m";
+  const double ascale = s.pr.displacement_value(w, 1.0);
+  const std::string aunit = s.pr.displacement_unit(w);
   const std::string amp_name = std::string(kDofNames[w]) + "_amplitude";
   if (b.points.empty()) {
     s.rows.text("lco_branch", "LCO branch (converged orbits)", "none", "branch.h5@stop_reason", b.stop_reason);
@@ -827,9 +825,9 @@ void largest_orbit_rows(Study& s, const LcoBranchRun& r, const std::string& wher
   write_branch_file(s.path("lco_orbit.h5"), *r.branch_case, one);
   s.R.hdf5_files.push_back("lco_orbit.h5");
   const int w = o.watched_dof;
-  const auto shown = [](int k, double v) { return k == kPlunge ? v : v * kDegPerRad; };
-  const auto unit = [](int k) { return std::string(k == kPlunge ? "m" : "deg"); };
-  const auto in_file = [](int k) { return std::string(k == kPlunge ? "" : " (rad in the file)"); };
+  const auto shown = [&](int k, double v) { return s.pr.displacement_value(k, v); };
+  const auto unit = [&](int k) { return std::string(s.pr.displacement_unit(k)); };
+  const auto in_file = [&](int k) { return std::string(s.pr.file_unit_note(k)); };
   const std::string n = kDofNames[w];
   s.rows.add("lco_largest", fmt::format("Largest stable LCO {}: {} amplitude", where, n),
              shown(w, o.dof[w].amplitude), unit(w), "lco_orbit.h5: " + n + "_amplitude[0]" + in_file(w),
@@ -962,9 +960,9 @@ void gust_stage(Study& s) {
       continue;
     const bool angle = cr.channel == "pitch" || cr.channel == "flap";
     s.rows.add("gust_peak_" + cr.channel, fmt::format("Design gust: peak {}", cr.channel),
-               angle ? cr.value * kDegPerRad : cr.value, angle ? "deg" : cr.units,
+               angle ? cr.value * kDegPerRad : cr.value, angle ? "degree" : cr.units,
                fmt::format("gust.h5: /peaks@critical_value_{}{}", cr.channel, angle ? " (rad in the file)" : ""),
-               fmt::format("critical H = {:.4g} m", cr.gradient));
+               fmt::format("critical H = {}", s.pr.length(cr.gradient)));
   }
 }
 
@@ -990,7 +988,7 @@ void response_stage(Study& s) {
     if (e.channel == "lift" || e.channel == "pitch" || e.channel == "flap" || e.channel == "hinge_moment") {
       const bool angle = e.channel == "pitch" || e.channel == "flap";
       s.rows.add("turbulence_rms_" + e.channel, fmt::format("Turbulence: RMS {}", e.channel),
-                 angle ? e.rms * kDegPerRad : e.rms, angle ? "deg" : e.units,
+                 angle ? e.rms * kDegPerRad : e.rms, angle ? "degree" : e.units,
                  fmt::format("response.h5: {} (RMS of the samples){}", e.channel, angle ? " (rad in the file)" : ""));
     }
 }

@@ -143,7 +143,7 @@ void write_study_report(const Case& c, const StudyResult& r, const std::vector<S
   h += "</tbody>\n</table>\n";
   h += fmt::format(
       "<p class=\"meta\">Airspeeds are true airspeed (TAS) unless marked EAS; EAS = TAS "
-      "&radic;(&rho;/{} kg/m&sup3;). Values are shown to 4 significant digits; the files hold "
+      "&radic;(&rho;/{} kg m<sup>-3</sup>). Values are shown to 4 significant digits; the files hold "
       "them in full.</p>\n",
       kSeaLevelDensity);
 

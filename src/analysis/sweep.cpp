@@ -584,7 +584,7 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
                    p.size());
   t += fmt::format("  gusts: {}\n\n", sweep_gust_note(c, r));
   // Every swept key is a column, headed with its units (case_key_units);
-  // amplitudes in degree or m, as said on each row.
+  // amplitudes in the unit said on each row.
   const bool two = r.options.axes.size() > 1;
   const std::string u1 = axis_units(r.options.axes[0].key);
   const std::string u2 = two ? axis_units(r.options.axes[1].key) : std::string();
@@ -594,23 +594,26 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   const std::size_t w1 = std::max<std::size_t>(14, h1.size()), w2 = std::max<std::size_t>(14, h2.size());
   t += fmt::format("  {:>4} {:>{}}", "dir", h1, w1);
   if (two) t += fmt::format(" {:>{}}", h2, w2);
-  t += fmt::format(" {:>13} {:>16} {:>10} {:>7}\n", "class", "amplitude", "freq Hz", "cycles");
+  // Amplitudes and frequencies as the Presenter shows them (degree, m or
+  // semichords; Hz or w/w_a for a nondimensional case).
+  const Presenter pr = presenter(c);
+  t += fmt::format(" {:>13} {:>16} {:>10} {:>7}\n", "class", "amplitude", pr.frequency_heading(), "cycles");
   for (const auto& q : p) {
     const int w = q.lco.watched_dof;
-    const bool angle = w != kPlunge;
     t += fmt::format("  {:>4} {:>{}.6g}", q.direction == 0 ? "up" : "down", q.value1, w1);
     if (two) t += fmt::format(" {:>{}.6g}", q.value2, w2);
     // A decayed run has no LCO: no amplitude or frequency is shown for it.
     const bool decayed = q.ok && q.lco.response == ResponseClass::kDecayed;
     const std::string amp =
-        decayed ? "-" : fmt::format("{:.5g}", q.lco.dof[static_cast<std::size_t>(w)].amplitude * (angle ? kDegPerRad : 1.0));
+        decayed ? "-" : fmt::format("{:.5g}", pr.displacement_value(w, q.lco.dof[static_cast<std::size_t>(w)].amplitude));
     t += fmt::format(" {:>13} {:>9} {:<6} {:>10} {:>7}{}\n",
                      !q.ok ? std::string("failed")
                      : q.lco.response == ResponseClass::kPeriodic && !q.refined
                          ? std::string("periodic*")
                          : std::string(to_string(q.lco.response)),
-                     amp, decayed ? "" : angle ? "degree" : "m",
-                     decayed ? std::string("-") : fmt::format("{:.4g}", q.lco.frequency), q.lco.cycles,
+                     amp, decayed ? "" : pr.displacement_unit(w),
+                     decayed ? std::string("-") : fmt::format("{:.4g}", pr.frequency_value(q.lco.frequency)),
+                     q.lco.cycles,
                      q.ok ? "" : "  " + q.error.substr(0, 60));
   }
   const SweepSummary s = summarize(p);
@@ -626,8 +629,7 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   if (s.largest_amplitude) {
     const int w = p.front().lco.watched_dof;
     t += fmt::format("  largest LCO amplitude of the {}: {:.5g} {} at {:.6g}{}\n", kDofNames[w],
-                     *s.largest_amplitude * (w != kPlunge ? kDegPerRad : 1.0), w != kPlunge ? "degree" : "m",
-                     s.largest_at, at_units);
+                     pr.displacement_value(w, *s.largest_amplitude), pr.displacement_unit(w), s.largest_at, at_units);
   }
   if (const std::size_t unsettled = unsettled_points(p); unsettled > 0)
     t += "\n  warning: " + unsettled_warning(c, unsettled) + "\n";

@@ -27,7 +27,7 @@ std::vector<double> parse_speeds(const std::string& text) {
   if (!r || !(r->from >= 0) || !(r->to > r->from) || !(r->to < 1000) || r->n < 2 || r->n > 100000 ||
       !distinct_values(*r))
     throw InputError({"--speeds " + text, 0, 0}, "--speeds", text, "is not a valid speed range",
-                     "FROM:TO:N with 0 <= FROM < TO < 1000 (m/s, true airspeed; the theory is "
+                     "FROM:TO:N with 0 <= FROM < TO < 1000 (m s-1, true airspeed; the theory is "
                      "incompressible), 2 <= N <= 100000 distinct speeds, e.g. --speeds 10:120:221");
   std::vector<double> s = r->values();
   if (s.front() == 0.0) s.front() = 1e-6 * r->to;  // U = 0 has no reduced frequency
@@ -63,7 +63,7 @@ Command add_flutter_command(CLI::App& app) {
       "flutter", "linear flutter and divergence: state-space eigenvalues and p-k (exact Theodorsen)");
   add_case_options(cmd, *o);
   o->output_option = cmd->add_option("-o,--output", o->output, "HDF5 file for the V-g / V-f tables");
-  cmd->add_option("--speeds", o->speeds, "airspeeds FROM:TO:N in m/s (true airspeed)");
+  cmd->add_option("--speeds", o->speeds, "airspeeds FROM:TO:N in m s-1 (true airspeed)");
   cmd->add_option("--method", o->method, "state-space, pk or both")
       ->check(CLI::IsMember({"state-space", "pk", "both"}))
       ->capture_default_str();

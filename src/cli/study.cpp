@@ -71,7 +71,7 @@ int run(const StudyCommandOptions& o) {
     if (!r || !(r->from > 0) || !(r->to > r->from) || !(r->to < 1000) || r->n < 2 || r->n > kMaxStudySweepPoints ||
         !distinct_values(*r))
       throw InputError({"--sweep-speeds " + o.speeds, 0, 0}, "--sweep-speeds", o.speeds, "is not a valid speed range",
-                       fmt::format("FROM:TO:N with 0 < FROM < TO < 1000 (m/s, true airspeed) and 2 <= N <= {} "
+                       fmt::format("FROM:TO:N with 0 < FROM < TO < 1000 (m s-1, true airspeed) and 2 <= N <= {} "
                                    "distinct speeds, e.g. --sweep-speeds 10:90:41",
                                    kMaxStudySweepPoints));
     so.sweep_speeds = std::make_pair(r->from, r->to);
@@ -125,7 +125,7 @@ Command add_study_command(CLI::App& app) {
   cmd->add_option("--jobs", o->jobs, "threads of the LCO sweep (default: all cores)");
   cmd->add_option("--sweep-points", o->points, "airspeeds of the LCO sweep per direction")->capture_default_str();
   cmd->add_option("--sweep-speeds", o->speeds,
-                  "LCO sweep airspeeds FROM:TO:N in m/s TAS (default: from the freeplay band and V_D)");
+                  "LCO sweep airspeeds FROM:TO:N in m s-1 TAS (default: from the freeplay band and V_D)");
   cmd->add_flag("--no-plots", o->no_plots, "skip the figures (the report says so)");
   return {cmd, [o] { return run(*o); }};
 }

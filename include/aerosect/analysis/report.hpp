@@ -36,7 +36,16 @@ struct Presenter {
   std::string speed(double u_m_s, const char* what = "") const;
   std::string frequency(double f_hz) const;  // "0.08407 Hz" or "w/w_a 0.5282"
   std::string length(double m) const;        // "2 m" or "2 semichords"
-  std::string speed_heading() const { return reduced ? "U*" : "speed m/s"; }
+  // A displacement of DOF `dof` (SI: m or rad) in the unit a text shows it
+  // in: degrees for pitch and flap; m for plunge, or semichords (h/b) for a
+  // nondimensional case. `displacement_unit` names that unit in the files'
+  // vocabulary (UDUNITS: "degree", "m", "semichords").
+  double displacement_value(int dof, double v) const;
+  const char* displacement_unit(int dof) const;
+  // " (rad in the file)" or " (m in the file)" when the shown unit is not
+  // the file's, else "".
+  const char* file_unit_note(int dof) const;
+  std::string speed_heading() const { return reduced ? "U*" : "speed m s-1"; }
   std::string frequency_heading() const { return reduced ? "w/w_a" : "freq Hz"; }
   double speed_value(double u_m_s) const { return reduced ? u_m_s / speed_ref : u_m_s; }
   double frequency_value(double f_hz) const { return reduced ? 2 * std::numbers::pi * f_hz / omega_ref : f_hz; }

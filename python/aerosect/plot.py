@@ -33,7 +33,12 @@ For a `flutter` file it writes:
                       U/(b omega_alpha) when the reference speed is known;
   <stem>_vg_gaps.png  only when gap_open and gap_closed are present: their
                       state-space damping, with the band between their
-                      flutter speeds shaded as the freeplay LCO band.
+                      flutter speeds shaded as the linear freeplay bound
+                      and, when the file holds them (a study's flutter.h5:
+                      lco_found_from/_to), the speed ranges where stable
+                      LCOs were actually found, hatched along the bottom.
+  Both show the damping ratio zeta, or g = 2 zeta with --damping g
+  (plot_file(..., damping="g")); negative damping is unstable.
   Both end the speed axis at 1.5 times the highest flutter, divergence or
   1.15 V_D speed when the sweep runs much further (the title says so).
 For a `sweep` file (aerosect sweep -o) it writes:
@@ -383,16 +388,17 @@ def mark_clearance(axes, clearance, label_axis, at_top):
                         bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.8))
 
 
-def legend_below(ax, first_row, second_row, offset):
-    """A frameless legend under `ax` in two rows: the modes' colours, then the
-    line styles and bands. Each row is a list of (handle, text)."""
+def legend_below(ax, first_row, second_row, offset, third_row=None):
+    """A frameless legend under `ax` in two rows (three with `third_row`):
+    the modes' colours, then the line styles, then bands. Each row is a
+    list of (handle, text)."""
     from matplotlib.lines import Line2D
 
-    columns = max(len(first_row), len(second_row))
+    rows = [first_row, second_row] + ([third_row] if third_row else [])
+    columns = max(len(r) for r in rows)
     blank = (Line2D([], [], linestyle="none"), "")
-    first_row = first_row + [blank] * (columns - len(first_row))
-    second_row = second_row + [blank] * (columns - len(second_row))
-    entries = [entry for pair in zip(first_row, second_row) for entry in pair]  # column-major
+    rows = [r + [blank] * (columns - len(r)) for r in rows]
+    entries = [entry for column in zip(*rows) for entry in column]  # column-major
     ax.legend([h for h, _ in entries], [t for _, t in entries], loc="upper center",
               bbox_to_anchor=(0.5, offset), fontsize="small", ncol=columns, frameon=False)
 
@@ -429,7 +435,24 @@ def shown_speed_range(speed, events, clearance):
     return low, focus, f"speeds shown up to {focus:.4g} m/s; the file holds up to {high:.4g} m/s"
 
 
-def plot_vg(f, stem, outdir, speed, reference, labels):
+# The damping axis of the V-g figures: the damping ratio zeta of the roots,
+# or g = 2 zeta, the structural-damping coefficient a V-g reader may expect
+# (the two agree on the sign and on the flutter crossing; g = 2 zeta holds
+# for light damping: common practice, no source).
+DAMPING_AXES = {
+    "ratio": (1.0, r"damping ratio $\zeta$ [1]"),
+    "g": (2.0, r"damping $g = 2\zeta$ [1]"),
+}
+
+
+def damping_axis(damping):
+    if damping not in DAMPING_AXES:
+        raise PlotError(f"damping axis '{damping}' unknown (allowed: {', '.join(DAMPING_AXES)})")
+    factor, label = DAMPING_AXES[damping]
+    return factor, f"{label}\nnegative damping = unstable"
+
+
+def plot_vg(f, stem, outdir, speed, reference, labels, damping="ratio"):
     present = [l for l in LINEARISATIONS if l in f and isinstance(f[l], h5py.Group)]
     if not present:
         raise PlotError("flutter file without results (none of the groups "
@@ -440,13 +463,14 @@ def plot_vg(f, stem, outdir, speed, reference, labels):
     if not methods:
         raise PlotError(f"'{linearisation}' holds neither state_space nor pk results")
 
+    g_factor, g_label = damping_axis(damping)
     fig, (ax_g, ax_f) = plt.subplots(2, 1, sharex=True, figsize=(WIDTH_IN, 7.6),
                                      layout="constrained")
     n_modes = methods[0][3][1].shape[1]
     names = mode_labels(labels, n_modes)
-    for method, style, _, (_, damping, frequency) in methods:
-        for k in range(min(n_modes, damping.shape[1])):
-            ax_g.plot(speed, damping[:, k], style, color=f"C{k}", linewidth=1.3)
+    for method, style, _, (_, ratio, frequency) in methods:
+        for k in range(min(n_modes, ratio.shape[1])):
+            ax_g.plot(speed, g_factor * ratio[:, k], style, color=f"C{k}", linewidth=1.3)
             ax_f.plot(speed, frequency[:, k], style, color=f"C{k}", linewidth=1.3)
     ax_g.axhline(0.0, color="black", linewidth=0.8, zorder=1)
 
@@ -488,7 +512,7 @@ def plot_vg(f, stem, outdir, speed, reference, labels):
         labels_at_top.append((speed.min(), "no flutter or divergence in the sweep", "black"))
     label_speeds(ax_g, labels_at_top)
 
-    ax_g.set_ylabel("damping ratio [1]\n(negative: unstable)")
+    ax_g.set_ylabel(g_label)
     ax_f.set_ylabel("frequency [Hz]")
     ax_f.set_xlabel("true airspeed [m/s]")
     ax_f.set_ylim(bottom=0.0)
@@ -515,20 +539,32 @@ def plot_vg(f, stem, outdir, speed, reference, labels):
     return save(fig, os.path.join(outdir, f"{stem}_vg.png"))
 
 
-def plot_vg_gaps(f, stem, outdir, speed, reference, labels):
+def observed_lco(f):
+    """[(from, to)] true-airspeed ranges where a nonlinear analysis found
+    stable limit cycles (the study writes them into its flutter file), and
+    their source; ([], None) when the file has none."""
+    if "lco_found_from" not in f or "lco_found_to" not in f:
+        return [], None
+    lo = np.asarray(f["lco_found_from"][()], dtype=float)
+    hi = np.asarray(f["lco_found_to"][()], dtype=float)
+    return list(zip(lo, hi)), text_attribute(f, "lco_found_source", "")
+
+
+def plot_vg_gaps(f, stem, outdir, speed, reference, labels, damping="ratio"):
     cases = [("gap_closed", "-", "gap closed"), ("gap_open", "--", "gap open")]
     data = [(name, style, text, method_data(f, name, "state_space", speed.size))
             for name, style, text in cases]
     if any(d is None for _, _, _, d in data):
         return None
+    g_factor, g_label = damping_axis(damping)
     fig, ax = plt.subplots(figsize=(WIDTH_IN, 5.4), layout="constrained")
     n_modes = data[0][3][1].shape[1]
     names = mode_labels(labels, n_modes)
     speeds_found = {}
     marks = []
-    for name, style, text, (group, damping, _) in data:
-        for k in range(min(n_modes, damping.shape[1])):
-            ax.plot(speed, damping[:, k], style, color=f"C{k}", linewidth=1.3)
+    for name, style, text, (group, ratio, _) in data:
+        for k in range(min(n_modes, ratio.shape[1])):
+            ax.plot(speed, g_factor * ratio[:, k], style, color=f"C{k}", linewidth=1.3)
         v_f = found(group, "flutter")
         if v_f is not None:
             speeds_found[name] = v_f
@@ -538,8 +574,9 @@ def plot_vg_gaps(f, stem, outdir, speed, reference, labels):
             marks.append((v_f, f"flutter ({text}) {v_f:.4g} m/s", "black"))
     ax.axhline(0.0, color="black", linewidth=0.8, zorder=1)
 
-    low, high, range_note = shown_speed_range(speed, list(speeds_found.values()),
-                                              clearance_speeds(f))
+    found_ranges, found_source = observed_lco(f)
+    low, high, range_note = shown_speed_range(
+        speed, list(speeds_found.values()) + [v for r in found_ranges for v in r], clearance_speeds(f))
     ax.set_xlim(low, high)
     band = None
     if "gap_open" in speeds_found:
@@ -549,15 +586,21 @@ def plot_vg_gaps(f, stem, outdir, speed, reference, labels):
             low, high = high, low
         band = ax.axvspan(low, high, color="tab:orange", alpha=0.18, linewidth=0, zorder=0)
         beyond = "" if "gap_closed" in speeds_found else " (upper end beyond the sweep)"
-        ax.annotate(f"freeplay LCO band{beyond}", xy=(0.5 * (low + high), 1.0),
+        ax.annotate(f"linear freeplay bound{beyond}", xy=(0.5 * (low + high), 1.0),
                     xycoords=("data", "axes fraction"), xytext=(0, -4),
                     textcoords="offset points", ha="center", va="top", fontsize="small",
                     color="tab:brown", fontweight="bold")
+    # Where stable LCOs were actually found: hatched strips along the
+    # bottom (each range at least 0.4 % of the axis wide, to stay visible).
+    width = 0.004 * (ax.get_xlim()[1] - ax.get_xlim()[0])
+    for lo, hi in found_ranges:
+        ax.axvspan(lo - (width if hi - lo < width else 0), hi, ymin=0.0, ymax=0.06, facecolor="none",
+                   edgecolor="tab:red", hatch="////", linewidth=0.8, zorder=1)
     mark_clearance((ax,), clearance_speeds(f), ax, at_top=False)
     label_speeds(ax, marks, first_row=1 if band is not None else 0)
 
     ax.set_xlabel("true airspeed [m/s]")
-    ax.set_ylabel("damping ratio [1]\n(negative: unstable)")
+    ax.set_ylabel(g_label)
     ax.grid(True, linewidth=0.4, alpha=0.6)
     add_reduced_speed_axis(ax, reference)
 
@@ -567,21 +610,26 @@ def plot_vg_gaps(f, stem, outdir, speed, reference, labels):
     colours = [(Line2D([], [], color=f"C{k}", linewidth=2), names[k]) for k in range(n_modes)]
     styles = [(Line2D([], [], color="black", linestyle=style, linewidth=1.3),
                f"{text} (state space)") for _, style, text, _ in data]
+    bands = []
     if band is not None:
-        styles.append((Patch(color="tab:orange", alpha=0.18), "freeplay LCO band"))
-    legend_below(ax, colours, styles, -0.12)
+        bands.append((Patch(color="tab:orange", alpha=0.18), "linear freeplay bound"))
+    if found_ranges:
+        found_text = ", ".join(f"{lo:.4g}..{hi:.4g}" for lo, hi in found_ranges)
+        bands.append((Patch(facecolor="none", edgecolor="tab:red", hatch="////"),
+                      f"stable LCOs found: {found_text} m/s"))
+    legend_below(ax, colours, styles, -0.12, bands)
     title = text_attribute(f, "title", "") or "aerosect flutter analysis"
     range_note = f"\n({range_note})" if range_note else ""
     ax.set_title(f"{title}\nV-g with the freeplay gap open and closed{range_note}",
                  fontsize="medium")
-    footnote(fig, f)
+    footnote(fig, f, f"Hatched: stable LCOs found, from {found_source}." if found_source else None)
     return save(fig, os.path.join(outdir, f"{stem}_vg_gaps.png"))
 
 
-def plot_flutter(f, stem, outdir):
+def plot_flutter(f, stem, outdir, damping="ratio"):
     speed, reference, labels = flutter_axes(f)
-    written = [plot_vg(f, stem, outdir, speed, reference, labels)]
-    gaps = plot_vg_gaps(f, stem, outdir, speed, reference, labels)
+    written = [plot_vg(f, stem, outdir, speed, reference, labels, damping)]
+    gaps = plot_vg_gaps(f, stem, outdir, speed, reference, labels, damping)
     if gaps is not None:
         written.append(gaps)
     return written
@@ -1160,12 +1208,14 @@ PLOTTERS = {
 }
 
 
-def plot_file(path, outdir=None):
+def plot_file(path, outdir=None, damping="ratio"):
     """Every figure of the aerosect result file `path` (its kind read from its
     own `aerosect_file_kind` attribute) into `outdir` (default: the file's
     directory), named after the file's stem; returns the paths written.
-    Raises PlotError for a file it cannot plot, OSError for one h5py cannot
-    read."""
+    `damping` is the V-g figures' damping axis: "ratio" (zeta) or "g"
+    (2 zeta). Raises PlotError for a file it cannot plot, OSError for one
+    h5py cannot read."""
+    damping_axis(damping)
     outdir = outdir or os.path.dirname(os.path.abspath(path))
     stem = os.path.splitext(os.path.basename(path))[0]
     with h5py.File(path, "r") as f:
@@ -1177,6 +1227,8 @@ def plot_file(path, outdir=None):
             raise PlotError(f"no plots for files of kind '{kind}' "
                             f"(known: {', '.join(sorted(PLOTTERS))})")
         os.makedirs(outdir, exist_ok=True)
+        if plotter is plot_flutter:
+            return plotter(f, stem, outdir, damping)
         return plotter(f, stem, outdir)
 
 
@@ -1185,9 +1237,12 @@ def main(argv):
     parser.add_argument("file", help="aerosect HDF5 result file")
     parser.add_argument("-o", "--outdir", help="directory for the PNG files "
                         "(default: the directory of FILE)")
+    parser.add_argument("--damping", choices=sorted(DAMPING_AXES), default="ratio",
+                        help="damping axis of the V-g figures: the damping ratio zeta (default) "
+                        "or g = 2 zeta")
     args = parser.parse_args(argv)
     try:
-        paths = plot_file(args.file, args.outdir)
+        paths = plot_file(args.file, args.outdir, args.damping)
     except PlotError as e:
         print(f"plot: {args.file}: {e}", file=sys.stderr)
         return 2

@@ -456,6 +456,21 @@ void write_flutter_tables(TableSink& doc, const Case& c, const FlutterReport& r)
     doc.number_attribute("", "clearance_speed_tas",
                          1.15 * true_airspeed(*r.dive_speed_eas, r.density));
   }
+  if (!r.observed_lco.ranges.empty()) {
+    // Where stable LCOs were found (the study): ranges over their own axis.
+    const std::size_t n = r.observed_lco.ranges.size();
+    std::vector<std::int32_t> idx(n);
+    std::vector<double> from(n), to(n);
+    for (std::size_t k = 0; k < n; ++k) {
+      idx[k] = static_cast<std::int32_t>(k + 1);
+      from[k] = r.observed_lco.ranges[k].first;
+      to[k] = r.observed_lco.ranges[k].second;
+    }
+    doc.integer_axis("lco_range", idx, "speed range where stable limit cycles were found");
+    doc.dataset("lco_found_from", {"lco_range"}, from, "m s-1", "lowest true airspeed of the range (stable LCO found)");
+    doc.dataset("lco_found_to", {"lco_range"}, to, "m s-1", "highest true airspeed of the range (stable LCO found)");
+    doc.text_attribute("", "lco_found_source", r.observed_lco.source);
+  }
   if (r.results.empty() || r.results.front().methods.empty()) return;
   const std::vector<double>& speeds = r.results.front().methods.front().sweep.speeds;
   doc.axis("speed", speeds, "m s-1", "true airspeed");

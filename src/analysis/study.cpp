@@ -4,7 +4,9 @@
 #include <cmath>
 #include <exception>
 #include <filesystem>
+#include <iterator>
 #include <limits>
+#include <map>
 #include <numbers>
 #include <sstream>
 
@@ -885,6 +887,34 @@ void lco_orbit_history_stage(Study& s, const LcoBranchRun& r, const std::string&
                  std::max(std::abs(e.max), std::abs(e.min)), "N m m-1", "lco.h5@hinge_moment_max, @hinge_moment_min (the trajectory's extremes)");
 }
 
+// Where stable LCOs were found, into flutter.h5 beside the linear freeplay
+// bound (its V-g figure shades both): the branch's stable segments, or,
+// without a branch, the sweep's runs of adjacent periodic points. The file
+// is rewritten whole (Hdf5Document renames it into place).
+void observed_lco_ranges(Study& s, const LcoSweepRun& run, const Branch& b) {
+  auto& obs = s.flutter.observed_lco;
+  obs = {};
+  for (const auto& g : stability_segments(b))
+    if (g.stable) obs.ranges.push_back(airspeed_range(b, g));
+  if (!obs.ranges.empty()) {
+    obs.source = "branch.h5: stable converged orbits (each range from its lowest to its highest airspeed)";
+  } else {
+    std::map<double, bool> periodic;  // swept speed (m/s TAS) -> some run periodic there
+    for (const auto& p : run.points) {
+      const bool per = p.ok && p.lco.response == ResponseClass::kPeriodic;
+      periodic[p.value1 / run.per] = periodic[p.value1 / run.per] || per;
+    }
+    for (auto it = periodic.begin(); it != periodic.end(); ++it) {
+      if (!it->second) continue;
+      if (it != periodic.begin() && std::prev(it)->second) obs.ranges.back().second = it->first;
+      else obs.ranges.emplace_back(it->first, it->first);
+    }
+    obs.source = "sweep.h5: periodic runs (each range from the lowest to the highest of adjacent swept speeds)";
+  }
+  if (obs.ranges.empty()) return;
+  write_flutter_file(s.path("flutter.h5"), s.c, s.flutter);
+}
+
 // The LCO sweep, its rows and the history of its largest LCO.
 void lco_stages(Study& s) {
   const int nl = nonlinear_dof(s.c);
@@ -902,6 +932,7 @@ void lco_stages(Study& s) {
                                      : std::string("over the sweep (no V_D given)");
   const SweepPoint* worst = largest_lco(s, run);
   LcoBranchRun br = lco_branch_stage(s, run, speeds);
+  observed_lco_ranges(s, run, br.branch);
   // The branch's largest stable LCO is the answer unless the sweep found a
   // larger one (on another branch than the one continued).
   if (br.largest && worst) {

@@ -85,8 +85,11 @@ def check_figure_functions(work):
     ylabels = []
     real_save = plot.save
 
+    first_curve = {}
+
     def recording_save(fig, path):
         ylabels.extend(ax.get_ylabel() for ax in fig.axes)
+        first_curve[os.path.basename(path)] = np.asarray(fig.axes[0].lines[0].get_ydata(), dtype=float)
         return real_save(fig, path)
 
     plot.save = recording_save
@@ -98,9 +101,18 @@ def check_figure_functions(work):
         path = plot.plot_vg_gaps(f, "flutter", work, speed, reference, labels)
         assert path == os.path.join(work, "flutter_vg_gaps.png"), path
         check_png(path)
+        # The same figures with g = 2 zeta on the damping axis (the V-g
+        # convention of structural damping; g = 2 zeta for light damping:
+        # common practice, no source): the curves are twice the ratio's.
+        path = plot.plot_vg(f, "flutter_g", work, speed, reference, labels, damping="g")
+        check_png(path)
     plot.save = real_save
     damping = [y for y in ylabels if y.startswith("damping ratio")]
-    assert len(damping) == 2 and all("negative: unstable" in y for y in damping), ylabels
+    assert len(damping) == 2 and all("negative damping = unstable" in y for y in damping), ylabels
+    ratio, g = first_curve["flutter_vg.png"], first_curve["flutter_g_vg.png"]
+    assert np.array_equal(g, 2 * ratio), (ratio[:3], g[:3])
+    g_axes = [y for y in ylabels if y.startswith("damping $g = 2")]
+    assert len(g_axes) == 1 and "negative damping = unstable" in g_axes[0], ylabels
 
 
 def check_plot_file(work):

@@ -192,6 +192,26 @@ def check_branch(out, rows, vd_tas, checks):
         assert mu < 1 and trivial < 1e-8 and v_orbit <= vd_tas, (mu, trivial, v_orbit)
     checks.run("the largest stable LCO is the branch's maximum inside the envelope, stable", largest_is_the_maximum)
 
+    def found_ranges_are_the_stable_orbits():
+        # The V-g figure's "stable LCOs found" strips (flutter.h5) are the
+        # branch's runs of stable orbits, end to end (issue #15: the
+        # freeplay band drawn where the LCOs were found).
+        with h5py.File(os.path.join(out, "branch.h5"), "r") as f:
+            speed = f["airspeed"][:]
+            stable = f["stable"][:] > 0.5
+        runs, start = [], None
+        for i, st in enumerate(list(stable) + [False]):
+            if st and start is None:
+                start = i
+            if not st and start is not None:
+                runs.append((speed[start:i].min(), speed[start:i].max()))
+                start = None
+        with h5py.File(os.path.join(out, "flutter.h5"), "r") as f:
+            lo, hi = f["lco_found_from"][:], f["lco_found_to"][:]
+            assert f["lco_found_from"].attrs["units"] in (b"m s-1", "m s-1")
+        assert runs and list(zip(lo, hi)) == runs, (list(zip(lo, hi)), runs)
+    checks.run("flutter.h5 holds the speed ranges of the branch's stable orbits", found_ranges_are_the_stable_orbits)
+
     def bands_are_named():
         assert "lco_branch" in rows and "lco_branch_stable" in rows and "lco_branch_unstable" in rows
         bands = [k for k in rows if k.startswith("lco_hysteresis_fold_")]

@@ -114,6 +114,14 @@ struct FlutterReport {
   bool has_gap = false;                      // some spring has a gap (gap bounds computed)
   std::optional<double> dive_speed_eas;      // V_D from the case, m/s EAS
   LcoPrediction lco;                         // describing-function LCO (one nonlinear spring)
+  // Where a nonlinear analysis actually found stable limit cycles, beside
+  // the linear gap-open..gap-closed bound: true-airspeed ranges (m/s) and
+  // their source. Empty from flutter_analysis; the study fills it from its
+  // branch of converged orbits (or its sweep's periodic runs).
+  struct ObservedLco {
+    std::vector<std::pair<double, double>> ranges;  // [from, to], m/s TAS
+    std::string source;
+  } observed_lco;
 };
 
 // Names of the modes of (diag(stiffness), M_s) by the rule above.

@@ -1,5 +1,6 @@
 #include "aerosect/analysis/gust_sweep.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <functional>
 
@@ -33,9 +34,8 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
                      "a [[gust]] table with shape = \"one-minus-cosine\" and a gradient or design");
   GustSweep out;
   out.start = start;
-  for (double H : gradients) {
-    AEROSECT_CHECK(H > 0);
-    stop_if_cancelled(cancel);
+  // One run at gradient H into `sink`.
+  auto run_at = [&](double H, TimeHistorySink& sink) {
     Case run = c;
     std::vector<GustProfile> profiles = base;
     double first = -1;
@@ -58,13 +58,18 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
     // Long enough to pass through the longest gust and a little after.
     run.simulation.duration = std::max(c.simulation.duration, run.model.gusts.end_time() * 1.5);
     const AeroelasticModel model(run.model);
-    NullSink sink;
     GustSweepPoint pt;
     pt.gradient = H;
     pt.design_velocity = first;
     pt.summary = simulate(run, model, sink, cancel);
     stop_if_cancelled(cancel);  // a run stopped part-way is no peak
-    out.points.push_back(pt);
+    return pt;
+  };
+  for (double H : gradients) {
+    AEROSECT_CHECK(H > 0);
+    stop_if_cancelled(cancel);
+    NullSink sink;
+    out.points.push_back(run_at(H, sink));
   }
   // Critical gradient per channel.
   if (!out.points.empty()) {
@@ -88,6 +93,20 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
       }
       out.critical.push_back(cr);
     }
+  }
+  // The time history at each distinct critical gradient (the same
+  // deterministic run as the sweep's, now recorded).
+  for (const auto& cr : out.critical) {
+    auto same = [&](const GustSweep::History& h) { return h.gradient == cr.gradient; };
+    if (auto it = std::find_if(out.histories.begin(), out.histories.end(), same); it != out.histories.end()) {
+      it->critical_for.push_back(cr.channel);
+      continue;
+    }
+    GustSweep::History h;
+    h.gradient = cr.gradient;
+    h.critical_for = {cr.channel};
+    h.design_velocity = run_at(cr.gradient, h.record).design_velocity;
+    out.histories.push_back(std::move(h));
   }
   return out;
 }
@@ -120,6 +139,13 @@ nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::str
   for (const auto& cr : s.critical)
     j["critical"][cr.channel] = {{"gradient_m", cr.gradient}, {"value", cr.value},
                                  {"units", cr.units}, {"time_s", cr.time}};
+  j["critical_histories"] = nlohmann::json::array();
+  for (std::size_t k = 0; k < s.histories.size(); ++k)
+    j["critical_histories"].push_back({{"group", fmt::format("critical_history_{}", k + 1)},
+                                       {"gradient_m", s.histories[k].gradient},
+                                       {"design_velocity_m_s", s.histories[k].design_velocity},
+                                       {"critical_for", s.histories[k].critical_for},
+                                       {"samples", s.histories[k].record.rows()}});
   return j;
 }
 
@@ -173,6 +199,15 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
     else
       t += fmt::format("    {:<24} H = {:<8.4g} m  peak {:.6g} {} at t = {:.4g} s\n", cr.channel, cr.gradient, v,
                        units, cr.time);
+  }
+  if (!s.histories.empty()) {
+    t += "\n  time histories kept at the critical gradients:\n";
+    for (std::size_t k = 0; k < s.histories.size(); ++k) {
+      std::string of;
+      for (const auto& ch : s.histories[k].critical_for) of += (of.empty() ? "" : ", ") + ch;
+      t += fmt::format("    critical_history_{}  H = {}  {} samples  (critical for {})\n", k + 1,
+                       pr.length(s.histories[k].gradient), s.histories[k].record.rows(), of);
+    }
   }
   if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
   t += "\n";
@@ -236,6 +271,19 @@ void write_gust_sweep_tables(TableSink& doc, const Case& c, const GustSweep& s) 
   for (const auto& cr : s.critical) {
     doc.number_attribute("peaks", "critical_gradient_" + cr.channel, cr.gradient);
     doc.number_attribute("peaks", "critical_value_" + cr.channel, cr.value);
+  }
+  for (std::size_t k = 0; k < s.histories.size(); ++k) {
+    const GustSweep::History& h = s.histories[k];
+    const std::string g = fmt::format("critical_history_{}", k + 1);
+    doc.axis(g + "/time", h.record.time(), "s", "time since release");
+    doc.dataset(g + "/gradient", {}, std::vector<double>{h.gradient}, "m", "gust gradient distance H of this run");
+    doc.dataset(g + "/design_velocity", {}, std::vector<double>{h.design_velocity}, "m s-1",
+                "peak velocity of the first one-minus-cosine gust (true airspeed)");
+    std::string of;
+    for (const auto& ch : h.critical_for) of += (of.empty() ? "" : " ") + ch;
+    doc.text_attribute(g, "critical_for", of);
+    for (const Channel& ch : h.record.channels())
+      if (ch.width == 1) doc.dataset(g + "/" + ch.name, {g + "/time"}, h.record.column(ch.name), ch.units, ch.long_name);
   }
 }
 

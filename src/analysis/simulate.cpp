@@ -200,10 +200,26 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
          g.regulation_sized ? "design gust velocity U_ds as sized (true airspeed)"
                             : "step height, 1-cos peak or sine amplitude (true airspeed)");
     if (g.shape == GustShape::kOneMinusCosine) gp("gradient", g.gradient, "m", "gust gradient H");
+    if (g.regulation_sized) gp("eas_to_tas", g.eas_to_tas, "1", "factor from EAS to TAS at the case's density");
     if (g.shape == GustShape::kSinusoidal) {
       gp("frequency", g.frequency, "rad s-1", "circular frequency");
       gp("cycles", g.cycles, "1", "duration in periods (0: to the end)");
     }
+  }
+  // The inputs of CS-25.341(a) sizing and what it derived from them.
+  if (c.gust_regulation) {
+    const RegulationGustInputs& in = *c.gust_regulation;
+    auto rp = [&](const char* name, double v, const char* units, const char* ln) {
+      m.parameters.push_back({"gust_sizing", name, v, units, ln});
+    };
+    rp("altitude", in.altitude, "m", "altitude of the sizing (CS-25.341(a)(5))");
+    rp("landing_weight_ratio", in.landing_weight_ratio, "1", "R1 = max landing weight / max take-off weight");
+    rp("zero_fuel_weight_ratio", in.zero_fuel_weight_ratio, "1", "R2 = max zero-fuel weight / max take-off weight");
+    rp("max_operating_altitude", in.max_operating_altitude, "m", "Z_mo, maximum operating altitude");
+    rp("at_dive_speed", in.at_dive_speed ? 1.0 : 0.0, "1", "1: sized at V_D (U_ref halved), 0: at V_C");
+    rp("reference_gust_velocity", cs25_reference_gust_velocity(in.altitude) * (in.at_dive_speed ? 0.5 : 1.0),
+       "m s-1", "U_ref at the altitude (equivalent airspeed), halved at V_D");
+    rp("flight_profile_alleviation", cs25_flight_profile_alleviation(in), "1", "F_g at the altitude");
   }
   return m;
 }

@@ -317,18 +317,24 @@ class Document {
                 const H5::PredType& memory_type, const void* values, const std::string& units,
                 const std::string& long_name) {
     usable();
-    if (!valid_link_name(name) || name == kParametersGroup)
+    // A root axis, or a group's own ("history/time": a netCDF dimension
+    // `time` of that group); named in dataset dims by its full path.
+    bool valid = false;
+    const auto parts = split_path(name, valid);
+    if (!valid || parts.empty() || parts.front() == kParametersGroup)
       refuse(fmt::format("invalid axis name '{}'", name));
     run(fmt::format("writing axis '{}'", name), [&] {
-      if (file_->nameExists(name)) refuse(fmt::format("'{}' already exists", name));
+      const std::size_t existing = existing_prefix(parts, name);
+      if (existing == parts.size()) refuse(fmt::format("'{}' already exists", name));
       room_for(length * file_type.getSize(), fmt::format("axis '{}'", name));
+      H5::Group parent = make_groups(parts, existing, parts.size() - 1);
       const std::vector<hsize_t> dims{static_cast<hsize_t>(length)};
-      H5::DataSet d = file_->createDataSet(name, file_type, H5::DataSpace(1, dims.data()),
+      H5::DataSet d = parent.createDataSet(parts.back(), file_type, H5::DataSpace(1, dims.data()),
                                            array_properties(dims));
       if (length > 0) d.write(values, memory_type);
       write_text(d, "units", units);
       write_text(d, "long_name", long_name);
-      set_scale(d, name);
+      set_scale(d, parts.back());
       axes_.emplace(name, Axis{d, dims[0]});
     });
   }

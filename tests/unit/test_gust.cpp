@@ -1,6 +1,7 @@
 #include <catch2/catch.hpp>
 
 #include <cmath>
+#include <map>
 #include <complex>
 #include <filesystem>
 #include <fstream>
@@ -267,6 +268,48 @@ TEST_CASE("Gradient sweep re-sizes regulation gusts and names the critical gradi
     CHECK(cr.gradient == at);
     CHECK(std::abs(cr.value) == Approx(best));
   }
+  // The time history at each distinct critical gradient is kept: every
+  // channel names exactly one history, at its own critical H; its largest
+  // sample is never above the channel's true extreme (located between
+  // samples, simulate.hpp) and lies within one sample interval of its time.
+  std::size_t named = 0;
+  for (const auto& h : s.histories) {
+    REQUIRE(h.record.rows() > 10);
+    CHECK(h.design_velocity > 0);
+    for (const auto& ch : h.critical_for) {
+      ++named;
+      for (const auto& cr : s.critical)
+        if (cr.channel == ch) {
+          CHECK(cr.gradient == h.gradient);
+          const std::vector<double> v = h.record.column(ch);
+          std::size_t at = 0;
+          for (std::size_t i = 0; i < v.size(); ++i)
+            if (std::abs(v[i]) > std::abs(v[at])) at = i;
+          const double dt = h.record.time()[1] - h.record.time()[0];
+          CHECK(std::abs(v[at]) <= std::abs(cr.value) * (1 + 1e-12));
+          CHECK(std::abs(h.record.time()[at] - cr.time) <= dt * (1 + 1e-9));
+        }
+    }
+  }
+  CHECK(named == s.critical.size());
+  // The sizing inputs are numbers in the file, with what they give, worked
+  // by hand from CS-25.341(a)(5)(i) and (a)(6): U_ref 56 ft/s EAS at sea
+  // level falling linearly to 44 ft/s at 15 000 ft; F_g = (F_gz + F_gm) / 2
+  // at sea level, F_gz = 1 - Z_mo / 250 000 ft = 0.835958, F_gm =
+  // sqrt(R2 tan(pi R1 / 4)) = 0.826598, rising linearly to 1 at Z_mo:
+  // 0.831278 + (1 - 0.831278) * 3000 / 12500 = 0.871771.
+  const RunMetadata meta = case_metadata(c, "gust-sweep");
+  std::map<std::string, double> sizing;
+  for (const auto& p : meta.parameters)
+    if (p.group == "gust_sizing") sizing[p.name] = p.value;
+  CHECK(sizing.at("altitude") == 3000.0);
+  CHECK(sizing.at("landing_weight_ratio") == 0.9);
+  CHECK(sizing.at("zero_fuel_weight_ratio") == 0.8);
+  CHECK(sizing.at("max_operating_altitude") == 12500.0);
+  CHECK(sizing.at("at_dive_speed") == 0.0);
+  CHECK(sizing.at("reference_gust_velocity") ==
+        Approx((56.0 - 12.0 * 3000.0 / (15000 * 0.3048)) * 0.3048).epsilon(1e-12));
+  CHECK(sizing.at("flight_profile_alleviation") == Approx(0.871771).epsilon(1e-6));
 }
 
 TEST_CASE("Gradient sweep starts from rest unless asked: peaks are the gust's own", "[gust]") {

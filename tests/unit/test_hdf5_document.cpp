@@ -196,6 +196,34 @@ TEST_CASE("HDF5 document: axes are dimension scales attached to every dimension"
   REQUIRE(H5DSget_num_scales(reduced.getId(), 0) == 1);
 }
 
+TEST_CASE("HDF5 document: a group's own axis is a dimension scale of that group", "[hdf5_document]") {
+  // netCDF-4 data model (netCDF User Guide, groups): a dimension belongs to
+  // a group and is seen by its variables; in HDF5 a dimension scale in the
+  // group named after the dimension (H5DS docs).
+  H5::Exception::dontPrint();
+  TempDir dir;
+  const std::string path = dir.file("groups.h5");
+  {
+    Hdf5Document doc(path);
+    doc.axis("speed", kSpeeds, "m s-1", "true airspeed");
+    const std::vector<double> t{0.0, 0.5, 1.0, 1.5};
+    doc.axis("history_1/time", t, "s", "time");
+    doc.dataset("history_1/lift", {"history_1/time"}, std::vector<double>{1, 2, 3, 4}, "N m-1", "lift");
+    doc.dataset("history_1/gradient", {}, std::vector<double>{9.0}, "m", "H");
+    doc.commit();
+  }
+  H5::H5File file(path, H5F_ACC_RDONLY);
+  H5::DataSet time = file.openDataSet("history_1/time");
+  REQUIRE(H5DSis_scale(time.getId()) > 0);
+  char scale_name[32] = {};
+  REQUIRE(H5DSget_scale_name(time.getId(), scale_name, sizeof scale_name) == 4);
+  REQUIRE(std::string(scale_name) == "time");
+  H5::DataSet lift = file.openDataSet("history_1/lift");
+  REQUIRE(H5DSis_attached(lift.getId(), time.getId(), 0) > 0);
+  REQUIRE(H5DSget_num_scales(lift.getId(), 0) == 1);
+  REQUIRE(file.openDataSet("history_1/gradient").getSpace().getSimpleExtentNdims() == 0);
+}
+
 TEST_CASE("HDF5 document: metadata, parameters and attributes", "[hdf5_document]") {
   H5::Exception::dontPrint();
   TempDir dir;
@@ -505,7 +533,8 @@ TEST_CASE("HDF5 document: requests that do not fit throw OutputError and change 
   refused([&] { doc.dataset("bad//path", {"speed"}, kSpeeds, "1", "x"); }, "invalid dataset path");
   refused([&] { doc.dataset("", {"speed"}, kSpeeds, "1", "x"); }, "invalid dataset path");
   refused([&] { doc.axis("speed", kSpeeds, "m s-1", "again"); }, "'speed' already exists");
-  refused([&] { doc.axis("a/b", kSpeeds, "1", "x"); }, "invalid axis name");
+  refused([&] { doc.axis("a//b", kSpeeds, "1", "x"); }, "invalid axis name");
+  refused([&] { doc.axis("parameters/t", kSpeeds, "1", "x"); }, "invalid axis name");
 
   doc.dataset("nominal/state_space/frequency", {"speed", "mode"}, v, "Hz", "frequency");
   refused([&] { doc.dataset("nominal/state_space/frequency", {"speed", "mode"}, v, "Hz", "f"); },

@@ -14,6 +14,7 @@
 #include <nlohmann/json.hpp>
 
 #include "aerosect/analysis/simulate.hpp"
+#include "aerosect/integrate/sink.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/io/table_layout.hpp"
 
@@ -40,6 +41,15 @@ struct GustSweep {
     double gradient = 0, value = 0, time = 0;
   };
   std::vector<Critical> critical;
+  // The run at each distinct critical gradient, rerun with every channel
+  // recorded at the case's sample rate (critical_for: the channels whose
+  // critical gradient it is, in the order of `critical`).
+  struct History {
+    double gradient = 0, design_velocity = 0;
+    std::vector<std::string> critical_for;
+    MemorySink record;
+  };
+  std::vector<History> histories;
 };
 
 // 12 gradients spanning 30..350 ft (9.144..106.68 m), the CS-25.341 range.
@@ -55,6 +65,8 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
 // The layout of a gust-sweep point (io/table_layout.hpp), over the axis
 // `gradient`: design_velocity and, per channel of `first` (every point of a
 // sweep has the same channels), peaks/<channel>_max and peaks/<channel>_min.
+// The histories go to groups critical_history_<k> (README), each with its
+// own `time` axis.
 Layout<GustSweepPoint> gust_sweep_layout(const GustSweepPoint& first);
 // The file (layout in README.md, "Gust gradient sweeps") into a sink, and
 // into an HDF5 file.

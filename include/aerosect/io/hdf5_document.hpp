@@ -43,7 +43,9 @@ class Hdf5Document : public TableSink {
   // attributes) and the /parameters/<group>/<name> scalars.
   void metadata(const RunMetadata& meta) override;
 
-  // A 1-D coordinate variable at the root that is a dimension scale.
+  // A 1-D coordinate variable that is a dimension scale: at the root, or
+  // in a group ("history/time": the group's own dimension `time`, named by
+  // its full path in the dims of the datasets that use it).
   void axis(const std::string& name, std::span<const double> values, const std::string& units,
             const std::string& long_name) override;
   void integer_axis(const std::string& name, std::span<const std::int32_t> values,

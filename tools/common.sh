@@ -10,7 +10,7 @@ JOBS="${JOBS:-$(nproc)}"
 AEROSECT_PACKAGES=(
   g++ cmake ninja-build pkg-config
   libboost-dev libeigen3-dev libhdf5-dev libfmt-dev catch2 libtomlplusplus-dev
-  libcli11-dev nlohmann-json3-dev
+  libcli11-dev nlohmann-json3-dev nettle-dev
   hdf5-tools netcdf-bin
   python3-h5py python3-numpy python3-scipy python3-matplotlib python3-netcdf4 python3-xarray
   chromium python3-websocket  # the HTML report's browser test (tests/integration/browser.py)

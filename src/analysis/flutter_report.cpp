@@ -227,14 +227,14 @@ FlutterMargin flutter_margin(const FlutterReport& r) {
     m.critical_eas = std::numeric_limits<double>::infinity();
     m.critical_tas = m.critical_eas;
     m.margin = std::numeric_limits<double>::infinity();
-    m.cleared = true;
+    m.margin_met = true;
     return m;
   }
   m.available = true;
   m.critical_tas = crit;
   m.critical_eas = equivalent_airspeed(crit, r.density);
   m.margin = m.critical_eas / m.required_eas - 1.0;
-  m.cleared = m.margin >= 0;
+  m.margin_met = m.margin >= 0;
   return m;
 }
 
@@ -330,7 +330,7 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
     mj["critical_method"] = fm.critical_method.empty() ? nlohmann::json(nullptr) : nlohmann::json(fm.critical_method);
     mj["critical_eas_m_s"] = std::isfinite(fm.critical_eas) ? nlohmann::json(fm.critical_eas) : nullptr;
     mj["margin_percent"] = std::isfinite(fm.margin) ? nlohmann::json(100 * fm.margin) : nullptr;
-    mj["cleared"] = fm.cleared;
+    mj["margin_met"] = fm.margin_met;
     mj["lco_onset_eas_m_s"] = fm.lco_onset_eas ? nlohmann::json(*fm.lco_onset_eas) : nullptr;
     mj["lco_onset_method"] = fm.lco_onset_eas ? nlohmann::json(fm.lco_onset_method) : nullptr;
     mj["caution"] = kMarginCaution;
@@ -424,7 +424,7 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
     } else {
       t += fmt::format("  lowest instability: {} ({}) at {:.5g} m s-1 EAS: margin {:+.1f} % -> {}\n",
                        fm.critical_kind, fm.critical_method, fm.critical_eas, 100 * fm.margin,
-                       fm.cleared ? "beyond 1.15 V_D" : "INSIDE 1.15 V_D");
+                       fm.margin_met ? "margin met: beyond 1.15 V_D" : "margin NOT met: inside 1.15 V_D");
     }
     if (fm.lco_onset_eas)
       t += fmt::format("  freeplay LCO can start at the gap-open flutter speed ({}), {:.5g} m s-1 EAS ({})\n",

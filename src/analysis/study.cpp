@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <ctime>
 #include <exception>
 #include <filesystem>
 #include <iterator>
@@ -10,6 +11,7 @@
 #include <numbers>
 #include <sstream>
 
+#include <fmt/chrono.h>
 #include <fmt/format.h>
 #include <toml++/toml.h>
 
@@ -24,6 +26,7 @@
 #include "aerosect/analysis/sweep.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/integrate/exact_flow.hpp"
+#include "aerosect/io/checksum.hpp"
 #include "aerosect/io/hdf5_writer.hpp"
 #include "aerosect/io/text_file.hpp"
 #include "aerosect/units.hpp"
@@ -292,11 +295,12 @@ void flutter_stage(Study& s) {
                  100 * fm.margin, "%",
                  fmt::format("flutter.h5: /{} (EAS = TAS sqrt(rho/{}))",
                              flutter_group(Linearisation::kNominal, fm.critical_method), kSeaLevelDensity),
-                 fm.cleared ? "cleared (linear model, nominal springs)" : "NOT cleared");
+                 fm.margin_met ? "margin met: beyond 1.15 V_D (linear model, nominal springs)"
+                               : "margin NOT met: inside 1.15 V_D (linear model, nominal springs)");
     else
       s.rows.text("margin", "Margin over 1.15 V_D", "no instability in the analysed range",
                   "flutter.h5: /" + flutter_group(Linearisation::kNominal, "state-space"),
-                  "cleared (linear model, nominal springs)");
+                  "margin met: no instability up to the sweep's end (linear model, nominal springs)");
   } else {
     s.rows.text("margin", "Margin over 1.15 V_D", "not assessed", "", "the case gives no envelope.dive_speed_eas");
   }
@@ -1033,6 +1037,9 @@ nlohmann::json summary_json(const Case& c, const StudyResult& R) {
     j["parts"].push_back({{"name", p.name}, {"done", p.done}, {"detail", p.detail}, {"files", p.files}});
   j["hdf5_files"] = R.hdf5_files;
   j["completed"] = R.completed;
+  j["started_utc"] = R.started_utc;
+  j["inputs"] = nlohmann::json::array();
+  for (const auto& in : R.inputs) j["inputs"].push_back({{"role", in.role}, {"path", in.path}, {"sha256", in.sha256}});
   return j;
 }
 
@@ -1049,6 +1056,9 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
                                                ec ? ec.message() : "not a directory"));
   }
   Study s(c, directory, o, cancel, progress);
+  s.R.started_utc = fmt::format("{:%Y-%m-%dT%H:%M:%SZ}", fmt::gmtime(std::time(nullptr)));
+  s.R.inputs.push_back({"case", c.path, sha256_hex(c.text)});  // the text as read: the file's bytes
+  for (const auto& f : c.input_files) s.R.inputs.push_back({"recorded gust", f, sha256_hex_of_file(f).value_or("")});
   try {
     check_stage(s);
     stop_if_cancelled(cancel);

@@ -109,9 +109,9 @@ void write_study_report(const Case& c, const StudyResult& r, const std::vector<S
   h += fmt::format("<title>aerosect study: {}</title>\n", escape(c.title.empty() ? c.path : c.title));
   h += fmt::format("<style>{}</style>\n</head>\n<body>\n", kStyle);
   h += fmt::format("<h1>Clearance study: {}</h1>\n", escape(c.title.empty() ? c.path : c.title));
-  h += fmt::format("<p class=\"meta\">Case file <code>{}</code> &middot; aerosect {} &middot; {} degrees "
-                   "of freedom &middot; {} aerodynamics</p>\n",
-                   escape(c.path), kVersion, c.model.section.dof,
+  h += fmt::format("<p class=\"meta\">Case file <code>{}</code> &middot; aerosect {} &middot; run started {} "
+                   "&middot; {} degrees of freedom &middot; {} aerodynamics</p>\n",
+                   escape(c.path), kVersion, escape(r.started_utc), c.model.section.dof,
                    escape(report_header(c, "study").value("aerodynamic_model", std::string("?"))));
 
   // Cautions first, in plain words.
@@ -125,8 +125,7 @@ void write_study_report(const Case& c, const StudyResult& r, const std::vector<S
        "<li>Freeplay limits for real hardware come from the applicable specification, not from this "
        "tool.</li>"
        "<li>The margin below is the linear model's; a freeplay limit cycle can occur well below it "
-       "(see the LCO rows).</li></ul>";
-  h += fmt::format("<p class=\"meta\">{}</p></div>\n", escape(kSafetyCaution));
+       "(see the LCO rows).</li></ul></div>\n";
 
   // Summary table.
   h += "<h2>Summary</h2>\n<table id=\"summary\">\n<colgroup><col class=\"q\"><col class=\"v\"><col "
@@ -188,10 +187,19 @@ void write_study_report(const Case& c, const StudyResult& r, const std::vector<S
 
   // Case as run.
   h += "<h2>Case as run</h2>\n<pre id=\"case\">" + escape(c.text_as_run()) + "</pre>\n";
-  h += fmt::format("<h2>Program</h2>\n<p class=\"meta\" id=\"version\">aerosect {}; every HDF5 file in "
-                   "this directory carries the same version, the case as run and the conventions as "
-                   "attributes.</p>\n",
-                   kVersion);
+  h += fmt::format("<h2>Program and inputs</h2>\n<p class=\"meta\" id=\"version\">aerosect {}, run started {}; "
+                   "every HDF5 file in this directory carries the same version, the case as run and the "
+                   "conventions as attributes.</p>\n",
+                   kVersion, escape(r.started_utc));
+  h += "<table id=\"inputs\">\n<thead><tr><th>Input</th><th>File</th><th>SHA-256 (as <code>sha256sum</code> "
+       "prints it)</th></tr></thead>\n<tbody>\n";
+  for (const auto& in : r.inputs)
+    h += fmt::format("<tr><td>{}</td><td><code>{}</code></td><td><code>{}</code></td></tr>\n", escape(in.role),
+                     escape(in.path), in.sha256.empty() ? "(could not be read again)" : escape(in.sha256));
+  h += "</tbody>\n</table>\n";
+  if (!c.overrides.empty())
+    h += "<p class=\"meta\">The digest is of the case file as read; the overrides given on the command line "
+         "are listed at the end of the case as run above.</p>\n";
   h += "</body>\n</html>\n";
   write_file_atomically(html_path, h);
 }

@@ -225,6 +225,7 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
       const GustRecord rec = read_gust_record(
           full, g.string("base_dataset").value_or(base), g.string("velocity_dataset").value_or("gust_velocity"),
           g.where("file"), "gust.file");
+      c.input_files.push_back(full);
       const double scale = g.number("scale").value_or(1.0);
       p.record_time = rec.base;
       if (base == "distance")

@@ -23,6 +23,8 @@ Common practice, no source: a report is only as good as its traceability.
 """
 
 import argparse
+import datetime
+import hashlib
 import json
 import math
 import os
@@ -351,7 +353,23 @@ def check_demo(exe, src, work, checks):
                        "licensed engineers", "applicable specification"):
             assert phrase in html[first_caution:html.find('id="summary"')], phrase
         assert 'id="case"' in html and "dive_speed_eas" in html and 'id="version"' in html
+        # The caution box says it once (issue #15: not repeated inside its own box).
+        assert html.count("ground vibration tests") == 1, html.count("ground vibration tests")
     checks.run("cautions at the top; case as run and version present", cautions_first)
+
+    def provenance():
+        # The report names what it was computed from: the case file's SHA-256
+        # equals Python's hashlib (FIPS 180-4) of the file's bytes, and the
+        # start time is an ISO 8601 UTC instant.
+        summary = json.load(open(os.path.join(out, "summary.json"), encoding="utf-8"))
+        case_file = os.path.join(src, "cases", "demo_aileron.toml")
+        digest = hashlib.sha256(open(case_file, "rb").read()).hexdigest()
+        assert summary["inputs"][0] == {"role": "case", "path": summary["case"], "sha256": digest}, summary["inputs"]
+        started = datetime.datetime.strptime(summary["started_utc"], "%Y-%m-%dT%H:%M:%SZ")
+        assert abs((datetime.datetime.utcnow() - started).total_seconds()) < 3600
+        html = open(os.path.join(out, "report.html"), encoding="utf-8").read()
+        assert digest in html and summary["started_utc"] in html and summary["aerosect_version"] in html
+    checks.run("the report names its inputs by SHA-256, with the date and version", provenance)
 
 
 def check_plain_case(exe, src, work, checks):

@@ -31,7 +31,7 @@ struct FlutterMargin {
   std::string critical_kind;     // "flutter" or "divergence" ("none")
   std::string critical_method;   // "state-space" or "p-k": the method with the lowest speed
   double margin = 0;             // critical_eas / required_eas - 1
-  bool cleared = false;          // margin >= 0
+  bool margin_met = false;       // margin >= 0: the lowest instability lies beyond 1.15 V_D
   std::optional<double> lco_onset_eas;  // lowest gap-open flutter speed (freeplay), EAS
   std::string lco_onset_method;         // the method that gave it
 };

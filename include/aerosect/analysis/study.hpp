@@ -49,7 +49,7 @@ struct StudyRow {
   std::optional<double> number;  // the value as computed (SI units of `units`)
   std::string units;
   std::string source;    // "file.h5: /group@attribute" or "file.h5: dataset ..."
-  std::string note;      // e.g. "cleared" / "not cleared", or why absent
+  std::string note;      // e.g. "margin met" / "margin NOT met", or why absent
 };
 
 struct StudyPart {
@@ -66,6 +66,16 @@ struct StudyResult {
   std::vector<std::string> hdf5_files;  // relative, in the order written
   nlohmann::json summary;               // what summary.json holds
   bool completed = false;               // false: stopped by the cancel flag
+  std::string started_utc;              // ISO 8601, e.g. "2026-12-03T04:20:00Z"
+  // What the study was computed from: the case file and every input file it
+  // read, with their SHA-256 (`sha256sum FILE` prints the same digest);
+  // a digest is empty when the file could not be read again.
+  struct Input {
+    std::string role;  // "case", "recorded gust"
+    std::string path;
+    std::string sha256;
+  };
+  std::vector<Input> inputs;
 };
 
 // Runs the study into `directory` (created when missing), one stage after

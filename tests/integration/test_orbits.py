@@ -21,6 +21,7 @@ Usage: test_orbits.py AEROSECT SOURCE_DIR
 """
 import json
 import os
+import re
 import pty
 import select
 import signal
@@ -162,6 +163,27 @@ with h5py.File(out, "r") as f:
           "pitch_amplitude equals the JSON")
     check(f["multipliers_real"].shape == (len(pts), len(pts[0]["multipliers"])), "multipliers over (point, multiplier)")
     check(f["period"].attrs["units"] in (b"s", "s"), "period in s")
+
+# --- 2b. The text of a nondimensional case speaks its language --------------
+# Issue #15 defect 6: frequencies as omega / omega_alpha, no Hz, no m/s; the
+# numbers are the JSON's (frequency_hz x 2 pi / omega_alpha, with
+# omega_alpha read from `check --json`).
+r = run(["orbits", case, "-o", os.path.join(tmp, "text.h5"), "--from", "5.5", "--to", "7.0", "--points", "6"])
+check(r.returncode == 0, "orbits text run exits 0")
+table = [l.split() for l in r.stdout.splitlines() if re.match(r"^\s+\d\S*\s+\d", l)]
+check("w/w_a" in r.stdout and " Hz" not in r.stdout and "m/s" not in r.stdout and "rad/s" not in r.stdout,
+      "nondimensional orbits text: w/w_a, no Hz, m/s or rad/s")
+rj = run(["orbits", case, "-o", os.path.join(tmp, "text2.h5"), "--from", "5.5", "--to", "7.0", "--points", "6",
+          "--json"])
+omega_a = 2 * np.pi * json.loads(run(["check", case, "--json"]).stdout)["uncoupled_frequencies_hz"]["pitch"]
+jp = json.loads(rj.stdout)["points"]
+check(len(table) == len(jp) and all(abs(float(row[2]) - 2 * np.pi * pt["frequency_hz"] / omega_a) <= 1e-5 * float(row[2])
+                                    for row, pt in zip(table, jp)),
+      "w/w_a column = 2 pi frequency_hz / omega_alpha")
+sw = run(["sweep", case, "-o", os.path.join(tmp, "sw.h5"), "--vary", "nondimensional.reduced_speed=6.5:7:2",
+          "--direction", "up"])
+check(sw.returncode == 0 and "w/w_a" in sw.stdout and "Hz" not in sw.stdout,
+      "nondimensional sweep text: w/w_a, no Hz")
 
 # --- 3. scipy shooting peer -------------------------------------------------
 us = 6.8

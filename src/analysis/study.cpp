@@ -286,8 +286,14 @@ void flutter_stage(Study& s) {
   }
   const FlutterMargin fm = flutter_margin(fr);
   if (fm.available) {
-    s.rows.add("clearance_speed", "Clearance speed 1.15 V_D", fm.required_eas, "m s-1 EAS",
-               "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m s-1 EAS", fm.dive_speed_eas));
+    if (s.pr.reduced)  // as U* = TAS / (b w_a), like every speed of a nondimensional case
+      s.rows.add("clearance_speed", "Clearance speed 1.15 V_D", true_airspeed(fm.required_eas, s.rho) / s.pr.speed_ref,
+                 "U*", fmt::format("case: envelope.dive_speed_eas x 1.15, as TAS / (b w_a) = {:.6g} m s-1",
+                                   s.pr.speed_ref),
+                 fmt::format("V_D = {}", s.v(true_airspeed(fm.dive_speed_eas, s.rho))));
+    else
+      s.rows.add("clearance_speed", "Clearance speed 1.15 V_D", fm.required_eas, "m s-1 EAS",
+                 "case: envelope.dive_speed_eas x 1.15", fmt::format("V_D = {:.4g} m s-1 EAS", fm.dive_speed_eas));
     if (std::isfinite(fm.margin))
       s.rows.add("margin",
                  fmt::format("Margin of the lowest instability ({}, {}) over 1.15 V_D", fm.critical_kind,
@@ -487,8 +493,8 @@ void largest_lco_rows(Study& s, const SweepPoint& worst, const SweepTables& t, c
     if (k == w) continue;
     const double ak = worst.lco.dof[static_cast<std::size_t>(k)].amplitude;
     s.rows.add(fmt::format("lco_largest_{}", kDofNames[k]), fmt::format("  {} amplitude at that LCO", kDofNames[k]),
-               k == kPlunge ? ak : ak * kDegPerRad, k == kPlunge ? "m" : "deg",
-               "sweep.h5: " + t.cite(std::string(kDofNames[k]) + "_amplitude", worst));
+               s.pr.displacement_value(k, ak), s.pr.displacement_unit(k),
+               "sweep.h5: " + t.cite(std::string(kDofNames[k]) + "_amplitude", worst) + s.pr.file_unit_note(k));
   }
   if (c.model.section.dof == 3) {
     const SpringLaw& law = c.model.springs[kFlap];

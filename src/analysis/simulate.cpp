@@ -99,9 +99,13 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
   const SectionProperties& s = c.model.section;
   const FlowConditions& f = c.model.flow;
   const auto w = uncoupled_frequencies(s);
-  auto si = [&](const char* name, double v, const char* units, const char* ln) {
-    m.parameters.push_back({"si", name, v, units, ln});
+  // An adder of named scalars to one /parameters group.
+  const auto in_group = [&m](const char* group) {
+    return [&m, group](const char* name, double v, const char* units, const char* ln) {
+      m.parameters.push_back({group, name, v, units, ln});
+    };
   };
+  const auto si = in_group("si");
   si("semichord", s.semichord, "m", "semichord b");
   si("mass", s.mass, "kg m-1", "section mass per unit span m");
   si("elastic_axis", s.elastic_axis, "1", "elastic axis a_h, semichords from midchord, aft +");
@@ -127,9 +131,7 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
   if (c.altitude) si("altitude", *c.altitude, "m", "ISA geopotential altitude");
 
   const NondimensionalParameters& n = c.nondimensional;
-  auto nd = [&](const char* name, double v, const char* units, const char* ln) {
-    m.parameters.push_back({"nondimensional", name, v, units, ln});
-  };
+  const auto nd = in_group("nondimensional");
   nd("mass_ratio", n.mass_ratio, "1", "mass ratio mu = m / (pi rho b^2)");
   nd("elastic_axis", n.elastic_axis, "1", "elastic axis a_h");
   nd("cg_offset", n.cg_offset, "1", "CG offset from the elastic axis x_alpha, semichords");
@@ -209,9 +211,7 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
   // The inputs of CS-25.341(a) sizing and what it derived from them.
   if (c.gust_regulation) {
     const RegulationGustInputs& in = *c.gust_regulation;
-    auto rp = [&](const char* name, double v, const char* units, const char* ln) {
-      m.parameters.push_back({"gust_sizing", name, v, units, ln});
-    };
+    const auto rp = in_group("gust_sizing");
     rp("altitude", in.altitude, "m", "altitude of the sizing (CS-25.341(a)(5))");
     rp("landing_weight_ratio", in.landing_weight_ratio, "1", "R1 = max landing weight / max take-off weight");
     rp("zero_fuel_weight_ratio", in.zero_fuel_weight_ratio, "1", "R2 = max zero-fuel weight / max take-off weight");

@@ -104,18 +104,17 @@ struct StepPolynomial {
   }
 };
 
-// A witness in scaled coordinates: g(z) = a . z + b (a spring DOF's
+// A witness in scaled coordinates: g(z) = coef z(index) + b (a spring DOF's
 // distance past a breakpoint, or a velocity).
 struct Witness {
   bool spring = true;  // else a velocity zero (peak)
   int dof = 0;
   int next = 0;        // region entered (spring)
-  Vec a;               // row of the linear form over the augmented z
-  double b = 0;
-  int index = 0;       // a's only nonzero entry (a = coef e_index)
+  int index = 0;       // g(z) = coef z(index) + b: one component of the augmented z
   double coef = 0;
+  double b = 0;
   double value(const Vec& z) const { return coef * z(index) + b; }
-  Vec aM, aMM;         // M^T a and (M^T)^2 a: the rows of g' and g''
+  Vec aM;              // coef M(index, :): the row of g' = aM . z
 };
 
 class ExactRun {
@@ -247,8 +246,7 @@ class ExactRun {
   }
 
   static void rows(const Region& R, Witness& w) {
-    w.aM = R.M.transpose() * w.a;
-    w.aMM = R.M.transpose() * w.aM;
+    w.aM = w.coef * R.M.row(w.index).transpose();
   }
 
   // Spring boundaries of the present regions (g >= 0 past the breakpoint)
@@ -265,11 +263,9 @@ class ExactRun {
         Witness w;
         w.dof = j;
         w.next = side < 0 ? r - 1 : r + 1;
-        w.a = Vec::Zero(n_ + 1);
-        w.a(q) = side / W_(q);  // side (x_q - breakpoint)
-        w.b = -side * bp[static_cast<std::size_t>(b)];
         w.index = q;
-        w.coef = w.a(q);
+        w.coef = side / W_(q);  // side (x_q - breakpoint)
+        w.b = -side * bp[static_cast<std::size_t>(b)];
         rows(R, w);
         out.push_back(std::move(w));
       }
@@ -280,10 +276,8 @@ class ExactRun {
         Witness w;
         w.spring = false;
         w.dof = j;
-        w.a = Vec::Zero(n_ + 1);
-        w.a(L_.velocity + j) = 1.0 / W_(L_.velocity + j);
         w.index = L_.velocity + j;
-        w.coef = w.a(w.index);
+        w.coef = 1.0 / W_(w.index);
         rows(R, w);
         out.push_back(std::move(w));
       }
@@ -300,8 +294,8 @@ class ExactRun {
   }
   Vec state_at(const Region& R, const Vec& z, double tau) const { return poly(R, z).state(tau); }
 
-  // The witness g = a . z(tau) + b and its first two derivatives: the
-  // polynomial sum_k (a . q_k) tau^k and its derivatives, by Horner.
+  // The witness g = coef z(tau)(index) + b and its first two derivatives: the
+  // polynomial sum_k coef q_k(index) tau^k and its derivatives, by Horner.
   struct Value {
     double g, dg, d2g;
   };

@@ -17,8 +17,8 @@ AEROSECT_PACKAGES=(
 )
 
 # The hardened stages of tools/test (sanitizer build, tools/fuzz) also need
-# clang with its sanitizer and libFuzzer runtimes and clang's OpenMP.
-AEROSECT_CHECK_PACKAGES=(clang libclang-rt-14-dev libomp-14-dev)
+# clang with its sanitizer and libFuzzer runtimes.
+AEROSECT_CHECK_PACKAGES=(clang libclang-rt-14-dev)
 
 # Extra cmake arguments for build_aerosect (a caller sets them before the call).
 EXTRA_CMAKE_ARGS=()

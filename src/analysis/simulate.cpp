@@ -18,6 +18,16 @@ namespace {
 const char* kDofLong[3] = {"plunge displacement, positive down", "pitch angle, positive nose up",
                            "flap angle, positive trailing edge down"};
 const char* kRateUnits[3] = {"m s-1", "rad s-1", "rad s-1"};
+
+// The samples a run of these settings writes if it runs to its end: at
+// t = k dt for k = 0 .. floor(T / dt) (one more allowed for rounding); 0
+// when not known in advance (a sample at every step) or beyond counting.
+std::int64_t expected_samples(const SimulationSettings& set) {
+  if (set.output.every_step || !(set.output.interval > 0)) return 0;
+  const double intervals = set.duration / set.output.interval;
+  if (!(intervals >= 0 && intervals < 1e15)) return 0;
+  return static_cast<std::int64_t>(intervals) + (set.output.include_start ? 2 : 1);
+}
 }  // namespace
 
 std::vector<Channel> simulation_channels(const AeroelasticModel& model) {
@@ -233,7 +243,9 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   for (const auto& ch : channels) width += ch.width;
 
   const Channel time_channel{"time", "s", "time since release", 1, {}, ""};
-  sink.begin(time_channel, channels, case_metadata(c, "simulation"));
+  RunMetadata meta = case_metadata(c, "simulation");
+  meta.expected_rows = expected_samples(set);
+  sink.begin(time_channel, channels, meta);
 
   // Extremes are tracked for displacements, velocities and loads (not tau,
   // lag states or downwash).

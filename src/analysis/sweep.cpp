@@ -1,11 +1,14 @@
 #include "aerosect/analysis/sweep.hpp"
 
 #include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <limits>
 #include <map>
+#include <mutex>
 #include <numbers>
 #include <set>
+#include <thread>
 #include <tuple>
 
 #include <fmt/format.h>
@@ -263,40 +266,54 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
   std::vector<std::vector<SweepPoint>> results(mine.size());
   // Validate the swept values once, up front (bad input is an error before any work).
   check_swept_values(r);
-  std::exception_ptr failure;
-  // Work item 0 is `beside` (when given), then one per chain.
+  // Work item 0 is `beside` (when given), then one per chain. `jobs`
+  // threads (this one and jobs - 1 more) take the next item until none is
+  // left. Plain threads rather than OpenMP: libgomp's load and set-up were a
+  // sixth of every aerosect process's start-up (tools/bench, "start-up").
   const std::size_t first = beside ? 1 : 0;
-#pragma omp parallel for schedule(dynamic, 1) num_threads(std::max(1, o.jobs))
-  for (std::size_t item = 0; item < mine.size() + first; ++item) {
-    if (item < first) {
-      beside();
-      continue;
-    }
-    const std::size_t c = item - first;
-    try {
-      const Chain ch = mine[c];
-      const SweepPoint* previous = nullptr;
-      std::vector<SweepPoint>& out = results[c];
-      out.reserve(static_cast<std::size_t>(n1));
-      for (int k = 0; k < n1; ++k) {
-        if (cancel && cancel->load()) break;
-        const int i = ch.direction == 0 ? k : n1 - 1 - k;
-        auto it = known.find({ch.direction, ch.j, i});
-        if (it != known.end()) {
-          out.push_back(it->second);
-        } else {
-          std::optional<SweepPoint> p = run_point(r, ch.direction, i, ch.j, previous, cancel);
-          if (!p) break;
-          out.push_back(std::move(*p));
-          if (on_point) on_point(out.back());
+  const std::size_t items = mine.size() + first;
+  std::atomic<std::size_t> next_item{0};
+  std::mutex failure_mutex;
+  std::exception_ptr failure;
+  auto work = [&]() {
+    for (std::size_t item = next_item++; item < items; item = next_item++) {
+      try {
+        if (item < first) {
+          beside();
+          continue;
         }
-        previous = &out.back();
+        const Chain ch = mine[item - first];
+        const SweepPoint* previous = nullptr;
+        std::vector<SweepPoint>& out = results[item - first];
+        out.reserve(static_cast<std::size_t>(n1));
+        for (int k = 0; k < n1; ++k) {
+          if (cancel && cancel->load()) break;
+          const int i = ch.direction == 0 ? k : n1 - 1 - k;
+          auto it = known.find({ch.direction, ch.j, i});
+          if (it != known.end()) {
+            out.push_back(it->second);
+          } else {
+            std::optional<SweepPoint> p = run_point(r, ch.direction, i, ch.j, previous, cancel);
+            if (!p) break;
+            out.push_back(std::move(*p));
+            if (on_point) on_point(out.back());
+          }
+          previous = &out.back();
+        }
+      } catch (...) {
+        const std::lock_guard<std::mutex> lock(failure_mutex);
+        failure = std::current_exception();
       }
-    } catch (...) {
-#pragma omp critical
-      failure = std::current_exception();
     }
-  }
+  };
+  {
+    const std::size_t helpers =
+        std::min(items, static_cast<std::size_t>(std::max(1, o.jobs))) - (items > 0 ? 1 : 0);
+    std::vector<std::jthread> threads;
+    threads.reserve(helpers);
+    for (std::size_t t = 0; t < helpers; ++t) threads.emplace_back(work);
+    work();
+  }  // the jthreads join here
   if (failure) std::rethrow_exception(failure);
   std::vector<SweepPoint> all;
   for (auto& v : results)

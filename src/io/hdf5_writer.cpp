@@ -115,6 +115,7 @@ struct Hdf5TimeHistoryWriter::File {
   std::unique_ptr<H5::H5File> file;
   H5::DataSet time;
   std::vector<Series> series;
+  std::size_t block_rows = 0;  // rows per chunk and per write of this file
   std::size_t row_width = 0;   // sum of channel widths
   std::vector<double> time_buffer;
   std::vector<double> buffer;  // per channel, a contiguous [block_rows x width] block
@@ -182,13 +183,19 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
   try {
     file_ = std::make_unique<File>();
     File& f = *file_;
+    // Blocks (chunks and buffers) no longer than the run: a 3-sample run
+    // writes 3-row chunks and touches a few hundred bytes of buffer, not
+    // block_rows rows per channel zeroed, filtered and compressed.
+    f.block_rows = options_.block_rows;
+    if (meta.expected_rows > 0)
+      f.block_rows = std::min(f.block_rows, static_cast<std::size_t>(meta.expected_rows));
 
     f.file = create_file(temporary_path_);
 
     H5::Group root = f.file->openGroup("/");
     write_root_attributes(root, meta);
 
-    f.time = create_series(*f.file, kTimeName, 1, options_.block_rows, options_.deflate_level);
+    f.time = create_series(*f.file, kTimeName, 1, f.block_rows, options_.deflate_level);
     write_text(f.time, "units", time_channel.units);
     write_text(f.time, "long_name", time_channel.long_name);
     write_text(f.time, "standard_name", "time");
@@ -199,10 +206,9 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
     for (const auto& c : channels) {
       File::Series s;
       s.width = c.width;
-      s.buffer_offset = f.row_width * options_.block_rows;
+      s.buffer_offset = f.row_width * f.block_rows;
       f.row_width += static_cast<std::size_t>(c.width);
-      s.dataset = create_series(*f.file, c.name, c.width, options_.block_rows,
-                                options_.deflate_level);
+      s.dataset = create_series(*f.file, c.name, c.width, f.block_rows, options_.deflate_level);
       write_text(s.dataset, "units", c.units);
       write_text(s.dataset, "long_name", c.long_name);
       attach_scale(s.dataset, f.time, 0);
@@ -237,8 +243,8 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
     write_parameters(root, meta);
     root.close();
 
-    f.time_buffer.resize(options_.block_rows);
-    f.buffer.resize(f.row_width * options_.block_rows);
+    f.time_buffer.resize(f.block_rows);
+    f.buffer.resize(f.row_width * f.block_rows);
     state_ = State::kOpen;
   } catch (const H5::Exception& e) {
     discard();
@@ -267,7 +273,7 @@ void Hdf5TimeHistoryWriter::append(double time, std::span<const double> row) {
                 f.buffer.begin() + static_cast<std::ptrdiff_t>(s.buffer_offset + r * w));
     column += w;
   }
-  if (++f.buffered == options_.block_rows) write_block();
+  if (++f.buffered == f.block_rows) write_block();
 }
 
 void Hdf5TimeHistoryWriter::write_block() {

@@ -250,6 +250,39 @@ TEST_CASE("HDF5 writer: chunked, compressed, growing datasets", "[hdf5_writer]")
   }
 }
 
+TEST_CASE("HDF5 writer: blocks no deeper than the run's expected rows, any number of rows taken",
+          "[hdf5_writer]") {
+  H5::Exception::dontPrint();
+  // block_rows 4. Expected 3 rows: 3-row chunks, whether the run then writes
+  // 3, fewer (2) or more (8, over three blocks) rows than it said; every row
+  // is in the file (the hint sizes buffers, it never drops a row). Expected
+  // 1000: the blocks stay block_rows deep.
+  struct Run {
+    std::int64_t expected;
+    std::size_t rows;
+    hsize_t chunk_rows;
+  };
+  for (const Run run : {Run{3, 3, 3}, Run{3, 2, 3}, Run{3, 8, 3}, Run{1000, 10, 4}}) {
+    INFO("expected " << run.expected << ", rows " << run.rows);
+    TempDir dir;
+    const std::string path = dir.file("run.h5");
+    RunMetadata meta = writer_metadata();
+    meta.expected_rows = run.expected;
+    Hdf5TimeHistoryWriter w(path, {4, 6});
+    w.begin(kTime, test_channels(), meta);
+    write_rows(w, run.rows);
+    w.finish(completed(static_cast<std::int64_t>(run.rows)));
+    check_values(path, run.rows);
+    H5::H5File file(path, H5F_ACC_RDONLY);
+    // HDF5 H5P docs (H5Pget_chunk): the chunk's first dimension.
+    hsize_t chunk[2] = {0, 0};
+    REQUIRE(file.openDataSet("wagner_lag_states").getCreatePlist().getChunk(2, chunk) == 2);
+    REQUIRE(chunk[0] == run.chunk_rows);
+    REQUIRE(file.openDataSet("time").getCreatePlist().getChunk(1, chunk) == 1);
+    REQUIRE(chunk[0] == run.chunk_rows);
+  }
+}
+
 TEST_CASE("HDF5 writer: deflate level 0 writes without filters", "[hdf5_writer]") {
   H5::Exception::dontPrint();
   TempDir dir;

@@ -171,6 +171,10 @@ TEST_CASE("The demo case runs to completion", "[simulate]") {
   CHECK(s.completed);
   CHECK(s.samples == 3001);
   CHECK(sink.rows() == 3001);
+  // The rows announced to the sink before the run (3 s at 1000 Hz, both
+  // ends: 3001), with the one extra row allowed for rounding.
+  CHECK(sink.metadata().expected_rows >= 3001);
+  CHECK(sink.metadata().expected_rows <= 3002);
   CHECK(sink.outcome().completed);
   for (double v : sink.column("hinge_moment")) CHECK(std::isfinite(v));
 }

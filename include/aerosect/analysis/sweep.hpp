@@ -7,7 +7,7 @@
 // the first key, down: descending) and per value of the second key. Along a
 // chain each point starts from the previous point's final state
 // (continuation) or from the case's initial state (fresh). Chains are
-// independent and run in parallel (OpenMP) on `jobs` threads; every point's
+// independent and run in parallel on `jobs` threads; every point's
 // result depends only on its chain, so the results are identical whatever
 // the job count. `--shard K/N` keeps the chains whose index modulo N is K-1.
 // Each finished point is handed to `on_point` at once (from the worker

@@ -36,6 +36,11 @@ struct RunMetadata {
   std::string title;
   std::vector<std::pair<std::string, std::string>> text_attributes;  // root attributes
   std::vector<ParameterRecord> parameters;
+  // Rows the run appends if it runs to its end, when known before it starts
+  // (fixed-rate samples); 0 when not known (a sample at every step). A sink
+  // may size its buffers from it (a 3-sample run need not reserve room for
+  // 32768 rows) but must take any number of rows.
+  std::int64_t expected_rows = 0;
 };
 
 // What is known when a run ends.

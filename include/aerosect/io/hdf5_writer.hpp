@@ -23,9 +23,10 @@
 // Units are UDUNITS strings as given by the channels (SI: s, m, rad, N m-1).
 // The time axis is always named "time"; the time channel gives its units
 // and long_name. Every time-dependent dataset is chunked block_rows rows deep
-// with the shuffle and deflate filters; rows are buffered and written one
-// block (one chunk) at a time, so memory use does not grow with the length
-// of the run. Before each block the free space is checked, so a full disk is
+// (RunMetadata::expected_rows deep when the run says it writes fewer) with
+// the shuffle and deflate filters; rows are buffered and written one block
+// (one chunk) at a time, so memory use does not grow with the length of the
+// run. Before each block the free space is checked, so a full disk is
 // reported while the file can still be closed and removed.
 //
 // The file is written to `path + ".part"` and renamed by finish(): onto

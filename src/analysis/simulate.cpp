@@ -1,6 +1,7 @@
 #include "aerosect/analysis/simulate.hpp"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <limits>
 
@@ -305,16 +306,50 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     if (L.n_dof == 3) row[k++] = l.hinge_moment;
     row[k++] = l.effective_downwash;
   };
-  // Extremes: the largest and smallest sample of each tracked channel, and
-  // the sample before it (where the search for the true extremum between
-  // the samples around it starts, after the run).
+  // Extremes: the largest and smallest value of each tracked channel over
+  // the samples and the integrator's step ends (so sparse samples do not
+  // hide them), and where the search for the true extremum starts after
+  // the run: the step end before the best step end (a bracket of two steps
+  // around it), or the sample before the best sample when that sample
+  // exceeds every step end.
   struct SampleState {
     double t = 0;
     std::vector<double> x;
   };
-  std::vector<SampleState> from_max(tracked.size()), from_min(tracked.size());
-  SampleState previous;
-  bool have_previous = false;
+  struct Bracket {
+    SampleState from;   // the state where the search starts
+    double to = 0;      // s, where it ends
+    bool open = false;  // `to` is the next step end, not yet reached
+  };
+  struct Best {
+    double value = -std::numeric_limits<double>::infinity();  // sign * channel
+    Bracket bracket;
+  };
+  // [i][0]: maximum of channel i, [i][1]: minimum (as the maximum of -channel).
+  std::vector<std::array<Best, 2>> step_best(tracked.size()), sample_best(tracked.size());
+  SampleState previous_sample, previous_step;
+  auto note = [&](std::vector<std::array<Best, 2>>& best, SampleState& previous, double t,
+                  const std::vector<double>& x) {
+    for (std::size_t i = 0; i < tracked.size(); ++i) {
+      const double v = row[tracked[i].column];
+      for (int k = 0; k < 2; ++k) {
+        Best& b = best[i][static_cast<std::size_t>(k)];
+        if (b.bracket.open) {
+          b.bracket.to = t;
+          b.bracket.open = false;
+        }
+        const double sv = k == 0 ? v : -v;
+        if (sv > b.value) {
+          b.value = sv;
+          b.bracket.from = previous.x.empty() ? SampleState{t, x} : previous;
+          b.bracket.to = t;
+          b.bracket.open = true;
+        }
+      }
+    }
+    previous.t = t;
+    previous.x = x;
+  };
   auto observer = [&](double t, const std::vector<double>& x) {
     fill_row(t, x, run.regions, run.input_segment);
     for (std::size_t i = 0; i < tracked.size(); ++i) {
@@ -323,41 +358,40 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
       if (v > e.max) {
         e.max = v;
         e.time_of_max = t;
-        from_max[i] = have_previous ? previous : SampleState{t, x};
       }
       if (v < e.min) {
         e.min = v;
         e.time_of_min = t;
-        from_min[i] = have_previous ? previous : SampleState{t, x};
       }
       e.rms += v * v;  // sum of squares until the end of the run
     }
-    previous.t = t;
-    previous.x = x;
-    have_previous = true;
+    note(sample_best, previous_sample, t, x);
     sink.append(t, row);
     return ObserverAction::kContinue;
   };
+  auto step_observer = [&](double t, const std::vector<double>& x) {
+    fill_row(t, x, run.regions, run.input_segment);
+    note(step_best, previous_step, t, x);
+    return ObserverAction::kContinue;
+  };
 
-  // The true extremum of channel i near its extreme sample: the channel's
-  // value on the trajectory restarted from the sample before it (integrated
-  // at the case's settings), maximised by Brent's method (Boost.Math) over
-  // the two sample intervals around the extreme sample (one interval at
-  // either end of the run). Kept only when it exceeds the sample.
-  const double interval = set.output.every_step ? 0.0 : set.output.interval;
-  auto refine = [&](std::size_t i, const SampleState& from, double sign) {
+  // The true extremum of channel i in a bracket: the channel's value on the
+  // trajectory restarted from the bracket's start (integrated at the case's
+  // settings), maximised by Brent's method (Boost.Math) over the bracket.
+  // Kept only when it exceeds the extreme found so far.
+  auto refine = [&](std::size_t i, const Bracket& b, int k) {
     Extreme& e = summary.extremes[tracked[i].extreme];
-    double& best = sign > 0 ? e.max : e.min;
-    double& at = sign > 0 ? e.time_of_max : e.time_of_min;
-    if (from.x.empty() || !(interval > 0)) return;
-    const double lo = from.t, hi = std::min(at + interval, run.time);
-    if (!(hi > lo)) return;
+    const double sign = k == 0 ? 1.0 : -1.0;
+    double& best = k == 0 ? e.max : e.min;
+    double& at = k == 0 ? e.time_of_max : e.time_of_min;
+    const double lo = b.from.t, hi = b.open ? run.time : std::min(b.to, run.time);
+    if (b.from.x.empty() || !(hi > lo)) return;
     auto value = [&](double t) {
       RunState r;
-      r.time = from.t;
-      r.x = from.x;
-      r.regions = model.regions_of(from.x.data());
-      r.input_segment = model.gusts().segment_of(from.t);
+      r.time = lo;
+      r.x = b.from.x;
+      r.regions = model.regions_of(b.from.x.data());
+      r.input_segment = model.gusts().segment_of(lo);
       integrate(model, r, t, set.integrator, OutputSchedule::none());
       fill_row(r.time, r.x, r.regions, r.input_segment);
       return -sign * row[tracked[i].column];
@@ -397,25 +431,25 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
                             {"rhs_evaluations", static_cast<double>(run.rhs_evaluations)},
                             {"switches", static_cast<double>(run.switches)}});
   };
+  previous_step = {run.time, run.x};
   try {
     const IntegrationResult r =
-        integrate(model, run, set.duration, set.integrator, set.output, {observer, {}, cancel});
+        integrate(model, run, set.duration, set.integrator, set.output, {observer, {}, cancel, step_observer});
     summary.completed = r.reason == StopReason::kEndTime;
     summary.status = r.reason == StopReason::kEndTime    ? "completed"
                      : r.reason == StopReason::kCancelled ? "cancelled"
                                                           : "stopped";
     if (r.reason != StopReason::kCancelled)
-      for (std::size_t i = 0; i < tracked.size(); ++i) {
-        // A restart that fails numerically leaves the sample's extreme.
-        try {
-          refine(i, from_max[i], 1.0);
-        } catch (const NumericalError&) {
+      for (std::size_t i = 0; i < tracked.size(); ++i)
+        for (int k = 0; k < 2; ++k) {
+          // A restart that fails numerically leaves the extreme found.
+          const std::size_t kk = static_cast<std::size_t>(k);
+          try {
+            refine(i, step_best[i][kk].bracket, k);
+            if (sample_best[i][kk].value > step_best[i][kk].value) refine(i, sample_best[i][kk].bracket, k);
+          } catch (const NumericalError&) {
+          }
         }
-        try {
-          refine(i, from_min[i], -1.0);
-        } catch (const NumericalError&) {
-        }
-      }
   } catch (const NumericalError& e) {
     summary.completed = false;
     summary.status = std::string("numerical-error: ") + e.what();

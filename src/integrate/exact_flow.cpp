@@ -205,6 +205,7 @@ class ExactRun {
       if (!z.allFinite())
         throw NumericalError(run_.time, "the exact solution left the range of double precision (unbounded growth)");
       if (schedule_.every_step) stop |= sample(z, run_.time);
+      if (obs_.step) (void)obs_.step(run_.time, unscaled(z));
     }
     return finish(z, phi, stop ? StopReason::kObserver : StopReason::kEndTime);
   }
@@ -386,21 +387,22 @@ class ExactRun {
     }
     std::sort(found_.begin(), found_.end());
     bool stop = false;
-    x_.resize(static_cast<std::size_t>(n_));
-    for (const auto& [t, dof] : found_) {
-      const Vec zt = state_at(R, z, t);
-      for (int i = 0; i < n_; ++i) x_[static_cast<std::size_t>(i)] = zt(i) / W_(i);
-      if (obs_.peak(dof, run_.time + t, x_) == ObserverAction::kStop) stop = true;
-    }
+    for (const auto& [t, dof] : found_)
+      if (obs_.peak(dof, run_.time + t, unscaled(state_at(R, z, t))) == ObserverAction::kStop) stop = true;
     return stop;
   }
 
   bool sample(const Vec& z, double t) {
     ++run_.samples;
     if (!obs_.sample) return false;
+    return obs_.sample(t, unscaled(z)) == ObserverAction::kStop;
+  }
+
+  // The model's state of a scaled augmented vector (in x_).
+  const std::vector<double>& unscaled(const Vec& z) {
     x_.resize(static_cast<std::size_t>(n_));
     for (int i = 0; i < n_; ++i) x_[static_cast<std::size_t>(i)] = z(i) / W_(i);
-    return obs_.sample(t, x_) == ObserverAction::kStop;
+    return x_;
   }
 
   IntegrationResult finish(const Vec& z, const Mat& phi, StopReason reason) {

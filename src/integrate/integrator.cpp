@@ -281,6 +281,7 @@ class Run {
           stepper_.calc_state(t_end_, cur_);
         }
         run_.time = t_end_;
+        if (obs_.step) obs_.step(run_.time, state_part(cur_, n_, view_));
         return finish(action == ObserverAction::kStop ? StopReason::kObserver : StopReason::kEndTime,
                       t_end_);
       }
@@ -290,6 +291,7 @@ class Run {
       } else {
         advance(step);
       }
+      if (obs_.step) obs_.step(run_.time, state_part(cur_, n_, view_));
       if (action == ObserverAction::kStop) return finish(StopReason::kObserver, run_.time);
       if (obs_.cancel && obs_.cancel->load(std::memory_order_relaxed))
         return finish(StopReason::kCancelled, run_.time);

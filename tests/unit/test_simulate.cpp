@@ -235,6 +235,20 @@ TEST_CASE("Reported extremes are the trajectory's, not the samples'", "[simulate
     CHECK_THAT(it->min, Catch::Matchers::WithinRel(-a0, 1e-10));
     // Brent's method locates the time to about sqrt(eps) of the bracket.
     CHECK_THAT(it->time_of_min, Catch::Matchers::WithinAbs(t_min, 1e-6));
+    // The same run with only its first and last states sampled (0 and
+    // 0.6 s, the period about 0.58 s): the extremes come from the
+    // integrator's steps, not the two samples, so the minimum is the same.
+    const Case sparse = test::case_from(vacuum, {fmt::format("simulation.stepper=\"{}\"", stepper),
+                                                 "simulation.relative_tolerance=1e-12",
+                                                 "simulation.absolute_tolerance=1e-15",
+                                                 "simulation.sample_interval=0.6"});
+    NullSink sparse_sink;
+    const SimulationSummary ss = simulate(sparse, AeroelasticModel(sparse.model), sparse_sink);
+    CHECK(ss.samples == 2);
+    const auto is = std::find_if(ss.extremes.begin(), ss.extremes.end(), [](const Extreme& e) { return e.channel == "pitch"; });
+    REQUIRE(is != ss.extremes.end());
+    CHECK_THAT(is->min, Catch::Matchers::WithinRel(-a0, 1e-10));
+    CHECK_THAT(is->time_of_min, Catch::Matchers::WithinAbs(t_min, 1e-6));
   }
   // 2. A short one-minus-cosine gust (H = 2 m) on the demo section sampled
   //    at its default 1 ms: the lift peak must equal the peak of the same
@@ -263,4 +277,15 @@ TEST_CASE("Reported extremes are the trajectory's, not the samples'", "[simulate
   CHECK(ec.max >= sample_max);
   CHECK_THAT(ec.max, Catch::Matchers::WithinRel(ed.max, 1e-6));
   CHECK_THAT(ec.time_of_max, Catch::Matchers::WithinAbs(ed.time_of_max, 2e-5));
+  // 3. The same gust sampled every 1.3 s (samples at 0, 1.3 and 2.6 s, many
+  //    periods apart, none near the peak): the same lift peak, found from
+  //    the integrator's steps.
+  std::vector<std::string> sparse_ov = gust;
+  sparse_ov.push_back("simulation.sample_rate=0.7692307692307693");  // 1 / (1.3 s)
+  const Case sparse = load_case(demo, sparse_ov);
+  NullSink ss;
+  const Extreme es = lift(simulate(sparse, AeroelasticModel(sparse.model), ss));
+  CAPTURE(es.max, es.time_of_max);
+  CHECK_THAT(es.max, Catch::Matchers::WithinRel(ed.max, 1e-6));
+  CHECK_THAT(es.time_of_max, Catch::Matchers::WithinAbs(ed.time_of_max, 2e-5));
 }

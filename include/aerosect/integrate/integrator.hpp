@@ -123,6 +123,10 @@ struct RunObservers {
   SampleObserver sample = {};                 // each scheduled sample
   PeakObserver peak = {};                     // each true extremum of a moving DOF
   const std::atomic<bool>* cancel = nullptr;  // polled after every step: true ends the run
+  // The state at the end of every accepted step and at every switch (a
+  // witness like peak: its return value is ignored). Extremes of derived
+  // channels are bracketed between step ends, whatever the sample rate.
+  SampleObserver step = {};
 };
 
 enum class StopReason { kEndTime, kObserver, kCancelled };

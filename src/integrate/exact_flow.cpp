@@ -13,10 +13,19 @@
 
 namespace aerosect {
 
+namespace {
+// Oscillator pairs the gust input needs (one per 1-cos or sinusoidal profile).
+int gust_oscillators(const GustField& g) {
+  const auto h = g.harmonic_input(0);
+  return h ? static_cast<int>(h->omega.size()) : 0;
+}
+}  // namespace
+
 bool exact_propagation_eligible(const AeroelasticModel& model, std::string* why) {
-  if (model.state_size() + 1 > 32) {  // kMaxAugmented below
-    if (why) *why = fmt::format("the state ({} components) is longer than the exact propagator's capacity",
-                                model.state_size());
+  const int size = model.state_size() + 1 + 2 * gust_oscillators(model.gusts());
+  if (size > 32) {  // kMaxAugmented below
+    if (why) *why = fmt::format("the state with its gust oscillators ({} components) is longer than the exact "
+                                "propagator's capacity (32)", size);
     return false;
   }
   return exact_propagation_eligible(model.description(), why);
@@ -27,7 +36,8 @@ bool exact_propagation_eligible(const ModelDescription& d, std::string* why) {
     if (why) *why = std::move(s);
     return false;
   };
-  if (!d.gusts.empty()) return say("the case has a gust input (the system is not autonomous)");
+  if (!d.gusts.empty() && !d.gusts.harmonic_input(0))
+    return say("the case has a recorded gust or turbulence input (not a constant or harmonic input)");
   for (int j = 0; j < d.section.dof; ++j) {
     const SpringLaw& law = d.springs[static_cast<std::size_t>(j)];
     if (law.is_linear()) continue;
@@ -121,16 +131,27 @@ class ExactRun {
  public:
   ExactRun(const AeroelasticModel& model, RunState& run, double t_end, const OutputSchedule& schedule,
            const RunObservers& obs)
-      : model_(model), L_(model.layout()), n_(model.state_size()), run_(run), t_end_(t_end),
-        schedule_(schedule), obs_(obs), W_(state_weights(model)) {}
+      : model_(model), L_(model.layout()), n_(model.state_size()),
+        N_(model.state_size() + 1 + 2 * gust_oscillators(model.gusts())), run_(run), t_end_(t_end),
+        schedule_(schedule), obs_(obs), W_(state_weights(model)), breaks_(model.gusts().breakpoints()) {}
 
   IntegrationResult operator()() {
     const double t0 = run_.time;
     const bool fixed_rate = schedule_.interval > 0 && !schedule_.every_step;
     const double dt_s = schedule_.interval;
-    Vec z(n_ + 1), zb(n_ + 1);
+    Vec z(N_), zb(N_);
     for (int i = 0; i < n_; ++i) z(i) = W_(i) * run_.x[static_cast<std::size_t>(i)];
     z(n_) = 1.0;
+    // The gust oscillators: sin and cos of omega_j (t - start_j).
+    if (N_ > n_ + 1) {
+      const auto h = model_.gusts().harmonic_input(0);
+      for (std::size_t j = 0; j < h->omega.size(); ++j) {
+        const double ph = h->omega[j] * (run_.time - h->start[j]);
+        z(n_ + 1 + 2 * static_cast<int>(j)) = std::sin(ph);
+        z(n_ + 2 + 2 * static_cast<int>(j)) = std::cos(ph);
+      }
+    }
+    run_.input_segment = model_.gusts().segment_of(run_.time);
     Mat phi, phi_next;  // scaled monodromy W Phi W^-1
     if (run_.track_monodromy) {
       const Eigen::Map<const Mat> p(run_.monodromy.data(), n_, n_);
@@ -139,7 +160,7 @@ class ExactRun {
     bool stop = false;
     if (schedule_.any() && schedule_.include_start) stop |= sample(z, run_.time);
     std::int64_t next_sample = 1;
-    Region* R = &region(z);
+    Region* R = &region();
     std::vector<Witness> ws = witnesses(*R);
     int quick_switches = 0;
     while (run_.time < t_end_ && !stop) {
@@ -147,10 +168,16 @@ class ExactRun {
       // The step: the region's, ending on the next sample time when that
       // comes first (then, between samples, the precomputed propagator of
       // one sample interval).
-      double h = std::min(R->h, t_end_ - run_.time);
+      // An input switch time (a gust starting or ending) ends the step too.
+      const double t_break = run_.input_segment < static_cast<int>(breaks_.size())
+                                 ? breaks_[static_cast<std::size_t>(run_.input_segment)]
+                                 : std::numeric_limits<double>::infinity();
+      const bool at_break = t_break - run_.time <= std::min(R->h, t_end_ - run_.time);
+      double h = std::min({R->h, t_end_ - run_.time, t_break - run_.time});
       const Mat* E = h == R->h ? &R->E : nullptr;
       const double ts = fixed_rate ? t0 + static_cast<double>(next_sample) * dt_s : 0.0;
-      const bool lands = fixed_rate && ts <= t_end_ * (1 + 1e-15) && ts - run_.time <= h * (1 + 1e-12);
+      const bool lands = fixed_rate && ts <= t_end_ * (1 + 1e-15) && ts - run_.time <= h * (1 + 1e-12) &&
+                         !(at_break && ts > t_break);
       if (lands) {
         h = std::max(0.0, ts - run_.time);
         E = std::abs(h - dt_s) <= 1e-9 * dt_s ? &sample_propagator(*R, dt_s) : nullptr;
@@ -186,7 +213,7 @@ class ExactRun {
           throw NumericalError(run_.time, fmt::format("{} switches of the {} spring without the time advancing "
                                                       "(a trajectory held on its breakpoint)",
                                                       quick_switches, dof_name(event->dof)));
-        R = &region(z);
+        R = &region();
         ws = witnesses(*R);
       } else {
         if (run_.track_monodromy) {
@@ -195,10 +222,17 @@ class ExactRun {
           phi.swap(phi_next);
         }
         z.swap(zb);
-        run_.time = lands ? ts : h == R->h ? run_.time + h : t_end_;
+        const bool breaks_here = at_break && !(lands && ts < t_break);
+        run_.time = lands ? ts : breaks_here ? t_break : h == R->h ? run_.time + h : t_end_;
         if (lands) {
           stop |= sample(z, ts);
           ++next_sample;
+        }
+        if (breaks_here && run_.time == t_break) {
+          // The next input segment: same state, its own input terms.
+          ++run_.input_segment;
+          R = &region();
+          ws = witnesses(*R);
         }
       }
       ++run_.steps;
@@ -222,28 +256,50 @@ class ExactRun {
     return r.Es;
   }
 
-  Region& region(const Vec& z) {
-    auto it = cache_.find(run_.regions);
+  Region& region() {
+    key_ = run_.regions;
+    key_.push_back(gusts_ ? run_.input_segment : 0);
+    auto it = cache_.find(key_);
     if (it != cache_.end()) return it->second;
-    std::vector<double> x(static_cast<std::size_t>(n_)), f(static_cast<std::size_t>(n_));
-    for (int i = 0; i < n_; ++i) x[static_cast<std::size_t>(i)] = z(i) / W_(i);
+    // The region's affine law, evaluated at x = 0 (the springs' region
+    // formulas hold for any x): J = Df and c = f(0) exactly, with no
+    // cancellation. (c = f(x) - J x at the present state lost
+    // eps |J| |x| to round-off: on a diverging run at 1e23 that made the
+    // affine column, the norm and so the step count enormous.)
+    // rhs() of input segment 0 has no gust velocity (before every gust):
+    // c is the springs' intercepts alone; the gust enters as B_gust w_g(t)
+    // with w_g in harmonic form over the oscillator states.
+    const std::vector<double> x(static_cast<std::size_t>(n_), 0.0);
+    std::vector<double> f(static_cast<std::size_t>(n_));
     Mat J(n_, n_);
     model_.jacobian(x.data(), run_.time, run_.regions, 0, J);
     model_.rhs(x.data(), f.data(), run_.time, run_.regions, 0);
     Region r;
-    r.M = Mat::Zero(n_ + 1, n_ + 1);
+    r.M = Mat::Zero(N_, N_);
+    const Eigen::VectorXd& B = model_.gust_input();
+    const auto hi = gusts_ ? model_.gusts().harmonic_input(run_.input_segment) : std::nullopt;
     for (int i = 0; i < n_; ++i) {
       double c = f[static_cast<std::size_t>(i)];
-      for (int k = 0; k < n_; ++k) {
-        r.M(i, k) = W_(i) * J(i, k) / W_(k);
-        c -= J(i, k) * x[static_cast<std::size_t>(k)];
+      for (int k = 0; k < n_; ++k) r.M(i, k) = W_(i) * J(i, k) / W_(k);
+      if (hi) {
+        c += B(i) * hi->constant;
+        for (std::size_t j = 0; j < hi->omega.size(); ++j) {
+          r.M(i, n_ + 1 + 2 * static_cast<int>(j)) = W_(i) * B(i) * hi->sin_coef[j];
+          r.M(i, n_ + 2 + 2 * static_cast<int>(j)) = W_(i) * B(i) * hi->cos_coef[j];
+        }
       }
       r.M(i, n_) = W_(i) * c;
     }
+    if (hi)
+      for (std::size_t j = 0; j < hi->omega.size(); ++j) {
+        const int s = n_ + 1 + 2 * static_cast<int>(j);
+        r.M(s, s + 1) = hi->omega[j];   // (sin)' = omega cos
+        r.M(s + 1, s) = -hi->omega[j];  // (cos)' = -omega sin
+      }
     const double norm = r.M.cwiseAbs().rowwise().sum().maxCoeff();
     r.h = norm > 0 ? 0.5 / norm : std::numeric_limits<double>::infinity();
     if (std::isfinite(r.h)) r.E = expm(r.M, r.h);
-    return cache_.emplace(run_.regions, std::move(r)).first->second;
+    return cache_.emplace(key_, std::move(r)).first->second;
   }
 
   static void rows(const Region& R, Witness& w) {
@@ -417,11 +473,15 @@ class ExactRun {
   const AeroelasticModel& model_;
   const StateLayout& L_;
   const int n_;
+  const int N_;  // augmented length: n_ + 1 + 2 x (gust oscillators)
+  const bool gusts_ = !model_.gusts().empty();
   RunState& run_;
   const double t_end_;
   const OutputSchedule& schedule_;
   const RunObservers& obs_;
   const Vec W_;
+  const std::span<const double> breaks_;  // input switch times
+  std::vector<int> key_;  // the spring regions and input segment of a Region
   std::map<std::vector<int>, Region> cache_;
   std::vector<double> x_;  // a sample's state, unscaled
   std::vector<std::pair<double, int>> found_;  // a step's peaks (time, DOF)

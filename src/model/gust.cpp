@@ -88,19 +88,37 @@ double GustField::profile_velocity(const GustProfile& p, double t, double probe)
   return 0.0;
 }
 
-double GustField::velocity(double t, int segment) const {
+double GustField::probe_of(int segment, double t) const {
   // A time strictly inside the segment.
   const int n = static_cast<int>(breakpoints_.size());
-  double probe;
-  if (n == 0) {
-    probe = t;
-  } else if (segment <= 0) {
-    probe = breakpoints_[0] - 1.0;
-  } else if (segment >= n) {
-    probe = breakpoints_[n - 1] + 1.0;
-  } else {
-    probe = 0.5 * (breakpoints_[segment - 1] + breakpoints_[segment]);
+  if (n == 0) return t;
+  if (segment <= 0) return breakpoints_[0] - 1.0;
+  if (segment >= n) return breakpoints_[n - 1] + 1.0;
+  return 0.5 * (breakpoints_[segment - 1] + breakpoints_[segment]);
+}
+
+std::optional<GustField::HarmonicInput> GustField::harmonic_input(int segment) const {
+  HarmonicInput h;
+  const double probe = probe_of(segment, 0.0);
+  for (const auto& p : profiles_) {
+    if (p.shape == GustShape::kRecorded) return std::nullopt;
+    const bool active = probe >= p.start && probe <= profile_end(p, airspeed_);
+    if (p.shape == GustShape::kSharpEdged) {
+      if (active) h.constant += p.amplitude;
+      continue;
+    }
+    const bool cosine = p.shape == GustShape::kOneMinusCosine;
+    h.omega.push_back(cosine ? pi * airspeed_ / p.gradient : p.frequency);
+    h.start.push_back(p.start);
+    h.sin_coef.push_back(active && !cosine ? p.amplitude : 0.0);
+    h.cos_coef.push_back(active && cosine ? -0.5 * p.amplitude : 0.0);
+    if (active && cosine) h.constant += 0.5 * p.amplitude;
   }
+  return h;
+}
+
+double GustField::velocity(double t, int segment) const {
+  const double probe = probe_of(segment, t);
   double w = 0;
   for (const auto& p : profiles_) w += profile_velocity(p, t, probe);
   return w;

@@ -78,7 +78,8 @@ def wait_for(cond, proc, timeout=60):
 with tempfile.TemporaryDirectory() as tmp:
     # ---------------------------------------------------------------- simulate
     # Long enough to be interrupted: 60 s of response at steps <= 1e-5 s.
-    long_run = ["--set", "simulation.duration=60", "--set", "simulation.max_step=1e-5"]
+    long_run = ["--set", "simulation.duration=60", "--set", "simulation.max_step=1e-5",
+                "--set", "simulation.stepper=dopri5"]  # max_step slows adaptive steppers only
     for sig, status in ((signal.SIGINT, 130), (signal.SIGTERM, 143)):
         out = os.path.join(tmp, f"sim_{sig.name}.h5")
         r = run("simulate", DEMO, "-o", out, "--set", "simulation.duration=0.2")

@@ -114,33 +114,71 @@ TEST_CASE("Exact propagation: a trajectory grazing a breakpoint inside one step 
 
 TEST_CASE("Exact propagation agrees with Dormand-Prince at tight tolerance on the demo's flap freeplay",
           "[exact]") {
-  // The 3-DOF demo without its gust (eligible: flap freeplay, Wagner lag
-  // states) released as in the case, 3 s: the exact flow against the Odeint
-  // Dormand-Prince path at rtol 1e-13: the same switch count, final state
-  // and monodromy to 1e-9 relative (the Odeint path's own accuracy at that
-  // tolerance), every peak time to 1e-9 s. The check the issue names
-  // (exact propagation against the Odeint path, 1e-13 to 1e-10).
-  const Case c = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml");
+  // The 3-DOF demo (flap freeplay, Wagner lag states) released as in the
+  // case, 3 s, without a gust and with each gust shape the exact flow takes
+  // (its own 1-cos gust; a sharp-edged gust; a 4 Hz sinusoidal gust of 2.5
+  // cycles, so that it starts and ends inside the run; the gust's Küssner
+  // lag states and its harmonic input integrated exactly): the exact flow
+  // against the Odeint Dormand-Prince path at rtol 1e-13: the same switch
+  // count, final state and monodromy to 1e-9 relative (the Odeint path's
+  // own accuracy at that tolerance), every peak time to what that accuracy
+  // allows at the peak (below). The check the issue names (exact
+  // propagation against the Odeint path, 1e-13 to 1e-10).
+  // Each piecewise-linear law on the flap too: the demo's freeplay, a
+  // bilinear spring (20 % stiffness inside +-0.5 degree) and a table of
+  // four points (asymmetric: stiffer below than above, a kink at 0.3
+  // degree).
+  const std::string demo = std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml";
+  const std::string gust = GENERATE(as<std::string>{}, "none", "demo 1-cos", "sharp-edged", "sinusoidal");
+  const std::string law = GENERATE(as<std::string>{}, "freeplay", "bilinear", "table");
+  CAPTURE(gust, law);
+  const Case demo_case = load_case(demo);
+  const double kb = demo_case.model.section.flap_stiffness;  // N m/rad per m
+  const std::string text = demo_case.text;
+  std::string base = text.substr(0, text.find("[[gust]]"));
+  const std::size_t springs = base.find("[springs.flap]");
+  const std::size_t after = base.find("\n[", springs + 1);
+  const double deg = std::numbers::pi / 180;
+  const std::string spring =
+      law == "bilinear" ? fmt::format("[springs.flap]\nlaw = \"bilinear\"\ninner_stiffness = {}\nhalf_width_deg = 0.5\n", 0.2 * kb)
+      : law == "table"  ? fmt::format("[springs.flap]\nlaw = \"table\"\ndisplacements_deg = [-4.0, -0.4, 0.3, 4.0]\n"
+                                      "forces = [{}, {}, {}, {}]\n",
+                                      -1.2 * kb * 3.6 * deg - 0.05 * kb * 0.4 * deg, -0.05 * kb * 0.4 * deg,
+                                      0.1 * kb * 0.3 * deg, 0.1 * kb * 0.3 * deg + 0.9 * kb * 3.7 * deg)
+                        : base.substr(springs, after - springs + 1);
+  base = base.substr(0, springs) + spring + base.substr(after + 1);
+  const Case c = gust == "sharp-edged"
+                     ? test::case_from(base + "[[gust]]\nshape = \"sharp-edged\"\nstart = 0.4\namplitude = 3.0\n")
+                 : gust == "sinusoidal"
+                     ? test::case_from(base + "[[gust]]\nshape = \"sinusoidal\"\nstart = 0.3\namplitude = 4.0\n"
+                                              "frequency_hz = 4.0\ncycles = 2.5\n")
+                     : test::case_from(base + text.substr(text.find("[[gust]]")));
   ModelDescription d = c.model;
-  d.gusts = GustField();
+  if (gust == "none") d.gusts = GustField();
   const AeroelasticModel m(d);
   std::string why;
   REQUIRE(exact_propagation_eligible(m, &why));
-  CHECK_FALSE(exact_propagation_eligible(AeroelasticModel(c.model), &why));  // the gust makes it ineligible
-  CHECK(why.find("gust") != std::string::npos);
+  CHECK(m.gusts().empty() == (gust == "none"));
   const int n = m.state_size();
+  struct Peak {
+    int dof;
+    double t, acceleration;  // s; the DOF's acceleration there (units of x'' )
+  };
   struct Out {
     RunState run;
-    std::vector<std::pair<int, double>> peaks;
+    std::vector<Peak> peaks;
   };
+  const StateLayout& L = m.layout();
+  std::vector<double> dxdt(static_cast<std::size_t>(m.state_size()));
   auto go = [&](const IntegratorSettings& s) {
     Out o;
     o.run = start_of(m, c);
     o.run.track_monodromy = true;
     o.run.monodromy.assign(static_cast<std::size_t>(n * n), 0.0);
     for (int i = 0; i < n; ++i) o.run.monodromy[static_cast<std::size_t>(i * (n + 1))] = 1.0;
-    integrate(m, o.run, 3.0, s, OutputSchedule::none(), {{}, [&](int dof, double t, const std::vector<double>&) {
-                o.peaks.emplace_back(dof, t);
+    integrate(m, o.run, 3.0, s, OutputSchedule::none(), {{}, [&](int dof, double t, const std::vector<double>& x) {
+                m.rhs(x.data(), dxdt.data(), t, m.regions_of(x.data()), m.gusts().segment_of(t));
+                o.peaks.push_back({dof, t, dxdt[static_cast<std::size_t>(L.velocity + dof)]});
                 return ObserverAction::kContinue;
               }});
     return o;
@@ -163,29 +201,47 @@ TEST_CASE("Exact propagation agrees with Dormand-Prince at tight tolerance on th
   const Eigen::MatrixXd sr = W.asDiagonal() * pr * W.cwiseInverse().asDiagonal();
   CAPTURE((se - sr).cwiseAbs().maxCoeff(), sr.cwiseAbs().maxCoeff());
   CHECK((se - sr).cwiseAbs().maxCoeff() < 1e-8 * sr.cwiseAbs().maxCoeff());
+  // Peak times: a peak is a zero of the DOF's velocity, so a velocity
+  // uncertainty dv moves it by dv / |acceleration| (first-order
+  // perturbation, common practice, no source). With dv the reference's
+  // state accuracy above (1e-9 of the scaled state), each peak time must
+  // agree to 1e-12 s + dv / |a|. This matters where the oscillation has
+  // decayed about a new static position (the sharp-edged gust): its late
+  // peaks are flat, and there three Dormand-Prince references (rtol 1e-13,
+  // 3e-14, 1e-14) scatter among themselves by up to 1.4e-9 s (measured)
+  // while every state agrees to 1e-9 relative.
   REQUIRE(e.peaks.size() == r.peaks.size());
-  double dt = 0;
+  double worst = 0;  // largest |dt| / allowed
   for (std::size_t k = 0; k < e.peaks.size(); ++k) {
-    CHECK(e.peaks[k].first == r.peaks[k].first);
-    dt = std::max(dt, std::abs(e.peaks[k].second - r.peaks[k].second));
+    CHECK(e.peaks[k].dof == r.peaks[k].dof);
+    const double dv = 1e-9 * scale / W(L.velocity + e.peaks[k].dof);
+    const double allowed = 1e-12 + dv / std::abs(e.peaks[k].acceleration);
+    worst = std::max(worst, std::abs(e.peaks[k].t - r.peaks[k].t) / allowed);
   }
-  CAPTURE(dt);
-  CHECK(dt < 1e-9);
+  CAPTURE(worst);
+  CHECK(worst < 1.0);
 }
 
 TEST_CASE("stepper = \"exact\" on a case that cannot be propagated exactly is refused, naming why", "[exact][case]") {
-  // The demo has a one-minus-cosine gust: not autonomous. "auto" falls back
-  // to Dormand-Prince; "exact" is an input error naming the key and the gust.
+  // Continuous turbulence is a recorded input (not constant or harmonic):
+  // "auto" falls back to Dormand-Prince; "exact" is an input error naming
+  // the key and the turbulence. The demo's 1-cos gust is eligible.
   const std::string demo = std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml";
   CHECK(load_case(demo).simulation.integrator.stepper == StepperKind::kExact);  // auto
+  CHECK_NOTHROW(load_case(demo, {"simulation.stepper=exact"}));
+  const std::string text = load_case(demo).text;
+  const std::string turbulent = text.substr(0, text.find("[[gust]]")) +
+                                "[[gust]]\nshape = \"turbulence\"\nmodel = \"dryden\"\nintensity = 1.5\n"
+                                "scale_length = 24.0\nseed = 3\n";
+  CHECK_FALSE(exact_propagation_eligible(test::case_from(turbulent).model));
   try {
-    (void)load_case(demo, {"simulation.stepper=exact"});
+    (void)test::case_from(turbulent, {"simulation.stepper=exact"});
     FAIL("no error");
   } catch (const InputError& e) {
     const std::string m = e.what();
     CAPTURE(m);
     CHECK(m.find("stepper") != std::string::npos);
-    CHECK(m.find("gust") != std::string::npos);
+    CHECK(m.find("turbulence") != std::string::npos);
   }
-  CHECK_NOTHROW(load_case(demo, {"simulation.stepper=dopri5"}));
+  CHECK_NOTHROW(test::case_from(turbulent, {"simulation.stepper=dopri5"}));
 }

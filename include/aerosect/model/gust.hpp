@@ -78,8 +78,22 @@ class GustField {
   double velocity(double t, int segment) const;
   double end_time() const;  // last switch time (0 when none)
 
+  // The input of segment `segment` in harmonic form, for exact propagation
+  // (integrate/exact_flow.hpp): for t inside the segment
+  //   w_g(t) = constant + sum_j [sin_coef_j sin(omega_j (t - start_j))
+  //                              + cos_coef_j cos(omega_j (t - start_j))],
+  // one term j per oscillating profile (one-minus-cosine: omega = pi U / H,
+  // sinusoidal: its frequency), in profile order, zero coefficients where
+  // the profile is not active. nullopt when a profile is recorded.
+  struct HarmonicInput {
+    double constant = 0;  // m/s
+    std::vector<double> omega, start, sin_coef, cos_coef;  // rad/s, s, m/s, m/s
+  };
+  std::optional<HarmonicInput> harmonic_input(int segment) const;
+
  private:
   double profile_velocity(const GustProfile& p, double t, double probe) const;
+  double probe_of(int segment, double t) const;  // a time inside the segment (t when no breakpoints)
   std::vector<GustProfile> profiles_;
   std::vector<double> breakpoints_;
   double airspeed_ = 0;

@@ -111,6 +111,9 @@ class AeroelasticModel {
   // Loads from a state and its derivative (accelerations are dxdt[velocity..]).
   Loads loads(const double* x, const double* dxdt, double t = 0, int input_segment = 0) const;
   const GustField& gusts() const { return d_.gusts; }
+  // B_gust: x' = f(x; regions) + B_gust w_g(t) (state_size long; zero
+  // without gusts).
+  const Eigen::VectorXd& gust_input() const { return B_gust_; }
 
   // Linear state matrix with spring j replaced by a linear spring of
   // stiffness k[j] (N/m or N m/rad); nonlinear springs use k[j] as given.

@@ -8,7 +8,7 @@ prints (key `linear_model`) and integrates
     f  = slopes[r] * x + intercepts[r] + sum_k polynomial_terms[k] * x^(k+2)
 
 in the region r = bisect_right(breakpoints, x[dof]) of each spring, with
-scipy.integrate.solve_ivp(method="DOP853"). Switching is exact: a terminal
+scipy.integrate.solve_ivp(method="DOP853", or "RK45" with --method). Switching is exact: a terminal
 event on x[dof] - breakpoint stops the integration, the region is updated
 from the crossing direction and the integration restarts there (the
 right-hand side always uses the stored region, never a test on x). True
@@ -29,7 +29,7 @@ whole one-sided spectrum (the Nyquist bin with weight sqrt(2)|X_{N/2}|/N).
 
 Usage:
   peer_solve_ivp.py AEROSECT CASE [--set KEY=VALUE ...] [--rtol R] [--atol A]
-                    [--duration SECONDS] [--cycles N] [--cycle-samples N]
+                    [--method DOP853|RK45] [--duration SECONDS] [--cycles N] [--cycle-samples N]
 Prints one JSON object.
 """
 import argparse
@@ -88,7 +88,7 @@ class Peer:
             return dx
         return rhs
 
-    def run(self, rtol, atol, duration=None, keep_tail=False):
+    def run(self, rtol, atol, duration=None, keep_tail=False, method="DOP853"):
         T = self.duration if duration is None else duration
         self.keep_tail = keep_tail
         vel = self.layout["velocity"]
@@ -120,7 +120,7 @@ class Peer:
                     ev.terminal, ev.direction = True, +1
                     events.append(ev)
                     owners.append((si, r, +1))
-            sol = solve_ivp(self.rhs_factory(regions), (t, T), x, method="DOP853",
+            sol = solve_ivp(self.rhs_factory(regions), (t, T), x, method=method,
                             rtol=rtol, atol=atol, events=events, dense_output=True)
             if sol.status < 0:
                 raise RuntimeError(sol.message)
@@ -226,6 +226,8 @@ def main(argv=None):
                     help="default: the case's simulation.relative_tolerance")
     ap.add_argument("--atol", type=float, default=None,
                     help="default: the case's simulation.absolute_tolerance")
+    ap.add_argument("--method", default="DOP853", choices=["DOP853", "RK45"],
+                    help="scipy's integrator (default DOP853; RK45 is Dormand-Prince 5(4))")
     ap.add_argument("--duration", type=float, default=None, help="seconds (default: the case's)")
     ap.add_argument("--cycles", type=int, default=None,
                     help="LCO window: the last N cycles instead of the last fifth of the run")
@@ -249,14 +251,15 @@ def main(argv=None):
             sys.exit("peer_solve_ivp: give --rtol and --atol (not in the case file)")
     peer = Peer(lm)
     t0 = time.perf_counter()
-    peaks, T = peer.run(rtol, atol, a.duration, keep_tail=a.cycle_samples is not None)
+    peaks, T = peer.run(rtol, atol, a.duration, keep_tail=a.cycle_samples is not None,
+                        method=a.method)
     wall = time.perf_counter() - t0
     res = Peer.lco(peaks, T, a.cycles)
     if a.cycle_samples and res["frequency_hz"] > 0:
         res["cycle"] = peer.cycle(1.0 / res["frequency_hz"], T, a.cycle_samples)
     res.update(watched_dof=peer.watch, duration_s=T, rtol=rtol, atol=atol,
                steps=peer.nsteps, nfev=peer.nfev, switches=peer.switches,
-               peaks=len(peaks), wall_s=wall)
+               peaks=len(peaks), wall_s=wall, method=a.method)
     print(json.dumps(res, indent=1))
 
 

@@ -329,7 +329,7 @@ class ExactRun {
     }
     if (obs_.peak)
       for (int j = 0; j < L_.n_dof; ++j) {
-        if (model_.description().held[static_cast<std::size_t>(j)]) continue;
+        if (model_.description().held[static_cast<std::size_t>(j)] || !(obs_.peak_dofs >> j & 1u)) continue;
         Witness w;
         w.spring = false;
         w.dof = j;

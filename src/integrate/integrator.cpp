@@ -118,9 +118,10 @@ struct Witness {
 
 // The witnesses watched from the run's present regions and input segment:
 // the boundaries adjacent to each nonlinear spring's region, the next input
-// switch time, and the velocity of every moving DOF when peaks are wanted.
+// switch time, and the velocity of every moving DOF whose peaks are wanted
+// (bit j of peak_dofs).
 std::vector<Witness> watched_witnesses(const AeroelasticModel& model, const RunState& run,
-                                       bool peaks) {
+                                       unsigned peak_dofs) {
   using K = Witness::Kind;
   std::vector<Witness> out;
   for (int j : model.nonlinear_springs()) {
@@ -134,10 +135,9 @@ std::vector<Witness> watched_witnesses(const AeroelasticModel& model, const RunS
     const double t = breaks[static_cast<std::size_t>(run.input_segment)];
     out.push_back({K::kInputSwitch, 0, t, +1, model.gusts().segment_of(t)});
   }
-  if (peaks)
-    for (int j = 0; j < model.n_dof(); ++j)
-      if (!model.description().held[static_cast<std::size_t>(j)])
-        out.push_back({K::kVelocityZero, j, 0.0, 0, 0});
+  for (int j = 0; j < model.n_dof(); ++j)
+    if ((peak_dofs >> j & 1u) && !model.description().held[static_cast<std::size_t>(j)])
+      out.push_back({K::kVelocityZero, j, 0.0, 0, 0});
   return out;
 }
 
@@ -242,7 +242,7 @@ class Run {
       jac_.resize(static_cast<Eigen::Index>(n_), static_cast<Eigen::Index>(n_));
     }
     run_.input_segment = model.gusts().segment_of(run.time);
-    witnesses_ = watched_witnesses(model_, run_, static_cast<bool>(obs_.peak));
+    witnesses_ = watched_witnesses(model_, run_, obs_.peak ? obs_.peak_dofs : 0u);
   }
   Run(const Run&) = delete;
   Run& operator=(const Run&) = delete;
@@ -577,7 +577,7 @@ class Run {
       close_switches_ = 0;
     }
     last_switch_ = run_.time;
-    witnesses_ = watched_witnesses(model_, run_, static_cast<bool>(obs_.peak));
+    witnesses_ = watched_witnesses(model_, run_, obs_.peak ? obs_.peak_dofs : 0u);
     stepper_.initialize(cur_, run_.time, std::max(s.t_new - s.t_old, 1e-6 * dt0_));
   }
 
@@ -592,7 +592,7 @@ class Run {
         s.t_new >= in->position - 4 * std::numeric_limits<double>::epsilon() * std::abs(in->position)) {
       run_.time = in->position;
       run_.input_segment = in->next;
-      witnesses_ = watched_witnesses(model_, run_, static_cast<bool>(obs_.peak));
+      witnesses_ = watched_witnesses(model_, run_, obs_.peak ? obs_.peak_dofs : 0u);
       stepper_.initialize(cur_, run_.time, std::max(s.t_new - s.t_old, 1e-6 * dt0_));
     }
   }

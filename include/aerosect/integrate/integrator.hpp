@@ -127,6 +127,9 @@ struct RunObservers {
   // witness like peak: its return value is ignored). Extremes of derived
   // channels are bracketed between step ends, whatever the sample rate.
   SampleObserver step = {};
+  // The DOFs whose peaks are reported (bit j: DOF j; all by default). A
+  // run that watches one DOF does not pay for locating the others' peaks.
+  unsigned peak_dofs = ~0u;
 };
 
 enum class StopReason { kEndTime, kObserver, kCancelled };

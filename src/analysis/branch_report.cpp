@@ -35,13 +35,15 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b, 
   if (!sweep_file.empty()) meta.text_attributes.push_back({"overlay_sweep_file", sweep_file});
   doc.metadata(meta);
   // The envelope, for the figure's V_D and 1.15 V_D marks (as in a flutter file).
-  doc.number_attribute("", "density", c.model.flow.density);
+  doc.number_attribute("", "density", c.model.flow.density, "kg m-3");
   if (c.dive_speed_eas) {
-    doc.number_attribute("", "dive_speed_eas", *c.dive_speed_eas);
-    doc.number_attribute("", "clearance_speed_tas", 1.15 * true_airspeed(*c.dive_speed_eas, c.model.flow.density));
+    doc.number_attribute("", "dive_speed_eas", *c.dive_speed_eas, "m s-1");
+    doc.number_attribute("", "clearance_speed_tas", 1.15 * true_airspeed(*c.dive_speed_eas, c.model.flow.density),
+                         "m s-1");
   }
   doc.integer_attribute("", "complete", complete(b) ? 1 : 0);
-  if (b.hopf_parameter) doc.number_attribute("", "hopf_parameter", *b.hopf_parameter);
+  const std::string key_units = case_key_units(b.key).empty() ? "1" : case_key_units(b.key);
+  if (b.hopf_parameter) doc.number_attribute("", "hopf_parameter", *b.hopf_parameter, key_units);
   const std::size_t N = b.points.size();
   doc.integer_attribute("", "points", static_cast<std::int64_t>(N));
   if (N > 0) {
@@ -54,7 +56,6 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b, 
       for (std::size_t i = 0; i < N; ++i) v[i] = f(b.points[i]);
       doc.dataset(name, {"point"}, v, units, ln);
     };
-    const std::string key_units = case_key_units(b.key).empty() ? "1" : case_key_units(b.key);
     table("parameter", [](const BranchPoint& p) { return p.parameter; }, key_units,
           "value of the continuation key " + b.key + " (case-file units)");
     table("airspeed", [](const BranchPoint& p) { return p.airspeed; }, "m s-1", "true airspeed");
@@ -145,7 +146,6 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b, 
     };
     table("bifurcation_kind", [](const Bifurcation& f) { return static_cast<double>(f.kind); }, "1",
           "1 fold, 2 period doubling, 3 torus (Neimark-Sacker), 4 branch point, 5 grazing (branch end)");
-    const std::string key_units = case_key_units(b.key).empty() ? "1" : case_key_units(b.key);
     table("bifurcation_parameter", [](const Bifurcation& f) { return f.parameter; }, key_units,
           "located value of the continuation key");
     table("bifurcation_amplitude", [](const Bifurcation& f) { return f.amplitude; },

@@ -949,7 +949,7 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
                             "describing_function_flutter_value"};
     for (const auto& lr : fr.results) {
       const Crossing& x = lr.methods.front().flutter;
-      if (x.found) doc.number_attribute("", names[static_cast<int>(lr.linearisation)], x.speed * per);
+      if (x.found) doc.number_attribute("", names[static_cast<int>(lr.linearisation)], x.speed * per, axis_units(key));
     }
     if (fr.lco.available) write_lco_prediction(doc, fr.lco, per, key);
   }

@@ -389,15 +389,17 @@ void Hdf5Document::text_attribute(const std::string& object, const std::string& 
 }
 
 void Hdf5Document::number_attribute(const std::string& object, const std::string& name,
-                                    double value) {
+                                    double value, const std::string& units) {
   file_->attribute(object, name,
                    [&](const H5::H5Object& o) { hdf5_detail::write_double(o, name, value); });
+  text_attribute(object, hdf5_detail::units_name(name), units);
 }
 
 void Hdf5Document::integer_attribute(const std::string& object, const std::string& name,
                                      std::int64_t value) {
   file_->attribute(object, name,
                    [&](const H5::H5Object& o) { hdf5_detail::write_int64(o, name, value); });
+  text_attribute(object, hdf5_detail::units_name(name), "1");
 }
 
 void Hdf5Document::commit() {

@@ -73,10 +73,10 @@ void write_layout(Hdf5Document& doc) {
   doc.dataset("nominal/state_space/damping_ratio", {"speed", "mode"}, v, "1", "damping ratio");
   doc.dataset("/nominal/pk/frequency", {"speed", "mode"}, v, "Hz", "modal frequency");
   doc.integer_attribute("nominal/state_space", "flutter_found", 1);
-  doc.number_attribute("nominal/state_space", "flutter_speed", 41.5);
+  doc.number_attribute("nominal/state_space", "flutter_speed", 41.5, "m s-1");
   doc.number_attribute("nominal/pk", "flutter_speed",
-                       std::numeric_limits<double>::quiet_NaN());
-  doc.number_attribute("", "reference_speed", 25.0);
+                       std::numeric_limits<double>::quiet_NaN(), "m s-1");
+  doc.number_attribute("", "reference_speed", 25.0, "m s-1");
   doc.text_attribute("/", "history", "written by a test");
   doc.text_attribute("nominal/state_space/damping_ratio", "comment", "per mode");
 }
@@ -147,14 +147,12 @@ TEST_CASE("HDF5 document: values are stored row-major with units and long_name",
   REQUIRE(text_attribute(damping, "long_name") == "damping ratio");
   H5::DataSet frequency = file.openDataSet("nominal/pk/frequency");
   REQUIRE(text_attribute(frequency, "units") == "Hz");
-  // netCDF-4 reads fixed-length HDF5 strings as text (NC_CHAR) attributes,
-  // the form netCDF-C itself writes (h5dump of an ncgen -k nc4 file):
-  // H5T_STR_NULLTERM, UTF-8, the length of the text.
+  // Text attributes are variable-length UTF-8 strings: netCDF-4's NC_STRING
+  // (netCDF User Guide, "netCDF-4 format"), read as str by h5py 3 (h5py
+  // docs, "Strings in HDF5": fixed-length strings read as bytes).
   H5::StrType type = frequency.openAttribute("long_name").getStrType();
-  REQUIRE_FALSE(type.isVariableStr());
-  REQUIRE(type.getStrpad() == H5T_STR_NULLTERM);
+  REQUIRE(type.isVariableStr());
   REQUIRE(type.getCset() == H5T_CSET_UTF8);
-  REQUIRE(type.getSize() == std::string("modal frequency").size());
 }
 
 TEST_CASE("HDF5 document: axes are dimension scales attached to every dimension",
@@ -271,6 +269,12 @@ TEST_CASE("HDF5 document: metadata, parameters and attributes", "[hdf5_document]
                                     H5::PredType::NATIVE_DOUBLE) == 41.5);
   REQUIRE(std::isnan(numeric_attribute<double>(file.openGroup("nominal/pk"), "flutter_speed",
                                                H5::PredType::NATIVE_DOUBLE)));
+  // Each numeric attribute NAME has its units in NAME_units (our convention:
+  // CF 1.10 §3.1 defines `units` for variables only); integers are counts,
+  // flags or indices, "1".
+  REQUIRE(text_attribute(state_space, "flutter_speed_units") == "m s-1");
+  REQUIRE(text_attribute(state_space, "flutter_found_units") == "1");
+  REQUIRE(text_attribute(root, "reference_speed_units") == "m s-1");
 
   // Dataset attributes, on an axis and on a nested dataset.
   REQUIRE(text_attribute(file.openDataSet("mode"), "mode_names") == "plunge,pitch,flap");
@@ -426,7 +430,7 @@ TEST_CASE("HDF5 document: temporary file, commit and destructor", "[hdf5_documen
     // Common practice, no source: no HDF5 object stays open after commit.
     REQUIRE(open_hdf5_objects() == 0);
     // Common practice, no source: a committed document takes no more data.
-    REQUIRE_THROWS_AS(doc.number_attribute("", "late", 1.0), OutputError);
+    REQUIRE_THROWS_AS(doc.number_attribute("", "late", 1.0, "1"), OutputError);
     REQUIRE_THROWS_AS(doc.commit(), OutputError);
   }
 
@@ -542,8 +546,8 @@ TEST_CASE("HDF5 document: requests that do not fit throw OutputError and change 
   // HDF5 User Guide, groups: a dataset holds no links.
   refused([&] { doc.dataset("nominal/state_space/frequency/x", {"speed"}, kSpeeds, "1", "x"); },
           "is not a group");
-  doc.number_attribute("nominal/state_space", "flutter_speed", 41.5);
-  refused([&] { doc.number_attribute("nominal/state_space", "flutter_speed", 40.0); },
+  doc.number_attribute("nominal/state_space", "flutter_speed", 41.5, "m s-1");
+  refused([&] { doc.number_attribute("nominal/state_space", "flutter_speed", 40.0, "m s-1"); },
           "already written");
   RunMetadata clash = document_metadata();
   clash.text_attributes.push_back({"title", "again"});

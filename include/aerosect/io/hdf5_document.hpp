@@ -8,12 +8,12 @@
 //   doc.integer_axis("mode", {1, 2, 3}, "mode number");
 //   doc.dataset("nominal/state_space/damping_ratio", {"speed", "mode"}, data,
 //               "1", "damping ratio");        // groups created as needed
-//   doc.number_attribute("nominal/state_space", "flutter_speed", 71.2);
+//   doc.number_attribute("nominal/state_space", "flutter_speed", 71.2, "m s-1");
 //   doc.commit();                             // written: rename into place
 //
 // Conventions shared with Hdf5TimeHistoryWriter (one implementation of the
-// HDF5 details): fixed-length null-terminated UTF-8 text attributes (netCDF
-// NC_CHAR), creation order tracked, every dataset with `units` and
+// HDF5 details): variable-length UTF-8 text attributes (netCDF NC_STRING,
+// str in h5py), creation order tracked, every dataset with `units` and
 // `long_name`, axes as HDF5 dimension scales attached to every dimension of
 // every dataset that names them. Data are row-major (the last dimension
 // varies fastest); datasets larger than 64 KiB are chunked and compressed.
@@ -58,10 +58,13 @@ class Hdf5Document : public TableSink {
                const std::string& long_name) override;
 
   // Attributes on the root ("" or "/"), a group or a dataset (created as a
-  // group when nothing is at that path yet).
+  // group when nothing is at that path yet). A number's units go into the
+  // text attribute NAME_units beside it ("1" for an integer: counts, flags
+  // and indices are dimensionless).
   void text_attribute(const std::string& object, const std::string& name,
                       const std::string& value) override;
-  void number_attribute(const std::string& object, const std::string& name, double value) override;
+  void number_attribute(const std::string& object, const std::string& name, double value,
+                        const std::string& units) override;
   void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) override;
 
   // Close and rename onto the target path. Throws OutputError.

@@ -43,7 +43,10 @@ class TableSink {
   virtual void dataset(const std::string& path, const std::vector<std::string>& dims,
                        std::span<const double> data, const std::string& units, const std::string& long_name) = 0;
   virtual void text_attribute(const std::string& object, const std::string& name, const std::string& value) = 0;
-  virtual void number_attribute(const std::string& object, const std::string& name, double value) = 0;
+  // A number with its UDUNITS units (NAME_units beside NAME); an integer
+  // (a count, flag or index) is dimensionless, units "1".
+  virtual void number_attribute(const std::string& object, const std::string& name, double value,
+                                const std::string& units) = 0;
   virtual void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) = 0;
 };
 
@@ -75,11 +78,14 @@ class MemoryTables : public TableSink {
   void text_attribute(const std::string& object, const std::string& name, const std::string& value) override {
     text[object + "@" + name] = value;
   }
-  void number_attribute(const std::string& object, const std::string& name, double value) override {
+  void number_attribute(const std::string& object, const std::string& name, double value,
+                        const std::string& units) override {
     numbers[object + "@" + name] = value;
+    text[object + "@" + name + "_units"] = units;
   }
   void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) override {
     numbers[object + "@" + name] = static_cast<double>(value);
+    text[object + "@" + name + "_units"] = "1";
   }
 };
 

@@ -129,14 +129,23 @@ class Document {
 
   void axis(const std::string& name, std::span<const double> values, const std::string& units,
             const std::string& long_name) {
-    new_axis(name, values.size(), H5::PredType::IEEE_F64LE, H5::PredType::NATIVE_DOUBLE,
-             values.data(), units, long_name);
+    Axis a;
+    a.reals.assign(values.begin(), values.end());
+    a.length = values.size();
+    a.units = units;
+    a.long_name = long_name;
+    new_axis(name, std::move(a));
   }
 
   void integer_axis(const std::string& name, std::span<const std::int32_t> values,
                     const std::string& long_name) {
-    new_axis(name, values.size(), H5::PredType::STD_I32LE, H5::PredType::NATIVE_INT32,
-             values.data(), "1", long_name);
+    Axis a;
+    a.integer = true;
+    a.integers.assign(values.begin(), values.end());
+    a.length = values.size();
+    a.units = "1";
+    a.long_name = long_name;
+    new_axis(name, std::move(a));
   }
 
   void dataset(const std::string& path, const std::vector<std::string>& dims,
@@ -147,25 +156,29 @@ class Document {
     const auto parts = split_path(path, valid);
     if (!valid || parts.empty()) refuse(fmt::format("invalid dataset path '{}'", path));
     std::vector<hsize_t> shape;
-    std::vector<const H5::DataSet*> scales;
     std::size_t count = 1;
     for (const auto& d : dims) {
       const auto a = axes_.find(d);
       if (a == axes_.end())
         refuse(fmt::format("dataset '{}' names the unknown axis '{}'", path, d));
       shape.push_back(a->second.length);
-      scales.push_back(&a->second.dataset);
       count *= static_cast<std::size_t>(a->second.length);
     }
     if (data.size() != count)
       refuse(fmt::format("dataset '{}' has {} values but its axes ({}) hold {}", path,
                          data.size(), fmt::join(dims, ", "), count));
     const std::string name = join(parts, parts.size());
+    const std::string group = join(parts, parts.size() - 1);
+    for (const auto& d : dims) check_local_axis(d, group, name);
 
     run(fmt::format("writing dataset '{}'", name), [&] {
-      const std::size_t existing = existing_prefix(parts, name);
-      if (existing == parts.size()) refuse(fmt::format("'{}' already exists", name));
+      if (existing_prefix(parts, name) == parts.size()) refuse(fmt::format("'{}' already exists", name));
       room_for(data.size() * sizeof(double), fmt::format("dataset '{}'", name));
+      // The group's own copy of each axis from elsewhere (local_axis; it
+      // may create the group).
+      std::vector<const H5::DataSet*> scales;
+      for (const auto& d : dims) scales.push_back(&local_axis(d, group).dataset);
+      const std::size_t existing = existing_prefix(parts, name);
       H5::Group parent = make_groups(parts, existing, parts.size() - 1);
       H5::DataSpace space = shape.empty()
                                 ? H5::DataSpace(H5S_SCALAR)
@@ -251,7 +264,67 @@ class Document {
   struct Axis {
     H5::DataSet dataset;
     hsize_t length = 0;
+    bool integer = false;
+    std::vector<double> reals;          // the values, for the copies in groups
+    std::vector<std::int32_t> integers;
+    std::string units, long_name;
   };
+
+  // The group of an axis or dataset path ("a/b/time" -> "a/b", "time" -> "").
+  static std::string group_of(const std::string& path) {
+    const auto slash = path.rfind('/');
+    return slash == std::string::npos ? std::string() : path.substr(0, slash);
+  }
+  static std::string leaf_of(const std::string& path) {
+    const auto slash = path.rfind('/');
+    return slash == std::string::npos ? path : path.substr(slash + 1);
+  }
+
+  // A dataset in group G over an axis defined elsewhere (the root's
+  // "speed" under "nominal/pk") is attached to G's own copy of the axis,
+  // "G/speed", made on first use: a netCDF-4 reader opening the group
+  // alone (xarray's open_dataset(group=...)) then finds its coordinate
+  // variables there (netCDF-4 dimensions are visible in subgroups, but
+  // coordinate variables are read per group). The copy has the axis's
+  // values, units and long_name.
+  std::string local_axis_name(const std::string& axis, const std::string& group) const {
+    if (group_of(axis) == group) return axis;
+    return group.empty() ? leaf_of(axis) : group + "/" + leaf_of(axis);
+  }
+
+  // Refuses (before anything is written) a copy whose name is taken by
+  // something that is not that copy.
+  void check_local_axis(const std::string& axis, const std::string& group, const std::string& user) {
+    const std::string local = local_axis_name(axis, group);
+    if (local == axis || axes_.count(local)) {
+      const Axis& a = axes_.at(local);
+      const Axis& from = axes_.at(axis);
+      if (local != axis && (a.reals != from.reals || a.integers != from.integers))
+        refuse(fmt::format("dataset '{}' over axis '{}' needs its copy '{}', which holds other values",
+                           user, axis, local));
+      return;
+    }
+    bool valid = false;
+    const auto parts = split_path(local, valid);
+    bool taken = true;  // every component exists (H5Lexists fails on a missing group)
+    for (std::size_t k = 0; k < parts.size() && taken; ++k) {
+      bool exists = false;
+      run("looking up '" + local + "'", [&] { exists = file_->nameExists(join(parts, k + 1)); });
+      taken = exists;
+    }
+    if (taken)
+      refuse(fmt::format("dataset '{}' over axis '{}' needs its copy '{}', a name already taken",
+                         user, axis, local));
+  }
+
+  const Axis& local_axis(const std::string& axis, const std::string& group) {
+    const std::string local = local_axis_name(axis, group);
+    if (const auto found = axes_.find(local); found != axes_.end()) return found->second;
+    Axis copy = axes_.at(axis);
+    copy.dataset = H5::DataSet();
+    bool valid = false;
+    return create_axis(local, split_path(local, valid), std::move(copy), axis);
+  }
 
   [[noreturn]] void refuse(const std::string& why) const { throw OutputError(path_, why); }
 
@@ -313,9 +386,7 @@ class Document {
     return group;
   }
 
-  void new_axis(const std::string& name, std::size_t length, const H5::PredType& file_type,
-                const H5::PredType& memory_type, const void* values, const std::string& units,
-                const std::string& long_name) {
+  void new_axis(const std::string& name, Axis a) {
     usable();
     // A root axis, or a group's own ("history/time": a netCDF dimension
     // `time` of that group); named in dataset dims by its full path.
@@ -323,20 +394,35 @@ class Document {
     const auto parts = split_path(name, valid);
     if (!valid || parts.empty() || parts.front() == kParametersGroup)
       refuse(fmt::format("invalid axis name '{}'", name));
-    run(fmt::format("writing axis '{}'", name), [&] {
-      const std::size_t existing = existing_prefix(parts, name);
-      if (existing == parts.size()) refuse(fmt::format("'{}' already exists", name));
-      room_for(length * file_type.getSize(), fmt::format("axis '{}'", name));
-      H5::Group parent = make_groups(parts, existing, parts.size() - 1);
-      const std::vector<hsize_t> dims{static_cast<hsize_t>(length)};
-      H5::DataSet d = parent.createDataSet(parts.back(), file_type, H5::DataSpace(1, dims.data()),
-                                           array_properties(dims));
-      if (length > 0) d.write(values, memory_type);
-      write_text(d, "units", units);
-      write_text(d, "long_name", long_name);
-      set_scale(d, parts.back());
-      axes_.emplace(name, Axis{d, dims[0]});
-    });
+    run(fmt::format("writing axis '{}'", name), [&] { create_axis(name, parts, std::move(a), ""); });
+  }
+
+  // Writes axis `a` at `name` (split into `parts`) as a dimension scale;
+  // `copy_of` names the axis it copies into a group, if any.
+  const Axis& create_axis(const std::string& name, const std::vector<std::string>& parts, Axis a,
+                          const std::string& copy_of) {
+    const std::size_t existing = existing_prefix(parts, name);
+    if (existing == parts.size()) refuse(fmt::format("'{}' already exists", name));
+    const H5::PredType& file_type = a.integer ? H5::PredType::STD_I32LE : H5::PredType::IEEE_F64LE;
+    room_for(a.length * file_type.getSize(), fmt::format("axis '{}'", name));
+    H5::Group parent = make_groups(parts, existing, parts.size() - 1);
+    const std::vector<hsize_t> dims{a.length};
+    H5::DataSet d = parent.createDataSet(parts.back(), file_type, H5::DataSpace(1, dims.data()),
+                                         array_properties(dims));
+    if (a.length > 0) {
+      if (a.integer)
+        d.write(a.integers.data(), H5::PredType::NATIVE_INT32);
+      else
+        d.write(a.reals.data(), H5::PredType::NATIVE_DOUBLE);
+    }
+    write_text(d, "units", a.units);
+    write_text(d, "long_name", a.long_name);
+    if (!copy_of.empty())
+      write_text(d, "comment", fmt::format("the coordinate /{} again, so that this group has its own axes",
+                                           copy_of));
+    set_scale(d, parts.back());
+    a.dataset = d;
+    return axes_.emplace(name, std::move(a)).first->second;
   }
 
   std::string path_, temporary_path_;

@@ -544,9 +544,14 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
                          [](const P& p) { return p.stable ? 1.0 : 0.0; }));
   layout.push_back(field("equivalent_stiffness", angle ? "N m rad-1 m-1" : "N m-1 m-1",
                          "describing-function stiffness N(A)", [](const P& p) { return p.equivalent_stiffness; }));
-  std::vector<double> idx(lco.points.size());
-  for (std::size_t q = 0; q < idx.size(); ++q) idx[q] = static_cast<double>(q);
-  sink.axis("lco_prediction_point", idx, "1", "point of the describing-function curves");
+  // The branch number is an integer, stability a class (CF 1.10 §3.5 flags).
+  for (auto& f : layout) {
+    if (f.name == "lco_prediction/branch") f.integer = true;
+    if (f.name == "lco_prediction/stable") f.integer = true, f.flags = {{0, 1}, "unstable stable"};
+  }
+  std::vector<std::int32_t> idx(lco.points.size());
+  for (std::size_t q = 0; q < idx.size(); ++q) idx[q] = static_cast<std::int32_t>(q);
+  sink.integer_axis("lco_prediction_point", idx, "point of the describing-function curves");
   const P* first = lco.points.data();
   write_layout<P>(sink, layout, {"lco_prediction_point"}, lco.points.size(), lco.points,
                   [first](const P& p) { return static_cast<std::size_t>(&p - first); });

@@ -17,6 +17,7 @@
 
 #include <cstddef>
 #include <filesystem>
+#include <limits>
 #include <map>
 #include <numeric>
 #include <set>
@@ -151,6 +152,21 @@ class Document {
   void dataset(const std::string& path, const std::vector<std::string>& dims,
                std::span<const double> data, const std::string& units,
                const std::string& long_name) {
+    write_dataset(path, dims, data.size(), data.data(), false, units, long_name, {});
+  }
+
+  // An int64 table; kIntegerFill declared as _FillValue (the same type as
+  // the data, CF 1.10 §2.5.1), and for a class flag_values (int64, the
+  // data's type) and flag_meanings (CF 1.10 §3.5) and no units.
+  void integer_dataset(const std::string& path, const std::vector<std::string>& dims,
+                       std::span<const std::int64_t> data, const std::string& units,
+                       const std::string& long_name, const Flags& flags) {
+    write_dataset(path, dims, data.size(), data.data(), true, units, long_name, flags);
+  }
+
+  void write_dataset(const std::string& path, const std::vector<std::string>& dims,
+                     std::size_t values, const void* data, bool integer, const std::string& units,
+                     const std::string& long_name, const Flags& flags) {
     usable();
     bool valid = false;
     const auto parts = split_path(path, valid);
@@ -164,16 +180,16 @@ class Document {
       shape.push_back(a->second.length);
       count *= static_cast<std::size_t>(a->second.length);
     }
-    if (data.size() != count)
+    if (values != count)
       refuse(fmt::format("dataset '{}' has {} values but its axes ({}) hold {}", path,
-                         data.size(), fmt::join(dims, ", "), count));
+                         values, fmt::join(dims, ", "), count));
     const std::string name = join(parts, parts.size());
     const std::string group = join(parts, parts.size() - 1);
     for (const auto& d : dims) check_local_axis(d, group, name);
 
     run(fmt::format("writing dataset '{}'", name), [&] {
       if (existing_prefix(parts, name) == parts.size()) refuse(fmt::format("'{}' already exists", name));
-      room_for(data.size() * sizeof(double), fmt::format("dataset '{}'", name));
+      room_for(values * sizeof(double), fmt::format("dataset '{}'", name));
       // The group's own copy of each axis from elsewhere (local_axis; it
       // may create the group).
       std::vector<const H5::DataSet*> scales;
@@ -183,11 +199,18 @@ class Document {
       H5::DataSpace space = shape.empty()
                                 ? H5::DataSpace(H5S_SCALAR)
                                 : H5::DataSpace(static_cast<int>(shape.size()), shape.data());
-      H5::DataSet d = parent.createDataSet(parts.back(), H5::PredType::IEEE_F64LE, space,
-                                           array_properties(shape));
-      if (!data.empty()) d.write(data.data(), H5::PredType::NATIVE_DOUBLE);
-      write_text(d, "units", units);
+      H5::DSetCreatPropList properties = array_properties(shape);
+      if (integer) properties.setFillValue(H5::PredType::NATIVE_INT64, &kIntegerFill);
+      H5::DataSet d = parent.createDataSet(
+          parts.back(), integer ? H5::PredType::STD_I64LE : H5::PredType::IEEE_F64LE, space, properties);
+      if (values > 0) d.write(data, integer ? H5::PredType::NATIVE_INT64 : H5::PredType::NATIVE_DOUBLE);
+      if (flags.values.empty()) write_text(d, "units", units);
       write_text(d, "long_name", long_name);
+      if (integer) write_int64(d, "_FillValue", kIntegerFill);
+      if (!flags.values.empty()) {
+        write_int64_array(d, "flag_values", flags.values);
+        write_text(d, "flag_meanings", flags.meanings);
+      }
       for (std::size_t k = 0; k < scales.size(); ++k)
         attach_scale(d, *scales[k], static_cast<unsigned>(k));
       close_now(d);
@@ -306,12 +329,8 @@ class Document {
     }
     bool valid = false;
     const auto parts = split_path(local, valid);
-    bool taken = true;  // every component exists (H5Lexists fails on a missing group)
-    for (std::size_t k = 0; k < parts.size() && taken; ++k) {
-      bool exists = false;
-      run("looking up '" + local + "'", [&] { exists = file_->nameExists(join(parts, k + 1)); });
-      taken = exists;
-    }
+    bool taken = false;  // refused here when a component on the way is a dataset
+    run("looking up '" + local + "'", [&] { taken = existing_prefix(parts, user) == parts.size(); });
     if (taken)
       refuse(fmt::format("dataset '{}' over axis '{}' needs its copy '{}', a name already taken",
                          user, axis, local));
@@ -468,6 +487,18 @@ void Hdf5Document::dataset(const std::string& path, const std::vector<std::strin
   file_->dataset(path, dims, data, units, long_name);
 }
 
+void Hdf5Document::integer_dataset(const std::string& path, const std::vector<std::string>& dims,
+                                   std::span<const std::int64_t> data, const std::string& units,
+                                   const std::string& long_name, const Flags& flags) {
+  file_->integer_dataset(path, dims, data, units, long_name, flags);
+}
+
+void Hdf5Document::nan_fill(const std::string& path) {
+  file_->attribute(path, "_FillValue", [&](const H5::H5Object& o) {
+    hdf5_detail::write_double(o, "_FillValue", std::numeric_limits<double>::quiet_NaN());
+  });
+}
+
 void Hdf5Document::text_attribute(const std::string& object, const std::string& name,
                                   const std::string& value) {
   file_->attribute(object, name,
@@ -531,6 +562,17 @@ std::vector<double> read_double_dataset(const std::string& path, const std::stri
                        "the tables aerosect wrote for that request");
     std::vector<double> v(static_cast<std::size_t>(n));
     if (n > 0) d.read(v.data(), H5::PredType::NATIVE_DOUBLE);
+    // An integer table's declared fill value (a cell without a value) reads
+    // as NaN, as in a double table.
+    if (d.getTypeClass() == H5T_INTEGER && d.attrExists("_FillValue")) {
+      std::int64_t fill = 0;
+      const H5::Attribute a = d.openAttribute("_FillValue");
+      if (a.getTypeClass() == H5T_INTEGER && a.getSpace().getSimpleExtentNpoints() == 1) {
+        a.read(H5::PredType::NATIVE_INT64, &fill);
+        for (double& x : v)
+          if (x == static_cast<double>(fill)) x = std::numeric_limits<double>::quiet_NaN();
+      }
+    }
     return v;
   } catch (const H5::Exception& e) {
     throw InputError({path, 0, 0}, "", "", "cannot read the HDF5 file (" + e.getDetailMsg() + ")",

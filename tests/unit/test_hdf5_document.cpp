@@ -176,16 +176,26 @@ TEST_CASE("HDF5 document: axes are dimension scales attached to every dimension"
   }
 
   // H5DS docs (H5DSis_attached, H5DSget_num_scales): dimension 0 of every
-  // (speed, mode) dataset is attached to /speed, dimension 1 to /mode, and
-  // to nothing else.
-  for (const std::string name : {"nominal/state_space/damping_ratio", "nominal/pk/frequency"}) {
+  // (speed, mode) dataset is attached to its group's speed axis, dimension
+  // 1 to its mode axis, and to nothing else. A group's datasets use the
+  // group's own copy of a root axis (same values, units and long_name), so
+  // that a netCDF-4 reader opening the group alone (xarray's
+  // open_dataset(group=...)) finds its coordinate variables there.
+  for (const std::string group : {"nominal/state_space", "nominal/pk"}) {
+    const std::string name = group == "nominal/pk" ? "nominal/pk/frequency" : "nominal/state_space/damping_ratio";
     INFO(name);
     H5::DataSet d = file.openDataSet(name);
+    H5::DataSet local_speed = file.openDataSet(group + "/speed");
+    H5::DataSet local_mode = file.openDataSet(group + "/mode");
+    REQUIRE(read_all(local_speed) == read_all(speed));
+    REQUIRE(text_attribute(local_speed, "units") == "m s-1");
+    REQUIRE(text_attribute(local_mode, "long_name") == "mode number");
     REQUIRE(H5DSis_scale(d.getId()) == 0);
-    REQUIRE(H5DSis_attached(d.getId(), speed.getId(), 0) > 0);
-    REQUIRE(H5DSis_attached(d.getId(), mode.getId(), 1) > 0);
-    REQUIRE(H5DSis_attached(d.getId(), mode.getId(), 0) == 0);
-    REQUIRE(H5DSis_attached(d.getId(), speed.getId(), 1) == 0);
+    REQUIRE(H5DSis_attached(d.getId(), local_speed.getId(), 0) > 0);
+    REQUIRE(H5DSis_attached(d.getId(), local_mode.getId(), 1) > 0);
+    REQUIRE(H5DSis_attached(d.getId(), local_mode.getId(), 0) == 0);
+    REQUIRE(H5DSis_attached(d.getId(), local_speed.getId(), 1) == 0);
+    REQUIRE(H5DSis_attached(d.getId(), speed.getId(), 0) == 0);
     REQUIRE(H5DSget_num_scales(d.getId(), 0) == 1);
     REQUIRE(H5DSget_num_scales(d.getId(), 1) == 1);
   }
@@ -298,9 +308,9 @@ TEST_CASE("HDF5 document: an attribute on a new path makes a group", "[hdf5_docu
   REQUIRE(file.childObjType("gap_open/state_space") == H5O_TYPE_GROUP);
   REQUIRE(numeric_attribute<std::int64_t>(file.openGroup("gap_open/state_space"),
                                           "divergence_found", H5::PredType::NATIVE_INT64) == 0);
-  // An empty text is stored as one NUL (netCDF-C writes "" that way).
+  // An empty text is an empty variable-length string.
   H5::Attribute note = file.openGroup("gap_open").openAttribute("note");
-  REQUIRE(note.getStrType().getSize() == 1);
+  REQUIRE(note.getStrType().isVariableStr());
   REQUIRE(text_attribute(file.openGroup("gap_open"), "note").empty());
 }
 
@@ -598,4 +608,52 @@ TEST_CASE("HDF5 document: netCDF-4 reads the layout", "[hdf5_document]") {
   REQUIRE(header.find("double damping_ratio(speed, mode) ;") != std::string::npos);
   REQUIRE(header.find("mode:mode_names = \"plunge,pitch,flap\" ;") != std::string::npos);
   REQUIRE(header.find(":flutter_found = 1LL ;") != std::string::npos);
+}
+
+TEST_CASE("HDF5 document: integer tables, flags and fill values", "[hdf5_document]") {
+  // CF 1.10 §2.5.1: _FillValue has the variable's type; §3.5 flags:
+  // flag_values of the variable's type, flag_meanings one word per value;
+  // a class holds codes, not a quantity (no units).
+  H5::Exception::dontPrint();
+  TempDir dir;
+  const std::string path = dir.file("flags.h5");
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  {
+    Hdf5Document doc(path);
+    doc.axis("speed", std::vector<double>{10, 20, 30}, "m s-1", "true airspeed");
+    doc.integer_dataset("response_class", {"speed"}, std::vector<std::int64_t>{0, 1, aerosect::kIntegerFill}, "1",
+                        "response class", {{0, 1}, "decayed periodic_lco"});
+    doc.integer_dataset("cycles", {"speed"}, std::vector<std::int64_t>{3, 4, 5}, "1", "cycles", {});
+    doc.dataset("frequency", {"speed"}, std::vector<double>{1.0, nan, 2.0}, "Hz", "frequency");
+    doc.nan_fill("frequency");
+    // A dataset in a group whose copy of the axis would clash is refused.
+    doc.dataset("g/speed", {}, std::vector<double>{1.0}, "m s-1", "a scalar named like the axis");
+    const OutputError e = output_error([&] { doc.dataset("g/lift", {"speed"}, std::vector<double>{1, 2, 3}, "N", "x"); });
+    REQUIRE(std::string(e.what()).find("needs its copy 'g/speed', a name already taken") != std::string::npos);
+    doc.commit();
+  }
+  H5::H5File file(path, H5F_ACC_RDONLY);
+  H5::DataSet cls = file.openDataSet("response_class");
+  REQUIRE(cls.getDataType() == H5::PredType::STD_I64LE);
+  REQUIRE_FALSE(cls.attrExists("units"));
+  REQUIRE(numeric_attribute<std::int64_t>(cls, "_FillValue", H5::PredType::NATIVE_INT64) == -1);
+  REQUIRE(cls.openAttribute("_FillValue").getDataType() == H5::PredType::STD_I64LE);
+  H5::Attribute values = cls.openAttribute("flag_values");
+  REQUIRE(values.getDataType() == H5::PredType::STD_I64LE);
+  std::array<std::int64_t, 2> codes{};
+  REQUIRE(values.getSpace().getSimpleExtentNpoints() == 2);
+  values.read(H5::PredType::NATIVE_INT64, codes.data());
+  REQUIRE(codes == std::array<std::int64_t, 2>{0, 1});
+  REQUIRE(text_attribute(cls, "flag_meanings") == "decayed periodic_lco");
+  H5::DataSet cycles = file.openDataSet("cycles");
+  REQUIRE(text_attribute(cycles, "units") == "1");
+  REQUIRE_FALSE(cycles.attrExists("flag_values"));
+  H5::DataSet frequency = file.openDataSet("frequency");
+  REQUIRE(frequency.openAttribute("_FillValue").getDataType() == H5::PredType::IEEE_F64LE);
+  REQUIRE(std::isnan(numeric_attribute<double>(frequency, "_FillValue", H5::PredType::NATIVE_DOUBLE)));
+  // Read back as doubles, the integer fill value is NaN.
+  const auto back = aerosect::read_double_dataset(path, "response_class", 3);
+  REQUIRE(back[0] == 0.0);
+  REQUIRE(back[1] == 1.0);
+  REQUIRE(std::isnan(back[2]));
 }

@@ -438,7 +438,7 @@ TEST_CASE("HDF5 writer: unwritable places throw OutputError", "[hdf5_writer]") {
       REQUIRE(what.find("Not a directory") != std::string::npos);
     }
     // After a failed begin(), an incomplete finish() has nothing to do.
-    REQUIRE_NOTHROW(w.finish({false, "failed", 0, {}}));
+    REQUIRE_NOTHROW(w.finish({false, "failed", 0, {}, {}}));
     REQUIRE(w.final_path().empty());
   }
 

@@ -57,6 +57,14 @@ class Hdf5Document : public TableSink {
                std::span<const double> data, const std::string& units,
                const std::string& long_name) override;
 
+  // An int64 dataset whose fill value kIntegerFill is declared (_FillValue);
+  // a class (flags given) has flag_values and flag_meanings and no units.
+  void integer_dataset(const std::string& path, const std::vector<std::string>& dims,
+                       std::span<const std::int64_t> data, const std::string& units,
+                       const std::string& long_name, const Flags& flags) override;
+  // _FillValue = NaN on the double dataset at `path`.
+  void nan_fill(const std::string& path) override;
+
   // Attributes on the root ("" or "/"), a group or a dataset (created as a
   // group when nothing is at that path yet). A number's units go into the
   // text attribute NAME_units beside it ("1" for an integer: counts, flags
@@ -85,7 +93,8 @@ class Hdf5Document : public TableSink {
 std::string read_text_attribute(const std::string& path, const std::string& name);
 // A double dataset, flattened row-major; InputError when missing, or when it
 // holds other than `expected` values (checked before anything is read: a
-// file never decides how much is allocated).
+// file never decides how much is allocated). An integer dataset reads as
+// doubles, its declared _FillValue as NaN.
 std::vector<double> read_double_dataset(const std::string& path, const std::string& name,
                                         std::size_t expected);
 

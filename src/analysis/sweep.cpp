@@ -933,6 +933,7 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
   const std::vector<std::int32_t> dirs = {0, 1};
   doc.integer_axis("direction", dirs, "sweep direction: 0 up (ascending), 1 down");
   doc.text_attribute("direction", "names", "up,down");
+  doc.axis_flags("direction", {{0, 1}, "up down"});
   // Each swept axis is named after its key and has the key's units.
   std::vector<std::string> dims = {"direction"};
   for (std::size_t a = 0; a < o.axes.size() && a < 2; ++a) {

@@ -499,6 +499,19 @@ void Hdf5Document::nan_fill(const std::string& path) {
   });
 }
 
+void Hdf5Document::axis_flags(const std::string& name, const Flags& flags) {
+  std::vector<std::int32_t> values;
+  for (const std::int64_t v : flags.values) values.push_back(static_cast<std::int32_t>(v));
+  file_->attribute(name, "flag_values", [&](const H5::H5Object& o) {
+    const auto* axis = dynamic_cast<const H5::DataSet*>(&o);
+    if (axis == nullptr || axis->getTypeClass() != H5T_INTEGER)
+      throw OutputError(path_, fmt::format("'{}' is not an integer axis: no flags", name));
+    if (axis->attrExists("units")) axis->removeAttr("units");
+    hdf5_detail::write_int32_array(o, "flag_values", values);
+  });
+  text_attribute(name, "flag_meanings", flags.meanings);
+}
+
 void Hdf5Document::text_attribute(const std::string& object, const std::string& name,
                                   const std::string& value) {
   file_->attribute(object, name,

@@ -125,6 +125,13 @@ void write_int64(const H5::H5Object& object, const std::string& name, std::int64
   attribute.write(H5::PredType::NATIVE_INT64, &value);
 }
 
+void write_int32_array(const H5::H5Object& object, const std::string& name,
+                       const std::vector<std::int32_t>& values) {
+  const hsize_t n = values.size();
+  H5::Attribute attribute = object.createAttribute(name, H5::PredType::STD_I32LE, H5::DataSpace(1, &n));
+  attribute.write(H5::PredType::NATIVE_INT32, values.data());
+}
+
 void write_int64_array(const H5::H5Object& object, const std::string& name,
                        const std::vector<std::int64_t>& values) {
   const hsize_t n = values.size();

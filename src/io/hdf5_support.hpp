@@ -54,7 +54,9 @@ void write_text(const H5::H5Object& object, const std::string& name, const std::
 void write_double(const H5::H5Object& object, const std::string& name, double value);  // F64LE
 void write_int32(const H5::H5Object& object, const std::string& name, std::int32_t value);
 void write_int64(const H5::H5Object& object, const std::string& name, std::int64_t value);
-// A 1-D int64 attribute (CF flag_values of an int64 variable).
+// 1-D integer attributes (CF flag_values of an int32 or int64 variable).
+void write_int32_array(const H5::H5Object& object, const std::string& name,
+                       const std::vector<std::int32_t>& values);
 void write_int64_array(const H5::H5Object& object, const std::string& name,
                        const std::vector<std::int64_t>& values);
 // The attribute that holds the units of numeric attribute `name`: an

@@ -626,6 +626,10 @@ TEST_CASE("HDF5 document: integer tables, flags and fill values", "[hdf5_documen
     doc.integer_dataset("cycles", {"speed"}, std::vector<std::int64_t>{3, 4, 5}, "1", "cycles", {});
     doc.dataset("frequency", {"speed"}, std::vector<double>{1.0, nan, 2.0}, "Hz", "frequency");
     doc.nan_fill("frequency");
+    doc.integer_axis("direction", std::vector<std::int32_t>{0, 1}, "sweep direction");
+    doc.axis_flags("direction", {{0, 1}, "up down"});
+    const OutputError not_integer = output_error([&] { doc.axis_flags("speed", {{0}, "slow"}); });
+    REQUIRE(std::string(not_integer.what()).find("'speed' is not an integer axis") != std::string::npos);
     // A dataset in a group whose copy of the axis would clash is refused.
     doc.dataset("g/speed", {}, std::vector<double>{1.0}, "m s-1", "a scalar named like the axis");
     const OutputError e = output_error([&] { doc.dataset("g/lift", {"speed"}, std::vector<double>{1, 2, 3}, "N", "x"); });
@@ -645,6 +649,11 @@ TEST_CASE("HDF5 document: integer tables, flags and fill values", "[hdf5_documen
   values.read(H5::PredType::NATIVE_INT64, codes.data());
   REQUIRE(codes == std::array<std::int64_t, 2>{0, 1});
   REQUIRE(text_attribute(cls, "flag_meanings") == "decayed periodic_lco");
+  // An integer axis made a class: flag_values in its own type (int32).
+  H5::DataSet direction = file.openDataSet("direction");
+  REQUIRE_FALSE(direction.attrExists("units"));
+  REQUIRE(direction.openAttribute("flag_values").getDataType() == H5::PredType::STD_I32LE);
+  REQUIRE(text_attribute(direction, "flag_meanings") == "up down");
   H5::DataSet cycles = file.openDataSet("cycles");
   REQUIRE(text_attribute(cycles, "units") == "1");
   REQUIRE_FALSE(cycles.attrExists("flag_values"));

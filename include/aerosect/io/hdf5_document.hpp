@@ -64,6 +64,9 @@ class Hdf5Document : public TableSink {
                        const std::string& long_name, const Flags& flags) override;
   // _FillValue = NaN on the double dataset at `path`.
   void nan_fill(const std::string& path) override;
+  // flag_values (int32, the axis's type) and flag_meanings on an integer
+  // axis, whose units are removed.
+  void axis_flags(const std::string& name, const Flags& flags) override;
 
   // Attributes on the root ("" or "/"), a group or a dataset (created as a
   // group when nothing is at that path yet). A number's units go into the

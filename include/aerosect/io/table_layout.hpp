@@ -63,6 +63,9 @@ class TableSink {
   // Declares NaN the _FillValue of the double dataset at `path` (cells
   // without a value: a point not run, a run not periodic).
   virtual void nan_fill(const std::string& path) = 0;
+  // Makes the integer axis `name` a class (CF 1.10 §3.5): flag_values in
+  // its own type and flag_meanings, and no units.
+  virtual void axis_flags(const std::string& name, const Flags& flags) = 0;
   virtual void text_attribute(const std::string& object, const std::string& name, const std::string& value) = 0;
   // A number with its UDUNITS units (NAME_units beside NAME); an integer
   // (a count, flag or index) is dimensionless, units "1".
@@ -107,6 +110,10 @@ class MemoryTables : public TableSink {
     if (!flags.values.empty()) text[path + "@flag_meanings"] = flags.meanings;
   }
   void nan_fill(const std::string& path) override { text[path + "@_FillValue"] = "NaN"; }
+  void axis_flags(const std::string& name, const Flags& flags) override {
+    text[name + "@flag_meanings"] = flags.meanings;
+    tables[name].units.clear();
+  }
   void text_attribute(const std::string& object, const std::string& name, const std::string& value) override {
     text[object + "@" + name] = value;
   }

@@ -5,11 +5,12 @@
 // merge of shard files, provenance strings). A writer writes through a
 // TableSink it is handed (Hdf5Document in files, MemoryTables in tests).
 //
-// Records sit on a grid of cells (e.g. direction x value_1 x value_2 of a
+// Records sit on a grid of cells (e.g. direction x the swept keys of a
 // sweep): a field of width W is a dataset over the grid's dimensions plus,
 // when W > 1, one more dimension `axis` of length W (harmonics, samples of a
 // cycle); row-major, the last dimension fastest. Cells without a record, and
-// records for which the field is absent (`present` false), hold NaN.
+// records for which the field is absent (`present` false), hold the fill
+// value the dataset declares: NaN, or kIntegerFill in an integer field.
 
 #include <cmath>
 #include <cstddef>

@@ -53,6 +53,11 @@ class Hdf5Document : public TableSink {
 
   // A double dataset at `path` ("group/sub/name"; groups created as needed)
   // over the named axes; data.size() must equal the product of their lengths.
+  // In a group, an axis defined elsewhere is replaced by the group's own
+  // copy of it ("group/sub/speed": values, units, long_name and a comment),
+  // made on first use, so that a netCDF-4 reader opening the group alone
+  // (xarray's open_dataset(path, group=...)) finds its coordinates; a name
+  // that copy needs being taken by another object is refused.
   void dataset(const std::string& path, const std::vector<std::string>& dims,
                std::span<const double> data, const std::string& units,
                const std::string& long_name) override;

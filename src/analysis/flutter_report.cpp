@@ -588,6 +588,8 @@ const Layout<Root>& flutter_root_layout() {
     l.push_back(field("aerodynamic_lag", "1",
                       "1 where the tracked root is an aerodynamic lag root, not a structural one",
                       [](const Root& r) { return r.aerodynamic_lag ? 1.0 : 0.0; }));
+    l.back().integer = true;  // a class (CF 1.10 §3.5 flags)
+    l.back().flags = {{0, 1}, "structural aerodynamic_lag"};
     return l;
   }();
   return layout;

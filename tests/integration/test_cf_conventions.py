@@ -50,7 +50,8 @@ DIMENSION_SCALE_ATTRIBUTES = {"CLASS", "NAME", "REFERENCE_LIST", "DIMENSION_LIST
 CF_NUMERIC_VARIABLE_ATTRIBUTES = {"_FillValue", "missing_value", "valid_min", "valid_max",
                                   "valid_range", "flag_values", "flag_masks"}
 # Class variables: integer codes, each code named (CF 1.10 §3.5).
-CLASS_VARIABLES = {"response_class", "decay_reason", "refined", "stable", "bifurcation_kind"}
+CLASS_VARIABLES = {"response_class", "decay_reason", "refined", "stable", "bifurcation_kind",
+                   "aerodynamic_lag", "direction"}
 # Counters, as attributes or tables: integers (issue #17).
 COUNTERS = {"samples", "steps", "rhs_evaluations", "switches", "points", "bifurcations",
             "cycle_samples", "complete", "cycles"}

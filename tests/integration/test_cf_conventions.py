@@ -349,3 +349,82 @@ def test_netcdf4_and_ncdump_read_every_group(files, kind):
                 if "_FillValue" in v.ncattrs() and v.dtype.kind == "i":
                     fill = v.getncattr("_FillValue")
                     assert not np.any(np.ma.getdata(data)[~np.ma.getmaskarray(data)] == fill), v.name
+
+
+# --- The checks catch what they are for --------------------------------------
+# Each rule above run on a copy of a good file changed back to a form an
+# earlier aerosect wrote (or to the fault the rule names) must fail.
+
+def _set_fixed_length_title(f):
+    f.attrs["title"] = np.bytes_(b"fixed-length text")  # h5py writes bytes_ fixed-length
+
+
+def _time_coordinate_without_epoch(f):
+    f["time"].attrs["standard_name"] = "time"
+
+
+def _float_class(f):
+    attrs = {k: v for k, v in f["response_class"].attrs.items() if k in ("units", "long_name")}
+    values = np.asarray(f["response_class"][()], dtype=float)
+    dims = [f["response_class"].dims[k][0] for k in range(values.ndim)]
+    del f["response_class"]
+    d = f.create_dataset("response_class", data=values)
+    d.attrs.update(attrs)
+    for k, scale in enumerate(dims):
+        d.dims[k].attach_scale(scale)
+
+
+def _float_counter(f):
+    f.attrs["steps"] = float(f.attrs["steps"])
+
+
+def _number_without_units(f):
+    del f.attrs["end_time_units"]
+
+
+def _group_without_coordinates(f):
+    g = f.create_group("extra")
+    d = g.create_dataset("x", data=np.zeros(f["speed"].shape))
+    d.attrs["units"], d.attrs["long_name"] = "1", "x"
+    d.dims[0].attach_scale(f["speed"])
+
+
+def _table_without_fill(f):
+    del f["spread"].attrs["_FillValue"]
+
+
+def _scalar_named_like_a_dimension(f):
+    d = f["critical_history_1"].create_dataset("gradient", data=1.0)
+    d.attrs["units"], d.attrs["long_name"] = "m", "H"
+
+
+def _old_axis_name(f):
+    f.move("flow_airspeed", "value_1")
+
+
+def _flags_of_another_type(f):
+    f["response_class"].attrs["flag_values"] = np.arange(6, dtype=np.int32)
+
+
+@pytest.mark.parametrize("kind, change, rule", [
+    ("simulate", _set_fixed_length_title, test_string_attributes_read_as_str),
+    ("simulate", _time_coordinate_without_epoch, test_time_axis_is_elapsed_time),
+    ("sweep", _float_class, test_flags),
+    ("sweep", _flags_of_another_type, test_flags),
+    ("simulate", _float_counter, test_counters_are_integers),
+    ("simulate", _number_without_units, test_numeric_attributes_have_units),
+    ("flutter", _group_without_coordinates, test_every_group_opens_in_xarray_with_its_axes),
+    ("sweep", _table_without_fill, test_fill_values),
+    ("gust", _scalar_named_like_a_dimension, test_coordinate_variables),
+    ("sweep", _old_axis_name, test_sweep_axes_named_after_the_key),
+])
+def test_each_rule_catches_its_fault(files, tmp_path, kind, change, rule):
+    bad = str(tmp_path / "bad.h5")
+    shutil.copyfile(files[kind], bad)
+    with h5py.File(bad, "r+") as f:
+        change(f)
+    extra = {test_every_group_opens_in_xarray_with_its_axes: ("netcdf4",),
+             test_sweep_axes_named_after_the_key: (["flow.airspeed"],)}
+    args = ({"bad": bad}, "bad") + extra.get(rule, ())
+    with pytest.raises(AssertionError):
+        rule(*args)

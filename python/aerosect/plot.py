@@ -97,8 +97,32 @@ class PlotError(Exception):
     """A file this tool cannot plot; the message is shown as is."""
 
 
+def read_float(dataset):
+    """A dataset as floats; an integer table's declared _FillValue (a cell
+    without a value: a point not run) as NaN, as in a double table."""
+    values = np.asarray(dataset[()], dtype=float)
+    fill = dataset.attrs.get("_FillValue")
+    if fill is not None and dataset.dtype.kind in "iu":
+        values[values == float(np.asarray(fill).ravel()[0])] = np.nan
+    return values
+
+
+def sweep_axes(f):
+    """The swept axes of a sweep file in order (datasets, each named after
+    its key with the key in its `key` attribute): the dimension scales of
+    response_class after `direction`."""
+    if "response_class" not in f:
+        raise PlotError("sweep file without 'response_class'")
+    table = f["response_class"]
+    axes = [table.dims[k][0] for k in range(1, table.ndim) if len(table.dims[k])]
+    if not axes or len(axes) != table.ndim - 1:
+        raise PlotError("sweep file whose 'response_class' has no swept axis attached")
+    return axes
+
+
 def text_attribute(obj, name, default=None):
-    """A string attribute as str (h5py gives fixed-length strings as bytes)."""
+    """A string attribute as str (older files hold fixed-length strings,
+    which h5py gives as bytes)."""
     if name not in obj.attrs:
         return default
     value = obj.attrs[name]
@@ -646,7 +670,7 @@ CLASS_STYLE = {  # response_class code -> (label, colour)
 DECAYED, DIVERGENT, FAILED = 0, 3, 4
 
 # Swept case keys -> the quantity's name on an axis; the units are the
-# file's own (the `units` of the value_1 axis, from the case-file
+# file's own (the `units` of the first swept axis, from the case-file
 # reference); keys not listed are shown as they are.
 KEY_NAMES = {
     "flow.airspeed": "true airspeed",
@@ -667,20 +691,18 @@ def key_label(key, units=""):
 def sweep_tables(f):
     """(key, key units, values, watched, amplitude [dir, n1(, n2)] in display units,
     class table, display unit, factor) of a sweep file."""
-    for name in ("value_1", "response_class"):
-        if name not in f:
-            raise PlotError(f"sweep file without '{name}'")
-    key = text_attribute(f["value_1"], "key", "value")
-    key_units = text_attribute(f["value_1"], "units", "")
-    values = np.asarray(f["value_1"][()], dtype=float)
+    axis = sweep_axes(f)[0]
+    key = text_attribute(axis, "key", "value")
+    key_units = text_attribute(axis, "units", "")
+    values = np.asarray(axis[()], dtype=float)
     watched = text_attribute(f, "watched_dof", "pitch")
     if f"{watched}_amplitude" not in f:
         raise PlotError(f"sweep file without '{watched}_amplitude' (watched_dof = {watched})")
     amplitude = np.asarray(f[f"{watched}_amplitude"][()], dtype=float)
-    classes = np.asarray(f["response_class"][()], dtype=float)
+    classes = read_float(f["response_class"])
     if amplitude.shape != classes.shape or amplitude.shape[:2] != (2, values.size):
         raise PlotError(f"'{watched}_amplitude' is {amplitude.shape} and 'response_class' "
-                        f"{classes.shape}, not (direction, value_1[, value_2]) = (2, {values.size}...)")
+                        f"{classes.shape}, not (direction, {key}[, second key]) = (2, {values.size}...)")
     factor, unit = (1000.0, "mm") if watched == "plunge" else (180.0 / math.pi, "deg")
     return key, key_units, values, watched, amplitude * factor, classes, unit, factor
 
@@ -810,10 +832,12 @@ def plot_sweep(f, stem, outdir):
                             "describing function, unstable"))
         note = None
     else:
-        key_2 = text_attribute(f["value_2"], "key", "value 2") if "value_2" in f else "value 2"
-        units_2 = text_attribute(f["value_2"], "units", "") if "value_2" in f else ""
+        axes = sweep_axes(f)
+        second = axes[1] if len(axes) > 1 else None
+        key_2 = text_attribute(second, "key", "value 2") if second is not None else "value 2"
+        units_2 = text_attribute(second, "units", "") if second is not None else ""
         units_2 = "" if units_2 in ("", "1") else " " + units_2
-        values_2 = (np.asarray(f["value_2"][()], dtype=float) if "value_2" in f
+        values_2 = (np.asarray(second[()], dtype=float) if second is not None
                     else np.arange(amplitude.shape[2], dtype=float))
         n2 = amplitude.shape[2]
         picked = sorted(set(np.linspace(0, n2 - 1, min(n2, 6)).round().astype(int)))

@@ -35,13 +35,15 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b, 
   if (!sweep_file.empty()) meta.text_attributes.push_back({"overlay_sweep_file", sweep_file});
   doc.metadata(meta);
   // The envelope, for the figure's V_D and 1.15 V_D marks (as in a flutter file).
-  doc.number_attribute("", "density", c.model.flow.density);
+  doc.number_attribute("", "density", c.model.flow.density, "kg m-3");
   if (c.dive_speed_eas) {
-    doc.number_attribute("", "dive_speed_eas", *c.dive_speed_eas);
-    doc.number_attribute("", "clearance_speed_tas", 1.15 * true_airspeed(*c.dive_speed_eas, c.model.flow.density));
+    doc.number_attribute("", "dive_speed_eas", *c.dive_speed_eas, "m s-1");
+    doc.number_attribute("", "clearance_speed_tas", 1.15 * true_airspeed(*c.dive_speed_eas, c.model.flow.density),
+                         "m s-1");
   }
   doc.integer_attribute("", "complete", complete(b) ? 1 : 0);
-  if (b.hopf_parameter) doc.number_attribute("", "hopf_parameter", *b.hopf_parameter);
+  const std::string key_units = case_key_units(b.key).empty() ? "1" : case_key_units(b.key);
+  if (b.hopf_parameter) doc.number_attribute("", "hopf_parameter", *b.hopf_parameter, key_units);
   const std::size_t N = b.points.size();
   doc.integer_attribute("", "points", static_cast<std::int64_t>(N));
   if (N > 0) {
@@ -54,25 +56,37 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b, 
       for (std::size_t i = 0; i < N; ++i) v[i] = f(b.points[i]);
       doc.dataset(name, {"point"}, v, units, ln);
     };
-    const std::string key_units = case_key_units(b.key).empty() ? "1" : case_key_units(b.key);
     table("parameter", [](const BranchPoint& p) { return p.parameter; }, key_units,
           "value of the continuation key " + b.key + " (case-file units)");
     table("airspeed", [](const BranchPoint& p) { return p.airspeed; }, "m s-1", "true airspeed");
     table("arclength", [](const BranchPoint& p) { return p.arclength; }, "1", "scaled arclength from the first point");
     table("period", [](const BranchPoint& p) { return p.orbit.period; }, "s", "orbit period (the full period)");
     table("frequency", [](const BranchPoint& p) { return p.orbit.frequency(); }, "Hz", "orbit frequency, 1/period");
-    table("stable", [](const BranchPoint& p) { return p.orbit.stable ? 1.0 : 0.0; }, "1",
-          "1: every nontrivial Floquet multiplier inside the unit circle, 0: unstable");
+    {
+      // A class (CF 1.10 §3.5 flags); every point has one, so the fill value is unused.
+      std::vector<std::int64_t> stable(N);
+      for (std::size_t i = 0; i < N; ++i) stable[i] = b.points[i].orbit.stable ? 1 : 0;
+      doc.integer_dataset("stable", {"point"}, stable, "1",
+                          "1: every nontrivial Floquet multiplier inside the unit circle, 0: unstable",
+                          {{0, 1}, "unstable stable"});
+    }
     table("largest_multiplier_modulus", [](const BranchPoint& p) { return p.orbit.largest_nontrivial; }, "1",
           "largest modulus of the nontrivial Floquet multipliers");
     table("residual", [](const BranchPoint& p) { return p.orbit.residual; }, "1",
           "scaled Newton residual of the shooting equations");
     table("trivial_multiplier_error", [](const BranchPoint& p) { return p.orbit.trivial_multiplier_error; }, "1",
           "distance of the multiplier nearest 1 from 1 (accuracy of the monodromy matrix)");
-    table("switches_per_period", [](const BranchPoint& p) { return static_cast<double>(p.orbit.switches); }, "1",
-          "spring breakpoints crossed per period");
-    table("peaks_per_period", [](const BranchPoint& p) { return static_cast<double>(p.orbit.peaks_per_period); }, "1",
-          "maxima of the watched DOF per period (2: period-2 orbit)");
+    {
+      // Counts: integers.
+      std::vector<std::int64_t> switches(N), peaks(N);
+      for (std::size_t i = 0; i < N; ++i) {
+        switches[i] = b.points[i].orbit.switches;
+        peaks[i] = b.points[i].orbit.peaks_per_period;
+      }
+      doc.integer_dataset("switches_per_period", {"point"}, switches, "1", "spring breakpoints crossed per period", {});
+      doc.integer_dataset("peaks_per_period", {"point"}, peaks, "1",
+                          "maxima of the watched DOF per period (2: period-2 orbit)", {});
+    }
     table("grazing_margin", [](const BranchPoint& p) {
             return std::isfinite(p.orbit.grazing_margin) ? p.orbit.grazing_margin
                                                           : std::numeric_limits<double>::quiet_NaN();
@@ -143,16 +157,23 @@ void write_branch_file(const std::string& path, const Case& c, const Branch& b, 
       for (std::size_t k = 0; k < B; ++k) v[k] = f(b.bifurcations[k]);
       doc.dataset(name, {"bifurcation"}, v, units, ln);
     };
-    table("bifurcation_kind", [](const Bifurcation& f) { return static_cast<double>(f.kind); }, "1",
-          "1 fold, 2 period doubling, 3 torus (Neimark-Sacker), 4 branch point, 5 grazing (branch end)");
-    const std::string key_units = case_key_units(b.key).empty() ? "1" : case_key_units(b.key);
+    {
+      std::vector<std::int64_t> kind(B), after(B);
+      for (std::size_t k = 0; k < B; ++k) {
+        kind[k] = static_cast<std::int64_t>(b.bifurcations[k].kind);
+        after[k] = static_cast<std::int64_t>(b.bifurcations[k].after);
+      }
+      doc.integer_dataset("bifurcation_kind", {"bifurcation"}, kind, "1",
+                          "1 fold, 2 period doubling, 3 torus (Neimark-Sacker), 4 branch point, 5 grazing (branch end)",
+                          {{1, 2, 3, 4, 5}, "fold period_doubling torus branch_point grazing"});
+      doc.integer_dataset("bifurcation_after_point", {"bifurcation"}, after, "1",
+                          "located between this point and the next", {});
+    }
     table("bifurcation_parameter", [](const Bifurcation& f) { return f.parameter; }, key_units,
           "located value of the continuation key");
     table("bifurcation_amplitude", [](const Bifurcation& f) { return f.amplitude; },
           dof_units(b.watched_dof), "watched DOF amplitude there (interpolated)");
     table("bifurcation_period", [](const Bifurcation& f) { return f.period; }, "s", "period there (interpolated)");
-    table("bifurcation_after_point", [](const Bifurcation& f) { return static_cast<double>(f.after); }, "1",
-          "located between this point and the next");
   }
   doc.commit();
 }

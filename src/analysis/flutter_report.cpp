@@ -448,13 +448,13 @@ void write_flutter_file(const std::string& path, const Case& c, const FlutterRep
 void write_flutter_tables(TableSink& doc, const Case& c, const FlutterReport& r) {
   RunMetadata meta = case_metadata(c, "flutter");
   doc.metadata(meta);
-  doc.number_attribute("", "reference_speed", r.reference_speed);
-  doc.number_attribute("", "reference_frequency", r.reference_frequency);
-  doc.number_attribute("", "density", r.density);
+  doc.number_attribute("", "reference_speed", r.reference_speed, "m s-1");
+  doc.number_attribute("", "reference_frequency", r.reference_frequency, "rad s-1");
+  doc.number_attribute("", "density", r.density, "kg m-3");
   if (r.dive_speed_eas) {
-    doc.number_attribute("", "dive_speed_eas", *r.dive_speed_eas);
-    doc.number_attribute("", "clearance_speed_tas",
-                         1.15 * true_airspeed(*r.dive_speed_eas, r.density));
+    doc.number_attribute("", "dive_speed_eas", *r.dive_speed_eas, "m s-1");
+    doc.number_attribute("", "clearance_speed_tas", 1.15 * true_airspeed(*r.dive_speed_eas, r.density),
+                         "m s-1");
   }
   if (!r.observed_lco.ranges.empty()) {
     // Where stable LCOs were found (the study): ranges over their own axis.
@@ -490,7 +490,8 @@ void write_flutter_tables(TableSink& doc, const Case& c, const FlutterReport& r)
   for (const auto& lr : r.results) {
     const std::string lg = group_name(lr.linearisation);
     for (int k = 0; k < lr.stiffness.size(); ++k)
-      doc.number_attribute(lg, std::string("stiffness_") + kDofNames[k], lr.stiffness(k));
+      doc.number_attribute(lg, std::string("stiffness_") + kDofNames[k], lr.stiffness(k),
+                           k == kPlunge ? "N m-1 m-1" : "N m rad-1 m-1");
     {
       std::string lnames;
       for (std::size_t i = 0; i < lr.mode_names.size(); ++i) lnames += (i ? "," : "") + lr.mode_names[i];
@@ -510,7 +511,7 @@ void write_flutter_tables(TableSink& doc, const Case& c, const FlutterReport& r)
         if (a.integer)
           doc.integer_attribute(g, a.name, static_cast<std::int64_t>(a.get(m)));
         else
-          doc.number_attribute(g, a.name, a.get(m));
+          doc.number_attribute(g, a.name, a.get(m), a.units);
       }
     }
   }
@@ -543,9 +544,14 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
                          [](const P& p) { return p.stable ? 1.0 : 0.0; }));
   layout.push_back(field("equivalent_stiffness", angle ? "N m rad-1 m-1" : "N m-1 m-1",
                          "describing-function stiffness N(A)", [](const P& p) { return p.equivalent_stiffness; }));
-  std::vector<double> idx(lco.points.size());
-  for (std::size_t q = 0; q < idx.size(); ++q) idx[q] = static_cast<double>(q);
-  sink.axis("lco_prediction_point", idx, "1", "point of the describing-function curves");
+  // The branch number is an integer, stability a class (CF 1.10 §3.5 flags).
+  for (auto& f : layout) {
+    if (f.name == "lco_prediction/branch") f.integer = true;
+    if (f.name == "lco_prediction/stable") f.integer = true, f.flags = {{0, 1}, "unstable stable"};
+  }
+  std::vector<std::int32_t> idx(lco.points.size());
+  for (std::size_t q = 0; q < idx.size(); ++q) idx[q] = static_cast<std::int32_t>(q);
+  sink.integer_axis("lco_prediction_point", idx, "point of the describing-function curves");
   const P* first = lco.points.data();
   write_layout<P>(sink, layout, {"lco_prediction_point"}, lco.points.size(), lco.points,
                   [first](const P& p) { return static_cast<std::size_t>(&p - first); });
@@ -559,7 +565,7 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
   }
   sink.text_attribute("lco_prediction", "branch_start", start);
   sink.text_attribute("lco_prediction", "branch_end", end);
-  sink.number_attribute("lco_prediction", "amplitude_limit", lco.amplitude_limit);
+  sink.number_attribute("lco_prediction", "amplitude_limit", lco.amplitude_limit, angle ? "rad" : "m");
 }
 
 std::string flutter_method_group(const std::string& method) { return method == "p-k" ? "pk" : "state_space"; }
@@ -582,6 +588,8 @@ const Layout<Root>& flutter_root_layout() {
     l.push_back(field("aerodynamic_lag", "1",
                       "1 where the tracked root is an aerodynamic lag root, not a structural one",
                       [](const Root& r) { return r.aerodynamic_lag ? 1.0 : 0.0; }));
+    l.back().integer = true;  // a class (CF 1.10 §3.5 flags)
+    l.back().flags = {{0, 1}, "structural aerodynamic_lag"};
     return l;
   }();
   return layout;

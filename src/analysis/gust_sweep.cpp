@@ -269,14 +269,18 @@ void write_gust_sweep_tables(TableSink& doc, const Case& c, const GustSweep& s) 
                                {"gradient"}, s.points.size(), s.points,
                                [first](const GustSweepPoint& p) { return static_cast<std::size_t>(&p - first); });
   for (const auto& cr : s.critical) {
-    doc.number_attribute("peaks", "critical_gradient_" + cr.channel, cr.gradient);
-    doc.number_attribute("peaks", "critical_value_" + cr.channel, cr.value);
+    doc.number_attribute("peaks", "critical_gradient_" + cr.channel, cr.gradient, "m");
+    doc.number_attribute("peaks", "critical_value_" + cr.channel, cr.value, cr.units);
   }
   for (std::size_t k = 0; k < s.histories.size(); ++k) {
     const GustSweep::History& h = s.histories[k];
     const std::string g = fmt::format("critical_history_{}", k + 1);
-    doc.axis(g + "/time", h.record.time(), "s", "time since release");
-    doc.dataset(g + "/gradient", {}, std::vector<double>{h.gradient}, "m", "gust gradient distance H of this run");
+    doc.axis(g + "/time", h.record.time(), "s", "elapsed time since release");
+    doc.text_attribute(g + "/time", "comment", "elapsed time since the start of the run, not a calendar time");
+    // Not "gradient": a variable named like the root's dimension `gradient`
+    // would read as its coordinate variable (netCDF User Guide, coordinate
+    // variables), and this one is a scalar.
+    doc.dataset(g + "/gust_gradient", {}, std::vector<double>{h.gradient}, "m", "gust gradient distance H of this run");
     doc.dataset(g + "/design_velocity", {}, std::vector<double>{h.design_velocity}, "m s-1",
                 "peak velocity of the first one-minus-cosine gust (true airspeed)");
     std::string of;

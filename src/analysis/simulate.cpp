@@ -243,7 +243,7 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   int width = 0;
   for (const auto& ch : channels) width += ch.width;
 
-  const Channel time_channel{"time", "s", "time since release", 1, {}, ""};
+  const Channel time_channel{"time", "s", "elapsed time since release", 1, {}, ""};
   RunMetadata meta = case_metadata(c, "simulation");
   meta.expected_rows = expected_samples(set);
   sink.begin(time_channel, channels, meta);
@@ -411,10 +411,10 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
       e.rms = run.samples > 0 ? std::sqrt(e.rms / static_cast<double>(run.samples)) : 0.0;
     for (const auto& e : summary.extremes)
       if (std::isfinite(e.max) && std::isfinite(e.min)) {
-        outcome.numbers.push_back({e.channel + "_max", e.max});
-        outcome.numbers.push_back({e.channel + "_time_of_max", e.time_of_max});
-        outcome.numbers.push_back({e.channel + "_min", e.min});
-        outcome.numbers.push_back({e.channel + "_time_of_min", e.time_of_min});
+        outcome.numbers.push_back({e.channel + "_max", e.max, e.units});
+        outcome.numbers.push_back({e.channel + "_time_of_max", e.time_of_max, "s"});
+        outcome.numbers.push_back({e.channel + "_min", e.min, e.units});
+        outcome.numbers.push_back({e.channel + "_time_of_min", e.time_of_min, "s"});
       }
     summary.end_time = run.time;
     summary.end_tau = U_over_b * run.time;
@@ -425,11 +425,10 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     outcome.completed = summary.completed;
     outcome.status = summary.status;
     outcome.samples = run.samples;
-    outcome.numbers.insert(outcome.numbers.begin(),
-                           {{"end_time", summary.end_time},
-                            {"steps", static_cast<double>(run.steps)},
-                            {"rhs_evaluations", static_cast<double>(run.rhs_evaluations)},
-                            {"switches", static_cast<double>(run.switches)}});
+    outcome.numbers.insert(outcome.numbers.begin(), {"end_time", summary.end_time, "s"});
+    outcome.counts = {{"steps", static_cast<std::int64_t>(run.steps)},
+                      {"rhs_evaluations", static_cast<std::int64_t>(run.rhs_evaluations)},
+                      {"switches", static_cast<std::int64_t>(run.switches)}};
   };
   previous_step = {run.time, run.x};
   try {

@@ -718,13 +718,16 @@ SweepTables sweep_tables(const SweepRequest& r, int ndof) {
   t.ndof = ndof;
   t.n1 = o.axes.empty() ? 0 : o.axes[0].values.size();
   t.n2 = o.axes.size() > 1 ? o.axes[1].values.size() : 1;
+  if (!o.axes.empty()) t.axis1 = sweep_axis_name(o.axes[0].key);
+  if (o.axes.size() > 1) t.axis2 = sweep_axis_name(o.axes[1].key);
   t.harmonics = static_cast<std::size_t>(o.cycle.harmonics);
   t.samples = static_cast<std::size_t>(o.cycle.samples);
   t.traces = o.traces;
   auto& P = t.point;
   P.push_back(scalar(
       "response_class", "1",
-      "0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed, 5 unsettled (NaN: not run)",
+      "response class: 0 decayed, 1 periodic LCO, 2 non-periodic, 3 divergent, 4 failed, 5 unsettled "
+      "(fill value: not run)",
       [](const SweepPoint& p) { return p.ok ? static_cast<double>(p.lco.response) : 4.0; },
       [](SweepPoint& p, double v) {
         p.ok = v != 4.0;
@@ -763,6 +766,20 @@ SweepTables sweep_tables(const SweepRequest& r, int ndof) {
   P.push_back(scalar(
       "switches", "1", "spring switching points crossed", [](const SweepPoint& p) { return static_cast<double>(p.switches); },
       [](SweepPoint& p, double v) { p.switches = static_cast<std::int64_t>(v); }, "a count", is_count));
+  // Classes and counts are integers (int64, fill value kIntegerFill where
+  // a point was not run); a class names its codes (CF 1.10 §3.5 flags).
+  const auto integer = [&P](const std::string& name, Flags flags) {
+    for (auto& f : P)
+      if (f.name == name) {
+        f.integer = true;
+        f.flags = std::move(flags);
+      }
+  };
+  integer("response_class", {{0, 1, 2, 3, 4, 5}, "decayed periodic_lco non_periodic divergent failed unsettled"});
+  integer("decay_reason", {{0, 1, 2}, "not_decayed to_rest into_gap"});
+  integer("refined", {{0, 1}, "not_refined refined"});
+  integer("cycles", {});
+  integer("switches", {});
   for (int k = 0; k < ndof; ++k) {
     const std::string u = kDofUnits[k], n = kDofNames[k];
     const auto peaks = [k](auto& p) -> auto& { return p.lco.dof[k]; };
@@ -801,8 +818,8 @@ const Field<SweepPoint>& SweepTables::field(std::string_view name) const {
 }
 
 std::string SweepTables::cite(std::string_view name, const SweepPoint& p) const {
-  std::string t = fmt::format("{}[direction {}, value_1 index {}", field(name).name, p.direction, p.i);
-  if (n2 > 1) t += fmt::format(", value_2 index {}", p.j);
+  std::string t = fmt::format("{}[direction {}, {} index {}", field(name).name, p.direction, axis1, p.i);
+  if (n2 > 1) t += fmt::format(", {} index {}", axis2, p.j);
   return t + "]";
 }
 
@@ -933,13 +950,14 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
   const std::vector<std::int32_t> dirs = {0, 1};
   doc.integer_axis("direction", dirs, "sweep direction: 0 up (ascending), 1 down");
   doc.text_attribute("direction", "names", "up,down");
-  doc.axis("value_1", o.axes[0].values, axis_units(o.axes[0].key), "swept value of " + o.axes[0].key);
-  doc.text_attribute("value_1", "key", o.axes[0].key);
-  std::vector<std::string> dims = {"direction", "value_1"};
-  if (o.axes.size() > 1) {
-    doc.axis("value_2", o.axes[1].values, axis_units(o.axes[1].key), "swept value of " + o.axes[1].key);
-    doc.text_attribute("value_2", "key", o.axes[1].key);
-    dims.push_back("value_2");
+  doc.axis_flags("direction", {{0, 1}, "up down"});
+  // Each swept axis is named after its key and has the key's units.
+  std::vector<std::string> dims = {"direction"};
+  for (std::size_t a = 0; a < o.axes.size() && a < 2; ++a) {
+    const std::string name = a == 0 ? t.axis1 : t.axis2;
+    doc.axis(name, o.axes[a].values, axis_units(o.axes[a].key), "swept value of " + o.axes[a].key);
+    doc.text_attribute(name, "key", o.axes[a].key);
+    dims.push_back(name);
   }
   const std::size_t cells = 2 * t.n1 * t.n2;
   const auto cell = [&t](const SweepPoint& p) { return t.cell(p); };
@@ -966,12 +984,19 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
                             "describing_function_flutter_value"};
     for (const auto& lr : fr.results) {
       const Crossing& x = lr.methods.front().flutter;
-      if (x.found) doc.number_attribute("", names[static_cast<int>(lr.linearisation)], x.speed * per);
+      if (x.found) doc.number_attribute("", names[static_cast<int>(lr.linearisation)], x.speed * per, axis_units(key));
     }
     if (fr.lco.available) write_lco_prediction(doc, fr.lco, per, key);
   }
   // Everything needed to merge shards into the file an unsharded run writes.
   doc.text_attribute("", "sweep_request", request_json(r).dump());
+}
+
+std::string sweep_axis_name(const std::string& key) {
+  std::string name = key;
+  for (char& ch : name)
+    if (ch == '.') ch = '_';
+  return name;
 }
 
 double sweep_value_per_speed(const Case& c, const std::string& key) {

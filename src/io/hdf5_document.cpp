@@ -17,6 +17,7 @@
 
 #include <cstddef>
 #include <filesystem>
+#include <limits>
 #include <map>
 #include <numeric>
 #include <set>
@@ -129,52 +130,87 @@ class Document {
 
   void axis(const std::string& name, std::span<const double> values, const std::string& units,
             const std::string& long_name) {
-    new_axis(name, values.size(), H5::PredType::IEEE_F64LE, H5::PredType::NATIVE_DOUBLE,
-             values.data(), units, long_name);
+    Axis a;
+    a.reals.assign(values.begin(), values.end());
+    a.length = values.size();
+    a.units = units;
+    a.long_name = long_name;
+    new_axis(name, std::move(a));
   }
 
   void integer_axis(const std::string& name, std::span<const std::int32_t> values,
                     const std::string& long_name) {
-    new_axis(name, values.size(), H5::PredType::STD_I32LE, H5::PredType::NATIVE_INT32,
-             values.data(), "1", long_name);
+    Axis a;
+    a.integer = true;
+    a.integers.assign(values.begin(), values.end());
+    a.length = values.size();
+    a.units = "1";
+    a.long_name = long_name;
+    new_axis(name, std::move(a));
   }
 
   void dataset(const std::string& path, const std::vector<std::string>& dims,
                std::span<const double> data, const std::string& units,
                const std::string& long_name) {
+    write_dataset(path, dims, data.size(), data.data(), false, units, long_name, {});
+  }
+
+  // An int64 table; kIntegerFill declared as _FillValue (the same type as
+  // the data, CF 1.10 §2.5.1), and for a class flag_values (int64, the
+  // data's type) and flag_meanings (CF 1.10 §3.5) and no units.
+  void integer_dataset(const std::string& path, const std::vector<std::string>& dims,
+                       std::span<const std::int64_t> data, const std::string& units,
+                       const std::string& long_name, const Flags& flags) {
+    write_dataset(path, dims, data.size(), data.data(), true, units, long_name, flags);
+  }
+
+  void write_dataset(const std::string& path, const std::vector<std::string>& dims,
+                     std::size_t values, const void* data, bool integer, const std::string& units,
+                     const std::string& long_name, const Flags& flags) {
     usable();
     bool valid = false;
     const auto parts = split_path(path, valid);
     if (!valid || parts.empty()) refuse(fmt::format("invalid dataset path '{}'", path));
     std::vector<hsize_t> shape;
-    std::vector<const H5::DataSet*> scales;
     std::size_t count = 1;
     for (const auto& d : dims) {
       const auto a = axes_.find(d);
       if (a == axes_.end())
         refuse(fmt::format("dataset '{}' names the unknown axis '{}'", path, d));
       shape.push_back(a->second.length);
-      scales.push_back(&a->second.dataset);
       count *= static_cast<std::size_t>(a->second.length);
     }
-    if (data.size() != count)
+    if (values != count)
       refuse(fmt::format("dataset '{}' has {} values but its axes ({}) hold {}", path,
-                         data.size(), fmt::join(dims, ", "), count));
+                         values, fmt::join(dims, ", "), count));
     const std::string name = join(parts, parts.size());
+    const std::string group = join(parts, parts.size() - 1);
+    for (const auto& d : dims) check_local_axis(d, group, name);
 
     run(fmt::format("writing dataset '{}'", name), [&] {
+      if (existing_prefix(parts, name) == parts.size()) refuse(fmt::format("'{}' already exists", name));
+      room_for(values * sizeof(double), fmt::format("dataset '{}'", name));
+      // The group's own copy of each axis from elsewhere (local_axis; it
+      // may create the group).
+      std::vector<const H5::DataSet*> scales;
+      for (const auto& d : dims) scales.push_back(&local_axis(d, group).dataset);
       const std::size_t existing = existing_prefix(parts, name);
-      if (existing == parts.size()) refuse(fmt::format("'{}' already exists", name));
-      room_for(data.size() * sizeof(double), fmt::format("dataset '{}'", name));
       H5::Group parent = make_groups(parts, existing, parts.size() - 1);
       H5::DataSpace space = shape.empty()
                                 ? H5::DataSpace(H5S_SCALAR)
                                 : H5::DataSpace(static_cast<int>(shape.size()), shape.data());
-      H5::DataSet d = parent.createDataSet(parts.back(), H5::PredType::IEEE_F64LE, space,
-                                           array_properties(shape));
-      if (!data.empty()) d.write(data.data(), H5::PredType::NATIVE_DOUBLE);
-      write_text(d, "units", units);
+      H5::DSetCreatPropList properties = array_properties(shape);
+      if (integer) properties.setFillValue(H5::PredType::NATIVE_INT64, &kIntegerFill);
+      H5::DataSet d = parent.createDataSet(
+          parts.back(), integer ? H5::PredType::STD_I64LE : H5::PredType::IEEE_F64LE, space, properties);
+      if (values > 0) d.write(data, integer ? H5::PredType::NATIVE_INT64 : H5::PredType::NATIVE_DOUBLE);
+      if (flags.values.empty()) write_text(d, "units", units);
       write_text(d, "long_name", long_name);
+      if (integer) write_int64(d, "_FillValue", kIntegerFill);
+      if (!flags.values.empty()) {
+        write_int64_array(d, "flag_values", flags.values);
+        write_text(d, "flag_meanings", flags.meanings);
+      }
       for (std::size_t k = 0; k < scales.size(); ++k)
         attach_scale(d, *scales[k], static_cast<unsigned>(k));
       close_now(d);
@@ -251,7 +287,63 @@ class Document {
   struct Axis {
     H5::DataSet dataset;
     hsize_t length = 0;
+    bool integer = false;
+    std::vector<double> reals;          // the values, for the copies in groups
+    std::vector<std::int32_t> integers;
+    std::string units, long_name;
   };
+
+  // The group of an axis or dataset path ("a/b/time" -> "a/b", "time" -> "").
+  static std::string group_of(const std::string& path) {
+    const auto slash = path.rfind('/');
+    return slash == std::string::npos ? std::string() : path.substr(0, slash);
+  }
+  static std::string leaf_of(const std::string& path) {
+    const auto slash = path.rfind('/');
+    return slash == std::string::npos ? path : path.substr(slash + 1);
+  }
+
+  // A dataset in group G over an axis defined elsewhere (the root's
+  // "speed" under "nominal/pk") is attached to G's own copy of the axis,
+  // "G/speed", made on first use: a netCDF-4 reader opening the group
+  // alone (xarray's open_dataset(group=...)) then finds its coordinate
+  // variables there (netCDF-4 dimensions are visible in subgroups, but
+  // coordinate variables are read per group). The copy has the axis's
+  // values, units and long_name.
+  std::string local_axis_name(const std::string& axis, const std::string& group) const {
+    if (group_of(axis) == group) return axis;
+    return group.empty() ? leaf_of(axis) : group + "/" + leaf_of(axis);
+  }
+
+  // Refuses (before anything is written) a copy whose name is taken by
+  // something that is not that copy.
+  void check_local_axis(const std::string& axis, const std::string& group, const std::string& user) {
+    const std::string local = local_axis_name(axis, group);
+    if (local == axis || axes_.count(local)) {
+      const Axis& a = axes_.at(local);
+      const Axis& from = axes_.at(axis);
+      if (local != axis && (a.reals != from.reals || a.integers != from.integers))
+        refuse(fmt::format("dataset '{}' over axis '{}' needs its copy '{}', which holds other values",
+                           user, axis, local));
+      return;
+    }
+    bool valid = false;
+    const auto parts = split_path(local, valid);
+    bool taken = false;  // refused here when a component on the way is a dataset
+    run("looking up '" + local + "'", [&] { taken = existing_prefix(parts, user) == parts.size(); });
+    if (taken)
+      refuse(fmt::format("dataset '{}' over axis '{}' needs its copy '{}', a name already taken",
+                         user, axis, local));
+  }
+
+  const Axis& local_axis(const std::string& axis, const std::string& group) {
+    const std::string local = local_axis_name(axis, group);
+    if (const auto found = axes_.find(local); found != axes_.end()) return found->second;
+    Axis copy = axes_.at(axis);
+    copy.dataset = H5::DataSet();
+    bool valid = false;
+    return create_axis(local, split_path(local, valid), std::move(copy), axis);
+  }
 
   [[noreturn]] void refuse(const std::string& why) const { throw OutputError(path_, why); }
 
@@ -313,9 +405,7 @@ class Document {
     return group;
   }
 
-  void new_axis(const std::string& name, std::size_t length, const H5::PredType& file_type,
-                const H5::PredType& memory_type, const void* values, const std::string& units,
-                const std::string& long_name) {
+  void new_axis(const std::string& name, Axis a) {
     usable();
     // A root axis, or a group's own ("history/time": a netCDF dimension
     // `time` of that group); named in dataset dims by its full path.
@@ -323,20 +413,35 @@ class Document {
     const auto parts = split_path(name, valid);
     if (!valid || parts.empty() || parts.front() == kParametersGroup)
       refuse(fmt::format("invalid axis name '{}'", name));
-    run(fmt::format("writing axis '{}'", name), [&] {
-      const std::size_t existing = existing_prefix(parts, name);
-      if (existing == parts.size()) refuse(fmt::format("'{}' already exists", name));
-      room_for(length * file_type.getSize(), fmt::format("axis '{}'", name));
-      H5::Group parent = make_groups(parts, existing, parts.size() - 1);
-      const std::vector<hsize_t> dims{static_cast<hsize_t>(length)};
-      H5::DataSet d = parent.createDataSet(parts.back(), file_type, H5::DataSpace(1, dims.data()),
-                                           array_properties(dims));
-      if (length > 0) d.write(values, memory_type);
-      write_text(d, "units", units);
-      write_text(d, "long_name", long_name);
-      set_scale(d, parts.back());
-      axes_.emplace(name, Axis{d, dims[0]});
-    });
+    run(fmt::format("writing axis '{}'", name), [&] { create_axis(name, parts, std::move(a), ""); });
+  }
+
+  // Writes axis `a` at `name` (split into `parts`) as a dimension scale;
+  // `copy_of` names the axis it copies into a group, if any.
+  const Axis& create_axis(const std::string& name, const std::vector<std::string>& parts, Axis a,
+                          const std::string& copy_of) {
+    const std::size_t existing = existing_prefix(parts, name);
+    if (existing == parts.size()) refuse(fmt::format("'{}' already exists", name));
+    const H5::PredType& file_type = a.integer ? H5::PredType::STD_I32LE : H5::PredType::IEEE_F64LE;
+    room_for(a.length * file_type.getSize(), fmt::format("axis '{}'", name));
+    H5::Group parent = make_groups(parts, existing, parts.size() - 1);
+    const std::vector<hsize_t> dims{a.length};
+    H5::DataSet d = parent.createDataSet(parts.back(), file_type, H5::DataSpace(1, dims.data()),
+                                         array_properties(dims));
+    if (a.length > 0) {
+      if (a.integer)
+        d.write(a.integers.data(), H5::PredType::NATIVE_INT32);
+      else
+        d.write(a.reals.data(), H5::PredType::NATIVE_DOUBLE);
+    }
+    write_text(d, "units", a.units);
+    write_text(d, "long_name", a.long_name);
+    if (!copy_of.empty())
+      write_text(d, "comment", fmt::format("the coordinate /{} again, so that this group has its own axes",
+                                           copy_of));
+    set_scale(d, parts.back());
+    a.dataset = d;
+    return axes_.emplace(name, std::move(a)).first->second;
   }
 
   std::string path_, temporary_path_;
@@ -382,6 +487,31 @@ void Hdf5Document::dataset(const std::string& path, const std::vector<std::strin
   file_->dataset(path, dims, data, units, long_name);
 }
 
+void Hdf5Document::integer_dataset(const std::string& path, const std::vector<std::string>& dims,
+                                   std::span<const std::int64_t> data, const std::string& units,
+                                   const std::string& long_name, const Flags& flags) {
+  file_->integer_dataset(path, dims, data, units, long_name, flags);
+}
+
+void Hdf5Document::nan_fill(const std::string& path) {
+  file_->attribute(path, "_FillValue", [&](const H5::H5Object& o) {
+    hdf5_detail::write_double(o, "_FillValue", std::numeric_limits<double>::quiet_NaN());
+  });
+}
+
+void Hdf5Document::axis_flags(const std::string& name, const Flags& flags) {
+  std::vector<std::int32_t> values;
+  for (const std::int64_t v : flags.values) values.push_back(static_cast<std::int32_t>(v));
+  file_->attribute(name, "flag_values", [&](const H5::H5Object& o) {
+    const auto* axis = dynamic_cast<const H5::DataSet*>(&o);
+    if (axis == nullptr || axis->getTypeClass() != H5T_INTEGER)
+      throw OutputError(path_, fmt::format("'{}' is not an integer axis: no flags", name));
+    if (axis->attrExists("units")) axis->removeAttr("units");
+    hdf5_detail::write_int32_array(o, "flag_values", values);
+  });
+  text_attribute(name, "flag_meanings", flags.meanings);
+}
+
 void Hdf5Document::text_attribute(const std::string& object, const std::string& name,
                                   const std::string& value) {
   file_->attribute(object, name,
@@ -389,15 +519,17 @@ void Hdf5Document::text_attribute(const std::string& object, const std::string& 
 }
 
 void Hdf5Document::number_attribute(const std::string& object, const std::string& name,
-                                    double value) {
+                                    double value, const std::string& units) {
   file_->attribute(object, name,
                    [&](const H5::H5Object& o) { hdf5_detail::write_double(o, name, value); });
+  text_attribute(object, hdf5_detail::units_name(name), units);
 }
 
 void Hdf5Document::integer_attribute(const std::string& object, const std::string& name,
                                      std::int64_t value) {
   file_->attribute(object, name,
                    [&](const H5::H5Object& o) { hdf5_detail::write_int64(o, name, value); });
+  text_attribute(object, hdf5_detail::units_name(name), "1");
 }
 
 void Hdf5Document::commit() {
@@ -443,6 +575,17 @@ std::vector<double> read_double_dataset(const std::string& path, const std::stri
                        "the tables aerosect wrote for that request");
     std::vector<double> v(static_cast<std::size_t>(n));
     if (n > 0) d.read(v.data(), H5::PredType::NATIVE_DOUBLE);
+    // An integer table's declared fill value (a cell without a value) reads
+    // as NaN, as in a double table.
+    if (d.getTypeClass() == H5T_INTEGER && d.attrExists("_FillValue")) {
+      std::int64_t fill = 0;
+      const H5::Attribute a = d.openAttribute("_FillValue");
+      if (a.getTypeClass() == H5T_INTEGER && a.getSpace().getSimpleExtentNpoints() == 1) {
+        a.read(H5::PredType::NATIVE_INT64, &fill);
+        for (double& x : v)
+          if (x == static_cast<double>(fill)) x = std::numeric_limits<double>::quiet_NaN();
+      }
+    }
     return v;
   } catch (const H5::Exception& e) {
     throw InputError({path, 0, 0}, "", "", "cannot read the HDF5 file (" + e.getDetailMsg() + ")",

@@ -97,13 +97,14 @@ hid_t check_id(hid_t id, const char* function) {
 // Attributes.
 
 void write_text(const H5::H5Object& object, const std::string& name, const std::string& value) {
-  // The form netCDF-4 itself gives text (NC_CHAR) attributes: fixed length
-  // equal to the string's (1 and a NUL when empty), null-terminated padding.
-  H5::StrType type(H5::PredType::C_S1, std::max<std::size_t>(value.size(), 1));
-  type.setStrpad(H5T_STR_NULLTERM);
+  // A variable-length UTF-8 string (netCDF-4 NC_STRING, CF 1.10 §2.2
+  // allows string attributes): h5py reads it as str, netCDF-4 and xarray
+  // as text. A fixed-length one (NC_CHAR) reads as bytes in h5py.
+  H5::StrType type(H5::PredType::C_S1, H5T_VARIABLE);
   type.setCset(H5T_CSET_UTF8);
   H5::Attribute attribute = object.createAttribute(name, type, H5::DataSpace(H5S_SCALAR));
-  attribute.write(type, value.c_str());
+  const char* text = value.c_str();
+  attribute.write(type, &text);
 }
 
 void write_double(const H5::H5Object& object, const std::string& name, double value) {
@@ -122,6 +123,20 @@ void write_int64(const H5::H5Object& object, const std::string& name, std::int64
   H5::Attribute attribute =
       object.createAttribute(name, H5::PredType::STD_I64LE, H5::DataSpace(H5S_SCALAR));
   attribute.write(H5::PredType::NATIVE_INT64, &value);
+}
+
+void write_int32_array(const H5::H5Object& object, const std::string& name,
+                       const std::vector<std::int32_t>& values) {
+  const hsize_t n = values.size();
+  H5::Attribute attribute = object.createAttribute(name, H5::PredType::STD_I32LE, H5::DataSpace(1, &n));
+  attribute.write(H5::PredType::NATIVE_INT32, values.data());
+}
+
+void write_int64_array(const H5::H5Object& object, const std::string& name,
+                       const std::vector<std::int64_t>& values) {
+  const hsize_t n = values.size();
+  H5::Attribute attribute = object.createAttribute(name, H5::PredType::STD_I64LE, H5::DataSpace(1, &n));
+  attribute.write(H5::PredType::NATIVE_INT64, values.data());
 }
 
 // ---------------------------------------------------------------------------

@@ -11,8 +11,8 @@
 //  - Files and groups are created with link and attribute creation order
 //    tracked and indexed, as netCDF-4 itself does, so ncdump and xarray list
 //    variables and attributes in the order they were written.
-//  - Text attributes have the form netCDF-4 gives NC_CHAR attributes:
-//    fixed-length, null-terminated, UTF-8.
+//  - Text attributes have the form netCDF-4 gives NC_STRING attributes:
+//    scalar, variable-length, UTF-8 (h5py reads them as str).
 //  - RunMetadata: root attributes (Conventions, title, aerosect_file_kind,
 //    the text attributes) and /parameters/<group>/<name> scalar datasets.
 //  - The temporary file: a plain probe that explains why a file cannot be
@@ -49,12 +49,20 @@ hid_t check_id(hid_t id, const char* function);
 
 // --- Attributes ---------------------------------------------------------------
 
-// Scalar attributes. Text: fixed length equal to the string's (1 and a NUL
-// when empty), H5T_STR_NULLTERM, UTF-8 (netCDF-4 NC_CHAR).
+// Scalar attributes. Text: variable-length UTF-8 (netCDF-4 NC_STRING).
 void write_text(const H5::H5Object& object, const std::string& name, const std::string& value);
 void write_double(const H5::H5Object& object, const std::string& name, double value);  // F64LE
 void write_int32(const H5::H5Object& object, const std::string& name, std::int32_t value);
 void write_int64(const H5::H5Object& object, const std::string& name, std::int64_t value);
+// 1-D integer attributes (CF flag_values of an int32 or int64 variable).
+void write_int32_array(const H5::H5Object& object, const std::string& name,
+                       const std::vector<std::int32_t>& values);
+void write_int64_array(const H5::H5Object& object, const std::string& name,
+                       const std::vector<std::int64_t>& values);
+// The attribute that holds the units of numeric attribute `name`: an
+// attribute has no attributes of its own, so NAME's units are the text
+// attribute NAME_units beside it (UDUNITS, "1" for counts and flags).
+inline std::string units_name(const std::string& name) { return name + "_units"; }
 
 // --- Creation -------------------------------------------------------------------
 

@@ -62,7 +62,8 @@ H5::DataSet create_series(const H5::H5File& file, const std::string& name, int w
 
 const std::set<std::string>& reserved_root_attributes() {
   static const std::set<std::string> names{"Conventions", "title",  "aerosect_file_kind",
-                                           "complete",    "status", "samples"};
+                                           "complete",    "status", "samples",
+                                           "complete_units", "samples_units"};
   return names;
 }
 
@@ -198,8 +199,10 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
     f.time = create_series(*f.file, kTimeName, 1, f.block_rows, options_.deflate_level);
     write_text(f.time, "units", time_channel.units);
     write_text(f.time, "long_name", time_channel.long_name);
-    write_text(f.time, "standard_name", "time");
-    write_text(f.time, "axis", "T");
+    // Elapsed time of the run, not a date: no reference epoch, so neither
+    // standard_name "time" nor axis "T", which claim a CF time coordinate
+    // with units "s since <epoch>" (CF 1.10 §4.4).
+    write_text(f.time, "comment", "elapsed time since the start of the run, not a calendar time");
     set_scale(f.time, kTimeName);
 
     std::map<std::string, H5::DataSet> axes;
@@ -324,9 +327,14 @@ void Hdf5TimeHistoryWriter::finish(const RunOutcome& outcome) {
   }
   AEROSECT_CHECK(state_ == State::kOpen);
 
+  // Each number and count is a root attribute NAME with its units in
+  // NAME_units (attributes have no attributes of their own).
   std::set<std::string> attributes = reserved_root_attributes();
-  for (const auto& [key, value] : outcome.numbers)
-    if (key.empty() || !attributes.insert(key).second)
+  std::vector<std::string> names;
+  for (const auto& n : outcome.numbers) names.push_back(n.name);
+  for (const auto& [key, value] : outcome.counts) names.push_back(key);
+  for (const auto& key : names)
+    if (key.empty() || !attributes.insert(key).second || !attributes.insert(units_name(key)).second)
       bug(fmt::format("outcome number '{}' is empty, reserved or given twice", key));
 
   write_block();  // throws OutputError (state kFailed, file removed) on failure
@@ -334,14 +342,23 @@ void Hdf5TimeHistoryWriter::finish(const RunOutcome& outcome) {
   try {
     File& f = *file_;
     H5::Group root = f.file->openGroup("/");
-    for (const auto& [key, value] : outcome.numbers)
-      if (root.attrExists(key))
+    for (const auto& key : names)
+      if (root.attrExists(key) || root.attrExists(units_name(key)))
         bug(fmt::format("outcome number '{}' clashes with a root attribute", key));
     write_int32(root, "complete", outcome.completed ? 1 : 0);
+    write_text(root, units_name("complete"), "1");
     write_text(root, "status", outcome.status);
     // The rows actually in the file, which is what a reader needs to agree with.
     write_int64(root, "samples", static_cast<std::int64_t>(f.written));
-    for (const auto& [key, value] : outcome.numbers) write_double(root, key, value);
+    write_text(root, units_name("samples"), "1");
+    for (const auto& [key, value] : outcome.counts) {
+      write_int64(root, key, value);
+      write_text(root, units_name(key), "1");
+    }
+    for (const auto& n : outcome.numbers) {
+      write_double(root, n.name, n.value);
+      write_text(root, units_name(n.name), n.units);
+    }
     root.close();
     f.file->flush(H5F_SCOPE_GLOBAL);
     f.close();

@@ -143,13 +143,17 @@ with tempfile.TemporaryDirectory() as tmp:
     with h5py.File(t1) as f:
         d = f["pitch_cycle"]
         dims = [f[d.dims[i][0].name].name for i in range(3)] if all(len(d.dims[i]) for i in range(3)) else []
-        check("pitch_cycle over direction, value_1, cycle_phase",
-              d.shape == (2, 3, 128) and dims == ["/direction", "/value_1", "/cycle_phase"], (d.shape, dims))
+        check("pitch_cycle over direction, nondimensional_reduced_speed (the swept key), cycle_phase",
+              d.shape == (2, 3, 128) and dims == ["/direction", "/nondimensional_reduced_speed", "/cycle_phase"],
+              (d.shape, dims))
         check("pitch_cycle units", d.attrs["units"] == b"rad" or d.attrs["units"] == "rad", d.attrs["units"])
         h = f["pitch_harmonics"]
         check("pitch_harmonics over harmonic 1..5", h.shape == (2, 3, 5) and
               list(f["harmonic"][()]) == [1, 2, 3, 4, 5] and f[h.dims[2][0].name].name == "/harmonic")
         pc, cls = f["pitch_cycle"][()], f["response_class"][()]
+        check("response_class: int64 codes with CF flags (CF 1.10 §3.5)",
+              cls.dtype == np.int64 and list(f["response_class"].attrs["flag_values"]) == [0, 1, 2, 3, 4, 5],
+              cls.dtype)
         check("traces present exactly for periodic points",
               np.all(np.isfinite(pc[cls == 1])) and np.all(np.isnan(pc[cls != 1])))
         check("rms table", np.allclose(f["pitch_rms"][()][cls == 1],

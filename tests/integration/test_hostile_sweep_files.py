@@ -53,7 +53,8 @@ def refused(name, r, path, *words):
 def record_from_map(f, d, i):
     """A journal record (format 4) of the point (direction d, i) built from
     the map's own tables: the fields by their dataset names."""
-    rec = {"direction": d, "i": i, "j": 0, "value1": float(f["value_1"][i]), "value2": 0.0,
+    axis = f["response_class"].dims[1][0]  # the swept axis, named after its key
+    rec = {"direction": d, "i": i, "j": 0, "value1": float(axis[i]), "value2": 0.0,
            "error": "", "refinement_failure": "", "watched_dof": 1,
            "stopped_early": False, "steps": 10}
     for name, obj in f.items():
@@ -76,7 +77,7 @@ with tempfile.TemporaryDirectory() as tmp:
     with h5py.File(mp) as f:
         request = json.loads(f.attrs["sweep_request"])
         good = record_from_map(f, 0, 0)
-        n1 = f["value_1"].shape[0]
+        n1 = f["response_class"].dims[1][0].shape[0]
         nh = f["harmonic"].shape[0]
     head = {"aerosect_journal": "sweep", "format": 4, "identity": request}
     journal = mp + ".journal"

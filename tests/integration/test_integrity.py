@@ -103,7 +103,7 @@ with tempfile.TemporaryDirectory() as tmp:
                 n = len(f["time"])
                 t = f["time"][()]
                 check(f"{sig.name}: partial marked incomplete",
-                      int(f.attrs["complete"]) == 0 and f.attrs["status"].decode() == "cancelled",
+                      int(f.attrs["complete"]) == 0 and str(f.attrs["status"]) == "cancelled",
                       dict(f.attrs))
                 check(f"{sig.name}: partial rows agree", n > 0 and int(f.attrs["samples"]) == n
                       and len(f["pitch"]) == n, (n, f.attrs["samples"]))

@@ -60,7 +60,7 @@ def sweep_expectations(path, vd_tas):
     """Onset, persistence and the largest LCO at or below V_D from the sweep
     table, by the rules the report states."""
     with h5py.File(path, "r") as f:
-        v = f["value_1"][:]
+        v = f["flow_airspeed"][:]
         rc = f["response_class"][:]
         watched = f.attrs["watched_dof"]
         watched = watched.decode() if isinstance(watched, bytes) else str(watched)
@@ -154,7 +154,7 @@ def check_branch(out, rows, vd_tas, checks):
         assert np.all(trivial < 1e-8), trivial.max()
         assert np.all(residual < 1e-9), residual.max()
         with h5py.File(os.path.join(out, "sweep.h5"), "r") as f:
-            v = f["value_1"][:]
+            v = f["flow_airspeed"][:]
             rc = f["response_class"][:]
             sw_amp = f[f"{watched}_amplitude"][:]
         compared = 0

@@ -64,7 +64,7 @@ with tempfile.TemporaryDirectory() as tmp:
     with h5py.File(out) as f:
         cls = f["response_class"][()]
         amp = f["flap_amplitude"][()]
-        speeds = f["value_1"][()]
+        speeds = f["flow_airspeed"][()]
         gusts = f.attrs["gusts"]
         gusts = gusts.decode() if isinstance(gusts, bytes) else str(gusts)
     check("map: every point periodic", np.all(cls == 1), cls)

@@ -73,10 +73,10 @@ void write_layout(Hdf5Document& doc) {
   doc.dataset("nominal/state_space/damping_ratio", {"speed", "mode"}, v, "1", "damping ratio");
   doc.dataset("/nominal/pk/frequency", {"speed", "mode"}, v, "Hz", "modal frequency");
   doc.integer_attribute("nominal/state_space", "flutter_found", 1);
-  doc.number_attribute("nominal/state_space", "flutter_speed", 41.5);
+  doc.number_attribute("nominal/state_space", "flutter_speed", 41.5, "m s-1");
   doc.number_attribute("nominal/pk", "flutter_speed",
-                       std::numeric_limits<double>::quiet_NaN());
-  doc.number_attribute("", "reference_speed", 25.0);
+                       std::numeric_limits<double>::quiet_NaN(), "m s-1");
+  doc.number_attribute("", "reference_speed", 25.0, "m s-1");
   doc.text_attribute("/", "history", "written by a test");
   doc.text_attribute("nominal/state_space/damping_ratio", "comment", "per mode");
 }
@@ -147,14 +147,12 @@ TEST_CASE("HDF5 document: values are stored row-major with units and long_name",
   REQUIRE(text_attribute(damping, "long_name") == "damping ratio");
   H5::DataSet frequency = file.openDataSet("nominal/pk/frequency");
   REQUIRE(text_attribute(frequency, "units") == "Hz");
-  // netCDF-4 reads fixed-length HDF5 strings as text (NC_CHAR) attributes,
-  // the form netCDF-C itself writes (h5dump of an ncgen -k nc4 file):
-  // H5T_STR_NULLTERM, UTF-8, the length of the text.
+  // Text attributes are variable-length UTF-8 strings: netCDF-4's NC_STRING
+  // (netCDF User Guide, "netCDF-4 format"), read as str by h5py 3 (h5py
+  // docs, "Strings in HDF5": fixed-length strings read as bytes).
   H5::StrType type = frequency.openAttribute("long_name").getStrType();
-  REQUIRE_FALSE(type.isVariableStr());
-  REQUIRE(type.getStrpad() == H5T_STR_NULLTERM);
+  REQUIRE(type.isVariableStr());
   REQUIRE(type.getCset() == H5T_CSET_UTF8);
-  REQUIRE(type.getSize() == std::string("modal frequency").size());
 }
 
 TEST_CASE("HDF5 document: axes are dimension scales attached to every dimension",
@@ -178,16 +176,26 @@ TEST_CASE("HDF5 document: axes are dimension scales attached to every dimension"
   }
 
   // H5DS docs (H5DSis_attached, H5DSget_num_scales): dimension 0 of every
-  // (speed, mode) dataset is attached to /speed, dimension 1 to /mode, and
-  // to nothing else.
-  for (const std::string name : {"nominal/state_space/damping_ratio", "nominal/pk/frequency"}) {
+  // (speed, mode) dataset is attached to its group's speed axis, dimension
+  // 1 to its mode axis, and to nothing else. A group's datasets use the
+  // group's own copy of a root axis (same values, units and long_name), so
+  // that a netCDF-4 reader opening the group alone (xarray's
+  // open_dataset(group=...)) finds its coordinate variables there.
+  for (const std::string group : {"nominal/state_space", "nominal/pk"}) {
+    const std::string name = group == "nominal/pk" ? "nominal/pk/frequency" : "nominal/state_space/damping_ratio";
     INFO(name);
     H5::DataSet d = file.openDataSet(name);
+    H5::DataSet local_speed = file.openDataSet(group + "/speed");
+    H5::DataSet local_mode = file.openDataSet(group + "/mode");
+    REQUIRE(read_all(local_speed) == read_all(speed));
+    REQUIRE(text_attribute(local_speed, "units") == "m s-1");
+    REQUIRE(text_attribute(local_mode, "long_name") == "mode number");
     REQUIRE(H5DSis_scale(d.getId()) == 0);
-    REQUIRE(H5DSis_attached(d.getId(), speed.getId(), 0) > 0);
-    REQUIRE(H5DSis_attached(d.getId(), mode.getId(), 1) > 0);
-    REQUIRE(H5DSis_attached(d.getId(), mode.getId(), 0) == 0);
-    REQUIRE(H5DSis_attached(d.getId(), speed.getId(), 1) == 0);
+    REQUIRE(H5DSis_attached(d.getId(), local_speed.getId(), 0) > 0);
+    REQUIRE(H5DSis_attached(d.getId(), local_mode.getId(), 1) > 0);
+    REQUIRE(H5DSis_attached(d.getId(), local_mode.getId(), 0) == 0);
+    REQUIRE(H5DSis_attached(d.getId(), local_speed.getId(), 1) == 0);
+    REQUIRE(H5DSis_attached(d.getId(), speed.getId(), 0) == 0);
     REQUIRE(H5DSget_num_scales(d.getId(), 0) == 1);
     REQUIRE(H5DSget_num_scales(d.getId(), 1) == 1);
   }
@@ -271,6 +279,12 @@ TEST_CASE("HDF5 document: metadata, parameters and attributes", "[hdf5_document]
                                     H5::PredType::NATIVE_DOUBLE) == 41.5);
   REQUIRE(std::isnan(numeric_attribute<double>(file.openGroup("nominal/pk"), "flutter_speed",
                                                H5::PredType::NATIVE_DOUBLE)));
+  // Each numeric attribute NAME has its units in NAME_units (our convention:
+  // CF 1.10 §3.1 defines `units` for variables only); integers are counts,
+  // flags or indices, "1".
+  REQUIRE(text_attribute(state_space, "flutter_speed_units") == "m s-1");
+  REQUIRE(text_attribute(state_space, "flutter_found_units") == "1");
+  REQUIRE(text_attribute(root, "reference_speed_units") == "m s-1");
 
   // Dataset attributes, on an axis and on a nested dataset.
   REQUIRE(text_attribute(file.openDataSet("mode"), "mode_names") == "plunge,pitch,flap");
@@ -294,9 +308,9 @@ TEST_CASE("HDF5 document: an attribute on a new path makes a group", "[hdf5_docu
   REQUIRE(file.childObjType("gap_open/state_space") == H5O_TYPE_GROUP);
   REQUIRE(numeric_attribute<std::int64_t>(file.openGroup("gap_open/state_space"),
                                           "divergence_found", H5::PredType::NATIVE_INT64) == 0);
-  // An empty text is stored as one NUL (netCDF-C writes "" that way).
+  // An empty text is an empty variable-length string.
   H5::Attribute note = file.openGroup("gap_open").openAttribute("note");
-  REQUIRE(note.getStrType().getSize() == 1);
+  REQUIRE(note.getStrType().isVariableStr());
   REQUIRE(text_attribute(file.openGroup("gap_open"), "note").empty());
 }
 
@@ -426,7 +440,7 @@ TEST_CASE("HDF5 document: temporary file, commit and destructor", "[hdf5_documen
     // Common practice, no source: no HDF5 object stays open after commit.
     REQUIRE(open_hdf5_objects() == 0);
     // Common practice, no source: a committed document takes no more data.
-    REQUIRE_THROWS_AS(doc.number_attribute("", "late", 1.0), OutputError);
+    REQUIRE_THROWS_AS(doc.number_attribute("", "late", 1.0, "1"), OutputError);
     REQUIRE_THROWS_AS(doc.commit(), OutputError);
   }
 
@@ -542,8 +556,8 @@ TEST_CASE("HDF5 document: requests that do not fit throw OutputError and change 
   // HDF5 User Guide, groups: a dataset holds no links.
   refused([&] { doc.dataset("nominal/state_space/frequency/x", {"speed"}, kSpeeds, "1", "x"); },
           "is not a group");
-  doc.number_attribute("nominal/state_space", "flutter_speed", 41.5);
-  refused([&] { doc.number_attribute("nominal/state_space", "flutter_speed", 40.0); },
+  doc.number_attribute("nominal/state_space", "flutter_speed", 41.5, "m s-1");
+  refused([&] { doc.number_attribute("nominal/state_space", "flutter_speed", 40.0, "m s-1"); },
           "already written");
   RunMetadata clash = document_metadata();
   clash.text_attributes.push_back({"title", "again"});
@@ -594,4 +608,61 @@ TEST_CASE("HDF5 document: netCDF-4 reads the layout", "[hdf5_document]") {
   REQUIRE(header.find("double damping_ratio(speed, mode) ;") != std::string::npos);
   REQUIRE(header.find("mode:mode_names = \"plunge,pitch,flap\" ;") != std::string::npos);
   REQUIRE(header.find(":flutter_found = 1LL ;") != std::string::npos);
+}
+
+TEST_CASE("HDF5 document: integer tables, flags and fill values", "[hdf5_document]") {
+  // CF 1.10 §2.5.1: _FillValue has the variable's type; §3.5 flags:
+  // flag_values of the variable's type, flag_meanings one word per value;
+  // a class holds codes, not a quantity (no units).
+  H5::Exception::dontPrint();
+  TempDir dir;
+  const std::string path = dir.file("flags.h5");
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  {
+    Hdf5Document doc(path);
+    doc.axis("speed", std::vector<double>{10, 20, 30}, "m s-1", "true airspeed");
+    doc.integer_dataset("response_class", {"speed"}, std::vector<std::int64_t>{0, 1, aerosect::kIntegerFill}, "1",
+                        "response class", {{0, 1}, "decayed periodic_lco"});
+    doc.integer_dataset("cycles", {"speed"}, std::vector<std::int64_t>{3, 4, 5}, "1", "cycles", {});
+    doc.dataset("frequency", {"speed"}, std::vector<double>{1.0, nan, 2.0}, "Hz", "frequency");
+    doc.nan_fill("frequency");
+    doc.integer_axis("direction", std::vector<std::int32_t>{0, 1}, "sweep direction");
+    doc.axis_flags("direction", {{0, 1}, "up down"});
+    const OutputError not_integer = output_error([&] { doc.axis_flags("speed", {{0}, "slow"}); });
+    REQUIRE(std::string(not_integer.what()).find("'speed' is not an integer axis") != std::string::npos);
+    // A dataset in a group whose copy of the axis would clash is refused.
+    doc.dataset("g/speed", {}, std::vector<double>{1.0}, "m s-1", "a scalar named like the axis");
+    const OutputError e = output_error([&] { doc.dataset("g/lift", {"speed"}, std::vector<double>{1, 2, 3}, "N", "x"); });
+    REQUIRE(std::string(e.what()).find("needs its copy 'g/speed', a name already taken") != std::string::npos);
+    doc.commit();
+  }
+  H5::H5File file(path, H5F_ACC_RDONLY);
+  H5::DataSet cls = file.openDataSet("response_class");
+  REQUIRE(cls.getDataType() == H5::PredType::STD_I64LE);
+  REQUIRE_FALSE(cls.attrExists("units"));
+  REQUIRE(numeric_attribute<std::int64_t>(cls, "_FillValue", H5::PredType::NATIVE_INT64) == -1);
+  REQUIRE(cls.openAttribute("_FillValue").getDataType() == H5::PredType::STD_I64LE);
+  H5::Attribute values = cls.openAttribute("flag_values");
+  REQUIRE(values.getDataType() == H5::PredType::STD_I64LE);
+  std::array<std::int64_t, 2> codes{};
+  REQUIRE(values.getSpace().getSimpleExtentNpoints() == 2);
+  values.read(H5::PredType::NATIVE_INT64, codes.data());
+  REQUIRE(codes == std::array<std::int64_t, 2>{0, 1});
+  REQUIRE(text_attribute(cls, "flag_meanings") == "decayed periodic_lco");
+  // An integer axis made a class: flag_values in its own type (int32).
+  H5::DataSet direction = file.openDataSet("direction");
+  REQUIRE_FALSE(direction.attrExists("units"));
+  REQUIRE(direction.openAttribute("flag_values").getDataType() == H5::PredType::STD_I32LE);
+  REQUIRE(text_attribute(direction, "flag_meanings") == "up down");
+  H5::DataSet cycles = file.openDataSet("cycles");
+  REQUIRE(text_attribute(cycles, "units") == "1");
+  REQUIRE_FALSE(cycles.attrExists("flag_values"));
+  H5::DataSet frequency = file.openDataSet("frequency");
+  REQUIRE(frequency.openAttribute("_FillValue").getDataType() == H5::PredType::IEEE_F64LE);
+  REQUIRE(std::isnan(numeric_attribute<double>(frequency, "_FillValue", H5::PredType::NATIVE_DOUBLE)));
+  // Read back as doubles, the integer fill value is NaN.
+  const auto back = aerosect::read_double_dataset(path, "response_class", 3);
+  REQUIRE(back[0] == 0.0);
+  REQUIRE(back[1] == 1.0);
+  REQUIRE(std::isnan(back[2]));
 }

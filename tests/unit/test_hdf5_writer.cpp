@@ -72,7 +72,7 @@ void write_rows(Hdf5TimeHistoryWriter& w, std::size_t rows) {
 }
 
 RunOutcome completed(std::int64_t samples) {
-  return {true, "completed", samples, {{"steps", 321.0}, {"rhs_evaluations", 2000.0}}};
+  return {true, "completed", samples, {{"steps", 321}, {"rhs_evaluations", 2000}}, {{"end_time", 0.5, "s"}}};
 }
 
 void check_values(const std::string& path, std::size_t rows) {
@@ -165,19 +165,29 @@ TEST_CASE("HDF5 writer: CF and netCDF-4 attributes", "[hdf5_writer]") {
   REQUIRE(text_attribute(root, "history") == "written by a test");
   REQUIRE(numeric_attribute<std::int32_t>(root, "complete", H5::PredType::NATIVE_INT32) == 1);
   REQUIRE(text_attribute(root, "status") == "completed");
-  REQUIRE(numeric_attribute<double>(root, "steps", H5::PredType::NATIVE_DOUBLE) == 321.0);
-  REQUIRE(numeric_attribute<double>(root, "rhs_evaluations", H5::PredType::NATIVE_DOUBLE) ==
-          2000.0);
+  // Counters are integers (issue #17); every numeric root attribute NAME has
+  // its units in NAME_units (our convention: CF 1.10 has none for units of
+  // attributes, §3.1 defines `units` for variables only).
+  REQUIRE(numeric_attribute<std::int64_t>(root, "steps", H5::PredType::NATIVE_INT64) == 321);
+  REQUIRE(numeric_attribute<std::int64_t>(root, "rhs_evaluations", H5::PredType::NATIVE_INT64) == 2000);
+  REQUIRE(numeric_attribute<double>(root, "end_time", H5::PredType::NATIVE_DOUBLE) == 0.5);
+  REQUIRE(text_attribute(root, "end_time_units") == "s");
+  for (const char* name : {"complete", "samples", "steps", "rhs_evaluations"})
+    REQUIRE(text_attribute(root, std::string(name) + "_units") == "1");
   // HDF5 H5T docs: integer attributes are stored with their declared widths.
   REQUIRE(root.openAttribute("complete").getIntType().getSize() == 4);
   REQUIRE(root.openAttribute("samples").getIntType().getSize() == 8);
+  REQUIRE(root.openAttribute("steps").getIntType().getSize() == 8);
 
-  // CF conventions 1.8 §4.4 time axis: units, standard_name "time", axis "T".
+  // The time axis is elapsed time in s, not a calendar time: CF 1.10 §4.4
+  // asks a time coordinate (standard_name "time", axis "T") for units
+  // "UNIT since EPOCH", so neither attribute is written.
   H5::DataSet time = file.openDataSet("time");
   REQUIRE(text_attribute(time, "units") == "s");
   REQUIRE(text_attribute(time, "long_name") == "time since the start of the run");
-  REQUIRE(text_attribute(time, "standard_name") == "time");
-  REQUIRE(text_attribute(time, "axis") == "T");
+  REQUIRE(text_attribute(time, "comment") == "elapsed time since the start of the run, not a calendar time");
+  REQUIRE_FALSE(time.attrExists("standard_name"));
+  REQUIRE_FALSE(time.attrExists("axis"));
 
   // CF conventions 1.8 §3.1 units (UDUNITS strings) and §3.2 long_name.
   for (const auto& c : test_channels()) {
@@ -185,14 +195,13 @@ TEST_CASE("HDF5 writer: CF and netCDF-4 attributes", "[hdf5_writer]") {
     H5::DataSet d = file.openDataSet(c.name);
     REQUIRE(text_attribute(d, "units") == c.units);
     REQUIRE(text_attribute(d, "long_name") == c.long_name);
-    // netCDF-4 reads fixed-length (not variable-length) HDF5 strings as text
-    // (NC_CHAR) attributes; this is the form netCDF-C 4.9 itself writes
-    // (h5dump of an ncgen -k nc4 file): H5T_STR_NULLTERM, length of the text.
+    // Text attributes are variable-length UTF-8 strings: netCDF-4's NC_STRING
+    // (netCDF User Guide, "netCDF-4 format": NC_STRING is an HDF5
+    // variable-length string), which h5py 3 reads as str (h5py docs,
+    // "Strings in HDF5": fixed-length strings read as bytes).
     H5::StrType type = d.openAttribute("units").getStrType();
-    REQUIRE_FALSE(type.isVariableStr());
-    REQUIRE(type.getStrpad() == H5T_STR_NULLTERM);
+    REQUIRE(type.isVariableStr());
     REQUIRE(type.getCset() == H5T_CSET_UTF8);
-    REQUIRE(type.getSize() == c.units.size());
   }
 
   // Parameters: one scalar dataset per record.
@@ -411,7 +420,7 @@ TEST_CASE("HDF5 writer: temporary file and final renames", "[hdf5_writer]") {
     Hdf5TimeHistoryWriter w(path, {4, 4});
     w.begin(kTime, test_channels(), writer_metadata());
     write_rows(w, 6);
-    w.finish({false, "numerical-error: state is NaN", 6, {{"steps", 17.0}}});
+    w.finish({false, "numerical-error: state is NaN", 6, {{"steps", 17}}, {}});
     const std::string incomplete = dir.file("run.incomplete.h5");
     REQUIRE(w.final_path() == incomplete);
     REQUIRE_FALSE(fs::exists(path + ".part"));
@@ -425,7 +434,7 @@ TEST_CASE("HDF5 writer: temporary file and final renames", "[hdf5_writer]") {
     H5::Group root = file.openGroup("/");
     REQUIRE(numeric_attribute<std::int32_t>(root, "complete", H5::PredType::NATIVE_INT32) == 0);
     REQUIRE(text_attribute(root, "status") == "numerical-error: state is NaN");
-    REQUIRE(numeric_attribute<double>(root, "steps", H5::PredType::NATIVE_DOUBLE) == 17.0);
+    REQUIRE(numeric_attribute<std::int64_t>(root, "steps", H5::PredType::NATIVE_INT64) == 17);
   }
 
   SECTION("destroying the writer before finish() removes the temporary file") {
@@ -462,7 +471,7 @@ TEST_CASE("HDF5 writer: unwritable places throw OutputError", "[hdf5_writer]") {
       REQUIRE(what.find("Not a directory") != std::string::npos);
     }
     // After a failed begin(), an incomplete finish() has nothing to do.
-    REQUIRE_NOTHROW(w.finish({false, "failed", 0, {}}));
+    REQUIRE_NOTHROW(w.finish({false, "failed", 0, {}, {}}));
     REQUIRE(w.final_path().empty());
   }
 

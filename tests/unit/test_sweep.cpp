@@ -303,14 +303,14 @@ TEST_CASE("The sweep layout names each field once and gives its units", "[sweep]
   std::sort(names.begin(), names.end());
   CHECK(std::adjacent_find(names.begin(), names.end()) == names.end());
   CHECK(t.field("flap_harmonics").width == 5);
-  CHECK(t.cite("pitch_amplitude", SweepPoint{}) == "pitch_amplitude[direction 0, value_1 index 0]");
+  CHECK(t.cite("pitch_amplitude", SweepPoint{}) == "pitch_amplitude[direction 0, nondimensional_reduced_speed index 0]");
   CHECK_THROWS_AS(t.field("no_such_table"), InternalError);
 }
 
 TEST_CASE("The map's tables are the layout's fields, written through the sink handed over", "[sweep]") {
   // Common practice, no source (CF conventions: units and long_name on every
   // variable): every field of the layout is one table over (direction,
-  // value_1) with the layout's units, each point's value in its cell; with
+  // the swept axis) with the layout's units, each point's value in its cell; with
   // no flutter overlay handed over the writer adds none (it runs no
   // analysis itself).
   const SweepRequest r = request(4, 1);
@@ -331,16 +331,18 @@ TEST_CASE("The map's tables are the layout's fields, written through the sink ha
     CHECK(m.tables.at("pitch_amplitude").data[t.cell(p)] == p.lco.dof[kPitch].amplitude);
   CHECK(m.tables.count("lco_prediction/value") == 0);
   CHECK(m.numbers.count("@linear_flutter_value") == 0);
-  // The swept axis carries the key's units (a reduced speed is a pure number).
-  CHECK(m.tables.at("value_1").units == "1");
+  // The swept axis is named after its key (CF 1.10 §2.3: letters, digits,
+  // underscores) and carries the key's units (a reduced speed is a pure number).
+  CHECK(m.tables.at("nondimensional_reduced_speed").units == "1");
   SweepRequest airspeed = r;
   airspeed.case_text = read_file_bytes(AEROSECT_SOURCE_DIR "/cases/demo_aileron.toml");
   airspeed.options.axes = {SweepAxis{"flow.airspeed", {20.0, 30.0}}, SweepAxis{"springs.flap.half_gap_deg", {0.5, 1.0}}};
   const Case ca = parse_case(airspeed.case_text, airspeed.case_path, airspeed.overrides);
   MemoryTables ma;
   write_sweep_tables(ma, ca, airspeed, {}, nullptr);
-  CHECK(ma.tables.at("value_1").units == "m s-1");
-  CHECK(ma.tables.at("value_2").units == "degree");
+  CHECK(ma.tables.at("flow_airspeed").units == "m s-1");
+  CHECK(ma.tables.at("springs_flap_half_gap_deg").units == "degree");
+  CHECK(ma.tables.at("cycles").dims == std::vector<std::string>{"direction", "flow_airspeed", "springs_flap_half_gap_deg"});
 }
 
 TEST_CASE("A sweep leaves the case's gusts out unless asked", "[sweep][gust]") {

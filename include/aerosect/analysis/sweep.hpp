@@ -156,19 +156,25 @@ nlohmann::json point_json(const SweepPoint& p);
 // fields of every point, `cycle` those of a settled cycle (periodic points;
 // NaN elsewhere). Each field once, with name, units and long_name: the HDF5
 // tables, the journal records and the merge are generated from it.
+// The map's axis of a swept case key: the key with '.' as '_'
+// ("flow.airspeed" -> "flow_airspeed"), a netCDF name of letters, digits and
+// underscores (CF 1.10 §2.3).
+std::string sweep_axis_name(const std::string& key);
+
 struct SweepTables {
   int ndof = 2;
   std::size_t n1 = 0, n2 = 1;         // values of axis 1 and 2 (1 without a second axis)
+  std::string axis1, axis2;           // their names in the map (sweep_axis_name)
   std::size_t harmonics = 0, samples = 0;
   bool traces = false;
   Layout<SweepPoint> point, cycle;
-  // Index of a point's cell in the (direction, value_1, value_2) grid.
+  // Index of a point's cell in the (direction, axis 1, axis 2) grid.
   std::size_t cell(const SweepPoint& p) const;
   // The field named `name` (InternalError when the layout has none): the
   // study's provenance rows name the map's tables through it.
   const Field<SweepPoint>& field(std::string_view name) const;
-  // "name[direction d, value_1 index i]" (", value_2 index j" with a second
-  // axis): where a point's value of that field is in the map.
+  // "name[direction d, flow_airspeed index i]" (", AXIS2 index j" with a
+  // second axis): where a point's value of that field is in the map.
   std::string cite(std::string_view name, const SweepPoint& p) const;
 };
 SweepTables sweep_tables(const SweepRequest& r, int ndof);

@@ -43,12 +43,20 @@ struct RunMetadata {
   std::int64_t expected_rows = 0;
 };
 
+// A number describing a run, with its UDUNITS units ("1" when dimensionless).
+struct OutcomeNumber {
+  std::string name;   // e.g. "end_time", "pitch_max"
+  double value = 0;
+  std::string units;  // e.g. "s", "rad"
+};
+
 // What is known when a run ends.
 struct RunOutcome {
   bool completed = true;        // false when stopped by an error or interruption
   std::string status;           // "completed", "cancelled", "numerical-error: ..."
   std::int64_t samples = 0;
-  std::vector<std::pair<std::string, double>> numbers;  // e.g. {"steps", 1234}
+  std::vector<std::pair<std::string, std::int64_t>> counts;  // e.g. {"steps", 1234}
+  std::vector<OutcomeNumber> numbers;                        // e.g. {"end_time", 3.0, "s"}
 };
 
 class TimeHistorySink {

@@ -8,12 +8,12 @@
 //   doc.integer_axis("mode", {1, 2, 3}, "mode number");
 //   doc.dataset("nominal/state_space/damping_ratio", {"speed", "mode"}, data,
 //               "1", "damping ratio");        // groups created as needed
-//   doc.number_attribute("nominal/state_space", "flutter_speed", 71.2);
+//   doc.number_attribute("nominal/state_space", "flutter_speed", 71.2, "m s-1");
 //   doc.commit();                             // written: rename into place
 //
 // Conventions shared with Hdf5TimeHistoryWriter (one implementation of the
-// HDF5 details): fixed-length null-terminated UTF-8 text attributes (netCDF
-// NC_CHAR), creation order tracked, every dataset with `units` and
+// HDF5 details): variable-length UTF-8 text attributes (netCDF NC_STRING,
+// str in h5py), creation order tracked, every dataset with `units` and
 // `long_name`, axes as HDF5 dimension scales attached to every dimension of
 // every dataset that names them. Data are row-major (the last dimension
 // varies fastest); datasets larger than 64 KiB are chunked and compressed.
@@ -53,15 +53,34 @@ class Hdf5Document : public TableSink {
 
   // A double dataset at `path` ("group/sub/name"; groups created as needed)
   // over the named axes; data.size() must equal the product of their lengths.
+  // In a group, an axis defined elsewhere is replaced by the group's own
+  // copy of it ("group/sub/speed": values, units, long_name and a comment),
+  // made on first use, so that a netCDF-4 reader opening the group alone
+  // (xarray's open_dataset(path, group=...)) finds its coordinates; a name
+  // that copy needs being taken by another object is refused.
   void dataset(const std::string& path, const std::vector<std::string>& dims,
                std::span<const double> data, const std::string& units,
                const std::string& long_name) override;
 
+  // An int64 dataset whose fill value kIntegerFill is declared (_FillValue);
+  // a class (flags given) has flag_values and flag_meanings and no units.
+  void integer_dataset(const std::string& path, const std::vector<std::string>& dims,
+                       std::span<const std::int64_t> data, const std::string& units,
+                       const std::string& long_name, const Flags& flags) override;
+  // _FillValue = NaN on the double dataset at `path`.
+  void nan_fill(const std::string& path) override;
+  // flag_values (int32, the axis's type) and flag_meanings on an integer
+  // axis, whose units are removed.
+  void axis_flags(const std::string& name, const Flags& flags) override;
+
   // Attributes on the root ("" or "/"), a group or a dataset (created as a
-  // group when nothing is at that path yet).
+  // group when nothing is at that path yet). A number's units go into the
+  // text attribute NAME_units beside it ("1" for an integer: counts, flags
+  // and indices are dimensionless).
   void text_attribute(const std::string& object, const std::string& name,
                       const std::string& value) override;
-  void number_attribute(const std::string& object, const std::string& name, double value) override;
+  void number_attribute(const std::string& object, const std::string& name, double value,
+                        const std::string& units) override;
   void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) override;
 
   // Close and rename onto the target path. Throws OutputError.
@@ -82,7 +101,8 @@ class Hdf5Document : public TableSink {
 std::string read_text_attribute(const std::string& path, const std::string& name);
 // A double dataset, flattened row-major; InputError when missing, or when it
 // holds other than `expected` values (checked before anything is read: a
-// file never decides how much is allocated).
+// file never decides how much is allocated). An integer dataset reads as
+// doubles, its declared _FillValue as NaN.
 std::vector<double> read_double_dataset(const std::string& path, const std::string& name,
                                         std::size_t expected);
 

@@ -2,15 +2,17 @@
 // A TimeHistorySink that writes one run to an HDF5 file readable as netCDF-4
 // (CF-1.8 metadata), so that h5py, ncdump and xarray all understand it.
 //
-// Layout (every string attribute is a fixed-length, null-terminated UTF-8
-// string, which netCDF-4 reads as text):
+// Layout (every string attribute is a scalar variable-length UTF-8 string,
+// netCDF-4's NC_STRING, which h5py reads as str):
 //   /                       attributes Conventions = "CF-1.8", title,
 //                           aerosect_file_kind, each RunMetadata text
 //                           attribute; written by finish(): complete (int32
 //                           0/1), status (string), samples (int64, the rows
 //                           in the file) and each RunOutcome number (double)
 //   /time                   double [n], unlimited; dimension scale "time";
-//                           units, long_name, standard_name = "time", axis = "T"
+//                           units, long_name, comment: elapsed time, not a
+//                           calendar time, so no standard_name or axis
+//                           (CF 1.10 §4.4 asks those for "s since EPOCH")
 //   /<channel>              double [n] (width 1) or [n x width] (width > 1);
 //                           units, long_name; dimension 0 attached to /time
 //   /<component axis>       int32 [width], values 1..width; dimension scale

@@ -5,11 +5,12 @@
 // merge of shard files, provenance strings). A writer writes through a
 // TableSink it is handed (Hdf5Document in files, MemoryTables in tests).
 //
-// Records sit on a grid of cells (e.g. direction x value_1 x value_2 of a
+// Records sit on a grid of cells (e.g. direction x the swept keys of a
 // sweep): a field of width W is a dataset over the grid's dimensions plus,
 // when W > 1, one more dimension `axis` of length W (harmonics, samples of a
 // cycle); row-major, the last dimension fastest. Cells without a record, and
-// records for which the field is absent (`present` false), hold NaN.
+// records for which the field is absent (`present` false), hold the fill
+// value the dataset declares: NaN, or kIntegerFill in an integer field.
 
 #include <cmath>
 #include <cstddef>
@@ -30,6 +31,18 @@
 
 namespace aerosect {
 
+// A class variable's codes and their names (CF 1.10 §3.5 flags):
+// flag_values and flag_meanings, one blank-free word per value.
+struct Flags {
+  std::vector<std::int64_t> values;
+  std::string meanings;  // e.g. "decayed periodic_lco non_periodic"
+};
+
+// The fill value of integer tables (counts and classes are never negative):
+// cells without a value hold it, declared as their _FillValue (CF 1.10
+// §2.5.1). Double tables use NaN.
+inline constexpr std::int64_t kIntegerFill = -1;
+
 // Where the tables of a result go. Hdf5Document is one; MemoryTables keeps
 // them for tests.
 class TableSink {
@@ -42,8 +55,23 @@ class TableSink {
                             const std::string& long_name) = 0;
   virtual void dataset(const std::string& path, const std::vector<std::string>& dims,
                        std::span<const double> data, const std::string& units, const std::string& long_name) = 0;
+  // An int64 table (a count, or a class when `flags` has values: then
+  // without units, a code being no quantity) whose cells without a value
+  // hold kIntegerFill, declared as _FillValue.
+  virtual void integer_dataset(const std::string& path, const std::vector<std::string>& dims,
+                               std::span<const std::int64_t> data, const std::string& units,
+                               const std::string& long_name, const Flags& flags) = 0;
+  // Declares NaN the _FillValue of the double dataset at `path` (cells
+  // without a value: a point not run, a run not periodic).
+  virtual void nan_fill(const std::string& path) = 0;
+  // Makes the integer axis `name` a class (CF 1.10 §3.5): flag_values in
+  // its own type and flag_meanings, and no units.
+  virtual void axis_flags(const std::string& name, const Flags& flags) = 0;
   virtual void text_attribute(const std::string& object, const std::string& name, const std::string& value) = 0;
-  virtual void number_attribute(const std::string& object, const std::string& name, double value) = 0;
+  // A number with its UDUNITS units (NAME_units beside NAME); an integer
+  // (a count, flag or index) is dimensionless, units "1".
+  virtual void number_attribute(const std::string& object, const std::string& name, double value,
+                                const std::string& units) = 0;
   virtual void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) = 0;
 };
 
@@ -72,14 +100,32 @@ class MemoryTables : public TableSink {
                const std::string& units, const std::string& long_name) override {
     tables[path] = {dims, {data.begin(), data.end()}, units, long_name};
   }
+  // Integers as doubles, the fill value as NaN; the flags as text.
+  void integer_dataset(const std::string& path, const std::vector<std::string>& dims,
+                       std::span<const std::int64_t> data, const std::string& units, const std::string& long_name,
+                       const Flags& flags) override {
+    Table t{dims, {}, units, long_name};
+    for (const std::int64_t v : data)
+      t.data.push_back(v == kIntegerFill ? std::numeric_limits<double>::quiet_NaN() : static_cast<double>(v));
+    tables[path] = std::move(t);
+    if (!flags.values.empty()) text[path + "@flag_meanings"] = flags.meanings;
+  }
+  void nan_fill(const std::string& path) override { text[path + "@_FillValue"] = "NaN"; }
+  void axis_flags(const std::string& name, const Flags& flags) override {
+    text[name + "@flag_meanings"] = flags.meanings;
+    tables[name].units.clear();
+  }
   void text_attribute(const std::string& object, const std::string& name, const std::string& value) override {
     text[object + "@" + name] = value;
   }
-  void number_attribute(const std::string& object, const std::string& name, double value) override {
+  void number_attribute(const std::string& object, const std::string& name, double value,
+                        const std::string& units) override {
     numbers[object + "@" + name] = value;
+    text[object + "@" + name + "_units"] = units;
   }
   void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) override {
     numbers[object + "@" + name] = static_cast<double>(value);
+    text[object + "@" + name + "_units"] = "1";
   }
 };
 
@@ -98,6 +144,10 @@ struct Field {
   // for them in a refusal.
   std::function<bool(double)> valid = {};
   std::string allowed = {};
+  // Written as an int64 table (a count or a class) rather than doubles;
+  // a class names its codes (CF 1.10 §3.5 flags).
+  bool integer = false;
+  Flags flags = {};
 };
 template <class T>
 using Layout = std::vector<Field<T>>;
@@ -126,6 +176,8 @@ bool is_list(const Field<T>& f) {
 // cells) from `records`, placed by `cell_of`.
 // Each dataset's path is `prefix` + the field's name (prefix "group/" puts
 // the tables in a group).
+// Cells without a record, and absent fields, hold the declared fill value
+// (NaN, or kIntegerFill for an integer field).
 template <class T>
 void write_layout(TableSink& sink, const Layout<T>& layout, const std::vector<std::string>& dims,
                   std::size_t cells, const std::vector<T>& records,
@@ -139,7 +191,15 @@ void write_layout(TableSink& sink, const Layout<T>& layout, const std::vector<st
     }
     std::vector<std::string> d = dims;
     if (is_list(f)) d.push_back(f.axis);
-    sink.dataset(prefix + f.name, d, v, f.units, f.long_name);
+    if (f.integer) {
+      std::vector<std::int64_t> n(v.size(), kIntegerFill);
+      for (std::size_t k = 0; k < v.size(); ++k)
+        if (std::isfinite(v[k])) n[k] = static_cast<std::int64_t>(v[k]);
+      sink.integer_dataset(prefix + f.name, d, n, f.units, f.long_name, f.flags);
+    } else {
+      sink.dataset(prefix + f.name, d, v, f.units, f.long_name);
+      sink.nan_fill(prefix + f.name);
+    }
   }
 }
 

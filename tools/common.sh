@@ -13,6 +13,7 @@ AEROSECT_PACKAGES=(
   libcli11-dev nlohmann-json3-dev nettle-dev
   hdf5-tools netcdf-bin
   python3-h5py python3-numpy python3-scipy python3-matplotlib python3-netcdf4 python3-xarray
+  pybind11-dev python3-dev python3-h5netcdf python3-pytest  # the Python package and its tests (tests/python)
   chromium python3-websocket  # the HTML report's browser test (tests/integration/browser.py)
 )
 

@@ -23,7 +23,12 @@ with warnings.catch_warnings():
     import netCDF4
 
 from . import InputError, NumericalError, OutputError
-from . import _core
+try:
+    from . import _core
+except ImportError as e:  # python/ of the source tree holds the Python files only
+    raise ImportError(f"aerosect's C++ module is not in {os.path.dirname(os.path.abspath(__file__))}: "
+                      "build it (tools/demo or tools/test; CMake target aerosect_python) and put "
+                      "build/python on PYTHONPATH") from e
 
 _core.set_exception_types(InputError, NumericalError, OutputError)
 

@@ -11,6 +11,8 @@
 // or any exception a signal handler raises) sets the cancel flag the engine
 // is handed, the engine stops at its next check, and the exception is
 // raised once the worker has ended. Other Python threads run meanwhile.
+// (Python runs signal handlers in its main thread only: a run started from
+// another thread is not stopped by Ctrl-C.)
 //
 // The engine's typed errors become aerosect.InputError (a ValueError),
 // aerosect.NumericalError (a RuntimeError) and aerosect.OutputError (an
@@ -190,8 +192,8 @@ std::string orbits_case(const Case& c, const std::string& path, const BranchSett
 
 // The study's stages into `directory` (as `aerosect study` runs them; the
 // figures and the report are made by the Python side, then
-// write_study_report below). Returns the result, None when interrupted
-// (KeyboardInterrupt is raised then).
+// finish_study below). Interrupted, KeyboardInterrupt is raised; the files
+// finished so far stay in the folder and summary.json lists the stages done.
 StudyResult study_case(const Case& c, const std::string& directory, const std::optional<int>& jobs, int points,
                        const std::string& speeds) {
   const StudyOptions so = study_options(jobs, points, speeds);

@@ -148,3 +148,25 @@ def test_gil_released_during_a_run():
         t.join()
     assert seen["run_in_progress"] is True
     assert seen["total"] == sum(i * i for i in range(200000))
+
+
+def test_runs_leave_no_descriptors_or_files():
+    """Each run's output claim (a locked TARGET.lock, io/output_claim.hpp)
+    is released when the call ends, even when it fails or is interrupted: a
+    session of many runs holds no descriptor per run and leaves no
+    temporary folder behind."""
+    import glob
+    import tempfile
+
+    def descriptors():
+        return len(os.listdir("/proc/self/fd"))
+
+    aerosect.flutter(DEMO, speeds=(2, 160, 5))  # imports and first-use set-up
+    before, folders = descriptors(), set(glob.glob(os.path.join(tempfile.gettempdir(), "aerosect-*")))
+    for _ in range(5):
+        aerosect.flutter(DEMO, speeds=(2, 160, 5))
+        aerosect.simulate(aerosect.load_case(DEMO, simulation__duration=0.1))
+    with pytest.raises(aerosect.InputError):
+        aerosect.gust(DEMO, gradients="0:1:2")
+    assert descriptors() == before
+    assert set(glob.glob(os.path.join(tempfile.gettempdir(), "aerosect-*"))) == folders

@@ -13,7 +13,8 @@ AEROSECT_PACKAGES=(
   libcli11-dev nlohmann-json3-dev nettle-dev
   hdf5-tools netcdf-bin
   python3-h5py python3-numpy python3-scipy python3-matplotlib python3-netcdf4 python3-xarray
-  python3-h5netcdf python3-pytest  # the CF conventions test (tests/integration/test_cf_conventions.py)
+  pybind11-dev python3-dev  # the Python package (src/python, tests/python)
+  python3-h5netcdf python3-pytest  # its tests and the CF conventions test (tests/integration/test_cf_conventions.py)
   chromium python3-websocket  # the HTML report's browser test (tests/integration/browser.py)
 )
 

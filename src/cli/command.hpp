@@ -24,6 +24,7 @@
 
 #include <CLI/CLI.hpp>
 
+#include "aerosect/analysis/options.hpp"  // option values shared with the Python module
 #include "aerosect/error.hpp"
 
 namespace aerosect::cli {
@@ -64,23 +65,6 @@ struct CaseOptions {
 };
 void add_case_options(CLI::App* cmd, CaseOptions& o);
 
-// --- Option values -----------------------------------------------------------
-// "FROM:TO:N": the three numbers, or nullopt when the text is not of that form.
-struct Range {
-  double from = 0, to = 0;
-  long n = 0;
-  // N evenly spaced values from FROM to TO (FROM alone when N = 1).
-  std::vector<double> values() const;
-};
-std::optional<Range> parse_range(const std::string& text);
-
-// Threads: `jobs` when given, else every core. Given, it must be
-// 1 <= jobs <= max_jobs(), else InputError naming `option`.
-int jobs_or_all_cores(const std::optional<int>& jobs, const char* option = "--jobs");
-// The most threads a run may ask for: 256, or 4 per hardware thread on a
-// machine with more than 64.
-int max_jobs();
-
 // --- Checks of option values (before any work; InputError, exit 2) ----------
 // The longest path component of an output name, and the longest name: the
 // writers add suffixes (".part", ".lock", ".journal", ".incomplete") that
@@ -90,12 +74,6 @@ inline constexpr std::size_t kMaxOutputPath = 4000;
 // An output name given with `option` (-o): not empty, no component longer
 // than kMaxOutputComponent bytes, at most kMaxOutputPath bytes.
 void check_output_name(const std::string& option, const std::string& path);
-// `value` is a finite number in [lo, hi] (lo excluded when `open_lo`).
-void check_number(const std::string& option, double value, double lo, double hi, bool open_lo,
-                  const std::string& allowed);
-// A range option's values are distinct and increasing (the spacing is not
-// lost to rounding), e.g. 10:10.0000000000001:1000 is refused.
-bool distinct_values(const Range& r);
 
 // --- Output ------------------------------------------------------------------
 // Writes `s` to stdout as is.

@@ -5,7 +5,6 @@
 #include <cstdio>
 #include <iostream>
 #include <sstream>
-#include <thread>
 
 #include <fmt/format.h>
 
@@ -56,34 +55,6 @@ void add_case_options(CLI::App* cmd, CaseOptions& c) {
   cmd->add_flag("--json", c.json, "print a machine-readable summary on stdout");
 }
 
-std::vector<double> Range::values() const {
-  std::vector<double> v;
-  for (long i = 0; i < n; ++i) v.push_back(n == 1 ? from : from + (to - from) * i / (n - 1));
-  return v;
-}
-
-std::optional<Range> parse_range(const std::string& text) {
-  Range r;
-  char c1 = 0, c2 = 0;
-  std::istringstream in(text);
-  in >> r.from >> c1 >> r.to >> c2 >> r.n;
-  if (!in || c1 != ':' || c2 != ':' || !(in >> std::ws).eof() || !std::isfinite(r.from) ||
-      !std::isfinite(r.to))
-    return std::nullopt;
-  return r;
-}
-
-int max_jobs() { return static_cast<int>(std::max(256u, 4 * std::thread::hardware_concurrency())); }
-
-int jobs_or_all_cores(const std::optional<int>& jobs, const char* option) {
-  if (!jobs) return static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
-  if (*jobs < 1 || *jobs > max_jobs())
-    throw InputError({option, 0, 0}, option, std::to_string(*jobs), "is not a thread count",
-                     fmt::format("1 <= N <= {} (leave it out for one thread per core: {})", max_jobs(),
-                                 std::max(1u, std::thread::hardware_concurrency())));
-  return *jobs;
-}
-
 void check_output_name(const std::string& option, const std::string& path) {
   const std::string allowed = fmt::format(
       "a file name, at most {} bytes per folder or file name and {} bytes in all", kMaxOutputComponent,
@@ -102,20 +73,6 @@ void check_output_name(const std::string& option, const std::string& path) {
                        allowed);
     start = slash + 1;
   }
-}
-
-void check_number(const std::string& option, double value, double lo, double hi, bool open_lo,
-                  const std::string& allowed) {
-  if (!std::isfinite(value) || value < lo || (open_lo && value == lo) || value > hi)
-    throw InputError({option, 0, 0}, option, fmt::format("{}", value),
-                     std::isfinite(value) ? "is out of range" : "is not a finite number", allowed);
-}
-
-bool distinct_values(const Range& r) {
-  const std::vector<double> v = r.values();
-  for (std::size_t k = 1; k < v.size(); ++k)
-    if (!(v[k] > v[k - 1])) return false;
-  return true;
 }
 
 void print(const std::string& s) { std::fwrite(s.data(), 1, s.size(), stdout); }

@@ -21,31 +21,11 @@ struct FlutterCommandOptions : CaseOptions {
   const CLI::Option* output_option = nullptr;  // given even as -o ""?
 };
 
-// "FROM:TO:N" -> N speeds from FROM to TO (m/s), ascending.
-std::vector<double> parse_speeds(const std::string& text) {
-  const auto r = parse_range(text);
-  if (!r || !(r->from >= 0) || !(r->to > r->from) || !(r->to < 1000) || r->n < 2 || r->n > 100000 ||
-      !distinct_values(*r))
-    throw InputError({"--speeds " + text, 0, 0}, "--speeds", text, "is not a valid speed range",
-                     "FROM:TO:N with 0 <= FROM < TO < 1000 (m s-1, true airspeed; the theory is "
-                     "incompressible), 2 <= N <= 100000 distinct speeds, e.g. --speeds 10:120:221");
-  std::vector<double> s = r->values();
-  if (s.front() == 0.0) s.front() = 1e-6 * r->to;  // U = 0 has no reduced frequency
-  return s;
-}
-
 int run(const FlutterCommandOptions& o) {
   // Every option is checked before the case is read and any work is done.
   if (o.output_option->count() > 0) check_output_name("-o", o.output);
-  FlutterOptions fo;
-  if (!o.speeds.empty()) fo.speeds = parse_speeds(o.speeds);
-  if (o.amplitude)
-    check_number("--amplitude", *o.amplitude, 0, 1e6, true,
-                 "a positive finite amplitude (degrees for pitch/flap springs, m for plunge)");
+  FlutterOptions fo = flutter_options(o.speeds, o.method, o.amplitude);
   const Case c = load_case(o.case_path, o.overrides);
-  fo.state_space = o.method != "pk";
-  fo.pk = o.method != "state-space";
-  fo.amplitude = o.amplitude;
   fo.cancel = cancel_flag();
   return analyse_write_print(
       o.output, [&] { return flutter_analysis(c, fo); },

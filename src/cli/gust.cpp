@@ -19,23 +19,10 @@ struct GustOptions : CaseOptions {
   const CLI::Option* output_option = nullptr;  // given even as -o ""?
 };
 
-// "FROM:TO:N" in metres for gust gradients.
-std::vector<double> parse_gradients(const std::string& text) {
-  const auto r = parse_range(text);
-  // H sets the length of each run (the gust lasts 2H/U): 1 km is ten times
-  // the longest CS-25 gradient; 1 cm is far below any design gust.
-  if (!r || !(r->from >= 0.01) || !(r->to >= r->from) || !(r->to <= 1000) || r->n < 1 || r->n > 10000 ||
-      (r->n > 1 && !distinct_values(*r)) || (r->n == 1 && r->to != r->from))
-    throw InputError({"--gradients " + text, 0, 0}, "--gradients", text, "is not a valid gradient range",
-                     "FROM:TO:N with 0.01 <= FROM <= TO <= 1000 (m), 1 <= N <= 10000 distinct "
-                     "gradients (N = 1 when FROM = TO), e.g. --gradients 9.144:106.68:12");
-  return r->values();
-}
-
 int run(const GustOptions& o) {
   // Every option is checked before the case is read and any work is done.
   if (o.output_option->count() > 0) check_output_name("-o", o.output);
-  const std::vector<double> g = o.gradients.empty() ? default_gradients() : parse_gradients(o.gradients);
+  const std::vector<double> g = gust_gradients(o.gradients);
   const Case c = load_case(o.case_path, o.overrides);
   return analyse_write_print(
       o.output, [&] { return gust_gradient_sweep(c, g, cancel_flag(), o.keep_initial ? GustStart::kCaseInitial : GustStart::kRest); },

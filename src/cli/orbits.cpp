@@ -32,37 +32,16 @@ struct OrbitsOptions : CaseOptions {
 int run(const OrbitsOptions& oo) {
   // The options that need no case are checked before it is read.
   check_output_name("-o", oo.output);
-  if (oo.points < 2 || oo.points > 100000)
-    throw InputError({"--points", 0, 0}, "--points", std::to_string(oo.points), "is out of range", "2 to 100000 points");
-  for (const auto& [name, v] : {std::pair{"--from", oo.from}, std::pair{"--to", oo.to}})
-    if (v && !std::isfinite(*v))
-      throw InputError({name, 0, 0}, name, fmt::format("{}", *v), "is not a finite number",
-                       "a finite value of the continued key, in its units");
-  if (oo.start_amplitude && (!(*oo.start_amplitude > 0) || !std::isfinite(*oo.start_amplitude)))
-    throw InputError({"--start-amplitude", 0, 0}, "--start-amplitude", fmt::format("{}", *oo.start_amplitude),
-                     "is not a positive amplitude", "a positive number, degrees for pitch/flap, m for plunge");
+  const BranchSettings settings{.key = oo.key,
+                               .from = oo.from,
+                               .to = oo.to,
+                               .start = oo.start,
+                               .start_amplitude = oo.start_amplitude,
+                               .points = oo.points,
+                               .watch = oo.watch};
+  check_branch_settings(settings);
   const Case c = load_case(oo.case_path, oo.overrides);
-  BranchOptions bo;
-  bo.key = oo.key;
-  bo.from = oo.from;
-  bo.to = oo.to;
-  bo.max_points = oo.points;
-  bo.start = oo.start == "hopf"         ? BranchStart::kHopf
-             : oo.start == "march"      ? BranchStart::kMarch
-             : oo.start == "describing" ? BranchStart::kDescribing
-                                        : BranchStart::kAuto;
-  if (oo.start_amplitude) bo.start_amplitude = *oo.start_amplitude;
-  if (!oo.watch.empty()) {
-    const int j = aerosect::dof_index(oo.watch);
-    if (j < 0 || j >= c.model.section.dof)
-      throw InputError({"--watch", 0, 0}, "--watch", oo.watch, "is not a DOF of this case",
-                       c.model.section.dof == 3 ? "plunge, pitch or flap" : "plunge or pitch");
-    bo.orbit.watched_dof = j;
-  }
-  if (oo.start_amplitude) {
-    const int w = bo.orbit.watched_dof >= 0 ? bo.orbit.watched_dof : orbit_watched_dof(AeroelasticModel(c.model), -1);
-    if (w != 0) bo.start_amplitude *= aerosect::kRadPerDeg;
-  }
+  const BranchOptions bo = branch_options(c, settings);
   const bool tty = isatty(2);
   const auto t0 = std::chrono::steady_clock::now();
   auto progress = [&](const BranchPoint& p, int n) {

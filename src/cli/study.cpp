@@ -22,9 +22,6 @@ namespace aerosect::cli {
 
 namespace {
 
-// Most airspeeds of the study's LCO sweep per direction (each is a run).
-constexpr int kMaxStudySweepPoints = 10000;
-
 struct StudyCommandOptions : CaseOptions {
   std::string directory, speeds;
   std::optional<int> jobs;
@@ -60,23 +57,7 @@ bool make_figures(const StudyResult& r, const std::string& dir, bool no_plots,
 int run(const StudyCommandOptions& o) {
   // Every option is checked before the case is read and any work is done.
   check_output_name("-o", o.directory);
-  StudyOptions so;
-  so.jobs = jobs_or_all_cores(o.jobs);
-  if (o.points < 2 || o.points > kMaxStudySweepPoints)
-    throw InputError({"--sweep-points", 0, 0}, "--sweep-points", std::to_string(o.points), "is out of range",
-                     fmt::format("2 <= N <= {} airspeeds per direction", kMaxStudySweepPoints));
-  so.sweep_points = o.points;
-  if (!o.speeds.empty()) {
-    const auto r = parse_range(o.speeds);
-    if (!r || !(r->from > 0) || !(r->to > r->from) || !(r->to < 1000) || r->n < 2 || r->n > kMaxStudySweepPoints ||
-        !distinct_values(*r))
-      throw InputError({"--sweep-speeds " + o.speeds, 0, 0}, "--sweep-speeds", o.speeds, "is not a valid speed range",
-                       fmt::format("FROM:TO:N with 0 < FROM < TO < 1000 (m s-1, true airspeed) and 2 <= N <= {} "
-                                   "distinct speeds, e.g. --sweep-speeds 10:90:41",
-                                   kMaxStudySweepPoints));
-    so.sweep_speeds = std::make_pair(r->from, r->to);
-    so.sweep_points = static_cast<int>(r->n);
-  }
+  const StudyOptions so = study_options(o.jobs, o.points, o.speeds);
   const Case c = load_case(o.case_path, o.overrides);
   const auto t0 = std::chrono::steady_clock::now();
   auto progress = [&](const std::string& stage) {

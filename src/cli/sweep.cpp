@@ -33,54 +33,18 @@ struct SweepCommandOptions : CaseOptions {
   bool with_gusts = false;
 };
 
-// "KEY=FROM:TO:N" for --vary.
-SweepAxis parse_vary(const std::string& text) {
-  const auto eq = text.find('=');
-  const auto r = eq != std::string::npos && eq > 0 ? parse_range(text.substr(eq + 1)) : std::nullopt;
-  if (!r || !(r->to > r->from) || r->n < 2 || r->n > kMaxAxisValues || !distinct_values(*r))
-    throw InputError({"--vary " + text, 0, 0}, "--vary", text, "is not a valid sweep",
-                     fmt::format("KEY=FROM:TO:N with a numeric case key, finite FROM < TO and 2 <= N <= {} "
-                                 "distinct values, e.g. --vary nondimensional.reduced_speed=1:7:61",
-                                 kMaxAxisValues));
-  return {text.substr(0, eq), r->values()};
-}
-
 // The request from the options alone (the case text comes later): every
 // option is checked here, before the case is read and any file is made.
 SweepRequest make_request(const SweepCommandOptions& o) {
   check_output_name("-o", o.output);
-  SweepRequest req;
-  req.overrides = o.overrides;
-  if (o.vary.empty() || o.vary.size() > 2)
-    throw InputError({"--vary", 0, 0}, "--vary", "", "give one or two --vary options",
-                     "--vary KEY=FROM:TO:N [--vary KEY2=FROM:TO:N]");
-  for (const auto& v : o.vary) req.options.axes.push_back(parse_vary(v));
-  if (req.options.axes.size() == 2 && req.options.axes[0].key == req.options.axes[1].key)
-    throw InputError({"--vary " + o.vary[1], 0, 0}, "--vary", o.vary[1],
-                     "varies the same key as the first --vary", "two --vary options with different keys");
-  req.options.up = o.direction != "down";
-  req.options.down = o.direction != "up";
-  req.options.continuation = o.restart == "continue";
-  req.options.traces = o.traces;
-  req.options.with_gusts = o.with_gusts;
-  req.options.jobs = jobs_or_all_cores(o.jobs);
-  const long points = (o.direction == "both" ? 2 : 1) * static_cast<long>(req.options.axes[0].values.size()) *
-                      (req.options.axes.size() > 1 ? static_cast<long>(req.options.axes[1].values.size()) : 1);
-  if (points > kMaxSweepPoints)
-    throw InputError({"--vary", 0, 0}, "--vary", fmt::format("{} points", points), "is too large a sweep",
-                     fmt::format("at most {} points over both directions and the whole grid", kMaxSweepPoints));
-  if (!o.shard.empty()) {
-    int k = 0, n = 0;
-    char slash = 0;
-    std::istringstream in(o.shard);
-    in >> k >> slash >> n;
-    if (!in || slash != '/' || n < 1 || k < 1 || k > n || !(in >> std::ws).eof())
-      throw InputError({"--shard " + o.shard, 0, 0}, "--shard", o.shard, "is not a shard",
-                       "K/N with 1 <= K <= N, e.g. --shard 2/8");
-    req.options.shard_index = k;
-    req.options.shard_count = n;
-  }
-  return req;
+  return sweep_request({.overrides = o.overrides,
+                        .vary = o.vary,
+                        .direction = o.direction,
+                        .restart = o.restart,
+                        .jobs = o.jobs,
+                        .shard = o.shard,
+                        .traces = o.traces,
+                        .with_gusts = o.with_gusts});
 }
 
 // The journal's head: the request, and a digest of each recorded gust's

@@ -41,6 +41,16 @@ class Registry {
 
   ~Registry() { release(); }
 
+  // One claim (as release() does for all); nothing when it is not held.
+  void release(const std::string& lock_path) {
+    const std::lock_guard<std::mutex> lock(mutex_);
+    const auto it = claims_.find(lock_path);
+    if (it == claims_.end()) return;
+    ::unlink(it->first.c_str());
+    ::close(it->second);
+    claims_.erase(it);
+  }
+
   void release() {
     const std::lock_guard<std::mutex> lock(mutex_);
     for (auto& [path, fd] : claims_) {
@@ -126,6 +136,8 @@ void register_input(const std::string& path) {
 }
 
 void release_output_claims() { Registry::instance().release(); }
+
+void release_output_claim(const std::string& target) { Registry::instance().release(target + ".lock"); }
 
 void claim_output(const std::string& target) {
   if (target.empty()) throw OutputError(target, "no file name given");

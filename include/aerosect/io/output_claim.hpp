@@ -37,4 +37,10 @@ void claim_output(const std::string& target);
 // without running static destructors (std::_Exit after an HDF5 failure).
 void release_output_claims();
 
+// Releases this process's claim on `target` (its lock file removed; nothing
+// when it holds none), for a long-lived process that is done with that
+// output: the Python module, whose runs write many files in one process,
+// would otherwise hold a descriptor per file until it ends.
+void release_output_claim(const std::string& target);
+
 }  // namespace aerosect

@@ -52,14 +52,15 @@ bool rest_unstable(const AeroelasticModel& model) {
 
 }  // namespace
 
+int lco_watched_dof(const AeroelasticModel& model, const LcoSettings& settings) {
+  if (settings.watch_dof >= 0) return settings.watch_dof;
+  if (!model.nonlinear_springs().empty()) return model.nonlinear_springs().front();
+  return kPitch;
+}
+
 LcoTracker::LcoTracker(const AeroelasticModel& model, LcoSettings settings)
     : model_(model), s_(settings) {
-  watch_ = kPitch;
-  if (s_.watch_dof >= 0) {
-    watch_ = s_.watch_dof;
-  } else if (!model.nonlinear_springs().empty()) {
-    watch_ = model.nonlinear_springs().front();
-  }
+  watch_ = lco_watched_dof(model, s_);
   const SpringLaw& law = model.description().springs[watch_];
   const auto bp = law.breakpoints();
   if (!bp.empty()) {

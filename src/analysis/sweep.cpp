@@ -36,6 +36,37 @@ struct Chain {
   int direction, j;
 };
 
+// A shard's and a thread's unit of work: the independent runs of a sweep.
+// With continuation a whole chain (each point starts from the one before);
+// with fresh starts a single point (steps k_begin..k_end - 1 along the
+// chain's direction). So any shard count gets work while there are units.
+struct Unit {
+  Chain chain;
+  int k_begin, k_end;
+};
+
+// This shard's units (unit index modulo N == K - 1), in a fixed order.
+std::vector<Unit> shard_units(const SweepOptions& o) {
+  const int n1 = o.axes.empty() ? 0 : static_cast<int>(o.axes[0].values.size());
+  const int n2 = o.axes.size() > 1 ? static_cast<int>(o.axes[1].values.size()) : 1;
+  std::vector<Unit> mine;
+  std::size_t index = 0;
+  auto offer = [&](const Unit& u) {
+    if (static_cast<int>(index++ % static_cast<std::size_t>(o.shard_count)) == o.shard_index - 1) mine.push_back(u);
+  };
+  for (int d : {0, 1}) {
+    if ((d == 0 && !o.up) || (d == 1 && !o.down)) continue;
+    for (int j = 0; j < n2; ++j) {
+      if (o.continuation) {
+        offer({{d, j}, 0, n1});
+      } else {
+        for (int k = 0; k < n1; ++k) offer({{d, j}, k, k + 1});
+      }
+    }
+  }
+  return mine;
+}
+
 // Every spring region index inside its law's regions 0..n (n breakpoints):
 // a state read back from a journal is used only then.
 bool valid_regions(const Case& c, const std::vector<int>& regions) {
@@ -250,16 +281,7 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
   const SweepOptions& o = r.options;
   AEROSECT_CHECK(!o.axes.empty() && o.axes.size() <= 2);
   const int n1 = static_cast<int>(o.axes[0].values.size());
-  const int n2 = o.axes.size() > 1 ? static_cast<int>(o.axes[1].values.size()) : 1;
-  std::vector<Chain> chains;
-  for (int d : {0, 1}) {
-    if ((d == 0 && !o.up) || (d == 1 && !o.down)) continue;
-    for (int j = 0; j < n2; ++j) chains.push_back({d, j});
-  }
-  std::vector<Chain> mine;
-  for (std::size_t c = 0; c < chains.size(); ++c)
-    if (static_cast<int>(c % static_cast<std::size_t>(o.shard_count)) == o.shard_index - 1)
-      mine.push_back(chains[c]);
+  const std::vector<Unit> mine = shard_units(o);
   std::map<Key, SweepPoint> known;
   for (const auto& p : done) known[{p.direction, p.j, p.i}] = p;
 
@@ -282,11 +304,12 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
           beside();
           continue;
         }
-        const Chain ch = mine[item - first];
+        const Unit& u = mine[item - first];
+        const Chain ch = u.chain;
         const SweepPoint* previous = nullptr;
         std::vector<SweepPoint>& out = results[item - first];
-        out.reserve(static_cast<std::size_t>(n1));
-        for (int k = 0; k < n1; ++k) {
+        out.reserve(static_cast<std::size_t>(u.k_end - u.k_begin));
+        for (int k = u.k_begin; k < u.k_end; ++k) {
           if (cancel && cancel->load()) break;
           const int i = ch.direction == 0 ? k : n1 - 1 - k;
           auto it = known.find({ch.direction, ch.j, i});
@@ -486,15 +509,9 @@ std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepR
 
 std::size_t sweep_point_count(const SweepRequest& r) {
   const SweepOptions& o = r.options;
-  const std::size_t n1 = o.axes.empty() ? 0 : o.axes[0].values.size();
-  const std::size_t n2 = o.axes.size() > 1 ? o.axes[1].values.size() : 1;
-  std::size_t chains = 0, mine = 0;
-  for (int d : {0, 1}) {
-    if ((d == 0 && !o.up) || (d == 1 && !o.down)) continue;
-    for (std::size_t j = 0; j < n2; ++j, ++chains)
-      if (static_cast<int>(chains % static_cast<std::size_t>(o.shard_count)) == o.shard_index - 1) ++mine;
-  }
-  return mine * n1;
+  std::size_t points = 0;
+  for (const Unit& u : shard_units(o)) points += static_cast<std::size_t>(u.k_end - u.k_begin);
+  return points;
 }
 
 SweepSummary summarize(const std::vector<SweepPoint>& points, int jj) {
@@ -973,7 +990,9 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
   }
   write_layout<SweepPoint>(doc, t.cycle, dims, cells, points, cell);
   doc.integer_attribute("", "cycle_samples", o.cycle.samples);
-  if (!points.empty()) doc.text_attribute("", "watched_dof", kDofNames[points.front().lco.watched_dof]);
+  // From the case, so that a shard without points (more shards than
+  // units) writes the same attribute and merges.
+  doc.text_attribute("", "watched_dof", kDofNames[lco_watched_dof(AeroelasticModel(c.model), o.lco)]);
   // Linear flutter speeds and the describing-function LCO curve, in the
   // units of the swept key, for the bifurcation plot's overlay.
   if (overlay) {

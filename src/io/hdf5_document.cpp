@@ -144,7 +144,10 @@ class Document {
     a.integer = true;
     a.integers.assign(values.begin(), values.end());
     a.length = values.size();
-    a.units = "1";
+    // assign(count, char), not = "1": GCC 12 warns (-Wrestrict, a false
+    // positive of its memcpy bounds analysis) on the literal once this file
+    // is compiled in a unity batch.
+    a.units.assign(1, '1');
     a.long_name = long_name;
     new_axis(name, std::move(a));
   }

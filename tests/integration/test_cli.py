@@ -112,6 +112,30 @@ with tempfile.TemporaryDirectory() as tmp:
     r = run("merge", *parts, "-o", merged)
     check("merge exit", r.returncode == 0, r.stderr)
     check("merged equals unsharded", *same_files(sw, merged))
+    # Shards by independent unit: with fresh starts every point is one, so
+    # 4 shards of a one-chain (up only) 5-point sweep each get work; with
+    # continuation the one chain is the unit, so of 3 shards two are empty:
+    # they still write valid files, and both merges equal the unsharded run.
+    for restart, count, per_shard in (("fresh", 4, [2, 1, 1, 1]), ("continue", 3, [5, 0, 0])):
+        base = ["--vary", "flow.airspeed=20:60:5", "--direction", "up", "--restart", restart,
+                "--jobs", "1", "--set", "simulation.duration=2.0"]
+        whole = os.path.join(tmp, f"whole_{restart}.h5")
+        r = run("sweep", DEMO, *base, "-o", whole)
+        check(f"{restart}: unsharded exit", r.returncode == 0, r.stderr)
+        uparts = []
+        for k in range(1, count + 1):
+            upart = os.path.join(tmp, f"{restart}_part{k}.h5")
+            r = run("sweep", DEMO, *base, "-o", upart, "--shard", f"{k}/{count}", "--json")
+            check(f"{restart}: shard {k}/{count} exit", r.returncode == 0, r.stderr)
+            if r.returncode == 0:
+                got = json.loads(r.stdout)["points_computed"]
+                check(f"{restart}: shard {k}/{count} runs its units' points", got == per_shard[k - 1],
+                      (got, per_shard))
+            uparts.append(upart)
+        umerged = os.path.join(tmp, f"merged_{restart}.h5")
+        r = run("merge", *uparts, "-o", umerged)
+        check(f"{restart}: merge of {count} shards exit", r.returncode == 0, r.stderr)
+        check(f"{restart}: merged equals unsharded", *same_files(whole, umerged))
     # --traces: one settled cycle per periodic point (2-DOF freeplay LCOs);
     # --jobs 1 equals --jobs 2, shards merged equal the unsharded file
     fcase = os.path.join(tmp, "freeplay.toml")

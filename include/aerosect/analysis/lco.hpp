@@ -139,6 +139,10 @@ SettledCycle sample_settled_cycle(const AeroelasticModel& model, RunState& run, 
                                   const IntegratorSettings& settings, const CycleSettings& cycle,
                                   int watched_dof);
 
+// The DOF whose peaks decide the response class: settings.watch_dof when
+// given, else the first DOF with a nonlinear spring, else pitch.
+int lco_watched_dof(const AeroelasticModel& model, const LcoSettings& settings);
+
 class LcoTracker {
  public:
   LcoTracker(const AeroelasticModel& model, LcoSettings settings);

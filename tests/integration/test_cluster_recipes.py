@@ -258,8 +258,8 @@ def test_slurm():
     cpus = len(os.sched_getaffinity(0))
     daemons = Daemons()
     env = dict(os.environ)
-    # The sockets' folders must be reachable by everyone (munged checks it).
     with tempfile.TemporaryDirectory() as tmp:
+        # munged refuses a socket whose folders not everyone can enter.
         os.chmod(tmp, 0o755)
         previous_term = signal.signal(signal.SIGTERM, lambda *_: sys.exit(143))
         try:
@@ -277,8 +277,8 @@ def test_slurm():
             env["SLURM_CONF"] = conf
             sock = os.path.join(tmp, "munge", "munge.socket")
             logs = {"munged": os.path.join(tmp, "munged.out"),
-                    "slurmctld": os.path.join(tmp, "slurmctld.log"),
-                    "slurmd": os.path.join(tmp, "slurmd.log")}
+                    "slurmctld": os.path.join(tmp, "slurmctld.out"),
+                    "slurmd": os.path.join(tmp, "slurmd.out")}
 
             daemons.start("munged", [exes["munged"], "--foreground", f"--socket={sock}",
                                      f"--key-file={key}", f"--log-file={tmp}/munge/munged.log",
@@ -291,10 +291,10 @@ def test_slurm():
                 return enc.returncode == 0
             wait_for("a working munge socket", munge_works, 15, daemons, logs)
 
+            # In the foreground each also writes its log to stderr: the .out files.
             daemons.start("slurmctld", [exes["slurmctld"], "-D", "-f", conf],
-                          os.path.join(tmp, "slurmctld.out"), env)
-            daemons.start("slurmd", [exes["slurmd"], "-D", "-f", conf],
-                          os.path.join(tmp, "slurmd.out"), env)
+                          logs["slurmctld"], env)
+            daemons.start("slurmd", [exes["slurmd"], "-D", "-f", conf], logs["slurmd"], env)
 
             def node_idle():
                 r = subprocess.run([exes["sinfo"], "-h", "-n", host, "-o", "%T"], env=env,

@@ -18,6 +18,13 @@ AEROSECT_PACKAGES=(
   chromium python3-websocket  # the HTML report's browser test (tests/integration/browser.py)
 )
 
+# tools/test also installs these for the README's cluster recipes, run
+# verbatim on a single-node Slurm the test starts itself and with GNU parallel
+# (tests/integration/test_cluster_recipes.py). Not in the list above because
+# tools/demo needs none of them and Debian's packages enable the munge and
+# Slurm services on a machine with systemd (a container does not start them).
+AEROSECT_CLUSTER_PACKAGES=(slurmctld slurmd slurm-client munge parallel)
+
 # The hardened stages of tools/test (sanitizer build, tools/fuzz) also need
 # clang with its sanitizer and libFuzzer runtimes.
 AEROSECT_CHECK_PACKAGES=(clang libclang-rt-14-dev)

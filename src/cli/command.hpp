@@ -42,6 +42,7 @@ Command add_sweep_command(CLI::App& app);
 Command add_merge_command(CLI::App& app);
 Command add_study_command(CLI::App& app);
 Command add_orbits_command(CLI::App& app);
+Command add_batch_command(CLI::App& app);
 
 // --- Signals -------------------------------------------------------------
 // Installs the SIGINT/SIGTERM handlers and ignores SIGXFSZ (once, from main).

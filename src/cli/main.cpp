@@ -82,7 +82,7 @@ int main(int argc, char** argv) {
   const std::vector<cli::Command> commands = {
       cli::add_check_command(app), cli::add_simulate_command(app), cli::add_flutter_command(app),
       cli::add_gust_command(app),  cli::add_sweep_command(app),    cli::add_merge_command(app),
-      cli::add_study_command(app), cli::add_orbits_command(app),
+      cli::add_study_command(app), cli::add_orbits_command(app), cli::add_batch_command(app),
   };
 
   try {

@@ -1026,7 +1026,7 @@ double sweep_value_per_speed(const Case& c, const std::string& key) {
 }
 
 std::optional<FlutterReport> sweep_overlay(const Case& c, const SweepRequest& r, const std::atomic<bool>* cancel) {
-  if (sweep_value_per_speed(c, r.options.axes[0].key) == 0.0) return std::nullopt;
+  if (r.options.shard_count > 1 || sweep_value_per_speed(c, r.options.axes[0].key) == 0.0) return std::nullopt;
   FlutterOptions fo;
   fo.pk = false;
   fo.cancel = cancel;

@@ -228,7 +228,10 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
 // for nondimensional.reduced_speed), 0 for any other key.
 double sweep_value_per_speed(const Case& c, const std::string& key);
 // The linear flutter analysis (state-space) of the map's overlay, when the
-// first key is the airspeed or the reduced speed; nullopt otherwise. Throws
+// first key is the airspeed or the reduced speed; nullopt otherwise, and for
+// a shard (shard_count > 1): a shard file is only merged, and the merge
+// computes the overlay once for the whole map (before, each of N shards
+// computed it too: about 0.5-1 s of a short shard's run on the demo). Throws
 // Cancelled when `cancel` is set.
 std::optional<FlutterReport> sweep_overlay(const Case& c, const SweepRequest& r,
                                            const std::atomic<bool>* cancel = nullptr);

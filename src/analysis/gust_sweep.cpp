@@ -155,6 +155,13 @@ constexpr const char* kCs23Note =
     "V_D; gust length 25 mean chords) recalled from memory: check them against the applicable rule's text; the "
     "rule's gust alleviation factor is not applied (Kussner aerodynamics in time replace it)";
 
+// The same, as indented lines of the text report.
+constexpr const char* kCs23Text =
+    "    CAUTION: the small-aircraft rule's values (U_de 50 ft/s EAS at V_C to 20 000 ft, linear to 25 ft/s\n"
+    "    at 50 000 ft, half at V_D; gust length 25 mean chords) were recalled from memory: check them\n"
+    "    against the applicable rule's text. The rule's gust alleviation factor is not applied (Kussner\n"
+    "    aerodynamics in time replace it).\n";
+
 nlohmann::json sizing_json(const Case& c) {
   nlohmann::json a = nlohmann::json::array();
   for (const SizingLine& l : sizing_lines(c)) {
@@ -188,15 +195,15 @@ std::string sizing_text(const Case& c) {
   for (const SizingLine& l : sizing_lines(c)) {
     const char* vc = l.at_dive_speed ? "V_D" : "V_C";
     if (l.rule == GustRule::kCs25)
-      t += fmt::format("  gust {} sized by cs-25 (CS-25.341(a)) at {}, altitude {:.6g} m: U_ds {:.4g} m s-1 EAS "
+      t += fmt::format("  gust {} sized by cs-25 (CS-25.341(a)) at {}, altitude {:.6g} m:\n    U_ds {:.4g} m s-1 EAS "
                        "= {:.4g} m s-1 TAS at the case's H = {:.4g} m (re-sized at every H)\n",
                        l.gust, vc, l.altitude, l.velocity_eas, l.velocity_tas, l.gradient);
     else
-      t += fmt::format("  gust {} sized by cs-23 (small-aircraft rule) at {}, altitude {:.6g} m: U_de {:.4g} m s-1 "
-                       "EAS = {:.4g} m s-1 TAS, H = 12.5 mean chords = {:.4g} m (c-bar {:.4g} m, {}); U_de is "
-                       "kept at every H of the sweep\n    ({})\n",
+      t += fmt::format("  gust {} sized by cs-23 (small-aircraft rule) at {}, altitude {:.6g} m:\n    U_de {:.4g} m s-1 "
+                       "EAS = {:.4g} m s-1 TAS, H = 12.5 mean chords = {:.4g} m (c-bar {:.4g} m, {});\n"
+                       "    U_de is kept at every H of the sweep\n{}",
                        l.gust, vc, l.altitude, l.velocity_eas, l.velocity_tas, l.gradient, l.small->mean_chord,
-                       l.small->mean_chord_given ? "gust.mean_chord" : "the section's chord 2b", kCs23Note);
+                       l.small->mean_chord_given ? "gust.mean_chord" : "the section's chord 2b", kCs23Text);
   }
   return t;
 }
@@ -265,8 +272,16 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
   // (semichords travelled); loads stay in the files' units.
   const Presenter pr = presenter(c);
   const double b = c.model.section.semichord, U_over_b = c.model.flow.airspeed / b;
-  std::string head = pr.reduced ? fmt::format("  {:>8} {:>11}", "H/b", "U_ds/(b w_a)")
-                                : fmt::format("  {:>8} {:>11}", "H m", "U_ds m s-1");
+  // The design velocity column: U_de when the first 1-cos gust (the one the
+  // column follows) is sized by the small-aircraft rule, else U_ds.
+  const char* u = "U_ds";
+  for (const auto& p : c.model.gusts.profiles())
+    if (p.shape == GustShape::kOneMinusCosine) {
+      if (p.rule == GustRule::kCs23) u = "U_de";
+      break;
+    }
+  std::string head = pr.reduced ? fmt::format("  {:>8} {:>11}", "H/b", fmt::format("{}/(b w_a)", u))
+                                : fmt::format("  {:>8} {:>11}", "H m", fmt::format("{} m s-1", u));
   for (const auto& ch : columns) {
     const Extreme* e = first ? extreme(*first, ch) : nullptr;
     head += fmt::format(" {:>22}", ch + " " + (e ? shown(0, e->units).second : std::string("?")));

@@ -1001,12 +1001,17 @@ void gust_stage(Study& s) {
   for (std::size_t i = 0; i < profiles.size(); ++i) {
     const GustProfile& p = profiles[i];
     if (p.rule == GustRule::kNone) continue;
-    const bool vd = p.rule == GustRule::kCs25 ? gc.gust_regulation && gc.gust_regulation->at_dive_speed
-                                              : gc.small_aircraft_gust && gc.small_aircraft_gust->at_dive_speed;
-    const double altitude = p.rule == GustRule::kCs25 ? (gc.gust_regulation ? gc.gust_regulation->altitude : 0.0)
-                                                      : (gc.small_aircraft_gust ? gc.small_aircraft_gust->altitude : 0.0);
-    const std::string where = fmt::format("at {}, altitude {:.6g} m, {:.4g} m s-1 EAS, H = {:.4g} m", vd ? "V_D" : "V_C",
-                                          altitude, p.amplitude / p.eas_to_tas, p.gradient);
+    bool vd = false;
+    double altitude = 0;
+    if (p.rule == GustRule::kCs25 && gc.gust_regulation) {
+      vd = gc.gust_regulation->at_dive_speed;
+      altitude = gc.gust_regulation->altitude;
+    } else if (p.rule == GustRule::kCs23 && gc.small_aircraft_gust) {
+      vd = gc.small_aircraft_gust->at_dive_speed;
+      altitude = gc.small_aircraft_gust->altitude;
+    }
+    const std::string where = fmt::format("at {}, altitude {:.6g} m, {:.4g} m s-1 EAS, H = {:.4g} m",
+                                          vd ? "V_D" : "V_C", altitude, p.amplitude / p.eas_to_tas, p.gradient);
     const std::string id = profiles.size() > 1 ? fmt::format("gust_{}_design_velocity", i + 1)
                                                : std::string("gust_design_velocity");
     const std::string source = fmt::format("gust.h5: /parameters/gusts/gust_{}_amplitude", i + 1);

@@ -130,8 +130,8 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
       if (mean_chord)
         g.require(*mean_chord > 0, "mean_chord", "must be positive", "the mean geometric chord c-bar in m, > 0");
       const double chord = mean_chord.value_or(2 * b);
-      const std::string chord_text =
-          mean_chord ? fmt::format("mean_chord = {:g} m", chord) : fmt::format("the section's chord 2b = {:g} m", chord);
+      const std::string chord_text = mean_chord ? fmt::format("mean_chord = {:g} m", chord)
+                                                : fmt::format("the section's chord 2b = {:g} m", chord);
       std::string hk;  // the key that gave H ("" for the small-aircraft rule)
       double H = 0;
       if (design == "cs-23") {

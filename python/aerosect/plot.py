@@ -65,7 +65,9 @@ For a `gust-sweep` file (aerosect gust -o) it writes:
                       critical H of each starred; a U_ds-against-H panel on
                       top when the design gust velocity varies with H (CS-25
                       sizing), else U_ds in the caption with the altitude,
-                      airspeed and density; a note when the case starts away
+                      airspeed and density (for a CS-23-sized gust also that
+                      it is U_de, whose values are recalled from memory and
+                      to be checked against the rule's text); a note when the case starts away
                       from rest (the peaks then hold the release transient).
 The paths written are printed one per line. A file that is not an aerosect
 result, or of a kind without a plotter, exits with status 2.
@@ -1050,6 +1052,9 @@ def plot_gust_sweep(f, stem, outdir):
         caption.append(condition)
     if constant_design is not None:
         caption.append(f"design gust velocity {constant_design:.4g} m/s TAS at every H")
+    if text_attribute(f, "gust_1_design", "") == "cs-23":
+        caption.append("U_de of the small-aircraft rule (design = cs-23): values recalled from memory, "
+                       "check them against the rule's text")
     fig.suptitle(title + "\n" + "\n".join(caption), fontsize="small")
 
     # Under the axes, kept clear by the layout: the legend, then the small

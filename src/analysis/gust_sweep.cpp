@@ -41,7 +41,9 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
     double first = -1;
     for (auto& p : profiles) {
       if (p.shape != GustShape::kOneMinusCosine) continue;
-      if (p.regulation_sized && c.gust_regulation) {
+      // CS-25 gives U_ds for each H; the small-aircraft rule's U_de does not
+      // depend on H and is kept.
+      if (p.rule == GustRule::kCs25 && c.gust_regulation) {
         RegulationGustInputs in = *c.gust_regulation;
         in.gradient = H;
         p.amplitude = cs25_design_gust_velocity(in) * p.eas_to_tas;
@@ -112,6 +114,100 @@ GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradient
 }
 
 namespace {
+// The rule that sized each regulation-sized gust of the case, with its
+// inputs and what it gave (gust_sweep_json, gust_sweep_text).
+struct SizingLine {
+  std::size_t gust = 0;  // 1-based
+  GustRule rule = GustRule::kNone;
+  bool at_dive_speed = false;
+  double altitude = 0, velocity_eas = 0, velocity_tas = 0, gradient = 0;
+  const SmallAircraftGustInputs* small = nullptr;  // cs-23 only
+};
+
+std::vector<SizingLine> sizing_lines(const Case& c) {
+  std::vector<SizingLine> out;
+  const auto& gusts = c.model.gusts.profiles();
+  for (std::size_t i = 0; i < gusts.size(); ++i) {
+    const GustProfile& p = gusts[i];
+    SizingLine l;
+    l.gust = i + 1;
+    l.rule = p.rule;
+    l.velocity_tas = p.amplitude;
+    l.velocity_eas = p.amplitude / p.eas_to_tas;
+    l.gradient = p.gradient;
+    if (p.rule == GustRule::kCs25 && c.gust_regulation) {
+      l.at_dive_speed = c.gust_regulation->at_dive_speed;
+      l.altitude = c.gust_regulation->altitude;
+    } else if (p.rule == GustRule::kCs23 && c.small_aircraft_gust) {
+      l.at_dive_speed = c.small_aircraft_gust->at_dive_speed;
+      l.altitude = c.small_aircraft_gust->altitude;
+      l.small = &*c.small_aircraft_gust;
+    } else {
+      continue;
+    }
+    out.push_back(l);
+  }
+  return out;
+}
+
+constexpr const char* kCs23Note =
+    "small-aircraft rule values (U_de 50 ft/s EAS at V_C to 20 000 ft, linear to 25 ft/s at 50 000 ft, half at "
+    "V_D; gust length 25 mean chords) recalled from memory: check them against the applicable rule's text; the "
+    "rule's gust alleviation factor is not applied (Kussner aerodynamics in time replace it)";
+
+// The same, as indented lines of the text report.
+constexpr const char* kCs23Text =
+    "    CAUTION: the small-aircraft rule's values (U_de 50 ft/s EAS at V_C to 20 000 ft, linear to 25 ft/s\n"
+    "    at 50 000 ft, half at V_D; gust length 25 mean chords) were recalled from memory: check them\n"
+    "    against the applicable rule's text. The rule's gust alleviation factor is not applied (Kussner\n"
+    "    aerodynamics in time replace it).\n";
+
+nlohmann::json sizing_json(const Case& c) {
+  nlohmann::json a = nlohmann::json::array();
+  for (const SizingLine& l : sizing_lines(c)) {
+    nlohmann::json j = {{"gust", l.gust},
+                        {"rule", to_string(l.rule)},
+                        {"speed_condition", l.at_dive_speed ? "VD" : "VC"},
+                        {"altitude_m", l.altitude},
+                        {"gradient_m", l.gradient}};
+    if (l.rule == GustRule::kCs25) {
+      j["design_velocity_eas_m_s"] = l.velocity_eas;
+      j["design_velocity_tas_m_s"] = l.velocity_tas;
+      j["sweep"] = "U_ds = U_ref F_g (H/350 ft)^(1/6) (CS-25.341(a)), re-sized at every H of the sweep; "
+                   "the values here are at the case's H";
+    } else {
+      j["derived_gust_velocity_eas_m_s"] = l.velocity_eas;
+      j["derived_gust_velocity_tas_m_s"] = l.velocity_tas;
+      j["mean_chord_m"] = l.small->mean_chord;
+      j["mean_chord_from"] = l.small->mean_chord_given ? "gust.mean_chord" : "the section's chord 2b";
+      j["gust_length_chords"] = 2 * kCs23GustGradientChords;
+      j["sweep"] = "U_de does not depend on H: kept at every H of the sweep; gradient_m is the rule's H (12.5 mean "
+                   "chords)";
+      j["note"] = kCs23Note;
+    }
+    a.push_back(j);
+  }
+  return a;
+}
+
+std::string sizing_text(const Case& c) {
+  std::string t;
+  for (const SizingLine& l : sizing_lines(c)) {
+    const char* vc = l.at_dive_speed ? "V_D" : "V_C";
+    if (l.rule == GustRule::kCs25)
+      t += fmt::format("  gust {} sized by cs-25 (CS-25.341(a)) at {}, altitude {:.6g} m:\n    U_ds {:.4g} m s-1 EAS "
+                       "= {:.4g} m s-1 TAS at the case's H = {:.4g} m (re-sized at every H)\n",
+                       l.gust, vc, l.altitude, l.velocity_eas, l.velocity_tas, l.gradient);
+    else
+      t += fmt::format("  gust {} sized by cs-23 (small-aircraft rule) at {}, altitude {:.6g} m:\n    U_de {:.4g} m s-1 "
+                       "EAS = {:.4g} m s-1 TAS, H = 12.5 mean chords = {:.4g} m (c-bar {:.4g} m, {});\n"
+                       "    U_de is kept at every H of the sweep\n{}",
+                       l.gust, vc, l.altitude, l.velocity_eas, l.velocity_tas, l.gradient, l.small->mean_chord,
+                       l.small->mean_chord_given ? "gust.mean_chord" : "the section's chord 2b", kCs23Text);
+  }
+  return t;
+}
+
 // What the peaks contain, said with every report.
 std::string start_note(GustStart s) {
   return s == GustStart::kRest
@@ -126,6 +222,7 @@ nlohmann::json gust_sweep_json(const Case& c, const GustSweep& s, const std::str
   j["gust_convention"] = "gust velocity positive up at the leading edge; 1-cos profiles";
   j["start"] = to_string(s.start);
   j["start_note"] = start_note(s.start);
+  j["gust_sizing"] = sizing_json(c);
   j["points"] = nlohmann::json::array();
   for (const auto& p : s.points) {
     nlohmann::json pj;
@@ -153,7 +250,9 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
   std::string t = fmt::format("aerosect {} gust gradient sweep: {}\n", kVersion, c.path);
   if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
   t += "  one-minus-cosine gusts, velocity positive up at the leading edge\n";
-  t += fmt::format("  {}\n\n", start_note(s.start));
+  t += fmt::format("  {}\n", start_note(s.start));
+  t += sizing_text(c);
+  t += "\n";
   // One units vocabulary with the files (UDUNITS); angles shown in degrees
   // in the table and the critical lines alike; the flap columns only for a
   // 3-DOF section.
@@ -173,8 +272,16 @@ std::string gust_sweep_text(const Case& c, const GustSweep& s, const std::string
   // (semichords travelled); loads stay in the files' units.
   const Presenter pr = presenter(c);
   const double b = c.model.section.semichord, U_over_b = c.model.flow.airspeed / b;
-  std::string head = pr.reduced ? fmt::format("  {:>8} {:>11}", "H/b", "U_ds/(b w_a)")
-                                : fmt::format("  {:>8} {:>11}", "H m", "U_ds m s-1");
+  // The design velocity column: U_de when the first 1-cos gust (the one the
+  // column follows) is sized by the small-aircraft rule, else U_ds.
+  const char* u = "U_ds";
+  for (const auto& p : c.model.gusts.profiles())
+    if (p.shape == GustShape::kOneMinusCosine) {
+      if (p.rule == GustRule::kCs23) u = "U_de";
+      break;
+    }
+  std::string head = pr.reduced ? fmt::format("  {:>8} {:>11}", "H/b", fmt::format("{}/(b w_a)", u))
+                                : fmt::format("  {:>8} {:>11}", "H m", fmt::format("{} m s-1", u));
   for (const auto& ch : columns) {
     const Extreme* e = first ? extreme(*first, ch) : nullptr;
     head += fmt::format(" {:>22}", ch + " " + (e ? shown(0, e->units).second : std::string("?")));

@@ -204,14 +204,16 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
     const GustProfile& g = gusts[i];
     const std::string id = fmt::format("gust_{}", i + 1);
     m.text_attributes.push_back({id + "_shape", to_string(g.shape)});
+    if (g.regulation_sized) m.text_attributes.push_back({id + "_design", to_string(g.rule)});
     auto gp = [&](const char* name, double v, const char* units, const std::string& ln) {
       m.parameters.push_back({"gusts", id + "_" + name, v, units, fmt::format("[[gust]] {}: {}", i + 1, ln)});
     };
     gp("start", g.start, "s", "time the gust front reaches the leading edge");
     if (g.shape != GustShape::kRecorded)
       gp("amplitude", g.amplitude, "m s-1",
-         g.regulation_sized ? "design gust velocity U_ds as sized (true airspeed)"
-                            : "step height, 1-cos peak or sine amplitude (true airspeed)");
+         g.rule == GustRule::kCs25   ? "design gust velocity U_ds as sized (true airspeed)"
+         : g.rule == GustRule::kCs23 ? "derived gust velocity U_de as sized (true airspeed)"
+                                     : "step height, 1-cos peak or sine amplitude (true airspeed)");
     if (g.shape == GustShape::kOneMinusCosine) gp("gradient", g.gradient, "m", "gust gradient H");
     if (g.regulation_sized) gp("eas_to_tas", g.eas_to_tas, "1", "factor from EAS to TAS at the case's density");
     if (g.shape == GustShape::kSinusoidal) {
@@ -231,6 +233,31 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
     rp("reference_gust_velocity", cs25_reference_gust_velocity(in.altitude) * (in.at_dive_speed ? 0.5 : 1.0),
        "m s-1", "U_ref at the altitude (equivalent airspeed), halved at V_D");
     rp("flight_profile_alleviation", cs25_flight_profile_alleviation(in), "1", "F_g at the altitude");
+  }
+  // The inputs of the small-aircraft sizing (design = "cs-23") and what it
+  // derived from them; the rule's values are recalled from memory (gust.hpp).
+  if (c.small_aircraft_gust) {
+    const SmallAircraftGustInputs& in = *c.small_aircraft_gust;
+    const double eas_to_tas = eas_to_tas_factor(c.model.flow.density);
+    const double ude = cs23_derived_gust_velocity(in.altitude, in.at_dive_speed);
+    const auto rp = in_group("gust_sizing");
+    rp("altitude", in.altitude, "m", "altitude of the small-aircraft gust sizing (design = cs-23)");
+    rp("at_dive_speed", in.at_dive_speed ? 1.0 : 0.0, "1", "1: sized at V_D (U_de halved), 0: at V_C");
+    rp("mean_chord", in.mean_chord, "m",
+       in.mean_chord_given ? "mean geometric chord c-bar (gust.mean_chord)"
+                           : "mean chord c-bar, taken as the section's chord 2b (no gust.mean_chord)");
+    rp("gust_length_chords", 2 * kCs23GustGradientChords, "1",
+       "gust length 2H in mean chords (recalled from memory: check against the rule's text)");
+    rp("gradient", kCs23GustGradientChords * in.mean_chord, "m", "gust gradient H = 12.5 c-bar");
+    rp("derived_gust_velocity_eas", ude, "m s-1",
+       "U_de at the altitude, equivalent airspeed (recalled from memory: check against the rule's text)");
+    rp("derived_gust_velocity", ude * eas_to_tas, "m s-1", "U_de at the altitude, true airspeed at the case's density");
+    m.text_attributes.push_back(
+        {"gust_sizing_note",
+         "design = cs-23 (small-aircraft discrete gust): U_de = 50 ft/s EAS at V_C to 20 000 ft, linear to 25 ft/s "
+         "at 50 000 ft, half at V_D, gust length 25 mean chords; these values were recalled from memory, check "
+         "them against the applicable rule's text. The rule's gust alleviation factor is not applied: the gust "
+         "is simulated in time with Kussner aerodynamics, which replace it."});
   }
   return m;
 }

@@ -995,6 +995,35 @@ void gust_stage(Study& s) {
                      gs.points.front().gradient, gs.points.back().gradient,
                      c.altitude ? fmt::format(" at {:.4g} m (ISA)", *c.altitude) : std::string()),
          {"gust.h5"});
+  // The rule that sized each gust, as the gust report states it
+  // (regulation-sized gusts only).
+  const auto& profiles = gc.model.gusts.profiles();
+  for (std::size_t i = 0; i < profiles.size(); ++i) {
+    const GustProfile& p = profiles[i];
+    if (p.rule == GustRule::kNone) continue;
+    bool vd = false;
+    double altitude = 0;
+    if (p.rule == GustRule::kCs25 && gc.gust_regulation) {
+      vd = gc.gust_regulation->at_dive_speed;
+      altitude = gc.gust_regulation->altitude;
+    } else if (p.rule == GustRule::kCs23 && gc.small_aircraft_gust) {
+      vd = gc.small_aircraft_gust->at_dive_speed;
+      altitude = gc.small_aircraft_gust->altitude;
+    }
+    const std::string where = fmt::format("at {}, altitude {:.6g} m, {:.4g} m s-1 EAS, H = {:.4g} m",
+                                          vd ? "V_D" : "V_C", altitude, p.amplitude / p.eas_to_tas, p.gradient);
+    const std::string id = profiles.size() > 1 ? fmt::format("gust_{}_design_velocity", i + 1)
+                                               : std::string("gust_design_velocity");
+    const std::string source = fmt::format("gust.h5: /parameters/gusts/gust_{}_amplitude", i + 1);
+    if (p.rule == GustRule::kCs25)
+      s.speed_row(id, "Design gust velocity U_ds (design = cs-25, CS-25.341(a)) at the case's H", p.amplitude, source,
+                  where + "; re-sized at every H of the sweep");
+    else
+      s.speed_row(id, "Derived gust velocity U_de (design = cs-23, small-aircraft rule)", p.amplitude, source,
+                  where + " (12.5 mean chords); kept at every H of the sweep. Values recalled from memory: check "
+                          "them against the applicable rule's text; gust alleviation factor not applied (Kussner "
+                          "aerodynamics in time replace it)");
+  }
   for (const auto& cr : gs.critical) {
     if (cr.channel != "plunge" && cr.channel != "pitch" && cr.channel != "flap" && cr.channel != "lift" &&
         cr.channel != "pitching_moment" && cr.channel != "hinge_moment")

@@ -88,7 +88,8 @@ std::string study_figure_caption(const std::string& png_name) {
                         "sweep's periodic runs drawn over the branch (decayed runs are not LCOs and "
                         "are not drawn)."},
       {"gust_gust_peaks", "Design gust gradient sweep: peak responses against the gust gradient distance H "
-                    "(one-minus-cosine gusts sized per CS-25.341(a) when the case asks for it)."},
+                    "(one-minus-cosine gusts sized per CS-25.341(a) when the case asks for it; a gust given U_de by the "
+                    "small-aircraft rule, design = \"cs-23\", keeps it at every H)."},
       {"response_time", "Response to the case as given: time histories with the gust velocity on top."},
       {"response_phase", "Phase portraits of the response to the case as given."},
       {"lco_time", "Time history of the largest stable LCO inside the envelope, started on its "

@@ -820,6 +820,8 @@ std::string case_key_units(const std::string& key) {
       {"gust.amplitude", "m s-1"},
       {"gust.amplitude_eas", "m s-1"},
       {"gust.gradient", "m"},
+      {"gust.gradient_chords", "1"},
+      {"gust.mean_chord", "m"},
       {"gust.altitude", "m"},
       {"gust.landing_weight_ratio", "1"},
       {"gust.zero_fuel_weight_ratio", "1"},

@@ -31,6 +31,8 @@ const std::vector<std::string>& gust_case_keys() {
       "gust.amplitude",
       "gust.amplitude_eas",
       "gust.gradient",
+      "gust.gradient_chords",
+      "gust.mean_chord",
       "gust.design",
       "gust.speed_condition",
       "gust.altitude",
@@ -118,28 +120,74 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
     if (sk == "start_semichords") p.start = *g.number("start_semichords") * b / U;
     if (sk == "start_distance") p.start = *g.number("start_distance") / U;
     if (!sk.empty()) g.require(p.start >= 0, sk, "must not be negative", "s or semichords >= 0");
-    const std::string design = g.choice("design", {"cs-25"}, "");
+    const std::string design = g.choice("design", {"cs-25", "cs-23"}, "");
     const double eas_to_tas = eas_to_tas_factor(rho);
     if (p.shape == GustShape::kOneMinusCosine) {
-      const double H = g.required_number("gradient", "gust gradient distance H, m (9 to 107 m in CS-25.341)");
-      g.require(H > 0, "gradient", "must be positive", "H in m");
+      // The chord that gradient_chords and the small-aircraft rule's gust
+      // length count in: the case's mean geometric chord when given, else
+      // the section's chord 2b.
+      const std::optional<double> mean_chord = g.number("mean_chord");
+      if (mean_chord)
+        g.require(*mean_chord > 0, "mean_chord", "must be positive", "the mean geometric chord c-bar in m, > 0");
+      const double chord = mean_chord.value_or(2 * b);
+      const std::string chord_text = mean_chord ? fmt::format("mean_chord = {:g} m", chord)
+                                                : fmt::format("the section's chord 2b = {:g} m", chord);
+      std::string hk;  // the key that gave H ("" for the small-aircraft rule)
+      double H = 0;
+      if (design == "cs-23") {
+        // The rule sets the gust length: 2H = 25 mean chords.
+        for (const char* k : {"gradient", "gradient_chords"})
+          if (g.has(k))
+            g.fail(k, "conflicts with design = \"cs-23\" (the rule sets the gust length 2H = 25 mean chords)",
+                   "no gradient with design = \"cs-23\"; mean_chord (m) when the mean chord is not 2b");
+        H = kCs23GustGradientChords * chord;
+      } else {
+        hk = g.one_of({"gradient", "gradient_chords"});
+        if (hk.empty())
+          g.missing("gradient", "gust gradient distance H: gradient (m; 9 to 107 m in CS-25.341) or "
+                                "gradient_chords (H in mean chords)");
+        const double v = *g.number(hk);
+        g.require(v > 0, hk, "must be positive",
+                  hk == "gradient" ? "H in m, > 0" : "H in mean chords (c-bar, here " + chord_text + "), > 0");
+        H = hk == "gradient" ? v : v * chord;
+        if (mean_chord && hk != "gradient_chords")
+          g.fail("mean_chord", "is only used with gradient_chords or design = \"cs-23\"",
+                 "gradient_chords = H / c-bar, or design = \"cs-23\" (2H = 25 c-bar)");
+      }
       p.gradient = H;
-      if (design == "cs-25") {
+      if (!design.empty()) {
         for (const char* k : {"amplitude", "amplitude_eas"})
-          if (g.has(k)) g.fail(k, "conflicts with design = \"cs-25\" (which sizes the gust)",
-                               "either an amplitude or design = \"cs-25\" with its inputs");
-        g.require(H >= 30 * kMetresPerFoot - 1e-9 && H <= 350 * kMetresPerFoot + 1e-9, "gradient",
-                  "is outside the rule's range", "9.144 m <= H <= 106.68 m (30 to 350 ft)");
+          if (g.has(k)) g.fail(k, fmt::format("conflicts with design = \"{}\" (which sizes the gust)", design),
+                               fmt::format("either an amplitude or design = \"{}\" with its inputs", design));
+        const bool other = design == "cs-25" ? c.small_aircraft_gust.has_value() : c.gust_regulation.has_value();
+        if (other)
+          g.fail("design", fmt::format("mixes rules: another [[gust]] is sized by design = \"{}\"",
+                                       design == "cs-25" ? "cs-23" : "cs-25"),
+                 "one design rule per case (one aircraft, one rule)");
+      }
+      // The sizing altitude: the table's, else the [flow] altitude.
+      auto sizing_altitude = [&](double top, const std::string& range) {
+        if (auto a = g.number("altitude")) {
+          g.require(*a >= 0 && *a <= top, "altitude", "is out of range", range);
+          return *a;
+        }
+        if (!c.altitude) g.missing("altitude", "the altitude for the rule (m), needed when [flow] gives a density");
+        if (*c.altitude > top)
+          g.fail("altitude", fmt::format("is not given, and the [flow] altitude {:g} m is above the rule's range",
+                                         *c.altitude),
+                 range + " (give gust.altitude)");
+        return std::max(0.0, *c.altitude);
+      };
+      if (design == "cs-25") {
+        g.require(H >= 30 * kMetresPerFoot - 1e-9 && H <= 350 * kMetresPerFoot + 1e-9, hk,
+                  hk == "gradient" ? "is outside the rule's range"
+                                   : fmt::format("gives H = {:.6g} m with {}, outside the rule's range", H, chord_text),
+                  hk == "gradient" ? "9.144 m <= H <= 106.68 m (30 to 350 ft)"
+                                   : fmt::format("{:.4g} to {:.4g} chords (9.144 m <= H <= 106.68 m, 30 to 350 ft)",
+                                                 30 * kMetresPerFoot / chord, 350 * kMetresPerFoot / chord));
         RegulationGustInputs in;
         in.gradient = H;
-        if (auto a = g.number("altitude")) {
-          g.require(*a >= 0 && *a <= kIsaMaxAltitude, "altitude", "is out of range", "0 to 20000 m");
-          in.altitude = *a;
-        } else if (c.altitude) {
-          in.altitude = std::max(0.0, *c.altitude);
-        } else {
-          g.missing("altitude", "the altitude for the rule (m), needed when [flow] gives a density");
-        }
+        in.altitude = sizing_altitude(kIsaMaxAltitude, "0 to 20000 m");
         auto ratio = [&](const char* k) {
           const double v = g.required_number(k, "a weight ratio, 0 < ratio <= 1");
           g.require(v > 0 && v <= 1, k, "is not a weight ratio", "0 < ratio <= 1");
@@ -153,14 +201,36 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
         in.at_dive_speed = g.choice("speed_condition", {"VC", "VD"}, "VC") == "VD";
         p.amplitude = cs25_design_gust_velocity(in) * eas_to_tas;
         p.regulation_sized = true;
+        p.rule = GustRule::kCs25;
         p.eas_to_tas = eas_to_tas;
         c.gust_regulation = in;
+      } else if (design == "cs-23") {
+        // Small-aircraft rule (values recalled from memory, gust.hpp): U_de
+        // at V_C or V_D, which the case must state (no default: the two
+        // differ by a factor of two).
+        for (const char* k : {"landing_weight_ratio", "zero_fuel_weight_ratio", "max_operating_altitude"})
+          if (g.has(k)) g.fail(k, "is only used with design = \"cs-25\"", "design = \"cs-25\"");
+        const std::string condition = g.choice("speed_condition", {"VC", "VD"}, "");
+        if (condition.empty())
+          g.missing("speed_condition", "\"VC\" or \"VD\": design = \"cs-23\" needs the speed condition "
+                                       "(U_de at V_D is half that at V_C)");
+        SmallAircraftGustInputs in;
+        in.altitude = sizing_altitude(kCs23MaxAltitude, "0 to 15240 m (50 000 ft, the end of the rule's table)");
+        in.mean_chord = chord;
+        in.mean_chord_given = mean_chord.has_value();
+        in.at_dive_speed = condition == "VD";
+        p.amplitude = cs23_derived_gust_velocity(in.altitude, in.at_dive_speed) * eas_to_tas;
+        p.regulation_sized = true;
+        p.rule = GustRule::kCs23;
+        p.eas_to_tas = eas_to_tas;
+        c.small_aircraft_gust = in;
       }
     }
     if (turbulence) {
       // Continuous turbulence: a seeded record from the shaping filter
       // (turbulence.hpp), replayed as a recorded gust over the whole run.
-      for (const char* k : {"amplitude", "amplitude_eas", "design", "gradient", "file"})
+      for (const char* k :
+           {"amplitude", "amplitude_eas", "design", "gradient", "gradient_chords", "mean_chord", "file"})
         if (g.has(k)) g.fail(k, "is not used by turbulence", "model, intensity or severity, scale_length, seed");
       TurbulenceSpec spec;
       spec.model = g.choice("model", {"dryden", "von-karman"}, "von-karman") == "dryden"
@@ -211,7 +281,7 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
       p.label = fmt::format("{} turbulence sigma = {:.3g} m/s, L = {:.4g} m, seed {}", to_string(spec.model),
                             spec.intensity, spec.scale_length, spec.seed);
     } else if (recorded) {
-      for (const char* k : {"amplitude", "amplitude_eas", "design", "gradient"})
+      for (const char* k : {"amplitude", "amplitude_eas", "design", "gradient", "gradient_chords", "mean_chord"})
         if (g.has(k)) g.fail(k, "is not used by recorded gusts (scale the record with `scale`)",
                              "file, base, base_dataset, velocity_dataset, scale");
       const std::string file = g.string("file").value_or("");
@@ -233,17 +303,19 @@ void read_gusts(const toml::table& root, const Context& ctx, const Table& aero, 
       for (double w : rec.velocity) p.record_velocity.push_back(scale * w);
     } else if (design.empty() || p.shape != GustShape::kOneMinusCosine) {
       if (!design.empty()) g.fail("design", "applies to one-minus-cosine gusts only", "shape = \"one-minus-cosine\"");
-      for (const char* k : {"speed_condition", "altitude", "landing_weight_ratio",
-                            "zero_fuel_weight_ratio", "max_operating_altitude"})
+      for (const char* k : {"landing_weight_ratio", "zero_fuel_weight_ratio", "max_operating_altitude"})
         if (g.has(k)) g.fail(k, "is only used with design = \"cs-25\"", "design = \"cs-25\"");
+      for (const char* k : {"speed_condition", "altitude"})
+        if (g.has(k)) g.fail(k, "is only used with a design rule", "design = \"cs-25\" or \"cs-23\"");
       const std::string ak = g.required_one_of(
           {"amplitude", "amplitude_eas"}, "gust velocity in m/s: amplitude (true airspeed) or amplitude_eas");
       const double a = *g.number(ak);
       g.require(std::abs(a) < 100, ak, "is beyond any atmospheric gust", "|amplitude| < 100 m/s");
       p.amplitude = ak == "amplitude" ? a : a * eas_to_tas;
     }
-    if (p.shape != GustShape::kOneMinusCosine && g.has("gradient"))
-      g.fail("gradient", "is only used by one-minus-cosine gusts", "shape = \"one-minus-cosine\"");
+    for (const char* k : {"gradient", "gradient_chords", "mean_chord"})
+      if (p.shape != GustShape::kOneMinusCosine && g.has(k))
+        g.fail(k, "is only used by one-minus-cosine gusts", "shape = \"one-minus-cosine\"");
     if (p.shape == GustShape::kSinusoidal) {
       const std::string fk = g.required_one_of(
           {"frequency_hz", "reduced_frequency"}, "frequency_hz (Hz) or reduced_frequency (k = omega b / U)");

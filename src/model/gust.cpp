@@ -27,6 +27,15 @@ const char* to_string(GustShape s) {
   return "?";
 }
 
+const char* to_string(GustRule r) {
+  switch (r) {
+    case GustRule::kNone: return "none";
+    case GustRule::kCs25: return "cs-25";
+    case GustRule::kCs23: return "cs-23";
+  }
+  return "?";
+}
+
 namespace {
 // End time of a profile (inf when unbounded).
 double profile_end(const GustProfile& p, double U) {
@@ -147,6 +156,15 @@ double cs25_design_gust_velocity(const RegulationGustInputs& in) {
   const double uref = cs25_reference_gust_velocity(in.altitude) * (in.at_dive_speed ? 0.5 : 1.0);
   return uref * cs25_flight_profile_alleviation(in) *
          std::pow(in.gradient / (350 * kMetresPerFoot), 1.0 / 6.0);
+}
+
+// Values recalled from memory (gust.hpp): check against the rule's text.
+double cs23_derived_gust_velocity(double h, bool at_dive_speed) {
+  const double h20 = 20000 * kMetresPerFoot, h50 = 50000 * kMetresPerFoot;
+  const double u_low = 50 * kMetresPerFoot, u_high = 25 * kMetresPerFoot;  // V_C
+  const double hc = std::clamp(h, 0.0, h50);
+  const double ude = hc <= h20 ? u_low : u_low + (u_high - u_low) * (hc - h20) / (h50 - h20);
+  return at_dive_speed ? 0.5 * ude : ude;
 }
 
 }  // namespace aerosect

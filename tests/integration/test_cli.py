@@ -275,5 +275,39 @@ with tempfile.TemporaryDirectory() as tmp:
     check("gust --keep-initial", r.returncode == 0 and json.loads(r.stdout)["start"] == "case-initial",
           r.stderr[-300:])
 
+    # gust on a small-aircraft (cs-23) gust: the demo's gust sized by the
+    # light-aircraft rule at V_C. Values recalled from memory by the issue's
+    # author (#18), check against the rule's text: U_de = 50 ft/s = 15.24 m/s
+    # EAS at the demo's 1500 m (below 20 000 ft); H = 12.5 chords = 12.5 *
+    # 1.2 m = 15 m (the demo's chord 2b, no mean_chord given).
+    with open(DEMO) as f:
+        demo = f.read()
+    small = os.path.join(tmp, "small.toml")
+    with open(small, "w") as f:
+        f.write(demo.replace("gradient = 15.0", 'design = "cs-23"')
+                    .replace("amplitude_eas = 10.0", 'speed_condition = "VC"'))
+    small_h5 = os.path.join(tmp, "small_gust.h5")
+    r = run("gust", small, "--gradients", "15:15:1", "--json", "-o", small_h5)
+    check("gust cs-23 exit", r.returncode == 0, r.stderr[-500:])
+    if r.returncode == 0:
+        j = json.loads(r.stdout)
+        g = j["gust_sizing"][0] if j.get("gust_sizing") else {}
+        check("gust cs-23 json rule", g.get("rule") == "cs-23" and g.get("speed_condition") == "VC", g)
+        check("gust cs-23 json U_de EAS", abs(g.get("derived_gust_velocity_eas_m_s", 0) - 15.24) < 1e-9, g)
+        check("gust cs-23 json H", abs(g.get("gradient_m", 0) - 15.0) < 1e-12, g)
+        check("gust cs-23 json recalled", "recalled from memory" in g.get("note", ""), g)
+        check("gust cs-23 json caution", "safety-critical" in j.get("caution", ""))
+        import h5py
+        with h5py.File(small_h5) as f:
+            sz = f["parameters/gust_sizing"] if "parameters/gust_sizing" in f else {}
+            ude = float(sz["derived_gust_velocity_eas"][()]) if "derived_gust_velocity_eas" in sz else 0.0
+            check("gust cs-23 file: U_de EAS", abs(ude - 15.24) < 1e-9, list(sz.keys()) if sz else "no gust_sizing")
+            design = f.attrs.get("gust_1_design", b"")
+            design = design.decode() if isinstance(design, bytes) else str(design)
+            check("gust cs-23 file: rule named", design == "cs-23", design)
+    r = run("gust", small, "--gradients", "15:15:1")
+    check("gust cs-23 text", r.returncode == 0 and "sized by cs-23" in r.stdout and
+          "recalled from memory" in r.stdout and "safety-critical" in r.stdout, r.stdout[-800:] + r.stderr[-300:])
+
 print(f"{passed} passed, {failed} failed")
 sys.exit(1 if failed else 0)

@@ -434,3 +434,172 @@ TEST_CASE("Continuous turbulence in a case: seeded, reproducible, of the given i
                                          "label = \"turbulence-like step\"\n");
   CHECK_FALSE(d.model.gusts.profiles().front().turbulence.has_value());
 }
+
+TEST_CASE("Small-aircraft derived gust velocity (design = cs-23)", "[gust]") {
+  // Values recalled from memory by the issue's author (#18; no copy of the
+  // rule was at hand: check against the rule's text); linear interpolation
+  // worked by hand. U_de EAS at V_C: 50 ft/s up to 20 000 ft, linear to
+  // 25 ft/s at 50 000 ft; at V_D half of each. 1 ft = 0.3048 m (exact).
+  //   sea level:  50 ft/s = 15.24 m/s;         V_D 25 ft/s = 7.62 m/s
+  //   20 000 ft:  50 ft/s = 15.24 m/s;         V_D 25 ft/s = 7.62 m/s
+  //   35 000 ft:  50 - 25 (15 000/30 000) = 37.5 ft/s = 11.43 m/s;
+  //                                            V_D 18.75 ft/s = 5.715 m/s
+  //   50 000 ft:  25 ft/s = 7.62 m/s;          V_D 12.5 ft/s = 3.81 m/s
+  // Tolerance: the same arithmetic in double (only rounding differs).
+  const struct { double feet, vc, vd; } cases[] = {
+      {0, 15.24, 7.62}, {20000, 15.24, 7.62}, {35000, 11.43, 5.715}, {50000, 7.62, 3.81}};
+  for (const auto& c : cases) {
+    INFO(c.feet << " ft");
+    CHECK(cs23_derived_gust_velocity(c.feet * 0.3048, false) == Approx(c.vc).epsilon(1e-12));
+    CHECK(cs23_derived_gust_velocity(c.feet * 0.3048, true) == Approx(c.vd).epsilon(1e-12));
+  }
+  // The rule's gust length: 2H = 25 mean chords.
+  CHECK(2 * kCs23GustGradientChords == 25.0);
+  CHECK(kCs23MaxAltitude == Approx(50000 * 0.3048).epsilon(1e-15));
+}
+
+namespace {
+// The free section of kFree with its chord 2b = 1.5 m (a chord exact in
+// binary, so n chords in metres are exact), at 3000 m ISA.
+const std::string kChord15 =
+    "[section]\nsemichord = 0.75\nmass = 10.0\nelastic_axis = -0.2\ncg_offset = 0.1\n"
+    "radius_of_gyration = 0.5\nplunge_frequency_hz = 2.0\npitch_frequency_hz = 5.0\n"
+    "[flow]\naltitude = 3000.0\nairspeed = 60.0\n[simulation]\nduration = 0.5\n";
+}  // namespace
+
+TEST_CASE("A cs-23 gust is 1-cos of peak U_de over 25 mean chords, and is reported", "[gust]") {
+  // U_de from the rule's values recalled from memory (see the test above):
+  // at 3000 m (9843 ft, below 20 000 ft) 50 ft/s = 15.24 m/s EAS at V_C,
+  // 7.62 m/s at V_D; converted to TAS by sqrt(rho0 / rho) at the case's
+  // density. H = 12.5 chords: 12.5 * 1.5 m = 18.75 m (the section's 2b),
+  // 12.5 * 1.2 m = 15 m with mean_chord = 1.2.
+  const std::string gust = "[[gust]]\nshape = \"one-minus-cosine\"\ndesign = \"cs-23\"\n";
+  const Case vc = test::case_from(kChord15 + gust + "speed_condition = \"VC\"\n");
+  const double eas_to_tas = std::sqrt(1.225 / vc.model.flow.density);
+  REQUIRE(vc.model.gusts.profiles().size() == 1);
+  const GustProfile& p = vc.model.gusts.profiles().front();
+  CHECK(p.rule == GustRule::kCs23);
+  CHECK(p.regulation_sized);
+  CHECK(p.gradient == 18.75);
+  CHECK(p.amplitude == Approx(15.24 * eas_to_tas).epsilon(1e-12));
+  REQUIRE(vc.small_aircraft_gust);
+  CHECK(!vc.gust_regulation);
+  const Case vd = test::case_from(kChord15 + gust + "speed_condition = \"VD\"\nmean_chord = 1.2\naltitude = 10668.0\n");
+  const GustProfile& q = vd.model.gusts.profiles().front();
+  CHECK(q.gradient == Approx(15.0).epsilon(1e-15));
+  CHECK(q.amplitude == Approx(5.715 * eas_to_tas).epsilon(1e-12));  // 35 000 ft at V_D, TAS at the case's density
+  // The files carry the sizing as numbers (HDF5 /parameters/gust_sizing and
+  // `check --json` parameters) and name the rule.
+  const RunMetadata meta = case_metadata(vc, "simulation");
+  std::map<std::string, double> sizing;
+  for (const auto& m : meta.parameters)
+    if (m.group == "gust_sizing") sizing[m.name] = m.value;
+  CHECK(sizing.at("altitude") == 3000.0);
+  CHECK(sizing.at("at_dive_speed") == 0.0);
+  CHECK(sizing.at("mean_chord") == 1.5);
+  CHECK(sizing.at("gust_length_chords") == 25.0);
+  CHECK(sizing.at("gradient") == 18.75);
+  CHECK(sizing.at("derived_gust_velocity_eas") == Approx(15.24).epsilon(1e-12));
+  CHECK(sizing.at("derived_gust_velocity") == Approx(15.24 * eas_to_tas).epsilon(1e-12));
+  std::map<std::string, std::string> text;
+  for (const auto& [k, v] : meta.text_attributes) text[k] = v;
+  CHECK(text.at("gust_1_design") == "cs-23");
+  CHECK_THAT(text.at("gust_sizing_note"), Catch::Matchers::Contains("recalled from memory"));
+  // The gust sweep keeps U_de at every H (it does not depend on H) and its
+  // reports say which rule sized the gust, with the condition, altitude,
+  // U_de EAS and TAS and H, and keep the caution.
+  const GustSweep s = gust_gradient_sweep(vc, {9.144, 18.75});
+  REQUIRE(s.points.size() == 2);
+  for (const auto& pt : s.points) CHECK(pt.design_velocity == p.amplitude);
+  const nlohmann::json j = gust_sweep_json(vc, s, "");
+  REQUIRE(j.at("gust_sizing").size() == 1);
+  const nlohmann::json& g = j.at("gust_sizing")[0];
+  CHECK(g.at("rule") == "cs-23");
+  CHECK(g.at("speed_condition") == "VC");
+  CHECK(g.at("altitude_m").get<double>() == 3000.0);
+  CHECK(g.at("gradient_m").get<double>() == 18.75);
+  CHECK(g.at("derived_gust_velocity_eas_m_s").get<double>() == Approx(15.24).epsilon(1e-12));
+  CHECK(g.at("derived_gust_velocity_tas_m_s").get<double>() == Approx(15.24 * eas_to_tas).epsilon(1e-12));
+  CHECK_THAT(g.at("note").get<std::string>(), Catch::Matchers::Contains("recalled from memory"));
+  CHECK_THAT(j.at("caution").get<std::string>(), Catch::Matchers::Contains("safety-critical"));
+  const std::string t = gust_sweep_text(vc, s, "");
+  CHECK_THAT(t, Catch::Matchers::Contains("sized by cs-23"));
+  CHECK_THAT(t, Catch::Matchers::Contains("U_de 15.24 m s-1 EAS"));
+  CHECK_THAT(t, Catch::Matchers::Contains("recalled from memory"));
+  CHECK_THAT(t, Catch::Matchers::Contains("safety-critical"));
+}
+
+TEST_CASE("gradient_chords gives H = n mean chords, the same as gradient = n 2b", "[gust]") {
+  // Common practice, no source: a length in chords is n times the chord;
+  // 12.5 * 1.5 m = 18.75 m exactly.
+  const std::string amp = "[[gust]]\nshape = \"one-minus-cosine\"\namplitude = 3.0\n";
+  const Case in_chords = test::case_from(kChord15 + amp + "gradient_chords = 12.5\n");
+  const Case in_metres = test::case_from(kChord15 + amp + "gradient = 18.75\n");
+  CHECK(in_chords.model.gusts.profiles().front().gradient == 18.75);
+  CHECK(in_chords.model.gusts.profiles().front().gradient == in_metres.model.gusts.profiles().front().gradient);
+  CHECK(in_chords.model.gusts.profiles().front().amplitude == in_metres.model.gusts.profiles().front().amplitude);
+  // With a mean chord given: n c-bar.
+  const Case mean = test::case_from(kChord15 + amp + "gradient_chords = 10\nmean_chord = 2.5\n");
+  CHECK(mean.model.gusts.profiles().front().gradient == 25.0);
+  // A CS-25 gust may give H in chords: the same U_ds as in metres.
+  const std::string cs25 = "[[gust]]\nshape = \"one-minus-cosine\"\ndesign = \"cs-25\"\nlanding_weight_ratio = 0.9\n"
+                           "zero_fuel_weight_ratio = 0.8\nmax_operating_altitude = 12500.0\n";
+  const Case a = test::case_from(kChord15 + cs25 + "gradient_chords = 12.5\n");
+  const Case b = test::case_from(kChord15 + cs25 + "gradient = 18.75\n");
+  CHECK(a.model.gusts.profiles().front().amplitude == b.model.gusts.profiles().front().amplitude);
+  CHECK(a.model.gusts.profiles().front().rule == GustRule::kCs25);
+}
+
+TEST_CASE("Small-aircraft and gradient_chords keys are validated", "[gust][case][errors]") {
+  // Common practice, no source: this project's messages (file, line, key,
+  // value and what is allowed).
+  auto expect = [](const std::string& text, const std::string& key, const std::string& part) {
+    try {
+      (void)test::case_from(text);
+      FAIL("no error");
+    } catch (const InputError& e) {
+      INFO(e.what());
+      CHECK(e.key() == key);
+      CHECK_THAT(std::string(e.what()), Catch::Matchers::Contains(part));
+    }
+  };
+  const std::string one = kChord15 + "[[gust]]\nshape = \"one-minus-cosine\"\n";
+  const std::string cs23 = one + "design = \"cs-23\"\n";
+  expect(one + "amplitude = 3.0\ngradient = 10.0\ngradient_chords = 5.0\n", "gust.gradient_chords",
+         "conflicts with 'gust.gradient'");
+  expect(one + "amplitude = 3.0\ngradient_chords = 0.0\n", "gust.gradient_chords", "must be positive");
+  expect(one + "amplitude = 3.0\ngradient_chords = -2.0\n", "gust.gradient_chords", "mean chords");
+  expect(cs23 + "speed_condition = \"VC\"\namplitude_eas = 10.0\n", "gust.amplitude_eas",
+         "conflicts with design = \"cs-23\"");
+  expect(cs23 + "altitude = 1000.0\n", "gust.speed_condition", "missing");
+  expect(cs23 + "speed_condition = \"VB\"\n", "gust.speed_condition", "\"VC\"");
+  expect(cs23 + "speed_condition = \"VC\"\ngradient = 10.0\n", "gust.gradient", "rule sets the gust length");
+  expect(cs23 + "speed_condition = \"VC\"\ngradient_chords = 12.5\n", "gust.gradient_chords",
+         "rule sets the gust length");
+  expect(cs23 + "speed_condition = \"VC\"\nlanding_weight_ratio = 0.9\n", "gust.landing_weight_ratio",
+         "only used with design = \"cs-25\"");
+  expect(cs23 + "speed_condition = \"VC\"\naltitude = 16000.0\n", "gust.altitude", "0 to 15240 m");
+  expect(cs23 + "speed_condition = \"VC\"\nmean_chord = 0.0\n", "gust.mean_chord", "must be positive");
+  expect(one + "amplitude = 3.0\ngradient = 10.0\nmean_chord = 1.2\n", "gust.mean_chord",
+         "only used with gradient_chords or design = \"cs-23\"");
+  expect(kChord15 + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\ngradient_chords = 5.0\n",
+         "gust.gradient_chords", "only used by one-minus-cosine");
+  expect(one + "amplitude = 3.0\ngradient = 10.0\nspeed_condition = \"VD\"\n", "gust.speed_condition",
+         "only used with a design rule");
+  // CS-25 with H in chords: the rule's range said in chords (9.144 / 1.5 =
+  // 6.096 to 106.68 / 1.5 = 71.12).
+  expect(one + "design = \"cs-25\"\ngradient_chords = 80\nlanding_weight_ratio = 0.9\n"
+               "zero_fuel_weight_ratio = 0.8\nmax_operating_altitude = 12500.0\n",
+         "gust.gradient_chords", "6.096 to 71.12 chords");
+  // One rule per case.
+  expect(cs23 + "speed_condition = \"VC\"\n[[gust]]\nshape = \"one-minus-cosine\"\ndesign = \"cs-25\"\n"
+                "gradient = 30.0\nlanding_weight_ratio = 0.9\nzero_fuel_weight_ratio = 0.8\n"
+                "max_operating_altitude = 12500.0\n",
+         "gust.design", "mixes rules");
+  // Above the rule's table with no gust.altitude: the [flow] altitude is named.
+  expect("[section]\nsemichord = 0.75\nmass = 10.0\nelastic_axis = -0.2\ncg_offset = 0.1\n"
+         "radius_of_gyration = 0.5\nplunge_frequency_hz = 2.0\npitch_frequency_hz = 5.0\n"
+         "[flow]\naltitude = 16000.0\nairspeed = 60.0\n[simulation]\nduration = 0.5\n"
+         "[[gust]]\nshape = \"one-minus-cosine\"\ndesign = \"cs-23\"\nspeed_condition = \"VC\"\n",
+         "gust.altitude", "[flow] altitude 16000 m is above the rule's range");
+}

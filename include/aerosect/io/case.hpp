@@ -48,6 +48,7 @@ struct Case {
   SimulationSettings simulation;
   std::optional<double> dive_speed_eas;  // V_D, m/s equivalent airspeed ([envelope])
   std::optional<RegulationGustInputs> gust_regulation;  // inputs of a CS-25 sized 1-cos gust
+  std::optional<SmallAircraftGustInputs> small_aircraft_gust;  // inputs of a CS-23 sized 1-cos gust
   // Every other file the case read (recorded gusts), as resolved, in the
   // order read; reports name them with their SHA-256 (io/checksum.hpp).
   std::vector<std::string> input_files;

@@ -46,6 +46,11 @@ WagnerApproximation kussner_three_pole();  // c = (0.236, 0.513, 0.171), d = (0.
 enum class GustShape { kSharpEdged, kOneMinusCosine, kSinusoidal, kRecorded };
 const char* to_string(GustShape s);
 
+// The rule that sized a one-minus-cosine gust's velocity (kNone: the case
+// gave the amplitude). Case key `design`: "cs-25" or "cs-23".
+enum class GustRule { kNone, kCs25, kCs23 };
+const char* to_string(GustRule r);  // "none", "cs-25", "cs-23"
+
 struct GustProfile {
   GustShape shape = GustShape::kSharpEdged;
   double start = 0;       // s, gust front at the leading edge
@@ -55,7 +60,8 @@ struct GustProfile {
   double cycles = 0;      // sinusoidal duration in periods, 0 = unbounded
   std::vector<double> record_time;      // recorded: s from `start`, strictly increasing
   std::vector<double> record_velocity;  // recorded: m/s TAS, up positive
-  bool regulation_sized = false;        // 1-cos sized by cs25_design_gust_velocity
+  bool regulation_sized = false;        // 1-cos sized by a rule (see `rule`)
+  GustRule rule = GustRule::kNone;      // which rule sized it
   double eas_to_tas = 1;                // sqrt(rho0 / rho), for re-sizing
   std::string label;      // for reports, e.g. "1-cos H = 30 m"
   // Set for continuous turbulence: the specification the record (shape
@@ -117,5 +123,32 @@ struct RegulationGustInputs {
 double cs25_reference_gust_velocity(double altitude_m);  // U_ref, m/s EAS (at V_C)
 double cs25_flight_profile_alleviation(const RegulationGustInputs& in);  // F_g
 double cs25_design_gust_velocity(const RegulationGustInputs& in);        // U_ds, m/s EAS
+
+// Small-aircraft discrete gust: the one-minus-cosine gust of the
+// prescriptive light-aircraft rule (CS-23 / 14 CFR 23, case key
+// design = "cs-23").
+//   THE NUMBERS BELOW ARE RECALLED FROM MEMORY by the author of issue #18;
+//   no copy of the rule was at hand: check them against the rule's text.
+//   Gust length 2H = 25 mean geometric chords (H = 12.5 c-bar);
+//   derived gust velocity U_de (EAS) at V_C: 50 ft/s (15.24 m/s) from sea
+//   level to 20 000 ft (6096 m), linear to 25 ft/s (7.62 m/s) at 50 000 ft
+//   (15 240 m); at V_D half of each (25 ft/s, linear to 12.5 ft/s).
+//   The gust is w = (U_de/2) (1 - cos(pi x / H)), 0 <= x <= 2H, peak U_de.
+// The rule's load-factor formula multiplies U_de by a gust alleviation
+// factor K_g that stands for the unsteady build-up of lift and the
+// aircraft's plunge. It is NOT applied here: the gust is simulated in time
+// and Küssner's function (with the section's own motion) replaces it, so
+// the time-domain gust is the 1-cos of peak U_de over 25 chords.
+// c-bar is the case's gust.mean_chord, else the section's chord 2b.
+struct SmallAircraftGustInputs {
+  double altitude = 0;          // m
+  double mean_chord = 0;        // c-bar, m
+  bool mean_chord_given = false;  // false: c-bar = 2b of the section
+  bool at_dive_speed = false;   // V_D: U_de halved
+};
+inline constexpr double kCs23GustGradientChords = 12.5;  // H / c-bar (2H = 25 c-bar)
+inline constexpr double kCs23MaxAltitude = 15240;         // m (50 000 ft): the end of the rule's table
+// U_de, m/s EAS, for 0 <= altitude <= kCs23MaxAltitude (clamped outside).
+double cs23_derived_gust_velocity(double altitude_m, bool at_dive_speed);
 
 }  // namespace aerosect

@@ -1,7 +1,11 @@
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <numbers>
+#include <vector>
+
+#include <boost/math/quadrature/gauss_kronrod.hpp>
 
 #include "aerosect/model/spring.hpp"
 
@@ -68,4 +72,44 @@ TEST_CASE("Describing functions against Gelb and Vander Velde", "[spring]") {
     CHECK(cu.describing_function(A) == Approx(k * (1 + 0.75 * 3.0 * A * A)).epsilon(1e-12));
   // A linear law's describing function is its stiffness.
   CHECK(SpringLaw::linear(k).describing_function(0.3) == Approx(k).epsilon(1e-13));
+}
+
+TEST_CASE("Describing function in closed form equals the quadrature of its definition", "[spring]") {
+  // Reference: the defining integral N(A) = 1/(pi A) int_0^2pi f(A sin t) sin t dt
+  // by Boost.Math's adaptive Gauss-Kronrod (61 points per piece, pieces split
+  // where A sin t crosses a breakpoint), on laws without the symmetry of the
+  // textbook cases: an offset asymmetric freeplay, an offset bilinear, a
+  // table, a jump law and a polynomial with even and odd terms.
+  auto quadrature = [](const SpringLaw& law, double A) {
+    std::vector<double> cuts = {0.0, 0.5 * pi, pi, 1.5 * pi, 2.0 * pi};
+    for (double xb : law.breakpoints())
+      if (std::abs(xb) < A) {
+        const double t = std::asin(xb / A);
+        for (double c : {t, pi - t, t + 2 * pi})
+          if (c > 0 && c < 2 * pi) cuts.push_back(c);
+      }
+    std::sort(cuts.begin(), cuts.end());
+    double sum = 0;
+    for (std::size_t i = 0; i + 1 < cuts.size(); ++i) {
+      const double a = cuts[i], b = cuts[i + 1];
+      if (b - a < 1e-15) continue;
+      const int r = law.region_of(A * std::sin(0.5 * (a + b)));
+      sum += boost::math::quadrature::gauss_kronrod<double, 61>::integrate(
+          [&](double t) { return law.force(A * std::sin(t), r) * std::sin(t); }, a, b, 10, 1e-15);
+    }
+    return sum / (pi * A);
+  };
+  const std::vector<SpringLaw> laws = {
+      SpringLaw::freeplay(80.0, 0.004, 0.012, 0.003),
+      SpringLaw::bilinear(20.0, 90.0, 0.01, -0.002),
+      SpringLaw::table({-0.02, -0.005, 0.0, 0.01, 0.03}, {-3.0, -0.2, 0.1, 0.6, 2.5}),
+      SpringLaw::piecewise_linear({0.0}, {50.0, 50.0}, {-0.4, 0.4}),
+      SpringLaw::polynomial({40.0, 7.0, 900.0, -30.0, 2e4}),
+  };
+  for (const SpringLaw& law : laws)
+    for (double A : {0.001, 0.0045, 0.011, 0.05, 0.3}) {
+      const double ref = quadrature(law, A);
+      INFO(law.kind() << " A = " << A);
+      CHECK(law.describing_function(A) == Approx(ref).epsilon(1e-12).margin(1e-12 * std::abs(law.slopes().back())));
+    }
 }

@@ -6,6 +6,7 @@
 #include <fmt/format.h>
 
 #include "aerosect/analysis/equilibrium.hpp"
+#include "aerosect/analysis/flutter.hpp"
 #include "aerosect/integrate/integrator.hpp"
 #include "aerosect/model/system.hpp"
 #include "aerosect/units.hpp"
@@ -307,4 +308,35 @@ TEST_CASE("A run started at the equilibrium stays there", "[equilibrium]") {
     CHECK(d < (st == StepperKind::kExact ? 1e-12 * qmax : s.relative_tolerance * qmax + s.absolute_tolerance));
     CHECK(run.switches == 0);
   }
+}
+
+TEST_CASE("Flutter of a preloaded section linearises about its equilibrium", "[equilibrium][flutter]") {
+  // Issue #18 (this project's rule, no outside source): the nominal
+  // linearisation takes each spring's tangent stiffness in the region the
+  // static equilibrium lies in: a freeplay flap pressed against its stop is
+  // the gap-closed section (k), an unloaded one keeps the nominal stiffness
+  // as before, and the single-input describing function is left out.
+  const std::string base = section_2dof(flap_table() + "[springs.flap]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n");
+  FlutterOptions o;
+  o.speeds = test::grid(1.0, 60.0, 40);
+  o.pk = false;
+  const FlutterReport loaded = flutter_analysis(test::case_from(base + "[steady]\nhinge_moment = 1.0\n"), o);
+  REQUIRE(loaded.results.front().linearisation == Linearisation::kNominal);
+  CHECK(loaded.results.front().stiffness(kFlap) == 60.0);
+  CHECK_THAT(loaded.nominal_basis, Catch::Contains("flap spring: upper stop"));
+  CHECK_FALSE(loaded.lco.available);
+  CHECK_THAT(loaded.lco.reason, Catch::Contains("does not apply"));
+  REQUIRE(loaded.equilibrium.equilibria.size() == 1);
+  CHECK(loaded.equilibrium.equilibria[0].springs[kFlap].in_contact);
+  // In vacuum an incidence loads nothing: the flap stays in its gap (any
+  // point of it; 0 reported) and the nominal linearisation is then the
+  // gap-open one (0).
+  const FlutterReport in_gap =
+      flutter_analysis(test::case_from(base + "[steady]\nincidence_deg = 1.0\n", {"flow.density=0.0"}), o);
+  CHECK(in_gap.results.front().stiffness(kFlap) == 0.0);
+  CHECK_THAT(in_gap.nominal_basis, Catch::Contains("flap spring: gap"));
+  // Without a steady condition: the nominal stiffness, as before.
+  const FlutterReport plain = flutter_analysis(test::case_from(base), o);
+  CHECK(plain.results.front().stiffness(kFlap) == 60.0);
+  CHECK(plain.nominal_basis == "nominal stiffness of every spring (the gap closed)");
 }

@@ -340,3 +340,23 @@ TEST_CASE("Flutter of a preloaded section linearises about its equilibrium", "[e
   CHECK(plain.results.front().stiffness(kFlap) == 60.0);
   CHECK(plain.nominal_basis == "nominal stiffness of every spring (the gap closed)");
 }
+
+TEST_CASE("A held section at incidence carries the steady thin-aerofoil lift", "[equilibrium]") {
+  // Steady thin-aerofoil theory (NACA Report 496 with C(0) = 1; lift slope
+  // 2 pi): L = 2 pi rho U^2 b alpha_0 at the quarter chord, so
+  // M_alpha = L b (a + 1/2), with the section held at q = 0 and the lag
+  // states in the steady flow. The Wagner lag states, once started steady,
+  // stay there (their derivatives vanish).
+  const Case c = test::case_from(section_2dof("[steady]\nincidence_deg = 3.0\n"),
+                                 {"simulation.hold=[\"plunge\", \"pitch\"]"});
+  const AeroelasticModel model(c.model);
+  const std::vector<double> x = model.initial_state(DofVector::Zero(2), DofVector::Zero(2), true);
+  std::vector<double> f(x.size());
+  model.rhs(x.data(), f.data(), 0.0, model.regions_of(x.data()));
+  for (double v : f) CHECK(std::abs(v) < 1e-12);
+  const Loads l = model.loads(x.data(), f.data());
+  const double L = 2 * pi * 1.225 * 30.0 * 30.0 * 0.5 * (3.0 * pi / 180);
+  CHECK(l.lift == Approx(L).epsilon(1e-14));
+  CHECK(l.pitching_moment == Approx(L * 0.5 * (-0.2 + 0.5)).epsilon(1e-14));
+  CHECK(l.effective_downwash == Approx(30.0 * 3.0 * pi / 180).epsilon(1e-14));
+}

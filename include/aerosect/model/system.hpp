@@ -1,6 +1,7 @@
 #pragma once
 // The assembled aeroelastic system: structure + Theodorsen aerodynamics +
-// spring laws, as a first-order ODE  x' = A x + G s(q)  over the state
+// spring laws, as a first-order ODE  x' = A x + b0 - G f_nl(q) (+ B_gust w_g)
+// over the state
 //
 //   x = [ q (n_dof) | q' (n_dof) | y (n_wagner) | g (n_gust) ]
 //
@@ -128,14 +129,15 @@ class AeroelasticModel {
   // scale that keeps the integrator's step heuristics finite.
   double shortest_period() const;
 
-  // x' = f(x, t; regions, input segment). regions[j] is the active region of
-  // spring j; input_segment the active segment of the gust field.
+  // x' = f(x, t; regions, input segment) = A x + b0 - G f_nl(q) + B_gust w_g(t).
+  // regions[j] is the active region of spring j; input_segment the active
+  // segment of the gust field.
   void rhs(const double* x, double* dxdt, double t, std::span<const int> regions,
            int input_segment = 0) const;
 
   // State-space Jacobian of rhs() at x (n x n, n = state_size()), written
   // into J:
-  //   Df = A - sum_j G_j f_j'(q_j; region_j) e_{q_j}^T
+  //   Df = A - sum_j G_j f_j'(q_j; region_j) e_{q_j}^T   (b0 is constant: no term)
   // over the nonlinear springs j, f_j' their tangent stiffness in the stored
   // region (N/m or N m/rad per unit span), e_{q_j} the unit vector of
   // displacement j; J(r, c) = d x'_r / d x_c (units of x_r / (s x_c)). The
@@ -173,7 +175,7 @@ class AeroelasticModel {
   Eigen::MatrixXd state_matrix_at(double airspeed, const DofVector& spring_stiffness) const;
 
   // The linear part A (nonlinear springs excluded) and the input map G
-  // (state_size x n_dof): x' = A x - G f(q) for the nonlinear springs' f.
+  // (state_size x n_dof): x' = A x + b0 - G f(q) for the nonlinear springs' f.
   const Eigen::MatrixXd& linear_part() const { return A_; }
   const Eigen::MatrixXd& force_input() const { return G_; }
 

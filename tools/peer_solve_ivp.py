@@ -4,7 +4,7 @@
 Reads the assembled first-order model that `aerosect check CASE --json`
 prints (key `linear_model`) and integrates
 
-    x' = A x - sum_springs G * f(x[dof]),
+    x' = A x [+ b0] - sum_springs G * f(x[dof]),
     f  = slopes[r] * x + intercepts[r] + sum_k polynomial_terms[k] * x^(k+2)
 
 in the region r = bisect_right(breakpoints, x[dof]) of each spring, with
@@ -64,6 +64,9 @@ class Peer:
                 slopes=[float(v) for v in s["slopes"]],
                 intercepts=[float(v) for v in s["intercepts"]],
                 poly=[float(v) for v in s.get("polynomial_terms", [])]))
+        # b0: the constant of a steady flight condition (key steady_input,
+        # present only when the case has one).
+        self.b0 = np.array(lm["steady_input"], dtype=float) if "steady_input" in lm else None
         self.x0 = np.array(lm["initial_state"], dtype=float)
         self.duration = float(lm["duration_s"])
         self.watch = self.springs[0]["dof"] if self.springs else 1
@@ -73,12 +76,14 @@ class Peer:
         self.tail = []  # (t0, t1, dense output) of the segments in the last tenth
 
     def rhs_factory(self, regions):
-        A, springs = self.A, self.springs
+        A, springs, b0 = self.A, self.springs, self.b0
         terms = [(s["dof"], s["G"], s["slopes"][r], s["intercepts"][r], s["poly"])
                  for s, r in zip(springs, regions)]
 
         def rhs(t, x):
             dx = A @ x
+            if b0 is not None:
+                dx = dx + b0
             for dof, G, k, c, poly in terms:
                 q = x[dof]
                 f = k * q + c

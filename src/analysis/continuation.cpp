@@ -1,5 +1,7 @@
 #include "aerosect/analysis/continuation.hpp"
 
+#include "aerosect/analysis/equilibrium.hpp"
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -568,8 +570,9 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
     const auto m_ptr = ctx.model(lambda0);
     const AeroelasticModel& m = *m_ptr;
     const auto x0 = o.march_state.empty()
-                        ? m.initial_state(c.simulation.initial_displacement, c.simulation.initial_velocity,
-                                          c.simulation.steady_lag_states)
+                        ? run_start(m, c.simulation.initial_displacement, c.simulation.initial_velocity,
+                                    c.simulation.steady_lag_states)
+                              .x
                         : o.march_state;
     AEROSECT_CHECK(x0.size() == static_cast<std::size_t>(m.state_size()));
     const double pitch_period = 2 * std::numbers::pi / pitch_frequency(c.model.section);

@@ -1,5 +1,7 @@
 #include "aerosect/analysis/flutter.hpp"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cmath>
 #include <cstdint>
@@ -298,6 +300,26 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
     df(j) = o.amplitude ? law.describing_function(*o.amplitude * unit) : nominal(j);
     if (!law.breakpoints().empty()) rep.has_gap = true;
   }
+  // With a steady condition: the nominal linearisation about the static
+  // equilibrium at the case's airspeed (the tangent stiffness of the region
+  // each spring lies in there).
+  if (c.model.steady.any()) {
+    rep.equilibrium = static_equilibrium(AeroelasticModel(c.model));
+    if (const Equilibrium* e = principal_equilibrium(rep.equilibrium)) {
+      for (int j = 0; j < n; ++j) nominal(j) = e->springs[static_cast<std::size_t>(j)].tangent_stiffness;
+      rep.nominal_basis = "tangent stiffness of every spring at the static equilibrium at the case's airspeed";
+      for (int j = 0; j < n; ++j)
+        if (!e->springs[static_cast<std::size_t>(j)].region_name.empty())
+          rep.nominal_basis += fmt::format(" ({} spring: {})", kDofNames[j], e->springs[static_cast<std::size_t>(j)].region_name);
+      rep.nominal_basis += ", held over every speed";
+    } else {
+      rep.nominal_basis = "nominal stiffness of every spring: the steady condition has no static equilibrium (" +
+                          rep.equilibrium.remark + ")";
+    }
+  } else {
+    rep.equilibrium.combinations = 0;
+    rep.equilibrium.remark = "no steady condition";
+  }
   lins.push_back({Linearisation::kNominal, nominal});
   if (rep.has_gap) {
     lins.push_back({Linearisation::kGapClosed, closed});
@@ -326,7 +348,15 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
     if (o.pk) lr.methods.push_back(pk_method(c, model, k, speeds, o.relative_tolerance, o.cancel));
     rep.results.push_back(std::move(lr));
   }
-  if (o.lco_prediction) rep.lco = describing_function_lco(c, speeds, 80, o.cancel);
+  if (o.lco_prediction && c.model.steady.any()) {
+    rep.lco.available = false;
+    rep.lco.reason =
+        "omitted: the steady condition loads the section, so an oscillation is not centred in the gap and "
+        "the single-input describing function does not apply (a bias-plus-sinusoid describing function "
+        "would be needed)";
+  } else if (o.lco_prediction) {
+    rep.lco = describing_function_lco(c, speeds, 80, o.cancel);
+  }
   return rep;
 }
 

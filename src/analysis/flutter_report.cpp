@@ -321,6 +321,15 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
   } else {
     j["lco_prediction"] = nullptr;
   }
+  // The steady condition: the equilibrium the nominal linearisation is
+  // about, and why the describing-function prediction is left out.
+  j["nominal_linearisation"] = r.nominal_basis;
+  if (c.model.steady.any()) {
+    j["equilibrium"] = equilibrium_json(c, r.equilibrium);
+    j["lco_prediction_omitted"] = r.lco.reason;
+  } else {
+    j["equilibrium"] = nullptr;
+  }
   const FlutterMargin fm = flutter_margin(r);
   if (fm.available) {
     nlohmann::json mj;
@@ -362,6 +371,11 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
   for (std::size_t i = 0; i < r.mode_names.size(); ++i)
     t += fmt::format(" {} ({})", i + 1, r.mode_names[i]);
   t += "\n";
+  if (c.model.steady.any()) {
+    t += "\n";
+    t += equilibrium_text(c, r.equilibrium);
+    t += "  nominal springs: " + r.nominal_basis + "\n";
+  }
   for (const auto& lr : r.results) {
     t += fmt::format("\n{} springs", to_string(lr.linearisation));
     const char* dofs[3] = {"K_h", "K_a", "K_b"};
@@ -413,7 +427,18 @@ std::string flutter_text(const Case& c, const FlutterReport& r, const std::strin
     t += fmt::format("  gap open {}  ..  gap closed {}\n", a ? speed_text(a->flutter, r, pr) : "-",
                      b ? speed_text(b->flutter, r, pr) : "-");
   }
+  if (c.model.steady.any() && open && closed) {
+    const Equilibrium* e = principal_equilibrium(r.equilibrium);
+    bool contact = false;
+    if (e)
+      for (const auto& sp : e->springs) contact |= sp.in_contact;
+    if (contact)
+      t += "  The static equilibrium lies against a stop (contact load above): freeplay LCO needs an "
+           "oscillation large enough to leave the stop; the band above is that of an unloaded surface.\n";
+  }
   if (r.lco.available) t += lco_prediction_text(r.lco, pr);
+  else if (c.model.steady.any() && !r.lco.reason.empty())
+    t += fmt::format("\nDescribing-function LCO prediction {}.\n", r.lco.reason);
   const FlutterMargin fm = flutter_margin(r);
   if (fm.available) {
     t += fmt::format("\nMargin (CS-25.629(b) / 14 CFR 25.629(b)): V_D = {:.5g} m s-1 EAS, 1.15 V_D = "

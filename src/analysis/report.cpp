@@ -93,7 +93,97 @@ CheckReport check_case(const Case& c) {
   CheckReport r;
   r.modes = in_vacuo_modes(c.model.section);
   r.divergence = divergence(c.model.section, c.model.flow.density);
+  r.equilibrium = static_equilibrium(AeroelasticModel(c.model));
   return r;
+}
+
+nlohmann::json equilibrium_json(const Case& c, const EquilibriumResult& r) {
+  nlohmann::json j;
+  const SteadyCondition& st = c.model.steady;
+  const int n = c.model.section.dof;
+  if (r.steady_condition) {
+    j["steady_condition"] = {{"incidence_deg", st.incidence * kDegPerRad},
+                             {"gravity_m_s2", st.gravity}};
+    if (n == 3) {
+      j["steady_condition"]["flap_trim_deg"] = st.flap_trim * kDegPerRad;
+      j["steady_condition"]["hinge_moment_n_m_per_m"] = st.hinge_moment;
+    }
+  } else {
+    j["steady_condition"] = nullptr;
+  }
+  j["initial_conditions"] = r.steady_condition && !r.equilibria.empty()
+                                ? "perturbation about the static equilibrium"
+                                : "absolute";
+  j["remark"] = r.remark;
+  j["combinations"] = r.combinations;
+  j["equilibria"] = nlohmann::json::array();
+  for (const Equilibrium& e : r.equilibria) {
+    nlohmann::json ej;
+    ej["displacement"]["plunge_m"] = e.displacement(kPlunge);
+    ej["displacement"]["pitch_deg"] = e.displacement(kPitch) * kDegPerRad;
+    if (n == 3) ej["displacement"]["flap_deg"] = e.displacement(kFlap) * kDegPerRad;
+    ej["static_stability"] = e.static_stability;
+    ej["free_directions"] = e.free_directions;
+    ej["springs"] = nlohmann::json::array();
+    for (int k = 0; k < n; ++k) {
+      const SpringEquilibrium& s = e.springs[static_cast<std::size_t>(k)];
+      ej["springs"].push_back({{"dof", kDofNames[k]},
+                               {"law", s.law},
+                               {"region", s.region},
+                               {"region_name", s.region_name},
+                               {"force", s.force},
+                               {"force_units", k == kPlunge ? "N m-1" : "N m m-1"},
+                               {"in_contact", s.in_contact},
+                               {"tangent_stiffness", s.tangent_stiffness}});
+    }
+    ej["lift_n_per_m"] = e.loads.lift;
+    ej["pitching_moment_n_m_per_m"] = e.loads.pitching_moment;
+    if (n == 3) ej["hinge_moment_n_m_per_m"] = e.loads.hinge_moment;
+    j["equilibria"].push_back(ej);
+  }
+  return j;
+}
+
+std::string equilibrium_text(const Case& c, const EquilibriumResult& r) {
+  const Presenter pr = presenter(c);
+  const SteadyCondition& st = c.model.steady;
+  const int n = c.model.section.dof;
+  std::string t = "Static equilibrium";
+  if (r.steady_condition) {
+    t += fmt::format(" (steady condition: incidence {:.4g} deg", st.incidence * kDegPerRad);
+    if (n == 3 && st.flap_trim != 0) t += fmt::format(", flap trim {:.4g} deg", st.flap_trim * kDegPerRad);
+    if (n == 3 && st.hinge_moment != 0) t += fmt::format(", hinge moment {:.4g} N m m-1", st.hinge_moment);
+    t += fmt::format(", gravity {:.4g} m s-2)\n", st.gravity);
+  } else {
+    t += " (no steady condition: nothing loads the section)\n";
+  }
+  if (!r.remark.empty()) t += "  " + r.remark + "\n";
+  for (std::size_t i = 0; i < r.equilibria.size(); ++i) {
+    const Equilibrium& e = r.equilibria[i];
+    t += r.equilibria.size() > 1 ? fmt::format("  {}:", i + 1) : std::string(" ");
+    for (int k = 0; k < n; ++k)
+      t += fmt::format(" {} {:.6g} {}{}", kDofNames[k], pr.displacement_value(k, e.displacement(k)),
+                       pr.displacement_unit(k), k + 1 < n ? "," : "");
+    t += fmt::format("; statically {}", e.static_stability);
+    if (e.free_directions > 0) t += " (a spring in its gap with nothing loading it: any point of the gap; 0 shown)";
+    t += "\n";
+    for (int k = 0; k < n; ++k) {
+      const SpringEquilibrium& s = e.springs[static_cast<std::size_t>(k)];
+      if (s.region_count <= 1 && s.law == "linear") continue;
+      t += fmt::format("    {} spring ({}){}: force {:.5g} {}{}\n", kDofNames[k], s.law,
+                       s.region_name.empty() ? "" : ", " + s.region_name, s.force,
+                       k == kPlunge ? "N m-1" : "N m m-1", s.in_contact ? " (contact load against the stop)" : "");
+    }
+    if (r.steady_condition) {
+      t += fmt::format("    steady lift {:.5g} N m-1, moment about the elastic axis {:.5g} N m m-1", e.loads.lift,
+                       e.loads.pitching_moment);
+      if (n == 3) t += fmt::format(", hinge moment {:.5g} N m m-1", e.loads.hinge_moment);
+      t += "\n";
+    }
+  }
+  if (r.steady_condition && !r.equilibria.empty())
+    t += "  [initial] values are a perturbation about this equilibrium (the first, when several)\n";
+  return t;
 }
 
 nlohmann::json check_json(const Case& c, const CheckReport& r) {
@@ -124,6 +214,7 @@ nlohmann::json check_json(const Case& c, const CheckReport& r) {
     j["divergence"]["speed_m_s"] = nullptr;
   }
   j["divergence"]["density_kg_m3"] = c.model.flow.density;
+  j["equilibrium"] = equilibrium_json(c, r.equilibrium);
   // The assembled first-order model, for independent re-integration:
   // x' = A x - G f(q), f the nonlinear spring laws (piecewise polynomials).
   const AeroelasticModel model(c.model);
@@ -149,7 +240,13 @@ nlohmann::json check_json(const Case& c, const CheckReport& r) {
                                        {"polynomial_terms", v(law.polynomial_terms())}});
   }
   const auto& s0 = c.simulation;
-  lm["initial_state"] = model.initial_state(s0.initial_displacement, s0.initial_velocity, s0.steady_lag_states);
+  // With a steady condition x' = A x + b0 - sum G f: b0 as "steady_input",
+  // and the start is the equilibrium plus the [initial] perturbation.
+  if (model.has_steady_condition())
+    lm["steady_input"] = std::vector<double>(model.steady_input().data(),
+                                             model.steady_input().data() + model.steady_input().size());
+  lm["initial_state"] = run_start(model, s0.initial_displacement, s0.initial_velocity, s0.steady_lag_states,
+                                  &r.equilibrium).x;
   lm["duration_s"] = s0.duration;
   j["linear_model"] = lm;
   return j;
@@ -211,6 +308,8 @@ std::string check_text(const Case& c, const CheckReport& r) {
     t += c.model.flow.density > 0 ? "  none: the aerodynamic stiffness never cancels the springs\n"
                                   : "  none: vacuum (density 0)\n";
   }
+  t += "\n";
+  t += equilibrium_text(c, r.equilibrium);
   t += "\n";
   t += kSafetyCaution;
   t += "\n";

@@ -1,5 +1,7 @@
 #include "aerosect/analysis/simulate.hpp"
 
+#include "aerosect/analysis/equilibrium.hpp"
+
 #include <algorithm>
 #include <array>
 #include <cmath>
@@ -79,6 +81,59 @@ std::vector<Channel> simulation_channels(const AeroelasticModel& model) {
          "circulatory (lagged) 3/4-chord downwash w_c, C(k) Q in the frequency domain");
   return ch;
 }
+
+namespace {
+
+// The steady flight condition and the static equilibrium at the case's
+// airspeed (only for a case with a steady condition: files of other cases
+// are unchanged). Group /parameters/steady: the condition's numbers;
+// /parameters/equilibrium: the displacement of each DOF and the force of
+// each nonlinear spring there; root attributes initial_conditions (what the
+// [initial] values are), equilibrium_remark and equilibrium_region_<dof>.
+void add_steady_metadata(const Case& c, RunMetadata& m) {
+  const SteadyCondition& st = c.model.steady;
+  if (!st.any()) return;
+  const int n = c.model.section.dof;
+  const auto add = [&m](const char* group, const std::string& name, double v, const char* units,
+                        const std::string& ln) { m.parameters.push_back({group, name, v, units, ln}); };
+  add("steady", "incidence", st.incidence, "rad", "steady incidence alpha_0 of the rigid section (aerodynamics only)");
+  if (n == 3) {
+    add("steady", "flap_trim", st.flap_trim, "rad", "flap trim deflection beta_0, TE down (aerodynamics only)");
+    add("steady", "hinge_moment", st.hinge_moment, "N m m-1", "applied trim hinge moment, TE down positive");
+  }
+  add("steady", "gravity", st.gravity, "m s-2", "gravity along +plunge (down), through the section's and flap's CG");
+  const AeroelasticModel model(c.model);
+  const EquilibriumResult eq = static_equilibrium(model);
+  const Equilibrium* e = principal_equilibrium(eq);
+  m.text_attributes.push_back(
+      {"initial_conditions",
+       e ? "[initial] displacements and velocities are a perturbation about the static equilibrium "
+           "(/parameters/equilibrium): the run starts at equilibrium + perturbation; displacements in "
+           "the time histories are absolute"
+         : "[initial] displacements and velocities are absolute: the case has no static equilibrium"});
+  m.text_attributes.push_back({"equilibrium_remark", eq.remark.empty() ? "one static equilibrium" : eq.remark});
+  if (!e) return;
+  m.text_attributes.push_back({"equilibrium_static_stability", e->static_stability});
+  for (int j = 0; j < n; ++j) {
+    const std::string dof = kDofNames[j];
+    const bool angle = is_angle_dof(j);
+    add("equilibrium", dof, e->displacement(j), angle ? "rad" : "m",
+        fmt::format("{} at the static equilibrium", dof));
+    const SpringEquilibrium& sp = e->springs[static_cast<std::size_t>(j)];
+    add("equilibrium", dof + "_spring_force", sp.force, angle ? "N m m-1" : "N m-1",
+        fmt::format("{} spring's restoring force at the equilibrium ({}){}", dof, sp.law,
+                    sp.in_contact ? ": the contact load against the stop" : ""));
+    if (!sp.region_name.empty()) m.text_attributes.push_back({"equilibrium_region_" + dof, sp.region_name});
+  }
+  add("equilibrium", "lift", e->loads.lift, "N m-1", "steady lift at the equilibrium, up positive");
+  add("equilibrium", "pitching_moment", e->loads.pitching_moment, "N m m-1",
+      "steady aerodynamic moment about the elastic axis, nose up positive");
+  if (n == 3)
+    add("equilibrium", "hinge_moment", e->loads.hinge_moment, "N m m-1",
+        "steady aerodynamic hinge moment, TE down positive");
+}
+
+}  // namespace
 
 RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
   RunMetadata m;
@@ -259,6 +314,7 @@ RunMetadata case_metadata(const Case& c, const std::string& file_kind) {
          "them against the applicable rule's text. The rule's gust alleviation factor is not applied: the gust "
          "is simulated in time with Kussner aerodynamics, which replace it."});
   }
+  add_steady_metadata(c, m);
   return m;
 }
 
@@ -309,8 +365,11 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     run.x = start->x;
     run.regions = start->regions;
   } else {
-    run.x = model.initial_state(set.initial_displacement, set.initial_velocity, set.steady_lag_states);
-    run.regions = model.regions_of(run.x.data());
+    // With a steady condition [initial] is a perturbation about the static
+    // equilibrium (equilibrium.hpp, run_start); without one it is absolute.
+    RunStart rs = run_start(model, set.initial_displacement, set.initial_velocity, set.steady_lag_states);
+    run.x = std::move(rs.x);
+    run.regions = std::move(rs.regions);
   }
 
   // One output row from a state (the regions and input segment those of

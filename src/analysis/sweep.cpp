@@ -1,5 +1,7 @@
 #include "aerosect/analysis/sweep.hpp"
 
+#include "aerosect/analysis/equilibrium.hpp"
+
 #include <algorithm>
 #include <atomic>
 #include <cmath>
@@ -159,9 +161,12 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
     run.x = previous->final_state;
     run.regions = previous->final_regions;
   } else {
-    run.x = model.initial_state(c.simulation.initial_displacement, c.simulation.initial_velocity,
-                                c.simulation.steady_lag_states);
-    run.regions = model.regions_of(run.x.data());
+    // The case's start: about the point's static equilibrium with a steady
+    // condition, absolute without (equilibrium.hpp, run_start).
+    RunStart rs = run_start(model, c.simulation.initial_displacement, c.simulation.initial_velocity,
+                            c.simulation.steady_lag_states);
+    run.x = std::move(rs.x);
+    run.regions = std::move(rs.regions);
   }
   LcoTracker tracker(model, o.lco);
   try {

@@ -267,7 +267,7 @@ class ExactRun {
     // eps |J| |x| to round-off: on a diverging run at 1e23 that made the
     // affine column, the norm and so the step count enormous.)
     // rhs() of input segment 0 has no gust velocity (before every gust):
-    // c is the springs' intercepts alone; the gust enters as B_gust w_g(t)
+    // c is the springs' intercepts plus the steady condition's b0; the gust enters as B_gust w_g(t)
     // with w_g in harmonic form over the oscillator states.
     const std::vector<double> x(static_cast<std::size_t>(n_), 0.0);
     std::vector<double> f(static_cast<std::size_t>(n_));

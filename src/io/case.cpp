@@ -109,6 +109,10 @@ const std::vector<std::string> kCaseKeys = {
     "simulation.initial_step",
     "simulation.hold",
     "envelope.dive_speed_eas",
+    "steady.incidence_deg",
+    "steady.flap_trim_deg",
+    "steady.hinge_moment",
+    "steady.gravity",
 };
 
 // The laws of a [springs.<dof>] table and the keys of each law: one list
@@ -506,7 +510,10 @@ void read_initial_and_simulation(const Table& ini, const Table& sim, Case& c) {
     }
     if (auto v = ini.number("flap_rate_deg_s")) s.initial_velocity(kFlap) = *v * kRadPerDeg;
   }
-  s.steady_lag_states = ini.choice("lag_states", {"rest", "steady"}, "rest") == "steady";
+  // With a steady condition the section flies in it before t = 0: the lag
+  // states start in the steady flow unless the case says "rest".
+  s.steady_lag_states =
+      ini.choice("lag_states", {"rest", "steady"}, c.model.steady.any() ? "steady" : "rest") == "steady";
 
   // Time span.
   const std::string dk = sim.required_one_of(
@@ -717,6 +724,38 @@ SpringLaw read_spring(const Table& t, int dof, double k) {
 }
 
 
+// [steady]: the steady flight condition (model/system.hpp, SteadyCondition).
+// The flap's trim is either a deflection seen by the aerodynamics
+// (flap_trim_deg: the surface rigged at beta_0, its spring centred there) or
+// an applied hinge moment (hinge_moment: what a tab or actuator presses it
+// with), not both: each alone says what holds the surface.
+void read_steady(const Table& t, Case& c) {
+  SteadyCondition& st = c.model.steady;
+  const int n = c.model.section.dof;
+  if (auto v = t.number("incidence_deg")) {
+    t.require(std::abs(*v) <= 20, "incidence_deg", "is beyond the theory's attached flow",
+              "|incidence| <= 20 degrees (thin-aerofoil theory is linear and knows no stall)");
+    st.incidence = *v * kRadPerDeg;
+  }
+  for (const char* k : {"flap_trim_deg", "hinge_moment"})
+    if (n == 2 && t.has(k)) t.fail(k, "needs a flap", "flap keys only for a 3-DOF case");
+  const std::string trim = t.one_of({"flap_trim_deg", "hinge_moment"});
+  if (trim == "flap_trim_deg") {
+    const double v = *t.number(trim);
+    t.require(std::abs(v) <= 20, trim, "is beyond the theory's attached flow",
+              "|flap trim| <= 20 degrees (thin-aerofoil theory is linear)");
+    st.flap_trim = v * kRadPerDeg;
+  } else if (trim == "hinge_moment") {
+    st.hinge_moment = *t.number(trim);  // N m/m, any finite value
+  }
+  if (auto v = t.number("gravity")) {
+    t.require(std::abs(*v) <= 100, "gravity", "is beyond any flight load",
+              "the component of gravity (times the load factor) along +plunge (down), m/s^2, "
+              "|gravity| <= 100 (about 10 g); 9.80665 for level flight at 1 g, 0 for none");
+    st.gravity = *v;
+  }
+}
+
 // The 3-DOF structural mass matrix must be positive definite.
 void check_mass_matrix(const Case& c, const Table& flap, const Table& nd) {
   if (c.model.section.dof != 3) return;
@@ -814,6 +853,10 @@ std::string case_key_units(const std::string& key) {
       {"simulation.max_step", "s"},
       {"simulation.initial_step", "s"},
       {"envelope.dive_speed_eas", "m s-1"},
+      {"steady.incidence_deg", "degree"},
+      {"steady.flap_trim_deg", "degree"},
+      {"steady.hinge_moment", "N m m-1"},
+      {"steady.gravity", "m s-2"},
       {"gust.start", "s"},
       {"gust.start_semichords", "1"},
       {"gust.start_distance", "m"},
@@ -944,6 +987,7 @@ Case parse_case(const std::string& text, const std::string& path,
                 "design dive speed V_D, m/s equivalent airspeed, 0 < V_D < 1000");
     c.dive_speed_eas = *v;
   }
+  read_steady(top.sub("steady"), c);
   read_initial_and_simulation(top.sub("initial"), top.sub("simulation"), c);
   read_gusts(root, ctx, top.sub("aerodynamics"), c);
   if (const Table sim = top.sub("simulation"); sim.string("stepper") == std::optional<std::string>("exact")) {

@@ -85,6 +85,24 @@ AeroelasticModel::AeroelasticModel(ModelDescription description) : d_(std::move(
   for (int j : nonlinear_)
     for (int i = 0; i < n; ++i) g_velocity_rows_.push_back(G_(layout_.velocity + i, j));
 
+  // Steady condition: b0 = A x_a0 + G (K_lin q_a0) + G (f_gravity + f_trim)
+  // (system.hpp). K_lin q_a0 = k .* q_a0 over the linear springs (k is zero
+  // for the nonlinear ones, which A does not hold).
+  const SteadyCondition& st = d_.steady;
+  steady_ = st.any();
+  b0_ = Eigen::VectorXd::Zero(layout_.size);
+  x_a0_ = Eigen::VectorXd::Zero(layout_.size);
+  f_steady_ = DofVector::Zero(n);
+  if (steady_) {
+    x_a0_(layout_.displacement + kPitch) = st.incidence;
+    if (n == 3) x_a0_(layout_.displacement + kFlap) = st.flap_trim;
+    f_steady_ = st.gravity * structural_mass(s).col(kPlunge);  // g (m, S_alpha[, S_beta])
+    if (n == 3) f_steady_(kFlap) += st.hinge_moment;
+    const DofVector q_a0 = x_a0_.segment(layout_.displacement, n);
+    const DofVector spring_share = k.cwiseProduct(q_a0);
+    b0_ = A_ * x_a0_ + G_ * (spring_share + f_steady_);
+  }
+
   // Gust input: instantaneous part psi(0) w_g on the forces, and the drive
   // of the Küssner lag states.
   B_gust_ = Eigen::VectorXd::Zero(layout_.size);
@@ -182,6 +200,10 @@ void AeroelasticModel::rhs(const double* x, double* dxdt, double t, std::span<co
     const double w = d_.gusts.velocity(t, input_segment);
     for (std::size_t i = 0; i < N; ++i) dxdt[i] += B_gust_(static_cast<Eigen::Index>(i)) * w;
   }
+  // The steady condition's constant (never added without one: adding 0.0
+  // would turn -0.0 into +0.0 and change bit-for-bit results).
+  if (steady_)
+    for (std::size_t i = 0; i < N; ++i) dxdt[i] += b0_(static_cast<Eigen::Index>(i));
   // G_j is zero outside the velocity rows.
   const std::size_t n = static_cast<std::size_t>(layout_.n_dof), v0 = static_cast<std::size_t>(layout_.velocity);
   const double* g = g_velocity_rows_.data();
@@ -214,7 +236,10 @@ Loads AeroelasticModel::loads(const double* x, const double* dxdt, double t,
   Eigen::Map<const Eigen::VectorXd> qd(x + layout_.velocity, n);
   Eigen::Map<const Eigen::VectorXd> qdd(dxdt + layout_.velocity, n);
   const auto& am = aero_;
-  double wc = phi0_ * (am.downwash_displacement.dot(q) + am.downwash_rate.dot(qd));
+  // The aerodynamics sees q + q_a0 (the steady incidence and flap trim).
+  DofVector qa = q;
+  if (steady_) qa += x_a0_.segment(layout_.displacement, n);
+  double wc = phi0_ * (am.downwash_displacement.dot(qa) + am.downwash_rate.dot(qd));
   for (int i = 0; i < layout_.n_wagner; ++i)
     wc += d_.aero.wagner.coefficients[i] * x[layout_.wagner + i];
   Loads l;
@@ -224,7 +249,7 @@ Loads AeroelasticModel::loads(const double* x, const double* dxdt, double t,
     for (int i = 0; i < layout_.n_gust; ++i)
       l.gust_effective += d_.kussner.coefficients[i] * x[layout_.gust + i];
   }
-  const DofVector F = -am.apparent_mass * qdd - am.damping * qd - am.stiffness * q +
+  const DofVector F = -am.apparent_mass * qdd - am.damping * qd - am.stiffness * qa +
                       am.circulation_force * (wc + l.gust_effective);
   l.lift = -F(0);
   l.pitching_moment = F(1);
@@ -244,7 +269,8 @@ std::vector<double> AeroelasticModel::initial_state(const DofVector& q0, const D
   if (steady_lag_states) {
     Eigen::Map<const Eigen::VectorXd> q(x.data() + layout_.displacement, n);
     Eigen::Map<const Eigen::VectorXd> qd(x.data() + layout_.velocity, n);
-    const double Q = aero_.downwash_displacement.dot(q) + aero_.downwash_rate.dot(qd);
+    double Q = aero_.downwash_displacement.dot(q) + aero_.downwash_rate.dot(qd);
+    if (steady_) Q += aero_.downwash_displacement.dot(x_a0_.segment(layout_.displacement, n));
     for (int i = 0; i < layout_.n_wagner; ++i) x[layout_.wagner + i] = Q;
   }
   return x;

@@ -73,6 +73,11 @@ def files(tmp_path_factory):
     p = lambda name: str(d / name)  # noqa: E731
     run("simulate", DEMO, "-o", p("simulate.h5"), "--set", "simulation.duration=0.5")
     run("flutter", DEMO, "-o", p("flutter.h5"), "--speeds", "10:120:12")
+    # A steady flight condition adds /parameters/steady, /parameters/equilibrium
+    # and root attributes (issue #18).
+    steady = ["--set", "steady.incidence_deg=2", "--set", "steady.gravity=9.80665"]
+    run("simulate", DEMO, "-o", p("simulate_steady.h5"), "--set", "simulation.duration=0.5", *steady)
+    run("flutter", DEMO, "-o", p("flutter_steady.h5"), "--speeds", "10:120:12", *steady)
     run("gust", DEMO, "-o", p("gust.h5"), "--gradients", "9.144:106.68:3")
     sweep = ["--vary", "flow.airspeed=15:27:3", "--set", "simulation.duration=5", "--jobs", "1"]
     run("sweep", DEMO, *sweep, "-o", p("sweep.h5"))
@@ -93,7 +98,7 @@ def files(tmp_path_factory):
     return out
 
 
-KINDS = ["simulate", "flutter", "gust", "sweep", "sweep_2d", "shard_1", "merged", "orbits",
+KINDS = ["simulate", "simulate_steady", "flutter", "flutter_steady", "gust", "sweep", "sweep_2d", "shard_1", "merged", "orbits",
          "study/response", "study/lco", "study/flutter", "study/sweep", "study/gust",
          "study/branch", "study/lco_orbit"]
 

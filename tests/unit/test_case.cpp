@@ -1008,3 +1008,32 @@ TEST_CASE("A clash of two keys blames the one given last or by --set", "[case][e
   // A key holding the typed leaf whole is suggested in its own table.
   CHECK_THAT(std::string(error_of(nd, {"flow.speed=30"}).what()), Contains("did you mean 'flow.airspeed'"));
 }
+
+TEST_CASE("The [steady] condition: keys, SI values and refusals", "[case][steady]") {
+  // This project's rules (README, "[steady]"; common practice, no source).
+  const Case c = parse_case(kSection + kFlapTable + kFlow + kSim +
+                                "[steady]\nincidence_deg = 2.0\nhinge_moment = -0.25\ngravity = 9.80665\n",
+                            "ok.toml");
+  CHECK(c.model.steady.incidence == Approx(2.0 * std::numbers::pi / 180).epsilon(1e-15));
+  CHECK(c.model.steady.hinge_moment == -0.25);
+  CHECK(c.model.steady.gravity == 9.80665);
+  CHECK(c.simulation.steady_lag_states);  // the default with a steady condition
+  CHECK_FALSE(parse_case(kSection + kFlow + kSim, "ok.toml").simulation.steady_lag_states);
+  CHECK_FALSE(parse_case(kSection + kFlow + kSim + "[steady]\nincidence_deg = 1.0\n[initial]\nlag_states = \"rest\"\n",
+                         "ok.toml")
+                  .simulation.steady_lag_states);
+  // Line numbers: kSection is 8 lines, kFlow 3, kSim 2, kFlapTable 5.
+  expect_error(kSection + kFlow + kSim + "[steady]\nincidence_deg = 25.0\n", 15, "steady.incidence_deg",
+               {"= 25.0", "beyond the theory's attached flow", "|incidence| <= 20 degrees"});
+  expect_error(kSection + kFlow + kSim + "[steady]\nflap_trim_deg = 1.0\n", 15, "steady.flap_trim_deg",
+               {"needs a flap", "3-DOF"});
+  expect_error(kSection + kFlow + kSim + "[steady]\nhinge_moment = 1.0\n", 15, "steady.hinge_moment",
+               {"needs a flap"});
+  expect_error(kSection + kFlapTable + kFlow + kSim + "[steady]\nflap_trim_deg = 1.0\nhinge_moment = 1.0\n", 21,
+               "steady.hinge_moment", {"conflicts with 'steady.flap_trim_deg'"});
+  expect_error(kSection + kFlow + kSim + "[steady]\ngravity = 200.0\n", 15, "steady.gravity",
+               {"= 200.0", "beyond any flight load", "m/s^2"});
+  expect_error(kSection + kFlow + kSim + "[steady]\ngravity = nan\n", 15, "steady.gravity", {"must be finite"});
+  expect_error(kSection + kFlow + kSim + "[steady]\nincidence = 2.0\n", 15, "steady.incidence",
+               {"did you mean 'steady.incidence_deg'"});
+}

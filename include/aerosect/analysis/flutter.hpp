@@ -32,6 +32,7 @@
 #include <Eigen/Core>
 
 #include "aerosect/analysis/describing_function.hpp"
+#include "aerosect/analysis/equilibrium.hpp"
 #include "aerosect/analysis/root_tracking.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/model/system.hpp"
@@ -114,6 +115,16 @@ struct FlutterReport {
   bool has_gap = false;                      // some spring has a gap (gap bounds computed)
   std::optional<double> dive_speed_eas;      // V_D from the case, m/s EAS
   LcoPrediction lco;                         // describing-function LCO (one nonlinear spring)
+  // Static equilibrium at the case's airspeed (equilibrium.hpp). With a
+  // steady condition the nominal linearisation is about it: each spring's
+  // tangent stiffness in the region the equilibrium lies in (a freeplay
+  // spring against its stop: k; in its gap: 0; a cubic spring: its slope
+  // there), held over the whole speed range (valid while the equilibrium
+  // stays in that region); `nominal_basis` says which. The single-input
+  // describing-function prediction assumes an oscillation centred in the
+  // gap: with a steady condition it is omitted (lco.reason says why).
+  EquilibriumResult equilibrium;
+  std::string nominal_basis = "nominal stiffness of every spring (the gap closed)";
   // Where a nonlinear analysis actually found stable limit cycles, beside
   // the linear gap-open..gap-closed bound: true-airspeed ranges (m/s) and
   // their source. Empty from flutter_analysis; the study fills it from its

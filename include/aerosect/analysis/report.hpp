@@ -9,6 +9,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "aerosect/analysis/equilibrium.hpp"
 #include "aerosect/analysis/modes.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/io/case.hpp"
@@ -55,7 +56,20 @@ Presenter presenter(const Case& c);
 struct CheckReport {
   std::vector<NaturalMode> modes;
   Divergence divergence;
+  EquilibriumResult equilibrium;  // static equilibrium at the case's airspeed
 };
+
+// The static equilibrium in a report (check, flutter): JSON object
+// `steady_condition` {incidence_deg, flap_trim_deg, hinge_moment_n_m_per_m,
+// gravity_m_s2} or null, `initial_conditions` ("absolute" or "perturbation
+// about the static equilibrium"), `remark`, `combinations`, and
+// `equilibria` (list: `displacement` {plunge_m, pitch_deg, flap_deg},
+// `static_stability`, `free_directions`, `springs` (list per DOF: `dof`,
+// `law`, `region`, `region_name`, `force`, `force_units`, `in_contact`,
+// `tangent_stiffness`), `lift_n_per_m`, `pitching_moment_n_m_per_m`,
+// `hinge_moment_n_m_per_m`); and the text block of the same content.
+nlohmann::json equilibrium_json(const Case& c, const EquilibriumResult& r);
+std::string equilibrium_text(const Case& c, const EquilibriumResult& r);
 CheckReport check_case(const Case& c);
 
 nlohmann::json check_json(const Case& c, const CheckReport& r);

@@ -9,7 +9,8 @@
 // constant plus harmonic input:
 //   x' = A_r x + c_r + B w_g(t),   A_r = Df (the model's Jacobian in region
 //        r, 1/s per state units), c_r = f(x) - A_r x at w_g = 0 (the
-//        springs' intercepts; units of x'), B the gust input map
+//        springs' intercepts and the steady condition's constant b0 of
+//        system.hpp; units of x'), B the gust input map
 //        (AeroelasticModel::gust_input), and over segment s
 //        w_g(t) = w0_s + sum_j [a_sj sin(om_j (t - t_j)) + b_sj cos(om_j (t - t_j))]
 //        (GustField::harmonic_input; one term j per 1-cos or sine gust).

@@ -115,7 +115,8 @@ with tempfile.TemporaryDirectory() as tmp:
     # Shards by independent unit: with fresh starts every point is one, so
     # 3 shards of a one-chain (up only) 3-point sweep each get work; with
     # continuation the one chain is the unit, so of 2 shards one is empty:
-    # it still writes a valid file, and both merges equal the unsharded run.
+    # it still writes a valid file, and both merges equal the unsharded run
+    # (a sharded run must equal the unsharded one: common practice, no source).
     for restart, count, per_shard in (("fresh", 3, [1, 1, 1]), ("continue", 2, [3, 0])):
         base = ["--vary", "flow.airspeed=20:60:3", "--direction", "up", "--restart", restart,
                 "--jobs", "1", "--set", "simulation.duration=1.0"]

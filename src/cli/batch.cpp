@@ -35,11 +35,12 @@ int run(const BatchOptions& o) {
   const nlohmann::json rows = run_batch(entries, fo, cancel_flag());
   // Whatever completed is written, interrupted or not.
   write_file_atomically(o.output + ".csv", batch_summary_csv(rows));
-  write_file_atomically(o.output + ".json", batch_summary_json(rows).dump(2) + "\n");
+  const std::string summary = batch_summary_json(rows).dump(2) + "\n";
+  write_file_atomically(o.output + ".json", summary);
   if (interrupted_signal() != 0)
     return report_interrupted(fmt::format("{} of {} cases in {}.csv and {}.json", rows.size(), entries.size(),
                                           o.output, o.output));
-  print(o.json ? batch_summary_json(rows).dump(2) + "\n"
+  print(o.json ? summary
                : batch_summary_text(rows) + fmt::format("  written to {}.csv and {}.json\n", o.output, o.output));
   return 0;
 }

@@ -21,6 +21,7 @@ Usage: test_orbits.py AEROSECT SOURCE_DIR
 """
 import json
 import os
+import shutil
 import re
 import pty
 import select
@@ -251,4 +252,5 @@ for args, key in ((["--key", "flow.no_such_key"], "flow.no_such_key"),
     check(not os.path.exists(os.path.join(tmp, "bad.h5")), f"orbits {' '.join(args)}: no file written")
 
 print(f"\n{len(failures)} failures")
+shutil.rmtree(tmp, ignore_errors=True)
 sys.exit(1 if failures else 0)

@@ -22,11 +22,20 @@ using Catch::Matchers::Contains;
 
 namespace {
 
+// The scratch folder of this process, removed when the test program exits.
+struct ScratchDir {
+  std::filesystem::path dir = std::filesystem::temp_directory_path() /
+                              ("aerosect_test_gust_record_" + std::to_string(::getpid()));
+  ~ScratchDir() {
+    std::error_code ec;
+    std::filesystem::remove_all(dir, ec);
+  }
+};
+
 std::string scratch(const std::string& name) {
-  const auto dir = std::filesystem::temp_directory_path() /
-                   ("aerosect_test_gust_record_" + std::to_string(::getpid()));
-  std::filesystem::create_directories(dir);
-  return (dir / name).string();
+  static const ScratchDir s;
+  std::filesystem::create_directories(s.dir);
+  return (s.dir / name).string();
 }
 
 std::string write(const std::string& name, const std::string& bytes) {

@@ -358,40 +358,44 @@ TEST_CASE("Gradient sweep starts from rest unless asked: peaks are the gust's ow
   CHECK(early);
 }
 
+namespace {
+// The case text is refused naming `key`, the message containing `part`.
+void expect_gust_refusal(const std::string& text, const std::string& key, const std::string& part) {
+  try {
+    (void)test::case_from(text);
+    FAIL("no error");
+  } catch (const InputError& e) {
+    INFO(e.what());
+    CHECK(e.key() == key);
+    CHECK_THAT(std::string(e.what()), Catch::Matchers::Contains(part));
+  }
+}
+}  // namespace
+
 TEST_CASE("Gust keys are validated", "[gust][case][errors]") {
   // Common practice, no source: this project's messages.
-  auto expect = [](const std::string& text, const std::string& key, const std::string& part) {
-    try {
-      (void)test::case_from(text);
-      FAIL("no error");
-    } catch (const InputError& e) {
-      INFO(e.what());
-      CHECK(e.key() == key);
-      CHECK_THAT(std::string(e.what()), Catch::Matchers::Contains(part));
-    }
-  };
   const std::string base = kFree + "[simulation]\nduration = 1.0\n";
-  expect(base + "[[gust]]\namplitude = 3.0\n", "gust.shape", "missing");
-  expect(base + "[[gust]]\nshape = \"one-minus-cosine\"\namplitude = 3.0\n", "gust.gradient", "missing");
-  expect(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\ngradient = 5.0\n", "gust.gradient",
+  expect_gust_refusal(base + "[[gust]]\namplitude = 3.0\n", "gust.shape", "missing");
+  expect_gust_refusal(base + "[[gust]]\nshape = \"one-minus-cosine\"\namplitude = 3.0\n", "gust.gradient", "missing");
+  expect_gust_refusal(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\ngradient = 5.0\n", "gust.gradient",
          "only used by one-minus-cosine");
-  expect(base + "[[gust]]\nshape = \"sinusoidal\"\namplitude = 3.0\n",
+  expect_gust_refusal(base + "[[gust]]\nshape = \"sinusoidal\"\namplitude = 3.0\n",
          "gust.frequency_hz | gust.reduced_frequency", "missing: give one of");
-  expect(base + "[[gust]]\nshape = \"one-minus-cosine\"\ngradient = 5.0\ndesign = \"cs-25\"\n"
+  expect_gust_refusal(base + "[[gust]]\nshape = \"one-minus-cosine\"\ngradient = 5.0\ndesign = \"cs-25\"\n"
                 "landing_weight_ratio = 0.9\nzero_fuel_weight_ratio = 0.8\nmax_operating_altitude = 9000.0\n",
          "gust.gradient", "outside the rule's range");
-  expect(base + "[[gust]]\nshape = \"one-minus-cosine\"\ngradient = 30.0\ndesign = \"cs-25\"\n"
+  expect_gust_refusal(base + "[[gust]]\nshape = \"one-minus-cosine\"\ngradient = 30.0\ndesign = \"cs-25\"\n"
                 "landing_weight_ratio = 0.9\nzero_fuel_weight_ratio = 0.8\nmax_operating_altitude = 9000.0\n",
          "gust.altitude", "needed when [flow] gives a density");
-  expect(base + "[[gust]]\nshape = \"recorded\"\nfile = \"/nonexistent/g.csv\"\n", "gust.file",
+  expect_gust_refusal(base + "[[gust]]\nshape = \"recorded\"\nfile = \"/nonexistent/g.csv\"\n", "gust.file",
          "cannot open the recorded gust file");
-  expect(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\nfrequncy_hz = 2\n", "gust.frequncy_hz",
+  expect_gust_refusal(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\nfrequncy_hz = 2\n", "gust.frequncy_hz",
          "did you mean 'gust.frequency_hz'");
-  expect(base + "[aerodynamics]\nkussner = \"custom\"\nkussner_coefficients = [0.5, 0.6]\n"
+  expect_gust_refusal(base + "[aerodynamics]\nkussner = \"custom\"\nkussner_coefficients = [0.5, 0.6]\n"
                 "kussner_exponents = [0.1, 1.0]\n",
          "aerodynamics.kussner_coefficients", "sum to 1.1");
-  expect("gust = 3\n" + base, "gust", "must be an array of tables");
-  expect(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 1.0\nstart = 0.1\nstart_distance = 3.0\n",
+  expect_gust_refusal("gust = 3\n" + base, "gust", "must be an array of tables");
+  expect_gust_refusal(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 1.0\nstart = 0.1\nstart_distance = 3.0\n",
          "gust.start_distance", "conflicts with 'gust.start'");
   // start_distance in m flown: 3 m at 30 m/s is 0.1 s.
   const Case d = test::case_from(base + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 1.0\nstart_distance = 3.0\n");
@@ -553,51 +557,41 @@ TEST_CASE("gradient_chords gives H = n mean chords, the same as gradient = n 2b"
 TEST_CASE("Small-aircraft and gradient_chords keys are validated", "[gust][case][errors]") {
   // Common practice, no source: this project's messages (file, line, key,
   // value and what is allowed).
-  auto expect = [](const std::string& text, const std::string& key, const std::string& part) {
-    try {
-      (void)test::case_from(text);
-      FAIL("no error");
-    } catch (const InputError& e) {
-      INFO(e.what());
-      CHECK(e.key() == key);
-      CHECK_THAT(std::string(e.what()), Catch::Matchers::Contains(part));
-    }
-  };
   const std::string one = kChord15 + "[[gust]]\nshape = \"one-minus-cosine\"\n";
   const std::string cs23 = one + "design = \"cs-23\"\n";
-  expect(one + "amplitude = 3.0\ngradient = 10.0\ngradient_chords = 5.0\n", "gust.gradient_chords",
+  expect_gust_refusal(one + "amplitude = 3.0\ngradient = 10.0\ngradient_chords = 5.0\n", "gust.gradient_chords",
          "conflicts with 'gust.gradient'");
-  expect(one + "amplitude = 3.0\ngradient_chords = 0.0\n", "gust.gradient_chords", "must be positive");
-  expect(one + "amplitude = 3.0\ngradient_chords = -2.0\n", "gust.gradient_chords", "mean chords");
-  expect(cs23 + "speed_condition = \"VC\"\namplitude_eas = 10.0\n", "gust.amplitude_eas",
+  expect_gust_refusal(one + "amplitude = 3.0\ngradient_chords = 0.0\n", "gust.gradient_chords", "must be positive");
+  expect_gust_refusal(one + "amplitude = 3.0\ngradient_chords = -2.0\n", "gust.gradient_chords", "mean chords");
+  expect_gust_refusal(cs23 + "speed_condition = \"VC\"\namplitude_eas = 10.0\n", "gust.amplitude_eas",
          "conflicts with design = \"cs-23\"");
-  expect(cs23 + "altitude = 1000.0\n", "gust.speed_condition", "missing");
-  expect(cs23 + "speed_condition = \"VB\"\n", "gust.speed_condition", "\"VC\"");
-  expect(cs23 + "speed_condition = \"VC\"\ngradient = 10.0\n", "gust.gradient", "rule sets the gust length");
-  expect(cs23 + "speed_condition = \"VC\"\ngradient_chords = 12.5\n", "gust.gradient_chords",
+  expect_gust_refusal(cs23 + "altitude = 1000.0\n", "gust.speed_condition", "missing");
+  expect_gust_refusal(cs23 + "speed_condition = \"VB\"\n", "gust.speed_condition", "\"VC\"");
+  expect_gust_refusal(cs23 + "speed_condition = \"VC\"\ngradient = 10.0\n", "gust.gradient", "rule sets the gust length");
+  expect_gust_refusal(cs23 + "speed_condition = \"VC\"\ngradient_chords = 12.5\n", "gust.gradient_chords",
          "rule sets the gust length");
-  expect(cs23 + "speed_condition = \"VC\"\nlanding_weight_ratio = 0.9\n", "gust.landing_weight_ratio",
+  expect_gust_refusal(cs23 + "speed_condition = \"VC\"\nlanding_weight_ratio = 0.9\n", "gust.landing_weight_ratio",
          "only used with design = \"cs-25\"");
-  expect(cs23 + "speed_condition = \"VC\"\naltitude = 16000.0\n", "gust.altitude", "0 to 15240 m");
-  expect(cs23 + "speed_condition = \"VC\"\nmean_chord = 0.0\n", "gust.mean_chord", "must be positive");
-  expect(one + "amplitude = 3.0\ngradient = 10.0\nmean_chord = 1.2\n", "gust.mean_chord",
+  expect_gust_refusal(cs23 + "speed_condition = \"VC\"\naltitude = 16000.0\n", "gust.altitude", "0 to 15240 m");
+  expect_gust_refusal(cs23 + "speed_condition = \"VC\"\nmean_chord = 0.0\n", "gust.mean_chord", "must be positive");
+  expect_gust_refusal(one + "amplitude = 3.0\ngradient = 10.0\nmean_chord = 1.2\n", "gust.mean_chord",
          "only used with gradient_chords or design = \"cs-23\"");
-  expect(kChord15 + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\ngradient_chords = 5.0\n",
+  expect_gust_refusal(kChord15 + "[[gust]]\nshape = \"sharp-edged\"\namplitude = 3.0\ngradient_chords = 5.0\n",
          "gust.gradient_chords", "only used by one-minus-cosine");
-  expect(one + "amplitude = 3.0\ngradient = 10.0\nspeed_condition = \"VD\"\n", "gust.speed_condition",
+  expect_gust_refusal(one + "amplitude = 3.0\ngradient = 10.0\nspeed_condition = \"VD\"\n", "gust.speed_condition",
          "only used with a design rule");
   // CS-25 with H in chords: the rule's range said in chords (9.144 / 1.5 =
   // 6.096 to 106.68 / 1.5 = 71.12).
-  expect(one + "design = \"cs-25\"\ngradient_chords = 80\nlanding_weight_ratio = 0.9\n"
+  expect_gust_refusal(one + "design = \"cs-25\"\ngradient_chords = 80\nlanding_weight_ratio = 0.9\n"
                "zero_fuel_weight_ratio = 0.8\nmax_operating_altitude = 12500.0\n",
          "gust.gradient_chords", "6.096 to 71.12 chords");
   // One rule per case.
-  expect(cs23 + "speed_condition = \"VC\"\n[[gust]]\nshape = \"one-minus-cosine\"\ndesign = \"cs-25\"\n"
+  expect_gust_refusal(cs23 + "speed_condition = \"VC\"\n[[gust]]\nshape = \"one-minus-cosine\"\ndesign = \"cs-25\"\n"
                 "gradient = 30.0\nlanding_weight_ratio = 0.9\nzero_fuel_weight_ratio = 0.8\n"
                 "max_operating_altitude = 12500.0\n",
          "gust.design", "mixes rules");
   // Above the rule's table with no gust.altitude: the [flow] altitude is named.
-  expect("[section]\nsemichord = 0.75\nmass = 10.0\nelastic_axis = -0.2\ncg_offset = 0.1\n"
+  expect_gust_refusal("[section]\nsemichord = 0.75\nmass = 10.0\nelastic_axis = -0.2\ncg_offset = 0.1\n"
          "radius_of_gyration = 0.5\nplunge_frequency_hz = 2.0\npitch_frequency_hz = 5.0\n"
          "[flow]\naltitude = 16000.0\nairspeed = 60.0\n[simulation]\nduration = 0.5\n"
          "[[gust]]\nshape = \"one-minus-cosine\"\ndesign = \"cs-23\"\nspeed_condition = \"VC\"\n",

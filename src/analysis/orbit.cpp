@@ -1,5 +1,7 @@
 #include "aerosect/analysis/orbit.hpp"
 
+#include "aerosect/integrate/exact_flow.hpp"
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -42,10 +44,11 @@ std::vector<int> active_components(const AeroelasticModel& model) {
 // `monodromy` the variational equations ride along (integrator.hpp).
 Flow plain_flow(const AeroelasticModel& model, const std::vector<double>& x0, double period,
                 const IntegratorSettings& settings, bool extrema, const std::atomic<bool>* cancel,
-                bool monodromy = false) {
+                bool monodromy = false, ExactFlowCache* cache = nullptr) {
   const StateLayout& L = model.layout();
   const int n = L.size;
   RunState run;
+  run.exact_cache = cache;
   run.x = x0;
   run.regions = model.regions_of(x0.data());
   if (monodromy) {
@@ -97,9 +100,9 @@ Eigen::MatrixXd finite_difference_monodromy(const AeroelasticModel& model,
 
 Flow orbit_flow(const AeroelasticModel& model, const std::vector<double>& x0, double period,
                 const IntegratorSettings& settings, bool monodromy,
-                const std::atomic<bool>* cancel) {
+                const std::atomic<bool>* cancel, ExactFlowCache* cache) {
   AEROSECT_CHECK(period > 0 && std::isfinite(period));
-  return plain_flow(model, x0, period, settings, true, cancel, monodromy);
+  return plain_flow(model, x0, period, settings, true, cancel, monodromy, cache);
 }
 
 void describe_orbit(const AeroelasticModel& model, Orbit& o, const Flow& flow,
@@ -207,11 +210,12 @@ Orbit solve_orbit(const AeroelasticModel& model, const OrbitSeed& seed,
   std::vector<double> f(static_cast<std::size_t>(L.size));
   Eigen::FullPivLU<Eigen::MatrixXd> chord_lu;  // the first iterate's Newton matrix (chord)
   Eigen::MatrixXd chord_monodromy;
+  ExactFlowCache regions;  // the shooting runs' region exponentials, built once
   for (int it = 0; it <= settings.max_iterations; ++it) {
     Flow flow;
     const bool with_monodromy = !settings.chord || it == 0;
     try {
-      flow = orbit_flow(model, x0, T, settings.integrator, with_monodromy, cancel);
+      flow = orbit_flow(model, x0, T, settings.integrator, with_monodromy, cancel, &regions);
       if (!with_monodromy) flow.monodromy = chord_monodromy;
     } catch (const NumericalError& e) {
       o.failure = fmt::format("the flow over one period failed at Newton iteration {}: {}", it, e.what());
@@ -300,7 +304,9 @@ std::optional<OrbitSeed> seed_from_time_march(const AeroelasticModel& model,
   ls.watch_dof = orbit_watched_dof(model, watched_dof);
   ls.tolerance = 1e-6;
   LcoTracker tracker(model, ls);
+  ExactFlowCache regions;
   RunState run;
+  run.exact_cache = &regions;
   run.x = start;
   run.regions = model.regions_of(start.data());
   const IntegrationResult r =

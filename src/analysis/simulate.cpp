@@ -11,6 +11,7 @@
 #include <fmt/format.h>
 
 #include "aerosect/error.hpp"
+#include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/model/atmosphere.hpp"
 #include "aerosect/units.hpp"
 #include "aerosect/version.hpp"
@@ -393,11 +394,11 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     row[k++] = l.effective_downwash;
   };
   // Extremes: the largest and smallest value of each tracked channel over
-  // the samples and the integrator's step ends (so sparse samples do not
-  // hide them), and where the search for the true extremum starts after
-  // the run: the step end before the best step end (a bracket of two steps
-  // around it), or the sample before the best sample when that sample
-  // exceeds every step end.
+  // the samples, the start and the integrator's step ends (so sparse
+  // samples do not hide them), and where the search for the true extremum
+  // starts after the run: the step end before the best value (the start, a
+  // step end or a sample inside a step) and ends at the step end after it
+  // -- a bracket of at most two steps, whatever the sample rate.
   struct SampleState {
     double t = 0;
     std::vector<double> x;
@@ -413,28 +414,33 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   };
   // [i][0]: maximum of channel i, [i][1]: minimum (as the maximum of -channel).
   std::vector<std::array<Best, 2>> step_best(tracked.size()), sample_best(tracked.size());
-  SampleState previous_sample, previous_step;
-  auto note = [&](std::vector<std::array<Best, 2>>& best, SampleState& previous, double t,
-                  const std::vector<double>& x) {
+  SampleState previous_step;  // the last step end (the start before the first step)
+  // A new best value of the row at t: its bracket starts at the last step end
+  // and stays open until the next one.
+  auto note = [&](std::vector<std::array<Best, 2>>& best, double t, const std::vector<double>& x) {
     for (std::size_t i = 0; i < tracked.size(); ++i) {
       const double v = row[tracked[i].column];
       for (int k = 0; k < 2; ++k) {
         Best& b = best[i][static_cast<std::size_t>(k)];
-        if (b.bracket.open) {
-          b.bracket.to = t;
-          b.bracket.open = false;
-        }
         const double sv = k == 0 ? v : -v;
         if (sv > b.value) {
           b.value = sv;
-          b.bracket.from = previous.x.empty() ? SampleState{t, x} : previous;
+          b.bracket.from = previous_step.x.empty() ? SampleState{t, x} : previous_step;
           b.bracket.to = t;
           b.bracket.open = true;
         }
       }
     }
-    previous.t = t;
-    previous.x = x;
+  };
+  // At a step end: the open brackets end here.
+  auto close_brackets = [&](double t) {
+    for (auto* best : {&step_best, &sample_best})
+      for (auto& pair : *best)
+        for (Best& b : pair)
+          if (b.bracket.open && t > b.bracket.from.t) {
+            b.bracket.to = t;
+            b.bracket.open = false;
+          }
   };
   auto observer = [&](double t, const std::vector<double>& x) {
     fill_row(t, x, run.regions, run.input_segment);
@@ -451,13 +457,16 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
       }
       e.rms += v * v;  // sum of squares until the end of the run
     }
-    note(sample_best, previous_sample, t, x);
+    note(sample_best, t, x);
     sink.append(t, row);
     return ObserverAction::kContinue;
   };
   auto step_observer = [&](double t, const std::vector<double>& x) {
+    close_brackets(t);
     fill_row(t, x, run.regions, run.input_segment);
-    note(step_best, previous_step, t, x);
+    note(step_best, t, x);
+    previous_step.t = t;
+    previous_step.x = x;
     return ObserverAction::kContinue;
   };
 
@@ -465,6 +474,7 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   // trajectory restarted from the bracket's start (integrated at the case's
   // settings), maximised by Brent's method (Boost.Math) over the bracket.
   // Kept only when it exceeds the extreme found so far.
+  ExactFlowCache restart_cache;  // the restarts' regions, built once
   auto refine = [&](std::size_t i, const Bracket& b, int k) {
     Extreme& e = summary.extremes[tracked[i].extreme];
     const double sign = k == 0 ? 1.0 : -1.0;
@@ -474,6 +484,7 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     if (b.from.x.empty() || !(hi > lo)) return;
     auto value = [&](double t) {
       RunState r;
+      r.exact_cache = &restart_cache;
       r.time = lo;
       r.x = b.from.x;
       r.regions = model.regions_of(b.from.x.data());
@@ -516,6 +527,9 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
                       {"rhs_evaluations", static_cast<std::int64_t>(run.rhs_evaluations)},
                       {"switches", static_cast<std::int64_t>(run.switches)}};
   };
+  // The start is a step end: the extremes' brackets begin there.
+  fill_row(run.time, run.x, run.regions, run.input_segment);
+  note(step_best, run.time, run.x);
   previous_step = {run.time, run.x};
   try {
     const IntegrationResult r =

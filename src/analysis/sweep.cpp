@@ -150,7 +150,9 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
   if (o.axes.size() > 1) ov.push_back(fmt::format("{}={:.17g}", o.axes[1].key, p.value2));
   const Case c = sweep_point_case(r, ov);
   const AeroelasticModel model(c.model);
+  ExactFlowCache regions;  // the point's runs share their region exponentials
   RunState run;
+  run.exact_cache = &regions;
   // A divergent or failed point's final state is no start for the next.
   const bool carry = o.continuation && previous && previous->ok &&
                      previous->lco.response != ResponseClass::kDivergent &&

@@ -72,19 +72,23 @@ struct Region {
 // exp(tau M) v by its Taylor series (||tau M|| <= 1/2: terms fall by 2 or
 // more each, 1e-17 relative after about 20).
 Vec expv(const Mat& M, const Vec& v, double tau) {
-  Vec sum = v, term = v;
+  Vec sum = v, term = v, next;
   for (int k = 1; k < 40; ++k) {
-    term = (tau / k) * (M * term);
+    next.noalias() = M.lazyProduct(term);  // (lazyProduct assumes no aliasing)
+    term = (tau / k) * next;
     sum += term;
     if (term.lpNorm<Eigen::Infinity>() <= 1e-18 * sum.lpNorm<Eigen::Infinity>()) break;
   }
   return sum;
 }
 
+// (Products by lazyProduct: at these sizes, 9 to 32, Eigen's blocked
+// matrix product costs more in packing and set-up than the arithmetic.)
 Mat expm(const Mat& M, double tau) {
-  Mat sum = Mat::Identity(M.rows(), M.cols()), term = sum;
+  Mat sum = Mat::Identity(M.rows(), M.cols()), term = sum, next;
   for (int k = 1; k < 40; ++k) {
-    term = (tau / k) * (M * term);
+    next.noalias() = M.lazyProduct(term);
+    term = (tau / k) * next;
     sum += term;
     if (term.lpNorm<Eigen::Infinity>() <= 1e-18 * sum.lpNorm<Eigen::Infinity>()) break;
   }
@@ -127,13 +131,27 @@ struct Witness {
   Vec aM;              // coef M(index, :): the row of g' = aM . z
 };
 
+using RegionMap = std::map<std::vector<int>, Region>;
+
+}  // namespace exact_detail
+
+struct ExactFlowCache::Impl {
+  const AeroelasticModel* model = nullptr;  // the model whose regions these are
+  exact_detail::RegionMap regions;
+};
+ExactFlowCache::ExactFlowCache() : impl_(std::make_unique<Impl>()) {}
+ExactFlowCache::~ExactFlowCache() = default;
+
+namespace exact_detail {
+
 class ExactRun {
  public:
   ExactRun(const AeroelasticModel& model, RunState& run, double t_end, const OutputSchedule& schedule,
            const RunObservers& obs)
       : model_(model), L_(model.layout()), n_(model.state_size()),
         N_(model.state_size() + 1 + 2 * gust_oscillators(model.gusts())), run_(run), t_end_(t_end),
-        schedule_(schedule), obs_(obs), W_(state_weights(model)), breaks_(model.gusts().breakpoints()) {}
+        schedule_(schedule), obs_(obs), W_(state_weights(model)), breaks_(model.gusts().breakpoints()),
+        cache_(shared_regions(model, run)) {}
 
   IntegrationResult operator()() {
     const double t0 = run_.time;
@@ -201,7 +219,7 @@ class ExactRun {
       // Advance.
       if (event) {
         if (run_.track_monodromy) {
-          phi_next.noalias() = expm(R->M, te).topLeftCorner(n_, n_) * phi;
+          phi_next.noalias() = expm(R->M, te).topLeftCorner(n_, n_).lazyProduct(phi);
           phi.swap(phi_next);
         }
         z = state_at(*R, z, te);
@@ -217,8 +235,8 @@ class ExactRun {
         ws = witnesses(*R);
       } else {
         if (run_.track_monodromy) {
-          if (E) phi_next.noalias() = E->topLeftCorner(n_, n_) * phi;
-          else phi_next.noalias() = expm(R->M, h).topLeftCorner(n_, n_) * phi;
+          if (E) phi_next.noalias() = E->topLeftCorner(n_, n_).lazyProduct(phi);
+          else phi_next.noalias() = expm(R->M, h).topLeftCorner(n_, n_).lazyProduct(phi);
           phi.swap(phi_next);
         }
         z.swap(zb);
@@ -482,7 +500,16 @@ class ExactRun {
   const Vec W_;
   const std::span<const double> breaks_;  // input switch times
   std::vector<int> key_;  // the spring regions and input segment of a Region
-  std::map<std::vector<int>, Region> cache_;
+  RegionMap own_cache_;   // when the run has no ExactFlowCache
+  RegionMap& cache_;
+
+  RegionMap& shared_regions(const AeroelasticModel& model, RunState& run) {
+    if (!run.exact_cache) return own_cache_;
+    ExactFlowCache::Impl& c = *run.exact_cache->impl_;
+    if (!c.model) c.model = &model;
+    AEROSECT_CHECK(c.model == &model);
+    return c.regions;
+  }
   std::vector<double> x_;  // a sample's state, unscaled
   std::vector<std::pair<double, int>> found_;  // a step's peaks (time, DOF)
   mutable StepPolynomial poly_;  // the present step's Taylor polynomial, when poly_valid_

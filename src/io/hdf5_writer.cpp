@@ -191,12 +191,14 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
     if (meta.expected_rows > 0)
       f.block_rows = std::min(f.block_rows, static_cast<std::size_t>(meta.expected_rows));
 
+    const int deflate_level =
+        meta.expected_rows > 0 && meta.expected_rows < kMinCompressedRows ? 0 : options_.deflate_level;
     f.file = create_file(temporary_path_);
 
     H5::Group root = f.file->openGroup("/");
     write_root_attributes(root, meta);
 
-    f.time = create_series(*f.file, kTimeName, 1, f.block_rows, options_.deflate_level);
+    f.time = create_series(*f.file, kTimeName, 1, f.block_rows, deflate_level);
     write_text(f.time, "units", time_channel.units);
     write_text(f.time, "long_name", time_channel.long_name);
     // Elapsed time of the run, not a date: no reference epoch, so neither
@@ -211,7 +213,7 @@ void Hdf5TimeHistoryWriter::begin(const Channel& time_channel,
       s.width = c.width;
       s.buffer_offset = f.row_width * f.block_rows;
       f.row_width += static_cast<std::size_t>(c.width);
-      s.dataset = create_series(*f.file, c.name, c.width, f.block_rows, options_.deflate_level);
+      s.dataset = create_series(*f.file, c.name, c.width, f.block_rows, deflate_level);
       write_text(s.dataset, "units", c.units);
       write_text(s.dataset, "long_name", c.long_name);
       attach_scale(s.dataset, f.time, 0);

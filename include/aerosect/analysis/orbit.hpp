@@ -124,9 +124,11 @@ struct Flow {
   // Extrema of each DOF inside (0, T]: (t, value).
   std::array<std::vector<std::pair<double, double>>, 3> extrema;
 };
+// `cache` (optional): the exact propagator's regions kept between calls on
+// the same model (exact_flow.hpp).
 Flow orbit_flow(const AeroelasticModel& model, const std::vector<double>& x0, double period,
                 const IntegratorSettings& settings, bool monodromy,
-                const std::atomic<bool>* cancel = nullptr);
+                const std::atomic<bool>* cancel = nullptr, ExactFlowCache* cache = nullptr);
 
 // The monodromy by central differences of the flow, column i =
 // (phi_T(x0 + h e_i) - phi_T(x0 - h e_i)) / 2h, h = 1e-6 of the largest

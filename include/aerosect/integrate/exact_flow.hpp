@@ -46,11 +46,37 @@
 // region). Samples (OutputSchedule) are evaluated on the exact solution at
 // their times.
 
+#include <memory>
 #include <string>
 
 #include "aerosect/integrate/integrator.hpp"
 
 namespace aerosect {
+
+namespace exact_detail {
+class ExactRun;
+}
+
+// The regions' augmented matrices and exponentials of one model, kept
+// between runs: runs of the same model (a sweep point's segments, the
+// shooting runs of an orbit, the restarts that locate a simulation's true
+// extremes) then build each region once instead of once per run. Set
+// RunState::exact_cache to use one. A cache belongs to one model (checked:
+// InternalError when a run of another model is given it) and to one thread
+// at a time, and must not outlive its model; it holds no result, only what
+// a run would rebuild identically (results are bit for bit the same).
+class ExactFlowCache {
+ public:
+  ExactFlowCache();
+  ~ExactFlowCache();
+  ExactFlowCache(const ExactFlowCache&) = delete;
+  ExactFlowCache& operator=(const ExactFlowCache&) = delete;
+
+ private:
+  friend class exact_detail::ExactRun;
+  struct Impl;
+  std::unique_ptr<Impl> impl_;
+};
 
 // True when the model can be propagated exactly (see above); else false and
 // `why` (when given) says what prevents it.

@@ -92,6 +92,8 @@ struct OutputSchedule {
   bool any() const { return every_step || interval > 0; }
 };
 
+class ExactFlowCache;  // exact_flow.hpp
+
 // Mutable per-run data.
 struct RunState {
   double time = 0.0;               // s
@@ -105,6 +107,10 @@ struct RunState {
   bool track_monodromy = false;    // integrate Phi' = Df(x(t)) Phi with the state (see above)
   std::vector<double> monodromy;   // n*n, column-major; the caller sets it (identity to
                                    // start); on return Phi(t_end, t_start) applied to it
+  // Optional scratch of the exact propagator, owned by the caller: the
+  // regions' matrix exponentials kept from one run to the next of the same
+  // model on the same thread (exact_flow.hpp). Null: each run builds its own.
+  ExactFlowCache* exact_cache = nullptr;
 };
 
 enum class ObserverAction { kContinue, kStop };

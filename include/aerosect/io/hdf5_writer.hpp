@@ -26,7 +26,9 @@
 // The time axis is always named "time"; the time channel gives its units
 // and long_name. Every time-dependent dataset is chunked block_rows rows deep
 // (RunMetadata::expected_rows deep when the run says it writes fewer) with
-// the shuffle and deflate filters; rows are buffered and written one block
+// the shuffle and deflate filters (none when the run says it writes fewer
+// than kMinCompressedRows rows: zlib's set-up, a 256 KiB state per chunk,
+// then costs more than the file saves); rows are buffered and written one block
 // (one chunk) at a time, so memory use does not grow with the length of the
 // run. Before each block the free space is checked, so a full disk is
 // reported while the file can still be closed and removed.
@@ -38,6 +40,7 @@
 // missing or unwritable, disk full, HDF5 error) is thrown as OutputError.
 
 #include <cstddef>
+#include <cstdint>
 #include <memory>
 #include <span>
 #include <string>
@@ -54,6 +57,9 @@ struct Hdf5WriterOptions {
   std::size_t block_rows = 32768;
   int deflate_level = 4;          // 0..9; 0 writes without shuffle/deflate
 };
+
+// A run expected to write fewer rows is written without filters.
+inline constexpr std::int64_t kMinCompressedRows = 256;
 
 class Hdf5TimeHistoryWriter final : public TimeHistorySink {
  public:

@@ -5,6 +5,7 @@
 #include <cmath>
 #include <limits>
 #include <map>
+#include <memory>
 
 #include <fmt/format.h>
 
@@ -50,15 +51,50 @@ bool exact_propagation_eligible(const ModelDescription& d, std::string* why) {
   return true;
 }
 
+// The regions of the cache's model (one region map, of the model's
+// augmented length).
+struct ExactFlowCache::Impl {
+  const AeroelasticModel* model = nullptr;
+  std::shared_ptr<void> regions;
+};
+ExactFlowCache::ExactFlowCache() : impl_(std::make_unique<Impl>()) {}
+ExactFlowCache::~ExactFlowCache() = default;
+
 // Named (not anonymous): the unity build compiles this file with
 // integrator.cpp, whose own Witness is in its anonymous namespace.
 namespace exact_detail {
 
+int augmented_size(const AeroelasticModel& model) {
+  return model.state_size() + 1 + 2 * gust_oscillators(model.gusts());
+}
+
+struct CacheAccess {
+  static std::shared_ptr<void>& regions_of(ExactFlowCache& cache, const AeroelasticModel& model) {
+    ExactFlowCache::Impl& c = *cache.impl_;
+    if (!c.model) c.model = &model;
+    AEROSECT_CHECK(c.model == &model);
+    return c.regions;
+  }
+};
+
 // At most kMaxAugmented rows (the largest state, 3 DOFs with 8 Wagner and 8
 // Kussner lag states, is 23 long): fixed-capacity storage, no heap traffic.
 constexpr int kMaxAugmented = 32;
-using Vec = Eigen::Matrix<double, Eigen::Dynamic, 1, 0, kMaxAugmented, 1>;
-using Mat = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, 0, kMaxAugmented, kMaxAugmented>;
+// The state's own (not augmented) vectors and matrices: the weights and the
+// monodromy.
+using StateVec = Eigen::Matrix<double, Eigen::Dynamic, 1, 0, kMaxAugmented, 1>;
+using StateMat = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, 0, kMaxAugmented, kMaxAugmented>;
+
+// Everything below is compiled for the common augmented lengths N as
+// fixed-size Eigen types (unrolled, vectorised products: a step costs a few
+// dozen instructions instead of a few hundred) and once for any length up
+// to kMaxAugmented (N = Eigen::Dynamic); integrate_exact picks the one that
+// fits. The arithmetic is the same in every instance.
+template <int N>
+struct Kernels {
+static constexpr int kCap = N == Eigen::Dynamic ? kMaxAugmented : N;
+using Vec = Eigen::Matrix<double, N, 1, 0, kCap, 1>;
+using Mat = Eigen::Matrix<double, N, N, 0, kCap, kCap>;
 
 // One spring configuration: the scaled augmented matrix and its step.
 struct Region {
@@ -71,26 +107,26 @@ struct Region {
 
 // exp(tau M) v by its Taylor series (||tau M|| <= 1/2: terms fall by 2 or
 // more each, 1e-17 relative after about 20).
-Vec expv(const Mat& M, const Vec& v, double tau) {
+static Vec expv(const Mat& M, const Vec& v, double tau) {
   Vec sum = v, term = v, next;
   for (int k = 1; k < 40; ++k) {
     next.noalias() = M.lazyProduct(term);  // (lazyProduct assumes no aliasing)
     term = (tau / k) * next;
     sum += term;
-    if (term.lpNorm<Eigen::Infinity>() <= 1e-18 * sum.lpNorm<Eigen::Infinity>()) break;
+    if (term.template lpNorm<Eigen::Infinity>() <= 1e-18 * sum.template lpNorm<Eigen::Infinity>()) break;
   }
   return sum;
 }
 
 // (Products by lazyProduct: at these sizes, 9 to 32, Eigen's blocked
 // matrix product costs more in packing and set-up than the arithmetic.)
-Mat expm(const Mat& M, double tau) {
+static Mat expm(const Mat& M, double tau) {
   Mat sum = Mat::Identity(M.rows(), M.cols()), term = sum, next;
   for (int k = 1; k < 40; ++k) {
     next.noalias() = M.lazyProduct(term);
     term = (tau / k) * next;
     sum += term;
-    if (term.lpNorm<Eigen::Infinity>() <= 1e-18 * sum.lpNorm<Eigen::Infinity>()) break;
+    if (term.template lpNorm<Eigen::Infinity>() <= 1e-18 * sum.template lpNorm<Eigen::Infinity>()) break;
   }
   return sum;
 }
@@ -101,7 +137,7 @@ Mat expm(const Mat& M, double tau) {
 // ||z|| (6e-22): exact to round-off. Built once per step that needs states
 // inside it (events, peaks); every evaluation is then a Horner sum instead
 // of a new series of matrix products.
-constexpr int kTerms = 18;
+static constexpr int kTerms = 18;
 struct StepPolynomial {
   std::array<Vec, kTerms> q;
   void build(const Mat& M, const Vec& z) {
@@ -133,17 +169,6 @@ struct Witness {
 
 using RegionMap = std::map<std::vector<int>, Region>;
 
-}  // namespace exact_detail
-
-struct ExactFlowCache::Impl {
-  const AeroelasticModel* model = nullptr;  // the model whose regions these are
-  exact_detail::RegionMap regions;
-};
-ExactFlowCache::ExactFlowCache() : impl_(std::make_unique<Impl>()) {}
-ExactFlowCache::~ExactFlowCache() = default;
-
-namespace exact_detail {
-
 class ExactRun {
  public:
   ExactRun(const AeroelasticModel& model, RunState& run, double t_end, const OutputSchedule& schedule,
@@ -170,9 +195,9 @@ class ExactRun {
       }
     }
     run_.input_segment = model_.gusts().segment_of(run_.time);
-    Mat phi, phi_next;  // scaled monodromy W Phi W^-1
+    StateMat phi, phi_next;  // scaled monodromy W Phi W^-1
     if (run_.track_monodromy) {
-      const Eigen::Map<const Mat> p(run_.monodromy.data(), n_, n_);
+      const Eigen::Map<const StateMat> p(run_.monodromy.data(), n_, n_);
       phi = W_.asDiagonal() * p * W_.cwiseInverse().asDiagonal();
     }
     bool stop = false;
@@ -289,7 +314,7 @@ class ExactRun {
     // with w_g in harmonic form over the oscillator states.
     const std::vector<double> x(static_cast<std::size_t>(n_), 0.0);
     std::vector<double> f(static_cast<std::size_t>(n_));
-    Mat J(n_, n_);
+    StateMat J(n_, n_);
     model_.jacobian(x.data(), run_.time, run_.regions, 0, J);
     model_.rhs(x.data(), f.data(), run_.time, run_.regions, 0);
     Region r;
@@ -479,10 +504,10 @@ class ExactRun {
     return x_;
   }
 
-  IntegrationResult finish(const Vec& z, const Mat& phi, StopReason reason) {
+  IntegrationResult finish(const Vec& z, const StateMat& phi, StopReason reason) {
     for (int i = 0; i < n_; ++i) run_.x[static_cast<std::size_t>(i)] = z(i) / W_(i);
     if (run_.track_monodromy) {
-      const Mat p = W_.cwiseInverse().asDiagonal() * phi * W_.asDiagonal();
+      const StateMat p = W_.cwiseInverse().asDiagonal() * phi * W_.asDiagonal();
       std::copy(p.data(), p.data() + p.size(), run_.monodromy.begin());
     }
     return {reason, run_.time};
@@ -497,7 +522,7 @@ class ExactRun {
   const double t_end_;
   const OutputSchedule& schedule_;
   const RunObservers& obs_;
-  const Vec W_;
+  const StateVec W_;
   const std::span<const double> breaks_;  // input switch times
   std::vector<int> key_;  // the spring regions and input segment of a Region
   RegionMap own_cache_;   // when the run has no ExactFlowCache
@@ -505,16 +530,16 @@ class ExactRun {
 
   RegionMap& shared_regions(const AeroelasticModel& model, RunState& run) {
     if (!run.exact_cache) return own_cache_;
-    ExactFlowCache::Impl& c = *run.exact_cache->impl_;
-    if (!c.model) c.model = &model;
-    AEROSECT_CHECK(c.model == &model);
-    return c.regions;
+    std::shared_ptr<void>& slot = CacheAccess::regions_of(*run.exact_cache, model);
+    if (!slot) slot = std::make_shared<RegionMap>();
+    return *std::static_pointer_cast<RegionMap>(slot);
   }
   std::vector<double> x_;  // a sample's state, unscaled
   std::vector<std::pair<double, int>> found_;  // a step's peaks (time, DOF)
   mutable StepPolynomial poly_;  // the present step's Taylor polynomial, when poly_valid_
   mutable bool poly_valid_ = false;
 };
+};  // struct Kernels
 
 }  // namespace exact_detail
 
@@ -524,7 +549,15 @@ IntegrationResult integrate_exact(const AeroelasticModel& model, RunState& run, 
   AEROSECT_CHECK(static_cast<int>(run.x.size()) == model.state_size());
   AEROSECT_CHECK(!run.track_monodromy || run.monodromy.size() == run.x.size() * run.x.size());
   if (run.regions.empty()) run.regions = model.regions_of(run.x.data());
-  return exact_detail::ExactRun(model, run, t_end, schedule, observers)();
+  using exact_detail::Kernels;
+  switch (exact_detail::augmented_size(model)) {
+    case 5: return Kernels<5>::ExactRun(model, run, t_end, schedule, observers)();
+    case 7: return Kernels<7>::ExactRun(model, run, t_end, schedule, observers)();
+    case 9: return Kernels<9>::ExactRun(model, run, t_end, schedule, observers)();
+    case 11: return Kernels<11>::ExactRun(model, run, t_end, schedule, observers)();
+    case 13: return Kernels<13>::ExactRun(model, run, t_end, schedule, observers)();
+    default: return Kernels<Eigen::Dynamic>::ExactRun(model, run, t_end, schedule, observers)();
+  }
 }
 
 }  // namespace aerosect

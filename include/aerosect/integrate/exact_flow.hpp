@@ -54,7 +54,7 @@
 namespace aerosect {
 
 namespace exact_detail {
-class ExactRun;
+struct CacheAccess;
 }
 
 // The regions' augmented matrices and exponentials of one model, kept
@@ -73,7 +73,7 @@ class ExactFlowCache {
   ExactFlowCache& operator=(const ExactFlowCache&) = delete;
 
  private:
-  friend class exact_detail::ExactRun;
+  friend struct exact_detail::CacheAccess;
   struct Impl;
   std::unique_ptr<Impl> impl_;
 };

@@ -302,6 +302,29 @@ TEST_CASE("HDF5 writer: deflate level 0 writes without filters", "[hdf5_writer]"
   check_values(path, 5);
 }
 
+TEST_CASE("HDF5 writer: a run expected to write few rows is written without filters", "[hdf5_writer]") {
+  // Below kMinCompressedRows expected rows no shuffle/deflate (zlib's set-up
+  // costs more than it saves); at or above it, and when the length is not
+  // known (0), both filters as usual. HDF5 H5P docs (H5Pget_nfilters).
+  H5::Exception::dontPrint();
+  for (const std::int64_t expected : {std::int64_t{3}, aerosect::kMinCompressedRows - 1, aerosect::kMinCompressedRows, std::int64_t{0}}) {
+    INFO("expected " << expected);
+    TempDir dir;
+    const std::string path = dir.file("run.h5");
+    RunMetadata meta = writer_metadata();
+    meta.expected_rows = expected;
+    Hdf5TimeHistoryWriter w(path, {4, 6});
+    w.begin(kTime, test_channels(), meta);
+    write_rows(w, 5);
+    w.finish(completed(5));
+    check_values(path, 5);
+    H5::H5File file(path, H5F_ACC_RDONLY);
+    const int filters = expected > 0 && expected < aerosect::kMinCompressedRows ? 0 : 2;
+    for (const char* name : {"time", "pitch", "wagner_lag_states"})
+      CHECK(file.openDataSet(name).getCreatePlist().getNfilters() == filters);
+  }
+}
+
 TEST_CASE("HDF5 writer: time and component axes are dimension scales", "[hdf5_writer]") {
   H5::Exception::dontPrint();
   TempDir dir;

@@ -229,7 +229,7 @@ std::optional<SweepPoint> run_point(const SweepRequest& r, int d, int i, int j,
 Case sweep_point_case(const SweepRequest& r, const std::vector<std::string>& point_overrides) {
   std::vector<std::string> ov = r.overrides;
   ov.insert(ov.end(), point_overrides.begin(), point_overrides.end());
-  Case c = parse_case(r.case_text, r.case_path, ov);
+  Case c = r.document ? r.document->with(ov) : parse_case(r.case_text, r.case_path, ov);
   if (!r.options.with_gusts) c.model.gusts = GustField();
   return c;
 }
@@ -282,9 +282,12 @@ void check_swept_values(const SweepRequest& r) {
     }
 }
 
-std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<SweepPoint>& done,
+std::vector<SweepPoint> run_sweep(const SweepRequest& request, const std::vector<SweepPoint>& done,
                                   const std::function<void(const SweepPoint&)>& on_point,
                                   const std::atomic<bool>* cancel, const std::function<void()>& beside) {
+  SweepRequest parsed = request;
+  if (!parsed.document) parsed.document = std::make_shared<const CaseDocument>(request.case_text, request.case_path);
+  const SweepRequest& r = parsed;
   const SweepOptions& o = r.options;
   AEROSECT_CHECK(!o.axes.empty() && o.axes.size() <= 2);
   const int n1 = static_cast<int>(o.axes[0].values.size());

@@ -921,15 +921,41 @@ Case load_case(const std::string& path, const std::vector<std::string>& override
   return parse_case(read_file(path), path, overrides);
 }
 
+namespace {
+Case read_case(toml::table root, const std::string& text, const std::string& path,
+               const std::vector<std::string>& overrides);
+}  // namespace
+
 Case parse_case(const std::string& text, const std::string& path,
                 const std::vector<std::string>& overrides) {
+  return read_case(parse_document(text, path), text, path, overrides);
+}
+
+struct CaseDocument::Impl {
+  std::string text, path;
+  toml::table root;
+};
+CaseDocument::CaseDocument(std::string text, std::string path) {
+  auto impl = std::make_unique<Impl>();
+  impl->root = parse_document(text, path);
+  impl->text = std::move(text);
+  impl->path = std::move(path);
+  impl_ = std::move(impl);
+}
+CaseDocument::~CaseDocument() = default;
+Case CaseDocument::with(const std::vector<std::string>& overrides) const {
+  return read_case(impl_->root, impl_->text, impl_->path, overrides);  // (a copy of the parsed document)
+}
+
+namespace {
+Case read_case(toml::table root, const std::string& text, const std::string& path,
+               const std::vector<std::string>& overrides) {
   Context ctx{path, {}};
   Case c;
   c.path = path;
   c.text = text;
   c.overrides = overrides;
 
-  toml::table root = parse_document(text, path);
   for (const auto& o : overrides) apply_override(root, o, case_schema(), ctx);
   check_unknown_keys(ctx, case_schema(), root);
 
@@ -999,5 +1025,6 @@ Case parse_case(const std::string& text, const std::string& path,
   }
   return c;
 }
+}  // namespace
 
 }  // namespace aerosect

@@ -38,6 +38,7 @@
 #include <atomic>
 #include <functional>
 #include <limits>
+#include <memory>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -99,6 +100,9 @@ struct SweepRequest {
   std::string case_text, case_path;
   std::vector<std::string> overrides;
   SweepOptions options;
+  // The case text parsed once (optional; run_sweep makes it when absent):
+  // each point's case is read from it instead of parsing the text again.
+  std::shared_ptr<const CaseDocument> document;
 };
 
 // Throws InputError when a swept value is rejected by the case reader

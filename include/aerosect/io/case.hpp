@@ -16,6 +16,7 @@
 // Overrides ("--set key=value") replace or add any entry before validation;
 // the value is read as a TOML value (a bare word is taken as a string).
 
+#include <memory>
 #include <optional>
 #include <string>
 #include <vector>
@@ -62,6 +63,23 @@ Case load_case(const std::string& path, const std::vector<std::string>& override
 // The same from text already in memory; `path` is used in messages only.
 Case parse_case(const std::string& text, const std::string& path,
                 const std::vector<std::string>& overrides = {});
+
+// A case text parsed once (TOML syntax only; nothing validated yet), from
+// which cases with different overrides are read without parsing the text
+// again: a sweep's points. with(ov) equals parse_case(text, path, ov).
+// Immutable once made: one document may serve several threads.
+class CaseDocument {
+ public:
+  CaseDocument(std::string text, std::string path);  // throws InputError on a TOML syntax error
+  ~CaseDocument();
+  CaseDocument(const CaseDocument&) = delete;
+  CaseDocument& operator=(const CaseDocument&) = delete;
+  Case with(const std::vector<std::string>& overrides) const;
+
+ private:
+  struct Impl;
+  std::unique_ptr<const Impl> impl_;
+};
 
 // Every key a case file may hold, as dotted paths (for suggestions and docs).
 const std::vector<std::string>& known_case_keys();

@@ -399,9 +399,14 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   // starts after the run: the step end before the best value (the start, a
   // step end or a sample inside a step) and ends at the step end after it
   // -- a bracket of at most two steps, whatever the sample rate.
+  // A state to restart from: with its spring regions and input segment as
+  // the run had them (on a breakpoint, regions_of(x) could pick the other
+  // side and the restart would leave along another trajectory).
   struct SampleState {
     double t = 0;
     std::vector<double> x;
+    std::vector<int> regions;
+    int segment = 0;
   };
   struct Bracket {
     SampleState from;   // the state where the search starts
@@ -425,7 +430,7 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
         const double sv = k == 0 ? v : -v;
         if (sv > b.value) {
           b.value = sv;
-          b.bracket.from = previous_step.x.empty() ? SampleState{t, x} : previous_step;
+          b.bracket.from = previous_step.x.empty() ? SampleState{t, x, run.regions, run.input_segment} : previous_step;
           b.bracket.to = t;
           b.bracket.open = true;
         }
@@ -467,6 +472,8 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
     note(step_best, t, x);
     previous_step.t = t;
     previous_step.x = x;
+    previous_step.regions = run.regions;
+    previous_step.segment = run.input_segment;
     return ObserverAction::kContinue;
   };
 
@@ -487,8 +494,8 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
       r.exact_cache = &restart_cache;
       r.time = lo;
       r.x = b.from.x;
-      r.regions = model.regions_of(b.from.x.data());
-      r.input_segment = model.gusts().segment_of(lo);
+      r.regions = b.from.regions;
+      r.input_segment = b.from.segment;
       integrate(model, r, t, set.integrator, OutputSchedule::none());
       fill_row(r.time, r.x, r.regions, r.input_segment);
       return -sign * row[tracked[i].column];
@@ -528,9 +535,10 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
                       {"switches", static_cast<std::int64_t>(run.switches)}};
   };
   // The start is a step end: the extremes' brackets begin there.
+  run.input_segment = model.gusts().segment_of(run.time);
   fill_row(run.time, run.x, run.regions, run.input_segment);
   note(step_best, run.time, run.x);
-  previous_step = {run.time, run.x};
+  previous_step = {run.time, run.x, run.regions, run.input_segment};
   try {
     const IntegrationResult r =
         integrate(model, run, set.duration, set.integrator, set.output, {observer, {}, cancel, step_observer});

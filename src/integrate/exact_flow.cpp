@@ -56,6 +56,7 @@ bool exact_propagation_eligible(const ModelDescription& d, std::string* why) {
 struct ExactFlowCache::Impl {
   const AeroelasticModel* model = nullptr;
   std::shared_ptr<void> regions;
+  std::vector<double> weights;  // exact_weights of the model, once computed
 };
 ExactFlowCache::ExactFlowCache() : impl_(std::make_unique<Impl>()) {}
 ExactFlowCache::~ExactFlowCache() = default;
@@ -64,8 +65,69 @@ ExactFlowCache::~ExactFlowCache() = default;
 // integrator.cpp, whose own Witness is in its anonymous namespace.
 namespace exact_detail {
 
+// At most kMaxAugmented rows (the largest state, 3 DOFs with 8 Wagner and 8
+// Kussner lag states, is 23 long): fixed-capacity storage, no heap traffic.
+constexpr int kMaxAugmented = 32;
+// The state's own (not augmented) vectors and matrices: the weights and the
+// monodromy.
+using StateVec = Eigen::Matrix<double, Eigen::Dynamic, 1, 0, kMaxAugmented, 1>;
+using StateMat = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, 0, kMaxAugmented, kMaxAugmented>;
+
 int augmented_size(const AeroelasticModel& model) {
   return model.state_size() + 1 + 2 * gust_oscillators(model.gusts());
+}
+
+// Diagonal scaling of the state for the exact flow, z = w x: the state
+// weights of system.hpp (radian-like units), then balanced by Osborne's
+// iteration with powers of two (Parlett and Reinsch, "Balancing a matrix for
+// calculation of eigenvalues and eigenvectors", Numer. Math. 13, 1969; the
+// scaling of LAPACK's xGEBAL) on the elementwise largest |Jacobian| over the
+// regions of every spring (the others in the region of x = 0). The row sums
+// of the scaled matrices, and with them ||M||, become about as small as a
+// diagonal similarity makes them, so the step h = 1 / (2 ||M||) is longer:
+// 1.5x to 2x fewer steps than the weights alone on the demo sections.
+// Powers of two: the balancing itself adds no rounding.
+StateVec exact_weights(const AeroelasticModel& model) {
+  const int n = model.state_size();
+  const Eigen::VectorXd w = state_weights(model);
+  const std::vector<double> zero(static_cast<std::size_t>(n), 0.0);
+  const std::vector<int> base = model.regions_of(zero.data());
+  StateMat J(n, n), big = StateMat::Zero(n, n);
+  auto take = [&](const std::vector<int>& regions) {
+    model.jacobian(zero.data(), 0.0, regions, 0, J);
+    big = big.cwiseMax(J.cwiseAbs());
+  };
+  take(base);
+  for (int j : model.nonlinear_springs()) {
+    const int count = static_cast<int>(model.description().springs[static_cast<std::size_t>(j)].breakpoints().size()) + 1;
+    for (int r = 0; r < count; ++r) {
+      std::vector<int> regions = base;
+      regions[static_cast<std::size_t>(j)] = r;
+      take(regions);
+    }
+  }
+  StateMat M(n, n);
+  for (int i = 0; i < n; ++i)
+    for (int k = 0; k < n; ++k) M(i, k) = w(i) * big(i, k) / w(k);
+  StateVec d = StateVec::Ones(n);
+  for (int sweep = 0; sweep < 64; ++sweep) {
+    bool changed = false;
+    for (int i = 0; i < n; ++i) {
+      const double row = M.row(i).sum() - M(i, i), col = M.col(i).sum() - M(i, i);
+      if (!(row > 0) || !(col > 0)) continue;
+      // s = 2^k nearest sqrt(col / row): row i scales by s, column i by 1/s.
+      const double s = std::exp2(std::round(0.5 * std::log2(col / row)));
+      if (!(s * row + col / s < 0.95 * (row + col))) continue;
+      M.row(i) *= s;
+      M.col(i) /= s;
+      d(i) *= s;
+      changed = true;
+    }
+    if (!changed) break;
+  }
+  StateVec out(n);
+  for (int i = 0; i < n; ++i) out(i) = w(i) * d(i);
+  return out;
 }
 
 struct CacheAccess {
@@ -75,15 +137,19 @@ struct CacheAccess {
     AEROSECT_CHECK(c.model == &model);
     return c.regions;
   }
+  // The cache's state scaling (exact_weights), computed once.
+  static StateVec weights_of(ExactFlowCache& cache, const AeroelasticModel& model) {
+    ExactFlowCache::Impl& c = *cache.impl_;
+    if (!c.model) c.model = &model;
+    AEROSECT_CHECK(c.model == &model);
+    if (c.weights.empty()) {
+      const StateVec w = exact_weights(model);
+      c.weights.assign(w.data(), w.data() + w.size());
+    }
+    return Eigen::Map<const StateVec>(c.weights.data(), static_cast<Eigen::Index>(c.weights.size()));
+  }
 };
 
-// At most kMaxAugmented rows (the largest state, 3 DOFs with 8 Wagner and 8
-// Kussner lag states, is 23 long): fixed-capacity storage, no heap traffic.
-constexpr int kMaxAugmented = 32;
-// The state's own (not augmented) vectors and matrices: the weights and the
-// monodromy.
-using StateVec = Eigen::Matrix<double, Eigen::Dynamic, 1, 0, kMaxAugmented, 1>;
-using StateMat = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, 0, kMaxAugmented, kMaxAugmented>;
 
 // Everything below is compiled for the common augmented lengths N as
 // fixed-size Eigen types (unrolled, vectorised products: a step costs a few
@@ -175,7 +241,8 @@ class ExactRun {
            const RunObservers& obs)
       : model_(model), L_(model.layout()), n_(model.state_size()),
         N_(model.state_size() + 1 + 2 * gust_oscillators(model.gusts())), run_(run), t_end_(t_end),
-        schedule_(schedule), obs_(obs), W_(state_weights(model)), breaks_(model.gusts().breakpoints()),
+        schedule_(schedule), obs_(obs),
+        W_(run.exact_cache ? CacheAccess::weights_of(*run.exact_cache, model) : exact_weights(model)), breaks_(model.gusts().breakpoints()),
         cache_(shared_regions(model, run)) {}
 
   IntegrationResult operator()() {

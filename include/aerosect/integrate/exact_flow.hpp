@@ -22,7 +22,8 @@
 // Van Loan, "Nineteen dubious ways to compute the exponential of a matrix,
 // twenty-five years later", SIAM Review 45, 2003: the augmented form of
 // method 16, a Taylor series after scaling). Here the state is first
-// scaled, z = W x (W = state_weights of orbit.hpp: radians-like units), and
+// scaled, z = W x (W = state_weights of system.hpp, radians-like units,
+// then balanced over the regions' Jacobians in powers of two), and
 // the step tau of region r is chosen so that ||tau M_r||_inf <= 1/2: the
 // Taylor series of exp(tau M_r) then converges to round-off in about 20
 // terms, with no cancellation. No step-size control and no truncation

@@ -1070,7 +1070,9 @@ void preload_stage(Study& s) {
          {"preload.h5"});
   const std::string cls = "preload.h5: response_class over " + sweep_axis_name(m.key);
   s.rows.text("preload_lco_limit", "Preload above which freeplay LCO disappears", m.verdict, cls,
-              "the level replaces the case's own " + m.key + " " + at_speed);
+              "the level replaces the case's own " + m.key + " " + at_speed +
+                  "; a preload that holds the surface in this model is no freeplay clearance (trim loads change "
+                  "with manoeuvres, gusts and wear)");
   s.rows.add("preload_contact_level", "Preload that brings the surface onto a stop", m.direction * m.contact_level,
              m.units, "preload.h5@contact_level", "static equilibrium (equilibrium.hpp)");
   if (std::isfinite(m.hold_off_level))

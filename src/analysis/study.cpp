@@ -995,14 +995,14 @@ void preload_stage(Study& s) {
   const Case& c = s.c;
   const PreloadHold h = preload_hold(c);
   if (!h.applicable) {
-    s.part("preload", false, "skipped: " + h.reason);
+    s.part("preload", false, fmt::format("skipped: {}", h.reason));
     return;
   }
   const int j = h.spring;
   const bool angle = j != kPlunge;
   const std::string dof = kDofNames[j];
   const std::string force_units = angle ? "N m m-1" : "N m-1";
-  const std::string at_speed = "at the case airspeed " + s.v(c.model.flow.airspeed);
+  const std::string at_speed = fmt::format("at the case airspeed {}", s.v(c.model.flow.airspeed));
   // The hold at the case's condition.
   std::string held;
   if (!h.equilibrium_found)
@@ -1020,10 +1020,10 @@ void preload_stage(Study& s) {
   if (h.steady_condition && h.equilibrium_found) {
     s.rows.add("preload_equilibrium", fmt::format("{} at the static equilibrium of the steady condition", dof),
                angle ? h.displacement * kDegPerRad : h.displacement, angle ? "degree" : "m",
-               "flutter.h5: /parameters/equilibrium/" + dof + (angle ? " (rad)" : ""), h.region);
+               fmt::format("flutter.h5: /parameters/equilibrium/{}{}", dof, angle ? " (rad)" : ""), h.region);
     s.rows.add("preload_contact_load",
                h.against_stop ? "Contact load against the stop" : fmt::format("{} spring force at the equilibrium", dof),
-               h.spring_force, force_units, "flutter.h5: /parameters/equilibrium/" + dof + "_spring_force",
+               h.spring_force, force_units, fmt::format("flutter.h5: /parameters/equilibrium/{}_spring_force", dof),
                h.against_stop ? h.region : "in the gap: no contact");
   }
   s.rows.text("preload_held", "Held against a stop by the case's condition",
@@ -1038,8 +1038,7 @@ void preload_stage(Study& s) {
   s.say("preload: hold and LCO map against the preload level");
   const PreloadMap m = preload_map(base_case, base, 11, s.cancel);
   if (!m.available) {
-    s.part("preload", true, "hold assessed; the map against the preload level was not made: " + m.reason,
-           {});
+    s.part("preload", true, fmt::format("hold assessed; the map against the preload level was not made: {}", m.reason));
     s.rows.text("preload_lco_limit", "Preload above which freeplay LCO disappears", "not assessed", "", m.reason);
     return;
   }
@@ -1068,11 +1067,11 @@ void preload_stage(Study& s) {
                      "{:.4g} s; {}",
                      m.levels.size(), m.key, m.levels.back(), m.units, at_speed, duration, note),
          {"preload.h5"});
-  const std::string cls = "preload.h5: response_class over " + sweep_axis_name(m.key);
+  const std::string cls = fmt::format("preload.h5: response_class over {}", sweep_axis_name(m.key));
   s.rows.text("preload_lco_limit", "Preload above which freeplay LCO disappears", m.verdict, cls,
-              "the level replaces the case's own " + m.key + " " + at_speed +
-                  "; a preload that holds the surface in this model is no freeplay clearance (trim loads change "
-                  "with manoeuvres, gusts and wear)");
+              fmt::format("the level replaces the case's own {} {}; a preload that holds the surface in this "
+                          "model is no freeplay clearance (trim loads change with manoeuvres, gusts and wear)",
+                          m.key, at_speed));
   s.rows.add("preload_contact_level", "Preload that brings the surface onto a stop", m.direction * m.contact_level,
              m.units, "preload.h5@contact_level", "static equilibrium (equilibrium.hpp)");
   if (std::isfinite(m.hold_off_level))

@@ -5,7 +5,9 @@
 #include <vector>
 
 #include <Eigen/Eigenvalues>
+#include <fmt/format.h>
 
+#include "aerosect/analysis/describing_function.hpp"
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/preload.hpp"
 #include "aerosect/analysis/root_tracking.hpp"
@@ -86,6 +88,25 @@ TEST_CASE("Preload map of the trimmed demo where its flap oscillates through the
   REQUIRE(m.outcome == PreloadOutcome::kBracketed);
   CHECK(m.bracket_low < m.hold_off_level);
   CHECK_THAT(m.verdict, Catch::Contains("disappears between"));
+  // The dual-input describing function (Gelb & Vander Velde 1968, bias plus
+  // sinusoid; an independent method: no time march) at the bracket's two
+  // levels: a stable LCO predicted at 27 m/s at the lower level, none at
+  // the upper one (measured: its stable range starts at 27.06 m/s at
+  // 0.1641 N m/m, and at 27.003 m/s at 0.1592).
+  auto stable_at_case_speed = [&](double level) {
+    const Case cl = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron_trimmed.toml",
+                              {"flow.airspeed=27", fmt::format("steady.hinge_moment={:.17g}", level)});
+    std::vector<double> speeds;
+    for (int i = 1; i <= 200; ++i) speeds.push_back(40.0 * i / 200);
+    const LcoPrediction p = describing_function_lco(cl, speeds);
+    REQUIRE(p.biased);
+    for (const LcoBranch& b : p.branches)
+      for (const auto& [lo, hi] : stable_speed_ranges(p, b))
+        if (lo <= 27.0 && hi >= 27.0) return true;
+    return false;
+  };
+  CHECK(stable_at_case_speed(m.bracket_low));
+  CHECK_FALSE(stable_at_case_speed(m.bracket_high));
 }
 
 TEST_CASE("The trimmed demo at its own airspeed is held against its stop", "[preload]") {

@@ -617,7 +617,15 @@ Branch continue_branch(const Case& c, const BranchOptions& o, const std::atomic<
     DofVector k(m.n_dof());
     for (int j = 0; j < m.n_dof(); ++j) k(j) = c.model.springs[j].nominal_stiffness();
     k(p.spring) = best->equivalent_stiffness;
-    const OrbitSeed seed = seed_from_harmonic(m, k, p.spring, best->amplitude, best->frequency);
+    OrbitSeed seed = seed_from_harmonic(m, k, p.spring, best->amplitude, best->frequency);
+    // A steady condition: the dual-input prediction oscillates about a
+    // mean; the seed oscillates about the static equilibrium at lambda
+    // (the nearest state the model gives; Newton moves it to the mean).
+    if (p.biased) {
+      const EquilibriumResult eq = static_equilibrium(m);
+      if (const Equilibrium* e = principal_equilibrium(eq))
+        for (std::size_t i = 0; i < seed.x0.size(); ++i) seed.x0[i] += e->state(static_cast<Eigen::Index>(i));
+    }
     const Presenter pr = presenter(c);
     br.start_detail = fmt::format("describing-function orbit at {} = {:.9g} ({} amplitude {:.6g} {})", fam.key,
                                   lambda, dof_name(p.spring), pr.displacement_value(p.spring, best->amplitude),

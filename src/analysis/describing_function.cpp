@@ -8,6 +8,7 @@
 #include <tuple>
 
 #include <Eigen/Eigenvalues>
+#include <Eigen/LU>
 #include <boost/math/tools/roots.hpp>
 
 #include "aerosect/analysis/flutter.hpp"
@@ -54,6 +55,139 @@ struct Neutral {
   cd eigenvalue;         // the neutral pair's eigenvalue (Im > 0), 1/s
   int direction = 0;     // +1: the pair turns growing as U rises; -1: decaying
   bool stable = false;   // amplitude-perturbation criterion (header)
+  double N = 0;          // equivalent stiffness there
+  double bias = 0, mean_force = 0;  // B and F0(B, A) (steady case), else 0
+};
+
+// The spring's equivalent stiffness at one (A, U): N(A) without a steady
+// condition; with one N_A(B, A) at the bias B of the mean equation.
+struct Equivalent {
+  double N = 0;
+  double bias = 0, mean_force = 0;
+  bool lco = true;  // a limit cycle can be there (header: mean root kept, a breakpoint crossed)
+};
+
+// The mean equation of a steady case (header), condensed to spring j's DOF:
+//   s(U) B + F0(B, A) = r(U),
+//   K(U) = diag(k_i, i != j; 0 for j) + U^2 K_st1,  F(U) = -U^2 K_st1 q_a0 + f_steady,
+//   s = K_jj - K_jo K_oo^-1 K_oj,  r = F_j - K_jo K_oo^-1 F_o.
+class MeanBalance {
+ public:
+  MeanBalance(const ModelDescription& d, int j) : law_(d.springs[static_cast<std::size_t>(j)]), j_(j) {
+    // The steady aerodynamic stiffness per U^2: the model at 1 m/s
+    // (K_a is proportional to U^2, f_c and d_q to U), as equilibrium.cpp.
+    ModelDescription unit;
+    unit.section = d.section;
+    unit.flow = d.flow;
+    unit.flow.airspeed = 1.0;
+    unit.aero = d.aero;
+    unit.springs = d.springs;
+    unit.steady = d.steady;
+    const AeroelasticModel m(std::move(unit));
+    const AeroMatrices& am = m.aero();
+    const int n = m.n_dof();
+    K1_ = am.stiffness - am.circulation_force * am.downwash_displacement.transpose();
+    q_a0_ = m.aerodynamic_offset().segment(m.layout().displacement, n);
+    f_ = m.steady_force();
+    k_ = DofVector::Zero(n);
+    for (int i = 0; i < n; ++i)
+      if (i != j) k_(i) = d.springs[static_cast<std::size_t>(i)].nominal_stiffness();
+    const auto bp = law_.breakpoints();
+    if (!bp.empty()) centre_ = 0.5 * (bp.front() + bp.back());
+  }
+
+  Equivalent at(double A, double U) const {
+    Equivalent e;
+    e.lco = false;
+    e.N = law_.nominal_stiffness();
+    const std::optional<double> B = bias(A, U);
+    if (!B) return e;
+    const SpringLaw::DualInput h = law_.dual_input_describing_function(*B, A);
+    e.N = h.gain;
+    e.bias = *B;
+    e.mean_force = h.mean;
+    bool crosses = !law_.is_piecewise_linear();
+    for (double xb : law_.breakpoints()) crosses |= xb > *B - A && xb < *B + A;
+    e.lco = crosses && std::isfinite(h.gain);
+    return e;
+  }
+
+ private:
+  // The kept root B of the mean equation at (A, U), if any.
+  std::optional<double> bias(double A, double U) const {
+    const int n = static_cast<int>(k_.size());
+    DofMatrix K = U * U * K1_;
+    K.diagonal() += k_;
+    const DofVector F = -U * U * (K1_ * q_a0_) + f_;
+    double s = K(j_, j_), r = F(j_);
+    if (n > 1) {
+      std::vector<int> o;
+      for (int i = 0; i < n; ++i)
+        if (i != j_) o.push_back(i);
+      const int no = static_cast<int>(o.size());
+      Eigen::MatrixXd Koo(no, no);
+      Eigen::VectorXd Koj(no), Kjo(no), Fo(no);
+      for (int a = 0; a < no; ++a) {
+        for (int b = 0; b < no; ++b) Koo(a, b) = K(o[a], o[b]);
+        Koj(a) = K(o[a], j_);
+        Kjo(a) = K(j_, o[a]);
+        Fo(a) = F(o[a]);
+      }
+      const Eigen::FullPivLU<Eigen::MatrixXd> lu(Koo);
+      if (!lu.isInvertible()) return std::nullopt;
+      s -= Kjo.dot(lu.solve(Koj));
+      r -= Kjo.dot(lu.solve(Fo));
+    }
+    auto g = [&](double B) { return s * B + law_.dual_input_describing_function(B, A).mean - r; };
+    // Sample points: the kinks of F0 (B = x_b -+ A) with three points
+    // between neighbours, then outward until g is negative below and
+    // positive above (a positive mean stiffness far out).
+    std::vector<double> kinks;
+    for (double xb : law_.breakpoints()) {
+      kinks.push_back(xb - A);
+      kinks.push_back(xb + A);
+    }
+    if (kinks.empty()) kinks = {centre_ - A, centre_ + A};
+    std::sort(kinks.begin(), kinks.end());
+    std::vector<double> pts;
+    for (std::size_t i = 0; i < kinks.size(); ++i) {
+      pts.push_back(kinks[i]);
+      if (i + 1 < kinks.size())
+        for (int q = 1; q < 4; ++q) pts.push_back(kinks[i] + (kinks[i + 1] - kinks[i]) * q / 4.0);
+    }
+    const double step = std::max(A, kinks.back() - kinks.front());
+    double lo = kinks.front(), hi = kinks.back();
+    for (int i = 0; i < 60 && g(lo) >= 0; ++i) pts.push_back(lo -= step * std::ldexp(1.0, i));
+    for (int i = 0; i < 60 && g(hi) <= 0; ++i) pts.push_back(hi += step * std::ldexp(1.0, i));
+    std::sort(pts.begin(), pts.end());
+    // Roots where g rises (a positive mean stiffness), refined by TOMS 748.
+    std::optional<double> best;
+    double ga = g(pts.front());
+    for (std::size_t i = 1; i < pts.size(); ++i) {
+      const double gb = g(pts[i]);
+      double root = std::numeric_limits<double>::quiet_NaN();
+      if (ga < 0 && gb >= 0) {
+        if (gb == 0) {
+          root = pts[i];
+        } else {
+          boost::uintmax_t iterations = 100;
+          const auto br = boost::math::tools::toms748_solve(g, pts[i - 1], pts[i], ga, gb,
+                                                            boost::math::tools::eps_tolerance<double>(50),
+                                                            iterations);
+          root = 0.5 * (br.first + br.second);
+        }
+      }
+      if (std::isfinite(root) && (!best || std::abs(root - centre_) < std::abs(*best - centre_))) best = root;
+      ga = gb;
+    }
+    return best;
+  }
+
+  const SpringLaw& law_;
+  int j_;
+  DofMatrix K1_;
+  DofVector q_a0_, f_, k_;
+  double centre_ = 0;
 };
 
 // The neutral points at one amplitude A = amplitude(t).
@@ -67,16 +201,26 @@ class Scanner {
  public:
   Scanner(const AeroelasticModel& model, const SpringLaw& law, int j, DofVector k,
           const std::vector<double>& speeds, double min_frequency,
-          std::vector<EquivalentDivergence>& divergence)
+          std::vector<EquivalentDivergence>& divergence, const MeanBalance* mean)
       : model_(model), law_(law), j_(j), k_(std::move(k)), speeds_(speeds),
-        min_frequency_(min_frequency), divergence_(divergence) {}
+        min_frequency_(min_frequency), divergence_(divergence), mean_(mean) {}
+
+  // The equivalent stiffness at (A, U) (header).
+  Equivalent equivalent(double A, double U) const {
+    if (mean_) return mean_->at(A, U);
+    Equivalent e;
+    e.N = law_.describing_function(A);
+    return e;
+  }
 
   Level scan(double t, double A) const {
     Level L;
     L.t = t;
     L.A = A;
-    L.N = law_.describing_function(A);
-    L.valid = L.N > 0 && std::isfinite(L.N);
+    // With a steady condition N depends on U too (through the bias): the
+    // level is valid and each point carries its own N.
+    L.N = mean_ ? std::numeric_limits<double>::quiet_NaN() : law_.describing_function(A);
+    L.valid = mean_ || (L.N > 0 && std::isfinite(L.N));
     if (!L.valid) return L;
     // Two rankings of the oscillatory pairs at each grid speed: by growth
     // margin (the r-th largest: order statistics of continuous functions
@@ -89,7 +233,7 @@ class Scanner {
     // divergence of the equivalent system (a rank shift of the frequency
     // ranking is no physical event).
     std::vector<Eigen::VectorXcd> ev(speeds_.size());
-    for (std::size_t q = 0; q < speeds_.size(); ++q) ev[q] = eigenvalues(L.N, speeds_[q]);
+    for (std::size_t q = 0; q < speeds_.size(); ++q) ev[q] = eigenvalues(A, speeds_[q]);
     for (const bool by_frequency : {false, true}) {
       std::vector<std::vector<Ranked>> ranks(speeds_.size());
       std::size_t pairs = 0;
@@ -101,7 +245,7 @@ class Scanner {
         for (std::size_t r = 0; r < pairs; ++r) {
           const double g0 = at(ranks[q - 1], r).value, g1 = at(ranks[q], r).value;
           if ((g0 < 0) == (g1 < 0)) continue;
-          auto n = refine(L.N, speeds_[q - 1], speeds_[q], r, by_frequency, g1 > g0 ? 1 : -1, A);
+          auto n = refine(speeds_[q - 1], speeds_[q], r, by_frequency, g1 > g0 ? 1 : -1, A);
           if (!n) continue;
           const bool known = std::any_of(L.neutral.begin(), L.neutral.end(), [&](const Neutral& m) {
             return std::abs(m.speed - n->speed) <= 1e-7 * n->speed &&
@@ -124,9 +268,9 @@ class Scanner {
     cd eigenvalue;
   };
 
-  Eigen::VectorXcd eigenvalues(double N, double U) const {
+  Eigen::VectorXcd eigenvalues(double A, double U) const {
     DofVector k = k_;
-    k(j_) = N;
+    k(j_) = equivalent(A, U).N;
     return Eigen::EigenSolver<Eigen::MatrixXd>(model_.state_matrix_at(U, k), false).eigenvalues();
   }
 
@@ -157,9 +301,11 @@ class Scanner {
   // ends of the final bracket below 1e-6 |lambda|: a jump is a pair turning
   // real, i.e. static divergence of the equivalent system) and the pair's
   // frequency is clearly above zero.
-  std::optional<Neutral> refine(double N, double Ua, double Ub, std::size_t r, bool by_frequency,
-                                int direction, double A) const {
-    auto value = [&](double U, bool by_real) { return at(ranked(eigenvalues(N, U), by_frequency, by_real), r); };
+  // With a steady condition a point that is no LCO (header) is dropped
+  // first (not counted as divergence).
+  std::optional<Neutral> refine(double Ua, double Ub, std::size_t r, bool by_frequency, int direction,
+                                double A) const {
+    auto value = [&](double U, bool by_real) { return at(ranked(eigenvalues(A, U), by_frequency, by_real), r); };
     const double ra = value(Ua, true).value, rb = value(Ub, true).value;
     const bool by_real = (ra < 0) != (rb < 0);
     const double fa = by_real ? ra : value(Ua, false).value, fb = by_real ? rb : value(Ub, false).value;
@@ -169,6 +315,8 @@ class Scanner {
                                                         boost::math::tools::eps_tolerance<double>(40),
                                                         iterations);
     const double U = 0.5 * (root.first + root.second);
+    const Equivalent e = equivalent(A, U);
+    if (!e.lco) return std::nullopt;
     const cd l = value(U, by_real).eigenvalue;
     const double scale = std::max(std::abs(l), 1e-300);
     const bool continuous = std::abs(value(root.first, by_real).value) <= 1e-6 * scale &&
@@ -181,6 +329,9 @@ class Scanner {
     n.speed = U;
     n.eigenvalue = l;
     n.direction = direction;
+    n.N = e.N;
+    n.bias = e.bias;
+    n.mean_force = e.mean_force;
     return n;
   }
 
@@ -192,12 +343,12 @@ class Scanner {
         if (std::abs(ev(i) - to) < std::abs(ev(best) - to)) best = i;
       return best;
     };
-    const Eigen::VectorXcd up = eigenvalues(law_.describing_function(A * (1 + 1e-3)), n.speed);
-    const Eigen::VectorXcd down = eigenvalues(law_.describing_function(A * (1 - 1e-3)), n.speed);
+    const Eigen::VectorXcd up = eigenvalues(A * (1 + 1e-3), n.speed);
+    const Eigen::VectorXcd down = eigenvalues(A * (1 - 1e-3), n.speed);
     const double dsigma = up(nearest(up, n.eigenvalue)).real() - down(nearest(down, n.eigenvalue)).real();
     if (!(dsigma < 0)) return false;
     // No other root of the equivalent system may grow.
-    const Eigen::VectorXcd ev = eigenvalues(law_.describing_function(A), n.speed);
+    const Eigen::VectorXcd ev = eigenvalues(A, n.speed);
     const Eigen::Index a = nearest(ev, n.eigenvalue), b = nearest(ev, std::conj(n.eigenvalue));
     const double rho = ev.cwiseAbs().maxCoeff();
     for (Eigen::Index i = 0; i < ev.size(); ++i)
@@ -212,6 +363,7 @@ class Scanner {
   const std::vector<double>& speeds_;
   double min_frequency_;
   std::vector<EquivalentDivergence>& divergence_;
+  const MeanBalance* mean_;  // steady case: the mean equation; else nullptr
 };
 
 bool same_frequency(const Neutral& a, const Neutral& b, double tolerance) {
@@ -250,11 +402,25 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
   p.spring = j;
   p.amplitude_limit = j == kPlunge ? 10 * s.semichord : 1.0;
 
+  // A steady condition: the dual-input prediction about the mean of the
+  // mean equation (header).
+  const bool biased = c.model.steady.any();
+  std::optional<MeanBalance> mean;
+  if (biased) mean.emplace(c.model, j);
+  p.biased = biased;
+
   // Amplitude scale: the largest breakpoint distance, or where the
-  // polynomial terms match the linear one.
+  // polynomial terms match the linear one. With a steady condition the
+  // half-width of the breakpoints' span (the oscillation may reach a stop
+  // from any amplitude).
   double scale = 0;
   for (double b : law.breakpoints()) scale = std::max(scale, std::abs(b));
   const bool gap = scale > 0;
+  if (biased && !law.breakpoints().empty()) {
+    const double half = 0.5 * (law.breakpoints().back() - law.breakpoints().front());
+    if (half > 0) scale = half;
+  }
+  const bool biased_gap = biased && !law.breakpoints().empty();
   if (!gap) {
     const double k = law.nominal_stiffness();
     // |N(A) - k| = 1e-3 k near A = a: found by doubling.
@@ -268,7 +434,13 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
   // the scale exceeds the physical limit). t_max: the physical limit.
   const double A_max = p.amplitude_limit;
   double t_lo, t_hi, t_max;
-  if (gap) {
+  if (biased_gap) {
+    if (scale * 1e-3 >= A_max) {
+      p.reason = "the gap is wider than 1000 times the physical amplitude limit";
+      return p;
+    }
+    t_lo = -3, t_hi = 2, t_max = std::log10(A_max / scale);
+  } else if (gap) {
     if (scale * (1 + 1e-4) >= A_max) {
       p.reason = "the gap is wider than the physical amplitude limit";
       return p;
@@ -280,7 +452,7 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
   }
   auto amplitude = [&](double t) {
     if (t >= t_max) return A_max;
-    return gap ? scale * (1 + std::pow(10.0, t)) : scale * std::pow(10.0, t);
+    return gap && !biased_gap ? scale * (1 + std::pow(10.0, t)) : scale * std::pow(10.0, t);
   };
   const double dt = (t_hi - t_lo) / (count - 1);
 
@@ -289,7 +461,8 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
   for (int i = 0; i < n; ++i) k(i) = c.model.springs[i].nominal_stiffness();
   // "Clearly oscillatory": 1e-3 x the largest uncoupled frequency
   // (frequency_floor is 1e-6 x that).
-  const Scanner scanner(model, law, j, k, speeds, 1e3 * frequency_floor(s), p.equivalent_divergence);
+  const Scanner scanner(model, law, j, k, speeds, 1e3 * frequency_floor(s), p.equivalent_divergence,
+                        mean ? &*mean : nullptr);
   auto scan = [&](double t) {
     stop_if_cancelled(cancel);
     return scanner.scan(std::min(t, t_max), amplitude(t));
@@ -393,9 +566,14 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
   auto end_reason = [&](const Node& nd, bool upward) {
     const Level& lv = levels[nd.level];
     const double U = lv.neutral[nd.index].speed;
-    if (!upward && nd.level == 0) return gap ? BranchEnd::kGapEdge : BranchEnd::kLinearLimit;
+    if (!upward && nd.level == 0) return gap && !biased_gap ? BranchEnd::kGapEdge : BranchEnd::kLinearLimit;
     if (upward && nd.level + 1 == L && lv.t >= t_max) return BranchEnd::kAmplitudeLimit;
     if (U <= speeds[1] || U >= speeds[speeds.size() - 2]) return BranchEnd::kSpeedRange;
+    // Biased: the oscillation one grid amplitude beyond no longer reaches a stop.
+    if (biased_gap) {
+      const std::size_t next = upward ? nd.level + 1 : nd.level - 1;
+      if (next < L && !scanner.equivalent(levels[next].A, U).lco) return BranchEnd::kGapEdge;
+    }
     return BranchEnd::kBranchEnds;
   };
   auto links = [&](const Node& nd) {
@@ -486,7 +664,9 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
       const Neutral& nu = lv.neutral[nd.index];
       LcoPredictionPoint pt;
       pt.amplitude = lv.A;
-      pt.equivalent_stiffness = lv.N;
+      pt.equivalent_stiffness = nu.N;
+      pt.bias = nu.bias;
+      pt.mean_force = nu.mean_force;
       pt.speed = nu.speed;
       pt.frequency = nu.eigenvalue.imag();
       pt.stable = nu.stable;

@@ -348,15 +348,9 @@ FlutterReport flutter_analysis(const Case& c, const FlutterOptions& o) {
     if (o.pk) lr.methods.push_back(pk_method(c, model, k, speeds, o.relative_tolerance, o.cancel));
     rep.results.push_back(std::move(lr));
   }
-  if (o.lco_prediction && c.model.steady.any()) {
-    rep.lco.available = false;
-    rep.lco.reason =
-        "omitted: the steady condition loads the section, so an oscillation is not centred in the gap and "
-        "the single-input describing function does not apply (a bias-plus-sinusoid describing function "
-        "would be needed)";
-  } else if (o.lco_prediction) {
-    rep.lco = describing_function_lco(c, speeds, 80, o.cancel);
-  }
+  // With a steady condition describing_function_lco gives the dual-input
+  // (bias plus sinusoid) prediction about the mean of its mean equation.
+  if (o.lco_prediction) rep.lco = describing_function_lco(c, speeds, 80, o.cancel);
   return rep;
 }
 

@@ -121,15 +121,22 @@ std::vector<std::size_t> printed_rows(const LcoPrediction& p, const LcoBranch& b
 std::string lco_prediction_text(const LcoPrediction& p, const Presenter& pr) {
   const double unit = pr.displacement_value(p.spring, 1.0);
   const char* au = pr.displacement_unit(p.spring);
-  std::string t = fmt::format("\nDescribing-function LCO prediction ({} spring; near-harmonic, about zero):\n",
-                              dof_name(p.spring));
-  t += fmt::format("  {:>13} {:>12} {:>10} {:>6}  {}\n", fmt::format("amplitude {}", au), pr.speed_heading(),
+  std::string t =
+      p.biased ? fmt::format("\nDescribing-function LCO prediction ({} spring; dual-input: near-harmonic about the "
+                             "bias B that solves the mean equation of the steady condition):\n",
+                             dof_name(p.spring))
+               : fmt::format("\nDescribing-function LCO prediction ({} spring; near-harmonic, about zero):\n",
+                             dof_name(p.spring));
+  t += fmt::format("  {:>13} {:>12} {:>10} {:>6}  {}", fmt::format("amplitude {}", au), pr.speed_heading(),
                    pr.frequency_heading(), "branch", "stable");
+  t += p.biased ? fmt::format("  {:>11}\n", fmt::format("bias {}", au)) : std::string("\n");
   for (const LcoBranch& b : p.branches)
     for (const std::size_t i : printed_rows(p, b)) {
       const auto& pt = p.points[i];
-      t += fmt::format("  {:>13.5g} {:>12.5g} {:>10.4g} {:>6}  {}\n", pt.amplitude * unit, pr.speed_value(pt.speed),
-                       pr.frequency_value(pt.frequency / (2 * pi)), pt.branch, pt.stable ? "yes" : "no");
+      t += fmt::format("  {:>13.5g} {:>12.5g} {:>10.4g} {:>6}  ", pt.amplitude * unit, pr.speed_value(pt.speed),
+                       pr.frequency_value(pt.frequency / (2 * pi)), pt.branch);
+      t += p.biased ? fmt::format("{:<6} {:>11.5g}\n", pt.stable ? "yes" : "no", pt.bias * unit)
+                    : fmt::format("{}\n", pt.stable ? "yes" : "no");
     }
   double lo = std::numeric_limits<double>::infinity(), hi = 0;
   for (std::size_t k = 0; k < p.branches.size(); ++k) {
@@ -289,7 +296,10 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
     nlohmann::json lj;
     lj["spring"] = dof_name(r.lco.spring);
     lj["amplitude_units"] = angle ? "degree" : "m";
-    lj["note"] = "describing-function prediction: near-harmonic oscillation about zero assumed";
+    lj["note"] = r.lco.biased ? "dual-input describing-function prediction: near-harmonic oscillation about the "
+                                "bias that solves the mean equation of the steady condition"
+                              : "describing-function prediction: near-harmonic oscillation about zero assumed";
+    lj["biased"] = r.lco.biased;
     lj["amplitude_limit"] = r.lco.amplitude_limit * unit;
     double lo = std::numeric_limits<double>::infinity(), hi = 0;
     lj["points"] = nlohmann::json::array();
@@ -299,6 +309,11 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
                               {"frequency_hz", pt.frequency / (2 * pi)},
                               {"stable", pt.stable},
                               {"branch", pt.branch}});
+    if (r.lco.biased)
+      for (std::size_t q = 0; q < r.lco.points.size(); ++q) {
+        lj["points"][q]["bias"] = r.lco.points[q].bias * unit;
+        lj["points"][q]["mean_spring_force"] = r.lco.points[q].mean_force;
+      }
     lj["branches"] = nlohmann::json::array();
     for (const LcoBranch& b : r.lco.branches) {
       nlohmann::json bj;
@@ -326,7 +341,7 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
   j["nominal_linearisation"] = r.nominal_basis;
   if (c.model.steady.any()) {
     j["equilibrium"] = equilibrium_json(c, r.equilibrium);
-    j["lco_prediction_omitted"] = r.lco.reason;
+    j["lco_prediction_omitted"] = r.lco.available ? nlohmann::json(nullptr) : nlohmann::json(r.lco.reason);
   } else {
     j["equilibrium"] = nullptr;
   }
@@ -568,7 +583,17 @@ void write_lco_prediction(TableSink& sink, const LcoPrediction& lco, double valu
   layout.push_back(field("stable", "1", "1 for a stable LCO branch, 0 unstable",
                          [](const P& p) { return p.stable ? 1.0 : 0.0; }));
   layout.push_back(field("equivalent_stiffness", angle ? "N m rad-1 m-1" : "N m-1 m-1",
-                         "describing-function stiffness N(A)", [](const P& p) { return p.equivalent_stiffness; }));
+                         lco.biased ? "dual-input describing-function stiffness N_A(B, A)"
+                                    : "describing-function stiffness N(A)",
+                         [](const P& p) { return p.equivalent_stiffness; }));
+  // With a steady condition: the bias and the mean spring force.
+  if (lco.biased) {
+    layout.push_back(field("bias", angle ? "rad" : "m",
+                           std::string("mean B of the ") + dof_name(lco.spring) + " over the predicted LCO",
+                           [](const P& p) { return p.bias; }));
+    layout.push_back(field("mean_spring_force", angle ? "N m m-1" : "N m-1",
+                           "mean spring force F0(B, A) over the predicted LCO", [](const P& p) { return p.mean_force; }));
+  }
   // The branch number is an integer, stability a class (CF 1.10 §3.5 flags).
   for (auto& f : layout) {
     if (f.name == "lco_prediction/branch") f.integer = true;

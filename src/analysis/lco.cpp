@@ -6,6 +6,7 @@
 
 #include <Eigen/Eigenvalues>
 
+#include "aerosect/analysis/equilibrium.hpp"
 #include "aerosect/analysis/root_tracking.hpp"
 #include "aerosect/error.hpp"
 
@@ -34,15 +35,27 @@ const char* to_string(DecayReason r) {
 namespace {
 
 // True when rest is an unstable equilibrium: the state matrix linearised
-// about rest (every gap open: the gap-open stiffness of each gap law, the
-// linear coefficient of the others) has a growing eigenvalue (the growth
-// criterion of root_tracking.hpp). A motion that has died down to the floor there has not decayed: it
-// is leaving the equilibrium (inside a freeplay gap above the gap-open
-// flutter speed, or any section above its linear flutter speed).
+// about rest has a growing eigenvalue (the growth criterion of
+// root_tracking.hpp). A motion that has died down to the floor there has
+// not decayed: it is leaving the equilibrium (inside a freeplay gap above
+// the gap-open flutter speed, or any section above its linear flutter
+// speed). Rest is q = 0 with every gap open (the gap-open stiffness of
+// each gap law, the linear coefficient of the others); with a steady
+// condition it is the static equilibrium (equilibrium.hpp), linearised
+// with each spring's tangent stiffness in the region it lies in there
+// (against a stop: the gap-closed slope), and a condition with no static
+// equilibrium has no rest to decay to.
 bool rest_unstable(const AeroelasticModel& model) {
   const auto& springs = model.description().springs;
   const int n = model.n_dof();
   DofVector k(n);
+  if (model.has_steady_condition()) {
+    const EquilibriumResult eq = static_equilibrium(model);
+    const Equilibrium* e = principal_equilibrium(eq);
+    if (!e) return true;
+    for (int j = 0; j < n; ++j) k(j) = e->springs[static_cast<std::size_t>(j)].tangent_stiffness;
+    return any_growing(Eigen::EigenSolver<Eigen::MatrixXd>(model.state_matrix(k), false).eigenvalues());
+  }
   for (int j = 0; j < n; ++j) {
     const SpringLaw& law = springs[static_cast<std::size_t>(j)];
     k(j) = law.breakpoints().empty() ? law.nominal_stiffness() : law.gap_open_stiffness();

@@ -21,12 +21,14 @@
 #include "aerosect/analysis/flutter_report.hpp"
 #include "aerosect/analysis/gust_sweep.hpp"
 #include "aerosect/analysis/modes.hpp"
+#include "aerosect/analysis/preload.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
 #include "aerosect/analysis/sweep.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/integrate/exact_flow.hpp"
 #include "aerosect/io/checksum.hpp"
+#include "aerosect/io/hdf5_document.hpp"
 #include "aerosect/io/hdf5_writer.hpp"
 #include "aerosect/io/text_file.hpp"
 #include "aerosect/units.hpp"
@@ -349,9 +351,42 @@ std::pair<double, double> lco_sweep_range(const Study& s) {
   return {lo, hi};
 }
 
+// The request of a derived sweep (the LCO sweep, the preload map) without
+// its axis: gusts removed, runs of `duration` s (the option, else the
+// case's run length but at least 400 periods of the lowest natural
+// frequency) from the case's initial conditions, or, for a case at rest,
+// with the nonlinear DOF displaced by 4 x its gap; `note` says which.
+SweepRequest derived_sweep_request(const Study& s, int nl, const std::string& label, double& duration,
+                                   std::string& note) {
+  const Case& c = s.c;
+  const double f_low = s.check.modes.empty() ? 1.0 : s.check.modes.front().frequency / (2 * std::numbers::pi);
+  Derivation dv;
+  duration = s.o.sweep_duration > 0 ? s.o.sweep_duration : std::max(c.simulation.duration, 400.0 / f_low);
+  dv.duration = duration;
+  bool at_rest = true;
+  for (int k = 0; k < c.model.section.dof; ++k)
+    if (c.simulation.initial_displacement(k) != 0 || c.simulation.initial_velocity(k) != 0) at_rest = false;
+  note = "initial conditions of the case";
+  if (at_rest) {
+    const auto bp = c.model.springs[static_cast<std::size_t>(nl)].breakpoints();
+    double gap = 0;
+    for (double b : bp) gap = std::max(gap, std::abs(b));
+    dv.disturb_dof = nl;
+    dv.disturbance = gap > 0 ? 4.0 * gap : (nl == kPlunge ? 0.1 * c.model.section.semichord : 2.0 * kRadPerDeg);
+    const Presenter pr = presenter(c);
+    note = fmt::format("the case starts at rest: {} displaced by {:.4g} {}", kDofNames[nl],
+                       pr.displacement_value(nl, dv.disturbance), pr.displacement_unit(nl));
+  }
+  SweepRequest req;
+  req.case_text = derived_case_text(c, dv);
+  req.case_path = c.path + label;
+  req.overrides = derived_overrides(c, dv);
+  req.options.jobs = std::max(1, s.o.jobs);
+  return req;
+}
+
 // The LCO sweep up and down in airspeed, written to sweep.h5.
 LcoSweepRun lco_sweep_stage(Study& s, int nl) {
-  const Case& c = s.c;
   LcoSweepRun run;
   run.key = s.si ? "flow.airspeed" : "nondimensional.reduced_speed";
   run.per = s.si ? 1.0 : 1.0 / s.flutter.reference_speed;
@@ -360,30 +395,9 @@ LcoSweepRun lco_sweep_stage(Study& s, int nl) {
   SweepAxis axis{run.key, {}};
   for (int i = 0; i < n; ++i) axis.values.push_back(run.per * (lo + (hi - lo) * i / (n - 1)));
 
-  // Run length and disturbance.
-  const double f_low = s.check.modes.empty() ? 1.0 : s.check.modes.front().frequency / (2 * std::numbers::pi);
-  Derivation dv;
-  const double sweep_duration =
-      s.o.sweep_duration > 0 ? s.o.sweep_duration : std::max(c.simulation.duration, 400.0 / f_low);
-  dv.duration = sweep_duration;
-  bool at_rest = true;
-  for (int k = 0; k < c.model.section.dof; ++k)
-    if (c.simulation.initial_displacement(k) != 0 || c.simulation.initial_velocity(k) != 0) at_rest = false;
-  std::string disturbance_note = "initial conditions of the case";
-  if (at_rest) {
-    const auto bp = c.model.springs[static_cast<std::size_t>(nl)].breakpoints();
-    double gap = 0;
-    for (double b : bp) gap = std::max(gap, std::abs(b));
-    dv.disturb_dof = nl;
-    dv.disturbance = gap > 0 ? 4.0 * gap : (nl == kPlunge ? 0.1 * c.model.section.semichord : 2.0 * kRadPerDeg);
-    const Presenter pr = presenter(c);
-    disturbance_note = fmt::format("the case starts at rest: {} displaced by {:.4g} {}", kDofNames[nl],
-                                   pr.displacement_value(nl, dv.disturbance), pr.displacement_unit(nl));
-  }
-  SweepRequest req;
-  req.case_text = derived_case_text(c, dv);
-  req.case_path = c.path + " (LCO sweep)";
-  req.overrides = derived_overrides(c, dv);
+  double sweep_duration = 0;
+  std::string disturbance_note;
+  SweepRequest req = derived_sweep_request(s, nl, " (LCO sweep)", sweep_duration, disturbance_note);
   req.options.axes = {axis};
   req.options.up = req.options.down = true;
   req.options.continuation = true;
@@ -972,6 +986,101 @@ void lco_stages(Study& s) {
   if (worst->lco.frequency > 0) lco_history_stage(s, *worst, where, run);
 }
 
+// The preload (preload.hpp): whether the case's steady condition holds the
+// surface against a stop at the case airspeed (rows citing flutter.h5's
+// /parameters/equilibrium and preload.h5), and the LCO map against the
+// preload level at that airspeed (preload.h5: the sweep's map of the
+// preload key, with the hold and the answer as root attributes).
+void preload_stage(Study& s) {
+  const Case& c = s.c;
+  const PreloadHold h = preload_hold(c);
+  if (!h.applicable) {
+    s.part("preload", false, fmt::format("skipped: {}", h.reason));
+    return;
+  }
+  const int j = h.spring;
+  const bool angle = j != kPlunge;
+  const std::string dof = kDofNames[j];
+  const std::string force_units = angle ? "N m m-1" : "N m-1";
+  const std::string at_speed = fmt::format("at the case airspeed {}", s.v(c.model.flow.airspeed));
+  // The hold at the case's condition.
+  std::string held;
+  if (!h.equilibrium_found)
+    held = "no static equilibrium: nothing holds the surface";
+  else if (h.held)
+    held = fmt::format("yes: against the {}, and the linearisation there (the gap closed) is stable {}: no "
+                       "freeplay LCO from small disturbances",
+                       h.region, at_speed);
+  else if (h.against_stop)
+    held = fmt::format("against the {}, but the linearisation there (the gap closed) is unstable {}: it "
+                       "flutters on the stop",
+                       h.region, at_speed);
+  else
+    held = fmt::format("no: the {} rests in its {} {}", dof, h.region.empty() ? "gap" : h.region, at_speed);
+  if (h.steady_condition && h.equilibrium_found) {
+    s.rows.add("preload_equilibrium", fmt::format("{} at the static equilibrium of the steady condition", dof),
+               angle ? h.displacement * kDegPerRad : h.displacement, angle ? "degree" : "m",
+               fmt::format("flutter.h5: /parameters/equilibrium/{}{}", dof, angle ? " (rad)" : ""), h.region);
+    s.rows.add("preload_contact_load",
+               h.against_stop ? "Contact load against the stop" : fmt::format("{} spring force at the equilibrium", dof),
+               h.spring_force, force_units, fmt::format("flutter.h5: /parameters/equilibrium/{}_spring_force", dof),
+               h.against_stop ? h.region : "in the gap: no contact");
+  }
+  s.rows.text("preload_held", "Held against a stop by the case's condition",
+              h.steady_condition ? held : "no [steady] condition: nothing preloads the surface",
+              "preload.h5@held_against_stop");
+
+  // The map against the preload level.
+  double duration = 0;
+  std::string note;
+  const SweepRequest base = derived_sweep_request(s, j, " (preload map)", duration, note);
+  const Case base_case = parse_case(base.case_text, base.case_path, base.overrides);
+  s.say("preload: hold and LCO map against the preload level");
+  const PreloadMap m = preload_map(base_case, base, 11, s.cancel);
+  if (!m.available) {
+    s.part("preload", true, fmt::format("hold assessed; the map against the preload level was not made: {}", m.reason));
+    s.rows.text("preload_lco_limit", "Preload above which freeplay LCO disappears", "not assessed", "", m.reason);
+    return;
+  }
+  {
+    Hdf5Document doc(s.path("preload.h5"));
+    write_sweep_tables(doc, base_case, m.request, m.points, nullptr);
+    doc.text_attribute("", "preload_key", m.key);
+    doc.text_attribute("", "preload_answer", m.verdict);
+    doc.number_attribute("", "held_against_stop", h.held ? 1.0 : 0.0, "1");
+    doc.number_attribute("", "against_stop", h.against_stop ? 1.0 : 0.0, "1");
+    doc.number_attribute("", "case_spring_force", h.spring_force, force_units);
+    doc.number_attribute("", "contact_level", m.direction * m.contact_level, m.units);
+    if (std::isfinite(m.hold_off_level)) {
+      doc.number_attribute("", "hold_off_level", m.direction * m.hold_off_level, m.units);
+      doc.number_attribute("", "oscillating_spring_force", m.oscillating_force, force_units);
+    }
+    if (m.outcome == PreloadOutcome::kBracketed) {
+      doc.number_attribute("", "lco_disappears_above", m.bracket_low, m.units);
+      doc.number_attribute("", "lco_absent_from", m.bracket_high, m.units);
+    }
+    doc.commit();
+  }
+  s.R.hdf5_files.push_back("preload.h5");
+  s.part("preload", true,
+         fmt::format("{} levels of {} from 0 to {:.4g} {} {}, up and down with continuation; runs of up to "
+                     "{:.4g} s; {}",
+                     m.levels.size(), m.key, m.levels.back(), m.units, at_speed, duration, note),
+         {"preload.h5"});
+  const std::string cls = fmt::format("preload.h5: response_class over {}", sweep_axis_name(m.key));
+  s.rows.text("preload_lco_limit", "Preload above which freeplay LCO disappears", m.verdict, cls,
+              fmt::format("the level replaces the case's own {} {}; a preload that holds the surface in this "
+                          "model is no freeplay clearance (trim loads change with manoeuvres, gusts and wear)",
+                          m.key, at_speed));
+  s.rows.add("preload_contact_level", "Preload that brings the surface onto a stop", m.direction * m.contact_level,
+             m.units, "preload.h5@contact_level", "static equilibrium (equilibrium.hpp)");
+  if (std::isfinite(m.hold_off_level))
+    s.rows.add("preload_hold_off", "Hold-off estimate: contact load reaches the unloaded LCO's oscillating spring force",
+               m.direction * m.hold_off_level, m.units, "preload.h5@hold_off_level",
+               fmt::format("common practice, no source; oscillating spring force {:.4g} {}", m.oscillating_force,
+                           force_units));
+}
+
 // The design-gust gradient sweep, from rest.
 void gust_stage(Study& s) {
   const Case& c = s.c;
@@ -1100,6 +1209,8 @@ StudyResult run_study(const Case& c, const std::string& directory, const StudyOp
     flutter_stage(s);
     stop_if_cancelled(cancel);
     lco_stages(s);
+    stop_if_cancelled(cancel);
+    preload_stage(s);
     stop_if_cancelled(cancel);
     gust_stage(s);
     stop_if_cancelled(cancel);

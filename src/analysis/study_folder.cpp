@@ -40,7 +40,7 @@ bool earlier_study_complete(const fs::path& dir) {
 
 bool is_study_file_name(const std::string& name) {
   static const std::vector<std::string> exact = {"case.toml", "check.json", "summary.json", "report.html"};
-  static const std::vector<std::string> stems = {"flutter", "sweep", "branch", "lco", "lco_orbit", "gust", "response"};
+  static const std::vector<std::string> stems = {"flutter", "sweep", "branch", "lco", "lco_orbit", "preload", "gust", "response"};
   for (const auto& e : exact)
     if (name == e) return true;
   for (const auto& s : stems)

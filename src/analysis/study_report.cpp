@@ -87,6 +87,9 @@ std::string study_figure_caption(const std::string& png_name) {
                         "folds and other bifurcations marked, V_D and 1.15 V_D marked, and the LCO "
                         "sweep's periodic runs drawn over the branch (decayed runs are not LCOs and "
                         "are not drawn)."},
+      {"preload_bifurcation", "LCO map against the preload level at the case airspeed: LCO amplitude against the "
+                              "swept hinge moment (or incidence), sweeping up and down (continuation); the level "
+                              "where the runs turn decayed is where the preload holds the surface on its stop."},
       {"gust_gust_peaks", "Design gust gradient sweep: peak responses against the gust gradient distance H "
                     "(one-minus-cosine gusts sized per CS-25.341(a) when the case asks for it; a gust given U_de by the "
                     "small-aircraft rule, design = \"cs-23\", keeps it at every H)."},

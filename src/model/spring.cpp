@@ -156,45 +156,81 @@ double SpringLaw::gap_open_stiffness() const {
   return slopes_[static_cast<std::size_t>(region_of(offset_))];
 }
 
-double SpringLaw::describing_function(double A) const {
-  AEROSECT_CHECK(A > 0);
-  // Closed form. Split [0, 2 pi] where A sin(theta) crosses a breakpoint;
-  // on a piece [a, b] in region r the linear part integrates exactly:
-  //   int (s A sin + c) sin = s A [(b - a) - (sin b cos b - sin a cos a)] / 2
-  //                           + c (cos a - cos b).
+double SpringLaw::describing_function(double A) const { return harmonics(0.0, A).gain; }
+
+SpringLaw::DualInput SpringLaw::dual_input_describing_function(double B, double A) const {
+  return harmonics(B, A);
+}
+
+SpringLaw::DualInput SpringLaw::harmonics(double B, double A) const {
+  AEROSECT_CHECK(A > 0 && std::isfinite(B));
+  // Closed form. Split [0, 2 pi] where B + A sin(theta) crosses a
+  // breakpoint; on a piece [a, b] in region r the law is linear,
+  // f = s A sin + c' with c' = s B + c (c' = c exactly when B = 0), and
+  //   int (s A sin + c') sin = s A [(b - a) - (sin b cos b - sin a cos a)] / 2
+  //                            + c' (cos a - cos b),
+  //   int (s A sin + c')     = s A (cos a - cos b) + c' (b - a).
   // The polynomial terms are the same in every region and integrate over
-  // the whole period: int_0^2pi sin^(m+1) = 2 pi (m)!!/(m+1)!! for odd m
-  // (m + 1 even), 0 for even m; so c x^m adds c A^(m-1) 2 m!!/(m+1)!!
-  // (the cubic's 3/4 A^2 of Gelb & Vander Velde). Checked against Boost's
-  // Gauss-Kronrod quadrature of the defining integral (test_spring.cpp).
+  // the whole period with the sine-power moments
+  //   mu_i = 1/(2 pi) int_0^2pi sin^i = (i-1)!!/i!! for even i, 0 for odd i:
+  // c x^m with x = B + A sin expands binomially into
+  //   F0 += c sum_i C(m,i) B^(m-i) A^i mu_i,
+  //   N_A += c sum_i C(m,i) B^(m-i) A^(i-1) 2 mu_(i+1);
+  // with B = 0 only i = m is left: c A^(m-1) 2 m!!/(m+1)!! for odd m (the
+  // cubic's 3/4 A^2 of Gelb & Vander Velde). Checked against Boost's
+  // Gauss-Kronrod quadrature of the defining integrals (test_spring.cpp).
   using std::numbers::pi;
   std::vector<double> cuts = {0.0, 0.5 * pi, pi, 1.5 * pi, 2.0 * pi};
   for (double xb : breakpoints_) {
-    if (std::abs(xb) >= A) continue;
-    const double t = std::asin(xb / A);
+    if (std::abs(xb - B) >= A) continue;
+    const double t = std::asin((xb - B) / A);
     for (double c : {t, pi - t, t + 2 * pi}) {
       if (c > 0 && c < 2 * pi) cuts.push_back(c);
     }
   }
   std::sort(cuts.begin(), cuts.end());
-  double sum = 0;
+  double sum = 0, sum0 = 0;
   for (std::size_t i = 0; i + 1 < cuts.size(); ++i) {
     const double a = cuts[i], b = cuts[i + 1];
     if (b - a < 1e-15) continue;
-    const auto r = static_cast<std::size_t>(region_of(A * std::sin(0.5 * (a + b))));
+    const auto r = static_cast<std::size_t>(region_of(B + A * std::sin(0.5 * (a + b))));
     const double sa = std::sin(a), ca = std::cos(a), sb = std::sin(b), cb = std::cos(b);
-    sum += slopes_[r] * A * 0.5 * ((b - a) - (sb * cb - sa * ca)) + intercepts_[r] * (ca - cb);
+    const double c = slopes_[r] * B + intercepts_[r];
+    sum += slopes_[r] * A * 0.5 * ((b - a) - (sb * cb - sa * ca)) + c * (ca - cb);
+    sum0 += slopes_[r] * A * (ca - cb) + c * (b - a);
   }
-  double n = sum / (pi * A);
+  DualInput out;
+  out.gain = sum / (pi * A);
+  out.mean = sum0 / (2 * pi);
+  // mu_i for i = 0..m+1.
+  auto moment = [](int i) {
+    if (i % 2 != 0) return 0.0;
+    double mu = 1.0;
+    for (int q = i; q > 0; q -= 2) mu *= static_cast<double>(q - 1) / static_cast<double>(q);
+    return mu;
+  };
   // poly_[k] multiplies x^m, m = k + 2.
   for (std::size_t k = 0; k < poly_.size(); ++k) {
     const int m = static_cast<int>(k) + 2;
-    if (m % 2 == 0) continue;
-    double ratio = 2.0;  // 2 m!! / (m+1)!!
-    for (int q = m; q > 0; q -= 2) ratio *= static_cast<double>(q) / static_cast<double>(q + 1);
-    n += poly_[k] * std::pow(A, m - 1) * ratio;
+    if (B == 0) {
+      if (m % 2 == 0) {
+        out.mean += poly_[k] * std::pow(A, m) * moment(m);
+        continue;
+      }
+      double ratio = 2.0;  // 2 m!! / (m+1)!!
+      for (int q = m; q > 0; q -= 2) ratio *= static_cast<double>(q) / static_cast<double>(q + 1);
+      out.gain += poly_[k] * std::pow(A, m - 1) * ratio;
+      continue;
+    }
+    double binomial = 1.0;  // C(m, i)
+    for (int i = 0; i <= m; ++i) {
+      if (i > 0) binomial = binomial * static_cast<double>(m - i + 1) / static_cast<double>(i);
+      const double term = poly_[k] * binomial * std::pow(B, m - i);
+      out.mean += term * std::pow(A, i) * moment(i);
+      out.gain += term * std::pow(A, i - 1) * 2 * moment(i + 1);
+    }
   }
-  return n;
+  return out;
 }
 
 }  // namespace aerosect

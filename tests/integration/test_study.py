@@ -18,7 +18,11 @@ Checks:
     one in summary.json to 1e-12, and the cell shown in the browser must be
     that number to its 4 significant digits;
   - a case without freeplay and without gusts runs, and its report says
-    the LCO sweep and the gust sweep were skipped and why.
+    the LCO sweep and the gust sweep were skipped and why;
+  - the preload rows (the demo, and the trimmed demo at 27 m/s where its
+    aileron rests in the gap): the answer recomputed from preload.h5's
+    response classes, no LCO at or beyond the hold-off level, and the
+    equilibrium rows equal to flutter.h5's /parameters/equilibrium.
 Common practice, no source: a report is only as good as its traceability.
 """
 
@@ -287,6 +291,8 @@ def check_demo(exe, src, work, checks):
                 expected[f"gust_peak_{ch}"] = float(peaks[key]) * (DEG if ch in ("pitch", "flap") else 1)
 
     check_branch(out, rows, vd_tas, checks)
+    check_preload(out, rows, checks, False)
+
     def at_least_the_sweep():
         # The sweep's periodic runs are orbits of the same section at fixed
         # speeds: none can exceed the branch's maximum inside the envelope.
@@ -372,6 +378,68 @@ def check_demo(exe, src, work, checks):
     checks.run("the report names its inputs by SHA-256, with the date and version", provenance)
 
 
+def preload_answer(path):
+    """The preload map's answer recomputed from preload.h5's response
+    classes (periodic 1 or non-periodic 2 in either direction is an LCO):
+    (levels by |level|, LCO per level, attributes)."""
+    with h5py.File(path, "r") as f:
+        key = f.attrs["preload_key"]
+        key = key.decode() if isinstance(key, bytes) else str(key)
+        levels = f[key.replace(".", "_")][:]
+        cls = f["response_class"][:]
+        attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
+    lco = np.any((cls == 1) | (cls == 2), axis=0)
+    order = np.argsort(np.abs(levels))
+    return levels[order], lco[order], attrs
+
+
+def check_preload(out, rows, checks, steady):
+    """The preload rows against preload.h5 (and flutter.h5's equilibrium)."""
+    levels, lco, attrs = preload_answer(os.path.join(out, "preload.h5"))
+
+    def answer_is_the_files():
+        last = max((i for i in range(len(levels)) if lco[i]), default=None)
+        text = rows["preload_lco_limit"]["value"]
+        assert text == attrs["preload_answer"], (text, attrs["preload_answer"])
+        if last is None:
+            assert "no LCO at any level" in text, text
+        elif last + 1 == len(levels):
+            assert "highest" in text or "every level" in text, text
+        else:
+            assert "disappears between" in text, text
+            assert math.isclose(attrs["lco_disappears_above"], levels[last], rel_tol=1e-12), attrs
+            assert math.isclose(attrs["lco_absent_from"], levels[last + 1], rel_tol=1e-12), attrs
+        assert math.isclose(rows["preload_contact_level"]["number"], attrs["contact_level"], rel_tol=1e-12)
+        if "hold_off_level" in attrs:
+            assert math.isclose(rows["preload_hold_off"]["number"], attrs["hold_off_level"], rel_tol=1e-12)
+            # Hold-off criterion (common practice, no source): no LCO once the
+            # contact load exceeds the unloaded LCO's oscillating spring force.
+            beyond = np.abs(levels) >= abs(attrs["hold_off_level"])
+            assert not np.any(lco[beyond]), (levels, lco, attrs["hold_off_level"])
+    checks.run("the preload answer is the preload map's response classes; none beyond the hold-off level",
+               answer_is_the_files)
+
+    if steady:
+        def equilibrium_rows():
+            with h5py.File(os.path.join(out, "flutter.h5"), "r") as f:
+                flap = float(f["parameters/equilibrium/flap"][()])
+                force = float(f["parameters/equilibrium/flap_spring_force"][()])
+            assert math.isclose(rows["preload_equilibrium"]["number"], flap * DEG, rel_tol=1e-12)
+            assert math.isclose(rows["preload_contact_load"]["number"], force, rel_tol=1e-12, abs_tol=1e-15)
+            assert rows["preload_held"]["value"].startswith("no: the flap rests in its gap"), rows["preload_held"]
+        checks.run("preload rows: the equilibrium of flutter.h5, the flap in its gap at 27 m/s", equilibrium_rows)
+
+
+def check_trimmed(exe, src, work, checks):
+    """The trimmed demo at 27 m/s: its aileron rests in the gap and oscillates."""
+    out = os.path.join(work, "trimmed")
+    case = os.path.join(src, "cases", "demo_aileron_trimmed.toml")
+    summary = run_study(exe, case, out, "--no-plots", "--sweep-points", "9", "--set", "flow.airspeed=27")
+    rows = rows_by_id(summary)
+    checks.run("trimmed study writes preload.h5", lambda: "preload.h5" in summary["hdf5_files"])
+    check_preload(out, rows, checks, True)
+
+
 def check_plain_case(exe, src, work, checks):
     text = open(os.path.join(src, "cases", "demo_aileron.toml"), encoding="utf-8").read()
     text = re.sub(r"\[springs\.flap\][^\[]*", "", text)
@@ -407,6 +475,7 @@ def main():
     try:
         check_demo(a.aerosect, a.source_dir, work, checks)
         check_plain_case(a.aerosect, a.source_dir, work, checks)
+        check_trimmed(a.aerosect, a.source_dir, work, checks)
     finally:
         if not a.keep:
             shutil.rmtree(work, ignore_errors=True)

@@ -8,6 +8,7 @@
 
 #include <Eigen/Eigenvalues>
 
+#include "aerosect/analysis/continuation.hpp"
 #include "aerosect/analysis/describing_function.hpp"
 #include "aerosect/analysis/flutter.hpp"
 #include "aerosect/analysis/flutter_report.hpp"
@@ -359,4 +360,92 @@ TEST_CASE("The LCO table shows every branch and every stable/unstable segment", 
     ++lines;
   CHECK(runs > 0);
   CHECK(lines == runs);
+}
+
+namespace {
+
+// The dual-input prediction's branch-0 points as (speed, amplitude, bias),
+// sorted by speed (the branch is monotone in speed where it is compared).
+std::vector<std::array<double, 3>> biased_curve(const LcoPrediction& p) {
+  std::vector<std::array<double, 3>> v;
+  for (const auto& q : p.points)
+    if (q.branch == 0) v.push_back({q.speed, q.amplitude, q.bias});
+  std::sort(v.begin(), v.end());
+  return v;
+}
+
+}  // namespace
+
+TEST_CASE("Dual-input describing function of a trimmed section against its converged orbits", "[df][orbit]") {
+  // Gelb & Vander Velde 1968 (bias plus sinusoid): with the steady loads the
+  // flap's LCO is x = B + A sin(w t) about a bias B that solves the mean
+  // equation. The shipped trimmed demo (2 deg incidence, 1 g) has its
+  // static equilibrium inside the gap between about 24.9 and 35.5 m/s, and
+  // its gap-open system is unstable up to about 30 m/s; there the flap
+  // oscillates through its gap about a mean that is not centred. Reference:
+  // converged periodic orbits of the same section (shooting, orbit.hpp,
+  // continued in airspeed from a time-marched cycle at 27 m/s), with a
+  // second point set with an applied hinge moment of 0.05 N m/m. The
+  // first-harmonic method neglects the higher harmonics, so each orbit's
+  // own higher-harmonic content a_2 + ... + a_5 (from 13 % of a_1 near the
+  // stop edge, where half the cycle is in contact, down to 0.01 % near the
+  // grazing end) bounds the prediction's error in the fundamental a_1 and
+  // in the mean (common practice, no source); speed at the orbit's
+  // amplitude within 1 %. Measured (Release build): amplitude within 5.1 %
+  // of a_1 (0.4 x the higher harmonics, on every orbit), mean within 0.6 %
+  // of a_1, speed within 0.35 % (17 orbits, 24.90 to 28.91 m/s); with the
+  // hinge moment 4.4 %, 0.43 %, 0.24 % (16 orbits, 25.67 to 29.80 m/s).
+  for (const std::string hinge : {"0", "0.05"}) {
+    const Case c = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron_trimmed.toml",
+                             {"flow.airspeed=27", "steady.hinge_moment=" + hinge});
+    std::vector<double> speeds;
+    for (int i = 1; i <= 300; ++i) speeds.push_back(60.0 * i / 300);
+    const LcoPrediction df = describing_function_lco(c, speeds);
+    REQUIRE(df.available);
+    CHECK(df.biased);
+    CHECK(df.spring == kFlap);
+    const auto curve = biased_curve(df);
+    REQUIRE(curve.size() > 10);
+    BranchOptions o;
+    o.from = 24;
+    o.to = 31;
+    o.start = BranchStart::kMarch;
+    o.max_points = 60;
+    const Branch b = continue_branch(c, o);
+    INFO("hinge moment " << hinge << " N m/m: " << b.stop_reason);
+    int compared = 0;
+    double worst_a = 0, worst_b = 0, worst_u = 0;
+    for (const auto& p : b.points) {
+      if (!p.orbit.stable) continue;
+      const auto& h = p.orbit.content[kFlap];
+      const double a1 = h.harmonics.at(0), mean = h.mean;
+      double higher = 0;
+      for (std::size_t k = 1; k < h.harmonics.size(); ++k) higher += h.harmonics[k];
+      // The prediction at the orbit's speed (interpolated along the curve).
+      auto it = std::lower_bound(curve.begin(), curve.end(), std::array<double, 3>{p.airspeed, 0, 0});
+      if (it == curve.begin() || it == curve.end()) continue;
+      const auto &lo = *(it - 1), &hi = *it;
+      const double w = (p.airspeed - lo[0]) / (hi[0] - lo[0]);
+      const double A = lo[1] + w * (hi[1] - lo[1]), B = lo[2] + w * (hi[2] - lo[2]);
+      CAPTURE(p.airspeed, a1, A, mean, B);
+      CHECK(std::abs(A - a1) <= higher);
+      CHECK(std::abs(B - mean) <= higher);
+      worst_a = std::max(worst_a, std::abs(A - a1) / a1);
+      worst_b = std::max(worst_b, std::abs(B - mean) / a1);
+      // The speed the prediction gives for the orbit's amplitude (the curve
+      // rises in amplitude with speed here).
+      for (std::size_t q = 1; q < curve.size(); ++q)
+        if ((curve[q - 1][1] - a1) * (curve[q][1] - a1) <= 0 && curve[q][1] > curve[q - 1][1]) {
+          const double u = curve[q - 1][0] + (curve[q][0] - curve[q - 1][0]) * (a1 - curve[q - 1][1]) /
+                                                 (curve[q][1] - curve[q - 1][1]);
+          CHECK_THAT(u, Catch::Matchers::WithinRel(p.airspeed, 0.01));
+          worst_u = std::max(worst_u, std::abs(u - p.airspeed) / p.airspeed);
+          break;
+        }
+      ++compared;
+    }
+    INFO("largest differences: amplitude " << worst_a << " of a_1, mean " << worst_b << " of a_1, speed "
+                                           << worst_u);
+    CHECK(compared >= 5);
+  }
 }

@@ -506,3 +506,28 @@ TEST_CASE("The sweep text names every swept key with its units", "[sweep]") {
   if (text.find("largest LCO amplitude") != std::string::npos)
     CHECK_THAT(text, Catch::Matchers::Contains(" degree at "));
 }
+
+TEST_CASE("A flap preloaded onto its stop decays to rest there", "[lco][equilibrium]") {
+  // The rest a decay is judged against is the static equilibrium of the
+  // steady condition, linearised in the region it lies in (lco.hpp): the
+  // trimmed demo at 27 m/s with a 0.3 N m/m hinge moment rests on its upper
+  // stop, where the gap-closed section is stable (its flutter speed is
+  // 94 m/s), although the gap-open one is unstable at 27 m/s. A released
+  // disturbance dies out on the stop: "decayed, to rest" (common practice,
+  // no source), not "non-periodic" as when rest was taken in the gap.
+  // Unloaded, the same flap keeps oscillating through its gap.
+  const Case c = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron_trimmed.toml");
+  SweepRequest r;
+  r.case_text = c.text;
+  r.case_path = c.path;
+  r.overrides = {"flow.airspeed=27", "simulation.duration=60"};
+  r.options.axes = {SweepAxis{"steady.hinge_moment", {0.0, 0.3}}};
+  r.options.up = true;
+  r.options.down = false;
+  r.options.continuation = false;
+  const auto pts = run_sweep(r, {}, {});
+  REQUIRE(pts.size() == 2);
+  CHECK(pts[0].lco.response == ResponseClass::kPeriodic);
+  CHECK(pts[1].lco.response == ResponseClass::kDecayed);
+  CHECK(pts[1].lco.decay_reason == DecayReason::kToRest);
+}

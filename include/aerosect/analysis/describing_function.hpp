@@ -45,8 +45,37 @@
 // destabilises with speed is stable where its neutral speed rises with
 // amplitude.
 //
-// The prediction assumes a near-harmonic oscillation about x = 0: for an
-// offset or asymmetric gap the bias is ignored (say so when reporting).
+// Without a steady condition the prediction assumes a near-harmonic
+// oscillation about x = 0: for an offset or asymmetric gap the bias is
+// ignored (say so when reporting).
+//
+// With a steady condition ([steady]: incidence, flap trim, hinge moment,
+// gravity) the oscillation of spring j is x_j = B + A sin(omega t) about a
+// bias B, and the dual-input describing function (Gelb & Vander Velde 1968,
+// bias plus sinusoid; SpringLaw::dual_input_describing_function) replaces
+// the spring by its mean force F0(B, A) in the mean equation and by its
+// first-harmonic gain N_A(B, A) in the oscillatory one. At each (A, U):
+//   mean equation: the static balance of equilibrium.hpp at airspeed U with
+//     f_j replaced by F0(B, A):
+//       (K_lin + U^2 K_st1) q_m + e_j F0(q_m,j, A) = -U^2 K_st1 q_a0 + f_gravity + f_trim,
+//     K_st1 the steady aerodynamic stiffness per U^2 (C(0) = 1); the other
+//     DOFs are condensed out (their block must be regular), leaving one
+//     equation s(U) B + F0(B, A) = r(U) for B = q_m,j. Of its roots the
+//     ones with a positive mean stiffness s + dF0/dB are kept (a root with a
+//     negative one is a statically unstable mean), the one nearest the
+//     centre of the spring's breakpoints when there are several;
+//   harmonic condition: the linear system with k_j = N_A(B, A) has a
+//     neutral oscillatory pair at U (as above).
+// Held DOFs are not held (as in the flutter analysis's stability model).
+// A neutral point whose oscillation stays inside one region of a
+// piecewise-linear law (no breakpoint between B - A and B + A: a linear
+// oscillation, not a limit cycle) or whose mean equation has no kept root
+// is no LCO and is dropped. The stability criterion is the one above, with
+// B solved again at A (1 +- 1e-3) and the same U. The amplitude grid is
+// A = w 10^t, t from -3 to 2, w the half-width of the breakpoints' span
+// (for a polynomial law as without a steady condition); a branch end at the
+// smallest grid amplitude is the small-amplitude (linear) limit, one where
+// the oscillation leaves the stops is a gap edge. Each point reports B.
 
 #include <atomic>
 #include <string>
@@ -63,6 +92,8 @@ struct LcoPredictionPoint {
   double frequency = 0;             // rad/s
   bool stable = false;
   int branch = 0;                   // connected curve, numbered as LcoPrediction::branches
+  double bias = 0;                  // B: mean of the nonlinear DOF, m or rad (0 without a steady condition)
+  double mean_force = 0;            // F0(B, A): mean spring force, N/m or N m/m (0 without one)
 };
 
 // Why a branch ends, at either end.
@@ -93,6 +124,7 @@ struct LcoPrediction {
   bool available = false;
   std::string reason;   // why not, when not available
   int spring = -1;      // DOF of the nonlinear spring
+  bool biased = false;  // the dual-input prediction of a steady condition (points carry B)
   double amplitude_limit = 0;  // physical amplitude limit used, m or rad
   std::vector<LcoPredictionPoint> points;  // by branch, then along the branch
   std::vector<LcoBranch> branches;

@@ -13,8 +13,11 @@
 //                 p maxima of different heights (p <= 4) is found as the same
 //                 repetition with lag p;
 //   decayed       only for one of two verified reasons, both with rest
-//                 (every gap open) a stable equilibrium of the linearised
-//                 model, so that a small motion dies out: "to rest", A
+//                 (every gap open; with a steady condition the static
+//                 equilibrium, linearised in the region each spring lies
+//                 in there: against a stop, the gap-closed slope) a stable
+//                 equilibrium of the linearised model, so that a small
+//                 motion dies out: "to rest", A
 //                 below `decay_floor`; "into the gap", the watched DOF's
 //                 extrema inside its spring's gap (where the model is that
 //                 stable linear one) over the last 2 x `settle_cycles`
@@ -167,7 +170,7 @@ class LcoTracker {
   int watch_ = kPitch;
   double gap_lo_ = 0, gap_hi_ = 0;  // watched spring's innermost region around its offset
   bool has_gap_ = false;
-  bool rest_unstable_ = false;  // rest is unstable (linearised about it, gaps open)
+  bool rest_unstable_ = false;  // rest is unstable (linearised about it: gaps open, or the static equilibrium's regions)
   std::array<std::vector<Extremum>, 3> extrema_;
   std::vector<double> amplitude_, period_, cycle_end_;  // per complete cycle
   static constexpr int kMaxLag = 4;

@@ -4,7 +4,10 @@
 // needs), the freeplay band, the LCO sweep up and down in airspeed with the
 // describing-function overlay, the design-gust gradient sweep, the response
 // to the case as given (initial conditions and gusts) and the time history
-// of the largest LCO inside the envelope. Every result is written into one
+// of the largest LCO inside the envelope; for a case with one gap law, the
+// preload (preload.hpp): whether the case's steady condition holds the
+// surface against a stop at its airspeed, and the LCO map against the
+// preload level there (preload.h5). Every result is written into one
 // directory as HDF5 (plus summary.json and the case as run); the summary
 // table of the report is built from the same in-memory results that were
 // written, and each row names the file and object it came from.

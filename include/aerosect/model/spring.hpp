@@ -75,6 +75,21 @@ class SpringLaw {
   // Describing function (equivalent linear stiffness) for x = A sin(theta):
   // N(A) = 1/(pi A) * integral_0^2pi f(A sin theta) sin theta dtheta.
   double describing_function(double amplitude) const;
+  // Dual-input describing function (Gelb & Vander Velde 1968, bias plus
+  // sinusoid) for x = B + A sin(theta), A > 0:
+  //   mean  F0(B, A)  = 1/(2 pi) integral_0^2pi f(B + A sin theta) dtheta
+  //                     (N/m or N m/m: the mean restoring force)
+  //   gain  N_A(B, A) = 1/(pi A) integral_0^2pi f(B + A sin theta) sin theta dtheta
+  //                     (N/m or N m/rad per m span: the first-harmonic stiffness)
+  // In closed form, the same integrator as describing_function(A), which
+  // is gain(0, A) bit for bit. With no breakpoint between B - A and B + A
+  // (the oscillation stays in one region) a piecewise-linear law gives
+  // F0 = f(B) and N_A = its slope there.
+  struct DualInput {
+    double mean = 0;  // F0
+    double gain = 0;  // N_A
+  };
+  DualInput dual_input_describing_function(double bias, double amplitude) const;
   const std::string& kind() const { return kind_; }
   std::span<const double> slopes() const { return slopes_; }
   std::span<const double> intercepts() const { return intercepts_; }
@@ -82,6 +97,8 @@ class SpringLaw {
   double offset() const { return offset_; }
 
  private:
+  DualInput harmonics(double bias, double amplitude) const;
+
   std::vector<double> breakpoints_;
   std::vector<double> slopes_{0.0}, intercepts_{0.0};
   std::vector<double> poly_;  // poly_[k] multiplies x^(k+2)

@@ -234,7 +234,7 @@ std::string orbits_case(const Case& c, const std::string& path, const BranchSett
   const ReleaseClaims claims{{path}};
   const std::string summary = run_interruptible([&](const std::atomic<bool>* cancel) {
     const Branch b = continue_branch(c, bo, cancel);
-    write_branch_file(path, c, b);
+    write_branch_file(path, c, b, {}, orbits_request_json(c, settings).dump());
     return branch_json(c, b, path).dump();
   }, [&](const std::string& part) {
     partial["summary"] = part;
@@ -354,7 +354,7 @@ PYBIND11_MODULE(_core, m) {
          int points, const std::string& watch, py::dict partial) {
         return orbits_case(c, path,
                            {.key = key, .from = from, .to = to, .start = start, .start_amplitude = start_amplitude,
-                            .points = points, .watch = watch},
+                            .points = points, .watch = watch, .shard = ""},
                            std::move(partial));
       },
       py::arg("case"), py::arg("path"), py::arg("key"), py::arg("from_"), py::arg("to"), py::arg("start"),

@@ -99,6 +99,10 @@ def files(tmp_path_factory):
     run("merge", p("shard_1.h5"), p("shard_2.h5"), "-o", p("merged.h5"))
     run("orbits", CUBIC, "-o", p("orbits.h5"), "--from", "5.5", "--to", "7.0", "--start", "hopf",
         "--start-amplitude", "0.2", "--points", "8")
+    # A shard of an orbits run that holds no branch (orbits traces one, in
+    # shard 1/N): a file without the point axis.
+    run("orbits", CUBIC, "-o", p("orbits_empty_shard.h5"), "--from", "5.5", "--to", "7.0", "--start", "hopf",
+        "--start-amplitude", "0.2", "--points", "8", "--shard", "2/2")
     run("study", DEMO, "-o", p("study"), "--no-plots", "--jobs", "2", "--sweep-points", "4")
     out = {name[:-3]: p(name) for name in os.listdir(d) if name.endswith(".h5")}
     study = [n for n in sorted(os.listdir(p("study"))) if n.endswith(".h5")]
@@ -110,7 +114,7 @@ def files(tmp_path_factory):
 
 
 KINDS = ["simulate", "simulate_steady", "flutter", "flutter_steady", "gust", "sweep", "sweep_2d", "shard_1", "merged", "orbits",
-         "study/response", "study/lco", "study/flutter", "study/sweep", "study/gust",
+         "orbits_empty_shard", "study/response", "study/lco", "study/flutter", "study/sweep", "study/gust",
          "study/branch", "study/lco_orbit"]
 
 

@@ -56,6 +56,7 @@ std::vector<LcoAtSpeed> lco_at_speed(const LcoPrediction& p, double speed) {
       // A point exactly at `speed` ends one segment and starts the next:
       // counted once, with the segment that ends there.
       if (k > 1 && speed == a.speed) continue;
+      if (b.closed && k == b.count && speed == z.speed) continue;  // the loop's first point, counted at k = 1
       const double t = hi > lo ? (speed - a.speed) / (z.speed - a.speed) : 0.0;
       out.push_back({a.amplitude + t * (z.amplitude - a.amplitude), a.frequency + t * (z.frequency - a.frequency),
                      a.stable && z.stable, a.branch});

@@ -212,11 +212,10 @@ std::string sweep_case(const Case& c, const std::string& path, SweepSettings set
     nlohmann::json j = sweep_json(c, req, pts, path);
     j["points_resumed"] = 0;
     return j.dump();
-  }, [&](const std::string&) {
-    if (!kept.empty()) {
-      partial["summary"] = kept;
-      partial["path"] = incomplete;
-    }
+  }, [&](const std::string& finished) {
+    // The signal came after the last point: the whole map is the part.
+    partial["summary"] = kept.empty() ? finished : kept;
+    partial["path"] = kept.empty() ? path : incomplete;
   });
   if (!kept.empty()) {  // a NumericalError after the map was kept
     partial["summary"] = kept;

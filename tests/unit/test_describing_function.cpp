@@ -396,4 +396,14 @@ TEST_CASE("The predicted LCOs at one airspeed: linear interpolation on each bran
   CHECK(at30[0].amplitude == 0.02);
   CHECK(lco_at_speed(p, 35.0).empty());  // between the branches
   CHECK(lco_at_speed(p, 5.0).empty());
+  // A closed loop joins its last point to its first: 60 -> 70 -> 65 -> 60.
+  LcoPrediction loop;
+  loop.available = true;
+  loop.points = {pt(0.01, 60, 50, true, 0), pt(0.02, 70, 52, true, 0), pt(0.03, 65, 54, true, 0)};
+  loop.branches = {{0, 3, BranchEnd::kBranchEnds, BranchEnd::kBranchEnds, true}};
+  const auto at62 = lco_at_speed(loop, 62.0);
+  REQUIRE(at62.size() == 2);  // on the way up and on the closing segment 65 -> 60
+  CHECK(at62[0].amplitude == Approx(0.012).epsilon(1e-14));
+  CHECK(at62[1].amplitude == Approx(0.018).epsilon(1e-14));  // 0.03 + 0.6 * (0.01 - 0.03)
+  REQUIRE(lco_at_speed(loop, 60.0).size() == 1);  // the loop's first point, once
 }

@@ -23,7 +23,10 @@ attributes, and the command line's --json summary as a dict
 
 Bad input raises InputError (a ValueError) with the message the command line
 prints; numerical trouble NumericalError (a RuntimeError); an output that
-cannot be written OutputError (an OSError).
+cannot be written OutputError (an OSError). The KeyboardInterrupt or
+NumericalError of a run cut short carries the part it finished as
+`partial` (a Result, or None): simulate's history so far, sweep's finished
+points, the orbits found so far.
 
     aerosect.plot   figures of result files (tools/plot is its command line)
 
@@ -40,7 +43,8 @@ class InputError(ValueError):
 
 
 class NumericalError(RuntimeError):
-    """The integration could not continue (attribute `time`, s)."""
+    """The integration could not continue (attribute `time`, s; `partial`,
+    the part of the run finished before, a Result or None)."""
 
 
 class OutputError(OSError):

@@ -240,12 +240,41 @@ def _summary(text, path):
     return clean(json.loads(text))
 
 
+def _attach_partial(error, path, partial):
+    """Sets error.partial: the Result of the part a run finished before it
+    was interrupted or failed (None when it kept nothing). The C++ module
+    names the file and its summary in `partial` (interrupted runs); a
+    NumericalError of a simulation leaves NAME.incomplete.h5 (the history up
+    to the trouble), read with no summary (the file's root attributes say
+    where and why the run stopped)."""
+    kept = partial.get("path")
+    if kept is None:
+        incomplete = os.path.splitext(path)[0] + ".incomplete.h5"
+        kept = incomplete if os.path.exists(incomplete) else None
+    result = None
+    if kept is not None and os.path.exists(kept):
+        try:
+            text = partial.get("summary")
+            result = Result.from_file(kept, None if text is None else _summary(text, kept))
+        except (OSError, ValueError) as e:  # never hide the run's own exception
+            error.partial_error = f"the part kept in {kept} could not be read: {e}"
+    error.partial = result
+
+
 def _run_to_file(kind, call):
-    """Runs `call(path)` with `path` in a private temporary folder, reads the
-    file written back (or the path call returns) and removes the folder."""
+    """Runs `call(path, partial)` with `path` in a private temporary folder,
+    reads the file written back (or the path call returns) and removes the
+    folder. Interrupted (KeyboardInterrupt) or failing numerically
+    (NumericalError), the exception carries the part finished as `partial`
+    (a Result, or None)."""
     with tempfile.TemporaryDirectory(prefix="aerosect-") as tmp:
         path = os.path.join(tmp, kind + ".h5")
-        out = call(path)
+        partial = {}
+        try:
+            out = call(path, partial)
+        except (KeyboardInterrupt, NumericalError) as e:
+            _attach_partial(e, path, partial)
+            raise
         text, written = (out, path) if isinstance(out, str) else out
         return Result.from_file(written, _summary(text, written))
 
@@ -272,13 +301,15 @@ def check(case):
 
 def simulate(case):
     """Time response to the initial conditions (aerosect simulate). A run
-    the engine could not complete returns the part computed (the file the
+    the engine stopped early returns the part computed (the file the
     command line keeps as NAME.incomplete.h5; summary["completed"] is
-    False)."""
+    False). Interrupted (KeyboardInterrupt) or failing (NumericalError), the
+    exception's `partial` is the time history up to there (a Result:
+    partial.dataset)."""
     c = _as_case(case)
 
-    def call(path):
-        text, written, _ = _core.simulate(c._core, path)
+    def call(path, partial):
+        text, written, _ = _core.simulate(c._core, path, partial)
         return text, written
     return _run_to_file("run", call)
 
@@ -291,7 +322,7 @@ def flutter(case, *, speeds=None, method="both", amplitude=None):
     plunge)."""
     c = _as_case(case)
     speeds = _range(speeds, "speeds")
-    return _run_to_file("flutter", lambda path: _core.flutter(c._core, path, speeds, method, amplitude))
+    return _run_to_file("flutter", lambda path, _: _core.flutter(c._core, path, speeds, method, amplitude))
 
 
 def gust(case, *, gradients=None, keep_initial=False):
@@ -300,7 +331,7 @@ def gust(case, *, gradients=None, keep_initial=False):
     starts every run from the case's [initial] conditions."""
     c = _as_case(case)
     gradients = _range(gradients, "gradients")
-    return _run_to_file("gust", lambda path: _core.gust(c._core, path, gradients, bool(keep_initial)))
+    return _run_to_file("gust", lambda path, _: _core.gust(c._core, path, gradients, bool(keep_initial)))
 
 
 def sweep(case, vary, *, direction="both", restart="continue", jobs=None, traces=False, with_gusts=False):
@@ -308,15 +339,18 @@ def sweep(case, vary, *, direction="both", restart="continue", jobs=None, traces
     {"flow.airspeed": (10, 60, 26)} (values "FROM:TO:N" or (FROM, TO, N)) or
     the command line's "KEY=FROM:TO:N" strings; direction "up", "down" or
     "both"; restart "continue" or "fresh"; jobs threads (default: every
-    core). Unlike the command line it keeps no journal: an interrupted
-    sweep keeps nothing."""
+    core). Unlike the command line it keeps no journal (a sweep is not
+    resumed); interrupted (KeyboardInterrupt), or when the flutter overlay
+    fails (NumericalError), the exception's `partial` is the map of the
+    points finished (a Result; cells not run hold the fill value,
+    summary["points_computed"] counts the finished points)."""
     c = _as_case(case)
     if isinstance(vary, str):
         vary = [vary]
     elif isinstance(vary, dict):
         vary = [f"{k}={_range(v, 'vary')}" for k, v in vary.items()]
-    return _run_to_file("sweep", lambda path: _core.sweep(c._core, path, list(vary), direction, restart, jobs,
-                                                           bool(traces), bool(with_gusts)))
+    return _run_to_file("sweep", lambda path, partial: _core.sweep(c._core, path, list(vary), direction, restart,
+                                                                    jobs, bool(traces), bool(with_gusts), partial))
 
 
 def orbits(case, *, key=None, from_=None, to=None, start="auto", start_amplitude=None, points=200, watch=None):
@@ -324,10 +358,13 @@ def orbits(case, *, key=None, from_=None, to=None, start="auto", start_amplitude
     key (default flow.airspeed, or nondimensional.reduced_speed), the window
     from_..to in the key's units, start "auto", "hopf", "march" or
     "describing", points (most orbits), watch "plunge", "pitch" or "flap".
-    Unlike the command line an interrupted run keeps nothing."""
+    Interrupted (KeyboardInterrupt), the exception's `partial` is the
+    branch of the orbits found so far (a Result; root attribute complete =
+    0), as the command line writes it."""
     c = _as_case(case)
-    return _run_to_file("branch", lambda path: _core.orbits(c._core, path, key or "", from_, to, start,
-                                                             start_amplitude, int(points), watch or ""))
+    return _run_to_file("branch", lambda path, partial: _core.orbits(c._core, path, key or "", from_, to, start,
+                                                                      start_amplitude, int(points), watch or "",
+                                                                      partial))
 
 
 class Study:

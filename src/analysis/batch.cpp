@@ -3,10 +3,12 @@
 #include <cmath>
 #include <filesystem>
 #include <string_view>
+#include <utility>
 
 #include <fmt/format.h>
 
 #include "aerosect/analysis/flutter_report.hpp"
+#include "aerosect/analysis/gust_sweep.hpp"
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/case.hpp"
@@ -67,6 +69,7 @@ constexpr Column kColumns[] = {
     {"overrides", ""},
     {"status", ""},
     {"input_form", ""},
+    {"airspeed_m_s", "m s-1"},
     {"state_space_flutter_speed_m_s", "m s-1"},
     {"state_space_flutter_speed_eas_m_s", "m s-1"},
     {"state_space_flutter_reduced_speed", "1"},
@@ -83,16 +86,107 @@ constexpr Column kColumns[] = {
     {"required_eas_m_s", "m s-1"},
     {"margin_percent", "%"},
     {"margin_met", ""},
+    // LCO: the freeplay band and onset of the flutter command, and its
+    // describing-function curve.
+    {"lco_gap_open_flutter_speed_m_s", "m s-1"},
+    {"lco_gap_closed_flutter_speed_m_s", "m s-1"},
+    {"lco_onset_eas_m_s", "m s-1"},
+    {"lco_spring", ""},
+    {"lco_df_lowest_stable_speed_m_s", "m s-1"},
+    {"lco_df_highest_stable_speed_m_s", "m s-1"},
+    {"lco_df_stable_cycles", "1"},
+    {"lco_df_amplitude_deg", "degree"},
+    {"lco_df_amplitude_m", "m"},
+    {"lco_df_frequency_hz", "Hz"},
+    {"lco_note", ""},
+    // Design gust: the gust command's critical peaks (signed value of the
+    // largest magnitude over the gradients) and the gradient giving each.
+    {"gust_peak_plunge_m", "m"},
+    {"gust_peak_plunge_gradient_m", "m"},
+    {"gust_peak_pitch_rad", "rad"},
+    {"gust_peak_pitch_gradient_m", "m"},
+    {"gust_peak_flap_rad", "rad"},
+    {"gust_peak_flap_gradient_m", "m"},
+    {"gust_peak_lift_n_per_m", "N m-1"},
+    {"gust_peak_lift_gradient_m", "m"},
+    {"gust_peak_pitching_moment_n_m_per_m", "N m m-1"},
+    {"gust_peak_pitching_moment_gradient_m", "m"},
+    {"gust_peak_hinge_moment_n_m_per_m", "N m m-1"},
+    {"gust_peak_hinge_moment_gradient_m", "m"},
+    {"gust_note", ""},
 };
 
+// The gust channels of the row: (channel, column of its value).
+constexpr std::pair<const char*, const char*> kGustChannels[] = {
+    {"plunge", "gust_peak_plunge_m"},
+    {"pitch", "gust_peak_pitch_rad"},
+    {"flap", "gust_peak_flap_rad"},
+    {"lift", "gust_peak_lift_n_per_m"},
+    {"pitching_moment", "gust_peak_pitching_moment_n_m_per_m"},
+    {"hinge_moment", "gust_peak_hinge_moment_n_m_per_m"},
+};
+
+// The row's LCO columns from the flutter command's JSON, and why those left
+// empty are.
+void lco_columns(nlohmann::json& row, const nlohmann::json& f) {
+  std::vector<std::string> notes;
+  const nlohmann::json& band = f.at("freeplay_band");
+  if (band.is_object()) {
+    if (band.at("gap_open_flutter_m_s").is_number())
+      row["lco_gap_open_flutter_speed_m_s"] = band.at("gap_open_flutter_m_s");
+    else
+      notes.push_back("no gap-open flutter in the speed range");
+    if (band.at("gap_closed_flutter_m_s").is_number())
+      row["lco_gap_closed_flutter_speed_m_s"] = band.at("gap_closed_flutter_m_s");
+  } else {
+    notes.push_back("no freeplay band (no spring with a gap)");
+  }
+  const nlohmann::json& m = f.at("margin");
+  if (m.is_object() && m.at("lco_onset_eas_m_s").is_number())
+    row["lco_onset_eas_m_s"] = m.at("lco_onset_eas_m_s");
+  else if (band.is_object())
+    notes.push_back(m.is_object() ? "no LCO onset (no gap-open flutter)" : "no LCO onset EAS (no [envelope] dive speed)");
+  const nlohmann::json& p = f.at("lco_prediction");
+  if (!p.is_object()) {
+    const std::string why = f.value("lco_prediction_omitted", std::string());
+    notes.push_back("no describing-function prediction" + (why.empty() ? std::string() : ": " + why));
+  } else {
+    row["lco_spring"] = p.at("spring");
+    if (p.at("stable_speed_range_m_s").is_array()) {
+      row["lco_df_lowest_stable_speed_m_s"] = p.at("stable_speed_range_m_s").at(0);
+      row["lco_df_highest_stable_speed_m_s"] = p.at("stable_speed_range_m_s").at(1);
+    } else {
+      notes.push_back("no stable predicted LCO at any speed");
+    }
+    // The largest stable predicted cycle at the case's airspeed.
+    const nlohmann::json* largest = nullptr;
+    int stable = 0;
+    for (const auto& q : p.at("at_case_airspeed").at("cycles")) {
+      if (!q.at("stable").get<bool>()) continue;
+      ++stable;
+      if (!largest || q.at("amplitude").get<double>() > largest->at("amplitude").get<double>()) largest = &q;
+    }
+    row["lco_df_stable_cycles"] = stable;
+    if (largest) {
+      row[p.at("amplitude_units") == "degree" ? "lco_df_amplitude_deg" : "lco_df_amplitude_m"] =
+          largest->at("amplitude");
+      row["lco_df_frequency_hz"] = largest->at("frequency_hz");
+    } else {
+      notes.push_back("no stable predicted LCO at the case airspeed");
+    }
+  }
+  row["lco_note"] = joined(notes);
+}
+
 // The row's key results from the flutter command's JSON.
-nlohmann::json row_of(const BatchEntry& e, const nlohmann::json& f) {
+nlohmann::json row_of(const BatchEntry& e, const Case& c, const nlohmann::json& f) {
   nlohmann::json row;
   row["name"] = e.name;
   row["case"] = e.case_path;
   row["overrides"] = joined(e.overrides);
   row["status"] = "ok";
   row["input_form"] = f.at("input_form");
+  row["airspeed_m_s"] = c.model.flow.airspeed;
   const nlohmann::json& lin = f.at("linearisations").at(0);  // the nominal springs
   for (const auto& m : lin.at("methods")) {
     const std::string method = m.at("method").get<std::string>();
@@ -110,7 +204,25 @@ nlohmann::json row_of(const BatchEntry& e, const nlohmann::json& f) {
     for (const char* k : {"critical", "critical_eas_m_s", "dive_speed_eas_m_s", "required_eas_m_s",
                           "margin_percent", "margin_met"})
       if (f.at("margin").contains(k)) row[k] = f.at("margin").at(k);
+  lco_columns(row, f);
   return row;
+}
+
+// The row's gust columns from the gust command's JSON.
+void gust_columns(nlohmann::json& row, const nlohmann::json& g) {
+  std::vector<std::string> absent;
+  const nlohmann::json& cr = g.at("critical");
+  for (const auto& [channel, column] : kGustChannels) {
+    if (!cr.contains(channel)) {
+      absent.push_back(channel);
+      continue;
+    }
+    row[column] = cr.at(channel).at("value");
+    row[fmt::format("gust_peak_{}_gradient_m", channel)] = cr.at(channel).at("gradient_m");
+  }
+  std::string note;
+  for (const auto& a : absent) note += (note.empty() ? "no channel " : ", ") + a;
+  row["gust_note"] = note.empty() ? note : note + " in this case";
 }
 
 std::string cell(const nlohmann::json& v) {
@@ -223,7 +335,22 @@ nlohmann::json run_batch(const std::vector<BatchEntry>& entries, const FlutterOp
     o.cancel = cancel;
     try {
       const FlutterReport r = flutter_analysis(cases[k], o);
-      rows.push_back(row_of(entries[k], flutter_json(cases[k], r, "")));
+      nlohmann::json row = row_of(entries[k], cases[k], flutter_json(cases[k], r, ""));
+      // The design gust: the gust command's sweep (default gradients, from rest).
+      if (!has_one_minus_cosine(cases[k])) {
+        row["gust_note"] = cases[k].model.gusts.empty() ? "no [[gust]] in the case"
+                                                        : "no one-minus-cosine [[gust]] to size over H";
+      } else {
+        try {
+          const GustSweep g = gust_gradient_sweep(cases[k], default_gradients(), cancel, GustStart::kRest);
+          gust_columns(row, gust_sweep_json(cases[k], g, ""));
+        } catch (const NumericalError& err) {
+          if (cancel && cancel->load()) break;
+          row["status"] = std::string("gust numerical-error: ") + err.what();
+          row["gust_note"] = "the gust sweep failed (see status)";
+        }
+      }
+      rows.push_back(std::move(row));
     } catch (const Cancelled&) {
       break;  // the rows so far are the caller's to keep
     } catch (const NumericalError& err) {
@@ -234,6 +361,11 @@ nlohmann::json run_batch(const std::vector<BatchEntry>& entries, const FlutterOp
       rows.push_back(row);
     }
   }
+  // Every column in every row: null where a value does not apply (the
+  // notes and the status say why).
+  for (auto& row : rows)
+    for (const auto& c : kColumns)
+      if (!row.contains(c.name)) row[c.name] = nullptr;
   return rows;
 }
 
@@ -268,12 +400,17 @@ std::string batch_summary_csv(const nlohmann::json& rows) {
 }
 
 std::string batch_summary_text(const nlohmann::json& rows) {
-  std::string t = fmt::format("aerosect {} batch: {} cases (linear flutter and divergence, nominal springs)\n\n",
+  std::string t = fmt::format("aerosect {} batch: {} cases (linear flutter and divergence, nominal springs; "
+                              "describing-function LCO; design gust)\n\n",
                               kVersion, rows.size());
-  t += fmt::format("  {:<24} {:>14} {:>14} {:>14} {:>10}  {}\n", "name", "flutter m s-1", "EAS m s-1",
-                   "diverg. m s-1", "margin %", "status");
-  auto num = [](const nlohmann::json& r, const char* k) {
-    return r.contains(k) && r.at(k).is_number() ? fmt::format("{:.6g}", r.at(k).get<double>()) : std::string("-");
+  t += fmt::format("  {:<24} {:>14} {:>14} {:>14} {:>10} {:>16} {:>14}  {}\n", "name", "flutter m s-1", "EAS m s-1",
+                   "diverg. m s-1", "margin %", "LCO at U (DF)", "gust lift N/m", "status");
+  auto has = [](const nlohmann::json& r, const char* k) { return r.contains(k) && r.at(k).is_number(); };
+  auto num = [&](const nlohmann::json& r, const char* k) {
+    return has(r, k) ? fmt::format("{:.6g}", r.at(k).get<double>()) : std::string("-");
+  };
+  auto text = [](const nlohmann::json& r, const char* k) {
+    return r.contains(k) && r.at(k).is_string() ? r.at(k).get<std::string>() : std::string();
   };
   auto speed = [&](const nlohmann::json& r, const char* k, bool nd) {
     const std::string v = num(r, k);
@@ -283,18 +420,22 @@ std::string batch_summary_text(const nlohmann::json& rows) {
     // The lower of the two methods' flutter speeds (state-space first when equal).
     const char* fs = "state_space_flutter_speed_m_s";
     const char* fe = "state_space_flutter_speed_eas_m_s";
-    if (r.contains("pk_flutter_speed_m_s") &&
-        (!r.contains(fs) || r.at("pk_flutter_speed_m_s").get<double>() < r.at(fs).get<double>())) {
+    if (has(r, "pk_flutter_speed_m_s") &&
+        (!has(r, fs) || r.at("pk_flutter_speed_m_s").get<double>() < r.at(fs).get<double>())) {
       fs = "pk_flutter_speed_m_s";
       fe = "pk_flutter_speed_eas_m_s";
     }
-    const char* dv = r.contains("state_space_divergence_speed_m_s") ? "state_space_divergence_speed_m_s"
-                                                                     : "pk_divergence_speed_m_s";
+    const char* dv = has(r, "state_space_divergence_speed_m_s") ? "state_space_divergence_speed_m_s"
+                                                                 : "pk_divergence_speed_m_s";
     // A nondimensional case in U* (its m s-1 fields are U* times b w_a = 1).
-    const bool nd = r.value("input_form", std::string()) == "nondimensional";
-    t += fmt::format("  {:<24} {:>14} {:>14} {:>14} {:>10}  {}\n", r.value("name", std::string()),
-                     speed(r, fs, nd), nd ? std::string("-") : num(r, fe), speed(r, dv, nd),
-                     num(r, "margin_percent"), r.value("status", std::string()));
+    const bool nd = text(r, "input_form") == "nondimensional";
+    // The largest stable describing-function LCO at the case's airspeed.
+    std::string lco = "-";
+    if (has(r, "lco_df_amplitude_deg")) lco = num(r, "lco_df_amplitude_deg") + " deg";
+    else if (has(r, "lco_df_amplitude_m")) lco = num(r, "lco_df_amplitude_m") + " m";
+    t += fmt::format("  {:<24} {:>14} {:>14} {:>14} {:>10} {:>16} {:>14}  {}\n", text(r, "name"), speed(r, fs, nd),
+                     nd ? std::string("-") : num(r, fe), speed(r, dv, nd), num(r, "margin_percent"), lco,
+                     num(r, "gust_peak_lift_n_per_m"), text(r, "status"));
   }
   t += fmt::format("\n{}\n", kSafetyCaution);
   return t;

@@ -3,11 +3,13 @@
 #include <cmath>
 #include <limits>
 #include <numbers>
+#include <optional>
 
 #include <fmt/format.h>
 
 #include "aerosect/analysis/report.hpp"
 #include "aerosect/analysis/simulate.hpp"
+#include "aerosect/error.hpp"
 #include "aerosect/io/hdf5_document.hpp"
 #include "aerosect/units.hpp"
 
@@ -24,9 +26,87 @@ nlohmann::json num(double v) { return std::isfinite(v) ? nlohmann::json(v) : nlo
 
 }  // namespace
 
-void write_branch_file(const std::string& path, const Case& c, const Branch& b, const std::string& sweep_file) {
+bool shard_holds_branch(int branch, int shard_index, int shard_count) {
+  return branch % shard_count == shard_index - 1;
+}
+
+nlohmann::json orbits_request_json(const Case& c, const BranchSettings& s) {
+  const auto [k, n] = parse_shard(s.shard);
+  nlohmann::json j;
+  j["format"] = 1;
+  j["case_text"] = c.text;
+  j["overrides"] = c.overrides;
+  j["key"] = s.key;
+  j["from"] = s.from ? nlohmann::json(*s.from) : nlohmann::json(nullptr);
+  j["to"] = s.to ? nlohmann::json(*s.to) : nlohmann::json(nullptr);
+  j["start"] = s.start;
+  j["start_amplitude"] = s.start_amplitude ? nlohmann::json(*s.start_amplitude) : nlohmann::json(nullptr);
+  j["points"] = s.points;
+  j["watch"] = s.watch;
+  j["shard"] = {k, n};
+  return j;
+}
+
+Branch empty_shard_branch(const Case& c, const BranchOptions& o, int shard_index, int shard_count) {
+  Branch b;
+  b.key = parameter_family(c, o.key).key;
+  b.start = o.start;
+  if (o.orbit.watched_dof >= 0) b.watched_dof = o.orbit.watched_dof;
+  b.stop_reason = fmt::format("shard {}/{} holds no branch (a run traces {} branch, in shard 1/{}); "
+                              "this file only completes the series for aerosect merge",
+                              shard_index, shard_count, kBranchesPerRun, shard_count);
+  return b;
+}
+
+void merge_branch_files(const std::vector<std::string>& inputs, const std::string& output,
+                        const std::atomic<bool>* cancel) {
+  std::optional<nlohmann::json> request;
+  std::vector<std::string> by_shard;  // file of each shard, by K - 1
+  for (const auto& path : inputs) {
+    stop_if_cancelled(cancel);
+    nlohmann::json req = nlohmann::json::parse(read_text_attribute(path, "orbits_request"), nullptr, false);
+    const auto valid_shard = [&] {
+      if (!req.is_object() || !req.contains("shard") || !req["shard"].is_array() || req["shard"].size() != 2)
+        return false;
+      const auto& sh = req["shard"];
+      return sh[0].is_number_integer() && sh[1].is_number_integer() && sh[1].get<long>() >= 1 &&
+             sh[1].get<long>() <= 100000 && sh[0].get<long>() >= 1 && sh[0].get<long>() <= sh[1].get<long>();
+    };
+    if (req.is_discarded() || !valid_shard())
+      throw InputError({path, 0, 0}, "orbits_request", "", "is not the request of an aerosect orbits run",
+                       "files written by aerosect orbits --shard K/N");
+    const int k = req["shard"][0].get<int>(), n = req["shard"][1].get<int>();
+    req["shard"] = {1, 1};
+    if (request && *request != req)
+      throw InputError({path, 0, 0}, "", "", "is a shard of a different orbits run than " + inputs.front(),
+                       "the shard files of one orbits command");
+    if (!by_shard.empty() && static_cast<int>(by_shard.size()) != n)
+      throw InputError({path, 0, 0}, "", "", fmt::format("is shard {}/{}, the others are of {}", k, n, by_shard.size()),
+                       "shards of one --shard K/N series");
+    if (by_shard.empty()) by_shard.resize(static_cast<std::size_t>(n));
+    std::string& slot = by_shard[static_cast<std::size_t>(k - 1)];
+    if (!slot.empty())
+      throw InputError({path, 0, 0}, "", "", fmt::format("shard {}/{} is given twice", k, n), "each shard once");
+    slot = path;
+    request = req;
+  }
+  std::size_t given = 0;
+  for (const auto& f : by_shard) given += !f.empty();
+  if (!request || given != by_shard.size())
+    throw InputError({inputs.empty() ? "" : inputs.front(), 0, 0}, "", "",
+                     fmt::format("{} of {} shards given", given, by_shard.size()),
+                     "every shard file 1/N..N/N of the orbits run");
+  stop_if_cancelled(cancel);
+  // The one branch of a run is shard 1's; the others hold none.
+  static_assert(kBranchesPerRun == 1, "a merge of several branches per run joins their files");
+  copy_with_text_attribute(by_shard.front(), output, "orbits_request", request->dump());
+}
+
+void write_branch_file(const std::string& path, const Case& c, const Branch& b, const std::string& sweep_file,
+                       const std::string& request) {
   Hdf5Document doc(path);
   RunMetadata meta = case_metadata(c, "orbit_branch");
+  if (!request.empty()) meta.text_attributes.push_back({"orbits_request", request});
   meta.text_attributes.push_back({"parameter_key", b.key});
   meta.text_attributes.push_back({"start", to_string(b.start)});
   meta.text_attributes.push_back({"start_detail", b.start_detail});

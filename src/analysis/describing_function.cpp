@@ -45,6 +45,27 @@ std::vector<std::pair<double, double>> stable_speed_ranges(const LcoPrediction& 
   return out;
 }
 
+std::vector<LcoAtSpeed> lco_at_speed(const LcoPrediction& p, double speed) {
+  std::vector<LcoAtSpeed> out;
+  for (const LcoBranch& b : p.branches) {
+    const std::size_t n = b.closed ? b.count + 1 : b.count;  // a loop also joins its last point to its first
+    for (std::size_t k = 1; k < n && b.count > 1; ++k) {
+      const LcoPredictionPoint& a = p.points[b.first + k - 1];
+      const LcoPredictionPoint& z = p.points[b.first + k % b.count];
+      const double lo = std::min(a.speed, z.speed), hi = std::max(a.speed, z.speed);
+      if (speed < lo || speed > hi) continue;
+      // A point exactly at `speed` ends one segment and starts the next:
+      // counted once, with the segment that ends there.
+      if (k > 1 && speed == a.speed) continue;
+      if (b.closed && k == b.count && speed == z.speed) continue;  // the loop's first point, counted at k = 1
+      const double t = hi > lo ? (speed - a.speed) / (z.speed - a.speed) : 0.0;
+      out.push_back({a.amplitude + t * (z.amplitude - a.amplitude), a.frequency + t * (z.frequency - a.frequency),
+                     a.stable && z.stable, a.branch});
+    }
+  }
+  return out;
+}
+
 namespace {
 
 using cd = std::complex<double>;

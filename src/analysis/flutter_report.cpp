@@ -332,6 +332,17 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
     lj["equivalent_divergence_count"] = r.lco.equivalent_divergence.size();
     lj["stable_speed_range_m_s"] =
         std::isfinite(lo) ? nlohmann::json::array({lo, hi}) : nlohmann::json(nullptr);
+    // Where the curve passes the case's airspeed (interpolated between the
+    // bracketing points of each branch).
+    nlohmann::json at;
+    at["speed_m_s"] = c.model.flow.airspeed;
+    at["cycles"] = nlohmann::json::array();
+    for (const LcoAtSpeed& q : lco_at_speed(r.lco, c.model.flow.airspeed))
+      at["cycles"].push_back({{"amplitude", q.amplitude * unit},
+                              {"frequency_hz", q.frequency / (2 * pi)},
+                              {"stable", q.stable},
+                              {"branch", q.branch}});
+    lj["at_case_airspeed"] = at;
     j["lco_prediction"] = lj;
   } else {
     j["lco_prediction"] = nullptr;
@@ -339,12 +350,8 @@ nlohmann::json flutter_json(const Case& c, const FlutterReport& r, const std::st
   // The steady condition: the equilibrium the nominal linearisation is
   // about, and why the describing-function prediction is left out.
   j["nominal_linearisation"] = r.nominal_basis;
-  if (c.model.steady.any()) {
-    j["equilibrium"] = equilibrium_json(c, r.equilibrium);
-    j["lco_prediction_omitted"] = r.lco.available ? nlohmann::json(nullptr) : nlohmann::json(r.lco.reason);
-  } else {
-    j["equilibrium"] = nullptr;
-  }
+  j["equilibrium"] = c.model.steady.any() ? equilibrium_json(c, r.equilibrium) : nlohmann::json(nullptr);
+  j["lco_prediction_omitted"] = r.lco.available ? nlohmann::json(nullptr) : nlohmann::json(r.lco.reason);
   const FlutterMargin fm = flutter_margin(r);
   if (fm.available) {
     nlohmann::json mj;

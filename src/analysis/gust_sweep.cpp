@@ -14,6 +14,12 @@
 
 namespace aerosect {
 
+bool has_one_minus_cosine(const Case& c) {
+  for (const auto& p : c.model.gusts.profiles())
+    if (p.shape == GustShape::kOneMinusCosine) return true;
+  return false;
+}
+
 std::vector<double> default_gradients() {
   std::vector<double> g;
   const double lo = 30 * kMetresPerFoot, hi = 350 * kMetresPerFoot;
@@ -26,9 +32,7 @@ const char* to_string(GustStart s) { return s == GustStart::kRest ? "rest" : "ca
 GustSweep gust_gradient_sweep(const Case& c, const std::vector<double>& gradients,
                               const std::atomic<bool>* cancel, GustStart start) {
   std::vector<GustProfile> base = c.model.gusts.profiles();
-  bool any = false;
-  for (const auto& p : base) any |= p.shape == GustShape::kOneMinusCosine;
-  if (!any)
+  if (!has_one_minus_cosine(c))
     throw InputError({c.path, 0, 0}, "gust", "",
                      "a gradient sweep needs at least one [[gust]] with shape = \"one-minus-cosine\"",
                      "a [[gust]] table with shape = \"one-minus-cosine\" and a gradient or design");

@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <sstream>
+#include <tuple>
 #include <thread>
 
 #include <fmt/format.h>
@@ -143,18 +144,20 @@ SweepRequest sweep_request(const SweepSettings& s) {
   if (points > kMaxSweepPoints)
     throw InputError({"--vary", 0, 0}, "--vary", fmt::format("{} points", points), "is too large a sweep",
                      fmt::format("at most {} points over both directions and the whole grid", kMaxSweepPoints));
-  if (!s.shard.empty()) {
-    int k = 0, n = 0;
-    char slash = 0;
-    std::istringstream in(s.shard);
-    in >> k >> slash >> n;
-    if (!in || slash != '/' || n < 1 || k < 1 || k > n || !(in >> std::ws).eof())
-      throw InputError({"--shard " + s.shard, 0, 0}, "--shard", s.shard, "is not a shard",
-                       "K/N with 1 <= K <= N, e.g. --shard 2/8");
-    req.options.shard_index = k;
-    req.options.shard_count = n;
-  }
+  std::tie(req.options.shard_index, req.options.shard_count) = parse_shard(s.shard);
   return req;
+}
+
+std::pair<int, int> parse_shard(const std::string& shard) {
+  if (shard.empty()) return {1, 1};
+  int k = 0, n = 0;
+  char slash = 0;
+  std::istringstream in(shard);
+  in >> k >> slash >> n;
+  if (!in || slash != '/' || n < 1 || k < 1 || k > n || !(in >> std::ws).eof())
+    throw InputError({"--shard " + shard, 0, 0}, "--shard", shard, "is not a shard",
+                     "K/N with 1 <= K <= N, e.g. --shard 2/8");
+  return {k, n};
 }
 
 void check_branch_settings(const BranchSettings& s) {
@@ -168,6 +171,7 @@ void check_branch_settings(const BranchSettings& s) {
     throw InputError({"--start-amplitude", 0, 0}, "--start-amplitude", fmt::format("{}", *s.start_amplitude),
                      "is not a positive amplitude", "a positive number, degrees for pitch/flap, m for plunge");
   check_member("--start", s.start, {"auto", "hopf", "march", "describing"});
+  parse_shard(s.shard);
 }
 
 BranchOptions branch_options(const Case& c, const BranchSettings& s) {

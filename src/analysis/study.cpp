@@ -107,12 +107,6 @@ std::string derived_case_text(const Case& c, const Derivation& d) {
   return out.str();
 }
 
-bool has_one_minus_cosine(const Case& c) {
-  for (const auto& p : c.model.gusts.profiles())
-    if (p.shape == GustShape::kOneMinusCosine) return true;
-  return false;
-}
-
 bool has_turbulence(const Case& c) {
   for (const auto& p : c.model.gusts.profiles())
     if (p.turbulence) return true;

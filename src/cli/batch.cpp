@@ -1,5 +1,6 @@
 // aerosect batch CASE... [--table FILE] -o PREFIX: the linear flutter and
-// divergence analysis of many cases (or of one case over a table of
+// divergence analysis (with its LCO prediction) and the design-gust sweep
+// of many cases (or of one case over a table of
 // parameter sets) in one call, with one summary row per case in PREFIX.csv
 // and PREFIX.json (analysis/batch.hpp). Interrupted, it writes the rows of
 // the cases completed so far.
@@ -50,8 +51,8 @@ int run(const BatchOptions& o) {
 Command add_batch_command(CLI::App& app) {
   auto o = std::make_shared<BatchOptions>();
   CLI::App* cmd = app.add_subcommand(
-      "batch", "linear flutter and divergence of many cases, or of one case over a table of parameter sets: "
-               "a summary row per case (CSV and JSON)");
+      "batch", "linear flutter and divergence, LCO prediction and design-gust peaks of many cases, or of one "
+               "case over a table of parameter sets: a summary row per case (CSV and JSON)");
   cmd->add_option("CASE", o->cases, "case files (TOML); one with --table")->required();
   cmd->add_option("--set", o->overrides, "override a case entry in every case (repeatable)")
       ->type_name("KEY=VALUE");

@@ -562,6 +562,29 @@ std::string read_text_attribute(const std::string& path, const std::string& name
   }
 }
 
+void copy_with_text_attribute(const std::string& source, const std::string& target, const std::string& name,
+                              const std::string& value) {
+  read_text_attribute(source, name);  // an aerosect file with that attribute (InputError otherwise)
+  hdf5_detail::require_not_directory(target);
+  const std::string part = target + ".part";
+  std::error_code ec;
+  std::filesystem::copy_file(source, part, std::filesystem::copy_options::overwrite_existing, ec);
+  if (ec) throw OutputError(target, fmt::format("cannot write '{}': {}", part, ec.message()));
+  H5::Exception::dontPrint();
+  try {
+    H5::H5File f(part, H5F_ACC_RDWR);
+    const H5::Group root = f.openGroup("/");
+    root.removeAttr(name);
+    hdf5_detail::write_text(root, name, value);
+    f.close();
+  } catch (const H5::Exception& e) {
+    std::filesystem::remove(part, ec);
+    throw OutputError(target, "cannot set attribute '" + name + "' in the copy (" + e.getDetailMsg() + ")");
+  }
+  const std::string failed = hdf5_detail::rename_into_place(part, target);
+  if (!failed.empty()) throw OutputError(target, failed);
+}
+
 std::vector<double> read_double_dataset(const std::string& path, const std::string& name,
                                         std::size_t expected) {
   H5::Exception::dontPrint();

@@ -27,6 +27,7 @@
 #include <optional>
 #include <string>
 #include <thread>
+#include <type_traits>
 #include <utility>
 #include <vector>
 
@@ -58,9 +59,14 @@ namespace {
 
 // Runs `work(cancel)` on a worker thread with the GIL released (above).
 // `work` returns a value; a signal's exception wins over the worker's result
-// or error (a Cancelled the flag caused, or a run cut short).
-template <class Work>
-auto run_interruptible(Work work) -> decltype(work(static_cast<const std::atomic<bool>*>(nullptr))) {
+// or error (a Cancelled the flag caused, or a run cut short). When the run
+// was interrupted and the worker still returned (the part it finished),
+// `on_interrupt(result)` is called with the GIL held before the exception is
+// raised: the caller keeps that part (the Python side attaches it to the
+// exception as `partial`).
+template <class Work, class OnInterrupt = std::nullptr_t>
+auto run_interruptible(Work work, OnInterrupt on_interrupt = nullptr)
+    -> decltype(work(static_cast<const std::atomic<bool>*>(nullptr))) {
   using Result = decltype(work(static_cast<const std::atomic<bool>*>(nullptr)));
   std::atomic<bool> cancel{false};
   bool interrupted = false;
@@ -88,7 +94,14 @@ auto run_interruptible(Work work) -> decltype(work(static_cast<const std::atomic
     }
     worker.join();
   }
-  if (interrupted) throw py::error_already_set();
+  if (interrupted) {
+    // Fetch the pending exception so the callback may run Python code.
+    py::error_already_set pending;
+    if constexpr (!std::is_same_v<OnInterrupt, std::nullptr_t>) {
+      if (result) on_interrupt(*result);
+    }
+    throw pending;
+  }
   if (failure) std::rethrow_exception(failure);
   return std::move(*result);
 }
@@ -106,8 +119,10 @@ struct ReleaseClaims {
 // --- Analyses: each writes `path` and returns the --json summary text -------
 
 // simulate: (summary, the file written, completed). An incomplete run keeps
-// NAME.incomplete.h5 (its path is returned).
-py::tuple simulate_case(const Case& c, const std::string& path) {
+// NAME.incomplete.h5 (its path is returned). Interrupted, the summary of the
+// part run goes to partial["summary"] (the file stays); a NumericalError
+// leaves NAME.incomplete.h5 too (the history up to the trouble).
+py::tuple simulate_case(const Case& c, const std::string& path, py::dict partial) {
   struct Outcome {
     SimulationSummary summary;
     std::string written;
@@ -120,6 +135,9 @@ py::tuple simulate_case(const Case& c, const std::string& path) {
     out.summary = simulate(c, model, writer, cancel);
     out.written = writer.final_path();
     return out;
+  }, [&](const Outcome& part) {
+    partial["summary"] = simulation_json(c, part.summary, part.written).dump();
+    partial["path"] = part.written;
   });
   return py::make_tuple(simulation_json(c, o.summary, o.written).dump(), o.written, o.summary.completed);
 }
@@ -149,14 +167,28 @@ std::string gust_case(const Case& c, const std::string& path, const std::string&
 }
 
 // The LCO map, as `aerosect sweep` runs it but without a journal (a Python
-// run is not resumed; an interrupted one keeps nothing).
-std::string sweep_case(const Case& c, const std::string& path, SweepSettings settings) {
+// run is not resumed). Interrupted, or when the overlay fails numerically,
+// the points finished so far are written as the map NAME.incomplete.h5
+// (cells not run hold the fill value; no overlay) and its summary goes to
+// partial["summary"] and partial["path"], as the command line's journal
+// keeps them.
+std::string sweep_case(const Case& c, const std::string& path, SweepSettings settings, py::dict partial) {
   settings.overrides = c.overrides;
   SweepRequest req = sweep_request(settings);
   req.case_text = c.text;
   req.case_path = c.path;
   check_swept_values(req);
-  const ReleaseClaims claims{{path}};
+  const std::string incomplete = Hdf5TimeHistoryWriter::incomplete_path(path);
+  const ReleaseClaims claims{{path, incomplete}};
+  std::string kept;  // the partial map's summary, when one was written
+  auto keep = [&](const std::vector<SweepPoint>& pts) {
+    write_sweep_file(incomplete, c, req, pts, nullptr);
+    nlohmann::json j = sweep_json(c, req, pts, incomplete);
+    j["points_resumed"] = 0;
+    j["completed"] = false;
+    kept = j.dump();
+    return kept;
+  };
   const std::string summary = run_interruptible([&](const std::atomic<bool>* cancel) {
     std::optional<FlutterReport> overlay;
     std::exception_ptr overlay_failure;
@@ -167,25 +199,45 @@ std::string sweep_case(const Case& c, const std::string& path, SweepSettings set
         overlay_failure = std::current_exception();
       }
     });
-    stop_if_cancelled(cancel);
-    if (overlay_failure) std::rethrow_exception(overlay_failure);
+    if (cancel_requested(cancel)) return keep(pts);
+    if (overlay_failure) {
+      try {
+        std::rethrow_exception(overlay_failure);
+      } catch (const NumericalError&) {
+        keep(pts);
+        throw;
+      }
+    }
     write_sweep_file(path, c, req, pts, overlay ? &*overlay : nullptr);
     nlohmann::json j = sweep_json(c, req, pts, path);
     j["points_resumed"] = 0;
     return j.dump();
+  }, [&](const std::string& finished) {
+    // The signal came after the last point: the whole map is the part.
+    partial["summary"] = kept.empty() ? finished : kept;
+    partial["path"] = kept.empty() ? path : incomplete;
   });
+  if (!kept.empty()) {  // a NumericalError after the map was kept
+    partial["summary"] = kept;
+    partial["path"] = incomplete;
+  }
   return summary;
 }
 
-std::string orbits_case(const Case& c, const std::string& path, const BranchSettings& settings) {
+// Interrupted, the orbits found so far are written (root attribute
+// complete = 0, as the command line writes them) and their summary goes to
+// partial["summary"].
+std::string orbits_case(const Case& c, const std::string& path, const BranchSettings& settings, py::dict partial) {
   check_branch_settings(settings);
   const BranchOptions bo = branch_options(c, settings);
   const ReleaseClaims claims{{path}};
   const std::string summary = run_interruptible([&](const std::atomic<bool>* cancel) {
     const Branch b = continue_branch(c, bo, cancel);
-    stop_if_cancelled(cancel);
-    write_branch_file(path, c, b);
+    write_branch_file(path, c, b, {}, orbits_request_json(c, settings).dump());
     return branch_json(c, b, path).dump();
+  }, [&](const std::string& part) {
+    partial["summary"] = part;
+    partial["path"] = path;
   });
   return summary;
 }
@@ -279,31 +331,33 @@ PYBIND11_MODULE(_core, m) {
   m.def("parse_case", &parse_case, py::arg("text"), py::arg("name"), py::arg("overrides"));
   m.def("check", [](const Case& c) { return check_json(c, check_case(c)).dump(); });
 
-  m.def("simulate", &simulate_case, py::arg("case"), py::arg("path"));
+  m.def("simulate", &simulate_case, py::arg("case"), py::arg("path"), py::arg("partial"));
   m.def("flutter", &flutter_case, py::arg("case"), py::arg("path"), py::arg("speeds"), py::arg("method"),
         py::arg("amplitude"));
   m.def("gust", &gust_case, py::arg("case"), py::arg("path"), py::arg("gradients"), py::arg("keep_initial"));
   m.def(
       "sweep",
       [](const Case& c, const std::string& path, const std::vector<std::string>& vary, const std::string& direction,
-         const std::string& restart, const std::optional<int>& jobs, bool traces, bool with_gusts) {
+         const std::string& restart, const std::optional<int>& jobs, bool traces, bool with_gusts, py::dict partial) {
         return sweep_case(c, path,
                           {.overrides = {}, .vary = vary, .direction = direction, .restart = restart, .jobs = jobs, .shard = "",
-                           .traces = traces, .with_gusts = with_gusts});
+                           .traces = traces, .with_gusts = with_gusts},
+                          std::move(partial));
       },
       py::arg("case"), py::arg("path"), py::arg("vary"), py::arg("direction"), py::arg("restart"), py::arg("jobs"),
-      py::arg("traces"), py::arg("with_gusts"));
+      py::arg("traces"), py::arg("with_gusts"), py::arg("partial"));
   m.def(
       "orbits",
       [](const Case& c, const std::string& path, const std::string& key, const std::optional<double>& from,
          const std::optional<double>& to, const std::string& start, const std::optional<double>& start_amplitude,
-         int points, const std::string& watch) {
+         int points, const std::string& watch, py::dict partial) {
         return orbits_case(c, path,
                            {.key = key, .from = from, .to = to, .start = start, .start_amplitude = start_amplitude,
-                            .points = points, .watch = watch});
+                            .points = points, .watch = watch, .shard = ""},
+                           std::move(partial));
       },
       py::arg("case"), py::arg("path"), py::arg("key"), py::arg("from_"), py::arg("to"), py::arg("start"),
-      py::arg("start_amplitude"), py::arg("points"), py::arg("watch"));
+      py::arg("start_amplitude"), py::arg("points"), py::arg("watch"), py::arg("partial"));
 
   // The study in three steps, as `aerosect study` takes them (src/cli/study.cpp).
   py::class_<StudyResult>(m, "StudyResult")

@@ -46,6 +46,17 @@ CUBIC = os.path.join(SOURCE, "tests", "regression", "cases", "lpw_cubic.toml")
 # reads them as its dimensions and hides them, so CF's rules do not apply.
 DIMENSION_SCALE_ATTRIBUTES = {"CLASS", "NAME", "REFERENCE_LIST", "DIMENSION_LIST",
                               "_Netcdf4Dimid", "_Netcdf4Coordinates"}
+# The attributes of the HDF5 Dimension Scale library itself, the only ones
+# aerosect does not write as variable-length UTF-8 strings:
+# H5DSset_scale writes CLASS = "DIMENSION_SCALE" and NAME (the dimension's
+# name) as fixed-length NULLTERM ASCII strings, which h5py reads as bytes;
+# H5DSattach_scale writes DIMENSION_LIST and REFERENCE_LIST (object
+# references, no text). CLASS and NAME cannot be variable-length: see
+# test_dimension_scale_class_and_name_must_stay_fixed_length for the
+# evidence (H5DSis_scale, netCDF-C, ncdump and h5netcdf stop recognising
+# the scale). Every other attribute of every file is aerosect's own.
+HDF5_OWNED_STRING_ATTRIBUTES = {"CLASS", "NAME"}
+HDF5_OWNED_REFERENCE_ATTRIBUTES = {"DIMENSION_LIST", "REFERENCE_LIST"}
 # Attributes CF defines on variables (CF 1.10 Appendix A) that are numbers.
 CF_NUMERIC_VARIABLE_ATTRIBUTES = {"_FillValue", "missing_value", "valid_min", "valid_max",
                                   "valid_range", "flag_values", "flag_masks"}
@@ -88,6 +99,10 @@ def files(tmp_path_factory):
     run("merge", p("shard_1.h5"), p("shard_2.h5"), "-o", p("merged.h5"))
     run("orbits", CUBIC, "-o", p("orbits.h5"), "--from", "5.5", "--to", "7.0", "--start", "hopf",
         "--start-amplitude", "0.2", "--points", "8")
+    # A shard of an orbits run that holds no branch (orbits traces one, in
+    # shard 1/N): a file without the point axis.
+    run("orbits", CUBIC, "-o", p("orbits_empty_shard.h5"), "--from", "5.5", "--to", "7.0", "--start", "hopf",
+        "--start-amplitude", "0.2", "--points", "8", "--shard", "2/2")
     run("study", DEMO, "-o", p("study"), "--no-plots", "--jobs", "2", "--sweep-points", "4")
     out = {name[:-3]: p(name) for name in os.listdir(d) if name.endswith(".h5")}
     study = [n for n in sorted(os.listdir(p("study"))) if n.endswith(".h5")]
@@ -99,7 +114,7 @@ def files(tmp_path_factory):
 
 
 KINDS = ["simulate", "simulate_steady", "flutter", "flutter_steady", "gust", "sweep", "sweep_2d", "shard_1", "merged", "orbits",
-         "study/response", "study/lco", "study/flutter", "study/sweep", "study/gust",
+         "orbits_empty_shard", "study/response", "study/lco", "study/flutter", "study/sweep", "study/gust",
          "study/branch", "study/lco_orbit"]
 
 
@@ -131,13 +146,84 @@ def test_string_attributes_read_as_str(files, kind):
     """CF 1.10 §2.2: text attributes are character arrays or atomic strings;
     aerosect writes atomic (variable-length UTF-8) strings, which h5py 3
     reads as str (fixed-length ones read as bytes: h5py docs, "Strings in
-    HDF5")."""
+    HDF5").
+    Every attribute is checked but the HDF5 dimension-scale library's own
+    (HDF5_OWNED_STRING_ATTRIBUTES on scales, whose form is checked to be
+    exactly what H5DSset_scale writes, and the reference lists)."""
     with h5py.File(files[kind]) as f:
         for path, obj in objects(f):
-            for k, v in own_attributes(obj).items():
+            for k in obj.attrs:
+                if k in HDF5_OWNED_REFERENCE_ATTRIBUTES:
+                    continue
+                v = obj.attrs[k]
+                if k in HDF5_OWNED_STRING_ATTRIBUTES and isinstance(obj, h5py.Dataset) \
+                        and h5py.h5ds.is_scale(obj.id):
+                    # H5DSset_scale's fixed-length string, nothing of ours.
+                    t = obj.attrs.get_id(k).get_type()
+                    assert isinstance(t, h5py.h5t.TypeStringID) and not t.is_variable_str(), f"{path}@{k}"
+                    assert k != "CLASS" or v == b"DIMENSION_SCALE", f"{path}@{k} = {v!r}"
+                    continue
                 assert not isinstance(v, (bytes, np.bytes_)), f"{path}@{k} reads as bytes: {v!r}"
                 if isinstance(v, np.ndarray):
                     assert v.dtype.kind in "iuf", f"{path}@{k} is an array of {v.dtype}"
+
+
+def test_dimension_scale_class_and_name_must_stay_fixed_length(files, tmp_path):
+    """The evidence behind HDF5_OWNED_STRING_ATTRIBUTES (issue #17: could
+    CLASS and NAME be variable-length UTF-8, so h5py reads them as str?).
+    A simulation file with the scales' CLASS rewritten as a variable-length
+    UTF-8 string (same text) stops being read as netCDF-4, each reader
+    failing as recorded here (Debian 12: HDF5 1.10.8, netCDF-C 4.9.0,
+    netCDF4-python 1.6.2, h5py 3.7, h5netcdf 1.1.0):
+      - H5DSis_scale (h5py.h5ds.is_scale) returns False: HDF5 1.10's
+        H5DSis_scale requires H5T_STR_NULLTERM and compares the bytes read
+        into a buffer of H5Tget_size (a pointer's size for a variable-length
+        string), so the text never matches;
+      - netCDF4.Dataset: AttributeError 'NoneType' object has no attribute
+        'dimensions' (netCDF-C finds no dimension for `time`), and xarray's
+        netcdf4 engine the same;
+      - ncdump -h exits 1: "NetCDF: Invalid dimension ID or name", the axis
+        shown as phony_dim_0;
+      - xarray's h5netcdf engine: ValueError "variable '/time' has no
+        dimension scale associated with axis 0".
+    NAME alone as variable-length UTF-8 passes H5DSis_scale, netCDF-C and
+    ncdump, but h5netcdf 1.1.0 fails: TypeError "'in <string>' requires
+    string as left operand, not bytes" (it tests b"This is a netCDF
+    dimension but not a netCDF variable" in attrs["NAME"]). So both stay as
+    H5DSset_scale writes them. Should a later library accept them, this
+    test fails and the exception can be lifted."""
+    src = files["simulate"]
+
+    def rewritten(names):
+        path = str(tmp_path / ("vlen_" + "_".join(names) + ".h5"))
+        shutil.copyfile(src, path)
+        with h5py.File(path, "r+") as f:
+            for name, obj in objects(f):
+                if isinstance(obj, h5py.Dataset) and h5py.h5ds.is_scale(obj.id):
+                    for a in names:
+                        text = obj.attrs[a].decode()
+                        del obj.attrs[a]
+                        obj.attrs.create(a, text, dtype=h5py.string_dtype("utf-8"))
+        return path
+
+    vclass = rewritten(["CLASS"])
+    with h5py.File(vclass) as f:
+        assert f["time"].attrs["CLASS"] == "DIMENSION_SCALE"  # now a str...
+        assert not h5py.h5ds.is_scale(f["time"].id)  # ...and no longer a scale
+    if netCDF4 is not None:
+        with pytest.raises(AttributeError):
+            netCDF4.Dataset(vclass).close()
+    r = subprocess.run(["ncdump", "-h", vclass], capture_output=True, text=True)
+    assert r.returncode != 0 and "Invalid dimension ID or name" in r.stderr, (r.returncode, r.stderr)
+    if xr is not None and "h5netcdf" in ENGINES:
+        with pytest.raises(ValueError, match="no dimension scale"):
+            xr.open_dataset(vclass, engine="h5netcdf").close()
+        vname = rewritten(["NAME"])
+        with pytest.raises(TypeError, match="requires string as left operand"):
+            xr.open_dataset(vname, engine="h5netcdf").close()
+    # The file as written: every reader sees the axis.
+    with h5py.File(src) as f:
+        assert h5py.h5ds.is_scale(f["time"].id)
 
 
 @pytest.mark.parametrize("kind", KINDS)
@@ -364,6 +450,11 @@ def _set_fixed_length_title(f):
     f.attrs["title"] = np.bytes_(b"fixed-length text")  # h5py writes bytes_ fixed-length
 
 
+def _fixed_length_class_on_a_variable(f):
+    # Only a dimension scale's CLASS is HDF5's; on a variable it is ours.
+    f["pitch"].attrs["CLASS"] = np.bytes_(b"not a scale")
+
+
 def _time_coordinate_without_epoch(f):
     f["time"].attrs["standard_name"] = "time"
 
@@ -413,6 +504,7 @@ def _flags_of_another_type(f):
 
 @pytest.mark.parametrize("kind, change, rule", [
     ("simulate", _set_fixed_length_title, test_string_attributes_read_as_str),
+    ("simulate", _fixed_length_class_on_a_variable, test_string_attributes_read_as_str),
     ("simulate", _time_coordinate_without_epoch, test_time_axis_is_elapsed_time),
     ("sweep", _float_class, test_flags),
     ("sweep", _flags_of_another_type, test_flags),

@@ -449,3 +449,50 @@ TEST_CASE("Dual-input describing function of a trimmed section against its conve
     CHECK(compared >= 5);
   }
 }
+
+TEST_CASE("The predicted LCOs at one airspeed: linear interpolation on each branch crossing it", "[df]") {
+  // A hand-made curve (common practice, no source: linear interpolation
+  // between the two samples bracketing the speed; the expected values are
+  // worked by hand). Branch 0 folds: its speed rises 10 -> 30 then falls to
+  // 20, so 25 m/s is crossed twice; branch 1 runs 40 -> 50.
+  LcoPrediction p;
+  p.available = true;
+  p.spring = kPitch;
+  auto pt = [](double a, double u, double w, bool s, int b) {
+    LcoPredictionPoint q;
+    q.amplitude = a, q.speed = u, q.frequency = w, q.stable = s, q.branch = b;
+    return q;
+  };
+  p.points = {pt(0.01, 10, 60, true, 0), pt(0.02, 30, 62, true, 0), pt(0.04, 20, 64, false, 0),
+              pt(0.05, 40, 70, true, 1), pt(0.07, 50, 72, true, 1)};
+  p.branches = {{0, 3, BranchEnd::kGapEdge, BranchEnd::kBranchEnds, false},
+                {3, 2, BranchEnd::kGapEdge, BranchEnd::kAmplitudeLimit, false}};
+  const auto at25 = lco_at_speed(p, 25.0);
+  REQUIRE(at25.size() == 2);
+  CHECK(at25[0].amplitude == Approx(0.0175).epsilon(1e-14));  // 0.01 + 0.75 * 0.01
+  CHECK(at25[0].frequency == Approx(61.5).epsilon(1e-14));
+  CHECK(at25[0].stable);
+  CHECK(at25[1].amplitude == Approx(0.03).epsilon(1e-14));  // half way from 30 down to 20
+  CHECK(at25[1].frequency == Approx(63.0).epsilon(1e-14));
+  CHECK_FALSE(at25[1].stable);  // across the stability change (the fold)
+  const auto at45 = lco_at_speed(p, 45.0);
+  REQUIRE(at45.size() == 1);
+  CHECK(at45[0].branch == 1);
+  CHECK(at45[0].amplitude == Approx(0.06).epsilon(1e-14));
+  // A sample exactly at the speed counts once (the fold's tip at 30 m/s).
+  const auto at30 = lco_at_speed(p, 30.0);
+  REQUIRE(at30.size() == 1);
+  CHECK(at30[0].amplitude == 0.02);
+  CHECK(lco_at_speed(p, 35.0).empty());  // between the branches
+  CHECK(lco_at_speed(p, 5.0).empty());
+  // A closed loop joins its last point to its first: 60 -> 70 -> 65 -> 60.
+  LcoPrediction loop;
+  loop.available = true;
+  loop.points = {pt(0.01, 60, 50, true, 0), pt(0.02, 70, 52, true, 0), pt(0.03, 65, 54, true, 0)};
+  loop.branches = {{0, 3, BranchEnd::kBranchEnds, BranchEnd::kBranchEnds, true}};
+  const auto at62 = lco_at_speed(loop, 62.0);
+  REQUIRE(at62.size() == 2);  // on the way up and on the closing segment 65 -> 60
+  CHECK(at62[0].amplitude == Approx(0.012).epsilon(1e-14));
+  CHECK(at62[1].amplitude == Approx(0.018).epsilon(1e-14));  // 0.03 + 0.6 * (0.01 - 0.03)
+  REQUIRE(lco_at_speed(loop, 60.0).size() == 1);  // the loop's first point, once
+}

@@ -1,6 +1,6 @@
 #pragma once
 // Batch over cases: many case files, or one case and a table of parameter
-// sets, through the linear flutter and divergence analysis in one call,
+// sets, through the linear flutter and divergence analysis (and the design-gust sweep) in one call,
 // with one summary row of key results per case (CSV and JSON).
 //
 // A parameter table is a CSV file: a header line of case keys (the keys
@@ -18,7 +18,13 @@
 // its JSON fields, so the numbers are those of the flutter command): for each
 // method of the nominal linearisation the flutter speed (true airspeed and
 // EAS, m s-1, and U* = U / (b w_a)), frequency (Hz) and the divergence speed;
-// the clearance margin when the case gives a dive speed.
+// the clearance margin when the case gives a dive speed; the LCO columns
+// from the same JSON (the freeplay band, the LCO onset EAS, the
+// describing-function curve's stable speeds and its largest stable cycle at
+// the case's airspeed); and, for a case with a one-minus-cosine gust, the
+// critical peaks of the gust command's gradient sweep (default gradients,
+// from rest; gust_sweep_json). Every column is in every row, null where it
+// does not apply, and lco_note / gust_note say why.
 
 #include <atomic>
 #include <string>

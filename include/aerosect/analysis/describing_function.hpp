@@ -142,4 +142,19 @@ LcoPrediction describing_function_lco(const Case& c, const std::vector<double>& 
 // as (lowest speed, highest speed), m/s, in the order along the branch.
 std::vector<std::pair<double, double>> stable_speed_ranges(const LcoPrediction& p, const LcoBranch& b);
 
+// The predicted limit cycles at one airspeed (e.g. the case's): wherever two
+// consecutive points of a branch bracket `speed` (m/s TAS, ends included),
+// amplitude and frequency interpolated linearly in speed between them;
+// stable when both points are (a segment across a stability change, a fold
+// of the curve, is `stable` false). In the order of the branches and along
+// each. The curve is sampled (describing_function_lco's amplitude steps), so
+// the interpolation carries the sampling error of the curve.
+struct LcoAtSpeed {
+  double amplitude = 0;  // m or rad, of the nonlinear DOF
+  double frequency = 0;  // rad/s
+  bool stable = false;
+  int branch = 0;
+};
+std::vector<LcoAtSpeed> lco_at_speed(const LcoPrediction& p, double speed);
+
 }  // namespace aerosect

@@ -52,6 +52,9 @@ struct GustSweep {
   std::vector<History> histories;
 };
 
+// Whether the case has a one-minus-cosine gust (what the sweep sizes over H).
+bool has_one_minus_cosine(const Case& c);
+
 // 12 gradients spanning 30..350 ft (9.144..106.68 m), the CS-25.341 range.
 std::vector<double> default_gradients();
 

@@ -13,6 +13,7 @@
 
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "aerosect/analysis/continuation.hpp"
@@ -58,6 +59,10 @@ FlutterOptions flutter_options(const std::string& speeds, const std::string& met
 // gust: gradients "FROM:TO:N" in m ("" = default_gradients()).
 std::vector<double> gust_gradients(const std::string& text);
 
+// --shard "K/N" (sweep, orbits) -> (K, N); "" -> (1, 1). Throws InputError
+// (key --shard) unless 1 <= K <= N.
+std::pair<int, int> parse_shard(const std::string& shard);
+
 // sweep: one --vary "KEY=FROM:TO:N".
 SweepAxis sweep_axis(const std::string& text);
 struct SweepSettings {
@@ -83,6 +88,7 @@ struct BranchSettings {
   std::optional<double> start_amplitude;  // degrees for pitch/flap, m for plunge
   int points = 200;
   std::string watch;                    // plunge, pitch, flap or "" (automatic)
+  std::string shard;                    // "K/N", "" for the whole run (branch_report.hpp)
 };
 void check_branch_settings(const BranchSettings& s);
 BranchOptions branch_options(const Case& c, const BranchSettings& s);

@@ -99,6 +99,14 @@ class Hdf5Document : public TableSink {
 // files). Throws InputError naming the file when it or the attribute is
 // missing.
 std::string read_text_attribute(const std::string& path, const std::string& name);
+// Copies the aerosect file `source` to `target` (under target.part, renamed
+// when complete, as a document is written) with its root text attribute
+// `name` set to `value` (a variable-length UTF-8 string, as text_attribute
+// writes it); every other object and attribute is copied as stored. Throws
+// InputError for an unreadable source or one without that attribute,
+// OutputError when the target cannot be written.
+void copy_with_text_attribute(const std::string& source, const std::string& target, const std::string& name,
+                              const std::string& value);
 // A double dataset, flattened row-major; InputError when missing, or when it
 // holds other than `expected` values (checked before anything is read: a
 // file never decides how much is allocated). An integer dataset reads as

@@ -59,10 +59,7 @@ Command add_batch_command(CLI::App& app) {
   cmd->add_option("--table", o->table,
                   "CSV of parameter sets: a header of case keys (and an optional name column), one line per set");
   cmd->add_option("-o,--output", o->output, "PREFIX: writes PREFIX.csv and PREFIX.json")->required();
-  cmd->add_option("--speeds", o->speeds, "airspeeds FROM:TO:N in m s-1 (true airspeed)");
-  cmd->add_option("--method", o->method, "state-space, pk or both")
-      ->check(CLI::IsMember({"state-space", "pk", "both"}))
-      ->capture_default_str();
+  add_flutter_speed_options(cmd, o->speeds, o->method);
   cmd->add_flag("--json", o->json, "print the JSON summary on stdout");
   return {cmd, [o] { return run(*o); }};
 }

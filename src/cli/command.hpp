@@ -65,6 +65,8 @@ struct CaseOptions {
   bool json = false;
 };
 void add_case_options(CLI::App* cmd, CaseOptions& o);
+// --speeds FROM:TO:N and --method state-space|pk|both (flutter, batch).
+void add_flutter_speed_options(CLI::App* cmd, std::string& speeds, std::string& method);
 
 // --- Checks of option values (before any work; InputError, exit 2) ----------
 // The longest path component of an output name, and the longest name: the

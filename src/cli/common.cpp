@@ -55,6 +55,13 @@ void add_case_options(CLI::App* cmd, CaseOptions& c) {
   cmd->add_flag("--json", c.json, "print a machine-readable summary on stdout");
 }
 
+void add_flutter_speed_options(CLI::App* cmd, std::string& speeds, std::string& method) {
+  cmd->add_option("--speeds", speeds, "airspeeds FROM:TO:N in m s-1 (true airspeed)");
+  cmd->add_option("--method", method, "state-space, pk or both")
+      ->check(CLI::IsMember({"state-space", "pk", "both"}))
+      ->capture_default_str();
+}
+
 void check_output_name(const std::string& option, const std::string& path) {
   const std::string allowed = fmt::format(
       "a file name, at most {} bytes per folder or file name and {} bytes in all", kMaxOutputComponent,

@@ -43,10 +43,7 @@ Command add_flutter_command(CLI::App& app) {
       "flutter", "linear flutter and divergence: state-space eigenvalues and p-k (exact Theodorsen)");
   add_case_options(cmd, *o);
   o->output_option = cmd->add_option("-o,--output", o->output, "HDF5 file for the V-g / V-f tables");
-  cmd->add_option("--speeds", o->speeds, "airspeeds FROM:TO:N in m s-1 (true airspeed)");
-  cmd->add_option("--method", o->method, "state-space, pk or both")
-      ->check(CLI::IsMember({"state-space", "pk", "both"}))
-      ->capture_default_str();
+  add_flutter_speed_options(cmd, o->speeds, o->method);
   cmd->add_option("--amplitude", o->amplitude,
                   "also linearise nonlinear springs by their describing function at this "
                   "amplitude (degrees for pitch/flap springs, m for plunge)");

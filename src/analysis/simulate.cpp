@@ -447,19 +447,23 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
             b.bracket.open = false;
           }
   };
+  // A value v of a channel at t widens its extremes.
+  auto widen = [](Extreme& e, double v, double t) {
+    if (v > e.max) {
+      e.max = v;
+      e.time_of_max = t;
+    }
+    if (v < e.min) {
+      e.min = v;
+      e.time_of_min = t;
+    }
+  };
   auto observer = [&](double t, const std::vector<double>& x) {
     fill_row(t, x, run.regions, run.input_segment);
     for (std::size_t i = 0; i < tracked.size(); ++i) {
       Extreme& e = summary.extremes[tracked[i].extreme];
       const double v = row[tracked[i].column];
-      if (v > e.max) {
-        e.max = v;
-        e.time_of_max = t;
-      }
-      if (v < e.min) {
-        e.min = v;
-        e.time_of_min = t;
-      }
+      widen(e, v, t);
       e.rms += v * v;  // sum of squares until the end of the run
     }
     note(sample_best, t, x);
@@ -491,16 +495,7 @@ SimulationSummary simulate(const Case& c, const AeroelasticModel& model, TimeHis
   auto peak_observer = [&](int dof, double t, const std::vector<double>& x) {
     const int k = displacement_extreme[static_cast<std::size_t>(dof)];
     if (k < 0) return ObserverAction::kContinue;
-    Extreme& e = summary.extremes[static_cast<std::size_t>(k)];
-    const double v = x[static_cast<std::size_t>(L.displacement + dof)];
-    if (v > e.max) {
-      e.max = v;
-      e.time_of_max = t;
-    }
-    if (v < e.min) {
-      e.min = v;
-      e.time_of_min = t;
-    }
+    widen(summary.extremes[static_cast<std::size_t>(k)], x[static_cast<std::size_t>(L.displacement + dof)], t);
     return ObserverAction::kContinue;
   };
 

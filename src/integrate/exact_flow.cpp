@@ -131,17 +131,19 @@ StateVec exact_weights(const AeroelasticModel& model) {
 }
 
 struct CacheAccess {
-  static std::shared_ptr<void>& regions_of(ExactFlowCache& cache, const AeroelasticModel& model) {
+  // The cache's contents, bound to `model` at its first use.
+  static ExactFlowCache::Impl& of(ExactFlowCache& cache, const AeroelasticModel& model) {
     ExactFlowCache::Impl& c = *cache.impl_;
     if (!c.model) c.model = &model;
     AEROSECT_CHECK(c.model == &model);
-    return c.regions;
+    return c;
+  }
+  static std::shared_ptr<void>& regions_of(ExactFlowCache& cache, const AeroelasticModel& model) {
+    return of(cache, model).regions;
   }
   // The cache's state scaling (exact_weights), computed once.
   static StateVec weights_of(ExactFlowCache& cache, const AeroelasticModel& model) {
-    ExactFlowCache::Impl& c = *cache.impl_;
-    if (!c.model) c.model = &model;
-    AEROSECT_CHECK(c.model == &model);
+    ExactFlowCache::Impl& c = of(cache, model);
     if (c.weights.empty()) {
       const StateVec w = exact_weights(model);
       c.weights.assign(w.data(), w.data() + w.size());

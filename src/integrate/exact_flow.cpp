@@ -164,11 +164,19 @@ static constexpr int kCap = N == Eigen::Dynamic ? kMaxAugmented : N;
 using Vec = Eigen::Matrix<double, N, 1, 0, kCap, 1>;
 using Mat = Eigen::Matrix<double, N, N, 0, kCap, kCap>;
 
+// Taylor terms of a step's polynomial (StepPolynomial, Region::T).
+static constexpr int kTerms = 16;
+
 // One spring configuration: the scaled augmented matrix and its step.
 struct Region {
   Mat M;      // (n+1) square: [[W A W^-1, W c], [0, 0]]
   double h;   // step, s: ||h M||_inf <= 1/2 (infinite when M = 0)
   Mat E;      // exp(h M) (when h is finite)
+  // T[k] = (M^k / k!)^T, k < kTerms: column i of T[k] dotted with a
+  // step's start z is component i of the Taylor coefficient q_k, so one
+  // witness's polynomial costs kTerms dot products instead of the whole
+  // StepPolynomial's kTerms matrix-vector products.
+  std::array<Mat, kTerms> T;
   double sample_dt = 0;  // exp(sample_dt M), once asked for (samples closer than h)
   Mat Es;
 };
@@ -201,11 +209,11 @@ static Mat expm(const Mat& M, double tau) {
 
 // The Taylor polynomial of the flow from one state z over one step:
 // z(tau) = sum_k q_k tau^k, q_k = M^k z / k!, k = 0..kTerms-1. With
-// tau <= h and ||h M|| <= 1/2 the terms left out are below 0.5^18 / 18! of
-// ||z|| (6e-22): exact to round-off. Built once per step that needs states
-// inside it (events, peaks); every evaluation is then a Horner sum instead
-// of a new series of matrix products.
-static constexpr int kTerms = 18;
+// tau <= h and ||h M|| <= 1/2 the terms left out are below
+// 0.5^16 / 16! e^(1/2) of ||z|| (1.2e-18, under a hundredth of the
+// rounding unit): exact to round-off. Built once per step that needs
+// states inside it (events, peaks); every evaluation is then a Horner sum
+// instead of a new series of matrix products. (kTerms: above Region.)
 struct StepPolynomial {
   std::array<Vec, kTerms> q;
   void build(const Mat& M, const Vec& z) {
@@ -233,6 +241,10 @@ struct Witness {
   double b = 0;
   double value(const Vec& z) const { return coef * z(index) + b; }
   Vec aM;              // coef M(index, :): the row of g' = aM . z
+  // The present step's polynomial of g - b: c[k] = coef q_k(index), valid
+  // when step == the run's step count (ExactRun::coefficients).
+  mutable std::array<double, kTerms> c{};
+  mutable long step = -1;
 };
 
 using RegionMap = std::map<std::vector<int>, Region>;
@@ -296,6 +308,7 @@ class ExactRun {
       }
       if (E) zb.noalias() = E->lazyProduct(z); else zb = expv(R->M, z, h);
       poly_valid_ = false;  // the step's polynomial (from z) is built when first needed
+      ++step_;              // and so are the witnesses' polynomials
       // The first switch inside (0, h].
       double te = std::numeric_limits<double>::infinity();
       const Witness* event = nullptr;
@@ -411,6 +424,11 @@ class ExactRun {
     const double norm = r.M.cwiseAbs().rowwise().sum().maxCoeff();
     r.h = norm > 0 ? 0.5 / norm : std::numeric_limits<double>::infinity();
     if (std::isfinite(r.h)) r.E = expm(r.M, r.h);
+    r.T[0] = Mat::Identity(N_, N_);
+    for (int k = 1; k < kTerms; ++k) {
+      r.T[static_cast<std::size_t>(k)].noalias() = r.T[static_cast<std::size_t>(k - 1)].lazyProduct(r.M.transpose());
+      r.T[static_cast<std::size_t>(k)] /= k;
+    }
     return cache_.emplace(key_, std::move(r)).first->second;
   }
 
@@ -463,16 +481,28 @@ class ExactRun {
   }
   Vec state_at(const Region& R, const Vec& z, double tau) const { return poly(R, z).state(tau); }
 
+  // The witness's polynomial over the present step from its start z: its
+  // own row of each Taylor coefficient (Region::T), or the step's
+  // StepPolynomial when that is built already.
+  const std::array<double, kTerms>& coefficients(const Region& R, const Witness& w, const Vec& z) const {
+    if (w.step != step_) {
+      for (std::size_t k = 0; k < kTerms; ++k)
+        w.c[k] = w.coef * (poly_valid_ ? poly_.q[k](w.index) : R.T[k].col(w.index).dot(z));
+      w.step = step_;
+    }
+    return w.c;
+  }
+
   // The witness g = coef z(tau)(index) + b and its first two derivatives: the
   // polynomial sum_k coef q_k(index) tau^k and its derivatives, by Horner.
   struct Value {
     double g, dg, d2g;
   };
   Value at(const Region& R, const Witness& w, const Vec& z, double tau) const {
-    const StepPolynomial& P = poly(R, z);
+    const std::array<double, kTerms>& cw = coefficients(R, w, z);
     double g = 0, dg = 0, d2g = 0;
     for (int k = kTerms - 1; k >= 0; --k) {
-      const double c = w.coef * P.q[static_cast<std::size_t>(k)](w.index);
+      const double c = cw[static_cast<std::size_t>(k)];
       d2g = d2g * tau + dg * 2;  // running derivatives of the Horner sum
       dg = dg * tau + g;
       g = g * tau + c;
@@ -508,6 +538,26 @@ class ExactRun {
     return root([&](double t) { const Value v = at(R, w, z, t); return std::pair{v.dg, v.d2g}; }, lo, hi, dlo, dhi);
   }
 
+  // True when the witness g has no zero in [0, span] (ga, gb its values and
+  // da, db its slopes at the ends), decided without its polynomial: the
+  // cubic Hermite interpolant H of those four numbers lies inside the hull
+  // of its Bernstein control points (ga, ga + span da / 3, gb - span db / 3,
+  // gb), and |g - H| <= span^4 max|g''''| / 384 (the Hermite remainder,
+  // Burden & Faires, Numerical Analysis, ch. 3), where g'''' =
+  // coef (M^4 z(tau))_index, so |g''''| <= |coef| ||M||^4 e^(span ||M||) ||z||
+  // in the infinity norm (||M|| = 1 / (2 h)). A round-off allowance of
+  // 1e-14 of g's terms is added. About half the steps where g' changes
+  // sign (a velocity at its largest, a spring DOF turning well inside its
+  // region) are decided here.
+  bool zero_free(const Region& R, const Witness& w, const Vec& z, double span, double ga, double gb, double da,
+                 double db) const {
+    const double hm = std::isfinite(R.h) ? span * 0.5 / R.h : 0.0;  // span ||M||
+    const double zn = std::abs(w.coef) * z.template lpNorm<Eigen::Infinity>();
+    const double bound = zn * (hm * hm * hm * hm * std::exp(hm) / 384 + 1e-14) + 1e-14 * std::abs(w.b);
+    const double p1 = ga + span * da / 3, p2 = gb - span * db / 3;
+    return std::min({ga, p1, p2, gb}) > bound || std::max({ga, p1, p2, gb}) < -bound;
+  }
+
   // The first time in (0, h] where the spring witness reaches zero from
   // below (infinite when it does not): a sign change over the step, or an
   // interior maximum of g at or above zero. (||h M|| <= 1/2: g' changes
@@ -528,6 +578,7 @@ class ExactRun {
     }
     if (gb >= 0) return zero_of_g(R, w, z, 0.0, h, ga, gb);
     // The maximum inside (da > 0 > db): past zero, the first crossing is before it.
+    if (zero_free(R, w, z, h, ga, gb, da, db)) return kNone;
     const double tm = zero_of_dg(R, w, z, 0.0, h, da, db);
     const double gm = at(R, w, z, tm).g;
     return gm >= 0 ? zero_of_g(R, w, z, 0.0, tm, ga, gm) : kNone;
@@ -545,6 +596,7 @@ class ExactRun {
       }
       const double da = w.aM.dot(z), db = w.aM.dot(zb);
       if (!(da * db < 0)) continue;  // monotone, same sign: none
+      if (zero_free(R, w, z, span, va, vb, da, db)) continue;
       // An extremum of the velocity inside: two zeros when it crosses.
       const double tm = zero_of_dg(R, w, z, 0.0, span, da, db);
       const double vm = at(R, w, z, tm).g;
@@ -607,6 +659,7 @@ class ExactRun {
   std::vector<std::pair<double, int>> found_;  // a step's peaks (time, DOF)
   mutable StepPolynomial poly_;  // the present step's Taylor polynomial, when poly_valid_
   mutable bool poly_valid_ = false;
+  long step_ = 0;  // steps begun (Witness::step)
 };
 };  // struct Kernels
 

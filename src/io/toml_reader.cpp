@@ -44,8 +44,8 @@ Schema::Schema(std::vector<std::string> keys, std::vector<std::string> array_tab
 
 // Tables that may appear (prefixes of known keys).
 bool Schema::is_known_table(const std::string& path) const {
-  return std::any_of(keys_.begin(), keys_.end(),
-                     [&](const std::string& k) { return k.rfind(path + ".", 0) == 0; });
+  const std::string prefix = path + ".";
+  return std::any_of(keys_.begin(), keys_.end(), [&](const std::string& k) { return k.starts_with(prefix); });
 }
 bool Schema::is_known_key(const std::string& path) const {
   return std::find(keys_.begin(), keys_.end(), path) != keys_.end();

@@ -194,19 +194,6 @@ static Vec expv(const Mat& M, const Vec& v, double tau) {
   return sum;
 }
 
-// (Products by lazyProduct: at these sizes, 9 to 32, Eigen's blocked
-// matrix product costs more in packing and set-up than the arithmetic.)
-static Mat expm(const Mat& M, double tau) {
-  Mat sum = Mat::Identity(M.rows(), M.cols()), term = sum, next;
-  for (int k = 1; k < 40; ++k) {
-    next.noalias() = M.lazyProduct(term);
-    term = (tau / k) * next;
-    sum += term;
-    if (term.template lpNorm<Eigen::Infinity>() <= 1e-18 * sum.template lpNorm<Eigen::Infinity>()) break;
-  }
-  return sum;
-}
-
 // The Taylor polynomial of the flow from one state z over one step:
 // z(tau) = sum_k q_k tau^k, q_k = M^k z / k!, k = 0..kTerms-1. With
 // tau <= h and ||h M|| <= 1/2 the terms left out are below
@@ -326,7 +313,7 @@ class ExactRun {
       // Advance.
       if (event) {
         if (run_.track_monodromy) {
-          phi_next.noalias() = expm(R->M, te).topLeftCorner(n_, n_).lazyProduct(phi);
+          phi_next.noalias() = flow_matrix(*R, te).topLeftCorner(n_, n_).lazyProduct(phi);
           phi.swap(phi_next);
         }
         z = state_at(*R, z, te);
@@ -343,7 +330,7 @@ class ExactRun {
       } else {
         if (run_.track_monodromy) {
           if (E) phi_next.noalias() = E->topLeftCorner(n_, n_).lazyProduct(phi);
-          else phi_next.noalias() = expm(R->M, h).topLeftCorner(n_, n_).lazyProduct(phi);
+          else phi_next.noalias() = flow_matrix(*R, h).topLeftCorner(n_, n_).lazyProduct(phi);
           phi.swap(phi_next);
         }
         z.swap(zb);
@@ -375,7 +362,7 @@ class ExactRun {
   // exp(dt M) of the region (dt: the sample interval, at most its step).
   const Mat& sample_propagator(Region& r, double dt) {
     if (r.sample_dt != dt) {
-      r.Es = expm(r.M, dt);
+      r.Es = flow_matrix(r, dt);
       r.sample_dt = dt;
     }
     return r.Es;
@@ -423,13 +410,24 @@ class ExactRun {
       }
     const double norm = r.M.cwiseAbs().rowwise().sum().maxCoeff();
     r.h = norm > 0 ? 0.5 / norm : std::numeric_limits<double>::infinity();
-    if (std::isfinite(r.h)) r.E = expm(r.M, r.h);
     r.T[0] = Mat::Identity(N_, N_);
     for (int k = 1; k < kTerms; ++k) {
+      // (lazyProduct: at these sizes, 5 to 32, Eigen's blocked matrix
+      // product costs more in packing and set-up than the arithmetic.)
       r.T[static_cast<std::size_t>(k)].noalias() = r.T[static_cast<std::size_t>(k - 1)].lazyProduct(r.M.transpose());
       r.T[static_cast<std::size_t>(k)] /= k;
     }
+    if (std::isfinite(r.h)) r.E = flow_matrix(r, r.h);
     return cache_.emplace(key_, std::move(r)).first->second;
+  }
+
+  // exp(tau M) for 0 <= tau <= h: the region's Taylor terms summed by
+  // Horner, sum_k tau^k M^k / k! (the truncation of StepPolynomial, under
+  // round-off), kTerms matrix additions instead of as many products.
+  static Mat flow_matrix(const Region& R, double tau) {
+    Mat S = R.T[kTerms - 1];
+    for (int k = kTerms - 2; k >= 0; --k) S = tau * S + R.T[static_cast<std::size_t>(k)];
+    return S.transpose();
   }
 
   static void rows(const Region& R, Witness& w) {

@@ -377,9 +377,9 @@ std::vector<double> poly_from_roots(const Eigen::VectorXcd& r) {
 // -c[n-1] (then the caller uses the QR eigenvalues).
 bool polish_roots(const std::vector<double>& c, const cd* start, cd* out) {
   const int n = static_cast<int>(c.size()) - 1;
-  double rho = 0;
-  for (int i = 0; i < n; ++i) rho = std::max(rho, std::abs(start[i]));
-  const double floor = 1e-10 * std::max(rho, 1e-300);
+  double rho2 = 0;  // squared magnitudes throughout
+  for (int i = 0; i < n; ++i) rho2 = std::max(rho2, std::norm(start[i]));
+  const double floor2 = 1e-20 * std::max(rho2, 1e-300);
   int m = 0;
   for (int i = 0; i < n; ++i) {
     const double re0 = start[i].real(), im0 = start[i].imag();
@@ -396,8 +396,8 @@ bool polish_roots(const std::vector<double>& c, const cd* start, cd* out) {
         if (dp == 0 || !std::isfinite(p)) return false;
         const double step = p / dp;
         x -= step;
-        const double a = std::abs(step), sc = std::max(std::abs(x), floor);
-        done = a <= 4e-15 * sc || (a <= 1e-10 * sc && a > 0.25 * prev);
+        const double a = step * step, sc = std::max(x * x, floor2);
+        done = a <= 1.6e-29 * sc || (a <= 1e-20 * sc && a > 0.0625 * prev);
         prev = a;
       }
       if (!done || m >= n) return false;
@@ -420,8 +420,8 @@ bool polish_roots(const std::vector<double>& c, const cd* start, cd* out) {
         const double sr = (pr * dr + pi * di) / dd, si = (pi * dr - pr * di) / dd;
         xr -= sr;
         xi -= si;
-        const double a = std::hypot(sr, si), sc = std::max(std::hypot(xr, xi), floor);
-        done = a <= 4e-15 * sc || (a <= 1e-10 * sc && a > 0.25 * prev);
+        const double a = sr * sr + si * si, sc = std::max(xr * xr + xi * xi, floor2);
+        done = a <= 1.6e-29 * sc || (a <= 1e-20 * sc && a > 0.0625 * prev);
         prev = a;
       }
       if (!done || m + 1 >= n) return false;
@@ -433,13 +433,59 @@ bool polish_roots(const std::vector<double>& c, const cd* start, cd* out) {
   double sum = 0, mag = std::abs(c[static_cast<std::size_t>(n - 1)]);
   for (int i = 0; i < n; ++i) {
     sum += out[i].real();
-    mag += std::abs(out[i]);
-    for (int k = 0; k < i; ++k) {
-      const double sep = 1e-7 * std::max({std::abs(out[i]), std::abs(out[k]), floor});
-      if (std::norm(out[i] - out[k]) <= sep * sep) return false;
-    }
+    mag += std::abs(out[i].real()) + std::abs(out[i].imag());
+    const double ni = std::norm(out[i]);
+    for (int k = 0; k < i; ++k)
+      if (std::norm(out[i] - out[k]) <= 1e-14 * std::max({ni, std::norm(out[k]), floor2})) return false;
   }
   return std::abs(sum + c[static_cast<std::size_t>(n - 1)]) <= 1e-10 * mag;
+}
+
+// The same from any starting values: the Aberth-Ehrlich iteration on all n
+// roots at once (complex, from the starts turned slightly off the real
+// axis), its roots then sorted into real ones and pairs and polished by
+// polish_roots (which validates them).
+bool aberth_roots(const std::vector<double>& c, const cd* start, cd* out) {
+  const int n = static_cast<int>(c.size()) - 1;
+  std::vector<cd> z(static_cast<std::size_t>(n));
+  double rho = 0;
+  for (int i = 0; i < n; ++i) rho = std::max(rho, std::abs(start[i]));
+  if (!(rho > 0) || !std::isfinite(rho)) return false;
+  const cd turn = std::polar(1.0, 0.1);
+  for (int i = 0; i < n; ++i) z[static_cast<std::size_t>(i)] = start[i] * turn + cd(0, 1e-3 * rho * (i + 1) / n);
+  bool done = false;
+  for (int it = 0; it < 60 && !done; ++it) {
+    done = true;
+    for (int i = 0; i < n; ++i) {
+      cd& x = z[static_cast<std::size_t>(i)];
+      cd p = 1, dp = 0;
+      for (int k = n - 1; k >= 0; --k) {
+        dp = dp * x + p;
+        p = p * x + c[static_cast<std::size_t>(k)];
+      }
+      if (dp == 0.0) return false;
+      const cd ratio = p / dp;
+      cd sum = 0;
+      for (int k = 0; k < n; ++k)
+        if (k != i) sum += 1.0 / (x - z[static_cast<std::size_t>(k)]);
+      const cd w = ratio / (1.0 - ratio * sum);
+      if (!std::isfinite(std::abs(w))) return false;
+      x -= w;
+      done = done && std::abs(w) <= 1e-10 * std::max(std::abs(x), 1e-10 * rho);
+    }
+  }
+  if (!done) return false;
+  std::vector<cd> s;
+  for (const cd x : z) {
+    const double tol = 1e-7 * std::abs(x);
+    if (x.imag() > tol) {
+      s.push_back(x);
+      s.push_back(std::conj(x));
+    } else if (std::abs(x.imag()) <= tol) {
+      s.push_back(cd(x.real(), 0));
+    }
+  }
+  return static_cast<int>(s.size()) == n && polish_roots(c, s.data(), out);
 }
 
 // What happens to the oscillatory pairs between two neighbouring grid
@@ -539,16 +585,27 @@ class Scanner {
     L.spectra.resize(S * static_cast<std::size_t>(n));
     for (std::size_t q = 0; q < S; ++q) {
       Ns[q] = mean_ ? equivalent(A, speeds_[q]).N : L.N;
-      ev[q] = spectrum(q, Ns[q], near_ok ? &near->spectra[q * static_cast<std::size_t>(n)] : nullptr);
+      ev[q] = spectrum(q, Ns[q], near_ok ? &near->spectra[q * static_cast<std::size_t>(n)] : nullptr,
+                       q > 0 ? ev[q - 1].data() : nullptr);
       std::copy(ev[q].data(), ev[q].data() + n, L.spectra.begin() + static_cast<std::ptrdiff_t>(q * static_cast<std::size_t>(n)));
     }
     std::vector<Interval> intervals(S);
     std::vector<bool> classified(S, false);
+    // The margin ranking; the frequency ranking is the same pairs sorted by
+    // frequency (what ranked(ev, true, false) gives).
+    std::vector<std::vector<Ranked>> by_margin(S);
+    for (std::size_t q = 0; q < S; ++q) by_margin[q] = ranked(ev[q], false, false);
     for (const bool by_frequency : {false, true}) {
-      std::vector<std::vector<Ranked>> ranks(speeds_.size());
+      std::vector<std::vector<Ranked>> ranks(S);
       std::size_t pairs = 0;
-      for (std::size_t q = 0; q < speeds_.size(); ++q) {
-        ranks[q] = ranked(ev[q], by_frequency, false);
+      for (std::size_t q = 0; q < S; ++q) {
+        if (by_frequency) {
+          ranks[q] = std::move(by_margin[q]);
+          std::sort(ranks[q].begin(), ranks[q].end() - 1,
+                    [](const Ranked& a, const Ranked& b) { return a.eigenvalue.imag() < b.eigenvalue.imag(); });
+        } else {
+          ranks[q] = by_margin[q];
+        }
         pairs = std::max(pairs, ranks[q].size());
       }
       for (std::size_t q = 1; q < speeds_.size(); ++q) {
@@ -586,12 +643,14 @@ class Scanner {
   struct Ranked {
     double value = 0;  // growth margin or Re lambda, 1/s
     cd eigenvalue;
+    double margin = 0;  // growth margin (the sort key of the margin ranking)
   };
 
   // The eigenvalues of A(U_q, N): the roots of p0 + N dq polished from
-  // `start` (a neighbouring level's, else those at N = 0 or N1); the QR
+  // `start` (a neighbouring level's, else those at N = 0 or N1) or from
+  // `previous` (this level's at the previous grid speed); the QR
   // eigenvalues (Eigen) when the polishing fails or without the rank-one form.
-  Eigen::VectorXcd spectrum(std::size_t q, double N, const cd* start) const {
+  Eigen::VectorXcd spectrum(std::size_t q, double N, const cd* start, const cd* previous) const {
     if (!polys_.empty() && std::isfinite(N)) {
       const SpeedPoly& sp = polys_[q];
       std::vector<double> c(sp.p0.size());
@@ -600,6 +659,11 @@ class Scanner {
       if (!start) start = std::abs(N) < 0.5 * sp.N1 ? sp.e0.data() : sp.e1.data();
       Eigen::VectorXcd out(static_cast<Eigen::Index>(c.size()) - 1);
       if (polish_roots(c, start, out.data())) return out;
+      // A pair turned real or two real roots met since the starting values:
+      // the previous speed's roots at this level, else all roots at once
+      // (Aberth), then polished as above.
+      if (previous && polish_roots(c, previous, out.data())) return out;
+      if (aberth_roots(c, start, out.data())) return out;
     }
     DofVector k = k_;
     k(j_) = N;
@@ -808,17 +872,24 @@ class Scanner {
   // (ascending); the value is the growth margin, or Re lambda with
   // `by_real`. A rank beyond the last reads as -spectral radius (at()).
   std::vector<Ranked> ranked(const Eigen::VectorXcd& ev, bool by_frequency, bool by_real) const {
-    const double rho = ev.size() ? ev.cwiseAbs().maxCoeff() : 0.0;
+    // |lambda| and the growth margin once per eigenvalue (the values of
+    // growth_margin(); the sort compares the stored ones).
+    const Eigen::VectorXd magnitude = ev.cwiseAbs();
+    const double rho = ev.size() ? magnitude.maxCoeff() : 0.0;
     std::vector<Ranked> v;
+    v.reserve(static_cast<std::size_t>(ev.size()) / 2 + 1);
     for (Eigen::Index i = 0; i < ev.size(); ++i) {
       const cd l = ev(i);
-      if (l.imag() > 1e-8 * std::max(1.0, std::abs(l))) v.push_back({by_real ? l.real() : growth_margin(l, rho), l});
+      if (l.imag() > 1e-8 * std::max(1.0, magnitude(i))) {
+        const double margin = l.real() - 1e-9 * magnitude(i) - 1e-12 * rho;
+        v.push_back({by_real ? l.real() : margin, l, margin});
+      }
     }
     std::sort(v.begin(), v.end(), [&](const Ranked& a, const Ranked& b) {
       if (by_frequency) return a.eigenvalue.imag() < b.eigenvalue.imag();
-      return growth_margin(a.eigenvalue, rho) > growth_margin(b.eigenvalue, rho);
+      return a.margin > b.margin;
     });
-    v.push_back({-std::max(rho, 1.0), cd(0, 0)});  // sentinel: "no such pair"
+    v.push_back({-std::max(rho, 1.0), cd(0, 0), 0.0});  // sentinel: "no such pair"
     return v;
   }
   static const Ranked& at(const std::vector<Ranked>& v, std::size_t r) { return r < v.size() ? v[r] : v.back(); }

@@ -272,9 +272,8 @@ class RankOne {
   // f(U, i omega) = 0, by Newton from (U0, w0); only if it converges inside
   // [Ua, Ub].
   std::optional<std::pair<double, double>> crossing(double N, double Ua, double Ub, double U0, double w0) const {
-    double U = U0, w = w0, prev = std::numeric_limits<double>::infinity();
-    const double h = Ub - Ua;
-    for (int it = 0; it < 40; ++it) {
+    const auto sol = newton2(Ua, Ub, U0, w0, [&](double U, double w) -> std::optional<std::pair<double, double>> {
+      if (!(w > 0)) return std::nullopt;
       Eigen::MatrixXcd M = -a(U, N).cast<cd>();
       M.diagonal().array() += cd(0, w);
       const Eigen::MatrixXcd inv = M.partialPivLu().inverse();
@@ -283,18 +282,10 @@ class RankOne {
       const cd LU = -(inv * da0(U).cast<cd>()).trace();
       const double det = LU.real() * Lw.imag() - Lw.real() * LU.imag();
       if (!(std::abs(det) > 0) || !std::isfinite(det)) return std::nullopt;
-      const double dU = -Lw.imag() / det, dw = LU.imag() / det;
-      U += dU;
-      w += dw;
-      if (!(U > Ua - 0.5 * h && U < Ub + 0.5 * h && w > 0)) return std::nullopt;
-      const double st = std::max(std::abs(dU) / U, std::abs(dw) / w);
-      if (converged(st, prev, 1.0)) {
-        if (U < Ua || U > Ub) return std::nullopt;
-        return std::make_pair(U, w);
-      }
-      prev = st;
-    }
-    return std::nullopt;
+      return std::make_pair(-Lw.imag() / det, LU.imag() / det);
+    });
+    if (sol && !(sol->second > 0)) return std::nullopt;
+    return sol;
   }
 
   // A double real root sigma of f (where a pair turns real): f = 0 and
@@ -303,9 +294,7 @@ class RankOne {
   //   [ T1           -TU            ] [ds]   [ -1 ]
   //   [ T1^2 - T2    TUs - TU T1    ] [dU] = [ -T1 ].
   std::optional<std::pair<double, double>> double_root(double N, double Ua, double Ub, double U0, double s0) const {
-    double U = U0, s = s0, prev = std::numeric_limits<double>::infinity();
-    const double h = Ub - Ua;
-    for (int it = 0; it < 40; ++it) {
+    return newton2(Ua, Ub, U0, s0, [&](double U, double s) -> std::optional<std::pair<double, double>> {
       Eigen::MatrixXd M = -a(U, N);
       M.diagonal().array() += s;
       const Eigen::MatrixXd inv = M.partialPivLu().inverse(), inv2 = inv * inv, D = da0(U);
@@ -313,21 +302,33 @@ class RankOne {
       const double a11 = T1, a12 = -TU, a21 = T1 * T1 - T2, a22 = TUs - TU * T1;
       const double det = a11 * a22 - a12 * a21;
       if (!(std::abs(det) > 0) || !std::isfinite(det)) return std::nullopt;
-      const double ds = (-a22 + a12 * T1) / det, dU = (-a11 * T1 + a21) / det;
-      s += ds;
-      U += dU;
-      if (!(U > Ua - 0.5 * h && U < Ub + 0.5 * h) || !std::isfinite(s)) return std::nullopt;
-      const double st = std::max(std::abs(dU) / U, std::abs(ds) / std::max(std::abs(s), 1e-300));
+      return std::make_pair((-a11 * T1 + a21) / det, (-a22 + a12 * T1) / det);
+    });
+  }
+
+ private:
+  // Newton in (U, x) from (U0, x0): `step(U, x)` gives the correction
+  // (dU, dx), or nothing where it cannot; it fails where U leaves [Ua, Ub]
+  // by half its width, and only a solution inside [Ua, Ub] counts.
+  template <class Step>
+  static std::optional<std::pair<double, double>> newton2(double Ua, double Ub, double U0, double x0, Step step) {
+    double U = U0, x = x0, prev = std::numeric_limits<double>::infinity();
+    const double h = Ub - Ua;
+    for (int it = 0; it < 40; ++it) {
+      const auto d = step(U, x);
+      if (!d) return std::nullopt;
+      U += d->first;
+      x += d->second;
+      if (!(U > Ua - 0.5 * h && U < Ub + 0.5 * h) || !std::isfinite(x)) return std::nullopt;
+      const double st = std::max(std::abs(d->first) / U, std::abs(d->second) / std::max(std::abs(x), 1e-300));
       if (converged(st, prev, 1.0)) {
         if (U < Ua || U > Ub) return std::nullopt;
-        return std::make_pair(U, s);
+        return std::make_pair(U, x);
       }
       prev = st;
     }
     return std::nullopt;
   }
-
- private:
   Eigen::MatrixXd da0(double U) const { return P1_ + (2 * U) * P2_; }
   Eigen::MatrixXd a(double U, double N) const {
     Eigen::MatrixXd A = a0(U);
@@ -935,25 +936,13 @@ class Scanner {
     return n;
   }
 
-  // Amplitude-perturbation stability (header).
+  // Amplitude-perturbation stability (header), on the QR eigenvalues.
   bool stable(const Neutral& n, double A) const {
-    auto nearest = [&](const Eigen::VectorXcd& ev, cd to) {
-      Eigen::Index best = 0;
-      for (Eigen::Index i = 1; i < ev.size(); ++i)
-        if (std::abs(ev(i) - to) < std::abs(ev(best) - to)) best = i;
-      return best;
-    };
     const Eigen::VectorXcd up = eigenvalues(A * (1 + 1e-3), n.speed);
     const Eigen::VectorXcd down = eigenvalues(A * (1 - 1e-3), n.speed);
-    const double dsigma = up(nearest(up, n.eigenvalue)).real() - down(nearest(down, n.eigenvalue)).real();
+    const double dsigma = up(nearest_index(up, n.eigenvalue)).real() - down(nearest_index(down, n.eigenvalue)).real();
     if (!(dsigma < 0)) return false;
-    // No other root of the equivalent system may grow.
-    const Eigen::VectorXcd ev = eigenvalues(A, n.speed);
-    const Eigen::Index a = nearest(ev, n.eigenvalue), b = nearest(ev, std::conj(n.eigenvalue));
-    const double rho = ev.cwiseAbs().maxCoeff();
-    for (Eigen::Index i = 0; i < ev.size(); ++i)
-      if (i != a && i != b && growing(ev(i), rho)) return false;
-    return true;
+    return others_decay(n, A);
   }
 
   const AeroelasticModel& model_;

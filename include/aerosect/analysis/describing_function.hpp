@@ -45,10 +45,13 @@
 // destabilises with speed is stable where its neutral speed rises with
 // amplitude.
 //
-// How the scan computes (the results are those of the direct scan: Eigen's
+// How the scan computes. Its results are those of the direct scan (Eigen's
 // QR eigenvalues of the state matrix at every grid speed, sign changes of
-// the ranked growth margins refined by TOMS 748 on those eigenvalues; both
-// agree to round-off, checked on the shipped and regression cases). The
+// the ranked growth margins refined by TOMS 748 on those eigenvalues) to
+// round-off: on the shipped and regression cases and variants of every
+// law, the same branches, points, stability and divergence entries, speeds
+// and frequencies within 1e-10 relative, at about a tenth of the cost
+// without a steady condition (the mean equation dominates with one). The
 // stiffness of spring j enters the state matrix as a rank-one term,
 //   A(U, N) = A0(U) + N b e_d^T,  A0 quadratic in U,
 // so det(sI - A) = p0(s) + N dq(s) at each grid speed (two QR eigenvalue

@@ -73,6 +73,56 @@ TEST_CASE("Cubic hardening pitch spring: supercritical LCO above U*_L only", "[d
   }
 }
 
+TEST_CASE("Every predicted LCO point is a neutral point of the equivalent linear system", "[df]") {
+  // The definition in describing_function.hpp: at a reported point
+  // (A, U, omega) the linear system with k_j = N (N(A), or N_A(B, A) with a
+  // steady condition) has a neutral oscillatory pair at U, frequency omega.
+  // Checked independently of the scan's own arithmetic (rank-one
+  // polynomials, Newton) with Eigen's EigenSolver (reference library) on the
+  // state matrix: a pair at Im lambda = omega (1e-8 relative) with
+  // |Re lambda| <= 1e-8 |lambda|. Cases: the benchmark section with pitch
+  // freeplay, the demo (aileron freeplay, 3 DOF) and the trimmed demo (the
+  // dual-input prediction about a bias).
+  auto check = [](const Case& c) {
+    const LcoPrediction p = describing_function_lco(c, default_speeds(c), 80);
+    REQUIRE(p.available);
+    REQUIRE(p.points.size() > 50);
+    const AeroelasticModel model = stability_model(c.model);
+    DofVector k(c.model.section.dof);
+    for (int i = 0; i < k.size(); ++i) k(i) = c.model.springs[static_cast<std::size_t>(i)].nominal_stiffness();
+    int bad = 0;
+    for (const LcoPredictionPoint& pt : p.points) {
+      k(p.spring) = pt.equivalent_stiffness;
+      const Eigen::VectorXcd ev =
+          Eigen::EigenSolver<Eigen::MatrixXd>(model.state_matrix_at(pt.speed, k), false).eigenvalues();
+      const std::complex<double> target(0, pt.frequency);
+      Eigen::Index best = 0;
+      for (Eigen::Index i = 1; i < ev.size(); ++i)
+        if (std::abs(ev(i) - target) < std::abs(ev(best) - target)) best = i;
+      const std::complex<double> l = ev(best);
+      const bool neutral = std::abs(l.imag() - pt.frequency) <= 1e-8 * pt.frequency &&
+                           std::abs(l.real()) <= 1e-8 * std::abs(l);
+      if (!neutral) {
+        ++bad;
+        INFO("A " << pt.amplitude << ", U " << pt.speed << " m/s, omega " << pt.frequency << " rad/s: nearest eigenvalue "
+                  << l.real() << " + " << l.imag() << "i");
+        CHECK(neutral);
+      }
+    }
+    CHECK(bad == 0);
+  };
+  SECTION("benchmark section, pitch freeplay") {
+    check(test::case_from(test::benchmark_2dof(
+        "[springs.pitch]\nlaw = \"freeplay\"\nhalf_gap_deg = 0.5\n[simulation]\nduration = 1\n", 5.0)));
+  }
+  SECTION("demo, aileron freeplay") {
+    check(load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml"));
+  }
+  SECTION("trimmed demo, dual-input about the bias") {
+    check(load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron_trimmed.toml"));
+  }
+}
+
 TEST_CASE("Describing-function LCO prediction against simulation", "[df]") {
   // Gelb & Vander Velde 1968: for a near-harmonic LCO the equivalent
   // linearisation predicts the amplitude to a few percent. Hardening cubic on

@@ -266,12 +266,15 @@ void check_swept_values(const SweepRequest& r) {
                          "sets a [[gust]] key, but the sweep leaves the case's gusts out",
                          "--with-gusts to run the gusts at every point, or no --set of a [[gust]] key");
   }
+  // The case's TOML parsed once (the request's own, else here).
+  const std::shared_ptr<const CaseDocument> doc =
+      r.document ? r.document : std::make_shared<const CaseDocument>(r.case_text, r.case_path);
   for (const auto& ax : r.options.axes)
     for (double v : ax.values) {
       std::vector<std::string> o2 = r.overrides;
       o2.push_back(fmt::format("{}={:.17g}", ax.key, v));
       try {
-        (void)parse_case(r.case_text, r.case_path, o2);
+        (void)doc->with(o2);
       } catch (const InputError& e) {
         // The swept value is applied as an override: name the option that
         // gave it, not a --set the user never wrote.

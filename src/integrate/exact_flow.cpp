@@ -5,6 +5,7 @@
 #include <cmath>
 #include <limits>
 #include <map>
+#include <unordered_map>
 #include <memory>
 
 #include <fmt/format.h>
@@ -241,6 +242,7 @@ struct Witness {
   // when step == the run's step count (ExactRun::coefficients).
   mutable std::array<double, kTerms> c{};
   mutable long step = -1;
+  mutable Region* target = nullptr;  // the region entered at its zero (spring), once looked up
 };
 
 using RegionMap = std::map<std::vector<int>, Region>;
@@ -281,7 +283,7 @@ class ExactRun {
     if (schedule_.any() && schedule_.include_start) stop |= sample(z, run_.time);
     std::int64_t next_sample = 1;
     Region* R = &region();
-    std::vector<Witness> ws = witnesses(*R);
+    const std::vector<Witness>* ws = &witnesses_of(*R);
     int quick_switches = 0;
     while (run_.time < t_end_ && !stop) {
       if (obs_.cancel && obs_.cancel->load()) return finish(z, phi, StopReason::kCancelled);
@@ -308,7 +310,7 @@ class ExactRun {
       // The first switch inside (0, h].
       double te = std::numeric_limits<double>::infinity();
       const Witness* event = nullptr;
-      for (const Witness& w : ws)
+      for (const Witness& w : *ws)
         if (w.spring)
           if (const double tz = first_zero(*R, w, z, zb, h); tz < te) {
             te = tz;
@@ -316,8 +318,8 @@ class ExactRun {
           }
       // Peaks inside (0, the switch or the step's end], in time order.
       if (obs_.peak) {
-        if (event) stop |= report_peaks(*R, ws, z, state_at(*R, z, te), te);
-        else stop |= report_peaks(*R, ws, z, zb, h);
+        if (event) stop |= report_peaks(*R, *ws, z, state_at(*R, z, te), te);
+        else stop |= report_peaks(*R, *ws, z, zb, h);
       }
       // Advance.
       if (event) {
@@ -334,8 +336,10 @@ class ExactRun {
           throw NumericalError(run_.time, fmt::format("{} switches of the {} spring without the time advancing "
                                                       "(a trajectory held on its breakpoint)",
                                                       quick_switches, dof_name(event->dof)));
-        R = &region();
-        ws = witnesses(*R);
+        // (The region a witness's crossing leads to, found once.)
+        if (!event->target) event->target = &region();
+        R = event->target;
+        ws = &witnesses_of(*R);
       } else {
         if (run_.track_monodromy) {
           if (E) phi_next.noalias() = E->topLeftCorner(n_, n_).lazyProduct(phi);
@@ -353,7 +357,7 @@ class ExactRun {
           // The next input segment: same state, its own input terms.
           ++run_.input_segment;
           R = &region();
-          ws = witnesses(*R);
+          ws = &witnesses_of(*R);
         }
       }
       ++run_.steps;
@@ -445,6 +449,14 @@ class ExactRun {
 
   // Spring boundaries of the present regions (g >= 0 past the breakpoint)
   // and, when peaks are watched, the velocity of every moving DOF.
+  // The witnesses of region R, built at its first visit in this run (a
+  // region's witnesses depend only on its spring regions).
+  const std::vector<Witness>& witnesses_of(const Region& R) {
+    auto it = witness_cache_.find(&R);
+    if (it == witness_cache_.end()) it = witness_cache_.emplace(&R, witnesses(R)).first;
+    return it->second;
+  }
+
   std::vector<Witness> witnesses(const Region& R) const {
     std::vector<Witness> out;
     for (int j : model_.nonlinear_springs()) {
@@ -667,6 +679,7 @@ class ExactRun {
   mutable StepPolynomial poly_;  // the present step's Taylor polynomial, when poly_valid_
   mutable bool poly_valid_ = false;
   long step_ = 0;  // steps begun (Witness::step)
+  std::unordered_map<const Region*, std::vector<Witness>> witness_cache_;  // witnesses_of
 };
 };  // struct Kernels
 

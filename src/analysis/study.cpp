@@ -531,8 +531,11 @@ void lco_history_stage(Study& s, const SweepPoint& worst, const std::string& whe
   start.regions = worst.final_regions;
   Hdf5TimeHistoryWriter writer(s.path("lco.h5"));
   const SimulationSummary hs = simulate(hc, hm, writer, s.cancel, &start);
-  stop_if_cancelled(s.cancel);  // the partial run is lco.incomplete.h5
-  s.R.hdf5_files.push_back("lco.h5");
+  // A run that reached its end wrote lco.h5 whole: it is listed even when
+  // the interrupt came after its last step (a run cut short is
+  // lco.incomplete.h5).
+  if (hs.completed) s.R.hdf5_files.push_back("lco.h5");
+  stop_if_cancelled(s.cancel);
   s.part("lco-history", hs.completed,
          fmt::format("10 cycles of the largest LCO {} ({}), started from the sweep point's final state", where,
                      s.v(worst.value1 / run.per)),
@@ -893,8 +896,8 @@ void lco_orbit_history_stage(Study& s, const LcoBranchRun& r, const std::string&
   start.regions = hm.regions_of(o.x0.data());
   Hdf5TimeHistoryWriter writer(s.path("lco.h5"));
   const SimulationSummary hs = simulate(hc, hm, writer, s.cancel, &start);
+  if (hs.completed) s.R.hdf5_files.push_back("lco.h5");  // (as lco_history_stage)
   stop_if_cancelled(s.cancel);
-  s.R.hdf5_files.push_back("lco.h5");
   s.part("lco-history", hs.completed,
          fmt::format("10 periods of the largest stable LCO {} ({}), started on the converged orbit", where,
                      s.v(r.largest_airspeed)),
@@ -1146,8 +1149,10 @@ void response_stage(Study& s) {
   const AeroelasticModel model(c.model);
   Hdf5TimeHistoryWriter writer(s.path("response.h5"));
   const SimulationSummary rs = simulate(c, model, writer, s.cancel);
-  stop_if_cancelled(s.cancel);  // the partial run is response.incomplete.h5
-  s.R.hdf5_files.push_back("response.h5");
+  // (As lco_history_stage: a finished run is listed even when the interrupt
+  // came after its last step; a run cut short is response.incomplete.h5.)
+  if (rs.completed) s.R.hdf5_files.push_back("response.h5");
+  stop_if_cancelled(s.cancel);
   s.part("response", rs.completed,
          fmt::format("{:.4g} s from the case's initial conditions{}", rs.end_time,
                      c.model.gusts.empty() ? std::string(", no gusts")

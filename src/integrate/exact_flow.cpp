@@ -191,19 +191,6 @@ static void matvec(Vec& out, const Mat& A, const Vec& v) {
   for (Eigen::Index j = 1; j < A.cols(); ++j) out += A.col(j) * v(j);
 }
 
-// exp(tau M) v by its Taylor series (||tau M|| <= 1/2: terms fall by 2 or
-// more each, 1e-17 relative after about 20).
-static Vec expv(const Mat& M, const Vec& v, double tau) {
-  Vec sum = v, term = v, next;
-  for (int k = 1; k < 40; ++k) {
-    matvec(next, M, term);
-    term = (tau / k) * next;
-    sum += term;
-    if (term.template lpNorm<Eigen::Infinity>() <= 1e-18 * sum.template lpNorm<Eigen::Infinity>()) break;
-  }
-  return sum;
-}
-
 // The Taylor polynomial of the flow from one state z over one step:
 // z(tau) = sum_k q_k tau^k, q_k = M^k z / k!, k = 0..kTerms-1. With
 // tau <= h and ||h M|| <= 1/2 the terms left out are below
@@ -304,9 +291,10 @@ class ExactRun {
         h = std::max(0.0, ts - run_.time);
         E = std::abs(h - dt_s) <= 1e-9 * dt_s ? &sample_propagator(*R, dt_s) : nullptr;
       }
-      if (E) matvec(zb, *E, z); else zb = expv(R->M, z, h);
       poly_valid_ = false;  // the step's polynomial (from z) is built when first needed
       ++step_;              // and so are the witnesses' polynomials
+      // (A step shorter than the region's: its end from the step's polynomial.)
+      if (E) matvec(zb, *E, z); else zb = state_at(*R, z, h);
       // The first switch inside (0, h].
       double te = std::numeric_limits<double>::infinity();
       const Witness* event = nullptr;

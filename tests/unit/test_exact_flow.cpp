@@ -256,8 +256,8 @@ TEST_CASE("stepper = \"exact\" on a case that cannot be propagated exactly is re
 TEST_CASE("Exact propagation: runs sharing an ExactFlowCache give the same results bit for bit", "[exact]") {
   // The cache holds only what a run would rebuild identically (the
   // regions' exponentials), so runs with it, without it, and a second run
-  // through a filled cache must agree exactly (a property of the design, no
-  // source); a run of another model is refused (InternalError).
+  // through a filled cache must agree exactly (common practice, no source:
+  // a cache must not change results); a run of another model is refused (InternalError).
   const Case c = load_case(std::string(AEROSECT_SOURCE_DIR) + "/cases/demo_aileron.toml");
   const AeroelasticModel m(c.model);
   auto go = [&](ExactFlowCache* cache) {

@@ -294,9 +294,10 @@ TEST_CASE("Reported extremes are the trajectory's, not the samples'", "[simulate
   //    same run sampled at 1 MHz: never short of the dense samples' extreme
   //    (1e-9 of the range: the two runs' trajectories agree to round-off),
   //    and beyond it by at most 1e-5 of the range (the dense samples miss
-  //    an extremum by |y''| dt^2 / 8 where it is smooth, but by up to
-  //    |y'| dt / 2 where a load channel has a kink at a switch: measured
-  //    up to 1.2e-6 of the range). A restart of
+  //    an extremum by |y''| dt^2 / 8 where it is smooth, the sampling
+  //    error of a quadratic near its peak, common practice, no source; by
+  //    up to |y'| dt / 2 where a load channel has a kink at a switch:
+  //    measured up to 1.2e-6 of the range). A restart of
   //    the extreme search from a step end on a breakpoint once took the
   //    other side's region and reported a flap-rate minimum 0.3 % beyond
   //    the trajectory's (it showed at 30 m/s, flap released from 1 and 2

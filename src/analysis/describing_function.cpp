@@ -142,19 +142,24 @@ class MeanBalance {
     const DofVector F = -U * U * (K1_ * q_a0_) + f_;
     double s = K(j_, j_), r = F(j_);
     if (n > 1) {
-      std::vector<int> o;
+      // Fixed capacity (at most 2 other DOFs): this runs once per (A, U)
+      // of the steady scan, and heap matrices were a third of its own cost.
+      AEROSECT_CHECK(n <= 3);
+      Eigen::Vector2i o = Eigen::Vector2i::Zero();
+      int no = 0;
       for (int i = 0; i < n; ++i)
-        if (i != j_) o.push_back(i);
-      const int no = static_cast<int>(o.size());
-      Eigen::MatrixXd Koo(no, no);
-      Eigen::VectorXd Koj(no), Kjo(no), Fo(no);
+        if (i != j_) o(no++) = i;
+      using Small = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, 0, 2, 2>;
+      using SmallVector = Eigen::Matrix<double, Eigen::Dynamic, 1, 0, 2, 1>;
+      Small Koo(no, no);
+      SmallVector Koj(no), Kjo(no), Fo(no);
       for (int a = 0; a < no; ++a) {
-        for (int b = 0; b < no; ++b) Koo(a, b) = K(o[a], o[b]);
-        Koj(a) = K(o[a], j_);
-        Kjo(a) = K(j_, o[a]);
-        Fo(a) = F(o[a]);
+        for (int b = 0; b < no; ++b) Koo(a, b) = K(o(a), o(b));
+        Koj(a) = K(o(a), j_);
+        Kjo(a) = K(j_, o(a));
+        Fo(a) = F(o(a));
       }
-      const Eigen::FullPivLU<Eigen::MatrixXd> lu(Koo);
+      const Eigen::FullPivLU<Small> lu(Koo);
       if (!lu.isInvertible()) return std::nullopt;
       s -= Kjo.dot(lu.solve(Koj));
       r -= Kjo.dot(lu.solve(Fo));

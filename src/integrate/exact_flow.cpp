@@ -309,17 +309,16 @@ class ExactRun {
             event = &w;
           }
       // Peaks inside (0, the switch or the step's end], in time order.
-      if (obs_.peak) {
-        if (event) stop |= report_peaks(*R, *ws, z, state_at(*R, z, te), te);
-        else stop |= report_peaks(*R, *ws, z, zb, h);
-      }
+      // (A switch's state, at te, is the step's end from here on.)
+      if (event) zb = state_at(*R, z, te);
+      if (obs_.peak) stop |= report_peaks(*R, *ws, z, zb, event ? te : h);
       // Advance.
       if (event) {
         if (run_.track_monodromy) {
           phi_next.noalias() = flow_matrix(*R, te).topLeftCorner(n_, n_).lazyProduct(phi);
           phi.swap(phi_next);
         }
-        z = state_at(*R, z, te);
+        z.swap(zb);
         run_.time += te;
         run_.regions[static_cast<std::size_t>(event->dof)] = event->next;
         ++run_.switches;

@@ -233,6 +233,10 @@ struct Witness {
   // when step == the run's step count (ExactRun::coefficients).
   mutable std::array<double, kTerms> c{};
   mutable long step = -1;
+  // g' at the end of step d_step, the next step's start when that goes on
+  // from it (ExactRun::start_slope): one dot product per step, not two.
+  mutable double d_end = 0;
+  mutable long d_step = -1;
   mutable Region* target = nullptr;  // the region entered at its zero (spring), once looked up
 };
 
@@ -331,6 +335,7 @@ class ExactRun {
         if (!event->target) event->target = &region();
         R = event->target;
         ws = &witnesses_of(*R);
+        continued_ = false;
       } else {
         if (run_.track_monodromy) {
           if (E) phi_next.noalias() = E->topLeftCorner(n_, n_).lazyProduct(phi);
@@ -338,6 +343,7 @@ class ExactRun {
           phi.swap(phi_next);
         }
         z.swap(zb);
+        continued_ = true;
         const bool breaks_here = at_break && !(lands && ts < t_break);
         run_.time = lands ? ts : breaks_here ? t_break : h == R->h ? run_.time + h : t_end_;
         if (lands) {
@@ -349,6 +355,7 @@ class ExactRun {
           ++run_.input_segment;
           R = &region();
           ws = &witnesses_of(*R);
+          continued_ = false;
         }
       }
       ++run_.steps;
@@ -568,6 +575,16 @@ class ExactRun {
     return std::min({ga, p1, p2, gb}) > bound || std::max({ga, p1, p2, gb}) < -bound;
   }
 
+  // The witness's slope g' = aM . z at the step's start z, or at its end
+  // zb (kept for the next step, which starts there when continued_).
+  double start_slope(const Witness& w, const Vec& z) const {
+    return continued_ && w.d_step == step_ - 1 ? w.d_end : w.aM.dot(z);
+  }
+  double end_slope(const Witness& w, const Vec& zb) const {
+    w.d_step = step_;
+    return w.d_end = w.aM.dot(zb);
+  }
+
   // The first time in (0, h] where the spring witness reaches zero from
   // below (infinite when it does not): a sign change over the step, or an
   // interior maximum of g at or above zero. (||h M|| <= 1/2: g' changes
@@ -575,7 +592,7 @@ class ExactRun {
   double first_zero(const Region& R, const Witness& w, const Vec& z, const Vec& zb, double h) const {
     constexpr double kNone = std::numeric_limits<double>::infinity();
     const double ga = w.value(z), gb = w.value(zb);
-    const double da = w.aM.dot(z), db = w.aM.dot(zb);
+    const double da = start_slope(w, z), db = end_slope(w, zb);
     if (ga < 0 && gb < 0 && !(da > 0 && db < 0)) return kNone;  // the usual step
     if (!(ga < 0)) {
       // On the breakpoint to round-off: the region was just entered through
@@ -604,7 +621,7 @@ class ExactRun {
         found_.emplace_back(vb == 0 ? span : zero_of_g(R, w, z, 0.0, span, va, vb), w.dof);
         continue;
       }
-      const double da = w.aM.dot(z), db = w.aM.dot(zb);
+      const double da = start_slope(w, z), db = end_slope(w, zb);
       if (!(da * db < 0)) continue;  // monotone, same sign: none
       if (zero_free(R, w, z, span, va, vb, da, db)) continue;
       // An extremum of the velocity inside: two zeros when it crosses.
@@ -670,6 +687,9 @@ class ExactRun {
   mutable StepPolynomial poly_;  // the present step's Taylor polynomial, when poly_valid_
   mutable bool poly_valid_ = false;
   long step_ = 0;  // steps begun (Witness::step)
+  // The present step starts at the previous step's end zb, in the same
+  // region (no switch, no new input segment): Witness::d_end holds.
+  bool continued_ = false;
   std::unordered_map<const Region*, std::vector<Witness>> witness_cache_;  // witnesses_of
 };
 };  // struct Kernels

@@ -195,6 +195,36 @@ static void matvec(Vec& out, const Mat& A, const Vec& v) {
   out = sum;
 }
 
+// Without gust oscillators (affine_last) the augmented state's last
+// component is the constant 1 and the last row of M is zero, so the last
+// row of exp(tau M) is e^T (its Taylor terms M^k / k!, k >= 1, have a zero
+// last row): (M v)(last) = 0 and (exp(tau M) v)(last) = v(last). top()
+// forms the other N - 1 components of A v, summed as in matvec (for
+// N = 9, four full packets and no scalar row: 171 -> about 130
+// instructions); with kConstantFree (v(last) = 0: a Taylor coefficient
+// q_k, k >= 1) the last column, whose products are zeros, is left out too.
+// The caller sets out(last). (Only for a fixed N; results as matvec's, up to
+// the sign of an exact zero.)
+template <bool kConstantFree>
+static void top(Vec& out, const Mat& A, const Vec& v) {
+  static_assert(N != Eigen::Dynamic);
+  constexpr int kTop = N - 1;
+  Eigen::Matrix<double, kTop, 1> sum = A.col(0).template head<kTop>() * v(0);
+  for (int j = 1; j < (kConstantFree ? kTop : N); ++j) sum += A.col(j).template head<kTop>() * v(j);
+  out.template head<kTop>() = sum;
+}
+// exp(tau M) v for a propagator E = exp(tau M) (out must not be v).
+static void propagate(Vec& out, const Mat& E, const Vec& v, bool affine_last) {
+  if constexpr (N != Eigen::Dynamic) {
+    if (affine_last) {
+      top<false>(out, E, v);
+      out(N - 1) = v(N - 1);
+      return;
+    }
+  }
+  matvec(out, E, v);
+}
+
 // The Taylor polynomial of the flow from one state z over one step:
 // z(tau) = sum_k q_k tau^k, q_k = M^k z / k!, k = 0..kTerms-1. With
 // tau <= h and ||h M|| <= 1/2 the terms left out are below
@@ -204,9 +234,18 @@ static void matvec(Vec& out, const Mat& A, const Vec& v) {
 // instead of a new series of matrix products. (kTerms: above Region.)
 struct StepPolynomial {
   std::array<Vec, kTerms> q;
-  void build(const Mat& M, const Vec& z) {
+  void build(const Mat& M, const Vec& z, bool affine_last) {
     q[0] = z;
     for (int k = 1; k < kTerms; ++k) {
+      if constexpr (N != Eigen::Dynamic) {
+        if (affine_last) {
+          // (q_0's last component is the constant 1, later ones' are 0.)
+          if (k == 1) top<false>(q[k], M, q[k - 1]); else top<true>(q[k], M, q[k - 1]);
+          q[k](N - 1) = 0;
+          q[k] /= k;
+          continue;
+        }
+      }
       matvec(q[k], M, q[k - 1]);
       q[k] /= k;
     }
@@ -302,7 +341,7 @@ class ExactRun {
       poly_valid_ = false;  // the step's polynomial (from z) is built when first needed
       ++step_;              // and so are the witnesses' polynomials
       // (A step shorter than the region's: its end from the step's polynomial.)
-      if (E) matvec(zb, *E, z); else zb = state_at(*R, z, h);
+      if (E) propagate(zb, *E, z, affine_last_); else zb = state_at(*R, z, h);
       // The first switch inside (0, h].
       double te = std::numeric_limits<double>::infinity();
       const Witness* event = nullptr;
@@ -491,7 +530,7 @@ class ExactRun {
   // The step's Taylor polynomial from z (built at the first need in a step).
   const StepPolynomial& poly(const Region& R, const Vec& z) const {
     if (!poly_valid_) {
-      poly_.build(R.M, z);
+      poly_.build(R.M, z, affine_last_);
       poly_valid_ = true;
     }
     return poly_;
@@ -666,6 +705,7 @@ class ExactRun {
   const int n_;
   const int N_;  // augmented length: n_ + 1 + 2 x (gust oscillators)
   const bool gusts_ = !model_.gusts().empty();
+  const bool affine_last_ = N_ == n_ + 1;  // no gust oscillators: z's last component is the constant 1
   RunState& run_;
   const double t_end_;
   const OutputSchedule& schedule_;

@@ -295,16 +295,21 @@ class ExactRun {
     const double t0 = run_.time;
     const bool fixed_rate = schedule_.interval > 0 && !schedule_.every_step;
     const double dt_s = schedule_.interval;
-    Vec z(N_), zb(N_);
-    for (int i = 0; i < n_; ++i) z(i) = W_(i) * run_.x[static_cast<std::size_t>(i)];
-    z(n_) = 1.0;
+    // A step's start z and end zb; the end becomes the next step's start by
+    // exchanging the two pointers (not the vectors' contents).
+    std::array<Vec, 2> zs{Vec(N_), Vec(N_)};
+    Vec* zp = &zs[0];
+    Vec* zbp = &zs[1];
+    Vec& z0 = *zp;
+    for (int i = 0; i < n_; ++i) z0(i) = W_(i) * run_.x[static_cast<std::size_t>(i)];
+    z0(n_) = 1.0;
     // The gust oscillators: sin and cos of omega_j (t - start_j).
     if (N_ > n_ + 1) {
       const auto h = model_.gusts().harmonic_input(0);
       for (std::size_t j = 0; j < h->omega.size(); ++j) {
         const double ph = h->omega[j] * (run_.time - h->start[j]);
-        z(n_ + 1 + 2 * static_cast<int>(j)) = std::sin(ph);
-        z(n_ + 2 + 2 * static_cast<int>(j)) = std::cos(ph);
+        z0(n_ + 1 + 2 * static_cast<int>(j)) = std::sin(ph);
+        z0(n_ + 2 + 2 * static_cast<int>(j)) = std::cos(ph);
       }
     }
     run_.input_segment = model_.gusts().segment_of(run_.time);
@@ -314,12 +319,14 @@ class ExactRun {
       phi = W_.asDiagonal() * p * W_.cwiseInverse().asDiagonal();
     }
     bool stop = false;
-    if (schedule_.any() && schedule_.include_start) stop |= sample(z, run_.time);
+    if (schedule_.any() && schedule_.include_start) stop |= sample(z0, run_.time);
     std::int64_t next_sample = 1;
     Region* R = &region();
     const std::vector<Witness>* ws = &witnesses_of(*R);
     int quick_switches = 0;
     while (run_.time < t_end_ && !stop) {
+      Vec& z = *zp;
+      Vec& zb = *zbp;
       if (obs_.cancel && obs_.cancel->load()) return finish(z, phi, StopReason::kCancelled);
       // The step: the region's, ending on the next sample time when that
       // comes first (then, between samples, the precomputed propagator of
@@ -355,13 +362,12 @@ class ExactRun {
       // (A switch's state, at te, is the step's end from here on.)
       if (event) zb = state_at(*R, z, te);
       if (obs_.peak) stop |= report_peaks(*R, *ws, z, zb, event ? te : h);
-      // Advance.
+      // Advance: zb is the new state (the step's end, or the switch's).
       if (event) {
         if (run_.track_monodromy) {
           phi_next.noalias() = flow_matrix(*R, te).topLeftCorner(n_, n_).lazyProduct(phi);
           phi.swap(phi_next);
         }
-        z.swap(zb);
         run_.time += te;
         run_.regions[static_cast<std::size_t>(event->dof)] = event->next;
         ++run_.switches;
@@ -381,12 +387,11 @@ class ExactRun {
           else phi_next.noalias() = flow_matrix(*R, h).topLeftCorner(n_, n_).lazyProduct(phi);
           phi.swap(phi_next);
         }
-        z.swap(zb);
         continued_ = true;
         const bool breaks_here = at_break && !(lands && ts < t_break);
         run_.time = lands ? ts : breaks_here ? t_break : h == R->h ? run_.time + h : t_end_;
         if (lands) {
-          stop |= sample(z, ts);
+          stop |= sample(zb, ts);
           ++next_sample;
         }
         if (breaks_here && run_.time == t_break) {
@@ -398,12 +403,13 @@ class ExactRun {
         }
       }
       ++run_.steps;
-      if (!z.allFinite())
+      std::swap(zp, zbp);
+      if (!zb.allFinite())
         throw NumericalError(run_.time, "the exact solution left the range of double precision (unbounded growth)");
-      if (schedule_.every_step) stop |= sample(z, run_.time);
-      if (obs_.step) (void)obs_.step(run_.time, unscaled(z));
+      if (schedule_.every_step) stop |= sample(zb, run_.time);
+      if (obs_.step) (void)obs_.step(run_.time, unscaled(zb));
     }
-    return finish(z, phi, stop ? StopReason::kObserver : StopReason::kEndTime);
+    return finish(*zp, phi, stop ? StopReason::kObserver : StopReason::kEndTime);
   }
 
  private:

@@ -404,7 +404,9 @@ class ExactRun {
       }
       ++run_.steps;
       std::swap(zp, zbp);
-      if (!zb.allFinite())
+      // (A finite sum has finite terms: the componentwise test, 36
+      // instructions for N = 9 against about 10, only when the sum is not.)
+      if (!std::isfinite(zb.sum()) && !zb.allFinite())
         throw NumericalError(run_.time, "the exact solution left the range of double precision (unbounded growth)");
       if (schedule_.every_step) stop |= sample(zb, run_.time);
       if (obs_.step) (void)obs_.step(run_.time, unscaled(zb));

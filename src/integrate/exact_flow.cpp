@@ -361,7 +361,7 @@ class ExactRun {
       // Peaks inside (0, the switch or the step's end], in time order.
       // (A switch's state, at te, is the step's end from here on.)
       if (event) zb = state_at(*R, z, te);
-      if (obs_.peak) stop |= report_peaks(*R, *ws, z, zb, event ? te : h);
+      if (obs_.peak && peak_possible(*ws, z, zb)) stop |= report_peaks(*R, *ws, z, zb, event ? te : h);
       // Advance: zb is the new state (the step's end, or the switch's).
       if (event) {
         if (run_.track_monodromy) {
@@ -656,6 +656,19 @@ class ExactRun {
     const double tm = zero_of_dg(R, w, z, 0.0, h, da, db);
     const double gm = at(R, w, z, tm).g;
     return gm >= 0 ? zero_of_g(R, w, z, 0.0, tm, ga, gm) : kNone;
+  }
+
+  // False when report_peaks would find nothing: no watched velocity
+  // changes sign between the ends or has an extremum inside (its tests
+  // below, done inline for the usual step without a peak).
+  bool peak_possible(const std::vector<Witness>& ws, const Vec& z, const Vec& zb) const {
+    for (const Witness& w : ws) {
+      if (w.spring) continue;
+      const double va = w.value(z), vb = w.value(zb);
+      if (va * vb < 0 || (vb == 0 && va != 0)) return true;
+      if (start_slope(w, z) * end_slope(w, zb) < 0) return true;
+    }
+    return false;
   }
 
   // Velocity zeros in (0, span], reported in time order.

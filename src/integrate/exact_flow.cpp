@@ -203,21 +203,21 @@ static void matvec(Vec& out, const Mat& A, const Vec& v) {
 // N = 9, four full packets and no scalar row: 171 -> about 130
 // instructions); with kConstantFree (v(last) = 0: a Taylor coefficient
 // q_k, k >= 1) the last column, whose products are zeros, is left out too.
-// The caller sets out(last). (Only for a fixed N; results as matvec's, up to
-// the sign of an exact zero.)
+// It returns them (held in registers) for the caller to store. (Only for
+// a fixed N; results as matvec's, up to the sign of an exact zero.)
 template <bool kConstantFree>
-static void top(Vec& out, const Mat& A, const Vec& v) {
+static auto top(const Mat& A, const Vec& v) {
   static_assert(N != Eigen::Dynamic);
   constexpr int kTop = N - 1;
   Eigen::Matrix<double, kTop, 1> sum = A.col(0).template head<kTop>() * v(0);
   for (int j = 1; j < (kConstantFree ? kTop : N); ++j) sum += A.col(j).template head<kTop>() * v(j);
-  out.template head<kTop>() = sum;
+  return sum;
 }
 // exp(tau M) v for a propagator E = exp(tau M) (out must not be v).
 static void propagate(Vec& out, const Mat& E, const Vec& v, bool affine_last) {
   if constexpr (N != Eigen::Dynamic) {
     if (affine_last) {
-      top<false>(out, E, v);
+      out.template head<N - 1>() = top<false>(E, v);
       out(N - 1) = v(N - 1);
       return;
     }
@@ -239,10 +239,11 @@ struct StepPolynomial {
     for (int k = 1; k < kTerms; ++k) {
       if constexpr (N != Eigen::Dynamic) {
         if (affine_last) {
-          // (q_0's last component is the constant 1, later ones' are 0.)
-          if (k == 1) top<false>(q[k], M, q[k - 1]); else top<true>(q[k], M, q[k - 1]);
+          // (q_0's last component is the constant 1, later ones' are 0;
+          // each term divided by k before it is stored.)
+          if (k == 1) q[k].template head<N - 1>() = top<false>(M, q[k - 1]) / k;
+          else q[k].template head<N - 1>() = top<true>(M, q[k - 1]) / k;
           q[k](N - 1) = 0;
-          q[k] /= k;
           continue;
         }
       }

@@ -169,7 +169,14 @@ using Mat = Eigen::Matrix<double, N, N, 0, kCap, kCap>;
 static constexpr int kTerms = 16;
 
 // One spring configuration: the scaled augmented matrix and its step.
-struct Region {
+// Aligned to 16 bytes: for an odd N the matrices alone need only 8, and
+// where Eigen's products (the Taylor terms T) split a column into packets
+// and single coefficients, which sum in different orders, depends on the
+// address, so the terms' last bits did on where a Region was built.
+struct alignas(16) Region {
+  // (User-provided: a Region made in the map, whose contents region()
+  // writes at once, is not zero-filled first.)
+  Region() {}
   Mat M;      // (n+1) square: [[W A W^-1, W c], [0, 0]]
   double h;   // step, s: ||h M||_inf <= 1/2 (infinite when M = 0)
   Mat E;      // exp(h M) (when h is finite)
@@ -445,10 +452,12 @@ class ExactRun {
     StateMat J(n_, n_);
     model_.jacobian(x.data(), run_.time, run_.regions, 0, J);
     model_.rhs(x.data(), f.data(), run_.time, run_.regions, 0);
-    Region r;
-    r.M = Mat::Zero(N_, N_);
     const Eigen::VectorXd& B = model_.gust_input();
     const auto hi = gusts_ ? model_.gusts().harmonic_input(run_.input_segment) : std::nullopt;
+    // Built in its place in the map (a Region is kTerms + 3 matrices: moving
+    // one in copied them all); nothing below throws.
+    Region& r = cache_.try_emplace(key_).first->second;
+    r.M = Mat::Zero(N_, N_);
     for (int i = 0; i < n_; ++i) {
       double c = f[static_cast<std::size_t>(i)];
       for (int k = 0; k < n_; ++k) r.M(i, k) = W_(i) * J(i, k) / W_(k);
@@ -477,7 +486,7 @@ class ExactRun {
       r.T[static_cast<std::size_t>(k)] /= k;
     }
     if (std::isfinite(r.h)) r.E = flow_matrix(r, r.h);
-    return cache_.emplace(key_, std::move(r)).first->second;
+    return r;
   }
 
   // exp(tau M) for 0 <= tau <= h: the region's Taylor terms summed by

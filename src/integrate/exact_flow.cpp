@@ -321,10 +321,9 @@ class ExactRun {
       }
     }
     run_.input_segment = model_.gusts().segment_of(run_.time);
-    StateMat phi, phi_next;  // scaled monodromy W Phi W^-1
     if (run_.track_monodromy) {
       const Eigen::Map<const StateMat> p(run_.monodromy.data(), n_, n_);
-      phi = W_.asDiagonal() * p * W_.cwiseInverse().asDiagonal();
+      phis_[0] = W_.asDiagonal() * p * W_.cwiseInverse().asDiagonal();
     }
     bool stop = false;
     if (schedule_.any() && schedule_.include_start) stop |= sample(z0, run_.time);
@@ -335,7 +334,7 @@ class ExactRun {
     while (run_.time < t_end_ && !stop) {
       Vec& z = *zp;
       Vec& zb = *zbp;
-      if (obs_.cancel && obs_.cancel->load()) return finish(z, phi, StopReason::kCancelled);
+      if (obs_.cancel && obs_.cancel->load()) return finish(z, StopReason::kCancelled);
       // The step: the region's, ending on the next sample time when that
       // comes first (then, between samples, the precomputed propagator of
       // one sample interval).
@@ -372,10 +371,7 @@ class ExactRun {
       if (obs_.peak && peak_possible(*ws, z, zb)) stop |= report_peaks(*R, *ws, z, zb, event ? te : h);
       // Advance: zb is the new state (the step's end, or the switch's).
       if (event) {
-        if (run_.track_monodromy) {
-          phi_next.noalias() = flow_matrix(*R, te).topLeftCorner(n_, n_).lazyProduct(phi);
-          phi.swap(phi_next);
-        }
+        if (run_.track_monodromy) monodromy_step(flow_matrix(*R, te));
         run_.time += te;
         run_.regions[static_cast<std::size_t>(event->dof)] = event->next;
         ++run_.switches;
@@ -391,9 +387,8 @@ class ExactRun {
         continued_ = false;
       } else {
         if (run_.track_monodromy) {
-          if (E) phi_next.noalias() = E->topLeftCorner(n_, n_).lazyProduct(phi);
-          else phi_next.noalias() = flow_matrix(*R, h).topLeftCorner(n_, n_).lazyProduct(phi);
-          phi.swap(phi_next);
+          if (E) monodromy_step(*E);
+          else monodromy_step(flow_matrix(*R, h));
         }
         continued_ = true;
         const bool breaks_here = at_break && !(lands && ts < t_break);
@@ -419,7 +414,7 @@ class ExactRun {
       if (schedule_.every_step) stop |= sample(zb, run_.time);
       if (obs_.step) (void)obs_.step(run_.time, unscaled(zb));
     }
-    return finish(*zp, phi, stop ? StopReason::kObserver : StopReason::kEndTime);
+    return finish(*zp, stop ? StopReason::kObserver : StopReason::kEndTime);
   }
 
  private:
@@ -722,7 +717,14 @@ class ExactRun {
     return x_;
   }
 
-  IntegrationResult finish(const Vec& z, const StateMat& phi, StopReason reason) {
+  // The monodromy through a step or part of one whose propagator is F.
+  void monodromy_step(const Mat& F) {
+    phis_[1 - phi_].noalias() = F.topLeftCorner(n_, n_).lazyProduct(phis_[phi_]);
+    phi_ = 1 - phi_;
+  }
+
+  IntegrationResult finish(const Vec& z, StopReason reason) {
+    const StateMat& phi = phis_[phi_];
     for (int i = 0; i < n_; ++i) run_.x[static_cast<std::size_t>(i)] = z(i) / W_(i);
     if (run_.track_monodromy) {
       const StateMat p = W_.cwiseInverse().asDiagonal() * phi * W_.asDiagonal();
@@ -758,6 +760,11 @@ class ExactRun {
   mutable StepPolynomial poly_;  // the present step's Taylor polynomial, when poly_valid_
   mutable bool poly_valid_ = false;
   long step_ = 0;  // steps begun (Witness::step)
+  // The scaled monodromy W Phi W^-1, phis_[phi_], and room for its next
+  // value (exchanged by index: a StateMat holds kMaxAugmented^2 doubles,
+  // all copied by a swap).
+  std::array<StateMat, 2> phis_;
+  int phi_ = 0;
   // The present step starts at the previous step's end zb, in the same
   // region (no switch, no new input segment): Witness::d_end holds.
   bool continued_ = false;

@@ -170,9 +170,10 @@ static constexpr int kTerms = 16;
 
 // One spring configuration: the scaled augmented matrix and its step.
 // Aligned to 16 bytes: for an odd N the matrices alone need only 8, and
-// where Eigen's products (the Taylor terms T) split a column into packets
-// and single coefficients, which sum in different orders, depends on the
-// address, so the terms' last bits did on where a Region was built.
+// where Eigen's product for the Taylor terms T splits a column into
+// packets and single coefficients (summed in different orders) depends on
+// the address, so without it the terms' last bits would depend on where a
+// Region is built.
 struct alignas(16) Region {
   // (User-provided: a Region made in the map, whose contents region()
   // writes at once, is not zero-filled first.)

@@ -182,8 +182,17 @@ TEST_CASE("Dual-input describing function equals the quadrature of its definitio
   // Reference: the defining integrals of F0 and N_A by Boost.Math's adaptive
   // Gauss-Kronrod (quadrature above), on asymmetric_laws() and a cubic; with
   // B = 0 the gain is describing_function(A) bit for bit.
+  // A table of 12 knots too: with 10 breakpoints inside the oscillation a
+  // period has up to 5 + 3 x 10 cuts, more than the closed form keeps
+  // without a heap buffer (16).
   std::vector<SpringLaw> laws = asymmetric_laws();
   laws.push_back(SpringLaw::cubic(60.0, 40.0));
+  std::vector<double> xs, fs;
+  for (int q = 0; q < 12; ++q) {
+    xs.push_back(-0.03 + 0.006 * q);
+    fs.push_back(80.0 * xs.back() + 400.0 * xs.back() * std::abs(xs.back()) + (q % 2 == 0 ? 0.01 : -0.01));
+  }
+  laws.push_back(SpringLaw::table(xs, fs));
   for (const SpringLaw& law : laws) {
     for (double B : {-0.012, -0.003, 0.0, 0.002, 0.009, 0.05})
       for (double A : {0.001, 0.0045, 0.011, 0.05, 0.3}) {

@@ -151,13 +151,18 @@ def test_gil_released_during_a_run():
     assert seen["total"] == sum(i * i for i in range(200000))
 
 
-def test_runs_leave_no_descriptors_or_files():
+def test_runs_leave_no_descriptors_or_files(tmp_path, monkeypatch):
     """Each run's output claim (a locked TARGET.lock, io/output_claim.hpp)
     is released when the call ends, even when it fails or is interrupted: a
     session of many runs holds no descriptor per run and leaves no
     temporary folder behind."""
     import glob
     import tempfile
+
+    # The package's temporary folders go to a folder of this test's own:
+    # the shared temporary folder also holds other tests' (run in parallel
+    # by ctest), which come and go meanwhile.
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_path))
 
     def descriptors():
         return len(os.listdir("/proc/self/fd"))

@@ -58,6 +58,8 @@ std::string shown(const std::string& raw, std::size_t limit = kShownValue) {
 
 }  // namespace
 
+std::string shown_text(const std::string& raw, std::size_t limit) { return shown(raw, limit); }
+
 std::string wrapped(const std::string& text, std::size_t width) {
   std::string out;
   std::size_t start = 0;

@@ -106,6 +106,9 @@ std::string wrapped(const std::string& text, std::size_t width = 100);
 // (newlines too when `keep_newlines`). Every message quoting outside bytes
 // goes through it.
 std::string printable(const std::string& s, bool keep_newlines = false);
+// `raw` as a message quotes it: printable, and cut to `limit` characters
+// with "..." (at a UTF-8 boundary) when longer.
+std::string shown_text(const std::string& raw, std::size_t limit = 60);
 
 #define AEROSECT_CHECK(cond)                                         \
   do {                                                               \

@@ -79,13 +79,22 @@ HeadRead read_head(const std::string& path, const std::string& line, const Journ
                                  "remove it to start again)",
                                  formats_text(want)));
   if (identity != want.identity) {
-    std::string differences;
+    // The names that differ, the journal's own as the file has them (any
+    // bytes, any length): each shown printable and cut, at most kListed.
+    std::vector<std::string> names;
     if (identity.is_object() && want.identity.is_object()) {
       for (const auto& [k, v] : want.identity.items())
-        if (!identity.contains(k) || identity[k] != v) differences += (differences.empty() ? "" : ", ") + k;
+        if (!identity.contains(k) || identity[k] != v) names.push_back(k);
       for (const auto& [k, v] : identity.items())
-        if (!want.identity.contains(k)) differences += (differences.empty() ? "" : ", ") + k;
+        if (!want.identity.contains(k)) names.push_back(shown_text(k, 40));
     }
+    constexpr std::size_t kListed = 12;
+    std::string differences;
+    for (std::size_t q = 0; q < names.size() && q < kListed; ++q) {
+      if (q > 0) differences += ", ";
+      differences += names[q];
+    }
+    if (names.size() > kListed) differences += fmt::format(" and {} more", names.size() - kListed);
     throw InputError({path, 1, 0}, "", "",
                      differences.empty() ? std::string("this journal belongs to a different sweep")
                                          : "this journal belongs to a different sweep (its " + differences +

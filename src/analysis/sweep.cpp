@@ -1,4 +1,5 @@
 #include "aerosect/analysis/sweep.hpp"
+#include "aerosect/analysis/sweep_store.hpp"
 
 #include "aerosect/analysis/equilibrium.hpp"
 
@@ -285,9 +286,9 @@ void check_swept_values(const SweepRequest& r) {
     }
 }
 
-std::vector<SweepPoint> run_sweep(const SweepRequest& request, const std::vector<SweepPoint>& done,
-                                  const std::function<void(const SweepPoint&)>& on_point,
-                                  const std::atomic<bool>* cancel, const std::function<void()>& beside) {
+void sweep_each(const SweepRequest& request, const std::vector<SweepPoint>& done,
+                const std::function<void(const SweepPoint&, bool)>& each, const std::atomic<bool>* cancel,
+                const std::function<void()>& beside) {
   SweepRequest parsed = request;
   if (!parsed.document) parsed.document = std::make_shared<const CaseDocument>(request.case_text, request.case_path);
   const SweepRequest& r = parsed;
@@ -295,17 +296,8 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& request, const std::vector
   AEROSECT_CHECK(!o.axes.empty() && o.axes.size() <= 2);
   const int n1 = static_cast<int>(o.axes[0].values.size());
   const std::vector<Unit> mine = shard_units(o);
-  std::map<Key, SweepPoint> known;
-  for (const auto& p : done) known[{p.direction, p.j, p.i}] = p;
-
-  // Every point has its slot from the start (unit by unit, in the units'
-  // order): a chain writes its points there, so the points are allocated
-  // once and never moved or held twice (10 000 demo points: 5.7 MB).
-  std::vector<std::size_t> slot_of_unit(mine.size() + 1, 0);
-  for (std::size_t u = 0; u < mine.size(); ++u)
-    slot_of_unit[u + 1] = slot_of_unit[u] + static_cast<std::size_t>(mine[u].k_end - mine[u].k_begin);
-  std::vector<SweepPoint> all(slot_of_unit.back());
-  std::vector<char> filled(all.size(), 0);
+  std::map<Key, const SweepPoint*> known;
+  for (const auto& p : done) known[{p.direction, p.j, p.i}] = &p;
   // Validate the swept values once, up front (bad input is an error before any work).
   check_swept_values(r);
   // Work item 0 is `beside` (when given), then one per chain. `jobs`
@@ -326,22 +318,24 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& request, const std::vector
         }
         const Unit& u = mine[item - first];
         const Chain ch = u.chain;
-        const SweepPoint* previous = nullptr;
-        std::size_t slot = slot_of_unit[item - first];
-        for (int k = u.k_begin; k < u.k_end; ++k, ++slot) {
+        // The chain's previous point (its final state starts the next):
+        // the only point a chain holds.
+        SweepPoint previous;
+        bool has_previous = false;
+        for (int k = u.k_begin; k < u.k_end; ++k) {
           if (cancel && cancel->load()) break;
           const int i = ch.direction == 0 ? k : n1 - 1 - k;
           auto it = known.find({ch.direction, ch.j, i});
           if (it != known.end()) {
-            all[slot] = it->second;
+            each(*it->second, false);
+            previous = *it->second;
           } else {
-            std::optional<SweepPoint> p = run_point(r, ch.direction, i, ch.j, previous, cancel);
+            std::optional<SweepPoint> p = run_point(r, ch.direction, i, ch.j, has_previous ? &previous : nullptr, cancel);
             if (!p) break;
-            all[slot] = std::move(*p);
-            if (on_point) on_point(all[slot]);
+            each(*p, true);
+            previous = std::move(*p);
           }
-          filled[slot] = 1;
-          previous = &all[slot];
+          has_previous = true;
         }
       } catch (...) {
         const std::lock_guard<std::mutex> lock(failure_mutex);
@@ -358,14 +352,22 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& request, const std::vector
     work();
   }  // the jthreads join here
   if (failure) std::rethrow_exception(failure);
-  // Slots of points not run (interrupted) are dropped.
-  std::size_t kept = 0;
-  for (std::size_t q = 0; q < all.size(); ++q)
-    if (filled[q]) {
-      if (kept != q) all[kept] = std::move(all[q]);
-      ++kept;
-    }
-  all.resize(kept);
+}
+
+std::vector<SweepPoint> run_sweep(const SweepRequest& request, const std::vector<SweepPoint>& done,
+                                  const std::function<void(const SweepPoint&)>& on_point,
+                                  const std::atomic<bool>* cancel, const std::function<void()>& beside) {
+  std::mutex mutex;
+  std::vector<SweepPoint> all;
+  all.reserve(sweep_point_count(request));
+  sweep_each(
+      request, done,
+      [&](const SweepPoint& p, bool computed) {
+        if (computed && on_point) on_point(p);
+        const std::lock_guard<std::mutex> lock(mutex);
+        all.push_back(p);
+      },
+      cancel, beside);
   std::sort(all.begin(), all.end(), [](const SweepPoint& a, const SweepPoint& b) {
     return std::tie(a.direction, a.j, a.i) < std::tie(b.direction, b.j, b.i);
   });
@@ -540,38 +542,16 @@ std::size_t sweep_point_count(const SweepRequest& r) {
 }
 
 SweepSummary summarize(const std::vector<SweepPoint>& points, int jj) {
-  SweepSummary s;
-  std::vector<const SweepPoint*> up, down;
-  for (const auto& p : points) {
-    if (p.j != jj) continue;
-    (p.direction == 0 ? up : down).push_back(&p);
-    const double a = p.lco.dof[static_cast<std::size_t>(p.lco.watched_dof)].amplitude;
-    if (p.lco.response == ResponseClass::kPeriodic && (!s.largest_amplitude || a > *s.largest_amplitude)) {
-      s.largest_amplitude = a;
-      s.largest_at = p.value1;
-      s.largest_direction = p.direction;
-    }
-  }
-  std::sort(up.begin(), up.end(), [](auto a, auto b) { return a->i < b->i; });
-  std::sort(down.begin(), down.end(), [](auto a, auto b) { return a->i < b->i; });
-  for (const SweepPoint* p : up)
-    if (p->lco.response == ResponseClass::kPeriodic) {
-      s.onset_up = p->value1;
-      break;
-    }
-  for (const SweepPoint* p : down)
-    if (p->lco.response == ResponseClass::kPeriodic) {
-      s.disappearance_down = p->value1;
-      break;
-    }
-  return s;
+  SweepTally t;
+  t.j = jj;
+  for (const auto& p : points) t.add(p);
+  return t.summary;
 }
 
-
 std::size_t unsettled_points(const std::vector<SweepPoint>& points) {
-  return static_cast<std::size_t>(std::count_if(points.begin(), points.end(), [](const SweepPoint& q) {
-    return q.ok && q.lco.response == ResponseClass::kUnsettled;
-  }));
+  SweepTally t;
+  for (const auto& p : points) t.add(p);
+  return t.unsettled;
 }
 
 std::string unsettled_warning(const Case& c, std::size_t n) {
@@ -582,9 +562,9 @@ std::string unsettled_warning(const Case& c, std::size_t n) {
 }
 
 std::size_t unrefined_points(const std::vector<SweepPoint>& points) {
-  return static_cast<std::size_t>(std::count_if(points.begin(), points.end(), [](const SweepPoint& q) {
-    return q.ok && q.lco.response == ResponseClass::kPeriodic && !q.refined;
-  }));
+  SweepTally t;
+  for (const auto& p : points) t.add(p);
+  return t.unrefined;
 }
 
 std::string unrefined_warning(std::size_t n) {
@@ -593,8 +573,29 @@ std::string unrefined_warning(std::size_t n) {
                      n, n == 1 ? "" : "s");
 }
 
-nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
-                          const std::string& output) {
+namespace {
+
+// A point in the --json summary: point_json without what only continuation
+// needs and without the sampled cycle (in the file, not the summary).
+nlohmann::json summary_point_json(const SweepPoint& q) {
+  nlohmann::json pj = point_json(q);
+  pj.erase("final_state");
+  pj.erase("final_regions");
+  if (pj["cycle"].is_object()) pj["cycle"].erase("trace");
+  return pj;
+}
+
+// The points of `p` in a store in memory (the vector forms below).
+std::unique_ptr<SweepStore> store_of(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p) {
+  auto s = std::make_unique<SweepStore>(r, sweep_tables(r, c.model.section.dof));
+  for (const auto& q : p) s->put(q);
+  return s;
+}
+
+}  // namespace
+
+nlohmann::json sweep_json_head(const Case& c, const SweepRequest& r, const SweepStore& p,
+                               const std::string& output) {
   nlohmann::json j = report_header(c, "sweep");
   j["output"] = output;
   for (const auto& ax : r.options.axes)
@@ -603,8 +604,9 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
   j["continuation"] = r.options.continuation;
   j["gusts_included"] = r.options.with_gusts && !c.model.gusts.empty();
   j["gusts"] = sweep_gust_note(c, r);
-  j["points_computed"] = p.size();
-  const SweepSummary s = summarize(p);
+  const SweepTally& t = p.tally();
+  const SweepSummary& s = t.summary;
+  j["points_computed"] = t.points;
   auto opt = [](const std::optional<double>& v) { return v ? nlohmann::json(*v) : nlohmann::json(nullptr); };
   j["lco_onset_up"] = opt(s.onset_up);
   j["lco_disappearance_down"] = opt(s.disappearance_down);
@@ -615,32 +617,66 @@ nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vecto
   j["largest_amplitude"] = opt(s.largest_amplitude);
   j["largest_amplitude_at"] = s.largest_amplitude ? nlohmann::json(s.largest_at) : nlohmann::json(nullptr);
   j["run_cap_factor"] = kSweepRunCap;
-  const std::size_t unsettled = unsettled_points(p);
-  j["unsettled_points"] = unsettled;
+  j["unsettled_points"] = t.unsettled;
   j["warnings"] = nlohmann::json::array();
-  if (unsettled > 0) j["warnings"].push_back(unsettled_warning(c, unsettled));
-  j["unrefined_points"] = unrefined_points(p);
-  if (unrefined_points(p) > 0) j["warnings"].push_back(unrefined_warning(unrefined_points(p)));
-  j["points"] = nlohmann::json::array();
-  for (const auto& q : p) {
-    nlohmann::json pj = point_json(q);
-    pj.erase("final_state");
-    pj.erase("final_regions");
-    if (pj["cycle"].is_object()) pj["cycle"].erase("trace");  // in the file, not the summary
-    j["points"].push_back(pj);
-  }
+  if (t.unsettled > 0) j["warnings"].push_back(unsettled_warning(c, t.unsettled));
+  j["unrefined_points"] = t.unrefined;
+  if (t.unrefined > 0) j["warnings"].push_back(unrefined_warning(t.unrefined));
   return j;
 }
 
-std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
-                       const std::string& output) {
+void write_sweep_json(const nlohmann::json& head, const SweepStore& points,
+                      const std::function<void(std::string_view)>& out) {
+  // The head with an empty "points" list, dumped; the list is then written
+  // where its "[]" stands, a point at a time, indented as dump(2) indents
+  // the whole (its top-level key at two spaces, a list element at four).
+  nlohmann::json j = head;
+  j["points"] = nlohmann::json::array();
+  const std::string text = j.dump(2);
+  const std::string mark = "\n  \"points\": []";
+  const std::size_t at = text.find(mark);
+  AEROSECT_CHECK(at != std::string::npos);
+  const std::size_t list = at + mark.size() - 1;  // the "]"
+  out(std::string_view(text).substr(0, list - 1));
+  std::string block;
+  bool any = false;
+  points.visit([&](const SweepPoint& q) {
+    block += any ? ",\n    " : "[\n    ";
+    any = true;
+    const std::string pj = summary_point_json(q).dump(2);
+    for (const char ch : pj) {
+      block += ch;
+      if (ch == '\n') block += "    ";
+    }
+    if (block.size() > 65536) {
+      out(block);
+      block.clear();
+    }
+  });
+  block += any ? "\n  ]" : "[]";
+  out(block);
+  out(std::string_view(text).substr(list + 1));
+}
+
+nlohmann::json sweep_json(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
+                          const std::string& output) {
+  const auto s = store_of(c, r, p);
+  nlohmann::json j = sweep_json_head(c, r, *s, output);
+  j["points"] = nlohmann::json::array();
+  s->visit([&](const SweepPoint& q) { j["points"].push_back(summary_point_json(q)); });
+  return j;
+}
+
+void write_sweep_text(const Case& c, const SweepRequest& r, const SweepStore& p, const std::string& output,
+                      const std::function<void(std::string_view)>& out) {
+  const SweepTally& tl = p.tally();
   std::string t = fmt::format("aerosect {} sweep: {}\n", kVersion, c.path);
   if (!c.title.empty()) t += fmt::format("  {}\n", c.title);
   for (const auto& ax : r.options.axes)
     t += fmt::format("  {} from {:.6g} to {:.6g} ({} values)\n", ax.key, ax.values.front(),
                      ax.values.back(), ax.values.size());
   t += fmt::format("  {}; {} points\n", r.options.continuation ? "continuation" : "fresh starts",
-                   p.size());
+                   tl.points);
   t += fmt::format("  gusts: {}\n\n", sweep_gust_note(c, r));
   // Every swept key is a column, headed with its units (case_key_units);
   // amplitudes in the unit said on each row.
@@ -657,7 +693,8 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   // semichords; Hz or w/w_a for a nondimensional case).
   const Presenter pr = presenter(c);
   t += fmt::format(" {:>13} {:>16} {:>10} {:>7}\n", "class", "amplitude", pr.frequency_heading(), "cycles");
-  for (const auto& q : p) {
+  // The rows a block at a time: the text is never held whole.
+  p.visit([&](const SweepPoint& q) {
     const int w = q.lco.watched_dof;
     t += fmt::format("  {:>4} {:>{}.6g}", q.direction == 0 ? "up" : "down", q.value1, w1);
     if (two) t += fmt::format(" {:>{}.6g}", q.value2, w2);
@@ -674,8 +711,12 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
                      decayed ? std::string("-") : fmt::format("{:.4g}", pr.frequency_value(q.lco.frequency)),
                      q.lco.cycles,
                      q.ok ? "" : "  " + q.error.substr(0, 60));
-  }
-  const SweepSummary s = summarize(p);
+    if (t.size() > 65536) {
+      out(t);
+      t.clear();
+    }
+  });
+  const SweepSummary& s = tl.summary;
   t += "\n";
   const std::string at_units = u1 == "1" ? "" : " " + u1;
   t += s.onset_up ? fmt::format("  LCO onset going up: {:.6g}{}\n", *s.onset_up, at_units) : "  no LCO going up\n";
@@ -686,18 +727,23 @@ std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<S
   if (s.onset_up && s.disappearance_down && *s.disappearance_down < *s.onset_up)
     t += fmt::format("  hysteresis band: {:.6g} .. {:.6g}{}\n", *s.disappearance_down, *s.onset_up, at_units);
   if (s.largest_amplitude) {
-    const int w = p.front().lco.watched_dof;
+    const int w = tl.watched_dof;
     t += fmt::format("  largest LCO amplitude of the {}: {:.5g} {} at {:.6g}{}\n", kDofNames[w],
                      pr.displacement_value(w, *s.largest_amplitude), pr.displacement_unit(w), s.largest_at, at_units);
   }
-  if (const std::size_t unsettled = unsettled_points(p); unsettled > 0)
-    t += "\n  warning: " + unsettled_warning(c, unsettled) + "\n";
-  if (const std::size_t n = unrefined_points(p); n > 0)
-    t += "\n  * " + unrefined_warning(n) + "\n";
+  if (tl.unsettled > 0) t += "\n  warning: " + unsettled_warning(c, tl.unsettled) + "\n";
+  if (tl.unrefined > 0) t += "\n  * " + unrefined_warning(tl.unrefined) + "\n";
   if (!output.empty()) t += fmt::format("\nwritten to {}\n", output);
   t += "\n";
   t += kSafetyCaution;
   t += "\n";
+  out(t);
+}
+
+std::string sweep_text(const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& p,
+                       const std::string& output) {
+  std::string t;
+  write_sweep_text(c, r, *store_of(c, r, p), output, [&t](std::string_view piece) { t += piece; });
   return t;
 }
 
@@ -981,7 +1027,7 @@ SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, con
 }
 
 // Writes the map's tables, axes and attributes (the layout of sweep.hpp).
-void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& points,
+void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, const SweepStore& points,
                         const FlutterReport* overlay) {
   RunMetadata meta = case_metadata(c, "sweep");
   meta.text_attributes.push_back({"continuation", r.options.continuation ? "continue" : "fresh"});
@@ -1002,8 +1048,11 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
     dims.push_back(name);
   }
   const std::size_t cells = 2 * t.n1 * t.n2;
-  const auto cell = [&t](const SweepPoint& p) { return t.cell(p); };
-  write_layout<SweepPoint>(doc, t.point, dims, cells, points, cell);
+  // Each table from the store, a chunk at a time.
+  write_layout_columns<SweepPoint>(doc, t.point, dims, cells,
+                                   [&](std::size_t k, std::size_t first, std::span<double> out) {
+                                     points.column(false, k, first, out);
+                                   });
   std::vector<std::int32_t> harmonic(t.harmonics);
   for (std::size_t q = 0; q < t.harmonics; ++q) harmonic[q] = static_cast<std::int32_t>(q + 1);
   doc.integer_axis("harmonic", harmonic, "harmonic number k of the LCO frequency");
@@ -1013,7 +1062,10 @@ void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, co
     doc.axis("cycle_phase", phase, "1",
              "time since the phase origin (the watched DOF's largest sample) over the LCO period");
   }
-  write_layout<SweepPoint>(doc, t.cycle, dims, cells, points, cell);
+  write_layout_columns<SweepPoint>(doc, t.cycle, dims, cells,
+                                   [&](std::size_t k, std::size_t first, std::span<double> out) {
+                                     points.column(true, k, first, out);
+                                   });
   doc.integer_attribute("", "cycle_samples", o.cycle.samples);
   // From the case, so that a shard without points (more shards than
   // units) writes the same attribute and merges.
@@ -1058,11 +1110,21 @@ std::optional<FlutterReport> sweep_overlay(const Case& c, const SweepRequest& r,
   return flutter_analysis(c, fo);
 }
 
-void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
-                      const std::vector<SweepPoint>& points, const FlutterReport* overlay) {
+void write_sweep_tables(TableSink& doc, const Case& c, const SweepRequest& r, const std::vector<SweepPoint>& points,
+                        const FlutterReport* overlay) {
+  write_sweep_tables(doc, c, r, *store_of(c, r, points), overlay);
+}
+
+void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r, const SweepStore& points,
+                      const FlutterReport* overlay) {
   Hdf5Document doc(path);
   write_sweep_tables(doc, c, r, points, overlay);
   doc.commit();
+}
+
+void write_sweep_file(const std::string& path, const Case& c, const SweepRequest& r,
+                      const std::vector<SweepPoint>& points, const FlutterReport* overlay) {
+  write_sweep_file(path, c, r, *store_of(c, r, points), overlay);
 }
 
 }  // namespace aerosect

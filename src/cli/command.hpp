@@ -19,6 +19,7 @@
 #include <functional>
 #include <optional>
 #include <string>
+#include <string_view>
 #include <type_traits>
 #include <vector>
 
@@ -80,7 +81,7 @@ void check_output_name(const std::string& option, const std::string& path);
 
 // --- Output ------------------------------------------------------------------
 // Writes `s` to stdout as is.
-void print(const std::string& s);
+void print(std::string_view s);
 // Tells on stderr that the run was stopped by a signal and what is kept;
 // returns interrupted_status().
 int report_interrupted(const std::string& what_is_kept);

@@ -82,7 +82,7 @@ void check_output_name(const std::string& option, const std::string& path) {
   }
 }
 
-void print(const std::string& s) { std::fwrite(s.data(), 1, s.size(), stdout); }
+void print(std::string_view s) { std::fwrite(s.data(), 1, s.size(), stdout); }
 
 int report_interrupted(const std::string& what_is_kept) {
   std::cerr << "aerosect: interrupted by " << signal_name(interrupted_signal()) << "; " << what_is_kept

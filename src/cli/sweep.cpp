@@ -6,6 +6,7 @@
 #include <chrono>
 #include <cstdio>
 #include <exception>
+#include <filesystem>
 #include <iostream>
 #include <memory>
 #include <mutex>
@@ -15,6 +16,7 @@
 #include <unistd.h>
 
 #include "aerosect/analysis/sweep.hpp"
+#include "aerosect/analysis/sweep_store.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/case.hpp"
 #include "aerosect/io/journal.hpp"
@@ -105,27 +107,34 @@ int run(const SweepCommandOptions& o) {
   if (!done.empty())
     std::cerr << "aerosect: resuming: " << done.size() << " finished points read from " << journal.path() << "\n";
 
+  // The finished points wait for the map in a scratch file beside it
+  // (unlinked: nothing is left behind), not in memory: the command's memory
+  // does not grow with the number of points.
+  const std::string folder = std::filesystem::path(o.output).parent_path().string();
+  SweepStore store(req, tables, folder.empty() ? "." : folder, o.output);
+
   std::mutex mu;
-  std::string journal_failure;  // why a point could not be journaled; the sweep stops then
+  std::string journal_failure;  // why a point could not be journaled or kept; the sweep stops then
   std::size_t finished = done.size();
   const Progress progress(done.size(), sweep_point_count(req));
-  auto on_point = [&](const SweepPoint& p) {
+  auto on_point = [&](const SweepPoint& p, bool computed) {
     std::lock_guard<std::mutex> lock(mu);
     if (!journal_failure.empty()) return;
     try {
-      journal.append(point_record(p, tables));
+      if (computed) journal.append(point_record(p, tables));
+      store.put(p);
     } catch (const OutputError& e) {
       journal_failure = e.what();
       request_stop();
       return;
     }
-    progress.point_done(++finished);
+    if (computed) progress.point_done(++finished);
   };
   // The overlay (linear flutter speeds, describing-function curve) does not
   // depend on the points: one more work item of the sweep's threads.
   std::optional<FlutterReport> overlay;
   std::exception_ptr overlay_failure;
-  const std::vector<SweepPoint> pts = run_sweep(req, done, on_point, cancel_flag(), [&] {
+  sweep_each(req, done, on_point, cancel_flag(), [&] {
     try {
       overlay = sweep_overlay(c, req, cancel_flag());
     } catch (...) {
@@ -146,14 +155,16 @@ int run(const SweepCommandOptions& o) {
   } catch (const Cancelled&) {
     return report_interrupted(kept);
   }
-  write_sweep_file(o.output, c, req, pts, overlay ? &*overlay : nullptr);
+  write_sweep_file(o.output, c, req, store, overlay ? &*overlay : nullptr);
   journal.remove();
+  const auto out = [](std::string_view piece) { print(piece); };
   if (o.json) {
-    nlohmann::json j = sweep_json(c, req, pts, o.output);
-    j["points_resumed"] = done.size();  // read from the journal, not recomputed
-    print(j.dump(2) + "\n");
+    nlohmann::json head = sweep_json_head(c, req, store, o.output);
+    head["points_resumed"] = done.size();  // read from the journal, not recomputed
+    write_sweep_json(head, store, out);
+    out("\n");
   } else {
-    print(sweep_text(c, req, pts, o.output));
+    write_sweep_text(c, req, store, o.output, out);
   }
   return 0;
 }

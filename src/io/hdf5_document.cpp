@@ -15,6 +15,7 @@
 
 #include <H5Cpp.h>
 
+#include <array>
 #include <cstddef>
 #include <filesystem>
 #include <limits>
@@ -155,7 +156,19 @@ class Document {
   void dataset(const std::string& path, const std::vector<std::string>& dims,
                std::span<const double> data, const std::string& units,
                const std::string& long_name) {
-    write_dataset(path, dims, data.size(), data.data(), false, units, long_name, {});
+    write_dataset(path, dims, data.size(), data.data(), {}, false, units, long_name, {});
+  }
+
+  // The same with the values asked for block by block (TableSink::Blocks):
+  // one chunk at a time, so no more than a chunk is held.
+  void dataset_blocks(const std::string& path, const std::vector<std::string>& dims, std::size_t count,
+                      const TableSink::Blocks& values, const std::string& units, const std::string& long_name) {
+    write_dataset(path, dims, count, nullptr, values, false, units, long_name, {});
+  }
+  void integer_dataset_blocks(const std::string& path, const std::vector<std::string>& dims, std::size_t count,
+                              const TableSink::Blocks& values, const std::string& units,
+                              const std::string& long_name, const Flags& flags) {
+    write_dataset(path, dims, count, nullptr, values, true, units, long_name, flags);
   }
 
   // An int64 table; kIntegerFill declared as _FillValue (the same type as
@@ -164,12 +177,14 @@ class Document {
   void integer_dataset(const std::string& path, const std::vector<std::string>& dims,
                        std::span<const std::int64_t> data, const std::string& units,
                        const std::string& long_name, const Flags& flags) {
-    write_dataset(path, dims, data.size(), data.data(), true, units, long_name, flags);
+    write_dataset(path, dims, data.size(), data.data(), {}, true, units, long_name, flags);
   }
 
+  // Writes `values` values: from `data` at once (native doubles, or int64
+  // for an integer table), or else asked from `blocks` one chunk at a time.
   void write_dataset(const std::string& path, const std::vector<std::string>& dims,
-                     std::size_t values, const void* data, bool integer, const std::string& units,
-                     const std::string& long_name, const Flags& flags) {
+                     std::size_t values, const void* data, const TableSink::Blocks& blocks, bool integer,
+                     const std::string& units, const std::string& long_name, const Flags& flags) {
     usable();
     bool valid = false;
     const auto parts = split_path(path, valid);
@@ -206,7 +221,8 @@ class Document {
       if (integer) properties.setFillValue(H5::PredType::NATIVE_INT64, &kIntegerFill);
       H5::DataSet d = parent.createDataSet(
           parts.back(), integer ? H5::PredType::STD_I64LE : H5::PredType::IEEE_F64LE, space, properties);
-      if (values > 0) d.write(data, integer ? H5::PredType::NATIVE_INT64 : H5::PredType::NATIVE_DOUBLE);
+      if (values > 0 && data) d.write(data, integer ? H5::PredType::NATIVE_INT64 : H5::PredType::NATIVE_DOUBLE);
+      if (values > 0 && !data) write_blocks(d, shape, blocks, integer);
       if (flags.values.empty()) write_text(d, "units", units);
       write_text(d, "long_name", long_name);
       if (integer) write_int64(d, "_FillValue", kIntegerFill);
@@ -218,6 +234,64 @@ class Document {
         attach_scale(d, *scales[k], static_cast<unsigned>(k));
       close_now(d);
     });
+  }
+
+  // Fills the dataset `d` of `shape` from `blocks`, one slab at a time: a
+  // chunk (chunk_shape: ones, then a part of one dimension, then whole
+  // trailing dimensions, so a contiguous run of values), or the whole
+  // dataset when it is not chunked (at most kChunkBytes).
+  static void write_blocks(H5::DataSet& d, const std::vector<hsize_t>& shape, const TableSink::Blocks& blocks,
+                           bool integer) {
+    std::uintmax_t bytes = sizeof(double);
+    for (auto n : shape) bytes *= n;
+    const std::vector<hsize_t> chunk = shape.empty() || bytes <= kChunkBytes ? shape : chunk_shape(shape);
+    // The last dimension the chunk takes a part of (rank: none, one block);
+    // the ones before it are taken one index at a time (chunk_shape halved
+    // them to 1), the ones after it whole.
+    std::size_t k_split = shape.size();
+    for (std::size_t k = 0; k < shape.size(); ++k)
+      if (chunk[k] < shape[k]) k_split = k;
+    if (k_split < shape.size())
+      for (std::size_t k = 0; k < k_split; ++k) AEROSECT_CHECK(chunk[k] == 1);
+    const bool whole = k_split == shape.size();
+    hsize_t trailing = 1, outer = 1;
+    for (std::size_t k = 0; k < shape.size(); ++k) {
+      if (whole || k > k_split) trailing *= shape[k];
+      if (!whole && k < k_split) outer *= shape[k];
+    }
+    const hsize_t along = whole ? 1 : shape[k_split];
+    const hsize_t part = whole ? 1 : chunk[k_split];
+    std::vector<double> values;
+    std::vector<std::int64_t> integers;
+    H5::DataSpace file_space = d.getSpace();
+    std::vector<hsize_t> start(shape.size(), 0), count(shape.begin(), shape.end());
+    for (hsize_t o = 0; o < outer; ++o) {
+      hsize_t rest = o;  // o as indices of the leading dimensions
+      for (std::size_t k = whole ? 0 : k_split; k-- > 0;) {
+        start[k] = rest % shape[k];
+        count[k] = 1;
+        rest /= shape[k];
+      }
+      for (hsize_t at = 0; at < along; at += part) {
+        const hsize_t n = std::min(part, along - at);
+        if (!whole) {
+          start[k_split] = at;
+          count[k_split] = n;
+        }
+        const std::size_t first = static_cast<std::size_t>((o * along + at) * trailing);
+        values.resize(static_cast<std::size_t>(n * trailing));
+        blocks(first, values);
+        H5::DataSpace memory_space(1, std::array<hsize_t, 1>{n * trailing}.data());
+        if (!shape.empty()) file_space.selectHyperslab(H5S_SELECT_SET, count.data(), start.data());
+        if (integer) {
+          integers.resize(values.size());
+          for (std::size_t q = 0; q < values.size(); ++q) integers[q] = integer_cell(values[q]);
+          d.write(integers.data(), H5::PredType::NATIVE_INT64, memory_space, file_space);
+        } else {
+          d.write(values.data(), H5::PredType::NATIVE_DOUBLE, memory_space, file_space);
+        }
+      }
+    }
   }
 
   // Writes one attribute with `write(object)` on the root, a group or a
@@ -494,6 +568,17 @@ void Hdf5Document::integer_dataset(const std::string& path, const std::vector<st
                                    std::span<const std::int64_t> data, const std::string& units,
                                    const std::string& long_name, const Flags& flags) {
   file_->integer_dataset(path, dims, data, units, long_name, flags);
+}
+
+void Hdf5Document::dataset_blocks(const std::string& path, const std::vector<std::string>& dims, std::size_t count,
+                                  const Blocks& values, const std::string& units, const std::string& long_name) {
+  file_->dataset_blocks(path, dims, count, values, units, long_name);
+}
+
+void Hdf5Document::integer_dataset_blocks(const std::string& path, const std::vector<std::string>& dims,
+                                          std::size_t count, const Blocks& values, const std::string& units,
+                                          const std::string& long_name, const Flags& flags) {
+  file_->integer_dataset_blocks(path, dims, count, values, units, long_name, flags);
 }
 
 void Hdf5Document::nan_fill(const std::string& path) {

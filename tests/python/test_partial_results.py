@@ -99,10 +99,13 @@ def test_simulate_numerical_error_keeps_the_history_up_to_the_trouble():
 def test_sweep_interrupted_keeps_the_points_finished():
     # 50 000 airspeeds each way afresh (runs stop early once settled, about
     # 0.4 ms a point here with exact propagation), one thread: about 40 s;
-    # cut after 3 s. (With 5000 each way the whole sweep now ends within
-    # the 3 s: the signal then comes after the last point.)
+    # cut after 6 s. (With 5000 each way the whole sweep now ends within
+    # 3 s: the signal then comes after the last point. Before the first
+    # point every swept value is checked against the case, twice, about
+    # 1 s each here: under ctest -j2 a cut after 3 s once came before any
+    # point had finished.)
     case = aerosect.load_case(DEMO, simulation__duration=60)
-    timer = interrupt_after(3.0)
+    timer = interrupt_after(6.0)
     try:
         with pytest.raises(KeyboardInterrupt) as e:
             aerosect.sweep(case, {"flow.airspeed": (20, 60, 50000)}, restart="fresh", jobs=1)

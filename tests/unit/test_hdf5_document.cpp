@@ -8,6 +8,7 @@
 #include <hdf5_hl.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <array>
 #include <atomic>
 #include <cmath>
@@ -18,7 +19,10 @@
 #include <iterator>
 #include <limits>
 #include <string>
+#include <span>
 #include <vector>
+
+#include <fmt/format.h>
 
 #include "aerosect/error.hpp"
 #include "hdf5_helpers.hpp"
@@ -665,4 +669,61 @@ TEST_CASE("HDF5 document: integer tables, flags and fill values", "[hdf5_documen
   REQUIRE(back[0] == 0.0);
   REQUIRE(back[1] == 1.0);
   REQUIRE(std::isnan(back[2]));
+}
+
+TEST_CASE("HDF5 document: a table asked for block by block is the table written whole", "[hdf5_document]") {
+  // HDF5 H5Sselect_hyperslab / H5Dwrite docs: a selection written into a
+  // chunked dataset; read back with the HDF5 C++ API. Shapes chosen so the
+  // chunk splits the first, the second and the last dimension, with parts
+  // that do not divide it (common practice, no source: every value once,
+  // ascending, no block above a chunk).
+  H5::Exception::dontPrint();
+  TempDir dir;
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  for (const std::vector<std::size_t>& shape : std::vector<std::vector<std::size_t>>{
+           {3, 5}, {3, 10, 4000}, {2, 3, 7, 900}, {1, 20000}, {2, 1, 9000}}) {
+    std::vector<std::string> dims;
+    std::size_t count = 1;
+    const std::string path = dir.file(fmt::format("blocks{}.h5", shape.size() * 100 + shape.back()));
+    std::vector<double> whole;
+    {
+      Hdf5Document doc(path);
+      for (std::size_t k = 0; k < shape.size(); ++k) {
+        dims.push_back(fmt::format("d{}", k));
+        std::vector<double> axis(shape[k]);
+        for (std::size_t q = 0; q < shape[k]; ++q) axis[q] = static_cast<double>(q);
+        doc.axis(dims.back(), axis, "1", "index");
+        count *= shape[k];
+      }
+      for (std::size_t v = 0; v < count; ++v) whole.push_back(v % 7 == 3 ? nan : 0.5 * static_cast<double>(v));
+      std::size_t next = 0, largest = 0;
+      const auto blocks = [&](std::size_t first, std::span<double> out) {
+        REQUIRE(first == next);  // every value once, in ascending blocks
+        next += out.size();
+        largest = std::max(largest, out.size());
+        std::copy_n(whole.begin() + static_cast<std::ptrdiff_t>(first), out.size(), out.begin());
+      };
+      doc.dataset_blocks("real", dims, count, blocks, "1", "asked by blocks");
+      REQUIRE(next == count);
+      REQUIRE(largest * sizeof(double) <= 64 * 1024);
+      next = 0;
+      doc.integer_dataset_blocks("integer", dims, count, blocks, "1", "asked by blocks", {});
+      doc.dataset("reference", dims, whole, "1", "written whole");
+      doc.commit();
+    }
+    H5::H5File file(path, H5F_ACC_RDONLY);
+    const std::vector<double> real = read_all(file.openDataSet("real"));
+    const std::vector<double> reference = read_all(file.openDataSet("reference"));
+    REQUIRE(real.size() == count);
+    for (std::size_t v = 0; v < count; ++v) {
+      REQUIRE((real[v] == reference[v] || (std::isnan(real[v]) && std::isnan(reference[v]))));
+    }
+    const std::vector<double> integer = aerosect::read_double_dataset(path, "integer", count);
+    for (std::size_t v = 0; v < count; ++v) {
+      if (std::isnan(whole[v]))
+        REQUIRE(std::isnan(integer[v]));  // the fill value, kIntegerFill
+      else
+        REQUIRE(integer[v] == static_cast<double>(static_cast<std::int64_t>(whole[v])));
+    }
+  }
 }

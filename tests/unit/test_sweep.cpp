@@ -5,13 +5,18 @@
 #include <cmath>
 #include <numbers>
 #include <limits>
+#include <filesystem>
 #include <mutex>
+#include <string_view>
+#include <tuple>
 
 #include "aerosect/analysis/orbit.hpp"
 #include "aerosect/analysis/sweep.hpp"
+#include "aerosect/analysis/sweep_store.hpp"
 #include "aerosect/error.hpp"
 #include "aerosect/io/journal.hpp"
 #include "aerosect/io/text_file.hpp"
+#include "hdf5_helpers.hpp"
 #include "helpers.hpp"
 
 using namespace aerosect;
@@ -530,4 +535,55 @@ TEST_CASE("A flap preloaded onto its stop decays to rest there", "[lco][equilibr
   CHECK(pts[0].lco.response == ResponseClass::kPeriodic);
   CHECK(pts[1].lco.response == ResponseClass::kDecayed);
   CHECK(pts[1].lco.decay_reason == DecayReason::kToRest);
+}
+
+TEST_CASE("A sweep's points kept in a scratch file give the map, JSON and text of the points in memory", "[sweep]") {
+  // Common practice, no source: the sweep command keeps its finished points
+  // in an unlinked scratch file (sweep_store.hpp) instead of memory; every
+  // table, the --json summary and the text summary must be those of the
+  // library's form from the vector of points, on a 2-D sweep with sampled
+  // cycles (tables of width 1, 5 and 128), and the folder is left as found.
+  SweepRequest r = request(5, 2);
+  r.options.axes.push_back(SweepAxis{"springs.pitch.half_gap_deg", {0.25, 0.5, 1.0}});
+  const auto pts = run_sweep(r, {}, {});
+  REQUIRE(pts.size() == 30);
+  const Case c = parse_case(r.case_text, r.case_path, r.overrides);
+  const SweepTables t = sweep_tables(r, 2);
+  test::TempDir dir;
+  const std::filesystem::path folder = std::filesystem::path(dir.file("x")).parent_path();
+  {
+    SweepStore store(r, t, folder.string(), dir.file("map.h5"));
+    // Put in another order than run_sweep's (the chains finish in any order).
+    for (auto it = pts.rbegin(); it != pts.rend(); ++it) store.put(*it);
+    CHECK(std::filesystem::is_empty(folder));  // unlinked from the start
+    CHECK(store.size() == pts.size());
+    MemoryTables from_file, from_memory;
+    write_sweep_tables(from_file, c, r, store, nullptr);
+    write_sweep_tables(from_memory, c, r, pts, nullptr);
+    REQUIRE(from_file.tables.size() == from_memory.tables.size());
+    for (const auto& [name, table] : from_memory.tables) {
+      const auto& other = from_file.tables.at(name);
+      REQUIRE(other.data.size() == table.data.size());
+      for (std::size_t k = 0; k < table.data.size(); ++k)
+        REQUIRE((other.data[k] == table.data[k] || (std::isnan(other.data[k]) && std::isnan(table.data[k]))));
+    }
+    CHECK(from_file.text == from_memory.text);
+    std::string text, json;
+    write_sweep_text(c, r, store, "map.h5", [&](std::string_view s) { text += s; });
+    CHECK(text == sweep_text(c, r, pts, "map.h5"));
+    write_sweep_json(sweep_json_head(c, r, store, "map.h5"), store, [&](std::string_view s) { json += s; });
+    CHECK(json == sweep_json(c, r, pts, "map.h5").dump(2));
+    CHECK(store.tally().summary.onset_up == summarize(pts).onset_up);
+    std::size_t visited = 0;
+    store.visit([&](const SweepPoint& p) {
+      const SweepPoint& q = pts[visited++];  // run_sweep's order
+      CHECK(std::tie(p.direction, p.j, p.i) == std::tie(q.direction, q.j, q.i));
+      CHECK(p.error == q.error);
+      CHECK(p.refinement_failure == q.refinement_failure);
+      CHECK(p.lco.dof[kPitch].amplitude == q.lco.dof[kPitch].amplitude);
+      CHECK(p.cycle.trace[kPitch] == q.cycle.trace[kPitch]);
+    });
+    CHECK(visited == pts.size());
+  }
+  CHECK(std::filesystem::is_empty(folder));
 }

@@ -136,6 +136,15 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
                                   const std::atomic<bool>* cancel = nullptr,
                                   const std::function<void()>& beside = {});
 
+// The streaming form of run_sweep: every point (the done ones too, with
+// `computed` false) is handed to `each` as its chain reaches it (from the
+// worker threads: `each` must be thread-safe), and none is kept but each
+// chain's previous point, so memory does not grow with the number of
+// points (the sweep command puts them into a SweepStore, sweep_store.hpp).
+void sweep_each(const SweepRequest& r, const std::vector<SweepPoint>& done,
+                const std::function<void(const SweepPoint&, bool computed)>& each,
+                const std::atomic<bool>* cancel = nullptr, const std::function<void()>& beside = {});
+
 // Most values per axis, and most points in one sweep (both directions, the
 // whole grid): each point is a run, and the map holds every point's rows.
 // The command refuses larger sweeps; a request read from a file asking for

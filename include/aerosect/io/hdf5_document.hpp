@@ -62,6 +62,13 @@ class Hdf5Document : public TableSink {
                std::span<const double> data, const std::string& units,
                const std::string& long_name) override;
 
+  // The same with the values asked for one chunk at a time (TableSink::Blocks).
+  void dataset_blocks(const std::string& path, const std::vector<std::string>& dims, std::size_t count,
+                      const Blocks& values, const std::string& units, const std::string& long_name) override;
+  void integer_dataset_blocks(const std::string& path, const std::vector<std::string>& dims, std::size_t count,
+                              const Blocks& values, const std::string& units, const std::string& long_name,
+                              const Flags& flags) override;
+
   // An int64 dataset whose fill value kIntegerFill is declared (_FillValue);
   // a class (flags given) has flag_values and flag_meanings and no units.
   void integer_dataset(const std::string& path, const std::vector<std::string>& dims,

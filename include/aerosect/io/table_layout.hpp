@@ -12,6 +12,7 @@
 // records for which the field is absent (`present` false), hold the fill
 // value the dataset declares: NaN, or kIntegerFill in an integer field.
 
+#include <algorithm>
 #include <cmath>
 #include <cstddef>
 #include <cstdint>
@@ -42,6 +43,9 @@ struct Flags {
 // cells without a value hold it, declared as their _FillValue (CF 1.10
 // §2.5.1). Double tables use NaN.
 inline constexpr std::int64_t kIntegerFill = -1;
+// A value of an integer table given as a double: NaN (or any non-finite
+// value) is a cell without a value.
+inline std::int64_t integer_cell(double v) { return std::isfinite(v) ? static_cast<std::int64_t>(v) : kIntegerFill; }
 
 // Where the tables of a result go. Hdf5Document is one; MemoryTables keeps
 // them for tests.
@@ -61,6 +65,24 @@ class TableSink {
   virtual void integer_dataset(const std::string& path, const std::vector<std::string>& dims,
                                std::span<const std::int64_t> data, const std::string& units,
                                const std::string& long_name, const Flags& flags) = 0;
+  // A table whose values are asked for block by block: `values(first, out)`
+  // fills `out` with the values first .. first + out.size() - 1 (row-major),
+  // each asked for once, in ascending blocks, so the whole table need not be
+  // in memory (a sweep's map is written from its scratch file). `count` is
+  // the number of values (the product of the axes' lengths). By default the
+  // values are gathered and written as one table.
+  using Blocks = std::function<void(std::size_t first, std::span<double> out)>;
+  virtual void dataset_blocks(const std::string& path, const std::vector<std::string>& dims, std::size_t count,
+                              const Blocks& values, const std::string& units, const std::string& long_name) {
+    std::vector<double> v(count);
+    if (count > 0) values(0, v);
+    dataset(path, dims, v, units, long_name);
+  }
+  // An integer table (as integer_dataset) from values given as doubles: a
+  // non-finite value is a cell without a value (kIntegerFill).
+  virtual void integer_dataset_blocks(const std::string& path, const std::vector<std::string>& dims,
+                                      std::size_t count, const Blocks& values, const std::string& units,
+                                      const std::string& long_name, const Flags& flags);
   // Declares NaN the _FillValue of the double dataset at `path` (cells
   // without a value: a point not run, a run not periodic).
   virtual void nan_fill(const std::string& path) = 0;
@@ -74,6 +96,16 @@ class TableSink {
                                 const std::string& units) = 0;
   virtual void integer_attribute(const std::string& object, const std::string& name, std::int64_t value) = 0;
 };
+
+inline void TableSink::integer_dataset_blocks(const std::string& path, const std::vector<std::string>& dims,
+                                              std::size_t count, const Blocks& values, const std::string& units,
+                                              const std::string& long_name, const Flags& flags) {
+  std::vector<double> v(count);
+  if (count > 0) values(0, v);
+  std::vector<std::int64_t> n(count);
+  for (std::size_t k = 0; k < count; ++k) n[k] = integer_cell(v[k]);
+  integer_dataset(path, dims, n, units, long_name, flags);
+}
 
 // Tables in memory (tests): datasets by path with their units and long_name.
 class MemoryTables : public TableSink {
@@ -175,34 +207,55 @@ bool is_list(const Field<T>& f) {
 }
 
 // Writes every field of `layout` as a dataset over `dims` (the grid, `cells`
-// cells) from `records`, placed by `cell_of`.
-// Each dataset's path is `prefix` + the field's name (prefix "group/" puts
-// the tables in a group).
-// Cells without a record, and absent fields, hold the declared fill value
-// (NaN, or kIntegerFill for an integer field).
+// cells), its values asked for block by block: `column(k, first, out)`
+// fills `out` with values first .. of field k (layout[k]), cell-major (a
+// cell's `width` values together). Each dataset's path is `prefix` + the
+// field's name (prefix "group/" puts the tables in a group). A cell without
+// a record, or whose field is absent, holds NaN (the declared fill value; an
+// integer field's is kIntegerFill).
+template <class T>
+void write_layout_columns(TableSink& sink, const Layout<T>& layout, const std::vector<std::string>& dims,
+                          std::size_t cells,
+                          const std::function<void(std::size_t, std::size_t, std::span<double>)>& column,
+                          const std::string& prefix = {}) {
+  for (std::size_t k = 0; k < layout.size(); ++k) {
+    const Field<T>& f = layout[k];
+    std::vector<std::string> d = dims;
+    if (is_list(f)) d.push_back(f.axis);
+    const TableSink::Blocks values = [&](std::size_t first, std::span<double> out) { column(k, first, out); };
+    if (f.integer) {
+      sink.integer_dataset_blocks(prefix + f.name, d, cells * f.width, values, f.units, f.long_name, f.flags);
+    } else {
+      sink.dataset_blocks(prefix + f.name, d, cells * f.width, values, f.units, f.long_name);
+      sink.nan_fill(prefix + f.name);
+    }
+  }
+}
+
+// The same from `records` in memory, placed by `cell_of`.
 template <class T>
 void write_layout(TableSink& sink, const Layout<T>& layout, const std::vector<std::string>& dims,
                   std::size_t cells, const std::vector<T>& records,
                   const std::function<std::size_t(const T&)>& cell_of, const std::string& prefix = {}) {
-  for (const Field<T>& f : layout) {
-    std::vector<double> v(cells * f.width, std::numeric_limits<double>::quiet_NaN());
-    for (const T& r : records) {
-      if (f.present && !f.present(r)) continue;
-      const std::size_t at = cell_of(r) * f.width;
-      for (std::size_t q = 0; q < f.width; ++q) v[at + q] = f.get(r, q);
-    }
-    std::vector<std::string> d = dims;
-    if (is_list(f)) d.push_back(f.axis);
-    if (f.integer) {
-      std::vector<std::int64_t> n(v.size(), kIntegerFill);
-      for (std::size_t k = 0; k < v.size(); ++k)
-        if (std::isfinite(v[k])) n[k] = static_cast<std::int64_t>(v[k]);
-      sink.integer_dataset(prefix + f.name, d, n, f.units, f.long_name, f.flags);
-    } else {
-      sink.dataset(prefix + f.name, d, v, f.units, f.long_name);
-      sink.nan_fill(prefix + f.name);
-    }
-  }
+  std::vector<double> v;  // the column of the field being written
+  std::size_t filled = layout.size();
+  write_layout_columns<T>(
+      sink, layout, dims, cells,
+      [&](std::size_t k, std::size_t first, std::span<double> out) {
+        const Field<T>& f = layout[k];
+        if (filled != k) {
+          v.assign(cells * f.width, std::numeric_limits<double>::quiet_NaN());
+          for (const T& r : records) {
+            if (f.present && !f.present(r)) continue;
+            const std::size_t at = cell_of(r) * f.width;
+            for (std::size_t q = 0; q < f.width; ++q) v[at + q] = f.get(r, q);
+          }
+          filled = k;
+        }
+        std::copy(v.begin() + static_cast<std::ptrdiff_t>(first),
+                  v.begin() + static_cast<std::ptrdiff_t>(first + out.size()), out.begin());
+      },
+      prefix);
 }
 
 // One number in JSON: itself when finite, else the text "nan", "inf" or

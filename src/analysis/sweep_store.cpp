@@ -96,7 +96,8 @@ struct SweepStore::Records {
                                          folder, std::strerror(errno)));
   }
 
-  void write_at(const void* data, std::size_t bytes, std::uint64_t offset) {
+  // Writes the file, not this object: const, for the columns made on reading.
+  void write_at(const void* data, std::size_t bytes, std::uint64_t offset) const {
     const char* p = static_cast<const char*>(data);
     while (bytes > 0) {
       const ssize_t n = ::pwrite(fd, p, bytes, static_cast<off_t>(offset));
@@ -179,8 +180,7 @@ struct SweepStore::Records {
           const double* rec = block.data() + q * width;
           column[q] = rec[kHeld] != 0.0 ? rec[u] : kNaN;
         }
-        const_cast<Records*>(this)->write_at(column.data(), n * sizeof(double),
-                                             columns_base + (u * cells + at) * sizeof(double));
+        write_at(column.data(), n * sizeof(double), columns_base + (u * cells + at) * sizeof(double));
       }
     }
     transposed = true;

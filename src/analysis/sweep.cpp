@@ -288,7 +288,7 @@ void check_swept_values(const SweepRequest& r) {
 
 void sweep_each(const SweepRequest& request, const std::vector<SweepPoint>& done,
                 const std::function<void(const SweepPoint&, bool)>& each, const std::atomic<bool>* cancel,
-                const std::function<void()>& beside) {
+                const std::function<void()>& beside, const std::function<bool(int, int, int)>& held) {
   SweepRequest parsed = request;
   if (!parsed.document) parsed.document = std::make_shared<const CaseDocument>(request.case_text, request.case_path);
   const SweepRequest& r = parsed;
@@ -329,6 +329,12 @@ void sweep_each(const SweepRequest& request, const std::vector<SweepPoint>& done
           if (it != known.end()) {
             each(*it->second, false);
             previous = *it->second;
+          } else if (held && held(ch.direction, i, ch.j)) {
+            // Finished before and kept by the caller: not reported, and no
+            // start for the next point (which, when it is to run, has its
+            // start in `done`).
+            has_previous = false;
+            continue;
           } else {
             std::optional<SweepPoint> p = run_point(r, ch.direction, i, ch.j, has_previous ? &previous : nullptr, cancel);
             if (!p) break;
@@ -519,18 +525,24 @@ JournalHead sweep_journal_head(const SweepRequest& r) {
   return h;
 }
 
+SweepPoint journal_point(const JournalRecord& rec, const std::string& journal, const SweepRequest& r,
+                         const SweepTables& t, const std::function<bool(const SweepPoint&)>& seen) {
+  SweepPoint p = point_from_record(rec.value, r, t, {journal, rec.line, 0});
+  if (seen(p))
+    throw InputError({journal, rec.line, 0}, "", "",
+                     fmt::format("holds the point (direction {}, i {}, j {}) a second time", p.direction, p.i, p.j),
+                     "each point once (remove the journal to start the sweep again)");
+  return p;
+}
+
 std::vector<SweepPoint> points_from_journal(const Journal& journal, const SweepRequest& r,
                                             const SweepTables& t) {
   std::vector<SweepPoint> done;
   std::set<Key> seen;
-  for (const auto& rec : journal.records()) {
-    SweepPoint p = point_from_record(rec.value, r, t, {journal.path(), rec.line, 0});
-    if (!seen.insert({p.direction, p.j, p.i}).second)
-      throw InputError({journal.path(), rec.line, 0}, "", "",
-                       fmt::format("holds the point (direction {}, i {}, j {}) a second time", p.direction, p.i, p.j),
-                       "each point once (remove the journal to start the sweep again)");
-    done.push_back(std::move(p));
-  }
+  for (const auto& rec : journal.records())
+    done.push_back(journal_point(rec, journal.path(), r, t, [&seen](const SweepPoint& p) {
+      return !seen.insert({p.direction, p.j, p.i}).second;
+    }));
   return done;
 }
 

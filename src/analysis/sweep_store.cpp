@@ -34,6 +34,10 @@ enum Extra : std::size_t {
   kErrorLength,
   kFailureAt,      // the refinement failure text: offset, length
   kFailureLength,
+  kStateAt,        // the final state (doubles) and spring regions (ints), as bytes: offset, length
+  kStateLength,
+  kRegionsAt,
+  kRegionsLength,
   kExtras
 };
 
@@ -143,6 +147,18 @@ struct SweepStore::Records {
                     out.begin() + static_cast<std::ptrdiff_t>(q * width));
   }
 
+  template <class T>
+  std::pair<double, double> keep_values(const std::vector<T>& v) {
+    return keep_text(std::string(reinterpret_cast<const char*>(v.data()), v.size() * sizeof(T)));
+  }
+  template <class T>
+  std::vector<T> values(double at, double length) const {
+    const std::string bytes = text(at, length);
+    std::vector<T> v(bytes.size() / sizeof(T));
+    std::memcpy(v.data(), bytes.data(), v.size() * sizeof(T));
+    return v;
+  }
+
   std::pair<double, double> keep_text(const std::string& s) {
     if (s.empty()) return {0.0, 0.0};
     std::uint64_t at = 0;
@@ -207,6 +223,8 @@ struct SweepStore::Records {
     p.steps = static_cast<std::int64_t>(rec[kSteps]);
     p.error = text(rec[kErrorAt], rec[kErrorLength]);
     p.refinement_failure = text(rec[kFailureAt], rec[kFailureLength]);
+    p.final_state = values<double>(rec[kStateAt], rec[kStateLength]);
+    p.final_regions = values<int>(rec[kRegionsAt], rec[kRegionsLength]);
     return p;
   }
 };
@@ -270,6 +288,8 @@ void SweepStore::put(const SweepPoint& p) {
   const std::lock_guard<std::mutex> lock(s.mutex);
   std::tie(rec[kErrorAt], rec[kErrorLength]) = s.keep_text(p.error);
   std::tie(rec[kFailureAt], rec[kFailureLength]) = s.keep_text(p.refinement_failure);
+  std::tie(rec[kStateAt], rec[kStateLength]) = s.keep_values(p.final_state);
+  std::tie(rec[kRegionsAt], rec[kRegionsLength]) = s.keep_values(p.final_regions);
   AEROSECT_CHECK(!s.is_held[cell] && !s.transposed);  // each cell once, before any table is read
   if (s.fd >= 0) {
     s.write_at(rec.data(), rec.size() * sizeof(double), cell * s.record_bytes());
@@ -283,6 +303,25 @@ void SweepStore::put(const SweepPoint& p) {
 }
 
 const SweepTally& SweepStore::tally() const { return records_->tally; }
+
+bool SweepStore::held(int direction, int i, int j) const {
+  const Records& s = *records_;
+  const std::size_t cell = (static_cast<std::size_t>(direction) * s.t.n1 + static_cast<std::size_t>(i)) * s.t.n2 +
+                           static_cast<std::size_t>(j);
+  const std::lock_guard<std::mutex> lock(s.mutex);
+  return cell < s.cells && s.is_held[cell];
+}
+
+SweepPoint SweepStore::get(int direction, int i, int j) const {
+  const Records& s = *records_;
+  const std::size_t cell = (static_cast<std::size_t>(direction) * s.t.n1 + static_cast<std::size_t>(i)) * s.t.n2 +
+                           static_cast<std::size_t>(j);
+  const std::lock_guard<std::mutex> lock(s.mutex);
+  AEROSECT_CHECK(cell < s.cells && s.is_held[cell]);
+  std::vector<double> rec;
+  s.read(cell, 1, rec);
+  return s.point(cell, rec.data());
+}
 
 void SweepStore::visit(const std::function<void(const SweepPoint&)>& f) const {
   const Records& s = *records_;

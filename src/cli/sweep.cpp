@@ -100,47 +100,68 @@ int run(const SweepCommandOptions& o) {
   // with the same -o is refused before it touches the journal).
   claim_output(o.output);
   claim_output(o.output + ".journal");
-  Journal journal(o.output + ".journal", journal_head(req, c));
-  for (const auto& n : journal.notes()) std::cerr << "aerosect: " << n << "\n";
   const SweepTables tables = sweep_tables(req, c.model.section.dof);
-  const std::vector<SweepPoint> done = points_from_journal(journal, req, tables);
-  if (!done.empty())
-    std::cerr << "aerosect: resuming: " << done.size() << " finished points read from " << journal.path() << "\n";
-
   // The finished points wait for the map in a scratch file beside it
   // (unlinked: nothing is left behind), not in memory: the command's memory
-  // does not grow with the number of points.
+  // does not grow with the number of points, resumed ones included.
   const std::string folder = std::filesystem::path(o.output).parent_path().string();
   SweepStore store(req, tables, folder.empty() ? "." : folder, o.output);
+  const std::string journal_path = o.output + ".journal";
+  std::size_t resumed = 0;
+  Journal journal(journal_path, journal_head(req, c), [&](JournalRecord&& rec) {
+    store.put(journal_point(rec, journal_path, req, tables,
+                            [&](const SweepPoint& p) { return store.held(p.direction, p.i, p.j); }));
+    ++resumed;
+  });
+  for (const auto& n : journal.notes()) std::cerr << "aerosect: " << n << "\n";
+  if (resumed > 0)
+    std::cerr << "aerosect: resuming: " << resumed << " finished points read from " << journal.path() << "\n";
+  // Of the finished points, only those whose successor in their chain is
+  // to run are held in memory: their final states start it.
+  std::vector<SweepPoint> starts;
+  const int n1 = static_cast<int>(tables.n1), n2 = static_cast<int>(tables.n2);
+  if (resumed > 0 && req.options.continuation)
+    for (int d = 0; d < 2; ++d)
+      for (int j = 0; j < n2; ++j)
+        for (int i = 0; i < n1; ++i) {
+          const int next = d == 0 ? i + 1 : i - 1;
+          if (next >= 0 && next < n1 && store.held(d, i, j) && !store.held(d, next, j))
+            starts.push_back(store.get(d, i, j));
+        }
 
   std::mutex mu;
   std::string journal_failure;  // why a point could not be journaled or kept; the sweep stops then
-  std::size_t finished = done.size();
-  const Progress progress(done.size(), sweep_point_count(req));
+  std::size_t finished = resumed;
+  const Progress progress(resumed, sweep_point_count(req));
   auto on_point = [&](const SweepPoint& p, bool computed) {
+    if (!computed) return;  // a start read from the journal: kept already
     std::lock_guard<std::mutex> lock(mu);
     if (!journal_failure.empty()) return;
     try {
-      if (computed) journal.append(point_record(p, tables));
+      journal.append(point_record(p, tables));
       store.put(p);
     } catch (const OutputError& e) {
       journal_failure = e.what();
       request_stop();
       return;
     }
-    if (computed) progress.point_done(++finished);
+    progress.point_done(++finished);
   };
   // The overlay (linear flutter speeds, describing-function curve) does not
   // depend on the points: one more work item of the sweep's threads.
   std::optional<FlutterReport> overlay;
   std::exception_ptr overlay_failure;
-  sweep_each(req, done, on_point, cancel_flag(), [&] {
-    try {
-      overlay = sweep_overlay(c, req, cancel_flag());
-    } catch (...) {
-      overlay_failure = std::current_exception();
-    }
-  });
+  const auto held = [&store](int d, int i, int j) { return store.held(d, i, j); };
+  sweep_each(
+      req, starts, on_point, cancel_flag(),
+      [&] {
+        try {
+          overlay = sweep_overlay(c, req, cancel_flag());
+        } catch (...) {
+          overlay_failure = std::current_exception();
+        }
+      },
+      held);
   progress.end();
   if (!journal_failure.empty())
     throw OutputError(journal.path(), fmt::format("writing a finished point failed ({}); the {} points "
@@ -160,7 +181,7 @@ int run(const SweepCommandOptions& o) {
   const auto out = [](std::string_view piece) { print(piece); };
   if (o.json) {
     nlohmann::json head = sweep_json_head(c, req, store, o.output);
-    head["points_resumed"] = done.size();  // read from the journal, not recomputed
+    head["points_resumed"] = resumed;  // read from the journal, not recomputed
     write_sweep_json(head, store, out);
     out("\n");
   } else {

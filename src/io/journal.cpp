@@ -171,7 +171,8 @@ std::string fnv1a64_hex(std::string_view bytes) {
   return fmt::format("{:016x}", h);
 }
 
-Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
+Journal::Journal(std::string path, JournalHead head, const std::function<void(JournalRecord&&)>& on_record)
+    : path_(std::move(path)) {
   std::error_code ec;
   const auto status = fs::status(path_, ec);
   std::uintmax_t good_end = 0;  // bytes of the complete lines read
@@ -210,10 +211,15 @@ Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
         good_end = bytes;
         std::optional<nlohmann::json> j;
         if (got == LineRead::kComplete) j = record_of(line, line_check_);
-        if (j)
-          records_.push_back({number, std::move(*j)});
-        else
+        if (j) {
+          ++read_;
+          if (on_record)
+            on_record({number, std::move(*j)});
+          else
+            records_.push_back({number, std::move(*j)});
+        } else {
           damaged.push_back(number);
+        }
       }
       damaged_ = damaged.size();
       if (!damaged.empty()) {
@@ -222,7 +228,7 @@ Journal::Journal(std::string path, JournalHead head) : path_(std::move(path)) {
         if (damaged.size() > 10) lines += ", ...";
         notes_.push_back(fmt::format("{}: {} damaged line(s) skipped (line {}); the {} intact points are kept and "
                                      "the damaged ones computed again",
-                                     path_, damaged.size(), lines, records_.size()));
+                                     path_, damaged.size(), lines, read_));
       }
     }
     in.close();
@@ -267,7 +273,7 @@ void Journal::append(const nlohmann::json& record) {
 
 std::size_t Journal::size() const {
   std::lock_guard<std::mutex> lock(mutex_);
-  return records_.size() + appended_;
+  return read_ + appended_;
 }
 
 void Journal::remove() {

@@ -6,6 +6,7 @@
 #include <numbers>
 #include <limits>
 #include <filesystem>
+#include <fstream>
 #include <mutex>
 #include <string_view>
 #include <tuple>
@@ -586,4 +587,77 @@ TEST_CASE("A sweep's points kept in a scratch file give the map, JSON and text o
     CHECK(visited == pts.size());
   }
   CHECK(std::filesystem::is_empty(folder));
+}
+
+TEST_CASE("A resumed sweep needs only the points whose successor is to run", "[sweep]") {
+  // Common practice, no source: finished points kept elsewhere (`held`)
+  // are neither run nor reported, and only those whose successor in their
+  // chain is still to run are handed in (their final states start it, read
+  // back from a scratch file); the points run are those of the
+  // uninterrupted sweep, bit for bit, with a gap in a chain (a damaged
+  // journal line) as well as an interrupted tail.
+  const SweepRequest r = request(8, 2);
+  const auto full = run_sweep(r, {}, {});
+  const SweepTables t = sweep_tables(r, 2);
+  test::TempDir dir;
+  SweepStore store(r, t, std::filesystem::path(dir.file("x")).parent_path().string(), dir.file("map.h5"));
+  // Up: 0..4 finished but 2 (a gap); down (from the top, i = 7 first): 7..5.
+  auto finished = [](const SweepPoint& p) {
+    return p.direction == 0 ? (p.i <= 4 && p.i != 2) : p.i >= 5;
+  };
+  for (const auto& p : full)
+    if (finished(p)) store.put(p);
+  std::vector<SweepPoint> starts;
+  for (int d = 0; d < 2; ++d)
+    for (int i = 0; i < 8; ++i) {
+      const int next = d == 0 ? i + 1 : i - 1;
+      if (next >= 0 && next < 8 && store.held(d, i, 0) && !store.held(d, next, 0)) starts.push_back(store.get(d, i, 0));
+    }
+  REQUIRE(starts.size() == 3);  // up 1 and 4, down 5
+  std::mutex mu;
+  std::vector<SweepPoint> run;
+  sweep_each(
+      r, starts,
+      [&](const SweepPoint& p, bool computed) {
+        const std::lock_guard<std::mutex> lock(mu);
+        if (computed) run.push_back(p);
+      },
+      nullptr, {}, [&](int d, int i, int j) { return store.held(d, i, j); });
+  REQUIRE(run.size() == full.size() - 7);  // 4 up and 3 down finished
+  for (const auto& p : run) {
+    CHECK_FALSE(finished(p));
+    const auto& q = *std::find_if(full.begin(), full.end(), [&](const SweepPoint& f) {
+      return f.direction == p.direction && f.i == p.i;
+    });
+    CHECK(p.lco.dof[kPitch].amplitude == q.lco.dof[kPitch].amplitude);
+    CHECK(p.final_state == q.final_state);
+  }
+}
+
+TEST_CASE("A journal read back through a callback hands over every intact record and keeps none", "[sweep]") {
+  // Common practice, no source: the records read back on opening go to the
+  // callback in file order with their line numbers (a damaged line skipped
+  // and counted, as when they are kept), and the journal holds none of them.
+  test::TempDir dir;
+  const std::string path = dir.file("map.h5.journal");
+  JournalHead head;
+  head.kind = "test";
+  head.identity = {{"sweep", 1}};
+  {
+    Journal j(path, head);
+    for (int k = 0; k < 4; ++k) j.append({{"k", k}});
+  }
+  std::string text = read_file_bytes(path);
+  const std::size_t third = text.find("\"k\":2");
+  REQUIRE(third != std::string::npos);
+  text[third + 4] = '7';  // line 4 (the record k = 2) no longer matches its digest
+  std::ofstream(path, std::ios::binary | std::ios::trunc) << text;
+  std::vector<std::pair<int, int>> got;  // (line, k)
+  Journal j(path, head, [&](JournalRecord&& rec) { got.emplace_back(rec.line, rec.value.at("k").get<int>()); });
+  CHECK(got == std::vector<std::pair<int, int>>{{2, 0}, {3, 1}, {5, 3}});
+  CHECK(j.records().empty());
+  CHECK(j.size() == 3);
+  CHECK(j.damaged_lines() == 1);
+  REQUIRE(j.notes().size() == 1);
+  CHECK(j.notes()[0].find("the 3 intact points are kept") != std::string::npos);
 }

@@ -141,9 +141,14 @@ std::vector<SweepPoint> run_sweep(const SweepRequest& r, const std::vector<Sweep
 // worker threads: `each` must be thread-safe), and none is kept but each
 // chain's previous point, so memory does not grow with the number of
 // points (the sweep command puts them into a SweepStore, sweep_store.hpp).
+// A point for which `held(direction, i, j)` is true is finished and kept by
+// the caller: it is neither run nor reported, and `done` need only hold the
+// finished points whose successor in their chain is to run (their final
+// states start it); so a resumed sweep need not hold its journal.
 void sweep_each(const SweepRequest& r, const std::vector<SweepPoint>& done,
                 const std::function<void(const SweepPoint&, bool computed)>& each,
-                const std::atomic<bool>* cancel = nullptr, const std::function<void()>& beside = {});
+                const std::atomic<bool>* cancel = nullptr, const std::function<void()>& beside = {},
+                const std::function<bool(int direction, int i, int j)>& held = {});
 
 // Most values per axis, and most points in one sweep (both directions, the
 // whole grid): each point is a run, and the map holds every point's rows.
@@ -204,6 +209,11 @@ SweepPoint point_from_record(const nlohmann::json& j, const SweepRequest& r, con
 // The journal of a sweep (io/journal.hpp): kind "sweep", this program's
 // journal format and the request as identity.
 JournalHead sweep_journal_head(const SweepRequest& r);
+// One record read back from the journal at path `journal` as a point of
+// this sweep (point_from_record at its line); InputError naming the line
+// when `seen(point)` says an earlier record held that point.
+SweepPoint journal_point(const JournalRecord& rec, const std::string& journal, const SweepRequest& r,
+                         const SweepTables& t, const std::function<bool(const SweepPoint&)>& seen);
 // The finished points read back from a journal opened with that head.
 // Throws InputError naming the journal and the line of a record that is not
 // a point of this sweep (or holds a point twice).

@@ -8,10 +8,10 @@
 // each field's `width` values, NaN where a field is absent) followed by
 // what the summaries read besides (the detector's class before a failure,
 // the watched DOF, whether the run stopped early, its steps, the cycle's
-// period, and the error and refinement-failure texts, kept after the
-// records). The map's tables are read from it column by column; a point is
-// read back as SweepPoint with every field its summaries use (not its final
-// state and regions, which only continuation needs).
+// period, and the error and refinement-failure texts and the final state
+// and spring regions, kept after the records). The map's tables are read
+// from it column by column; a point is read back as SweepPoint with every
+// field its summaries and continuation use.
 //
 // The scratch file is made in a given folder (the map's, which the command
 // has claimed) and unlinked at once (O_TMPFILE, or a unique name removed
@@ -69,6 +69,10 @@ class SweepStore {
   // value), gathered as they were put.
   const SweepTally& tally() const;
 
+  // Whether the point (direction, i, j) is held; that point read back
+  // (InternalError when it is not held). Thread-safe beside put.
+  bool held(int direction, int i, int j) const;
+  SweepPoint get(int direction, int i, int j) const;
   // Calls `f` with every held point, read back from its record, in the
   // order run_sweep returns them (direction, second axis, first axis: chain
   // by chain). Throws OutputError on a read failure.

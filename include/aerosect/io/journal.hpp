@@ -34,6 +34,7 @@
 
 #include <cstdint>
 #include <fstream>
+#include <functional>
 #include <mutex>
 #include <string>
 #include <string_view>
@@ -75,7 +76,10 @@ class Journal {
   // Opens `path` for appending: an existing journal is read back (see above;
   // InputError when it belongs to other work, OutputError when it cannot be
   // read or shortened), a missing or empty one is created with the head.
-  Journal(std::string path, JournalHead head);
+  // With `on_record`, each record read back is handed to it, in file order,
+  // instead of being kept (records() is then empty): a long journal is
+  // never held whole. An exception it throws leaves the constructor.
+  Journal(std::string path, JournalHead head, const std::function<void(JournalRecord&&)>& on_record = {});
   Journal(const Journal&) = delete;
   Journal& operator=(const Journal&) = delete;
 
@@ -106,6 +110,7 @@ class Journal {
   std::vector<std::string> notes_;
   int format_read_ = 0;
   std::size_t damaged_ = 0;
+  std::size_t read_ = 0;  // records read back (kept or handed on)
   bool line_check_ = true;  // records are written with their digest
   mutable std::mutex mutex_;
   std::ofstream out_;

@@ -155,7 +155,7 @@ struct SweepStore::Records {
   std::vector<T> values(double at, double length) const {
     const std::string bytes = text(at, length);
     std::vector<T> v(bytes.size() / sizeof(T));
-    std::memcpy(v.data(), bytes.data(), v.size() * sizeof(T));
+    if (!v.empty()) std::memcpy(v.data(), bytes.data(), v.size() * sizeof(T));  // (memcpy from null is UB)
     return v;
   }
 

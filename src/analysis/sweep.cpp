@@ -360,6 +360,21 @@ void sweep_each(const SweepRequest& request, const std::vector<SweepPoint>& done
   if (failure) std::rethrow_exception(failure);
 }
 
+std::vector<SweepPoint> continuation_starts(const SweepRequest& r, const std::function<bool(int, int, int)>& held,
+                                            const std::function<SweepPoint(int, int, int)>& get) {
+  std::vector<SweepPoint> starts;
+  if (!r.options.continuation) return starts;
+  const int n1 = static_cast<int>(r.options.axes.at(0).values.size());
+  const int n2 = r.options.axes.size() > 1 ? static_cast<int>(r.options.axes[1].values.size()) : 1;
+  for (int d = 0; d < 2; ++d)
+    for (int j = 0; j < n2; ++j)
+      for (int i = 0; i < n1; ++i) {
+        const int next = d == 0 ? i + 1 : i - 1;  // a chain's order (sweep_each)
+        if (next >= 0 && next < n1 && held(d, i, j) && !held(d, next, j)) starts.push_back(get(d, i, j));
+      }
+  return starts;
+}
+
 std::vector<SweepPoint> run_sweep(const SweepRequest& request, const std::vector<SweepPoint>& done,
                                   const std::function<void(const SweepPoint&)>& on_point,
                                   const std::atomic<bool>* cancel, const std::function<void()>& beside) {
@@ -923,9 +938,10 @@ std::string SweepTables::cite(std::string_view name, const SweepPoint& p) const 
   return t + "]";
 }
 
-std::size_t SweepTables::cell(const SweepPoint& p) const {
-  return (static_cast<std::size_t>(p.direction) * n1 + static_cast<std::size_t>(p.i)) * n2 +
-         static_cast<std::size_t>(p.j);
+std::size_t SweepTables::cell(const SweepPoint& p) const { return cell(p.direction, p.i, p.j); }
+
+std::size_t SweepTables::cell(int direction, int i, int j) const {
+  return (static_cast<std::size_t>(direction) * n1 + static_cast<std::size_t>(i)) * n2 + static_cast<std::size_t>(j);
 }
 
 nlohmann::json point_record(const SweepPoint& p, const SweepTables& t) {

@@ -63,7 +63,6 @@ struct SweepStore::Records {
   std::string owner, folder;
   std::uint64_t text_end = 0;  // bytes of text written after the records
 
-  std::size_t held = 0;
   std::vector<bool> is_held;  // by cell: a bit per cell, not a point
   SweepTally tally;           // of the points held, gathered as they are put
   // The columns (each record value's slot over every cell, after the texts
@@ -259,7 +258,7 @@ const SweepTables& SweepStore::tables() const { return records_->t; }
 
 std::size_t SweepStore::size() const {
   const std::lock_guard<std::mutex> lock(records_->mutex);
-  return records_->held;
+  return records_->tally.points;
 }
 
 void SweepStore::put(const SweepPoint& p) {
@@ -298,7 +297,6 @@ void SweepStore::put(const SweepPoint& p) {
     s.slot_of_cell[cell] = s.memory.size() / s.width;
   }
   s.is_held[cell] = true;
-  ++s.held;
   s.tally.add(p);
 }
 
@@ -306,16 +304,14 @@ const SweepTally& SweepStore::tally() const { return records_->tally; }
 
 bool SweepStore::held(int direction, int i, int j) const {
   const Records& s = *records_;
-  const std::size_t cell = (static_cast<std::size_t>(direction) * s.t.n1 + static_cast<std::size_t>(i)) * s.t.n2 +
-                           static_cast<std::size_t>(j);
+  const std::size_t cell = s.t.cell(direction, i, j);
   const std::lock_guard<std::mutex> lock(s.mutex);
   return cell < s.cells && s.is_held[cell];
 }
 
 SweepPoint SweepStore::get(int direction, int i, int j) const {
   const Records& s = *records_;
-  const std::size_t cell = (static_cast<std::size_t>(direction) * s.t.n1 + static_cast<std::size_t>(i)) * s.t.n2 +
-                           static_cast<std::size_t>(j);
+  const std::size_t cell = s.t.cell(direction, i, j);
   const std::lock_guard<std::mutex> lock(s.mutex);
   AEROSECT_CHECK(cell < s.cells && s.is_held[cell]);
   std::vector<double> rec;

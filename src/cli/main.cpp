@@ -70,14 +70,15 @@ int main(int argc, char** argv) {
   namespace cli = aerosect::cli;
   // `aerosect --version` alone needs none of the commands: answered, as
   // CLI11 would, before they are built (0.5 ms of start-up).
+  const std::string version = std::string("aerosect ") + aerosect::kVersion;
   if (argc == 2 && std::string_view(argv[1]) == "--version") {
-    std::printf("aerosect %s\n", aerosect::kVersion);
+    std::printf("%s\n", version.c_str());
     return 0;
   }
   cli::install_signal_handlers();
 
   CLI::App app{"aerosect: time-domain nonlinear aeroelastic simulation of a typical section"};
-  app.set_version_flag("--version", std::string("aerosect ") + aerosect::kVersion);
+  app.set_version_flag("--version", version);
   app.require_subcommand(1);
   // Option errors found by the parser, headed like those found later.
   app.failure_message([](const CLI::App*, const CLI::Error& e) {

@@ -118,16 +118,10 @@ int run(const SweepCommandOptions& o) {
     std::cerr << "aerosect: resuming: " << resumed << " finished points read from " << journal.path() << "\n";
   // Of the finished points, only those whose successor in their chain is
   // to run are held in memory: their final states start it.
-  std::vector<SweepPoint> starts;
-  const int n1 = static_cast<int>(tables.n1), n2 = static_cast<int>(tables.n2);
-  if (resumed > 0 && req.options.continuation)
-    for (int d = 0; d < 2; ++d)
-      for (int j = 0; j < n2; ++j)
-        for (int i = 0; i < n1; ++i) {
-          const int next = d == 0 ? i + 1 : i - 1;
-          if (next >= 0 && next < n1 && store.held(d, i, j) && !store.held(d, next, j))
-            starts.push_back(store.get(d, i, j));
-        }
+  const auto held = [&store](int d, int i, int j) { return store.held(d, i, j); };
+  const std::vector<SweepPoint> starts =
+      resumed > 0 ? continuation_starts(req, held, [&store](int d, int i, int j) { return store.get(d, i, j); })
+                  : std::vector<SweepPoint>{};
 
   std::mutex mu;
   std::string journal_failure;  // why a point could not be journaled or kept; the sweep stops then
@@ -151,7 +145,6 @@ int run(const SweepCommandOptions& o) {
   // depend on the points: one more work item of the sweep's threads.
   std::optional<FlutterReport> overlay;
   std::exception_ptr overlay_failure;
-  const auto held = [&store](int d, int i, int j) { return store.held(d, i, j); };
   sweep_each(
       req, starts, on_point, cancel_flag(),
       [&] {

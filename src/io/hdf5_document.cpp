@@ -56,11 +56,18 @@ std::vector<hsize_t> chunk_shape(std::vector<hsize_t> dims) {
   return dims;
 }
 
-H5::DSetCreatPropList array_properties(const std::vector<hsize_t>& dims) {
+// The chunk of a dataset of shape `dims`: none (empty) for a scalar or one
+// of at most kChunkBytes, which stays contiguous.
+std::vector<hsize_t> chunk_of(const std::vector<hsize_t>& dims) {
   std::uintmax_t bytes = sizeof(double);
   for (auto n : dims) bytes *= n;
-  if (dims.empty() || bytes <= kChunkBytes) return plain_properties();
-  return chunked_properties(chunk_shape(dims), kDeflateLevel);
+  if (dims.empty() || bytes <= kChunkBytes) return {};
+  return chunk_shape(dims);
+}
+
+H5::DSetCreatPropList array_properties(const std::vector<hsize_t>& dims) {
+  const std::vector<hsize_t> chunk = chunk_of(dims);
+  return chunk.empty() ? plain_properties() : chunked_properties(chunk, kDeflateLevel);
 }
 
 // "a/b/c" or "/a/b/c" -> {"a", "b", "c"}; "" and "/" -> {}. Empty when a
@@ -242,9 +249,8 @@ class Document {
   // dataset when it is not chunked (at most kChunkBytes).
   static void write_blocks(H5::DataSet& d, const std::vector<hsize_t>& shape, const TableSink::Blocks& blocks,
                            bool integer) {
-    std::uintmax_t bytes = sizeof(double);
-    for (auto n : shape) bytes *= n;
-    const std::vector<hsize_t> chunk = shape.empty() || bytes <= kChunkBytes ? shape : chunk_shape(shape);
+    std::vector<hsize_t> chunk = chunk_of(shape);
+    if (chunk.empty()) chunk = shape;  // contiguous: one block
     // The last dimension the chunk takes a part of (rank: none, one block);
     // the ones before it are taken one index at a time (chunk_shape halved
     // them to 1), the ones after it whole.

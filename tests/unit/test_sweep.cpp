@@ -607,12 +607,9 @@ TEST_CASE("A resumed sweep needs only the points whose successor is to run", "[s
   };
   for (const auto& p : full)
     if (finished(p)) store.put(p);
-  std::vector<SweepPoint> starts;
-  for (int d = 0; d < 2; ++d)
-    for (int i = 0; i < 8; ++i) {
-      const int next = d == 0 ? i + 1 : i - 1;
-      if (next >= 0 && next < 8 && store.held(d, i, 0) && !store.held(d, next, 0)) starts.push_back(store.get(d, i, 0));
-    }
+  const std::vector<SweepPoint> starts = continuation_starts(
+      r, [&](int d, int i, int j) { return store.held(d, i, j); },
+      [&](int d, int i, int j) { return store.get(d, i, j); });
   REQUIRE(starts.size() == 3);  // up 1 and 4, down 5
   std::mutex mu;
   std::vector<SweepPoint> run;

@@ -150,6 +150,13 @@ void sweep_each(const SweepRequest& r, const std::vector<SweepPoint>& done,
                 const std::atomic<bool>* cancel = nullptr, const std::function<void()>& beside = {},
                 const std::function<bool(int direction, int i, int j)>& held = {});
 
+// The `done` a resumed sweep hands to sweep_each with `held`: the held
+// points whose successor in their chain (the next value going up, the one
+// before going down) is not held, read with `get`; none with fresh starts.
+std::vector<SweepPoint> continuation_starts(const SweepRequest& r,
+                                            const std::function<bool(int direction, int i, int j)>& held,
+                                            const std::function<SweepPoint(int direction, int i, int j)>& get);
+
 // Most values per axis, and most points in one sweep (both directions, the
 // whole grid): each point is a run, and the map holds every point's rows.
 // The command refuses larger sweeps; a request read from a file asking for
@@ -188,6 +195,7 @@ struct SweepTables {
   Layout<SweepPoint> point, cycle;
   // Index of a point's cell in the (direction, axis 1, axis 2) grid.
   std::size_t cell(const SweepPoint& p) const;
+  std::size_t cell(int direction, int i, int j) const;
   // The field named `name` (InternalError when the layout has none): the
   // study's provenance rows name the map's tables through it.
   const Field<SweepPoint>& field(std::string_view name) const;
